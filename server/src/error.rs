@@ -1,0 +1,66 @@
+//! The HTTP boundary's error: 4xx carry a message a user can act on; 5xx a
+//! fixed text, while the cause is logged once, here.
+
+use crate::batch::RowError;
+use crate::store::StoreError;
+use axum::Json;
+use axum::http::StatusCode;
+use axum::response::{IntoResponse, Response};
+use serde_json::json;
+
+/// Everything a handler can answer besides success.
+#[derive(Debug, thiserror::Error)]
+pub enum ApiError {
+    #[error("{0}")]
+    BadRequest(String),
+    #[error("{0}")]
+    NotFound(String),
+    #[error("{0}")]
+    Conflict(String),
+    #[error("{0}")]
+    TooLarge(String),
+    #[error("{} row(s) refused; nothing was written", .0.len())]
+    Rejected(Vec<RowError>),
+    #[error("{0}")]
+    Unavailable(String),
+    #[error("internal error")]
+    Internal(#[from] anyhow::Error),
+}
+
+impl From<StoreError> for ApiError {
+    fn from(e: StoreError) -> Self {
+        match e {
+            StoreError::Rejected(rows) => ApiError::Rejected(rows),
+            StoreError::NotFound(m) => ApiError::NotFound(m),
+            StoreError::Conflict(m) => ApiError::Conflict(m),
+            StoreError::Incompatible(m) => ApiError::Unavailable(m),
+            StoreError::Internal(e) => ApiError::Internal(e),
+        }
+    }
+}
+
+/// Text shown for every 5xx; the details are in the server log.
+const INTERNAL_TEXT: &str = "internal error: the server log has the details";
+
+impl IntoResponse for ApiError {
+    fn into_response(self) -> Response {
+        let status = match &self {
+            ApiError::BadRequest(_) => StatusCode::BAD_REQUEST,
+            ApiError::NotFound(_) => StatusCode::NOT_FOUND,
+            ApiError::Conflict(_) => StatusCode::CONFLICT,
+            ApiError::TooLarge(_) => StatusCode::PAYLOAD_TOO_LARGE,
+            ApiError::Rejected(_) => StatusCode::UNPROCESSABLE_ENTITY,
+            ApiError::Unavailable(_) => StatusCode::SERVICE_UNAVAILABLE,
+            ApiError::Internal(_) => StatusCode::INTERNAL_SERVER_ERROR,
+        };
+        let body = match &self {
+            ApiError::Internal(e) => {
+                tracing::error!(error = ?e, "request failed");
+                json!({ "error": INTERNAL_TEXT })
+            }
+            ApiError::Rejected(rows) => json!({ "error": self.to_string(), "rows": rows }),
+            other => json!({ "error": other.to_string() }),
+        };
+        (status, Json(body)).into_response()
+    }
+}

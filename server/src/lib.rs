@@ -1,0 +1,56 @@
+//! Cairn: a cycle-counting server. It keeps a timestamped ledger of every
+//! stock movement and serves the people who keep stock records true.
+//!
+//! `app` builds the router over an [`AppState`]; `run` serves it on a listener
+//! the caller has already bound, so tests can bind port 0.
+
+pub mod batch;
+pub mod cli;
+pub mod config;
+pub mod demo;
+pub mod error;
+pub mod http;
+pub mod import;
+pub mod ledger;
+pub mod master;
+pub mod store;
+pub mod time;
+
+use config::Config;
+use std::sync::Arc;
+use store::Store;
+use store::sqlite::SqliteStore;
+
+/// What every request handler can reach.
+#[derive(Clone)]
+pub struct AppState {
+    pub store: Arc<dyn Store>,
+    pub config: Arc<Config>,
+}
+
+impl AppState {
+    /// Opens the SQLite store named by `config` and builds the state over it.
+    pub fn open(config: Config) -> anyhow::Result<Self> {
+        let store = SqliteStore::open(&config.db, config.store_options())?;
+        Ok(Self {
+            store: Arc::new(store),
+            config: Arc::new(config),
+        })
+    }
+}
+
+/// Builds the application router.
+pub fn app(state: AppState) -> axum::Router {
+    http::router(state)
+}
+
+/// Serves the application on an already-bound listener until `shutdown` resolves.
+pub async fn run(
+    state: AppState,
+    listener: tokio::net::TcpListener,
+    shutdown: impl std::future::Future<Output = ()> + Send + 'static,
+) -> std::io::Result<()> {
+    axum::serve(listener, app(state))
+        .with_graceful_shutdown(shutdown)
+        .await
+}

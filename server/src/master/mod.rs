@@ -1,0 +1,443 @@
+//! Master data: sites, zones, bins, items, packs and lots. Rows arrive from CSV
+//! files or the JSON API as `*Record`s and are validated into `New*` values
+//! before any SQL runs.
+
+pub mod codes;
+pub mod routes;
+
+use crate::batch::FieldError;
+use codes::{BinCode, Sku, ZoneCode};
+use serde::{Deserialize, Deserializer, Serialize};
+
+pub use codes::{LotCode, MovementUid, SiteCode};
+
+/// The store's id of a site.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Hash, Serialize)]
+pub struct SiteId(pub i64);
+
+/// One warehouse.
+#[derive(Debug, Clone, Serialize)]
+pub struct Site {
+    #[serde(skip)]
+    pub id: SiteId,
+    pub code: SiteCode,
+    pub name: String,
+    pub time_zone: String,
+}
+
+/// A site to create.
+#[derive(Debug, Clone)]
+pub struct NewSite {
+    pub code: SiteCode,
+    pub name: String,
+    pub time_zone: String,
+}
+
+/// How many rows of each kind of master data a site holds.
+#[derive(Debug, Clone, Default, Serialize)]
+pub struct SiteCounts {
+    pub zones: u64,
+    pub bins: u64,
+    pub items: u64,
+    pub packs: u64,
+    pub movements: u64,
+    pub watermark: i64,
+}
+
+/// Which side of the aisle a bin faces.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
+pub enum Side {
+    Left,
+    Right,
+    Unknown,
+}
+
+impl Side {
+    /// Returns the stored form: `L`, `R` or empty.
+    pub fn as_str(self) -> &'static str {
+        match self {
+            Side::Left => "L",
+            Side::Right => "R",
+            Side::Unknown => "",
+        }
+    }
+
+    /// Reads the stored form back.
+    pub fn from_stored(text: &str) -> Self {
+        match text {
+            "L" => Side::Left,
+            "R" => Side::Right,
+            _ => Side::Unknown,
+        }
+    }
+}
+
+/// A pack level: how goods are handled and labelled.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
+#[serde(rename_all = "lowercase")]
+pub enum PackLevel {
+    Each,
+    Inner,
+    Case,
+    Pallet,
+}
+
+impl PackLevel {
+    /// Returns the stored form.
+    pub fn as_str(self) -> &'static str {
+        match self {
+            PackLevel::Each => "each",
+            PackLevel::Inner => "inner",
+            PackLevel::Case => "case",
+            PackLevel::Pallet => "pallet",
+        }
+    }
+
+    fn parse(text: &str) -> Option<Self> {
+        match text.trim().to_ascii_lowercase().as_str() {
+            "each" => Some(PackLevel::Each),
+            "inner" => Some(PackLevel::Inner),
+            "case" => Some(PackLevel::Case),
+            "pallet" => Some(PackLevel::Pallet),
+            _ => None,
+        }
+    }
+}
+
+/// A bin row as sent (CSV columns or JSON fields).
+#[derive(Debug, Clone, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct BinRecord {
+    #[serde(default)]
+    pub code: Option<String>,
+    pub zone: String,
+    pub aisle: u16,
+    pub bay: u16,
+    pub level: u8,
+    #[serde(default)]
+    pub side: Option<String>,
+    #[serde(default)]
+    pub walk_seq: Option<i64>,
+}
+
+/// A validated bin.
+#[derive(Debug, Clone, PartialEq)]
+pub struct NewBin {
+    pub code: BinCode,
+    pub zone: ZoneCode,
+    pub aisle: u16,
+    pub bay: u16,
+    pub level: u8,
+    pub side: Side,
+    pub walk_seq: i64,
+}
+
+/// Most aisles, bays and levels a bin code can name.
+const MAX_AISLE: u16 = 999;
+const MAX_BAY: u16 = 999;
+const MAX_LEVEL: u8 = 99;
+
+impl BinRecord {
+    /// Validates the row; the code defaults to the canonical one built from the place.
+    pub fn validate(self) -> Result<NewBin, Vec<FieldError>> {
+        let mut errs = Vec::new();
+        let zone = ZoneCode::parse(&self.zone)
+            .map_err(|e| errs.push(FieldError::new("zone", e.to_string())));
+        if self.aisle > MAX_AISLE {
+            errs.push(FieldError::new(
+                "aisle",
+                format!("aisle must be 0..={MAX_AISLE}"),
+            ));
+        }
+        if self.bay > MAX_BAY {
+            errs.push(FieldError::new("bay", format!("bay must be 0..={MAX_BAY}")));
+        }
+        if self.level > MAX_LEVEL {
+            errs.push(FieldError::new(
+                "level",
+                format!("level must be 0..={MAX_LEVEL}"),
+            ));
+        }
+        let side = match self.side.as_deref().map(str::trim).unwrap_or("") {
+            "L" | "l" => Side::Left,
+            "R" | "r" => Side::Right,
+            "" => Side::Unknown,
+            other => {
+                errs.push(FieldError::new(
+                    "side",
+                    format!("side must be L, R or empty, found '{other}'"),
+                ));
+                Side::Unknown
+            }
+        };
+        let code = match (self.code.as_deref().map(str::trim), &zone) {
+            (Some(c), _) if !c.is_empty() => BinCode::parse(c)
+                .map_err(|e| errs.push(FieldError::new("code", e.to_string())))
+                .ok(),
+            (_, Ok(z)) => Some(BinCode::from_place(z, self.aisle, self.bay, self.level)),
+            (_, Err(())) => None,
+        };
+        match (code, zone) {
+            (Some(code), Ok(zone)) if errs.is_empty() => Ok(NewBin {
+                code,
+                zone,
+                aisle: self.aisle,
+                bay: self.bay,
+                level: self.level,
+                side,
+                walk_seq: self.walk_seq.unwrap_or(0),
+            }),
+            _ => Err(errs),
+        }
+    }
+}
+
+/// An item row as sent.
+#[derive(Debug, Clone, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct ItemRecord {
+    pub sku: String,
+    pub description: String,
+    pub base_unit: String,
+    pub unit_cost_minor: i64,
+    #[serde(default, deserialize_with = "flag")]
+    pub lot_tracked: bool,
+    #[serde(default)]
+    pub group: Option<String>,
+}
+
+/// A validated item.
+#[derive(Debug, Clone, PartialEq)]
+pub struct NewItem {
+    pub sku: Sku,
+    pub description: String,
+    pub base_unit: String,
+    pub unit_cost_minor: i64,
+    pub lot_tracked: bool,
+    pub group: String,
+}
+
+/// Longest description kept; longer text is refused rather than cut.
+const MAX_DESCRIPTION_CHARS: usize = 200;
+/// Longest base-unit name (`each`, `kg`, `m`, …).
+const MAX_UNIT_CHARS: usize = 12;
+
+impl ItemRecord {
+    /// Validates the row.
+    pub fn validate(self) -> Result<NewItem, Vec<FieldError>> {
+        let mut errs = Vec::new();
+        let sku =
+            Sku::parse(&self.sku).map_err(|e| errs.push(FieldError::new("sku", e.to_string())));
+        let description = self.description.trim().to_string();
+        if description.is_empty() {
+            errs.push(FieldError::new(
+                "description",
+                "description must not be empty",
+            ));
+        } else if description.chars().count() > MAX_DESCRIPTION_CHARS {
+            errs.push(FieldError::new(
+                "description",
+                format!("description longer than {MAX_DESCRIPTION_CHARS} characters"),
+            ));
+        }
+        let base_unit = self.base_unit.trim().to_string();
+        if base_unit.is_empty() || base_unit.chars().count() > MAX_UNIT_CHARS {
+            errs.push(FieldError::new(
+                "base_unit",
+                format!("base unit must be 1 to {MAX_UNIT_CHARS} characters"),
+            ));
+        }
+        if self.unit_cost_minor < 0 {
+            errs.push(FieldError::new(
+                "unit_cost_minor",
+                format!(
+                    "unit cost must not be negative, found {}",
+                    self.unit_cost_minor
+                ),
+            ));
+        }
+        match sku {
+            Ok(sku) if errs.is_empty() => Ok(NewItem {
+                sku,
+                description,
+                base_unit,
+                unit_cost_minor: self.unit_cost_minor,
+                lot_tracked: self.lot_tracked,
+                group: self.group.unwrap_or_default().trim().to_string(),
+            }),
+            _ => Err(errs),
+        }
+    }
+}
+
+/// A pack row as sent.
+#[derive(Debug, Clone, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct PackRecord {
+    pub sku: String,
+    pub gtin: String,
+    pub level: String,
+    pub units: i64,
+}
+
+/// A validated pack; `gtin` is normalised to 14 digits.
+#[derive(Debug, Clone, PartialEq)]
+pub struct NewPack {
+    pub sku: Sku,
+    pub gtin: String,
+    pub level: PackLevel,
+    pub units: u32,
+}
+
+impl PackRecord {
+    /// Validates the row.
+    pub fn validate(self) -> Result<NewPack, Vec<FieldError>> {
+        let mut errs = Vec::new();
+        let sku =
+            Sku::parse(&self.sku).map_err(|e| errs.push(FieldError::new("sku", e.to_string())));
+        let gtin = gtin14(&self.gtin).map_err(|e| errs.push(FieldError::new("gtin", e)));
+        let level = PackLevel::parse(&self.level);
+        if level.is_none() {
+            errs.push(FieldError::new(
+                "level",
+                format!(
+                    "level must be each, inner, case or pallet, found '{}'",
+                    self.level
+                ),
+            ));
+        }
+        let units = u32::try_from(self.units).ok().filter(|u| *u >= 1);
+        if units.is_none() {
+            errs.push(FieldError::new(
+                "units",
+                format!(
+                    "units per pack must be a whole number of at least 1, found {}",
+                    self.units
+                ),
+            ));
+        }
+        if level == Some(PackLevel::Each) && units.is_some_and(|u| u != 1) {
+            errs.push(FieldError::new(
+                "units",
+                "an 'each' pack holds exactly 1 base unit",
+            ));
+        }
+        match (sku, gtin, level, units) {
+            (Ok(sku), Ok(gtin), Some(level), Some(units)) if errs.is_empty() => Ok(NewPack {
+                sku,
+                gtin,
+                level,
+                units,
+            }),
+            _ => Err(errs),
+        }
+    }
+}
+
+/// Validates a GTIN-8/12/13/14 and normalises it to 14 digits.
+fn gtin14(text: &str) -> Result<String, String> {
+    let t = text.trim();
+    if !matches!(t.len(), 8 | 12 | 13 | 14) || !t.bytes().all(|b| b.is_ascii_digit()) {
+        return Err(format!("GTIN '{t}' must be 8, 12, 13 or 14 digits"));
+    }
+    let digits: Vec<u32> = t.bytes().map(|b| u32::from(b - b'0')).collect();
+    let (body, check) = digits.split_at(digits.len() - 1);
+    let sum: u32 = body
+        .iter()
+        .rev()
+        .enumerate()
+        .map(|(i, d)| if i % 2 == 0 { d * 3 } else { *d })
+        .sum();
+    let want = (10 - sum % 10) % 10;
+    if want != check[0] {
+        return Err(format!(
+            "GTIN '{t}': check digit should be {want}, found {}",
+            check[0]
+        ));
+    }
+    Ok(format!("{t:0>14}"))
+}
+
+/// Accepts a yes/no flag as a JSON boolean or as the CSV words true/false, yes/no, 1/0, y/n or empty.
+fn flag<'de, D: Deserializer<'de>>(d: D) -> Result<bool, D::Error> {
+    #[derive(Deserialize)]
+    #[serde(untagged)]
+    enum Raw {
+        Bool(bool),
+        Text(String),
+    }
+    match Raw::deserialize(d)? {
+        Raw::Bool(b) => Ok(b),
+        Raw::Text(t) => match t.trim().to_ascii_lowercase().as_str() {
+            "true" | "yes" | "y" | "1" => Ok(true),
+            "false" | "no" | "n" | "0" | "" => Ok(false),
+            other => Err(serde::de::Error::custom(format!(
+                "expected yes or no, found '{other}'"
+            ))),
+        },
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn pack(gtin: &str, level: &str, units: i64) -> PackRecord {
+        PackRecord {
+            sku: "X1".into(),
+            gtin: gtin.into(),
+            level: level.into(),
+            units,
+        }
+    }
+
+    #[test]
+    fn a_pack_with_negative_units_is_refused() {
+        // 4006381333931 is a valid EAN-13 (check digit 1; GS1 General Specifications mod-10 rule).
+        let errs = pack("4006381333931", "case", -6).validate().unwrap_err();
+        assert_eq!(errs[0].field, "units");
+        assert!(errs[0].message.contains("found -6"));
+    }
+
+    #[test]
+    fn a_pack_gtin_with_a_wrong_check_digit_is_refused() {
+        let errs = pack("4006381333932", "case", 6).validate().unwrap_err();
+        assert_eq!(errs[0].field, "gtin");
+    }
+
+    #[test]
+    fn a_pack_gtin_is_normalised_to_14_digits() {
+        let p = pack("4006381333931", "case", 6).validate().unwrap();
+        assert_eq!(p.gtin, "04006381333931");
+    }
+
+    #[test]
+    fn a_bin_without_a_code_gets_the_canonical_one() {
+        let b = BinRecord {
+            code: None,
+            zone: "C".into(),
+            aisle: 4,
+            bay: 7,
+            level: 3,
+            side: Some("r".into()),
+            walk_seq: None,
+        };
+        let b = b.validate().unwrap();
+        assert_eq!(b.code.as_str(), "C-04-07-3");
+        assert_eq!(b.side, Side::Right);
+    }
+
+    #[test]
+    fn an_item_with_a_negative_cost_names_the_field() {
+        let r = ItemRecord {
+            sku: "A1".into(),
+            description: "Hex bolt".into(),
+            base_unit: "each".into(),
+            unit_cost_minor: -5,
+            lot_tracked: false,
+            group: None,
+        };
+        let errs = r.validate().unwrap_err();
+        assert_eq!(errs[0].field, "unit_cost_minor");
+    }
+}

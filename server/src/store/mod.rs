@@ -1,0 +1,168 @@
+//! The narrow storage interface the domain code talks to. SQLite implements it
+//! today (`sqlite`); another engine can be added behind the same trait without
+//! touching the ledger, planning or netting code.
+
+pub mod sqlite;
+
+use crate::batch::RowError;
+use crate::ledger::{BalanceRow, Movement, NewMovement, RecordOutcome};
+use crate::master::codes::{BinCode, Sku};
+use crate::master::{NewBin, NewItem, NewPack, NewSite, Site, SiteCode, SiteCounts, SiteId};
+use crate::time::Timestamp;
+use async_trait::async_trait;
+use std::sync::Arc;
+use std::sync::atomic::{AtomicU64, Ordering};
+
+/// Most balance rows or movements one page returns.
+pub const MAX_PAGE_ROWS: usize = 1_000;
+
+/// Why a store operation did not happen.
+#[derive(Debug, thiserror::Error)]
+pub enum StoreError {
+    /// The batch broke rules that need the stored data to check; nothing was written.
+    #[error("{} row(s) refused", .0.len())]
+    Rejected(Vec<RowError>),
+    /// A named thing does not exist.
+    #[error("{0}")]
+    NotFound(String),
+    /// The write conflicts with what is stored (e.g. a site code already taken).
+    #[error("{0}")]
+    Conflict(String),
+    /// The database file belongs to a newer Cairn, or is not a Cairn database.
+    #[error("{0}")]
+    Incompatible(String),
+    /// Anything else: logged once, shown to users as a fixed text.
+    #[error(transparent)]
+    Internal(#[from] anyhow::Error),
+}
+
+impl From<rusqlite::Error> for StoreError {
+    fn from(e: rusqlite::Error) -> Self {
+        StoreError::Internal(e.into())
+    }
+}
+
+/// A counter a long write advances, so a CLI can draw a progress bar.
+#[derive(Debug, Clone, Default)]
+pub struct Progress(Option<Arc<AtomicU64>>);
+
+impl Progress {
+    /// Creates a progress counter and the handle to read it.
+    pub fn new() -> (Self, Arc<AtomicU64>) {
+        let c = Arc::new(AtomicU64::new(0));
+        (Self(Some(c.clone())), c)
+    }
+
+    /// Advances the counter by `n` rows.
+    pub fn tick(&self, n: u64) {
+        if let Some(c) = &self.0 {
+            c.fetch_add(n, Ordering::Relaxed);
+        }
+    }
+}
+
+/// Which balances to read.
+#[derive(Debug, Clone, Default)]
+pub struct BalanceQuery {
+    pub bin: Option<BinCode>,
+    pub sku: Option<Sku>,
+    pub lot: Option<String>,
+    /// Balance as of this instant; `None` reads the current balance.
+    pub at: Option<Timestamp>,
+    /// Include keys whose balance is zero.
+    pub include_zero: bool,
+    pub limit: usize,
+    /// Opaque cursor from the previous page.
+    pub after: Option<String>,
+}
+
+/// A page of balances.
+#[derive(Debug, Clone, serde::Serialize)]
+pub struct BalancePage {
+    pub balances: Vec<BalanceRow>,
+    pub next: Option<String>,
+    pub watermark: i64,
+}
+
+/// Whose movement history to read.
+#[derive(Debug, Clone)]
+pub enum HistorySubject {
+    Bin(BinCode),
+    Item(Sku),
+}
+
+/// A movement-history query over an event-time range, paged.
+#[derive(Debug, Clone)]
+pub struct HistoryQuery {
+    pub subject: HistorySubject,
+    pub from: Option<Timestamp>,
+    pub to: Option<Timestamp>,
+    pub limit: usize,
+    pub after: Option<String>,
+}
+
+/// A page of movements in event order.
+#[derive(Debug, Clone, serde::Serialize)]
+pub struct HistoryPage {
+    pub movements: Vec<Movement>,
+    pub next: Option<String>,
+}
+
+/// True shelf quantity of a key, for demo sites only.
+#[derive(Debug, Clone)]
+pub struct ShelfRow {
+    pub bin: BinCode,
+    pub sku: Sku,
+    pub lot: String,
+    pub qty: i64,
+}
+
+/// The operations the rest of Cairn needs from storage.
+#[async_trait]
+pub trait Store: Send + Sync + 'static {
+    /// Answers when the database is open and migrated.
+    async fn ping(&self) -> Result<(), StoreError>;
+    /// Creates a site; its code must be new.
+    async fn create_site(&self, site: NewSite) -> Result<Site, StoreError>;
+    /// Finds a site by code.
+    async fn site(&self, code: &SiteCode) -> Result<Option<Site>, StoreError>;
+    /// Lists every site.
+    async fn sites(&self) -> Result<Vec<Site>, StoreError>;
+    /// Counts a site's master data and movements.
+    async fn site_counts(&self, site: SiteId) -> Result<SiteCounts, StoreError>;
+    /// Creates or updates bins (by code), creating zones as needed. All or nothing.
+    async fn put_bins(
+        &self,
+        site: SiteId,
+        rows: Vec<NewBin>,
+        progress: Progress,
+    ) -> Result<usize, StoreError>;
+    /// Creates or updates items (by SKU). All or nothing.
+    async fn put_items(
+        &self,
+        site: SiteId,
+        rows: Vec<NewItem>,
+        progress: Progress,
+    ) -> Result<usize, StoreError>;
+    /// Creates or updates packs (by GTIN). All or nothing.
+    async fn put_packs(
+        &self,
+        site: SiteId,
+        rows: Vec<NewPack>,
+        progress: Progress,
+    ) -> Result<usize, StoreError>;
+    /// Appends movements, idempotent by sender id. All or nothing.
+    async fn record_movements(
+        &self,
+        site: SiteId,
+        rows: Vec<NewMovement>,
+        progress: Progress,
+    ) -> Result<RecordOutcome, StoreError>;
+    /// Reads balances now or as of an instant.
+    async fn balances(&self, site: SiteId, query: BalanceQuery) -> Result<BalancePage, StoreError>;
+    /// Reads a bin's or an item's movements in an event-time range.
+    async fn movements(&self, site: SiteId, query: HistoryQuery)
+    -> Result<HistoryPage, StoreError>;
+    /// Replaces the demo site's true shelf quantities.
+    async fn put_demo_shelf(&self, site: SiteId, rows: Vec<ShelfRow>) -> Result<(), StoreError>;
+}

@@ -1,0 +1,267 @@
+//! SQL for master data: sites, zones, bins, items and packs.
+
+use crate::batch::RowError;
+use crate::master::{NewBin, NewItem, NewPack, NewSite, Site, SiteCode, SiteCounts, SiteId};
+use crate::store::{Progress, ShelfRow, StoreError};
+use crate::time::Timestamp;
+use rusqlite::{Connection, OptionalExtension, Transaction, params};
+use std::collections::HashMap;
+
+fn site_from_row(r: &rusqlite::Row<'_>) -> rusqlite::Result<(i64, String, String, String)> {
+    Ok((r.get(0)?, r.get(1)?, r.get(2)?, r.get(3)?))
+}
+
+fn to_site((id, code, name, time_zone): (i64, String, String, String)) -> Result<Site, StoreError> {
+    let code =
+        SiteCode::parse(&code).map_err(|e| anyhow::anyhow!("stored site code is invalid: {e}"))?;
+    Ok(Site {
+        id: SiteId(id),
+        code,
+        name,
+        time_zone,
+    })
+}
+
+/// Creates a site, refusing a code already taken.
+pub fn create_site(tx: &Transaction, site: &NewSite) -> Result<Site, StoreError> {
+    let taken: bool = tx
+        .prepare_cached("select 1 from site where code = ?1")?
+        .exists([site.code.as_str()])?;
+    if taken {
+        return Err(StoreError::Conflict(format!(
+            "site '{}' already exists",
+            site.code
+        )));
+    }
+    tx.prepare_cached(
+        "insert into site (code, name, time_zone, created_at) values (?1, ?2, ?3, ?4)",
+    )?
+    .execute(params![
+        site.code.as_str(),
+        site.name,
+        site.time_zone,
+        Timestamp::now().0
+    ])?;
+    Ok(Site {
+        id: SiteId(tx.last_insert_rowid()),
+        code: site.code.clone(),
+        name: site.name.clone(),
+        time_zone: site.time_zone.clone(),
+    })
+}
+
+/// Finds a site by code.
+pub fn site(conn: &Connection, code: &SiteCode) -> Result<Option<Site>, StoreError> {
+    conn.prepare_cached("select id, code, name, time_zone from site where code = ?1")?
+        .query_row([code.as_str()], site_from_row)
+        .optional()?
+        .map(to_site)
+        .transpose()
+}
+
+/// Lists every site by code.
+pub fn sites(conn: &Connection) -> Result<Vec<Site>, StoreError> {
+    conn.prepare_cached("select id, code, name, time_zone from site order by code")?
+        .query_map([], site_from_row)?
+        .map(|r| to_site(r?))
+        .collect()
+}
+
+/// Counts a site's master data and movements.
+pub fn site_counts(conn: &Connection, site: SiteId) -> Result<SiteCounts, StoreError> {
+    let count = |sql: &str| -> rusqlite::Result<u64> {
+        conn.prepare_cached(sql)?.query_row([site.0], |r| r.get(0))
+    };
+    Ok(SiteCounts {
+        zones: count("select count(*) from zone where site_id = ?1")?,
+        bins: count("select count(*) from bin where site_id = ?1")?,
+        items: count("select count(*) from item where site_id = ?1")?,
+        packs: count("select count(*) from pack where site_id = ?1")?,
+        movements: count("select count(*) from movement where site_id = ?1")?,
+        watermark: super::ledger::watermark(conn)?,
+    })
+}
+
+/// Refuses a batch that names the same key twice; `key` gives each row's key.
+fn refuse_repeats<T>(
+    rows: &[T],
+    field: &str,
+    what: &str,
+    key: impl Fn(&T) -> &str,
+) -> Result<(), StoreError> {
+    let mut first: HashMap<&str, usize> = HashMap::new();
+    let mut errors = Vec::new();
+    for (i, r) in rows.iter().enumerate() {
+        if let Some(j) = first.insert(key(r), i) {
+            errors.push(RowError::new(
+                i,
+                field,
+                format!(
+                    "{what} '{}' appears twice in this batch (first at row {j})",
+                    key(r)
+                ),
+            ));
+        }
+    }
+    if errors.is_empty() {
+        Ok(())
+    } else {
+        Err(StoreError::Rejected(errors))
+    }
+}
+
+/// Creates or updates bins by code, creating zones in order of first appearance.
+pub fn put_bins(
+    tx: &Transaction,
+    site: SiteId,
+    rows: &[NewBin],
+    progress: &Progress,
+) -> Result<usize, StoreError> {
+    refuse_repeats(rows, "code", "bin", |b| b.code.as_str())?;
+    let mut zones: HashMap<String, i64> = HashMap::new();
+    let mut zone_q = tx.prepare_cached("select id from zone where site_id = ?1 and code = ?2")?;
+    let mut zone_ins = tx.prepare_cached(
+        "insert into zone (site_id, code, walk_seq)
+         values (?1, ?2, (select coalesce(max(walk_seq), 0) + 1 from zone where site_id = ?1))",
+    )?;
+    let mut bin_ins = tx.prepare_cached(
+        "insert into bin (site_id, zone_id, code, aisle, bay, level, side, walk_seq)
+         values (?1, ?2, ?3, ?4, ?5, ?6, ?7, ?8)
+         on conflict (site_id, code) do update set zone_id = excluded.zone_id, aisle = excluded.aisle,
+             bay = excluded.bay, level = excluded.level, side = excluded.side, walk_seq = excluded.walk_seq",
+    )?;
+    for b in rows {
+        let zone_id = match zones.get(b.zone.as_str()) {
+            Some(z) => *z,
+            None => {
+                let z = match zone_q
+                    .query_row(params![site.0, b.zone.as_str()], |r| r.get(0))
+                    .optional()?
+                {
+                    Some(z) => z,
+                    None => {
+                        zone_ins.execute(params![site.0, b.zone.as_str()])?;
+                        tx.last_insert_rowid()
+                    }
+                };
+                zones.insert(b.zone.as_str().to_string(), z);
+                z
+            }
+        };
+        bin_ins.execute(params![
+            site.0,
+            zone_id,
+            b.code.as_str(),
+            b.aisle,
+            b.bay,
+            b.level,
+            b.side.as_str(),
+            b.walk_seq
+        ])?;
+        progress.tick(1);
+    }
+    Ok(rows.len())
+}
+
+/// Creates or updates items by SKU.
+pub fn put_items(
+    tx: &Transaction,
+    site: SiteId,
+    rows: &[NewItem],
+    progress: &Progress,
+) -> Result<usize, StoreError> {
+    refuse_repeats(rows, "sku", "SKU", |r| r.sku.as_str())?;
+    let mut ins = tx.prepare_cached(
+        "insert into item (site_id, sku, description, base_unit, unit_cost_minor, lot_tracked, item_group)
+         values (?1, ?2, ?3, ?4, ?5, ?6, ?7)
+         on conflict (site_id, sku) do update set description = excluded.description,
+             base_unit = excluded.base_unit, unit_cost_minor = excluded.unit_cost_minor,
+             lot_tracked = excluded.lot_tracked, item_group = excluded.item_group",
+    )?;
+    for r in rows {
+        ins.execute(params![
+            site.0,
+            r.sku.as_str(),
+            r.description,
+            r.base_unit,
+            r.unit_cost_minor,
+            r.lot_tracked,
+            r.group
+        ])?;
+        progress.tick(1);
+    }
+    Ok(rows.len())
+}
+
+/// Creates or updates packs by GTIN; a GTIN stays with the item it was first given to.
+pub fn put_packs(
+    tx: &Transaction,
+    site: SiteId,
+    rows: &[NewPack],
+    progress: &Progress,
+) -> Result<usize, StoreError> {
+    refuse_repeats(rows, "gtin", "GTIN", |r| r.gtin.as_str())?;
+    let mut item_q = tx.prepare_cached("select id from item where site_id = ?1 and sku = ?2")?;
+    let mut owner_q = tx.prepare_cached("select i.sku from pack p join item i on i.id = p.item_id where p.site_id = ?1 and p.gtin = ?2")?;
+    let mut errors = Vec::new();
+    let mut items = Vec::with_capacity(rows.len());
+    for (i, r) in rows.iter().enumerate() {
+        match item_q
+            .query_row(params![site.0, r.sku.as_str()], |row| row.get::<_, i64>(0))
+            .optional()?
+        {
+            None => errors.push(RowError::new(
+                i,
+                "sku",
+                format!("unknown SKU '{}' in this site", r.sku),
+            )),
+            Some(id) => items.push(id),
+        }
+        if let Some(owner) = owner_q
+            .query_row(params![site.0, r.gtin], |row| row.get::<_, String>(0))
+            .optional()?
+            && owner != r.sku.as_str()
+        {
+            errors.push(RowError::new(
+                i,
+                "gtin",
+                format!("GTIN {} already belongs to SKU '{owner}'", r.gtin),
+            ));
+        }
+    }
+    if !errors.is_empty() {
+        return Err(StoreError::Rejected(errors));
+    }
+    let mut ins = tx.prepare_cached(
+        "insert into pack (site_id, item_id, gtin, level, units) values (?1, ?2, ?3, ?4, ?5)
+         on conflict (site_id, gtin) do update set level = excluded.level, units = excluded.units",
+    )?;
+    for (r, item_id) in rows.iter().zip(items) {
+        ins.execute(params![site.0, item_id, r.gtin, r.level.as_str(), r.units])?;
+        progress.tick(1);
+    }
+    Ok(rows.len())
+}
+
+/// Replaces a demo site's true shelf quantities.
+pub fn put_demo_shelf(tx: &Transaction, site: SiteId, rows: &[ShelfRow]) -> Result<(), StoreError> {
+    tx.execute(
+        "delete from demo_shelf where bin_id in (select id from bin where site_id = ?1)",
+        [site.0],
+    )?;
+    let mut ins = tx.prepare_cached(
+        "insert into demo_shelf (bin_id, item_id, lot, qty)
+         select b.id, i.id, ?4, ?5 from bin b, item i
+         where b.site_id = ?1 and b.code = ?2 and i.site_id = ?1 and i.sku = ?3",
+    )?;
+    for r in rows {
+        ins.execute(params![
+            site.0,
+            r.bin.as_str(),
+            r.sku.as_str(),
+            r.lot,
+            r.qty
+        ])?;
+    }
+    Ok(())
+}

@@ -1,0 +1,231 @@
+//! The embedded SQLite store: one file in WAL mode, one writer thread, pooled
+//! readers. All SQL of Cairn lives below this module.
+
+pub mod ledger;
+pub mod master;
+pub mod migrate;
+pub mod pool;
+
+use super::{
+    BalancePage, BalanceQuery, HistoryPage, HistoryQuery, Progress, ShelfRow, Store, StoreError,
+};
+use crate::ledger::{NewMovement, RecordOutcome};
+use crate::master::{NewBin, NewItem, NewPack, NewSite, Site, SiteCode, SiteCounts, SiteId};
+use crate::time::Timestamp;
+use async_trait::async_trait;
+use pool::{Readers, Writer, connect};
+use rusqlite::Connection;
+use std::path::{Path, PathBuf};
+use std::time::Duration;
+
+/// How hard SQLite works to keep a commit through a power cut.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, serde::Deserialize, clap::ValueEnum)]
+#[serde(rename_all = "lowercase")]
+pub enum Synchronous {
+    /// fsync at every commit: an acknowledged write survives power loss.
+    Full,
+    /// fsync at checkpoints only: survives a killed process, may lose the last commits on power loss.
+    Normal,
+}
+
+impl Synchronous {
+    fn as_str(self) -> &'static str {
+        match self {
+            Synchronous::Full => "FULL",
+            Synchronous::Normal => "NORMAL",
+        }
+    }
+}
+
+/// Settings for opening the store.
+#[derive(Debug, Clone)]
+pub struct OpenOptions {
+    pub synchronous: Synchronous,
+    pub readers: usize,
+    pub busy_timeout: Duration,
+    pub cache_kib: u32,
+    /// Movements of one key between balance snapshots.
+    pub snapshot_every: i64,
+}
+
+impl Default for OpenOptions {
+    fn default() -> Self {
+        Self {
+            synchronous: Synchronous::Full,
+            readers: 4,
+            busy_timeout: Duration::from_secs(5),
+            cache_kib: 16 * 1024,
+            snapshot_every: 256,
+        }
+    }
+}
+
+/// The SQLite implementation of [`Store`].
+pub struct SqliteStore {
+    path: PathBuf,
+    opts: OpenOptions,
+    writer: Writer,
+    readers: Readers,
+}
+
+impl SqliteStore {
+    /// Opens (creating if needed) and migrates the database at `path`.
+    pub fn open(path: &Path, opts: OpenOptions) -> Result<Self, StoreError> {
+        let mut conn = connect(path, &opts, false)
+            .map_err(|e| anyhow::anyhow!("cannot open database {}: {e}", path.display()))?;
+        let mode: String = conn.query_row("pragma journal_mode = wal", [], |r| r.get(0))?;
+        if mode != "wal" {
+            return Err(anyhow::anyhow!(
+                "database {} cannot use WAL mode (got {mode})",
+                path.display()
+            )
+            .into());
+        }
+        migrate::migrate(&mut conn)?;
+        let readers = Readers::open(path, &opts, opts.readers)?;
+        let writer = Writer::start(conn)
+            .map_err(|e| anyhow::anyhow!("cannot start the writer thread: {e}"))?;
+        Ok(Self {
+            path: path.to_path_buf(),
+            opts,
+            writer,
+            readers,
+        })
+    }
+
+    /// Returns the database file's path.
+    pub fn path(&self) -> &Path {
+        &self.path
+    }
+
+    /// Opens a separate read connection, for benchmarks and tools.
+    pub fn reader_connection(&self) -> Result<Connection, StoreError> {
+        Ok(connect(&self.path, &self.opts, true)?)
+    }
+
+    /// Runs `f` in one write transaction; it commits only if `f` succeeds.
+    pub async fn write_tx<R, F>(&self, f: F) -> Result<R, StoreError>
+    where
+        R: Send + 'static,
+        F: FnOnce(&rusqlite::Transaction<'_>) -> Result<R, StoreError> + Send + 'static,
+    {
+        self.writer
+            .run(move |conn| {
+                let tx = conn.transaction()?;
+                let out = f(&tx)?;
+                tx.commit()?;
+                Ok(out)
+            })
+            .await
+    }
+}
+
+#[async_trait]
+impl Store for SqliteStore {
+    async fn ping(&self) -> Result<(), StoreError> {
+        self.readers
+            .run(|c| {
+                let v: i64 = c.query_row(
+                    "select coalesce(max(version), 0) from schema_migration",
+                    [],
+                    |r| r.get(0),
+                )?;
+                if v == migrate::latest_version() {
+                    Ok(())
+                } else {
+                    Err(StoreError::Incompatible(format!(
+                        "schema version {v} is not the expected {}",
+                        migrate::latest_version()
+                    )))
+                }
+            })
+            .await
+    }
+
+    async fn create_site(&self, site: NewSite) -> Result<Site, StoreError> {
+        self.write_tx(move |tx| master::create_site(tx, &site))
+            .await
+    }
+
+    async fn site(&self, code: &SiteCode) -> Result<Option<Site>, StoreError> {
+        let code = code.clone();
+        self.readers.run(move |c| master::site(c, &code)).await
+    }
+
+    async fn sites(&self) -> Result<Vec<Site>, StoreError> {
+        self.readers.run(master::sites).await
+    }
+
+    async fn site_counts(&self, site: SiteId) -> Result<SiteCounts, StoreError> {
+        self.readers
+            .run(move |c| master::site_counts(c, site))
+            .await
+    }
+
+    async fn put_bins(
+        &self,
+        site: SiteId,
+        rows: Vec<NewBin>,
+        progress: Progress,
+    ) -> Result<usize, StoreError> {
+        self.write_tx(move |tx| master::put_bins(tx, site, &rows, &progress))
+            .await
+    }
+
+    async fn put_items(
+        &self,
+        site: SiteId,
+        rows: Vec<NewItem>,
+        progress: Progress,
+    ) -> Result<usize, StoreError> {
+        self.write_tx(move |tx| master::put_items(tx, site, &rows, &progress))
+            .await
+    }
+
+    async fn put_packs(
+        &self,
+        site: SiteId,
+        rows: Vec<NewPack>,
+        progress: Progress,
+    ) -> Result<usize, StoreError> {
+        self.write_tx(move |tx| master::put_packs(tx, site, &rows, &progress))
+            .await
+    }
+
+    async fn record_movements(
+        &self,
+        site: SiteId,
+        rows: Vec<NewMovement>,
+        progress: Progress,
+    ) -> Result<RecordOutcome, StoreError> {
+        let every = self.opts.snapshot_every;
+        self.write_tx(move |tx| {
+            ledger::insert_movements(tx, site, &rows, Timestamp::now(), every, &progress)
+        })
+        .await
+    }
+
+    async fn balances(&self, site: SiteId, query: BalanceQuery) -> Result<BalancePage, StoreError> {
+        self.readers
+            .run(move |c| ledger::balances(c, site, &query))
+            .await
+    }
+
+    async fn movements(
+        &self,
+        site: SiteId,
+        query: HistoryQuery,
+    ) -> Result<HistoryPage, StoreError> {
+        self.readers
+            .run(move |c| ledger::history(c, site, &query))
+            .await
+    }
+
+    async fn put_demo_shelf(&self, site: SiteId, rows: Vec<ShelfRow>) -> Result<(), StoreError> {
+        self.write_tx(move |tx| master::put_demo_shelf(tx, site, &rows))
+            .await
+    }
+}
+
+#[cfg(test)]
+mod tests;
