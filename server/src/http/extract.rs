@@ -2,8 +2,10 @@
 //! with an [`ApiError`] that says what and where.
 
 use crate::AppState;
+use crate::batch::{Collector, FieldError, MAX_BATCH_ROWS, RowError};
 use crate::error::ApiError;
 use crate::master::{Site, SiteCode};
+use axum::body::Bytes;
 use axum::extract::{FromRequest, FromRequestParts, Path, Query, Request};
 use axum::http::request::Parts;
 use serde::de::DeserializeOwned;
@@ -46,27 +48,28 @@ impl<T: DeserializeOwned + Send, S: Send + Sync> FromRequestParts<S> for Params<
     }
 }
 
-/// A JSON array body whose rows are decoded one by one, so an error names its row.
-pub struct JsonRows(pub Vec<serde_json::Value>);
+/// A JSON array body whose rows are decoded together when they are all well
+/// formed, and one by one when one is not, so an error names its row and field.
+pub struct JsonRows(Bytes);
 
 impl<S: Send + Sync> FromRequest<S> for JsonRows {
     type Rejection = ApiError;
 
     async fn from_request(req: Request, state: &S) -> Result<Self, ApiError> {
-        let axum::Json(v) = axum::Json::<serde_json::Value>::from_request(req, state)
-            .await
-            .map_err(|e| match e {
-                axum::extract::rejection::JsonRejection::BytesRejection(b) => {
-                    ApiError::TooLarge(b.body_text())
-                }
-                other => ApiError::BadRequest(other.body_text()),
-            })?;
-        match v {
-            serde_json::Value::Array(rows) => Ok(JsonRows(rows)),
-            _ => Err(ApiError::BadRequest(
-                "the body must be a JSON array of rows".into(),
-            )),
+        let json = req
+            .headers()
+            .get(axum::http::header::CONTENT_TYPE)
+            .and_then(|v| v.to_str().ok())
+            .is_some_and(|v| v.starts_with("application/json"));
+        if !json {
+            return Err(ApiError::BadRequest(
+                "send the body as Content-Type: application/json".into(),
+            ));
         }
+        let bytes = Bytes::from_request(req, state)
+            .await
+            .map_err(|e| ApiError::TooLarge(e.body_text()))?;
+        Ok(JsonRows(bytes))
     }
 }
 
@@ -74,48 +77,53 @@ impl JsonRows {
     /// Decodes and validates every row, or answers with every error of every row.
     pub fn validated<R: DeserializeOwned, T>(
         self,
-        validate: impl Fn(R) -> Result<T, Vec<crate::batch::FieldError>>,
+        validate: impl Fn(R) -> Result<T, Vec<FieldError>>,
     ) -> Result<Vec<T>, ApiError> {
-        let mut c = crate::batch::Collector::default();
-        for (i, r) in self.decode::<R>(crate::batch::MAX_BATCH_ROWS)? {
-            c.push(i, validate(r));
-        }
-        c.finish().map_err(ApiError::Rejected)
-    }
-
-    /// Decodes every row into `T`, collecting errors that name the row and field.
-    pub fn decode<T: DeserializeOwned>(self, max_rows: usize) -> Result<Vec<(usize, T)>, ApiError> {
-        if self.0.len() > max_rows {
-            return Err(ApiError::TooLarge(format!(
-                "a batch of {} rows is over the limit of {max_rows}",
-                self.0.len()
-            )));
-        }
-        if self.0.is_empty() {
-            return Err(ApiError::BadRequest("the batch is empty".into()));
-        }
-        let mut ok = Vec::with_capacity(self.0.len());
-        let mut errors = Vec::new();
-        for (i, v) in self.0.into_iter().enumerate() {
-            match serde_path_to_error::deserialize::<_, T>(v) {
-                Ok(t) => ok.push((i, t)),
-                Err(e) => {
-                    let field = match e.path().to_string() {
-                        p if p == "." => "row".to_string(),
-                        p => p,
-                    };
-                    errors.push(crate::batch::RowError::new(
-                        i,
-                        field,
-                        e.into_inner().to_string(),
+        let mut c = Collector::default();
+        match serde_json::from_slice::<Vec<R>>(&self.0) {
+            Ok(rows) => {
+                check_count(rows.len())?;
+                for (i, r) in rows.into_iter().enumerate() {
+                    c.push(i, validate(r));
+                }
+            }
+            Err(_) => {
+                let v: serde_json::Value = serde_json::from_slice(&self.0).map_err(|e| {
+                    ApiError::BadRequest(format!("the body is not valid JSON: {e}"))
+                })?;
+                let serde_json::Value::Array(rows) = v else {
+                    return Err(ApiError::BadRequest(
+                        "the body must be a JSON array of rows".into(),
                     ));
+                };
+                check_count(rows.len())?;
+                for (i, v) in rows.into_iter().enumerate() {
+                    match serde_path_to_error::deserialize::<_, R>(v) {
+                        Ok(r) => c.push(i, validate(r)),
+                        Err(e) => {
+                            let field = match e.path().to_string() {
+                                p if p == "." => "row".to_string(),
+                                p => p,
+                            };
+                            c.errors
+                                .push(RowError::new(i, field, e.into_inner().to_string()));
+                        }
+                    }
                 }
             }
         }
-        if errors.is_empty() {
-            Ok(ok)
-        } else {
-            Err(ApiError::Rejected(errors))
-        }
+        c.finish().map_err(ApiError::Rejected)
     }
+}
+
+fn check_count(n: usize) -> Result<(), ApiError> {
+    if n > MAX_BATCH_ROWS {
+        return Err(ApiError::TooLarge(format!(
+            "a batch of {n} rows is over the limit of {MAX_BATCH_ROWS}"
+        )));
+    }
+    if n == 0 {
+        return Err(ApiError::BadRequest("the batch is empty".into()));
+    }
+    Ok(())
 }

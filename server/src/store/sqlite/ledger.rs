@@ -22,18 +22,6 @@ pub struct Key {
     pub lot: String,
 }
 
-struct Resolved {
-    bin_id: i64,
-    item_id: i64,
-    /// The reversed movement: its id when already stored, or its batch position.
-    reverses: Option<Reversal>,
-}
-
-enum Reversal {
-    Stored(i64),
-    InBatch(usize),
-}
-
 struct Stored {
     id: i64,
     site_id: i64,
@@ -44,36 +32,104 @@ struct Stored {
 }
 
 fn stored_by_uid(tx: &Transaction, uid: &str) -> rusqlite::Result<Option<Stored>> {
-    tx.prepare_cached("select id, site_id, bin_id, item_id, lot, qty, kind, event_at from movement where uid = ?1")?
-        .query_row([uid], |r| {
-            Ok(Stored {
-                id: r.get(0)?,
-                site_id: r.get(1)?,
-                key: Key { bin_id: r.get(2)?, item_id: r.get(3)?, lot: r.get(4)? },
-                qty: r.get(5)?,
-                kind: r.get(6)?,
-                event_at: r.get(7)?,
-            })
+    tx.prepare_cached(
+        "select id, site_id, bin_id, item_id, lot, qty, kind, event_at from movement where uid = ?1",
+    )?
+    .query_row([uid], |r| {
+        Ok(Stored {
+            id: r.get(0)?,
+            site_id: r.get(1)?,
+            key: Key { bin_id: r.get(2)?, item_id: r.get(3)?, lot: r.get(4)? },
+            qty: r.get(5)?,
+            kind: r.get(6)?,
+            event_at: r.get(7)?,
         })
-        .optional()
+    })
+    .optional()
 }
 
-/// Resolves codes and checks the rules that need stored data; `None` marks a resend.
-fn resolve(
+fn same_content(prev: &Stored, site: SiteId, key: &Key, m: &NewMovement) -> bool {
+    prev.site_id == site.0
+        && prev.key == *key
+        && prev.qty == m.qty
+        && prev.kind == m.kind.as_str()
+        && prev.event_at == m.event_at.0
+}
+
+/// Looks codes up once per batch.
+struct Codes<'a> {
+    bins: HashMap<&'a str, Option<i64>>,
+    items: HashMap<&'a str, Option<(i64, bool)>>,
+}
+
+impl<'a> Codes<'a> {
+    fn bin(
+        &mut self,
+        tx: &Transaction,
+        site: SiteId,
+        code: &'a str,
+    ) -> rusqlite::Result<Option<i64>> {
+        if let Some(v) = self.bins.get(code) {
+            return Ok(*v);
+        }
+        let v = tx
+            .prepare_cached("select id from bin where site_id = ?1 and code = ?2")?
+            .query_row(params![site.0, code], |r| r.get(0))
+            .optional()?;
+        self.bins.insert(code, v);
+        Ok(v)
+    }
+
+    fn item(
+        &mut self,
+        tx: &Transaction,
+        site: SiteId,
+        sku: &'a str,
+    ) -> rusqlite::Result<Option<(i64, bool)>> {
+        if let Some(v) = self.items.get(sku) {
+            return Ok(*v);
+        }
+        let v = tx
+            .prepare_cached("select id, lot_tracked from item where site_id = ?1 and sku = ?2")?
+            .query_row(params![site.0, sku], |r| Ok((r.get(0)?, r.get(1)?)))
+            .optional()?;
+        self.items.insert(sku, v);
+        Ok(v)
+    }
+}
+
+/// Appends a validated batch in one pass: every row is checked against stored
+/// data and written; if any row breaks a rule, the caller's transaction is
+/// dropped uncommitted, so the batch writes all rows or none. A resend (same id,
+/// same content) is acknowledged and skipped.
+pub fn insert_movements(
     tx: &Transaction,
     site: SiteId,
     rows: &[NewMovement],
-) -> Result<Vec<Option<Resolved>>, StoreError> {
-    let mut bins: HashMap<&str, Option<i64>> = HashMap::new();
-    let mut items: HashMap<&str, Option<(i64, bool)>> = HashMap::new();
-    let mut seen: HashMap<&str, usize> = HashMap::new();
-    let mut bin_q = tx.prepare_cached("select id from bin where site_id = ?1 and code = ?2")?;
-    let mut item_q =
-        tx.prepare_cached("select id, lot_tracked from item where site_id = ?1 and sku = ?2")?;
-    let mut reversed_q = tx.prepare_cached("select 1 from movement where reverses = ?1 limit 1")?;
+    now: Timestamp,
+    snapshot_every: i64,
+    progress: &Progress,
+) -> Result<RecordOutcome, StoreError> {
+    let mut codes = Codes {
+        bins: HashMap::new(),
+        items: HashMap::new(),
+    };
+    let mut seen: HashMap<&str, usize> = HashMap::with_capacity(rows.len());
+    let mut ids: Vec<Option<i64>> = Vec::with_capacity(rows.len());
     let mut errors = Vec::new();
-    let mut out = Vec::with_capacity(rows.len());
+    let mut outcome = RecordOutcome::default();
+    let mut insert = tx.prepare_cached(
+        "insert into movement (uid, site_id, bin_id, item_id, lot, qty, kind, event_at, recorded_at,
+                               source, doc_ref, actor, reverses)
+         values (?1, ?2, ?3, ?4, ?5, ?6, ?7, ?8, ?9, ?10, ?11, ?12, ?13)
+         on conflict (uid) do nothing",
+    )?;
+    let mut lot_q = tx.prepare_cached(
+        "insert into lot (item_id, code, expiry) values (?1, ?2, ?3) on conflict do nothing",
+    )?;
+    let mut reversed_q = tx.prepare_cached("select 1 from movement where reverses = ?1 limit 1")?;
     for (i, m) in rows.iter().enumerate() {
+        ids.push(None);
         let mut err = |field: &str, msg: String| errors.push(RowError::new(i, field, msg));
         if let Some(first) = seen.insert(m.uid.as_str(), i) {
             err(
@@ -83,31 +139,10 @@ fn resolve(
                     m.uid
                 ),
             );
-            out.push(None);
             continue;
         }
-        let bin_id = match bins.get(m.bin.as_str()) {
-            Some(v) => *v,
-            None => {
-                let v = bin_q
-                    .query_row(params![site.0, m.bin.as_str()], |r| r.get(0))
-                    .optional()?;
-                bins.insert(m.bin.as_str(), v);
-                v
-            }
-        };
-        let item = match items.get(m.sku.as_str()) {
-            Some(v) => *v,
-            None => {
-                let v = item_q
-                    .query_row(params![site.0, m.sku.as_str()], |r| {
-                        Ok((r.get(0)?, r.get(1)?))
-                    })
-                    .optional()?;
-                items.insert(m.sku.as_str(), v);
-                v
-            }
-        };
+        let bin_id = codes.bin(tx, site, m.bin.as_str())?;
+        let item = codes.item(tx, site, m.sku.as_str())?;
         if bin_id.is_none() {
             err("bin", format!("unknown bin '{}' in this site", m.bin));
         }
@@ -124,7 +159,6 @@ fn resolve(
             _ => {}
         }
         let (Some(bin_id), Some((item_id, _))) = (bin_id, item) else {
-            out.push(None);
             continue;
         };
         let key = Key {
@@ -132,45 +166,27 @@ fn resolve(
             item_id,
             lot: m.lot.clone(),
         };
-        if let Some(prev) = stored_by_uid(tx, m.uid.as_str())? {
-            let same = prev.site_id == site.0
-                && prev.key == key
-                && prev.qty == m.qty
-                && prev.kind == m.kind.as_str()
-                && prev.event_at == m.event_at.0;
-            if !same {
-                err(
-                    "id",
-                    format!("id '{}' is already recorded with different content", m.uid),
-                );
-            }
-            out.push(None);
-            continue;
-        }
         let reverses = match &m.reverses {
             None => None,
             Some(r) => {
+                let mirror = |o_qty: i64| {
+                    format!(
+                        "a reversal of '{r}' must name the same bin, SKU and lot with quantity {}",
+                        -o_qty
+                    )
+                };
                 if let Some(&j) = seen.get(r.as_str()).filter(|&&j| j < i) {
                     let o = &rows[j];
                     if o.bin != m.bin || o.sku != m.sku || o.lot != m.lot || o.qty != -m.qty {
-                        err(
-                            "reverses",
-                            format!(
-                                "a reversal of '{r}' must name the same bin, SKU and lot with quantity {}",
-                                -o.qty
-                            ),
-                        );
+                        err("reverses", mirror(o.qty));
                     }
-                    Some(Reversal::InBatch(j))
+                    match ids[j] {
+                        Some(id) => Some(id),
+                        None => stored_by_uid(tx, r.as_str())?.map(|o| o.id),
+                    }
                 } else if let Some(o) = stored_by_uid(tx, r.as_str())? {
                     if o.site_id != site.0 || o.key != key || o.qty != -m.qty {
-                        err(
-                            "reverses",
-                            format!(
-                                "a reversal of '{r}' must name the same bin, SKU and lot with quantity {}",
-                                -o.qty
-                            ),
-                        );
+                        err("reverses", mirror(o.qty));
                     }
                     if reversed_q.exists([o.id])? {
                         err(
@@ -178,7 +194,7 @@ fn resolve(
                             format!("movement '{r}' has already been reversed"),
                         );
                     }
-                    Some(Reversal::Stored(o.id))
+                    Some(o.id)
                 } else {
                     err(
                         "reverses",
@@ -188,59 +204,25 @@ fn resolve(
                 }
             }
         };
-        out.push(Some(Resolved {
-            bin_id,
-            item_id,
-            reverses,
-        }));
-    }
-    if errors.is_empty() {
-        Ok(out)
-    } else {
-        Err(StoreError::Rejected(errors))
-    }
-}
-
-/// Appends a validated batch: all rows or none, resends acknowledged and skipped.
-pub fn insert_movements(
-    tx: &Transaction,
-    site: SiteId,
-    rows: &[NewMovement],
-    now: Timestamp,
-    snapshot_every: i64,
-    progress: &Progress,
-) -> Result<RecordOutcome, StoreError> {
-    let resolved = resolve(tx, site, rows)?;
-    let mut insert = tx.prepare_cached(
-        "insert into movement (uid, site_id, bin_id, item_id, lot, qty, kind, event_at, recorded_at,
-                               source, doc_ref, actor, reverses)
-         values (?1, ?2, ?3, ?4, ?5, ?6, ?7, ?8, ?9, ?10, ?11, ?12, ?13)",
-    )?;
-    let mut lot_q = tx.prepare_cached(
-        "insert into lot (item_id, code, expiry) values (?1, ?2, ?3) on conflict do nothing",
-    )?;
-    let mut ids: Vec<Option<i64>> = Vec::with_capacity(rows.len());
-    let mut outcome = RecordOutcome::default();
-    for (i, (m, r)) in rows.iter().zip(&resolved).enumerate() {
-        let Some(r) = r else {
-            outcome.already_recorded += 1;
-            ids.push(None);
+        if !errors.is_empty() {
+            // The batch will be refused: keep checking, stop writing.
+            if let Some(prev) = stored_by_uid(tx, m.uid.as_str())?
+                && !same_content(&prev, site, &key, m)
+            {
+                errors.push(RowError::new(
+                    i,
+                    "id",
+                    format!("id '{}' is already recorded with different content", m.uid),
+                ));
+            }
             continue;
-        };
-        let reverses = match r.reverses {
-            None => None,
-            Some(Reversal::Stored(id)) => Some(id),
-            Some(Reversal::InBatch(j)) => ids[j],
-        };
-        if !m.lot.is_empty() {
-            lot_q.execute(params![r.item_id, m.lot, m.expiry.map(|d| d.to_string())])?;
         }
         let recorded_at = m.recorded_at.unwrap_or(now);
-        insert.execute(params![
+        let written = insert.execute(params![
             m.uid.as_str(),
             site.0,
-            r.bin_id,
-            r.item_id,
+            bin_id,
+            item_id,
             m.lot,
             m.qty,
             m.kind.as_str(),
@@ -251,17 +233,32 @@ pub fn insert_movements(
             m.actor,
             reverses
         ])?;
-        ids.push(Some(tx.last_insert_rowid()));
-        let key = Key {
-            bin_id: r.bin_id,
-            item_id: r.item_id,
-            lot: m.lot.clone(),
-        };
+        if written == 0 {
+            let prev = stored_by_uid(tx, m.uid.as_str())?.ok_or_else(|| {
+                anyhow::anyhow!("movement '{}' conflicted but cannot be read", m.uid)
+            })?;
+            if !same_content(&prev, site, &key, m) {
+                errors.push(RowError::new(
+                    i,
+                    "id",
+                    format!("id '{}' is already recorded with different content", m.uid),
+                ));
+            }
+            outcome.already_recorded += 1;
+            continue;
+        }
+        ids[i] = Some(tx.last_insert_rowid());
+        if !m.lot.is_empty() {
+            lot_q.execute(params![item_id, m.lot, m.expiry.map(|d| d.to_string())])?;
+        }
         apply_to_balance(tx, &key, m.qty, m.event_at.0, snapshot_every)?;
         outcome.recorded += 1;
         if (i + 1) % PROGRESS_EVERY == 0 {
             progress.tick(PROGRESS_EVERY as u64);
         }
+    }
+    if !errors.is_empty() {
+        return Err(StoreError::Rejected(errors));
     }
     progress.tick((rows.len() % PROGRESS_EVERY) as u64);
     outcome.watermark = watermark(tx)?;

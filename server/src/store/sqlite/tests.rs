@@ -17,14 +17,45 @@ fn fresh() -> (Connection, SiteId) {
     conn.pragma_update(None, "foreign_keys", true).unwrap();
     migrate::migrate(&mut conn).unwrap();
     let tx = conn.transaction().unwrap();
-    let site = master::create_site(&tx, &NewSite { code: SiteCode::parse("T").unwrap(), name: "Test".into(), time_zone: "UTC".into() }).unwrap();
+    let site = master::create_site(
+        &tx,
+        &NewSite {
+            code: SiteCode::parse("T").unwrap(),
+            name: "Test".into(),
+            time_zone: "UTC".into(),
+        },
+    )
+    .unwrap();
     let bins: Vec<_> = (1..=2)
-        .map(|bay| BinRecord { code: None, zone: "A".into(), aisle: 1, bay, level: 1, side: None, walk_seq: None }.validate().unwrap())
+        .map(|bay| {
+            BinRecord {
+                code: None,
+                zone: "A".into(),
+                aisle: 1,
+                bay,
+                level: 1,
+                side: None,
+                walk_seq: None,
+            }
+            .validate()
+            .unwrap()
+        })
         .collect();
     master::put_bins(&tx, site.id, &bins, &Progress::default()).unwrap();
     let items: Vec<_> = SKUS
         .iter()
-        .map(|s| ItemRecord { sku: (*s).into(), description: "Test item".into(), base_unit: "each".into(), unit_cost_minor: 100, lot_tracked: false, group: None }.validate().unwrap())
+        .map(|s| {
+            ItemRecord {
+                sku: (*s).into(),
+                description: "Test item".into(),
+                base_unit: "each".into(),
+                unit_cost_minor: 100,
+                lot_tracked: false,
+                group: None,
+            }
+            .validate()
+            .unwrap()
+        })
         .collect();
     master::put_items(&tx, site.id, &items, &Progress::default()).unwrap();
     tx.commit().unwrap();
@@ -49,26 +80,60 @@ fn mv(uid: &str, bin: usize, sku: usize, qty: i64, at: i64) -> NewMovement {
     }
 }
 
-fn write(conn: &mut Connection, site: SiteId, rows: &[NewMovement], every: i64) -> Result<crate::ledger::RecordOutcome, StoreError> {
+fn write(
+    conn: &mut Connection,
+    site: SiteId,
+    rows: &[NewMovement],
+    every: i64,
+) -> Result<crate::ledger::RecordOutcome, StoreError> {
     let tx = conn.transaction().unwrap();
-    let out = ledger::insert_movements(&tx, site, rows, Timestamp(10_000_000), every, &Progress::default())?;
+    let out = ledger::insert_movements(
+        &tx,
+        site,
+        rows,
+        Timestamp(10_000_000),
+        every,
+        &Progress::default(),
+    )?;
     tx.commit().unwrap();
     Ok(out)
 }
 
 fn key(conn: &Connection, bin: usize, sku: usize) -> ledger::Key {
-    let bin_id = conn.query_row("select id from bin where code = ?1", [BINS[bin]], |r| r.get(0)).unwrap();
-    let item_id = conn.query_row("select id from item where sku = ?1", [SKUS[sku]], |r| r.get(0)).unwrap();
-    ledger::Key { bin_id, item_id, lot: String::new() }
+    let bin_id = conn
+        .query_row("select id from bin where code = ?1", [BINS[bin]], |r| {
+            r.get(0)
+        })
+        .unwrap();
+    let item_id = conn
+        .query_row("select id from item where sku = ?1", [SKUS[sku]], |r| {
+            r.get(0)
+        })
+        .unwrap();
+    ledger::Key {
+        bin_id,
+        item_id,
+        lot: String::new(),
+    }
 }
 
 fn current(conn: &Connection, k: &ledger::Key) -> i64 {
-    conn.query_row("select coalesce(sum(qty), 0) from balance where bin_id = ?1 and item_id = ?2", [k.bin_id, k.item_id], |r| r.get(0)).unwrap()
+    conn.query_row(
+        "select coalesce(sum(qty), 0) from balance where bin_id = ?1 and item_id = ?2",
+        [k.bin_id, k.item_id],
+        |r| r.get(0),
+    )
+    .unwrap()
 }
 
 /// (bin, sku, qty, event time) of one random movement; times repeat and arrive out of order.
 fn movement() -> impl Strategy<Value = (usize, usize, i64, i64)> {
-    (0..2usize, 0..2usize, prop_oneof![-50i64..0, 1i64..50], 0i64..200)
+    (
+        0..2usize,
+        0..2usize,
+        prop_oneof![-50i64..0, 1i64..50],
+        0i64..200,
+    )
 }
 
 proptest! {
@@ -122,11 +187,19 @@ proptest! {
 fn the_ledger_refuses_update_and_delete() {
     let (mut conn, site) = fresh();
     write(&mut conn, site, &[mv("u1", 0, 0, 5, 10)], 256).unwrap();
-    let up = conn.execute("update movement set qty = 6", []).unwrap_err().to_string();
+    let up = conn
+        .execute("update movement set qty = 6", [])
+        .unwrap_err()
+        .to_string();
     assert!(up.contains("append-only"), "{up}");
-    let del = conn.execute("delete from movement", []).unwrap_err().to_string();
+    let del = conn
+        .execute("delete from movement", [])
+        .unwrap_err()
+        .to_string();
     assert!(del.contains("append-only"), "{del}");
-    let n: i64 = conn.query_row("select qty from movement", [], |r| r.get(0)).unwrap();
+    let n: i64 = conn
+        .query_row("select qty from movement", [], |r| r.get(0))
+        .unwrap();
     assert_eq!(n, 5);
 }
 
@@ -136,10 +209,14 @@ fn a_batch_with_one_unknown_bin_writes_nothing_and_names_the_row() {
     let mut bad = mv("b2", 0, 0, 3, 10);
     bad.bin = BinCode::parse("Z-99-99-9").unwrap();
     let err = write(&mut conn, site, &[mv("b1", 0, 0, 3, 10), bad], 256).unwrap_err();
-    let StoreError::Rejected(rows) = err else { panic!("expected a row rejection, got {err:?}") };
+    let StoreError::Rejected(rows) = err else {
+        panic!("expected a row rejection, got {err:?}")
+    };
     assert_eq!(rows.len(), 1);
     assert_eq!((rows[0].row, rows[0].field.as_str()), (1, "bin"));
-    let n: i64 = conn.query_row("select count(*) from movement", [], |r| r.get(0)).unwrap();
+    let n: i64 = conn
+        .query_row("select count(*) from movement", [], |r| r.get(0))
+        .unwrap();
     assert_eq!(n, 0);
 }
 
@@ -148,7 +225,10 @@ fn a_reused_id_with_other_content_is_refused() {
     let (mut conn, site) = fresh();
     write(&mut conn, site, &[mv("same", 0, 0, 3, 10)], 256).unwrap();
     let err = write(&mut conn, site, &[mv("same", 0, 0, 4, 10)], 256).unwrap_err();
-    assert!(matches!(err, StoreError::Rejected(ref r) if r[0].message.contains("different content")), "{err:?}");
+    assert!(
+        matches!(err, StoreError::Rejected(ref r) if r[0].message.contains("different content")),
+        "{err:?}"
+    );
 }
 
 #[test]
@@ -164,6 +244,9 @@ fn a_reversal_must_mirror_the_original_and_happen_once() {
     let mut twice = mv("rev3", 0, 0, -7, 30);
     twice.reverses = Some(MovementUid::parse("orig").unwrap());
     let err = write(&mut conn, site, &[twice], 256).unwrap_err();
-    assert!(matches!(err, StoreError::Rejected(ref r) if r[0].message.contains("already been reversed")), "{err:?}");
+    assert!(
+        matches!(err, StoreError::Rejected(ref r) if r[0].message.contains("already been reversed")),
+        "{err:?}"
+    );
     assert_eq!(current(&conn, &key(&conn, 0, 0)), 0);
 }

@@ -1,0 +1,183 @@
+//! CSV import end to end, through the real `cairn` binary and a real SQLite file.
+
+mod common;
+
+use std::fmt::Write as _;
+use std::path::Path;
+use std::process::Command;
+
+fn cairn(args: &[&str]) -> std::process::Output {
+    Command::new(env!("CARGO_BIN_EXE_cairn"))
+        .args(args)
+        .output()
+        .expect("the cairn binary runs")
+}
+
+fn write(path: &Path, text: &str) {
+    std::fs::write(path, text).expect("the temporary file is writable");
+}
+
+fn movement_count(db: &Path) -> i64 {
+    let conn = rusqlite::Connection::open(db).unwrap();
+    conn.query_row("select count(*) from movement", [], |r| r.get(0))
+        .unwrap()
+}
+
+/// Creates a site with 100 bins and 50 items through the CLI.
+fn site(dir: &Path) -> String {
+    let db = dir.join("t.db").display().to_string();
+    assert!(
+        cairn(&["site", "add", "--db", &db, "--code", "T", "--name", "Test"])
+            .status
+            .success()
+    );
+    let mut bins = String::from("zone,aisle,bay,level,side\n");
+    for i in 0..100 {
+        writeln!(bins, "A,{},{},1,L", 1 + i / 20, 1 + i % 20).unwrap();
+    }
+    write(&dir.join("bins.csv"), &bins);
+    let mut items = String::from("sku,description,base_unit,unit_cost_minor,lot_tracked,group\n");
+    for i in 0..50 {
+        writeln!(items, "S{i},Item {i},each,{},no,test", 100 + i).unwrap();
+    }
+    write(&dir.join("items.csv"), &items);
+    for kind in ["bins", "items"] {
+        let path = dir.join(format!("{kind}.csv")).display().to_string();
+        let out = cairn(&["import", kind, "--db", &db, "--site", "T", &path]);
+        assert!(
+            out.status.success(),
+            "{}",
+            String::from_utf8_lossy(&out.stderr)
+        );
+    }
+    db
+}
+
+fn movements_csv(rows: usize, bad_line: Option<(usize, &str)>) -> String {
+    let mut csv = String::from("id,bin,sku,qty,kind,event_at\n");
+    for i in 0..rows {
+        let line = i + 2;
+        match bad_line {
+            Some((l, text)) if l == line => csv.push_str(text),
+            _ => write!(
+                csv,
+                "m{i},A-{:02}-{:02}-1,S{},{},receipt,2026-03-02T08:{:02}:00Z",
+                1 + (i % 100) / 20,
+                1 + i % 20,
+                i % 50,
+                1 + i % 7,
+                i % 60
+            )
+            .unwrap(),
+        }
+        csv.push('\n');
+    }
+    csv
+}
+
+#[test]
+fn a_bad_row_in_ten_thousand_writes_nothing_and_reports_its_line() {
+    let dir = tempfile::tempdir().unwrap();
+    let db = site(dir.path());
+    let path = dir.path().join("movements.csv");
+    write(
+        &path,
+        &movements_csv(
+            10_000,
+            Some((7_342, "bad,A-01-01-1,S1,2.5,receipt,2026-03-02T08:00:00Z")),
+        ),
+    );
+    let out = cairn(&[
+        "import",
+        "movements",
+        "--db",
+        &db,
+        "--site",
+        "T",
+        &path.display().to_string(),
+    ]);
+    let stderr = String::from_utf8_lossy(&out.stderr);
+    assert!(!out.status.success());
+    assert!(stderr.contains("line 7342, qty"), "{stderr}");
+    assert!(stderr.contains("nothing was written"), "{stderr}");
+    assert_eq!(movement_count(Path::new(&db)), 0);
+}
+
+#[test]
+fn a_row_naming_an_unknown_bin_is_reported_by_line_after_the_shape_checks() {
+    let dir = tempfile::tempdir().unwrap();
+    let db = site(dir.path());
+    let path = dir.path().join("movements.csv");
+    write(
+        &path,
+        &movements_csv(
+            2_000,
+            Some((1_500, "x1,Z-09-09-9,S1,3,receipt,2026-03-02T08:00:00Z")),
+        ),
+    );
+    let out = cairn(&[
+        "import",
+        "movements",
+        "--db",
+        &db,
+        "--site",
+        "T",
+        &path.display().to_string(),
+    ]);
+    let stderr = String::from_utf8_lossy(&out.stderr);
+    assert!(!out.status.success());
+    assert!(
+        stderr.contains("line 1500, bin: unknown bin 'Z-09-09-9'"),
+        "{stderr}"
+    );
+    assert_eq!(movement_count(Path::new(&db)), 0);
+}
+
+#[test]
+fn a_good_file_imports_and_a_second_import_is_acknowledged_not_applied() {
+    let dir = tempfile::tempdir().unwrap();
+    let db = site(dir.path());
+    let path = dir.path().join("movements.csv");
+    write(&path, &movements_csv(10_000, None));
+    let p = path.display().to_string();
+    let out = cairn(&["import", "movements", "--db", &db, "--site", "T", &p]);
+    assert!(
+        out.status.success(),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    assert_eq!(movement_count(Path::new(&db)), 10_000);
+    let out = cairn(&["import", "movements", "--db", &db, "--site", "T", &p]);
+    let stdout = String::from_utf8_lossy(&out.stdout);
+    assert!(
+        stdout.contains("0 written, 10000 already recorded"),
+        "{stdout}"
+    );
+    assert_eq!(movement_count(Path::new(&db)), 10_000);
+}
+
+#[test]
+fn an_unknown_column_is_refused_with_its_name() {
+    let dir = tempfile::tempdir().unwrap();
+    let db = site(dir.path());
+    let path = dir.path().join("items2.csv");
+    write(
+        &path,
+        "sku,description,base_unit,unit_cost_minor,colour\nZ1,Zed,each,5,red\n",
+    );
+    let out = cairn(&[
+        "import",
+        "items",
+        "--db",
+        &db,
+        "--site",
+        "T",
+        &path.display().to_string(),
+    ]);
+    let stderr = String::from_utf8_lossy(&out.stderr);
+    assert!(!out.status.success());
+    assert!(
+        stderr.contains("line 2") && stderr.contains("colour"),
+        "{stderr}"
+    );
+}
