@@ -1,0 +1,150 @@
+//! `cargo xtask wasm`: builds the two WebAssembly modules of the phone app and their JS glue
+//! into `client/web/pkg/`.
+//!
+//! - `cairn_scan.js` + `cairn_scan_bg.wasm`: the scan parser, loaded with the app shell;
+//! - `cairn_camera.js` + `cairn_camera_bg.wasm`: the camera decoder, loaded when the camera
+//!   opens.
+//!
+//! Runs `rustup target add wasm32-unknown-unknown` first (a fresh machine lacks it), builds
+//! in a separate target directory (`target/wasm-build`, or `$CAIRN_WASM_TARGET_DIR`) so the
+//! nested cargo never waits on the outer one's lock, and runs `wasm-opt -Oz` when a
+//! `wasm-opt` is on PATH or in `client/web/node_modules/.bin` (npm `binaryen`); without it
+//! the step is skipped with a message.
+
+use std::path::{Path, PathBuf};
+use std::process::Command;
+
+use anyhow::{Context, Result, bail};
+
+const TARGET: &str = "wasm32-unknown-unknown";
+const PROFILE: &str = "wasm";
+const CRATE: &str = "cairn-scan-wasm";
+const ARTIFACT: &str = "cairn_scan_wasm.wasm";
+
+/// One module to build: its output name and the cargo feature arguments.
+struct Module {
+    name: &'static str,
+    features: &'static [&'static str],
+}
+
+const MODULES: &[Module] = &[
+    Module {
+        name: "cairn_scan",
+        features: &[],
+    },
+    Module {
+        name: "cairn_camera",
+        features: &["--no-default-features", "--features", "camera"],
+    },
+];
+
+fn main() -> Result<()> {
+    let args: Vec<String> = std::env::args().skip(1).collect();
+    match args.first().map(String::as_str) {
+        Some("wasm") => wasm(args.iter().any(|a| a == "--no-opt")),
+        _ => {
+            eprintln!("usage: cargo xtask wasm [--no-opt]");
+            std::process::exit(2);
+        }
+    }
+}
+
+fn root() -> PathBuf {
+    Path::new(env!("CARGO_MANIFEST_DIR"))
+        .parent()
+        .expect("xtask sits in the workspace root")
+        .to_path_buf()
+}
+
+fn wasm(no_opt: bool) -> Result<()> {
+    let root = root();
+    let out_dir = root.join("client/web/pkg");
+    let target_dir = std::env::var_os("CAIRN_WASM_TARGET_DIR")
+        .map(PathBuf::from)
+        .unwrap_or_else(|| root.join("target/wasm-build"));
+    run(Command::new("rustup").args(["target", "add", TARGET]))
+        .context("installing the wasm32 target with rustup")?;
+    std::fs::create_dir_all(&out_dir)?;
+    let wasm_opt = if no_opt { None } else { find_wasm_opt(&root) };
+    if wasm_opt.is_none() && !no_opt {
+        eprintln!(
+            "xtask: wasm-opt not found (npm install binaryen in client/web to get it); skipping size optimisation"
+        );
+    }
+    for module in MODULES {
+        let cargo = std::env::var("CARGO").unwrap_or_else(|_| "cargo".to_owned());
+        run(Command::new(cargo)
+            .current_dir(&root)
+            .args([
+                "build",
+                "-p",
+                CRATE,
+                "--target",
+                TARGET,
+                "--profile",
+                PROFILE,
+            ])
+            .args(module.features)
+            .arg("--target-dir")
+            .arg(&target_dir))
+        .with_context(|| format!("building {}", module.name))?;
+        let input = target_dir.join(TARGET).join(PROFILE).join(ARTIFACT);
+        wasm_bindgen_cli_support::Bindgen::new()
+            .input_path(&input)
+            .out_name(module.name)
+            .web(true)?
+            .omit_default_module_path(false)
+            .typescript(false)
+            .generate(&out_dir)
+            .with_context(|| format!("generating JS glue for {}", module.name))?;
+        let wasm = out_dir.join(format!("{}_bg.wasm", module.name));
+        let before = size(&wasm)?;
+        match &wasm_opt {
+            Some(tool) => {
+                run(Command::new(tool)
+                    .arg("-Oz")
+                    .arg("--enable-bulk-memory")
+                    .arg("--enable-nontrapping-float-to-int")
+                    .arg("--enable-sign-ext")
+                    .arg("--enable-mutable-globals")
+                    .arg(&wasm)
+                    .arg("-o")
+                    .arg(&wasm))
+                .context("running wasm-opt")?;
+                println!(
+                    "{}: {} bytes ({} before wasm-opt)",
+                    wasm.display(),
+                    size(&wasm)?,
+                    before
+                );
+            }
+            None => println!("{}: {before} bytes", wasm.display()),
+        }
+    }
+    Ok(())
+}
+
+fn find_wasm_opt(root: &Path) -> Option<PathBuf> {
+    let local = root.join("client/web/node_modules/.bin/wasm-opt");
+    if local.exists() {
+        return Some(local);
+    }
+    let found = Command::new("wasm-opt").arg("--version").output();
+    found
+        .is_ok_and(|o| o.status.success())
+        .then(|| PathBuf::from("wasm-opt"))
+}
+
+fn size(path: &Path) -> Result<u64> {
+    Ok(std::fs::metadata(path)
+        .with_context(|| format!("reading {}", path.display()))?
+        .len())
+}
+
+fn run(cmd: &mut Command) -> Result<()> {
+    let status = cmd.status().with_context(|| format!("starting {cmd:?}"))?;
+    if !status.success() {
+        bail!("{cmd:?} failed with {status}");
+    }
+    Ok(())
+}
