@@ -61,6 +61,24 @@ enum Command {
         #[arg(long, default_value = demo::DEMO_SITE)]
         site: String,
     },
+    /// Check what a scanned code means (prints JSON; exits non-zero when invalid).
+    Code {
+        #[command(subcommand)]
+        command: CodeCommand,
+    },
+    /// Write a printable SVG sheet of bin labels for a zone.
+    Labels {
+        #[arg(long, env = "CAIRN_DB")]
+        db: PathBuf,
+        /// The site; may be left out when the database holds one site.
+        #[arg(long)]
+        site: Option<String>,
+        #[arg(long)]
+        zone: String,
+        /// Where to write the SVG (default: labels-SITE-ZONE.svg).
+        #[arg(long)]
+        out: Option<PathBuf>,
+    },
     /// Manage sites.
     Site {
         #[command(subcommand)]
@@ -80,6 +98,13 @@ struct ServeArgs {
     /// SQLite durability at commit.
     #[arg(long, env = "CAIRN_SYNCHRONOUS")]
     synchronous: Option<Synchronous>,
+}
+
+#[derive(Subcommand)]
+enum CodeCommand {
+    /// Parse the text a scanner sends: GS1 element strings (GS as \x1d or the bracketed
+    /// form), Digital Link URIs, GTINs, SSCCs and bin labels, with an optional AIM prefix.
+    Parse { text: String },
 }
 
 #[derive(Subcommand)]
@@ -233,6 +258,49 @@ async fn dispatch(command: Command) -> anyhow::Result<()> {
             };
             let summary = demo::generate(state.store.as_ref(), &spec, true).await?;
             println!("{summary}");
+            Ok(())
+        }
+        Command::Code {
+            command: CodeCommand::Parse { text },
+        } => {
+            let text = text.replace("\\x1d", "\u{1d}").replace("\\x1D", "\u{1d}");
+            let year = u16::try_from(chrono::Datelike::year(&chrono::Utc::now())).unwrap_or(2000);
+            let scanned = cairn_scan::parse(&text, year).map_err(|e| anyhow::anyhow!("{e}"))?;
+            println!("{}", serde_json::to_string_pretty(&scanned)?);
+            Ok(())
+        }
+        Command::Labels {
+            db,
+            site,
+            zone,
+            out,
+        } => {
+            let state = open(db)?;
+            let site = match site {
+                Some(code) => site_of(state.store.as_ref(), &code).await?,
+                None => match state.store.sites().await?.as_slice() {
+                    [only] => only.clone(),
+                    _ => anyhow::bail!("this database holds several sites: name one with --site"),
+                },
+            };
+            let zone = crate::master::codes::ZoneCode::parse(&zone)?;
+            let bins = state.store.bins(site.id, Some(zone.clone())).await?;
+            anyhow::ensure!(
+                !bins.is_empty(),
+                "zone {zone} of site {} has no bins",
+                site.code
+            );
+            let labels = bins
+                .iter()
+                .map(|b| b.label(&site.code))
+                .collect::<Result<Vec<_>, _>>()
+                .map_err(|e| anyhow::anyhow!("{e}"))?;
+            let svg = cairn_scan::label_sheet_svg(&labels, &format!("{} — zone {zone}", site.name));
+            let out =
+                out.unwrap_or_else(|| PathBuf::from(format!("labels-{}-{zone}.svg", site.code)));
+            std::fs::write(&out, svg)
+                .map_err(|e| anyhow::anyhow!("cannot write {}: {e}", out.display()))?;
+            println!("{} labels written to {}", labels.len(), out.display());
             Ok(())
         }
         Command::Site {

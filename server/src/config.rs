@@ -22,6 +22,8 @@ pub struct Config {
     pub readers: usize,
     /// Movements of one key between balance snapshots.
     pub snapshot_every: i64,
+    /// The phone app's files (HTML, JS, the wasm built by `cargo xtask wasm`), served at `/app/`.
+    pub web_dir: PathBuf,
 }
 
 impl Default for Config {
@@ -34,6 +36,7 @@ impl Default for Config {
             synchronous: store.synchronous,
             readers: store.readers,
             snapshot_every: store.snapshot_every,
+            web_dir: PathBuf::from(concat!(env!("CARGO_MANIFEST_DIR"), "/../client/web")),
         }
     }
 }

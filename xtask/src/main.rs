@@ -42,11 +42,33 @@ fn main() -> Result<()> {
     let args: Vec<String> = std::env::args().skip(1).collect();
     match args.first().map(String::as_str) {
         Some("wasm") => wasm(args.iter().any(|a| a == "--no-opt")),
+        Some("demo") => {
+            wasm(false)?;
+            demo(&args[1..])
+        }
         _ => {
-            eprintln!("usage: cargo xtask wasm [--no-opt]");
+            eprintln!("usage: cargo xtask wasm [--no-opt] | cargo xtask demo [cairn demo options]");
             std::process::exit(2);
         }
     }
+}
+
+/// Builds and starts `cairn demo` in release mode, passing `args` on.
+fn demo(args: &[String]) -> Result<()> {
+    let cargo = std::env::var("CARGO").unwrap_or_else(|_| "cargo".to_owned());
+    run(Command::new(cargo)
+        .current_dir(root())
+        .args([
+            "run",
+            "--release",
+            "-p",
+            "cairn-server",
+            "--bin",
+            "cairn",
+            "--",
+            "demo",
+        ])
+        .args(args))
 }
 
 fn root() -> PathBuf {

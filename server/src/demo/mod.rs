@@ -158,16 +158,12 @@ fn bins(spec: &DemoSpec) -> Vec<NewBin> {
     out
 }
 
-/// Computes a GTIN-13 check digit (GS1 mod-10 rule) for 12 digits.
+/// Completes 12 digits into a GTIN-13 with its check digit.
 fn gtin13(body: u64) -> String {
     let digits = format!("{body:012}");
-    let sum: u32 = digits
-        .bytes()
-        .rev()
-        .enumerate()
-        .map(|(i, b)| u32::from(b - b'0') * if i % 2 == 0 { 3 } else { 1 })
-        .sum();
-    format!("{digits}{}", (10 - sum % 10) % 10)
+    let check =
+        cairn_scan::gtin_check_digit(&digits).expect("twelve digits always have a check digit");
+    format!("{digits}{check}")
 }
 
 fn items(spec: &DemoSpec, rng: &mut ChaCha8Rng, bins: &[NewBin]) -> (Vec<DemoItem>, Vec<NewPack>) {

@@ -24,6 +24,10 @@ pub fn router(state: AppState) -> Router {
         .route("/static/cairn.css", get(stylesheet))
         .merge(pages::routes())
         .nest("/api/v1", api)
+        .nest_service(
+            "/app",
+            tower_http::services::ServeDir::new(&state.config.web_dir),
+        )
         .fallback(not_found)
         .layer(DefaultBodyLimit::max(state.config.max_body_bytes))
         .layer(TraceLayer::new_for_http())

@@ -56,19 +56,23 @@ fn upper_alnum_dash(c: char) -> bool {
     c.is_ascii_uppercase() || c.is_ascii_digit() || c == '-'
 }
 
+fn upper_alnum(c: char) -> bool {
+    c.is_ascii_uppercase() || c.is_ascii_digit()
+}
+
 fn code_char(c: char) -> bool {
     c.is_ascii_alphanumeric() || matches!(c, '-' | '_' | '.' | '/')
 }
 
 code_type!(
     /// A site's short code, e.g. `KLN`.
-    SiteCode, "site code", 16, upper_alnum_dash,
-    "use capital letters, digits and '-'"
+    SiteCode, "site code", 6, upper_alnum,
+    "use capital letters and digits (it is printed on bin labels)"
 );
 code_type!(
     /// A zone's code within a site, e.g. `A`.
-    ZoneCode, "zone code", 8, upper_alnum_dash,
-    "use capital letters, digits and '-'"
+    ZoneCode, "zone code", 3, upper_alnum,
+    "use capital letters and digits (it is printed on bin labels)"
 );
 code_type!(
     /// A bin's code within a site, e.g. `A-03-12-2`.

@@ -104,6 +104,31 @@ impl PackLevel {
     }
 }
 
+/// A stored bin, with the code of its zone.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct Bin {
+    pub code: BinCode,
+    pub zone: ZoneCode,
+    pub aisle: u16,
+    pub bay: u16,
+    pub level: u8,
+    pub side: Side,
+    pub walk_seq: i64,
+}
+
+impl Bin {
+    /// Builds the scannable label of this bin in `site`.
+    pub fn label(&self, site: &SiteCode) -> Result<cairn_scan::BinLabel, cairn_scan::ScanError> {
+        cairn_scan::BinLabel::encode(
+            site.as_str(),
+            self.zone.as_str(),
+            &format!("{:02}", self.aisle),
+            &format!("{:02}", self.bay),
+            &self.level.to_string(),
+        )
+    }
+}
+
 /// A bin row as sent (CSV columns or JSON fields).
 #[derive(Debug, Clone, Deserialize)]
 #[serde(deny_unknown_fields)]
@@ -336,26 +361,9 @@ impl PackRecord {
 
 /// Validates a GTIN-8/12/13/14 and normalises it to 14 digits.
 fn gtin14(text: &str) -> Result<String, String> {
-    let t = text.trim();
-    if !matches!(t.len(), 8 | 12 | 13 | 14) || !t.bytes().all(|b| b.is_ascii_digit()) {
-        return Err(format!("GTIN '{t}' must be 8, 12, 13 or 14 digits"));
-    }
-    let digits: Vec<u32> = t.bytes().map(|b| u32::from(b - b'0')).collect();
-    let (body, check) = digits.split_at(digits.len() - 1);
-    let sum: u32 = body
-        .iter()
-        .rev()
-        .enumerate()
-        .map(|(i, d)| if i % 2 == 0 { d * 3 } else { *d })
-        .sum();
-    let want = (10 - sum % 10) % 10;
-    if want != check[0] {
-        return Err(format!(
-            "GTIN '{t}': check digit should be {want}, found {}",
-            check[0]
-        ));
-    }
-    Ok(format!("{t:0>14}"))
+    cairn_scan::Gtin::parse(text.trim())
+        .map(|g| g.as_str().to_string())
+        .map_err(|e| e.to_string())
 }
 
 /// Accepts a yes/no flag as a JSON boolean or as the CSV words true/false, yes/no, 1/0, y/n or empty.

@@ -6,8 +6,8 @@ pub mod sqlite;
 
 use crate::batch::RowError;
 use crate::ledger::{BalanceRow, Movement, NewMovement, RecordOutcome};
-use crate::master::codes::{BinCode, Sku};
-use crate::master::{NewBin, NewItem, NewPack, NewSite, Site, SiteCode, SiteCounts, SiteId};
+use crate::master::codes::{BinCode, Sku, ZoneCode};
+use crate::master::{Bin, NewBin, NewItem, NewPack, NewSite, Site, SiteCode, SiteCounts, SiteId};
 use crate::time::Timestamp;
 use async_trait::async_trait;
 use std::sync::Arc;
@@ -130,6 +130,8 @@ pub trait Store: Send + Sync + 'static {
     async fn sites(&self) -> Result<Vec<Site>, StoreError>;
     /// Counts a site's master data and movements.
     async fn site_counts(&self, site: SiteId) -> Result<SiteCounts, StoreError>;
+    /// Lists a site's bins (of one zone, if given) in zone, aisle, bay, level order.
+    async fn bins(&self, site: SiteId, zone: Option<ZoneCode>) -> Result<Vec<Bin>, StoreError>;
     /// Creates or updates bins (by code), creating zones as needed. All or nothing.
     async fn put_bins(
         &self,

@@ -1,7 +1,10 @@
 //! SQL for master data: sites, zones, bins, items and packs.
 
 use crate::batch::RowError;
-use crate::master::{NewBin, NewItem, NewPack, NewSite, Site, SiteCode, SiteCounts, SiteId};
+use crate::master::codes::{BinCode, ZoneCode};
+use crate::master::{
+    Bin, NewBin, NewItem, NewPack, NewSite, Side, Site, SiteCode, SiteCounts, SiteId,
+};
 use crate::store::{Progress, ShelfRow, StoreError};
 use crate::time::Timestamp;
 use rusqlite::{Connection, OptionalExtension, Transaction, params};
@@ -80,6 +83,47 @@ pub fn site_counts(conn: &Connection, site: SiteId) -> Result<SiteCounts, StoreE
         movements: count("select count(*) from movement where site_id = ?1")?,
         watermark: super::ledger::watermark(conn)?,
     })
+}
+
+/// Lists a site's bins (of one zone, if given) in zone, aisle, bay, level order.
+pub fn bins(
+    conn: &Connection,
+    site: SiteId,
+    zone: Option<&ZoneCode>,
+) -> Result<Vec<Bin>, StoreError> {
+    let mut stmt = conn.prepare_cached(
+        "select b.code, z.code, b.aisle, b.bay, b.level, b.side, b.walk_seq
+         from bin b join zone z on z.id = b.zone_id
+         where b.site_id = ?1 and (?2 is null or z.code = ?2)
+         order by z.walk_seq, z.code, b.aisle, b.bay, b.level",
+    )?;
+    let rows = stmt.query_map(params![site.0, zone.map(ZoneCode::as_str)], |r| {
+        Ok((
+            r.get::<_, String>(0)?,
+            r.get::<_, String>(1)?,
+            r.get(2)?,
+            r.get(3)?,
+            r.get(4)?,
+            r.get::<_, String>(5)?,
+            r.get(6)?,
+        ))
+    })?;
+    let mut out = Vec::new();
+    for row in rows {
+        let (code, zone, aisle, bay, level, side, walk_seq) = row?;
+        let bad =
+            |e: crate::master::codes::CodeError| anyhow::anyhow!("stored bin is invalid: {e}");
+        out.push(Bin {
+            code: BinCode::parse(&code).map_err(bad)?,
+            zone: ZoneCode::parse(&zone).map_err(bad)?,
+            aisle,
+            bay,
+            level,
+            side: Side::from_stored(&side),
+            walk_seq,
+        });
+    }
+    Ok(out)
 }
 
 /// Refuses a batch that names the same key twice; `key` gives each row's key.

@@ -10,7 +10,8 @@ use super::{
     BalancePage, BalanceQuery, HistoryPage, HistoryQuery, Progress, ShelfRow, Store, StoreError,
 };
 use crate::ledger::{NewMovement, RecordOutcome};
-use crate::master::{NewBin, NewItem, NewPack, NewSite, Site, SiteCode, SiteCounts, SiteId};
+use crate::master::codes::ZoneCode;
+use crate::master::{Bin, NewBin, NewItem, NewPack, NewSite, Site, SiteCode, SiteCounts, SiteId};
 use crate::time::Timestamp;
 use async_trait::async_trait;
 use pool::{Readers, Writer, connect};
@@ -159,6 +160,12 @@ impl Store for SqliteStore {
     async fn site_counts(&self, site: SiteId) -> Result<SiteCounts, StoreError> {
         self.readers
             .run(move |c| master::site_counts(c, site))
+            .await
+    }
+
+    async fn bins(&self, site: SiteId, zone: Option<ZoneCode>) -> Result<Vec<Bin>, StoreError> {
+        self.readers
+            .run(move |c| master::bins(c, site, zone.as_ref()))
             .await
     }
 

@@ -1,0 +1,122 @@
+//! The `cairn code parse` and `cairn labels` commands, through the real binary.
+
+use std::process::Command;
+
+fn cairn(args: &[&str]) -> std::process::Output {
+    Command::new(env!("CARGO_BIN_EXE_cairn"))
+        .args(args)
+        .output()
+        .expect("the cairn binary runs")
+}
+
+#[test]
+fn code_parse_prints_elements_in_scan_order_and_typed_fields() {
+    // GS1 example GTIN 09501101020917 (from memory; check digit 7 by the GS1 General
+    // Specifications mod-10 rule),
+    // expiry 2019-05-08 (AI 17), lot ABCD1234 (AI 10, variable length, ended by GS).
+    let out = cairn(&[
+        "code",
+        "parse",
+        "]C101095011010209171719050810ABCD1234\\x1d2110",
+    ]);
+    assert!(
+        out.status.success(),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    let v: serde_json::Value = serde_json::from_slice(&out.stdout).unwrap();
+    let ais: Vec<&str> = v["elements"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .map(|e| e["ai"].as_str().unwrap())
+        .collect();
+    assert_eq!(ais, ["01", "17", "10", "21"]);
+    assert_eq!(v["scan"]["gtin"], "09501101020917");
+    assert_eq!(v["scan"]["expiry"], "2019-05-08");
+    assert_eq!(v["scan"]["lot"], "ABCD1234");
+}
+
+#[test]
+fn code_parse_of_a_bad_check_digit_says_what_and_exits_non_zero() {
+    let out = cairn(&["code", "parse", "(01)09501101020918"]);
+    assert!(!out.status.success());
+    let stderr = String::from_utf8_lossy(&out.stderr);
+    assert!(
+        stderr.contains("AI (01): check digit should be 7, found 8"),
+        "{stderr}"
+    );
+}
+
+#[test]
+fn labels_write_one_scannable_label_per_bin_of_the_zone() {
+    let dir = tempfile::tempdir().unwrap();
+    let db = dir.path().join("l.db").display().to_string();
+    assert!(
+        cairn(&[
+            "site",
+            "add",
+            "--db",
+            &db,
+            "--code",
+            "KLN",
+            "--name",
+            "Northgate"
+        ])
+        .status
+        .success()
+    );
+    let bins = dir.path().join("bins.csv");
+    std::fs::write(
+        &bins,
+        "zone,aisle,bay,level,side\nB,3,12,2,R\nB,3,13,4,L\nC,1,1,1,L\n",
+    )
+    .unwrap();
+    let out = cairn(&[
+        "import",
+        "bins",
+        "--db",
+        &db,
+        "--site",
+        "KLN",
+        &bins.display().to_string(),
+    ]);
+    assert!(
+        out.status.success(),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    let svg_path = dir.path().join("b.svg");
+    let out = cairn(&[
+        "labels",
+        "--db",
+        &db,
+        "--zone",
+        "B",
+        "--out",
+        &svg_path.display().to_string(),
+    ]);
+    assert!(
+        out.status.success(),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    let svg = std::fs::read_to_string(&svg_path).unwrap();
+    assert!(
+        svg.starts_with("<?xml") || svg.starts_with("<svg"),
+        "an SVG document"
+    );
+    for (aisle, bay, level) in [("03", "12", "2"), ("03", "13", "4")] {
+        let label = cairn_scan::BinLabel::encode("KLN", "B", aisle, bay, level).unwrap();
+        assert!(
+            svg.contains(label.text()),
+            "label {} is on the sheet",
+            label.text()
+        );
+        assert!(cairn_scan::BinLabel::parse(label.text()).is_ok());
+    }
+    assert!(
+        !svg.contains("-C-01-01-1-"),
+        "zone C is not on zone B's sheet"
+    );
+}
