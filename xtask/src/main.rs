@@ -42,15 +42,51 @@ fn main() -> Result<()> {
     let args: Vec<String> = std::env::args().skip(1).collect();
     match args.first().map(String::as_str) {
         Some("wasm") => wasm(args.iter().any(|a| a == "--no-opt")),
+        Some("test") => test(),
         Some("demo") => {
             wasm(false)?;
             demo(&args[1..])
         }
         _ => {
-            eprintln!("usage: cargo xtask wasm [--no-opt] | cargo xtask demo [cairn demo options]");
+            eprintln!(
+                "usage: cargo xtask wasm [--no-opt] | cargo xtask demo [cairn demo options] | cargo xtask test"
+            );
             std::process::exit(2);
         }
     }
+}
+
+/// Runs every test: the Rust suites, then the browser suites against the built wasm.
+fn test() -> Result<()> {
+    let root = root();
+    let cargo = std::env::var("CARGO").unwrap_or_else(|_| "cargo".to_owned());
+    run(Command::new(&cargo)
+        .current_dir(&root)
+        .args(["test", "--workspace", "--all-features"]))
+    .context("the Rust test suites")?;
+    wasm(true)?;
+    run(Command::new(&cargo).current_dir(&root).args([
+        "build",
+        "-p",
+        "cairn-server",
+        "--bin",
+        "cairn",
+    ]))?;
+    let browser = root.join("tests/browser");
+    if !browser.join("node_modules/playwright-core").exists() {
+        run(Command::new("npm")
+            .current_dir(&browser)
+            .args(["ci", "--no-audit", "--no-fund"]))
+        .context("installing the browser tests' npm packages")?;
+    }
+    if !Path::new("/usr/bin/chromium").exists() {
+        bail!("the browser tests need Debian's chromium: apt-get install -y chromium");
+    }
+    run(Command::new("node")
+        .current_dir(&browser)
+        .args(["--test", "--test-concurrency=1"])
+        .env("CAIRN_BIN", root.join("target/debug/cairn")))
+    .context("the browser test suites")
 }
 
 /// Builds and starts `cairn demo` in release mode, passing `args` on.
