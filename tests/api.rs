@@ -272,3 +272,36 @@ async fn an_unknown_site_is_a_404() {
     let (s, b) = app.get("/api/v1/sites/NOPE/balances").await;
     assert_eq!(s, 404, "{b}");
 }
+
+#[tokio::test(flavor = "multi_thread", worker_threads = 2)]
+async fn concurrent_batches_all_land_without_busy_errors() {
+    let app = std::sync::Arc::new(spawn_app().await);
+    app.small_site().await;
+    let mut tasks = Vec::new();
+    for c in 0..8 {
+        let app = app.clone();
+        tasks.push(tokio::spawn(async move {
+            for n in 0..5 {
+                let batch: Vec<_> = (0..50)
+                    .map(|i| {
+                        movement(
+                            &format!("cc{c}-{n}-{i}"),
+                            "A-01-01-1",
+                            "S1",
+                            1,
+                            "receipt",
+                            "2026-03-02T08:00:00Z",
+                        )
+                    })
+                    .collect();
+                let (s, b) = app.post("/api/v1/sites/T/movements", &json!(batch)).await;
+                assert_eq!(s, 200, "{b}");
+            }
+        }));
+    }
+    for t in tasks {
+        t.await.unwrap();
+    }
+    let (_, now) = app.get("/api/v1/sites/T/balances?sku=S1").await;
+    assert_eq!(now["balances"][0]["qty"], 8 * 5 * 50);
+}

@@ -7,7 +7,7 @@
 //!
 //! Run: `cargo bench -p cairn-server --bench ledger`. Sizes can be lowered with
 //! CAIRN_BENCH_INGEST (movements, default 200000) and CAIRN_BENCH_LEDGER
-//! (default 2000000).
+//! (default 2000000); CAIRN_BENCH_ONLY=ingest or =lookup runs one part.
 
 use cairn::AppState;
 use cairn::config::Config;
@@ -438,6 +438,16 @@ fn main() {
     let dir = tempfile::tempdir().unwrap();
     let ingest = env_usize("CAIRN_BENCH_INGEST", 200_000);
     let ledger = env_usize("CAIRN_BENCH_LEDGER", 2_000_000);
+    let only = std::env::var("CAIRN_BENCH_ONLY").unwrap_or_default();
+    if only != "lookup" {
+        ingest_table(dir.path(), ingest);
+    }
+    if only != "ingest" {
+        lookup_table(dir.path(), ledger);
+    }
+}
+
+fn ingest_table(dir: &Path, ingest: usize) {
     let data = rows(ingest, 1);
     let rt = tokio::runtime::Builder::new_multi_thread()
         .enable_all()
@@ -449,19 +459,21 @@ fn main() {
     );
     println!("|---|---|---|---|---|---|");
     for sync in [Synchronous::Full, Synchronous::Normal] {
-        let raw = raw_ceiling(dir.path(), &data, sync);
-        let api1 = rt.block_on(through_api(dir.path(), &data, sync, 1));
-        let api4 = rt.block_on(through_api(dir.path(), &data, sync, 4));
+        let raw = raw_ceiling(dir, &data, sync);
+        let api1 = rt.block_on(through_api(dir, &data, sync, 1));
+        let api4 = rt.block_on(through_api(dir, &data, sync, 4));
         println!(
             "| {sync:?} | {raw:.0} | {api1:.0} | {:.2} | {api4:.0} | {:.2} |",
             api1 / raw,
             api4 / raw
         );
     }
-    drop(rt);
+}
+
+fn lookup_table(dir: &Path, ledger: usize) {
     println!();
     println!("## Point-in-time balance over a {ledger}-movement ledger (one thread)");
-    let path = dir.path().join("ledger.db");
+    let path = dir.join("ledger.db");
     let (typical, busy, span) = build_ledger(&path, ledger);
     let store = SqliteStore::open(&path, OpenOptions::default()).unwrap();
     let conn = store.reader_connection().unwrap();
