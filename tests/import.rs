@@ -75,29 +75,38 @@ fn movements_csv(rows: usize, bad_line: Option<(usize, &str)>) -> String {
     csv
 }
 
+/// Imports `csv` as movements into site T and returns whether it succeeded and stderr.
+fn import_movements(dir: &Path, db: &str, csv: &str) -> (bool, String) {
+    let path = dir.join("movements.csv");
+    write(&path, csv);
+    let out = cairn(&[
+        "import",
+        "movements",
+        "--db",
+        db,
+        "--site",
+        "T",
+        &path.display().to_string(),
+    ]);
+    (
+        out.status.success(),
+        String::from_utf8_lossy(&out.stderr).into_owned(),
+    )
+}
+
 #[test]
 fn a_bad_row_in_ten_thousand_writes_nothing_and_reports_its_line() {
     let dir = tempfile::tempdir().unwrap();
     let db = site(dir.path());
-    let path = dir.path().join("movements.csv");
-    write(
-        &path,
+    let (ok, stderr) = import_movements(
+        dir.path(),
+        &db,
         &movements_csv(
             10_000,
             Some((7_342, "bad,A-01-01-1,S1,2.5,receipt,2026-03-02T08:00:00Z")),
         ),
     );
-    let out = cairn(&[
-        "import",
-        "movements",
-        "--db",
-        &db,
-        "--site",
-        "T",
-        &path.display().to_string(),
-    ]);
-    let stderr = String::from_utf8_lossy(&out.stderr);
-    assert!(!out.status.success());
+    assert!(!ok);
     assert!(stderr.contains("line 7342, qty"), "{stderr}");
     assert!(stderr.contains("nothing was written"), "{stderr}");
     assert_eq!(movement_count(Path::new(&db)), 0);
@@ -107,25 +116,15 @@ fn a_bad_row_in_ten_thousand_writes_nothing_and_reports_its_line() {
 fn a_row_naming_an_unknown_bin_is_reported_by_line_after_the_shape_checks() {
     let dir = tempfile::tempdir().unwrap();
     let db = site(dir.path());
-    let path = dir.path().join("movements.csv");
-    write(
-        &path,
+    let (ok, stderr) = import_movements(
+        dir.path(),
+        &db,
         &movements_csv(
             2_000,
             Some((1_500, "x1,Z-09-09-9,S1,3,receipt,2026-03-02T08:00:00Z")),
         ),
     );
-    let out = cairn(&[
-        "import",
-        "movements",
-        "--db",
-        &db,
-        "--site",
-        "T",
-        &path.display().to_string(),
-    ]);
-    let stderr = String::from_utf8_lossy(&out.stderr);
-    assert!(!out.status.success());
+    assert!(!ok);
     assert!(
         stderr.contains("line 1500, bin: unknown bin 'Z-09-09-9'"),
         "{stderr}"

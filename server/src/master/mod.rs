@@ -145,17 +145,8 @@ pub struct BinRecord {
     pub walk_seq: Option<i64>,
 }
 
-/// A validated bin.
-#[derive(Debug, Clone, PartialEq)]
-pub struct NewBin {
-    pub code: BinCode,
-    pub zone: ZoneCode,
-    pub aisle: u16,
-    pub bay: u16,
-    pub level: u8,
-    pub side: Side,
-    pub walk_seq: i64,
-}
+/// A validated bin to create or update: the same fields as a stored [`Bin`].
+pub type NewBin = Bin;
 
 /// Most aisles, bays and levels a bin code can name.
 const MAX_AISLE: u16 = 999;
