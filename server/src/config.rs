@@ -22,6 +22,12 @@ pub struct Config {
     pub readers: usize,
     /// Movements of one key between balance snapshots.
     pub snapshot_every: i64,
+    /// Mark session cookies `Secure` (sent over HTTPS only). On by default;
+    /// the plain-HTTP demo on loopback turns it off.
+    pub secure_cookies: bool,
+    /// Take the client address for sign-in throttling from the last
+    /// `X-Forwarded-For` entry (only behind a reverse proxy that sets it).
+    pub trust_forwarded_for: bool,
 }
 
 impl Default for Config {
@@ -34,6 +40,8 @@ impl Default for Config {
             synchronous: store.synchronous,
             readers: store.readers,
             snapshot_every: store.snapshot_every,
+            secure_cookies: true,
+            trust_forwarded_for: false,
         }
     }
 }
