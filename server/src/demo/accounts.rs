@@ -106,16 +106,16 @@ pub fn login_note() -> String {
         super::DEMO_SITE
     );
     for l in DEMO_LOGINS {
-        let _ = write!(
-            note,
+        let mut line = format!(
             "  {:<8} {:<18} password {:<28}",
             l.user,
             l.role.label(),
             l.password
         );
         if let Some(pin) = l.pin {
-            let _ = write!(note, " phone PIN {pin}");
+            let _ = write!(line, " phone PIN {pin}");
         }
+        note.push_str(line.trim_end());
         note.push('\n');
     }
     note.push_str("Cookies are sent without the Secure flag here: keep the demo on 127.0.0.1.");

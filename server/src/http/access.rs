@@ -4,8 +4,8 @@
 //! a route without a rule cannot be written. One middleware, [`authorize`],
 //! runs for every request: it finds the rule of the matched route (refusing a
 //! route that has none), authenticates the sender (session cookie, device
-//! token or integration token), checks the form token of state-changing page
-//! requests, checks the role at the site named in the path, and hands the
+//! token or integration token), checks the role at the site named in the
+//! path, then the form token of state-changing page requests, and hands the
 //! handler a [`Principal`] through [`CurrentUser`] or [`CounterDevice`].
 //!
 //! Book quantities (balances, movement history, site counts) are open to
@@ -396,31 +396,6 @@ async fn check(guard: &Guard, req: Request, path: &str) -> Result<Request, ApiEr
     );
     let principal = authenticate(state, req.headers(), api, safe).await?;
 
-    let mut req = req;
-    if !api && !safe {
-        // Public forms (sign-in) have no session yet: their token is the
-        // pre-session cookie's, sent back in the form (double submit).
-        let expected = match (&principal, access) {
-            (
-                Some(Principal {
-                    credential: Credential::Session { csrf },
-                    ..
-                }),
-                a,
-            ) if a != Access::Public => Some(csrf.0.clone()),
-            _ => CookieJar::from_headers(req.headers())
-                .get(FORM_COOKIE)
-                .map(|c| c.value().to_string()),
-        };
-        let (r, submitted) = submitted_form_token(req, state.config.max_body_bytes).await?;
-        req = r;
-        let ok = matches!((&expected, &submitted),
-            (Some(e), Some(s)) if !e.is_empty() && crate::accounts::secret::same(e, s));
-        if !ok {
-            return Err(ApiError::BadRequest(STALE_FORM_TEXT.into()));
-        }
-    }
-
     let (mut parts, body) = req.into_parts();
     match access {
         Access::Public => {}
@@ -457,10 +432,35 @@ async fn check(guard: &Guard, req: Request, path: &str) -> Result<Request, ApiEr
         }
     }
     parts.extensions.insert(ClientAddress(address));
-    if let Some(p) = principal {
-        parts.extensions.insert(p);
+    let mut req = Request::from_parts(parts, body);
+    if !api && !safe {
+        // Public forms (sign-in) have no session yet: their token is the
+        // pre-session cookie's, sent back in the form (double submit).
+        let expected = match (&principal, access) {
+            (
+                Some(Principal {
+                    credential: Credential::Session { csrf },
+                    ..
+                }),
+                a,
+            ) if a != Access::Public => Some(csrf.0.clone()),
+            _ => CookieJar::from_headers(req.headers())
+                .get(FORM_COOKIE)
+                .map(|c| c.value().to_string()),
+        };
+        let (r, submitted) = submitted_form_token(req, state.config.max_body_bytes).await?;
+        req = r;
+        let ok = matches!((&expected, &submitted),
+            (Some(e), Some(s)) if !e.is_empty() && crate::accounts::secret::same(e, s));
+        if !ok {
+            return Err(ApiError::BadRequest(STALE_FORM_TEXT.into()));
+        }
     }
-    Ok(Request::from_parts(parts, body))
+
+    if let Some(p) = principal {
+        req.extensions_mut().insert(p);
+    }
+    Ok(req)
 }
 
 fn unauthenticated(api: bool) -> ApiError {
