@@ -474,3 +474,31 @@ async fn the_cli_makes_the_first_admin_of_a_new_site_who_can_then_sign_in() {
     );
     assert_eq!(n, 1);
 }
+
+#[tokio::test(flavor = "multi_thread", worker_threads = 2)]
+async fn parallel_guesses_cannot_slip_under_the_limit() {
+    let app = std::sync::Arc::new(spawn_app().await);
+    app.small_site().await;
+    let mut guesses = tokio::task::JoinSet::new();
+    for _ in 0..3 * MAX_ACCOUNT_FAILURES {
+        let app = app.clone();
+        guesses.spawn(async move {
+            app.try_sign_in(ROOT_USER, "wrong password here")
+                .await
+                .status
+        });
+    }
+    let mut checked = 0;
+    while let Some(status) = guesses.join_next().await {
+        match status.unwrap() {
+            401 => checked += 1,
+            429 => {}
+            other => panic!("unexpected status {other}"),
+        }
+    }
+    assert_eq!(
+        checked, MAX_ACCOUNT_FAILURES,
+        "only the allowed guesses were checked"
+    );
+    assert_eq!(app.try_sign_in(ROOT_USER, ROOT_PASSWORD).await.status, 429);
+}

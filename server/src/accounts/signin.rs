@@ -59,7 +59,8 @@ impl From<SignInError> for ApiError {
 const MAX_AUDITED_NAME_CHARS: usize = 64;
 
 /// Checks a name and secret from `address`. A throttled account or address is
-/// refused before its secret is checked, even if the secret is right.
+/// refused before its secret is checked, even if the secret is right; every
+/// other attempt counts as a failure until its secret proves right.
 pub async fn check(
     store: &dyn Store,
     typed_name: &str,
@@ -76,9 +77,10 @@ pub async fn check(
         .take(MAX_AUDITED_NAME_CHARS)
         .collect();
     let failures = store
-        .sign_in_failures(
+        .claim_sign_in_attempt(
             account_key.clone(),
             address_key.clone(),
+            now,
             throttle::window_start(now),
         )
         .await?;
@@ -101,6 +103,9 @@ pub async fn check(
         Proof::Pin => c.pin.clone(),
     });
     if secret::verify(secret, hash).await? {
+        store
+            .sign_in_succeeded(account_key, address_key, now)
+            .await?;
         let user = stored
             .expect("a secret verified only against a stored hash, so the user exists")
             .user;
@@ -110,10 +115,9 @@ pub async fn check(
         Proof::Password => "password",
         Proof::Pin => "pin",
     };
+    // The attempt was already counted as a failure when it was claimed.
     store
-        .record_failed_sign_in(
-            vec![account_key, address_key],
-            throttle::window_start(now),
+        .record_audit(
             AuditEvent::now(Actor::Anonymous, Action::SignInFailed, subject)
                 .from_address(address)
                 .detail(json!({"proof": proof_name})),

@@ -139,19 +139,25 @@ pub trait AccountStore: Send + Sync {
     async fn site_users(&self, site: SiteId, since: Timestamp)
     -> Result<Vec<SiteUser>, StoreError>;
 
-    /// Counts failed sign-ins of an account key and an address key since an instant.
-    async fn sign_in_failures(
+    /// Claims one sign-in attempt, atomically: prunes failures before
+    /// `window_start`, counts each key's failures since then, and unless that
+    /// locks the attempt, records it as a failure of both keys at `at` ahead
+    /// of checking the secret — so parallel guesses cannot all slip under the
+    /// limit. Returns the counts before this attempt.
+    async fn claim_sign_in_attempt(
         &self,
         account_key: String,
         address_key: String,
-        since: Timestamp,
+        at: Timestamp,
+        window_start: Timestamp,
     ) -> Result<Failures, StoreError>;
-    /// Records a failed sign-in under each key, pruning failures before `prune_before`.
-    async fn record_failed_sign_in(
+    /// Forgives a claimed attempt whose secret was right: clears the account's
+    /// failures and the attempt's own row under the address.
+    async fn sign_in_succeeded(
         &self,
-        keys: Vec<String>,
-        prune_before: Timestamp,
-        audit: AuditEvent,
+        account_key: String,
+        address_key: String,
+        at: Timestamp,
     ) -> Result<(), StoreError>;
     /// Clears an account's failed sign-ins: the admin's lift of a lock.
     async fn unlock_account(

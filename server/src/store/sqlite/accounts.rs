@@ -287,37 +287,45 @@ impl AccountStore for SqliteStore {
             .await
     }
 
-    async fn sign_in_failures(
+    async fn claim_sign_in_attempt(
         &self,
         account_key: String,
         address_key: String,
-        since: Timestamp,
+        at: Timestamp,
+        window_start: Timestamp,
     ) -> Result<Failures, StoreError> {
-        self.readers
-            .run(move |c| {
-                Ok(Failures {
-                    account: count_since(c, &account_key, since)?,
-                    address: count_since(c, &address_key, since)?,
-                })
-            })
-            .await
-    }
-
-    async fn record_failed_sign_in(
-        &self,
-        keys: Vec<String>,
-        prune_before: Timestamp,
-        audit: AuditEvent,
-    ) -> Result<(), StoreError> {
         self.write_tx(move |tx| {
             tx.prepare_cached("delete from sign_in_failure where at < ?1")?
-                .execute([prune_before.0])?;
-            let mut insert =
-                tx.prepare_cached("insert into sign_in_failure (key, at) values (?1, ?2)")?;
-            for k in &keys {
-                insert.execute(params![k, audit.at.0])?;
+                .execute([window_start.0])?;
+            let failures = Failures {
+                account: count_since(tx, &account_key, window_start)?,
+                address: count_since(tx, &address_key, window_start)?,
+            };
+            if !failures.locked() {
+                let mut insert =
+                    tx.prepare_cached("insert into sign_in_failure (key, at) values (?1, ?2)")?;
+                insert.execute(params![account_key, at.0])?;
+                insert.execute(params![address_key, at.0])?;
             }
-            insert_audit(tx, &audit)
+            Ok(failures)
+        })
+        .await
+    }
+
+    async fn sign_in_succeeded(
+        &self,
+        account_key: String,
+        address_key: String,
+        at: Timestamp,
+    ) -> Result<(), StoreError> {
+        self.write_tx(move |tx| {
+            clear_failures(tx, &account_key)?;
+            tx.prepare_cached(
+                "delete from sign_in_failure where rowid =
+                   (select rowid from sign_in_failure where key = ?1 and at = ?2 limit 1)",
+            )?
+            .execute(params![address_key, at.0])?;
+            Ok(())
         })
         .await
     }
