@@ -269,6 +269,7 @@ async fn master_data_errors_name_the_row_and_rule() {
 #[tokio::test]
 async fn an_unknown_site_is_a_404() {
     let app = spawn_app().await;
+    app.small_site().await;
     let (s, b) = app.get("/api/v1/sites/NOPE/balances").await;
     assert_eq!(s, 404, "{b}");
 }

@@ -45,6 +45,68 @@ fn serve(db: &str) -> (Child, String) {
     (child, url)
 }
 
+/// Runs `cairn` with `input` on standard input.
+fn cairn_with_input(args: &[&str], input: &str) -> std::process::Output {
+    use std::io::Write as _;
+    let mut child = Command::new(env!("CARGO_BIN_EXE_cairn"))
+        .args(args)
+        .stdin(Stdio::piped())
+        .stdout(Stdio::piped())
+        .stderr(Stdio::piped())
+        .spawn()
+        .expect("the cairn binary runs");
+    child
+        .stdin
+        .take()
+        .unwrap()
+        .write_all(input.as_bytes())
+        .unwrap();
+    child.wait_with_output().unwrap()
+}
+
+/// Makes the host system's user and its integration token through the CLI.
+fn host_token(db: &str) -> String {
+    let out = cairn_with_input(
+        &[
+            "user",
+            "add",
+            "--db",
+            db,
+            "--site",
+            "T",
+            "--name",
+            "host",
+            "--roles",
+            "inventory_manager",
+            "--password-stdin",
+        ],
+        "test-only-host-password\n",
+    );
+    assert!(
+        out.status.success(),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    let out = cairn(&[
+        "user",
+        "token",
+        "--db",
+        db,
+        "--site",
+        "T",
+        "--name",
+        "host",
+        "--role",
+        "inventory_manager",
+    ]);
+    assert!(
+        out.status.success(),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    String::from_utf8(out.stdout).unwrap().trim().to_string()
+}
+
 fn setup(dir: &Path) -> String {
     let db = dir.join("crash.db").display().to_string();
     assert!(
@@ -101,18 +163,21 @@ fn batch(round: u64, sender: usize, n: usize) -> (Vec<String>, Value) {
 async fn a_killed_server_loses_no_acknowledged_movement() {
     let dir = tempfile::tempdir().unwrap();
     let db = setup(dir.path());
+    let token = host_token(&db);
     let acked: Arc<Mutex<Vec<String>>> = Arc::default();
     for round in 0..ROUNDS {
         let (mut child, url) = serve(&db);
         let client = reqwest::Client::new();
         let mut tasks = Vec::new();
         for sender in 0..SENDERS {
-            let (client, url, acked) = (client.clone(), url.clone(), acked.clone());
+            let (client, url, acked, token) =
+                (client.clone(), url.clone(), acked.clone(), token.clone());
             tasks.push(tokio::spawn(async move {
                 for n in 0.. {
                     let (ids, body) = batch(round, sender, n);
                     let Ok(r) = client
                         .post(format!("{url}/api/v1/sites/T/movements"))
+                        .bearer_auth(&token)
                         .json(&body)
                         .send()
                         .await

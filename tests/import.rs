@@ -153,6 +153,16 @@ fn a_good_file_imports_and_a_second_import_is_acknowledged_not_applied() {
         "{stdout}"
     );
     assert_eq!(movement_count(Path::new(&db)), 10_000);
+    // Each import (two of bins and items, two of movements) is in the audit trail.
+    let conn = rusqlite::Connection::open(&db).unwrap();
+    let imports: i64 = conn
+        .query_row(
+            "select count(*) from audit_event where action = 'import' and actor = 'cli'",
+            [],
+            |r| r.get(0),
+        )
+        .unwrap();
+    assert_eq!(imports, 4);
 }
 
 #[test]

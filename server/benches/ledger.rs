@@ -200,6 +200,7 @@ async fn through_api(dir: &Path, rows: &[Row], sync: Synchronous, clients: usize
         let mut conn = connect(&path, sync);
         master_data(&mut conn, BINS, ITEMS);
     }
+    let token = host_token(&path);
     let state = AppState::open(Config {
         db: path,
         synchronous: sync,
@@ -231,11 +232,13 @@ async fn through_api(dir: &Path, rows: &[Row], sync: Synchronous, clients: usize
     let start = Instant::now();
     let mut tasks = Vec::new();
     for c in 0..clients {
-        let (client, url, bodies) = (client.clone(), url.clone(), bodies.clone());
+        let (client, url, bodies, token) =
+            (client.clone(), url.clone(), bodies.clone(), token.clone());
         tasks.push(tokio::spawn(async move {
             for body in bodies.iter().skip(c).step_by(clients) {
                 let r = client
                     .post(&url)
+                    .bearer_auth(&token)
                     .header("content-type", "application/json")
                     .body(body.clone())
                     .send()
@@ -347,6 +350,59 @@ fn build_ledger(path: &Path, n: usize) -> (Vec<Key>, Key, i64) {
     (sample, key_of(0, 0), span)
 }
 
+/// Makes a host user with an integration token through the CLI and returns the token.
+fn host_token(db: &Path) -> String {
+    use std::io::Write;
+    let db = db.display().to_string();
+    let cairn = env!("CARGO_BIN_EXE_cairn");
+    let mut child = std::process::Command::new(cairn)
+        .args([
+            "user",
+            "add",
+            "--db",
+            &db,
+            "--site",
+            "T",
+            "--name",
+            "host",
+            "--roles",
+            "inventory_manager",
+            "--password-stdin",
+        ])
+        .stdin(std::process::Stdio::piped())
+        .stdout(std::process::Stdio::null())
+        .spawn()
+        .unwrap();
+    child
+        .stdin
+        .take()
+        .unwrap()
+        .write_all(b"bench-only-host-password\n")
+        .unwrap();
+    assert!(child.wait().unwrap().success());
+    let out = std::process::Command::new(cairn)
+        .args([
+            "user",
+            "token",
+            "--db",
+            &db,
+            "--site",
+            "T",
+            "--name",
+            "host",
+            "--role",
+            "inventory_manager",
+        ])
+        .output()
+        .unwrap();
+    assert!(
+        out.status.success(),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    String::from_utf8(out.stdout).unwrap().trim().to_string()
+}
+
 fn lookups_per_s(
     conn: &rusqlite::Connection,
     keys: &[Key],
@@ -375,6 +431,7 @@ fn lookups_per_s(
 
 fn peak_rss_of_serve(db: &Path) -> (u64, u64) {
     use std::io::BufRead;
+    let token = host_token(db);
     let mut child = std::process::Command::new(env!("CARGO_BIN_EXE_cairn"))
         .args([
             "serve",
@@ -404,15 +461,15 @@ fn peak_rss_of_serve(db: &Path) -> (u64, u64) {
         for i in 0..400 {
             let j = BINS + 37 * i;
             let b = if i % 2 == 0 { bin_code(i % BINS) } else { format!("B-{:03}-{:03}-{}", j / 1000, (j / 10) % 100, j % 10) };
-            let r = client.get(format!("{url}/api/v1/sites/T/balances?bin={b}&at=2026-06-01T00:00:00Z")).send().await.unwrap();
+            let r = client.get(format!("{url}/api/v1/sites/T/balances?bin={b}&at=2026-06-01T00:00:00Z")).bearer_auth(&token).send().await.unwrap();
             assert!(r.status().is_success());
         }
         let body: Vec<Value> = (0..BATCH)
             .map(|i| json!({"id": format!("rss-{i}"), "bin": bin_code(i), "sku": "S1", "qty": 1, "kind": "receipt", "event_at": "2026-06-01T00:00:00Z"}))
             .collect();
-        let r = client.post(format!("{url}/api/v1/sites/T/movements")).json(&body).send().await.unwrap();
+        let r = client.post(format!("{url}/api/v1/sites/T/movements")).bearer_auth(&token).json(&body).send().await.unwrap();
         assert!(r.status().is_success());
-        let r = client.get(format!("{url}/api/v1/sites/T/items/S0/movements?limit=1000")).send().await.unwrap();
+        let r = client.get(format!("{url}/api/v1/sites/T/items/S0/movements?limit=1000")).bearer_auth(&token).send().await.unwrap();
         assert!(r.status().is_success());
     });
     let status =

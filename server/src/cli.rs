@@ -1,6 +1,10 @@
 //! The `cairn` command line.
 
 use crate::AppState;
+use crate::accounts::audit::{Action, Actor, AuditEvent};
+use crate::accounts::secret::{self, API_TOKEN_PREFIX, Secret, Token};
+use crate::accounts::store::{NewApiToken, NewUser, SecretKind};
+use crate::accounts::{Role, UserName};
 use crate::config::Config;
 use crate::demo::{self, DemoSpec};
 use crate::import::{ImportError, ImportKind, MAX_ERRORS_SHOWN, import_csv};
@@ -84,6 +88,11 @@ enum Command {
         #[command(subcommand)]
         command: SiteCommand,
     },
+    /// Manage users: make the first admin of a new site, reset a password or PIN.
+    User {
+        #[command(subcommand)]
+        command: UserCommand,
+    },
 }
 
 #[derive(Args)]
@@ -98,6 +107,9 @@ struct ServeArgs {
     /// SQLite durability at commit.
     #[arg(long, env = "CAIRN_SYNCHRONOUS")]
     synchronous: Option<Synchronous>,
+    /// Mark session cookies Secure (true behind HTTPS, the default).
+    #[arg(long, env = "CAIRN_SECURE_COOKIES")]
+    secure_cookies: Option<bool>,
 }
 
 #[derive(Subcommand)]
@@ -119,6 +131,72 @@ enum SiteCommand {
         name: String,
         #[arg(long, default_value = "UTC")]
         time_zone: String,
+    },
+}
+
+#[derive(Subcommand)]
+enum UserCommand {
+    /// Create a user with roles at a site. The password is asked for (or read
+    /// from standard input with --password-stdin), never taken from the command line.
+    Add {
+        #[arg(long, env = "CAIRN_DB")]
+        db: PathBuf,
+        #[arg(long)]
+        site: String,
+        #[arg(long)]
+        name: String,
+        /// The name pages show (defaults to the user name).
+        #[arg(long)]
+        display_name: Option<String>,
+        /// Comma-separated: counter, supervisor, inventory_manager, planner, admin.
+        #[arg(long)]
+        roles: String,
+        /// Also set a phone PIN (with --password-stdin: the second line).
+        #[arg(long)]
+        with_pin: bool,
+        /// Read the secret(s) from standard input, one per line, for scripts.
+        #[arg(long)]
+        password_stdin: bool,
+    },
+    /// Set a user's password (ending their web sessions), or with --pin their phone PIN.
+    Passwd {
+        #[arg(long, env = "CAIRN_DB")]
+        db: PathBuf,
+        #[arg(long)]
+        name: String,
+        /// Set the phone PIN instead of the password.
+        #[arg(long)]
+        pin: bool,
+        /// Read the secret from standard input, for scripts.
+        #[arg(long)]
+        password_stdin: bool,
+    },
+    /// Issue an integration token for a host system, acting as a user with one
+    /// role at a site. The token is printed once; only its digest is kept.
+    Token {
+        #[arg(long, env = "CAIRN_DB")]
+        db: PathBuf,
+        #[arg(long)]
+        site: String,
+        #[arg(long)]
+        name: String,
+        #[arg(long)]
+        role: String,
+        /// What the token is for, as the admin page lists it.
+        #[arg(long, default_value = "integration")]
+        label: String,
+    },
+    /// Replace a user's roles at a site (an empty list removes them from it).
+    Roles {
+        #[arg(long, env = "CAIRN_DB")]
+        db: PathBuf,
+        #[arg(long)]
+        site: String,
+        #[arg(long)]
+        name: String,
+        /// Comma-separated roles, e.g. "counter,supervisor"; "" for none.
+        #[arg(long)]
+        set: String,
     },
 }
 
@@ -172,6 +250,8 @@ async fn dispatch(command: Command) -> anyhow::Result<()> {
             let state = AppState::open(Config {
                 db: db.clone(),
                 listen,
+                // The demo is plain HTTP on loopback: a Secure cookie would not be sent.
+                secure_cookies: false,
                 ..Config::default()
             })?;
             if fresh || state.store.sites().await?.is_empty() {
@@ -183,6 +263,8 @@ async fn dispatch(command: Command) -> anyhow::Result<()> {
                     demo::generate(state.store.as_ref(), &DemoSpec::standard(seed), true).await?;
                 eprintln!("{summary}");
             }
+            let site = site_of(state.store.as_ref(), demo::DEMO_SITE).await?;
+            demo::create_demo_users(state.store.as_ref(), &site).await?;
             serve(state, listen, true).await
         }
         Command::Serve(args) => {
@@ -198,6 +280,9 @@ async fn dispatch(command: Command) -> anyhow::Result<()> {
             }
             if let Some(s) = args.synchronous {
                 config.synchronous = s;
+            }
+            if let Some(s) = args.secure_cookies {
+                config.secure_cookies = s;
             }
             if !config.db.exists() {
                 anyhow::bail!(
@@ -218,6 +303,16 @@ async fn dispatch(command: Command) -> anyhow::Result<()> {
             let site = site_of(state.store.as_ref(), &site).await?;
             match import_csv(state.store.as_ref(), &site, kind, &path, true).await {
                 Ok(s) => {
+                    let audit =
+                        AuditEvent::now(Actor::Cli, Action::Import, path.display().to_string())
+                            .at_site(site.id)
+                            .detail(serde_json::json!({
+                                "kind": format!("{kind:?}").to_lowercase(),
+                                "rows": s.rows,
+                                "written": s.written,
+                                "already_recorded": s.already_recorded,
+                            }));
+                    state.store.record_audit(audit).await?;
                     println!(
                         "{}: {} rows read, {} written, {} already recorded",
                         path.display(),
@@ -324,6 +419,7 @@ async fn dispatch(command: Command) -> anyhow::Result<()> {
             println!("site {} created", site.code);
             Ok(())
         }
+        Command::User { command } => user_command(command).await,
     }
 }
 
@@ -337,11 +433,189 @@ async fn serve(state: AppState, listen: SocketAddr, demo: bool) -> anyhow::Resul
         state.config.db.display()
     );
     if demo {
-        println!("{}", demo::LOGIN_NOTE);
+        println!("{}", demo::login_note());
     }
     crate::run(state, listener, async {
         let _ = tokio::signal::ctrl_c().await;
     })
     .await?;
     Ok(())
+}
+
+/// Reads `n` secrets: from standard input, one per line, or by prompting
+/// twice each without echo. Never from the command line, where `ps` shows them.
+fn read_secrets(what: &[&str], from_stdin: bool) -> anyhow::Result<Vec<Secret>> {
+    let mut out = Vec::new();
+    if from_stdin {
+        let mut lines = std::io::stdin().lines();
+        for w in what {
+            let line = lines
+                .next()
+                .ok_or_else(|| anyhow::anyhow!("standard input ended before the {w}"))??;
+            out.push(Secret::new(line.trim_end_matches(['\r', '\n'])));
+        }
+        return Ok(out);
+    }
+    for w in what {
+        let first = rpassword::prompt_password(format!("New {w}: "))?;
+        let again = rpassword::prompt_password(format!("The {w} again: "))?;
+        anyhow::ensure!(first == again, "the two {w}s differ; nothing was changed");
+        out.push(Secret::new(first));
+    }
+    Ok(out)
+}
+
+async fn user_command(command: UserCommand) -> anyhow::Result<()> {
+    match command {
+        UserCommand::Add {
+            db,
+            site,
+            name,
+            display_name,
+            roles,
+            with_pin,
+            password_stdin,
+        } => {
+            let state = open(db)?;
+            let site = site_of(state.store.as_ref(), &site).await?;
+            let name = UserName::parse(&name).map_err(anyhow::Error::msg)?;
+            let roles = Role::parse_list(&roles).map_err(anyhow::Error::msg)?;
+            anyhow::ensure!(!roles.is_empty(), "name at least one role with --roles");
+            let what: &[&str] = if with_pin {
+                &["password", "PIN"]
+            } else {
+                &["password"]
+            };
+            let mut secrets = read_secrets(what, password_stdin)?.into_iter();
+            let password = secrets
+                .next()
+                .expect("read_secrets returns one secret per name");
+            password.check_password().map_err(anyhow::Error::msg)?;
+            let pin = secrets.next();
+            if let Some(p) = &pin {
+                p.check_pin().map_err(anyhow::Error::msg)?;
+            }
+            let password = secret::hash(password).await?;
+            let pin = match pin {
+                Some(p) => Some(secret::hash(p).await?),
+                None => None,
+            };
+            let audit =
+                AuditEvent::now(Actor::Cli, Action::UserCreated, name.as_str()).at_site(site.id);
+            let user = state
+                .store
+                .create_user(
+                    NewUser {
+                        display_name: display_name.unwrap_or_else(|| name.to_string()),
+                        name,
+                        password,
+                        pin,
+                        roles: roles.iter().map(|r| (site.id, *r)).collect(),
+                    },
+                    audit,
+                )
+                .await?;
+            let labels: Vec<&str> = roles.iter().map(|r| r.label()).collect();
+            println!(
+                "user {} created at site {} ({})",
+                user.name,
+                site.code,
+                labels.join(", ")
+            );
+            Ok(())
+        }
+        UserCommand::Passwd {
+            db,
+            name,
+            pin,
+            password_stdin,
+        } => {
+            let state = open(db)?;
+            let name = UserName::parse(&name).map_err(anyhow::Error::msg)?;
+            let (kind, what, action) = if pin {
+                (SecretKind::Pin, "PIN", Action::PinChanged)
+            } else {
+                (SecretKind::Password, "password", Action::PasswordChanged)
+            };
+            let secret = read_secrets(&[what], password_stdin)?
+                .pop()
+                .expect("read_secrets returns one secret per name");
+            match kind {
+                SecretKind::Pin => secret.check_pin(),
+                SecretKind::Password => secret.check_password(),
+            }
+            .map_err(anyhow::Error::msg)?;
+            let hash = secret::hash(secret).await?;
+            state
+                .store
+                .set_secret(
+                    &name,
+                    kind,
+                    hash,
+                    AuditEvent::now(Actor::Cli, action, name.as_str()),
+                )
+                .await?;
+            println!("{what} of {name} changed");
+            Ok(())
+        }
+        UserCommand::Token {
+            db,
+            site,
+            name,
+            role,
+            label,
+        } => {
+            let state = open(db)?;
+            let site = site_of(state.store.as_ref(), &site).await?;
+            let user = UserName::parse(&name).map_err(anyhow::Error::msg)?;
+            let role = Role::parse(&role).map_err(anyhow::Error::msg)?;
+            let token = Token::generate(API_TOKEN_PREFIX);
+            let audit = AuditEvent::now(Actor::Cli, Action::ApiTokenIssued, "").at_site(site.id);
+            state
+                .store
+                .issue_api_token(
+                    NewApiToken {
+                        user,
+                        site: site.id,
+                        role,
+                        name: label,
+                        token_digest: token.digest(),
+                        at: crate::time::Timestamp::now(),
+                    },
+                    audit,
+                )
+                .await?;
+            // The token goes to standard output alone, so a script can capture it.
+            println!("{}", token.expose());
+            Ok(())
+        }
+        UserCommand::Roles {
+            db,
+            site,
+            name,
+            set,
+        } => {
+            let state = open(db)?;
+            let site = site_of(state.store.as_ref(), &site).await?;
+            let name = UserName::parse(&name).map_err(anyhow::Error::msg)?;
+            let roles = Role::parse_list(&set).map_err(anyhow::Error::msg)?;
+            let audit =
+                AuditEvent::now(Actor::Cli, Action::RolesChanged, name.as_str()).at_site(site.id);
+            state
+                .store
+                .set_roles(&name, site.id, roles.clone(), audit)
+                .await?;
+            let labels: Vec<&str> = roles.iter().map(|r| r.label()).collect();
+            println!(
+                "{name} at site {}: {}",
+                site.code,
+                if labels.is_empty() {
+                    "no role".to_string()
+                } else {
+                    labels.join(", ")
+                }
+            );
+            Ok(())
+        }
+    }
 }

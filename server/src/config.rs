@@ -24,6 +24,12 @@ pub struct Config {
     pub snapshot_every: i64,
     /// The phone app's files (HTML, JS, the wasm built by `cargo xtask wasm`), served at `/app/`.
     pub web_dir: PathBuf,
+    /// Mark session cookies `Secure` (sent over HTTPS only). On by default;
+    /// the plain-HTTP demo on loopback turns it off.
+    pub secure_cookies: bool,
+    /// Take the client address for sign-in throttling from the last
+    /// `X-Forwarded-For` entry (only behind a reverse proxy that sets it).
+    pub trust_forwarded_for: bool,
 }
 
 impl Default for Config {
@@ -37,6 +43,8 @@ impl Default for Config {
             readers: store.readers,
             snapshot_every: store.snapshot_every,
             web_dir: PathBuf::from(concat!(env!("CARGO_MANIFEST_DIR"), "/../client/web")),
+            secure_cookies: true,
+            trust_forwarded_for: false,
         }
     }
 }

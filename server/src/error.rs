@@ -14,6 +14,10 @@ pub enum ApiError {
     #[error("{0}")]
     BadRequest(String),
     #[error("{0}")]
+    Unauthorized(String),
+    #[error("{0}")]
+    Forbidden(String),
+    #[error("{0}")]
     NotFound(String),
     #[error("{0}")]
     Conflict(String),
@@ -21,6 +25,8 @@ pub enum ApiError {
     TooLarge(String),
     #[error("{} row(s) refused; nothing was written", .0.len())]
     Rejected(Vec<RowError>),
+    #[error("{0}")]
+    TooManyRequests(String),
     #[error("{0}")]
     Unavailable(String),
     #[error("internal error")]
@@ -42,17 +48,39 @@ impl From<StoreError> for ApiError {
 /// Text shown for every 5xx; the details are in the server log.
 const INTERNAL_TEXT: &str = "internal error: the server log has the details";
 
-impl IntoResponse for ApiError {
-    fn into_response(self) -> Response {
-        let status = match &self {
+impl ApiError {
+    /// Returns the HTTP status of this error.
+    pub fn status(&self) -> StatusCode {
+        match self {
             ApiError::BadRequest(_) => StatusCode::BAD_REQUEST,
+            ApiError::Unauthorized(_) => StatusCode::UNAUTHORIZED,
+            ApiError::Forbidden(_) => StatusCode::FORBIDDEN,
             ApiError::NotFound(_) => StatusCode::NOT_FOUND,
             ApiError::Conflict(_) => StatusCode::CONFLICT,
             ApiError::TooLarge(_) => StatusCode::PAYLOAD_TOO_LARGE,
             ApiError::Rejected(_) => StatusCode::UNPROCESSABLE_ENTITY,
+            ApiError::TooManyRequests(_) => StatusCode::TOO_MANY_REQUESTS,
             ApiError::Unavailable(_) => StatusCode::SERVICE_UNAVAILABLE,
             ApiError::Internal(_) => StatusCode::INTERNAL_SERVER_ERROR,
-        };
+        }
+    }
+
+    /// Returns the text a person may see: the message, or the fixed 5xx text
+    /// (logging the cause, once).
+    pub fn public_text(&self) -> String {
+        match self {
+            ApiError::Internal(e) => {
+                tracing::error!(error = ?e, "request failed");
+                INTERNAL_TEXT.to_string()
+            }
+            other => other.to_string(),
+        }
+    }
+}
+
+impl IntoResponse for ApiError {
+    fn into_response(self) -> Response {
+        let status = self.status();
         let body = match &self {
             ApiError::Internal(e) => {
                 tracing::error!(error = ?e, "request failed");

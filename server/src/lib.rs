@@ -4,6 +4,7 @@
 //! `app` builds the router over an [`AppState`]; `run` serves it on a listener
 //! the caller has already bound, so tests can bind port 0.
 
+pub mod accounts;
 pub mod batch;
 pub mod cli;
 pub mod config;
@@ -50,7 +51,8 @@ pub async fn run(
     listener: tokio::net::TcpListener,
     shutdown: impl std::future::Future<Output = ()> + Send + 'static,
 ) -> std::io::Result<()> {
-    axum::serve(listener, app(state))
+    let app = app(state).into_make_service_with_connect_info::<std::net::SocketAddr>();
+    axum::serve(listener, app)
         .with_graceful_shutdown(shutdown)
         .await
 }

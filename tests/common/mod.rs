@@ -3,9 +3,76 @@
 #![allow(dead_code)]
 
 use cairn::AppState;
+use cairn::accounts::audit::{Action, Actor, AuditEvent};
+use cairn::accounts::secret::{self, API_TOKEN_PREFIX, Secret, Token};
+use cairn::accounts::store::{NewApiToken, NewUser};
+use cairn::accounts::{Role, UserName};
 use cairn::config::Config;
+use cairn::master::SiteCode;
+use reqwest::Method;
 use serde_json::{Value, json};
 use std::path::PathBuf;
+use std::sync::OnceLock;
+
+/// The test site's admin, who also posts the test data. Test-only password.
+pub const ROOT_USER: &str = "root";
+pub const ROOT_PASSWORD: &str = "test-only-root-password";
+
+/// How a test request proves who sends it.
+#[derive(Debug, Clone)]
+pub enum Auth {
+    Anonymous,
+    Bearer(String),
+    Session(Session),
+}
+
+/// A signed-in browser: its session cookie and the form token of its pages.
+#[derive(Debug, Clone)]
+pub struct Session {
+    pub cookie: String,
+    pub csrf: String,
+}
+
+/// A request body.
+pub enum Body {
+    Empty,
+    Json(Value),
+    Form(Vec<(String, String)>),
+}
+
+/// A response: status, body text, and headers.
+pub struct Answer {
+    pub status: u16,
+    pub text: String,
+    pub headers: reqwest::header::HeaderMap,
+}
+
+impl Answer {
+    /// Parses the body as JSON (Null if it is not).
+    pub fn json(&self) -> Value {
+        serde_json::from_str(&self.text).unwrap_or(Value::Null)
+    }
+
+    /// Returns the value a Set-Cookie header gives `name`, if any.
+    pub fn cookie(&self, name: &str) -> Option<String> {
+        self.headers
+            .get_all(reqwest::header::SET_COOKIE)
+            .iter()
+            .filter_map(|v| v.to_str().ok())
+            .find_map(|v| {
+                let first = v.split(';').next()?;
+                let (k, val) = first.split_once('=')?;
+                (k.trim() == name && !val.is_empty()).then(|| val.to_string())
+            })
+    }
+}
+
+/// Finds the value of the first hidden `csrf` field in a page.
+pub fn form_token(html: &str) -> Option<String> {
+    let at = html.find(r#"name="csrf" value=""#)? + r#"name="csrf" value=""#.len();
+    let end = html[at..].find('"')?;
+    Some(html[at..at + end].to_string())
+}
 
 /// A running test server and a client for it.
 pub struct TestApp {
@@ -13,6 +80,8 @@ pub struct TestApp {
     pub client: reqwest::Client,
     pub state: AppState,
     pub db: PathBuf,
+    /// The bearer token `get`, `post` and `post_raw` send (set by `small_site`).
+    pub token: OnceLock<String>,
     _dir: tempfile::TempDir,
     shutdown: Option<tokio::sync::oneshot::Sender<()>>,
 }
@@ -42,9 +111,13 @@ pub async fn spawn_app() -> TestApp {
     });
     TestApp {
         base,
-        client: reqwest::Client::new(),
+        client: reqwest::Client::builder()
+            .redirect(reqwest::redirect::Policy::none())
+            .build()
+            .expect("a test client builds"),
         state,
         db,
+        token: OnceLock::new(),
         _dir: dir,
         shutdown: Some(tx),
     }
@@ -62,8 +135,7 @@ impl TestApp {
     /// Sends a GET and returns the status and JSON body.
     pub async fn get(&self, path: &str) -> (u16, Value) {
         let r = self
-            .client
-            .get(format!("{}{path}", self.base))
+            .with_token(self.client.get(format!("{}{path}", self.base)))
             .send()
             .await
             .expect("the server answers");
@@ -74,8 +146,7 @@ impl TestApp {
     /// Sends a JSON POST and returns the status and JSON body.
     pub async fn post(&self, path: &str, body: &Value) -> (u16, Value) {
         let r = self
-            .client
-            .post(format!("{}{path}", self.base))
+            .with_token(self.client.post(format!("{}{path}", self.base)))
             .json(body)
             .send()
             .await
@@ -87,8 +158,7 @@ impl TestApp {
     /// Sends raw bytes as a JSON POST.
     pub async fn post_raw(&self, path: &str, body: Vec<u8>) -> (u16, Value) {
         let r = self
-            .client
-            .post(format!("{}{path}", self.base))
+            .with_token(self.client.post(format!("{}{path}", self.base)))
             .header("content-type", "application/json")
             .body(body)
             .send()
@@ -98,17 +168,184 @@ impl TestApp {
         (status, r.json().await.unwrap_or(Value::Null))
     }
 
-    /// Creates site `T` with two bins, a plain item `S1` and a lot-tracked item `L1`.
-    pub async fn small_site(&self) {
+    fn with_token(&self, r: reqwest::RequestBuilder) -> reqwest::RequestBuilder {
+        match self.token.get() {
+            Some(t) => r.bearer_auth(t),
+            None => r,
+        }
+    }
+
+    /// Creates a site.
+    pub async fn create_site(&self, code: &str) -> cairn::master::Site {
         self.state
             .store
             .create_site(cairn::master::NewSite {
-                code: cairn::master::SiteCode::parse("T").unwrap(),
-                name: "Test".into(),
+                code: SiteCode::parse(code).unwrap(),
+                name: format!("Test {code}"),
                 time_zone: "UTC".into(),
             })
             .await
+            .unwrap()
+    }
+
+    /// Creates a user with roles at a site, straight in the store.
+    pub async fn add_user(
+        &self,
+        name: &str,
+        site: &str,
+        roles: &[Role],
+        password: &str,
+        pin: Option<&str>,
+    ) {
+        let site = self
+            .state
+            .store
+            .site(&SiteCode::parse(site).unwrap())
+            .await
+            .unwrap()
+            .expect("the site exists");
+        let pin = match pin {
+            Some(p) => Some(secret::hash(Secret::new(p)).await.unwrap()),
+            None => None,
+        };
+        self.state
+            .store
+            .create_user(
+                NewUser {
+                    name: UserName::parse(name).unwrap(),
+                    display_name: name.to_string(),
+                    password: secret::hash(Secret::new(password)).await.unwrap(),
+                    pin,
+                    roles: roles.iter().map(|r| (site.id, *r)).collect(),
+                },
+                AuditEvent::now(Actor::System, Action::UserCreated, name),
+            )
+            .await
             .unwrap();
+    }
+
+    /// Issues an integration token for a user and role at a site, straight in the store.
+    pub async fn issue_token(&self, site: &str, user: &str, role: Role) -> String {
+        let site = self
+            .state
+            .store
+            .site(&SiteCode::parse(site).unwrap())
+            .await
+            .unwrap()
+            .expect("the site exists");
+        let token = Token::generate(API_TOKEN_PREFIX);
+        self.state
+            .store
+            .issue_api_token(
+                NewApiToken {
+                    user: UserName::parse(user).unwrap(),
+                    site: site.id,
+                    role,
+                    name: "test".into(),
+                    token_digest: token.digest(),
+                    at: cairn::time::Timestamp::now(),
+                },
+                AuditEvent::now(Actor::System, Action::ApiTokenIssued, "test"),
+            )
+            .await
+            .unwrap();
+        token.expose().to_string()
+    }
+
+    /// Sends any request with the given credentials.
+    pub async fn send(&self, method: Method, path: &str, auth: &Auth, body: Body) -> Answer {
+        let mut r = self.client.request(method, format!("{}{path}", self.base));
+        match auth {
+            Auth::Anonymous => {}
+            Auth::Bearer(t) => r = r.bearer_auth(t),
+            Auth::Session(s) => r = r.header("cookie", format!("cairn_session={}", s.cookie)),
+        }
+        r = match body {
+            Body::Empty => r,
+            Body::Json(v) => r.json(&v),
+            Body::Form(fields) => r.form(&fields),
+        };
+        let resp = r.send().await.expect("the server answers");
+        Answer {
+            status: resp.status().as_u16(),
+            headers: resp.headers().clone(),
+            text: resp.text().await.unwrap_or_default(),
+        }
+    }
+
+    /// Posts the sign-in form as a browser would (fetching the form first).
+    pub async fn try_sign_in(&self, user: &str, password: &str) -> Answer {
+        let page = self
+            .send(Method::GET, "/sign-in", &Auth::Anonymous, Body::Empty)
+            .await;
+        assert_eq!(page.status, 200, "{}", page.text);
+        let form_cookie = page
+            .cookie("cairn_form")
+            .expect("the sign-in page sets its form cookie");
+        let csrf = form_token(&page.text).expect("the sign-in form has a token");
+        let resp = self
+            .client
+            .post(format!("{}/sign-in", self.base))
+            .header("cookie", format!("cairn_form={form_cookie}"))
+            .form(&[
+                ("csrf", csrf.as_str()),
+                ("user", user),
+                ("password", password),
+            ])
+            .send()
+            .await
+            .expect("the server answers");
+        Answer {
+            status: resp.status().as_u16(),
+            headers: resp.headers().clone(),
+            text: resp.text().await.unwrap_or_default(),
+        }
+    }
+
+    /// Signs in and returns the session with its form token.
+    pub async fn sign_in(&self, user: &str, password: &str) -> Session {
+        let a = self.try_sign_in(user, password).await;
+        assert_eq!(a.status, 303, "sign-in of {user}: {}", a.text);
+        let cookie = a.cookie("cairn_session").expect("a session cookie is set");
+        let mut s = Session {
+            cookie,
+            csrf: String::new(),
+        };
+        let home = self
+            .send(Method::GET, "/", &Auth::Session(s.clone()), Body::Empty)
+            .await;
+        assert_eq!(home.status, 200, "{}", home.text);
+        s.csrf = form_token(&home.text).expect("a signed-in page carries the form token");
+        s
+    }
+
+    /// Enrols a phone for a counter and returns the answer.
+    pub async fn enrol(&self, user: &str, pin: &str, site: &str) -> Answer {
+        self.send(
+            Method::POST,
+            "/api/v1/devices",
+            &Auth::Anonymous,
+            Body::Json(
+                json!({"user": user, "pin": pin, "site": site, "device_name": "test phone"}),
+            ),
+        )
+        .await
+    }
+
+    /// Creates site `T` with two bins, a plain item `S1` and a lot-tracked
+    /// item `L1`, an admin `root`, and makes `get`/`post` send root's admin token.
+    pub async fn small_site(&self) {
+        self.create_site("T").await;
+        self.add_user(
+            ROOT_USER,
+            "T",
+            &[Role::Admin, Role::InventoryManager],
+            ROOT_PASSWORD,
+            None,
+        )
+        .await;
+        let token = self.issue_token("T", ROOT_USER, Role::Admin).await;
+        self.token.set(token).expect("small_site runs once per app");
         let (s, b) = self
             .post(
                 "/api/v1/sites/T/bins",

@@ -4,6 +4,7 @@
 //! errors (unrecorded picks, mis-keyed quantities, mis-putaways) are injected
 //! so counts find real differences. The true shelf is kept in `demo_shelf`.
 
+pub mod accounts;
 mod catalog;
 mod sim;
 
@@ -19,13 +20,11 @@ use rand_chacha::ChaCha8Rng;
 use std::fmt;
 use std::time::Instant;
 
+pub use accounts::{create_demo_users, login_note};
 pub use catalog::PEOPLE;
 
 /// The demo site's code.
 pub const DEMO_SITE: &str = "KLN";
-/// Printed when the demo starts.
-pub const LOGIN_NOTE: &str = "Demo site KLN (Kestrel Lane Supply, Northgate). Demo sign-ins arrive with accounts; \
-     until then the API is open: keep the demo on 127.0.0.1.";
 /// Movements written per store transaction while generating.
 const FLUSH_ROWS: usize = 20_000;
 

@@ -4,6 +4,7 @@
 use crate::AppState;
 use crate::batch::{Collector, FieldError, MAX_BATCH_ROWS, RowError};
 use crate::error::ApiError;
+use crate::http::access::PathSite;
 use crate::master::{Site, SiteCode};
 use axum::body::Bytes;
 use axum::extract::{FromRequest, FromRequestParts, Path, Query, Request};
@@ -18,6 +19,9 @@ impl FromRequestParts<AppState> for CurrentSite {
     type Rejection = ApiError;
 
     async fn from_request_parts(parts: &mut Parts, state: &AppState) -> Result<Self, ApiError> {
+        if let Some(PathSite(site)) = parts.extensions.get::<PathSite>() {
+            return Ok(CurrentSite(site.clone()));
+        }
         let Path(params) = Path::<HashMap<String, String>>::from_request_parts(parts, state)
             .await
             .map_err(|e| ApiError::BadRequest(e.body_text()))?;

@@ -1,29 +1,48 @@
-//! The HTTP surface: the router that joins every module's routes, health
-//! checks, and the server pages.
+//! The HTTP surface: the route table that joins every module's routes with
+//! their access rules, health checks, and the server pages.
 
+pub mod access;
 pub mod extract;
-mod pages;
+pub mod pages;
 
 use crate::AppState;
 use crate::error::ApiError;
+use access::{Access, Guard, RouteTable, Rule};
 use axum::Router;
 use axum::extract::{DefaultBodyLimit, State};
 use axum::http::{StatusCode, header};
 use axum::response::IntoResponse;
-use axum::routing::get;
 use tower_http::trace::TraceLayer;
 
-/// Builds the whole application router.
+/// Declares every route of Cairn with its access rule.
+pub fn route_table() -> RouteTable {
+    let mut t = RouteTable::default();
+    t.get("/healthz", Access::Public, healthz)
+        .get("/static/cairn.css", Access::Public, stylesheet);
+    pages::routes(&mut t);
+    crate::accounts::routes::routes(&mut t);
+    crate::accounts::admin::routes(&mut t);
+    crate::master::routes::routes(&mut t);
+    crate::ledger::routes::routes(&mut t);
+    t
+}
+
+/// Returns every route's rule (for the access tests and the docs).
+pub fn route_rules() -> Vec<Rule> {
+    route_table().into_parts().1
+}
+
+/// Builds the whole application router, every route behind [`access::authorize`].
 pub fn router(state: AppState) -> Router {
-    let site = Router::new()
-        .merge(crate::master::routes::routes())
-        .merge(crate::ledger::routes::routes());
-    let api = crate::master::routes::top_routes().nest("/sites/{site}", site);
-    Router::new()
-        .route("/healthz", get(healthz))
-        .route("/static/cairn.css", get(stylesheet))
-        .merge(pages::routes())
-        .nest("/api/v1", api)
+    let (routes, rules) = route_table().into_parts();
+    let guard = Guard::new(state.clone(), &rules);
+    routes
+        .layer(axum::middleware::from_fn_with_state(
+            guard,
+            access::authorize,
+        ))
+        // The phone app's static files are public (the app signs in itself); added after the
+        // guard so they sit outside the route table.
         .nest_service(
             "/app",
             tower_http::services::ServeDir::new(&state.config.web_dir),

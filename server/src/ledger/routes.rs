@@ -2,25 +2,42 @@
 
 use super::{MovementRecord, RecordOutcome};
 use crate::AppState;
+use crate::accounts::audit;
 use crate::error::ApiError;
+use crate::http::access::{Access, BOOK_READERS, BOOK_WRITERS, CurrentUser, RouteTable};
 use crate::http::extract::{CurrentSite, JsonRows, Params};
 use crate::master::codes::{BinCode, Sku};
 use crate::store::{
     BalancePage, BalanceQuery, HistoryPage, HistoryQuery, HistorySubject, Progress,
 };
 use crate::time::Timestamp;
+use axum::Json;
 use axum::extract::{Path, State};
-use axum::routing::{get, post};
-use axum::{Json, Router};
 use serde::Deserialize;
+use serde_json::json;
 
-/// Returns the ledger's routes, relative to `/api/v1/sites/{site}`.
-pub fn routes() -> Router<AppState> {
-    Router::new()
-        .route("/movements", post(post_movements))
-        .route("/balances", get(get_balances))
-        .route("/bins/{bin}/movements", get(bin_history))
-        .route("/items/{sku}/movements", get(item_history))
+/// Adds the ledger's routes. Everything here but posting is book data.
+pub fn routes(t: &mut RouteTable) {
+    t.post(
+        "/api/v1/sites/{site}/movements",
+        Access::Site(BOOK_WRITERS),
+        post_movements,
+    )
+    .get(
+        "/api/v1/sites/{site}/balances",
+        Access::Site(BOOK_READERS),
+        get_balances,
+    )
+    .get(
+        "/api/v1/sites/{site}/bins/{bin}/movements",
+        Access::Site(BOOK_READERS),
+        bin_history,
+    )
+    .get(
+        "/api/v1/sites/{site}/items/{sku}/movements",
+        Access::Site(BOOK_READERS),
+        item_history,
+    );
 }
 
 /// Source recorded for API movements that name none.
@@ -28,17 +45,23 @@ const API_SOURCE: &str = "api";
 
 async fn post_movements(
     State(state): State<AppState>,
+    CurrentUser(p): CurrentUser,
     CurrentSite(site): CurrentSite,
     rows: JsonRows,
 ) -> Result<Json<RecordOutcome>, ApiError> {
     let now = Timestamp::now();
     let rows = rows.validated(|r: MovementRecord| r.validate(now, API_SOURCE))?;
-    Ok(Json(
-        state
-            .store
-            .record_movements(site.id, rows, Progress::default())
-            .await?,
-    ))
+    let outcome = state
+        .store
+        .record_movements(site.id, rows, Progress::default())
+        .await?;
+    let detail =
+        json!({"recorded": outcome.recorded, "already_recorded": outcome.already_recorded});
+    state
+        .store
+        .record_audit(audit::api_batch(&p, site.id, "movements", detail))
+        .await?;
+    Ok(Json(outcome))
 }
 
 fn bad(field: &str) -> impl Fn(String) -> ApiError + '_ {

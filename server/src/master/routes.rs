@@ -2,30 +2,49 @@
 
 use super::{BinRecord, ItemRecord, PackRecord, Site, SiteCounts};
 use crate::AppState;
+use crate::accounts::audit;
 use crate::error::ApiError;
+use crate::http::access::{Access, BOOK_READERS, BOOK_WRITERS, CurrentUser, RouteTable};
 use crate::http::extract::{CurrentSite, JsonRows};
 use crate::store::Progress;
+use axum::Json;
 use axum::extract::State;
-use axum::routing::{get, post};
-use axum::{Json, Router};
 use serde::Serialize;
+use serde_json::json;
 
-/// Returns the routes under `/api/v1/sites/{site}`.
-pub fn routes() -> Router<AppState> {
-    Router::new()
-        .route("/", get(get_site))
-        .route("/bins", post(post_bins))
-        .route("/items", post(post_items))
-        .route("/packs", post(post_packs))
+/// Adds the master-data routes.
+pub fn routes(t: &mut RouteTable) {
+    t.get("/api/v1/sites", Access::SignedIn, list_sites)
+        .get("/api/v1/sites/{site}", Access::Site(BOOK_READERS), get_site)
+        .post(
+            "/api/v1/sites/{site}/bins",
+            Access::Site(BOOK_WRITERS),
+            post_bins,
+        )
+        .post(
+            "/api/v1/sites/{site}/items",
+            Access::Site(BOOK_WRITERS),
+            post_items,
+        )
+        .post(
+            "/api/v1/sites/{site}/packs",
+            Access::Site(BOOK_WRITERS),
+            post_packs,
+        );
 }
 
-/// Returns the routes under `/api/v1`.
-pub fn top_routes() -> Router<AppState> {
-    Router::new().route("/sites", get(list_sites))
-}
-
-async fn list_sites(State(state): State<AppState>) -> Result<Json<Vec<Site>>, ApiError> {
-    Ok(Json(state.store.sites().await?))
+/// Lists the sites where the sender holds a role.
+async fn list_sites(
+    State(state): State<AppState>,
+    CurrentUser(p): CurrentUser,
+) -> Result<Json<Vec<Site>>, ApiError> {
+    let sites = state.store.sites().await?;
+    Ok(Json(
+        sites
+            .into_iter()
+            .filter(|s| p.roles_at(s.id).next().is_some())
+            .collect(),
+    ))
 }
 
 #[derive(Serialize)]
@@ -51,42 +70,69 @@ struct Written {
 
 async fn post_bins(
     State(state): State<AppState>,
+    CurrentUser(p): CurrentUser,
     CurrentSite(site): CurrentSite,
     rows: JsonRows,
 ) -> Result<Json<Written>, ApiError> {
     let rows = rows.validated(BinRecord::validate)?;
-    Ok(Json(Written {
-        written: state
-            .store
-            .put_bins(site.id, rows, Progress::default())
-            .await?,
-    }))
+    let written = state
+        .store
+        .put_bins(site.id, rows, Progress::default())
+        .await?;
+    state
+        .store
+        .record_audit(audit::api_batch(
+            &p,
+            site.id,
+            "bins",
+            json!({"written": written}),
+        ))
+        .await?;
+    Ok(Json(Written { written }))
 }
 
 async fn post_items(
     State(state): State<AppState>,
+    CurrentUser(p): CurrentUser,
     CurrentSite(site): CurrentSite,
     rows: JsonRows,
 ) -> Result<Json<Written>, ApiError> {
     let rows = rows.validated(ItemRecord::validate)?;
-    Ok(Json(Written {
-        written: state
-            .store
-            .put_items(site.id, rows, Progress::default())
-            .await?,
-    }))
+    let written = state
+        .store
+        .put_items(site.id, rows, Progress::default())
+        .await?;
+    state
+        .store
+        .record_audit(audit::api_batch(
+            &p,
+            site.id,
+            "items",
+            json!({"written": written}),
+        ))
+        .await?;
+    Ok(Json(Written { written }))
 }
 
 async fn post_packs(
     State(state): State<AppState>,
+    CurrentUser(p): CurrentUser,
     CurrentSite(site): CurrentSite,
     rows: JsonRows,
 ) -> Result<Json<Written>, ApiError> {
     let rows = rows.validated(PackRecord::validate)?;
-    Ok(Json(Written {
-        written: state
-            .store
-            .put_packs(site.id, rows, Progress::default())
-            .await?,
-    }))
+    let written = state
+        .store
+        .put_packs(site.id, rows, Progress::default())
+        .await?;
+    state
+        .store
+        .record_audit(audit::api_batch(
+            &p,
+            site.id,
+            "packs",
+            json!({"written": written}),
+        ))
+        .await?;
+    Ok(Json(Written { written }))
 }

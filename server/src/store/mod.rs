@@ -4,6 +4,7 @@
 
 pub mod sqlite;
 
+use crate::accounts::store::AccountStore;
 use crate::batch::RowError;
 use crate::ledger::{BalanceRow, Movement, NewMovement, RecordOutcome};
 use crate::master::codes::{BinCode, Sku, ZoneCode};
@@ -119,7 +120,7 @@ pub struct ShelfRow {
 
 /// The operations the rest of Cairn needs from storage.
 #[async_trait]
-pub trait Store: Send + Sync + 'static {
+pub trait Store: AccountStore + Send + Sync + 'static {
     /// Answers when the database is open and migrated.
     async fn ping(&self) -> Result<(), StoreError>;
     /// Creates a site; its code must be new.

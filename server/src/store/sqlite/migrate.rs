@@ -13,11 +13,18 @@ pub struct Migration {
 }
 
 /// Every migration this binary knows, in order.
-pub const MIGRATIONS: &[Migration] = &[Migration {
-    version: 1,
-    name: "0001_foundation.sql",
-    sql: include_str!("../../../../migrations/0001_foundation.sql"),
-}];
+pub const MIGRATIONS: &[Migration] = &[
+    Migration {
+        version: 1,
+        name: "0001_foundation.sql",
+        sql: include_str!("../../../../migrations/0001_foundation.sql"),
+    },
+    Migration {
+        version: 2,
+        name: "0002_accounts.sql",
+        sql: include_str!("../../../../migrations/0002_accounts.sql"),
+    },
+];
 
 /// Returns the newest schema version this binary knows.
 pub fn latest_version() -> i64 {

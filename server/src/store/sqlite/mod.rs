@@ -1,6 +1,7 @@
 //! The embedded SQLite store: one file in WAL mode, one writer thread, pooled
 //! readers. All SQL of Cairn lives below this module.
 
+pub mod accounts;
 pub mod ledger;
 pub mod master;
 pub mod migrate;

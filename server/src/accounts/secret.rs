@@ -1,0 +1,285 @@
+//! Secrets: passwords and PINs (argon2id), random tokens (stored as SHA-256
+//! digests), and the comparisons between them. Nothing here prints a secret:
+//! every wrapper's `Debug` is redacted.
+
+use argon2::password_hash::{PasswordHash, PasswordHasher, PasswordVerifier, SaltString};
+use argon2::{Algorithm, Argon2, Params, Version};
+use base64::Engine as _;
+use base64::engine::general_purpose::URL_SAFE_NO_PAD;
+use rand::TryRngCore as _;
+use rand::rngs::OsRng;
+use sha2::{Digest, Sha256};
+use std::fmt;
+use std::sync::OnceLock;
+use subtle::ConstantTimeEq as _;
+
+// argon2id at m = 19 MiB, t = 2, p = 1: one of the configurations listed in
+// the OWASP Password Storage Cheat Sheet ("Argon2id ... minimum configuration
+// of 19 MiB of memory, an iteration count of 2, and 1 degree of parallelism";
+// quoted from memory). Parameters are stored in each PHC string, so raising
+// them later keeps old hashes verifiable.
+/// Memory cost of a password or PIN hash, in KiB.
+pub const HASH_MEMORY_KIB: u32 = 19 * 1024;
+/// Iterations of a password or PIN hash.
+pub const HASH_ITERATIONS: u32 = 2;
+/// Lanes of a password or PIN hash.
+pub const HASH_LANES: u32 = 1;
+
+/// Shortest password accepted, in characters.
+pub const MIN_PASSWORD_CHARS: usize = 12;
+/// Longest password accepted, in characters (bounds the hashing work per request).
+pub const MAX_PASSWORD_CHARS: usize = 128;
+/// Shortest counter PIN, in digits.
+pub const MIN_PIN_DIGITS: usize = 4;
+/// Longest counter PIN, in digits.
+pub const MAX_PIN_DIGITS: usize = 12;
+/// Random bytes in a device token, an integration token or a session id.
+pub const TOKEN_BYTES: usize = 32;
+
+/// A password or PIN as typed. Its `Debug` never shows it.
+#[derive(Clone, PartialEq, Eq, serde::Deserialize)]
+#[serde(transparent)]
+pub struct Secret(String);
+
+impl Secret {
+    /// Wraps a typed secret.
+    pub fn new(text: impl Into<String>) -> Self {
+        Self(text.into())
+    }
+
+    /// Exposes the secret to the hasher; the name makes every use visible.
+    pub fn expose(&self) -> &str {
+        &self.0
+    }
+
+    /// Checks the password rules: length only, as long passphrases beat
+    /// composition rules.
+    pub fn check_password(&self) -> Result<(), String> {
+        let n = self.0.chars().count();
+        if n < MIN_PASSWORD_CHARS {
+            return Err(format!(
+                "a password has at least {MIN_PASSWORD_CHARS} characters"
+            ));
+        }
+        if n > MAX_PASSWORD_CHARS {
+            return Err(format!(
+                "a password has at most {MAX_PASSWORD_CHARS} characters"
+            ));
+        }
+        Ok(())
+    }
+
+    /// Checks the PIN rules: digits only, of a bounded length.
+    pub fn check_pin(&self) -> Result<(), String> {
+        let n = self.0.len();
+        if !self.0.bytes().all(|b| b.is_ascii_digit())
+            || !(MIN_PIN_DIGITS..=MAX_PIN_DIGITS).contains(&n)
+        {
+            return Err(format!(
+                "a PIN is {MIN_PIN_DIGITS} to {MAX_PIN_DIGITS} digits"
+            ));
+        }
+        Ok(())
+    }
+}
+
+impl fmt::Debug for Secret {
+    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        f.write_str("Secret(redacted)")
+    }
+}
+
+/// An argon2id PHC string of a password or PIN. Its `Debug` is redacted too:
+/// a hash is not a secret, but it is an offline-guessing target.
+#[derive(Clone, PartialEq, Eq)]
+pub struct SecretHash(pub String);
+
+impl fmt::Debug for SecretHash {
+    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        f.write_str("SecretHash(redacted)")
+    }
+}
+
+fn hasher() -> Argon2<'static> {
+    let params = Params::new(HASH_MEMORY_KIB, HASH_ITERATIONS, HASH_LANES, None)
+        .expect("the argon2 parameters are valid constants");
+    Argon2::new(Algorithm::Argon2id, Version::V0x13, params)
+}
+
+/// Hashes a secret with a fresh salt. Slow by design: call it on a blocking thread.
+pub fn hash_blocking(secret: &Secret) -> SecretHash {
+    let mut salt = [0u8; 16];
+    OsRng
+        .try_fill_bytes(&mut salt)
+        .expect("the operating system's random source is available");
+    let salt = SaltString::encode_b64(&salt).expect("16 bytes is a valid salt length");
+    let hash = hasher()
+        .hash_password(secret.expose().as_bytes(), &salt)
+        .expect("argon2 hashing with valid parameters cannot fail");
+    SecretHash(hash.to_string())
+}
+
+/// Checks a secret against a stored hash. Slow by design: call it on a blocking thread.
+pub fn verify_blocking(secret: &Secret, stored: &SecretHash) -> bool {
+    let Ok(parsed) = PasswordHash::new(&stored.0) else {
+        tracing::error!("a stored secret hash does not parse; the account cannot sign in");
+        return false;
+    };
+    hasher()
+        .verify_password(secret.expose().as_bytes(), &parsed)
+        .is_ok()
+}
+
+/// A hash of no one's secret, checked when the user name is unknown, so a
+/// wrong name costs the same time as a wrong password.
+fn decoy() -> &'static SecretHash {
+    static DECOY: OnceLock<SecretHash> = OnceLock::new();
+    DECOY.get_or_init(|| hash_blocking(&Secret::new(random_text())))
+}
+
+/// Hashes a secret on a blocking thread, off the async runtime.
+pub async fn hash(secret: Secret) -> anyhow::Result<SecretHash> {
+    tokio::task::spawn_blocking(move || hash_blocking(&secret))
+        .await
+        .map_err(|e| anyhow::anyhow!("the hashing task failed: {e}"))
+}
+
+/// Checks a secret on a blocking thread; with no stored hash it checks a decoy
+/// and answers false, taking the same time.
+pub async fn verify(secret: Secret, stored: Option<SecretHash>) -> anyhow::Result<bool> {
+    tokio::task::spawn_blocking(move || match stored {
+        Some(h) => verify_blocking(&secret, &h),
+        None => {
+            verify_blocking(&secret, decoy());
+            false
+        }
+    })
+    .await
+    .map_err(|e| anyhow::anyhow!("the verifying task failed: {e}"))
+}
+
+/// Returns `TOKEN_BYTES` random bytes from the operating system as base64url text.
+pub fn random_text() -> String {
+    let mut bytes = [0u8; TOKEN_BYTES];
+    OsRng
+        .try_fill_bytes(&mut bytes)
+        .expect("the operating system's random source is available");
+    URL_SAFE_NO_PAD.encode(bytes)
+}
+
+/// Returns the hex SHA-256 digest of a high-entropy token, the form stored.
+/// A fast hash suffices: the token is 256 random bits, not a guessable word.
+pub fn token_digest(token: &str) -> String {
+    let digest = Sha256::digest(token.as_bytes());
+    let mut hex = String::with_capacity(64);
+    for b in digest {
+        use std::fmt::Write as _;
+        let _ = write!(hex, "{b:02x}");
+    }
+    hex
+}
+
+/// Compares two strings in time that depends only on their lengths.
+pub fn same(a: &str, b: &str) -> bool {
+    a.as_bytes().ct_eq(b.as_bytes()).into()
+}
+
+/// A bearer token handed out once (device or integration); only its digest is kept.
+#[derive(Clone, PartialEq, Eq)]
+pub struct Token(String);
+
+/// Prefix of device tokens, so a leaked one is recognisable.
+pub const DEVICE_TOKEN_PREFIX: &str = "cairn_dev_";
+/// Prefix of integration tokens.
+pub const API_TOKEN_PREFIX: &str = "cairn_api_";
+
+impl Token {
+    /// Makes a new random token with a prefix saying what it is for.
+    pub fn generate(prefix: &str) -> Self {
+        Self(format!("{prefix}{}", random_text()))
+    }
+
+    /// Exposes the token, to send it to its owner once.
+    pub fn expose(&self) -> &str {
+        &self.0
+    }
+
+    /// Returns the digest to store.
+    pub fn digest(&self) -> String {
+        token_digest(&self.0)
+    }
+}
+
+impl fmt::Debug for Token {
+    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        f.write_str("Token(redacted)")
+    }
+}
+
+/// A session's form token (synchroniser token), echoed in every form it serves.
+#[derive(Clone, PartialEq, Eq)]
+pub struct CsrfToken(pub String);
+
+impl CsrfToken {
+    /// Makes a new random form token.
+    pub fn generate() -> Self {
+        Self(random_text())
+    }
+
+    /// Compares a submitted token with this one in constant time.
+    pub fn matches(&self, submitted: &str) -> bool {
+        same(&self.0, submitted)
+    }
+}
+
+impl fmt::Debug for CsrfToken {
+    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        f.write_str("CsrfToken(redacted)")
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn a_hash_verifies_its_secret_only_and_names_argon2id_with_the_chosen_parameters() {
+        let h = hash_blocking(&Secret::new("correct horse battery"));
+        // PHC string format (password-hashing competition): $argon2id$v=19$m=..,t=..,p=..$salt$hash
+        assert!(
+            h.0.starts_with("$argon2id$v=19$m=19456,t=2,p=1$"),
+            "{}",
+            h.0
+        );
+        assert!(verify_blocking(&Secret::new("correct horse battery"), &h));
+        assert!(!verify_blocking(&Secret::new("correct horse batterx"), &h));
+    }
+
+    #[test]
+    fn debug_output_never_shows_a_secret() {
+        let s = Secret::new("hunter2hunter2");
+        let t = Token::generate(DEVICE_TOKEN_PREFIX);
+        let text = format!("{s:?} {t:?} {:?}", CsrfToken::generate());
+        assert!(!text.contains("hunter2"));
+        assert!(!text.contains(t.expose()));
+        assert!(text.contains("redacted"));
+    }
+
+    #[test]
+    fn the_token_digest_is_sha256() {
+        // SHA-256("abc"), FIPS 180-2 appendix B.1 test vector.
+        assert_eq!(
+            token_digest("abc"),
+            "ba7816bf8f01cfea414140de5dae2223b00361a396177a9cb410ff61f20015ad"
+        );
+    }
+
+    #[test]
+    fn password_and_pin_rules_name_the_limit() {
+        assert!(Secret::new("short").check_password().is_err());
+        assert!(Secret::new("long enough pass").check_password().is_ok());
+        assert!(Secret::new("12a4").check_pin().is_err());
+        assert!(Secret::new("123").check_pin().is_err());
+        assert!(Secret::new("2468").check_pin().is_ok());
+    }
+}
