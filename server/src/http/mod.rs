@@ -17,7 +17,8 @@ use tower_http::trace::TraceLayer;
 pub fn router(state: AppState) -> Router {
     let site = Router::new()
         .merge(crate::master::routes::routes())
-        .merge(crate::ledger::routes::routes());
+        .merge(crate::ledger::routes::routes())
+        .merge(crate::planning::routes::routes());
     let api = crate::master::routes::top_routes().nest("/sites/{site}", site);
     Router::new()
         .route("/healthz", get(healthz))
