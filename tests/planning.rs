@@ -11,7 +11,8 @@ use cairn::planning::plan::{self, BinFacts, Capacity, Fill, ItemFacts, Plan, Pla
 use cairn::planning::walk::Place;
 use cairn::planning::{Settings, service};
 use chrono::NaiveDate;
-use common::spawn_app;
+use common::{movement, spawn_app};
+use serde_json::json;
 use std::collections::HashMap;
 
 /// What a simulation saw: each working day's plan, and the days each item's
@@ -249,5 +250,243 @@ async fn a_simulated_year_on_the_demo_site_keeps_frequencies_capacity_and_level(
     eprintln!(
         "demo year: checked {checked:?} items, daily minutes CV {cv:.3}, mean {:.1} min",
         minutes.iter().sum::<f64>() / minutes.len() as f64 / 60.0
+    );
+}
+
+/// Site T with a negative balance on A-01-01-1 and a short pick reported on A-01-02-1.
+async fn site_with_triggers(app: &common::TestApp) {
+    app.small_site().await;
+    let (s, b) = app
+        .post(
+            "/api/v1/sites/T/movements",
+            &json!([
+                movement(
+                    "m1",
+                    "A-01-01-1",
+                    "S1",
+                    10,
+                    "receipt",
+                    "2026-03-02T08:00:00Z"
+                ),
+                movement("m2", "A-01-01-1", "S1", -12, "pick", "2026-03-02T09:00:00Z"),
+            ]),
+        )
+        .await;
+    assert_eq!(s, 200, "{b}");
+    let (s, b) = app
+        .post(
+            "/api/v1/sites/T/short-picks",
+            &json!([{"id": "sp1", "bin": "A-01-02-1", "sku": "L1", "short_qty": 3,
+                     "reported_at": "2026-03-02T10:00:00Z"}]),
+        )
+        .await;
+    assert_eq!((s, b["recorded"].as_u64()), (200, Some(1)), "{b}");
+}
+
+fn build(day: &str, counters: u32, minutes: u32, extra: serde_json::Value) -> serde_json::Value {
+    let mut b = json!({"day": day, "counters": counters, "minutes": minutes});
+    if let (Some(o), Some(x)) = (b.as_object_mut(), extra.as_object()) {
+        o.extend(x.clone());
+    }
+    b
+}
+
+#[tokio::test]
+async fn triggered_bins_lead_the_list_and_one_left_off_is_named_in_a_warning() {
+    let app = spawn_app().await;
+    site_with_triggers(&app).await;
+    let (s, list) = app
+        .post(
+            "/api/v1/sites/T/count-lists",
+            &build("2026-03-03", 1, 60, json!({"preview": true})),
+        )
+        .await;
+    assert_eq!(s, 200, "{list}");
+    let reasons: Vec<&str> = list["tasks"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .map(|t| t["reason"].as_str().unwrap())
+        .collect();
+    assert_eq!(reasons, ["negative_balance", "short_pick"]);
+    assert_eq!(list["stored"], false);
+    assert!(list["warnings"].as_array().unwrap().is_empty());
+
+    // Three minutes hold the first bin (2:30) but not the second (2:00 more).
+    let (_, tight) = app
+        .post(
+            "/api/v1/sites/T/count-lists",
+            &build("2026-03-03", 1, 3, json!({"preview": true})),
+        )
+        .await;
+    assert_eq!(tight["tasks"].as_array().unwrap().len(), 1);
+    let warnings = tight["warnings"].to_string();
+    assert!(
+        warnings.contains("A-01-02-1") && warnings.contains("short_pick"),
+        "{warnings}"
+    );
+}
+
+#[tokio::test]
+async fn a_stored_list_is_read_exported_adjusted_and_not_rebuilt_by_accident() {
+    let app = spawn_app().await;
+    site_with_triggers(&app).await;
+    let path = "/api/v1/sites/T/count-lists";
+    let (s, list) = app.post(path, &build("2026-03-03", 2, 60, json!({}))).await;
+    assert_eq!((s, list["stored"].as_bool()), (200, Some(true)), "{list}");
+    assert_eq!(list["version"], 1);
+    let (s, again) = app.post(path, &build("2026-03-03", 2, 60, json!({}))).await;
+    assert_eq!(s, 409, "{again}");
+    let (s, replaced) = app
+        .post(path, &build("2026-03-03", 2, 60, json!({"replace": true})))
+        .await;
+    assert_eq!((s, replaced["version"].as_i64()), (200, Some(2)));
+
+    let (s, read) = app.get("/api/v1/sites/T/count-lists/2026-03-03").await;
+    assert_eq!(s, 200);
+    assert_eq!(read["tasks"], replaced["tasks"]);
+    let csv = app
+        .client
+        .get(format!(
+            "{}/api/v1/sites/T/count-lists/2026-03-03?format=csv",
+            app.base
+        ))
+        .send()
+        .await
+        .unwrap()
+        .text()
+        .await
+        .unwrap();
+    assert!(csv.starts_with("day,run,seq,bin,"), "{csv}");
+    assert_eq!(
+        csv.lines().count(),
+        1 + read["tasks"].as_array().unwrap().len()
+    );
+
+    let task = read["tasks"][0]["id"].as_i64().unwrap();
+    let (s, moved) = app
+        .post(
+            &format!("/api/v1/sites/T/count-lists/2026-03-03/tasks/{task}/move"),
+            &json!({"run": 2}),
+        )
+        .await;
+    assert_eq!(s, 200, "{moved}");
+    assert_eq!(moved["version"], 3);
+    let t = moved["tasks"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .find(|t| t["id"] == task)
+        .unwrap();
+    assert_eq!(t["run"], 2);
+    let (s, _) = app
+        .post(
+            &format!("/api/v1/sites/T/count-lists/2026-03-03/tasks/{task}/move"),
+            &json!({"run": 9}),
+        )
+        .await;
+    assert_eq!(s, 422);
+
+    let run = |n: u32| {
+        format!(
+            "{}/api/v1/sites/T/count-lists/2026-03-03/runs/{n}",
+            app.base
+        )
+    };
+    let put = |url: String| app.client.put(url).json(&json!({"holder": "Ana"})).send();
+    assert_eq!(put(run(1)).await.unwrap().status(), 200);
+    assert_eq!(put(run(2)).await.unwrap().status(), 409);
+    let (_, read) = app.get("/api/v1/sites/T/count-lists/2026-03-03").await;
+    assert_eq!(read["runs"][0]["holder"], "Ana");
+    let (s, _) = app.get("/api/v1/sites/T/count-lists/2026-03-04").await;
+    assert_eq!(s, 404);
+}
+
+#[tokio::test]
+async fn short_picks_are_idempotent_and_bad_rows_are_named() {
+    let app = spawn_app().await;
+    site_with_triggers(&app).await;
+    let path = "/api/v1/sites/T/short-picks";
+    let same = json!([{"id": "sp1", "bin": "A-01-02-1", "sku": "L1", "short_qty": 3,
+                       "reported_at": "2026-03-02T10:00:00Z"}]);
+    let (s, b) = app.post(path, &same).await;
+    assert_eq!((s, b["already_recorded"].as_u64()), (200, Some(1)), "{b}");
+    let changed = json!([{"id": "sp1", "bin": "A-01-02-1", "sku": "L1", "short_qty": 4,
+                          "reported_at": "2026-03-02T10:00:00Z"}]);
+    let (s, b) = app.post(path, &changed).await;
+    assert_eq!(
+        (s, b["rows"][0]["field"].as_str()),
+        (422, Some("id")),
+        "{b}"
+    );
+    let bad = json!([{"id": "sp2", "bin": "Q-09-09-9", "sku": "S1", "reported_at": "2026-03-02"}]);
+    let (s, b) = app.post(path, &bad).await;
+    assert_eq!(s, 422, "{b}");
+    assert_eq!(b["rows"][0]["field"], "reported_at");
+}
+
+#[tokio::test]
+async fn settings_and_calendar_round_trip_and_bad_values_are_refused() {
+    let app = spawn_app().await;
+    app.small_site().await;
+    let (s, defaults) = app.get("/api/v1/sites/T/planning/settings").await;
+    assert_eq!(s, 200);
+    assert_eq!(defaults["frequency"]["per_year"], json!([12, 4, 1]));
+    let mut changed = defaults.clone();
+    changed["abc"]["basis"] = json!("hits");
+    changed["frequency"]["per_year"] = json!([24, 6, 2]);
+    let put = |body: serde_json::Value, path: &'static str| {
+        app.client
+            .put(format!("{}/api/v1/sites/T/planning/{path}", app.base))
+            .json(&body)
+            .send()
+    };
+    assert_eq!(
+        put(changed.clone(), "settings").await.unwrap().status(),
+        200
+    );
+    let (_, read) = app.get("/api/v1/sites/T/planning/settings").await;
+    assert_eq!(read, changed);
+    let mut bad = changed.clone();
+    bad["abc"]["a_pct"] = json!(99);
+    assert_eq!(put(bad, "settings").await.unwrap().status(), 400);
+
+    let cal = json!({"working_weekdays": ["mon", "tue", "wed", "thu", "fri", "sat"],
+                     "holidays": ["2026-12-25"]});
+    assert_eq!(put(cal.clone(), "calendar").await.unwrap().status(), 200);
+    let (_, read) = app.get("/api/v1/sites/T/planning/calendar").await;
+    assert_eq!(read, cal);
+    let bad = json!({"working_weekdays": ["someday"]});
+    assert_eq!(put(bad, "calendar").await.unwrap().status(), 400);
+}
+
+#[tokio::test]
+async fn a_classification_run_is_summarised_and_kept_in_each_items_history() {
+    let app = spawn_app().await;
+    site_with_triggers(&app).await;
+    let (s, none) = app.get("/api/v1/sites/T/planning/abc").await;
+    assert_eq!(s, 404, "{none}");
+    let (s, run) = app
+        .post("/api/v1/sites/T/planning/abc?day=2026-03-03", &json!({}))
+        .await;
+    assert_eq!(s, 200, "{run}");
+    assert_eq!(
+        (run["items"].as_u64(), run["changed"].as_u64()),
+        (Some(2), Some(2))
+    );
+    // A second run changes nobody's class, so the history gains nothing.
+    let (_, again) = app
+        .post("/api/v1/sites/T/planning/abc?day=2026-03-04", &json!({}))
+        .await;
+    assert_eq!(again["changed"], 0);
+    let (s, history) = app.get("/api/v1/sites/T/items/S1/classes").await;
+    assert_eq!(s, 200);
+    assert_eq!(history.as_array().unwrap().len(), 1);
+    assert_eq!(history[0]["class"], "A");
+    assert_eq!(history[0]["since"], "2026-03-03");
+    let (_, summary) = app.get("/api/v1/sites/T/planning/abc").await;
+    assert_eq!(
+        (summary["a"].as_u64(), summary["c"].as_u64()),
+        (Some(1), Some(1))
     );
 }
