@@ -135,6 +135,8 @@ pub fn put_calendar(tx: &Transaction, site: SiteId, c: &Calendar) -> Result<(), 
 }
 
 /// Sums every item's issues (picks, net of their reversals) with event time in `[from, to)`.
+/// One pass over the table: a year is most of the ledger, and walking the
+/// item index would visit every row out of order.
 pub fn abc_usage(
     conn: &Connection,
     site: SiteId,
@@ -145,7 +147,7 @@ pub fn abc_usage(
         "select i.id, i.unit_cost_minor, coalesce(u.issued, 0), coalesce(u.hits, 0)
          from item i left join (
              select item_id, sum(-qty) as issued, sum(case when qty < 0 then 1 else -1 end) as hits
-             from movement
+             from movement not indexed
              where site_id = ?1 and kind = 'pick' and event_at >= ?2 and event_at < ?3
              group by item_id
          ) u on u.item_id = i.id
