@@ -9,6 +9,8 @@ use crate::config::Config;
 use crate::demo::{self, DemoSpec};
 use crate::import::{ImportError, ImportKind, MAX_ERRORS_SHOWN, import_csv};
 use crate::master::{NewSite, SiteCode};
+use crate::planning;
+use crate::planning::plan::{Capacity, Fill};
 use crate::store::Store;
 use crate::store::sqlite::Synchronous;
 use clap::{Args, Parser, Subcommand};
@@ -83,6 +85,29 @@ enum Command {
         #[arg(long)]
         out: Option<PathBuf>,
     },
+    /// Build a day's count list and print it (text, CSV or JSON).
+    Plan {
+        #[arg(long, env = "CAIRN_DB")]
+        db: PathBuf,
+        #[arg(long)]
+        site: String,
+        /// The day, YYYY-MM-DD (default: today, UTC).
+        #[arg(long)]
+        date: Option<chrono::NaiveDate>,
+        #[arg(long, default_value_t = 2)]
+        counters: u32,
+        /// Minutes each counter has for counting.
+        #[arg(long, default_value_t = 120)]
+        minutes: u32,
+        #[arg(long, value_enum, default_value_t = PlanFormat::Text)]
+        format: PlanFormat,
+        /// Use all the capacity instead of stopping at the day's level.
+        #[arg(long)]
+        fill_capacity: bool,
+        /// Store the list as the day's list (replacing one not yet started).
+        #[arg(long)]
+        save: bool,
+    },
     /// Manage sites.
     Site {
         #[command(subcommand)]
@@ -93,6 +118,13 @@ enum Command {
         #[command(subcommand)]
         command: UserCommand,
     },
+}
+
+#[derive(Clone, Copy, clap::ValueEnum)]
+enum PlanFormat {
+    Text,
+    Csv,
+    Json,
 }
 
 #[derive(Args)]
@@ -398,6 +430,44 @@ async fn dispatch(command: Command) -> anyhow::Result<()> {
             println!("{} labels written to {}", labels.len(), out.display());
             Ok(())
         }
+        Command::Plan {
+            db,
+            site,
+            date,
+            counters,
+            minutes,
+            format,
+            fill_capacity,
+            save,
+        } => {
+            if !db.exists() {
+                anyhow::bail!("database {} does not exist", db.display());
+            }
+            let state = open(db)?;
+            let store = state.store.as_ref();
+            let site = site_of(store, &site).await?;
+            let day = date.unwrap_or_else(|| chrono::Utc::now().date_naive());
+            let capacity = Capacity { counters, minutes };
+            planning::service::check_capacity(capacity).map_err(anyhow::Error::msg)?;
+            let fill = if fill_capacity {
+                Fill::Capacity
+            } else {
+                Fill::Level
+            };
+            let view = if save {
+                planning::service::build(store, &site, day, capacity, fill, true).await?
+            } else {
+                let (input, plan) =
+                    planning::service::preview(store, &site, day, capacity, fill).await?;
+                planning::service::view(&input, &plan)
+            };
+            match format {
+                PlanFormat::Text => print!("{}", planning::service::to_text(&view)),
+                PlanFormat::Csv => print!("{}", planning::service::to_csv(&view)?),
+                PlanFormat::Json => println!("{}", serde_json::to_string_pretty(&view)?),
+            }
+            Ok(())
+        }
         Command::Site {
             command:
                 SiteCommand::Add {
@@ -435,6 +505,9 @@ async fn serve(state: AppState, listen: SocketAddr, demo: bool) -> anyhow::Resul
     if demo {
         println!("{}", demo::login_note());
     }
+    tokio::spawn(planning::service::nightly_classification(
+        state.store.clone(),
+    ));
     crate::run(state, listener, async {
         let _ = tokio::signal::ctrl_c().await;
     })

@@ -168,7 +168,7 @@ impl TestApp {
         (status, r.json().await.unwrap_or(Value::Null))
     }
 
-    fn with_token(&self, r: reqwest::RequestBuilder) -> reqwest::RequestBuilder {
+    pub fn with_token(&self, r: reqwest::RequestBuilder) -> reqwest::RequestBuilder {
         match self.token.get() {
             Some(t) => r.bearer_auth(t),
             None => r,

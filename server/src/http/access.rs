@@ -41,6 +41,10 @@ pub const BOOK_READERS: &[Role] = &[
 ];
 /// Roles that may post movements and master data (people or integration tokens).
 pub const BOOK_WRITERS: &[Role] = &[Role::InventoryManager, Role::Admin];
+/// Roles that build, size and hand out the day's count list.
+pub const LIST_KEEPERS: &[Role] = &[Role::Supervisor, Role::InventoryManager, Role::Admin];
+/// Roles that set how a site counts: frequencies, classification, calendar.
+pub const COUNT_POLICY: &[Role] = &[Role::InventoryManager, Role::Admin];
 /// Roles that administer a site's users, devices, tokens and audit trail.
 pub const ADMINS: &[Role] = &[Role::Admin];
 
@@ -114,6 +118,15 @@ impl RouteTable {
         T: 'static,
     {
         self.add(Method::POST, path, access, axum::routing::post(handler))
+    }
+
+    /// Adds a PUT route.
+    pub fn put<H, T>(&mut self, path: &'static str, access: Access, handler: H) -> &mut Self
+    where
+        H: Handler<T, AppState>,
+        T: 'static,
+    {
+        self.add(Method::PUT, path, access, axum::routing::put(handler))
     }
 
     /// Adds a DELETE route.

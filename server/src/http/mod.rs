@@ -24,6 +24,7 @@ pub fn route_table() -> RouteTable {
     crate::accounts::admin::routes(&mut t);
     crate::master::routes::routes(&mut t);
     crate::ledger::routes::routes(&mut t);
+    crate::planning::routes::routes(&mut t);
     t
 }
 

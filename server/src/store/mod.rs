@@ -9,8 +9,14 @@ use crate::batch::RowError;
 use crate::ledger::{BalanceRow, Movement, NewMovement, RecordOutcome};
 use crate::master::codes::{BinCode, Sku, ZoneCode};
 use crate::master::{Bin, NewBin, NewItem, NewPack, NewSite, Site, SiteCode, SiteCounts, SiteId};
+use crate::planning::abc::{AbcRule, Class, Usage};
+use crate::planning::calendar::Calendar;
+use crate::planning::plan::{Capacity, Fill, PlanInput};
+use crate::planning::short_pick::{NewShortPick, ShortPickOutcome};
+use crate::planning::{AbcSummary, ClassChange, ListView, NewCountList, Settings};
 use crate::time::Timestamp;
 use async_trait::async_trait;
+use chrono::NaiveDate;
 use std::sync::Arc;
 use std::sync::atomic::{AtomicU64, Ordering};
 
@@ -168,4 +174,78 @@ pub trait Store: AccountStore + Send + Sync + 'static {
     -> Result<HistoryPage, StoreError>;
     /// Replaces the demo site's true shelf quantities.
     async fn put_demo_shelf(&self, site: SiteId, rows: Vec<ShelfRow>) -> Result<(), StoreError>;
+
+    // The day's count list.
+
+    /// Reads a site's planning settings (the defaults until some are stored).
+    async fn planning_settings(&self, site: SiteId) -> Result<Settings, StoreError>;
+    /// Stores a site's planning settings.
+    async fn put_planning_settings(
+        &self,
+        site: SiteId,
+        settings: Settings,
+    ) -> Result<(), StoreError>;
+    /// Reads a site's calendar (Monday to Friday until one is stored).
+    async fn calendar(&self, site: SiteId) -> Result<Calendar, StoreError>;
+    /// Replaces a site's calendar.
+    async fn put_calendar(&self, site: SiteId, calendar: Calendar) -> Result<(), StoreError>;
+    /// Sums each item's issues with event time in `[from, to)`.
+    async fn abc_usage(
+        &self,
+        site: SiteId,
+        from: Timestamp,
+        to: Timestamp,
+    ) -> Result<Vec<Usage>, StoreError>;
+    /// Stores a classification and the class changes it brings.
+    async fn record_classes(
+        &self,
+        site: SiteId,
+        day: NaiveDate,
+        rule: AbcRule,
+        classes: Vec<(i64, Class)>,
+    ) -> Result<AbcSummary, StoreError>;
+    /// Reads the newest classification, if any.
+    async fn latest_abc(&self, site: SiteId) -> Result<Option<AbcSummary>, StoreError>;
+    /// Reads when an item entered each of its classes.
+    async fn class_history(&self, site: SiteId, sku: Sku) -> Result<Vec<ClassChange>, StoreError>;
+    /// Appends short-pick reports, idempotent by id. All or nothing.
+    async fn record_short_picks(
+        &self,
+        site: SiteId,
+        rows: Vec<NewShortPick>,
+    ) -> Result<ShortPickOutcome, StoreError>;
+    /// Gathers the facts a day's plan is built from.
+    async fn plan_input(
+        &self,
+        site: SiteId,
+        day: NaiveDate,
+        capacity: Capacity,
+        fill: Fill,
+    ) -> Result<PlanInput, StoreError>;
+    /// Stores a day's list; returns its id.
+    async fn save_count_list(&self, site: SiteId, list: NewCountList) -> Result<i64, StoreError>;
+    /// Reads a day's stored list.
+    async fn count_list(
+        &self,
+        site: SiteId,
+        day: NaiveDate,
+    ) -> Result<Option<ListView>, StoreError>;
+    /// Moves a task of a day's list to another run.
+    async fn move_task(
+        &self,
+        site: SiteId,
+        day: NaiveDate,
+        task: i64,
+        run: u32,
+    ) -> Result<(), StoreError>;
+    /// Gives a run of a day's list to a counter.
+    async fn hold_run(
+        &self,
+        site: SiteId,
+        day: NaiveDate,
+        run: u32,
+        holder: String,
+    ) -> Result<(), StoreError>;
+    /// Marks a task done and its bin counted whole.
+    async fn finish_task(&self, site: SiteId, task: i64, at: Timestamp) -> Result<(), StoreError>;
 }

@@ -5,16 +5,24 @@ pub mod accounts;
 pub mod ledger;
 pub mod master;
 pub mod migrate;
+pub mod planning;
 pub mod pool;
 
 use super::{
     BalancePage, BalanceQuery, HistoryPage, HistoryQuery, Progress, ShelfRow, Store, StoreError,
 };
 use crate::ledger::{NewMovement, RecordOutcome};
+use crate::master::codes::Sku;
 use crate::master::codes::ZoneCode;
 use crate::master::{Bin, NewBin, NewItem, NewPack, NewSite, Site, SiteCode, SiteCounts, SiteId};
+use crate::planning::abc::{AbcRule, Class, Usage};
+use crate::planning::calendar::Calendar;
+use crate::planning::plan::{Capacity, Fill, PlanInput};
+use crate::planning::short_pick::{NewShortPick, ShortPickOutcome};
+use crate::planning::{AbcSummary, ClassChange, ListView, NewCountList, Settings};
 use crate::time::Timestamp;
 use async_trait::async_trait;
+use chrono::NaiveDate;
 use pool::{Readers, Writer, connect};
 use rusqlite::Connection;
 use std::path::{Path, PathBuf};
@@ -231,6 +239,125 @@ impl Store for SqliteStore {
 
     async fn put_demo_shelf(&self, site: SiteId, rows: Vec<ShelfRow>) -> Result<(), StoreError> {
         self.write_tx(move |tx| master::put_demo_shelf(tx, site, &rows))
+            .await
+    }
+
+    async fn planning_settings(&self, site: SiteId) -> Result<Settings, StoreError> {
+        self.readers.run(move |c| planning::settings(c, site)).await
+    }
+
+    async fn put_planning_settings(
+        &self,
+        site: SiteId,
+        settings: Settings,
+    ) -> Result<(), StoreError> {
+        self.write_tx(move |tx| planning::put_settings(tx, site, &settings))
+            .await
+    }
+
+    async fn calendar(&self, site: SiteId) -> Result<Calendar, StoreError> {
+        self.readers.run(move |c| planning::calendar(c, site)).await
+    }
+
+    async fn put_calendar(&self, site: SiteId, calendar: Calendar) -> Result<(), StoreError> {
+        self.write_tx(move |tx| planning::put_calendar(tx, site, &calendar))
+            .await
+    }
+
+    async fn abc_usage(
+        &self,
+        site: SiteId,
+        from: Timestamp,
+        to: Timestamp,
+    ) -> Result<Vec<Usage>, StoreError> {
+        self.readers
+            .run(move |c| planning::abc_usage(c, site, from.0, to.0))
+            .await
+    }
+
+    async fn record_classes(
+        &self,
+        site: SiteId,
+        day: NaiveDate,
+        rule: AbcRule,
+        classes: Vec<(i64, Class)>,
+    ) -> Result<AbcSummary, StoreError> {
+        self.write_tx(move |tx| planning::record_classes(tx, site, day, &rule, &classes))
+            .await
+    }
+
+    async fn latest_abc(&self, site: SiteId) -> Result<Option<AbcSummary>, StoreError> {
+        self.readers
+            .run(move |c| planning::latest_abc(c, site))
+            .await
+    }
+
+    async fn class_history(&self, site: SiteId, sku: Sku) -> Result<Vec<ClassChange>, StoreError> {
+        self.readers
+            .run(move |c| planning::class_history(c, site, sku.as_str()))
+            .await
+    }
+
+    async fn record_short_picks(
+        &self,
+        site: SiteId,
+        rows: Vec<NewShortPick>,
+    ) -> Result<ShortPickOutcome, StoreError> {
+        self.write_tx(move |tx| planning::insert_short_picks(tx, site, &rows, Timestamp::now()))
+            .await
+    }
+
+    async fn plan_input(
+        &self,
+        site: SiteId,
+        day: NaiveDate,
+        capacity: Capacity,
+        fill: Fill,
+    ) -> Result<PlanInput, StoreError> {
+        self.readers
+            .run(move |c| planning::plan_input(c, site, day, capacity, fill))
+            .await
+    }
+
+    async fn save_count_list(&self, site: SiteId, list: NewCountList) -> Result<i64, StoreError> {
+        self.write_tx(move |tx| planning::save_count_list(tx, site, &list))
+            .await
+    }
+
+    async fn count_list(
+        &self,
+        site: SiteId,
+        day: NaiveDate,
+    ) -> Result<Option<ListView>, StoreError> {
+        self.readers
+            .run(move |c| planning::count_list(c, site, day))
+            .await
+    }
+
+    async fn move_task(
+        &self,
+        site: SiteId,
+        day: NaiveDate,
+        task: i64,
+        run: u32,
+    ) -> Result<(), StoreError> {
+        self.write_tx(move |tx| planning::move_task(tx, site, day, task, run))
+            .await
+    }
+
+    async fn hold_run(
+        &self,
+        site: SiteId,
+        day: NaiveDate,
+        run: u32,
+        holder: String,
+    ) -> Result<(), StoreError> {
+        self.write_tx(move |tx| planning::hold_run(tx, site, day, run, &holder))
+            .await
+    }
+
+    async fn finish_task(&self, site: SiteId, task: i64, at: Timestamp) -> Result<(), StoreError> {
+        self.write_tx(move |tx| planning::finish_task(tx, site, task, at))
             .await
     }
 }

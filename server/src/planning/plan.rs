@@ -1,0 +1,584 @@
+//! Building one day's count list from plain facts: triggered bins first, then
+//! due items by how overdue they are, within the day's capacity and the
+//! level that keeps the year's daily minutes even; then the walk and the runs.
+//! No I/O: the store gathers a [`PlanInput`], this returns a [`Plan`].
+
+use super::abc::Class;
+use super::calendar::Calendar;
+use super::due::Overdue;
+use super::estimate::TaskTime;
+use super::walk::{Place, split, walk_order};
+use super::{Settings, TriggerKind};
+use chrono::NaiveDate;
+use serde::Serialize;
+use std::collections::HashMap;
+
+/// One bin as the planner sees it.
+#[derive(Debug, Clone)]
+pub struct BinFacts {
+    pub id: i64,
+    pub code: String,
+    pub zone: String,
+    pub place: Place,
+    /// Book lines (keys with a non-zero balance) in the bin.
+    pub lines: u32,
+    /// The day the bin was last counted whole.
+    pub last_count: Option<NaiveDate>,
+}
+
+/// One item as the planner sees it.
+#[derive(Debug, Clone)]
+pub struct ItemFacts {
+    pub id: i64,
+    pub class: Class,
+    /// No stock and no movement for a year.
+    pub dead: bool,
+    /// Indices into [`PlanInput::bins`] of the bins that hold it (or last held it).
+    pub bins: Vec<u32>,
+}
+
+/// A reason to count a bin today regardless of due dates.
+#[derive(Debug, Clone)]
+pub struct Trigger {
+    /// Index into [`PlanInput::bins`].
+    pub bin: u32,
+    pub kind: TriggerKind,
+    pub detail: String,
+}
+
+/// Whether due counts stop at the level or fill the whole capacity.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Default, serde::Deserialize, Serialize)]
+#[serde(rename_all = "snake_case")]
+pub enum Fill {
+    /// Stop due counts at the day's share of the year's load.
+    #[default]
+    Level,
+    /// Use all the capacity (a catch-up day).
+    Capacity,
+}
+
+/// The counters and minutes the supervisor gives the day.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
+pub struct Capacity {
+    pub counters: u32,
+    pub minutes: u32,
+}
+
+impl Capacity {
+    /// Returns one counter's seconds.
+    pub fn per_counter_s(self) -> i64 {
+        i64::from(self.minutes) * 60
+    }
+
+    /// Returns all counters' seconds.
+    pub fn total_s(self) -> i64 {
+        self.per_counter_s() * i64::from(self.counters)
+    }
+}
+
+/// Everything one day's list is built from.
+#[derive(Debug, Clone)]
+pub struct PlanInput {
+    pub day: NaiveDate,
+    pub calendar: Calendar,
+    pub settings: Settings,
+    pub bins: Vec<BinFacts>,
+    pub items: Vec<ItemFacts>,
+    pub triggers: Vec<Trigger>,
+    /// Task time per zone code, learned or from settings; zones not named use the settings.
+    pub zone_time: HashMap<String, TaskTime>,
+    pub capacity: Capacity,
+    pub fill: Fill,
+    /// The day counting began on the site (its first classification); never-counted items age from it.
+    pub counting_since: Option<NaiveDate>,
+    /// The ledger's high-water mark the facts were read at.
+    pub watermark: i64,
+}
+
+/// Why a bin is on the list.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
+#[serde(rename_all = "snake_case")]
+pub enum Reason {
+    Triggered(TriggerKind),
+    Due,
+    DeadStock,
+}
+
+impl Reason {
+    /// Returns the stored and wire form.
+    pub fn as_str(self) -> &'static str {
+        match self {
+            Reason::Triggered(k) => k.as_str(),
+            Reason::Due => "due",
+            Reason::DeadStock => "dead_stock",
+        }
+    }
+
+    /// Parses the stored form.
+    pub fn parse(text: &str) -> Option<Self> {
+        match text {
+            "due" => Some(Reason::Due),
+            "dead_stock" => Some(Reason::DeadStock),
+            t => TriggerKind::parse(t).map(Reason::Triggered),
+        }
+    }
+
+    /// Says whether the bin is on the list for a trigger.
+    pub fn is_triggered(self) -> bool {
+        matches!(self, Reason::Triggered(_))
+    }
+}
+
+/// One bin task of the day.
+#[derive(Debug, Clone, PartialEq, Eq)]
+pub struct Task {
+    /// Index into [`PlanInput::bins`].
+    pub bin: u32,
+    pub reason: Reason,
+    /// Class of the item that made the bin due (none for a triggered bin).
+    pub class: Option<Class>,
+    pub detail: String,
+    pub lines: u32,
+    pub seconds: i64,
+    /// Position in the list, from 1.
+    pub seq: u32,
+    /// The run (counter slot), from 1.
+    pub run: u32,
+}
+
+/// The day's list.
+#[derive(Debug, Clone)]
+pub struct Plan {
+    pub day: NaiveDate,
+    /// In the order they are done: run by run, each run's triggered bins
+    /// (walked) before its due bins (walked).
+    pub tasks: Vec<Task>,
+    pub capacity: Capacity,
+    /// The day's share of the year's load, in seconds.
+    pub level_s: i64,
+    /// Interval in working days of A, B, C and dead stock.
+    pub intervals: [i64; 4],
+    pub due_items: usize,
+    pub due_items_planned: usize,
+    /// Said on the page: triggered bins left off for capacity, a non-working day.
+    pub warnings: Vec<String>,
+}
+
+impl Plan {
+    /// Returns the seconds of each run, run 1 first.
+    pub fn run_seconds(&self) -> Vec<i64> {
+        let mut out = vec![0; self.capacity.counters as usize];
+        for t in &self.tasks {
+            out[(t.run - 1) as usize] += t.seconds;
+        }
+        out
+    }
+}
+
+/// A candidate bin with what put it on the list, in priority order.
+struct Chosen {
+    bin: u32,
+    reason: Reason,
+    class: Option<Class>,
+    detail: String,
+    seconds: i64,
+}
+
+/// Builds the day's list.
+pub fn build(input: &PlanInput) -> Plan {
+    assert!(
+        input.capacity.counters > 0,
+        "capacity is checked before planning"
+    );
+    let s = &input.settings;
+    let wdy = input.calendar.working_days_in_year(input.day);
+    let intervals = [
+        s.frequency.interval(Class::A, false, wdy),
+        s.frequency.interval(Class::B, false, wdy),
+        s.frequency.interval(Class::C, false, wdy),
+        s.frequency.interval(Class::C, true, wdy),
+    ];
+    let interval_of = |it: &ItemFacts| {
+        if it.dead {
+            intervals[3]
+        } else {
+            intervals[it.class.index()]
+        }
+    };
+    let seconds: Vec<i64> = input
+        .bins
+        .iter()
+        .map(|b| {
+            input
+                .zone_time
+                .get(&b.zone)
+                .copied()
+                .unwrap_or(s.task_time)
+                .seconds(b.lines)
+        })
+        .collect();
+    let mut warnings = Vec::new();
+    if !input.calendar.is_working(input.day) {
+        warnings.push(format!(
+            "{} is not a working day in the site calendar",
+            input.day
+        ));
+    }
+
+    // The level: each bin is counted as often as its most frequent item
+    // needs; its load belongs to that item's group (class, or dead stock).
+    let group_of = |it: &ItemFacts| if it.dead { 3 } else { it.class.index() };
+    let mut rate = vec![(0f64, 3usize); input.bins.len()];
+    for it in &input.items {
+        let r = 1.0 / interval_of(it) as f64;
+        for &b in &it.bins {
+            let cur = &mut rate[b as usize];
+            if r > cur.0 || (r == cur.0 && group_of(it) < cur.1) {
+                *cur = (r, group_of(it));
+            }
+        }
+    }
+    let mut level = [0f64; 4];
+    for ((r, g), &sec) in rate.iter().zip(&seconds) {
+        level[*g] += r * sec as f64;
+    }
+    let level_s = level.iter().sum::<f64>().ceil() as i64;
+
+    let capacity_s = input.capacity.total_s();
+    let per_counter = input.capacity.per_counter_s();
+    let mut on_list = vec![false; input.bins.len()];
+    let mut chosen: Vec<Chosen> = Vec::new();
+    let mut used = 0i64;
+
+    // Triggered bins, strongest reason first; one task per bin.
+    let mut triggers: Vec<&Trigger> = input.triggers.iter().collect();
+    triggers.sort_by_key(|t| (t.kind, t.bin));
+    for t in triggers {
+        let b = t.bin as usize;
+        if on_list[b] {
+            if let Some(c) = chosen.iter_mut().find(|c| c.bin == t.bin) {
+                c.detail = format!("{}; {}", c.detail, t.detail);
+            }
+            continue;
+        }
+        if used + seconds[b] > capacity_s || seconds[b] > per_counter {
+            warnings.push(format!(
+                "triggered count of bin {} ({}: {}) does not fit today's capacity and is not on the list",
+                input.bins[b].code,
+                t.kind.as_str(),
+                t.detail
+            ));
+            continue;
+        }
+        on_list[b] = true;
+        used += seconds[b];
+        chosen.push(Chosen {
+            bin: t.bin,
+            reason: Reason::Triggered(t.kind),
+            class: None,
+            detail: t.detail.clone(),
+            seconds: seconds[b],
+        });
+    }
+
+    // Due items, most overdue relative to interval first, A before B before C.
+    let began = input
+        .counting_since
+        .map_or(0, |d| input.calendar.working_days_between(d, input.day));
+    let mut due: Vec<(Overdue, &ItemFacts)> = input
+        .items
+        .iter()
+        .filter(|it| !it.bins.is_empty())
+        .filter_map(|it| {
+            let since = it
+                .bins
+                .iter()
+                .map(|&b| input.bins[b as usize].last_count)
+                .min()
+                .flatten()
+                .map(|d| input.calendar.working_days_between(d, input.day));
+            Overdue::of(since, began, interval_of(it)).map(|o| (o, it))
+        })
+        .collect();
+    due.sort_by(|(oa, a), (ob, b)| {
+        ob.cmp_ratio(oa)
+            .then(a.class.cmp(&b.class))
+            .then(a.id.cmp(&b.id))
+    });
+    // Each group takes at most its share of the level a day. Items never
+    // counted fill only the plain share, so a first pass spreads a group's
+    // items evenly over its interval and later passes stay even by
+    // themselves; items counted before and now late may also use the
+    // catch-up allowance.
+    let slack = f64::from(100 + s.level_slack_pct) / 100.0;
+    let mut group_used = [0i64; 4];
+    let mut used_due = 0i64;
+    for (o, it) in &due {
+        let g = group_of(it);
+        let share = if o.never_counted {
+            level[g]
+        } else {
+            level[g] * slack
+        };
+        let new: Vec<u32> = it
+            .bins
+            .iter()
+            .copied()
+            .filter(|&b| !on_list[b as usize])
+            .collect();
+        let cost: i64 = new.iter().map(|&b| seconds[b as usize]).sum();
+        // A task is taken when it ends nearer the share than without it, so
+        // a day's overshoot and shortfall cancel over a pass; the first task
+        // of a group is always taken, so a share smaller than one task still
+        // gets counted.
+        let over_level = input.fill == Fill::Level
+            && group_used[g] > 0
+            && (group_used[g] + cost / 2) as f64 > share;
+        if over_level
+            || used + used_due + cost > capacity_s
+            || new.iter().any(|&b| seconds[b as usize] > per_counter)
+        {
+            continue;
+        }
+        group_used[g] += cost;
+        used_due += cost;
+        for b in new {
+            on_list[b as usize] = true;
+            chosen.push(Chosen {
+                bin: b,
+                reason: if it.dead {
+                    Reason::DeadStock
+                } else {
+                    Reason::Due
+                },
+                class: Some(it.class),
+                detail: if o.never_counted {
+                    "never counted".into()
+                } else {
+                    format!(
+                        "{} working days since last count (every {})",
+                        o.days, o.interval
+                    )
+                },
+                seconds: seconds[b as usize],
+            });
+        }
+    }
+
+    // Two walks: the triggered bins, then the rest, each cut into contiguous
+    // runs so every counter does its urgent bins first. While the longest run
+    // is over one counter's minutes, drop the least urgent task (the last
+    // chosen) and cut again.
+    let runs = input.capacity.counters as usize;
+    let mut tasks: Vec<Task> = loop {
+        let (urgent, rest): (Vec<usize>, Vec<usize>) =
+            (0..chosen.len()).partition(|&i| chosen[i].reason.is_triggered());
+        let mut offsets = vec![0i64; runs];
+        let mut cut = Vec::with_capacity(chosen.len());
+        for pass in [urgent, rest] {
+            let places: Vec<Place> = pass
+                .iter()
+                .map(|&i| input.bins[chosen[i].bin as usize].place)
+                .collect();
+            let order: Vec<usize> = walk_order(&places).into_iter().map(|k| pass[k]).collect();
+            let times: Vec<i64> = order.iter().map(|&i| chosen[i].seconds).collect();
+            let ranges = split(&times, &offsets);
+            for (run, range) in ranges.iter().enumerate() {
+                offsets[run] += times[range.clone()].iter().sum::<i64>();
+                cut.extend(range.clone().map(|pos| (order[pos], run)));
+            }
+        }
+        if offsets.iter().all(|&o| o <= per_counter) {
+            break cut
+                .into_iter()
+                .map(|(i, run)| {
+                    let c = &chosen[i];
+                    Task {
+                        bin: c.bin,
+                        reason: c.reason,
+                        class: c.class,
+                        detail: c.detail.clone(),
+                        lines: input.bins[c.bin as usize].lines,
+                        seconds: c.seconds,
+                        seq: 0,
+                        run: run as u32 + 1,
+                    }
+                })
+                .collect();
+        }
+        let dropped = chosen.pop().expect("an empty list always fits");
+        if dropped.reason.is_triggered() {
+            warnings.push(format!(
+                "triggered count of bin {} ({}: {}) does not fit in one counter's minutes and is not on the list",
+                input.bins[dropped.bin as usize].code,
+                dropped.reason.as_str(),
+                dropped.detail
+            ));
+        }
+    };
+    // Each counter's tasks in the order they are done: its urgent stretch, then its walk.
+    tasks.sort_by_key(|t| (t.run, !t.reason.is_triggered()));
+    let mut final_on = vec![false; input.bins.len()];
+    for (i, t) in tasks.iter_mut().enumerate() {
+        t.seq = i as u32 + 1;
+        final_on[t.bin as usize] = true;
+    }
+    let planned = due
+        .iter()
+        .filter(|(_, it)| it.bins.iter().all(|&b| final_on[b as usize]))
+        .count();
+    Plan {
+        day: input.day,
+        tasks,
+        capacity: input.capacity,
+        level_s,
+        intervals,
+        due_items: due.len(),
+        due_items_planned: planned,
+        warnings,
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use proptest::prelude::*;
+
+    fn site(
+        n_bins: usize,
+        triggers: &[(u32, TriggerKind)],
+        counters: u32,
+        minutes: u32,
+    ) -> PlanInput {
+        let bins = (0..n_bins)
+            .map(|i| BinFacts {
+                id: i as i64 + 1,
+                code: format!("A-{:02}-{:02}-1", 1 + i / 10, 1 + i % 10),
+                zone: "A".into(),
+                place: Place {
+                    zone_seq: 0,
+                    zone: 1,
+                    aisle: 1 + (i / 10) as u16,
+                    bay: 1 + (i % 10) as u16,
+                    level: 1,
+                    side: 0,
+                    walk_seq: 0,
+                },
+                lines: 1 + (i % 3) as u32,
+                last_count: None,
+            })
+            .collect();
+        let items = (0..n_bins)
+            .map(|i| ItemFacts {
+                id: i as i64 + 1,
+                class: Class::ALL[i % 3],
+                dead: false,
+                bins: vec![i as u32],
+            })
+            .collect();
+        PlanInput {
+            day: NaiveDate::from_ymd_opt(2026, 3, 2).unwrap(),
+            calendar: Calendar::default(),
+            settings: Settings::default(),
+            bins,
+            items,
+            triggers: triggers
+                .iter()
+                .map(|&(bin, kind)| Trigger {
+                    bin,
+                    kind,
+                    detail: "x".into(),
+                })
+                .collect(),
+            zone_time: HashMap::new(),
+            capacity: Capacity { counters, minutes },
+            fill: Fill::Capacity,
+            counting_since: None,
+            watermark: 0,
+        }
+    }
+
+    #[test]
+    fn never_counted_items_are_due_and_a_comes_before_c_on_ties() {
+        let mut input = site(30, &[], 1, 5);
+        input.fill = Fill::Capacity;
+        let plan = build(&input);
+        // 5 minutes hold two bins of 150 s or fewer: the A items (every third bin) go first.
+        assert!(!plan.tasks.is_empty());
+        assert!(
+            plan.tasks.iter().all(|t| t.class == Some(Class::A)),
+            "{:?}",
+            plan.tasks
+        );
+        assert_eq!(plan.due_items, 30);
+    }
+
+    #[test]
+    fn a_triggered_bin_that_does_not_fit_is_named_in_a_warning() {
+        let input = site(
+            4,
+            &[
+                (0, TriggerKind::NegativeBalance),
+                (3, TriggerKind::ShortPick),
+            ],
+            1,
+            3,
+        );
+        let plan = build(&input);
+        assert_eq!(plan.tasks.len(), 1);
+        assert_eq!(
+            plan.tasks[0].reason,
+            Reason::Triggered(TriggerKind::NegativeBalance)
+        );
+        assert_eq!(plan.warnings.len(), 1);
+        assert!(
+            plan.warnings[0].contains("A-01-04-1"),
+            "{:?}",
+            plan.warnings
+        );
+    }
+
+    proptest! {
+        #[test]
+        fn triggered_tasks_lead_every_run_and_none_vanishes_without_a_warning(
+            n in 1usize..60,
+            raw in prop::collection::vec((0u32..60, 0usize..4), 0..30),
+            counters in 1u32..5,
+            minutes in 1u32..30,
+            level in any::<bool>(),
+        ) {
+            let trig: Vec<(u32, TriggerKind)> = raw
+                .iter()
+                .map(|&(b, k)| (b % n as u32, TriggerKind::ALL[k]))
+                .collect();
+            let mut input = site(n, &trig, counters, minutes);
+            if level { input.fill = Fill::Level; }
+            let plan = build(&input);
+            // Every bin at most once, within capacity, runs within one counter's minutes.
+            let mut bins: Vec<u32> = plan.tasks.iter().map(|t| t.bin).collect();
+            bins.sort_unstable();
+            let len = bins.len();
+            bins.dedup();
+            prop_assert_eq!(bins.len(), len);
+            prop_assert!(plan.run_seconds().iter().all(|&s| s <= input.capacity.per_counter_s()));
+            // In each run, no due task comes before a triggered one.
+            for run in 1..=counters {
+                let reasons: Vec<bool> = plan.tasks.iter().filter(|t| t.run == run).map(|t| t.reason.is_triggered()).collect();
+                prop_assert!(reasons.windows(2).all(|w| w[0] || !w[1]), "run {run}: {reasons:?}");
+            }
+            // A due task is on the list only if every triggered bin is on it too.
+            let triggered_off: Vec<u32> = trig.iter().map(|t| t.0).filter(|b| !plan.tasks.iter().any(|t| t.bin == *b)).collect();
+            for b in &triggered_off {
+                let code = &input.bins[*b as usize].code;
+                prop_assert!(plan.warnings.iter().any(|w| w.contains(code.as_str())), "bin {code} dropped silently");
+            }
+            // Each pass is walked in order and cut into contiguous runs.
+            for pass in [true, false] {
+                let seq: Vec<&Task> = plan.tasks.iter().filter(|t| t.reason.is_triggered() == pass).collect();
+                let places: Vec<Place> = seq.iter().map(|t| input.bins[t.bin as usize].place).collect();
+                prop_assert_eq!(walk_order(&places), (0..places.len()).collect::<Vec<_>>());
+                prop_assert!(seq.windows(2).all(|w| w[0].run <= w[1].run));
+            }
+        }
+    }
+}

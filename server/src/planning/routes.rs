@@ -1,0 +1,347 @@
+//! HTTP routes of the day's count list, relative to `/api/v1/sites/{site}`:
+//! settings and calendar, ABC runs and class history, short-pick reports,
+//! and building, reading and adjusting a day's list.
+
+use super::calendar::{Calendar, MAX_HOLIDAYS};
+use super::plan::{Capacity, Fill};
+use super::short_pick::{ShortPickOutcome, ShortPickRecord};
+use super::{AbcSummary, ClassChange, ListView, Settings, service};
+use crate::AppState;
+use crate::error::ApiError;
+use crate::http::access::{
+    Access, BOOK_READERS, BOOK_WRITERS, COUNT_POLICY, LIST_KEEPERS, RouteTable,
+};
+use crate::http::extract::{CurrentSite, JsonRows, Params};
+use crate::master::codes::Sku;
+use axum::Json;
+use axum::extract::{Path, State};
+use axum::http::header;
+use axum::response::{IntoResponse, Response};
+use chrono::NaiveDate;
+use serde::{Deserialize, Serialize};
+
+/// Adds the planning routes. Settings and the calendar are policy; lists are
+/// kept by supervisors; anything that shows usage value or book lines is book data.
+pub fn routes(t: &mut RouteTable) {
+    macro_rules! path {
+        ($tail:literal) => {
+            concat!("/api/v1/sites/{site}", $tail)
+        };
+    }
+    t.get(
+        path!("/planning/settings"),
+        Access::Site(BOOK_READERS),
+        get_settings,
+    )
+    .put(
+        path!("/planning/settings"),
+        Access::Site(COUNT_POLICY),
+        put_settings,
+    )
+    .get(
+        path!("/planning/calendar"),
+        Access::Site(BOOK_READERS),
+        get_calendar,
+    )
+    .put(
+        path!("/planning/calendar"),
+        Access::Site(LIST_KEEPERS),
+        put_calendar,
+    )
+    .get(path!("/planning/abc"), Access::Site(BOOK_READERS), get_abc)
+    .post(path!("/planning/abc"), Access::Site(COUNT_POLICY), run_abc)
+    .get(
+        path!("/items/{sku}/classes"),
+        Access::Site(BOOK_READERS),
+        class_history,
+    )
+    .post(
+        path!("/short-picks"),
+        Access::Site(BOOK_WRITERS),
+        post_short_picks,
+    )
+    .post(
+        path!("/count-lists"),
+        Access::Site(LIST_KEEPERS),
+        build_list,
+    )
+    .get(
+        path!("/count-lists/{day}"),
+        Access::Site(BOOK_READERS),
+        get_list,
+    )
+    .post(
+        path!("/count-lists/{day}/tasks/{task}/move"),
+        Access::Site(LIST_KEEPERS),
+        move_task,
+    )
+    .put(
+        path!("/count-lists/{day}/runs/{run}"),
+        Access::Site(LIST_KEEPERS),
+        hold_run,
+    );
+}
+
+/// Source recorded for short-pick reports that name none.
+const API_SOURCE: &str = "api";
+/// Longest name a run's holder may have.
+const MAX_HOLDER_CHARS: usize = 64;
+
+fn parse_day(text: &str) -> Result<NaiveDate, ApiError> {
+    NaiveDate::parse_from_str(text.trim(), "%Y-%m-%d").map_err(|_| {
+        ApiError::BadRequest(format!(
+            "'{text}' is not a date: use YYYY-MM-DD, e.g. 2026-03-02"
+        ))
+    })
+}
+
+fn body<T: serde::de::DeserializeOwned>(bytes: &[u8]) -> Result<T, ApiError> {
+    let de = &mut serde_json::Deserializer::from_slice(bytes);
+    serde_path_to_error::deserialize(de).map_err(|e| {
+        let path = e.path().to_string();
+        ApiError::BadRequest(format!("{path}: {}", e.into_inner()))
+    })
+}
+
+async fn get_settings(
+    State(state): State<AppState>,
+    CurrentSite(site): CurrentSite,
+) -> Result<Json<Settings>, ApiError> {
+    Ok(Json(state.store.planning_settings(site.id).await?))
+}
+
+async fn put_settings(
+    State(state): State<AppState>,
+    CurrentSite(site): CurrentSite,
+    bytes: axum::body::Bytes,
+) -> Result<Json<Settings>, ApiError> {
+    let s: Settings = body(&bytes)?;
+    s.check().map_err(ApiError::BadRequest)?;
+    state.store.put_planning_settings(site.id, s).await?;
+    Ok(Json(s))
+}
+
+#[derive(Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+struct CalendarBody {
+    working_weekdays: Vec<String>,
+    #[serde(default)]
+    holidays: Vec<String>,
+}
+
+impl From<&Calendar> for CalendarBody {
+    fn from(c: &Calendar) -> Self {
+        Self {
+            working_weekdays: c.weekday_names(),
+            holidays: c.holidays.iter().map(|d| d.to_string()).collect(),
+        }
+    }
+}
+
+async fn get_calendar(
+    State(state): State<AppState>,
+    CurrentSite(site): CurrentSite,
+) -> Result<Json<CalendarBody>, ApiError> {
+    Ok(Json(CalendarBody::from(
+        &state.store.calendar(site.id).await?,
+    )))
+}
+
+async fn put_calendar(
+    State(state): State<AppState>,
+    CurrentSite(site): CurrentSite,
+    bytes: axum::body::Bytes,
+) -> Result<Json<CalendarBody>, ApiError> {
+    let b: CalendarBody = body(&bytes)?;
+    if b.holidays.len() > MAX_HOLIDAYS {
+        return Err(ApiError::TooLarge(format!(
+            "at most {MAX_HOLIDAYS} holidays"
+        )));
+    }
+    let calendar = Calendar {
+        working_weekdays: Calendar::weekdays_from_names(&b.working_weekdays)
+            .map_err(|e| ApiError::BadRequest(format!("working_weekdays: {e}")))?,
+        holidays: b
+            .holidays
+            .iter()
+            .map(|d| parse_day(d))
+            .collect::<Result<_, _>>()?,
+    };
+    state.store.put_calendar(site.id, calendar.clone()).await?;
+    Ok(Json(CalendarBody::from(&calendar)))
+}
+
+#[derive(Deserialize)]
+#[serde(deny_unknown_fields)]
+struct AbcParams {
+    day: Option<String>,
+}
+
+async fn run_abc(
+    State(state): State<AppState>,
+    CurrentSite(site): CurrentSite,
+    Params(p): Params<AbcParams>,
+) -> Result<Json<AbcSummary>, ApiError> {
+    let day = match p.day {
+        Some(d) => parse_day(&d)?,
+        None => chrono::Utc::now().date_naive(),
+    };
+    Ok(Json(
+        service::classify(state.store.as_ref(), &site, day).await?,
+    ))
+}
+
+async fn get_abc(
+    State(state): State<AppState>,
+    CurrentSite(site): CurrentSite,
+) -> Result<Json<AbcSummary>, ApiError> {
+    state
+        .store
+        .latest_abc(site.id)
+        .await?
+        .map(Json)
+        .ok_or_else(|| {
+            ApiError::NotFound("this site has not been classified yet: POST to run it".into())
+        })
+}
+
+async fn class_history(
+    State(state): State<AppState>,
+    CurrentSite(site): CurrentSite,
+    Path((_, sku)): Path<(String, String)>,
+) -> Result<Json<Vec<ClassChange>>, ApiError> {
+    let sku = Sku::parse(&sku).map_err(|e| ApiError::BadRequest(e.to_string()))?;
+    Ok(Json(state.store.class_history(site.id, sku).await?))
+}
+
+async fn post_short_picks(
+    State(state): State<AppState>,
+    CurrentSite(site): CurrentSite,
+    rows: JsonRows,
+) -> Result<Json<ShortPickOutcome>, ApiError> {
+    let rows = rows.validated(|r: ShortPickRecord| r.validate(API_SOURCE))?;
+    Ok(Json(state.store.record_short_picks(site.id, rows).await?))
+}
+
+#[derive(Deserialize)]
+#[serde(deny_unknown_fields)]
+struct BuildBody {
+    day: String,
+    counters: u32,
+    minutes: u32,
+    #[serde(default)]
+    fill: Fill,
+    /// Build and show without storing.
+    #[serde(default)]
+    preview: bool,
+    /// Replace a list already stored for the day (refused once it has started).
+    #[serde(default)]
+    replace: bool,
+}
+
+async fn build_list(
+    State(state): State<AppState>,
+    CurrentSite(site): CurrentSite,
+    bytes: axum::body::Bytes,
+) -> Result<Json<ListView>, ApiError> {
+    let b: BuildBody = body(&bytes)?;
+    let day = parse_day(&b.day)?;
+    let capacity = Capacity {
+        counters: b.counters,
+        minutes: b.minutes,
+    };
+    service::check_capacity(capacity).map_err(ApiError::BadRequest)?;
+    let store = state.store.as_ref();
+    if b.preview {
+        let (input, plan) = service::preview(store, &site, day, capacity, b.fill).await?;
+        return Ok(Json(service::view(&input, &plan)));
+    }
+    Ok(Json(
+        service::build(store, &site, day, capacity, b.fill, b.replace).await?,
+    ))
+}
+
+#[derive(Deserialize)]
+#[serde(deny_unknown_fields)]
+struct ListParams {
+    format: Option<String>,
+}
+
+async fn get_list(
+    State(state): State<AppState>,
+    CurrentSite(site): CurrentSite,
+    Path((_, day)): Path<(String, String)>,
+    Params(p): Params<ListParams>,
+) -> Result<Response, ApiError> {
+    let day = parse_day(&day)?;
+    let list = state
+        .store
+        .count_list(site.id, day)
+        .await?
+        .ok_or_else(|| ApiError::NotFound(format!("no count list for {day}")))?;
+    match p.format.as_deref() {
+        None | Some("json") => Ok(Json(list).into_response()),
+        Some("csv") => {
+            let csv = service::to_csv(&list).map_err(anyhow::Error::from)?;
+            Ok(([(header::CONTENT_TYPE, "text/csv; charset=utf-8")], csv).into_response())
+        }
+        Some(other) => Err(ApiError::BadRequest(format!(
+            "format '{other}' is not json or csv"
+        ))),
+    }
+}
+
+#[derive(Deserialize)]
+#[serde(deny_unknown_fields)]
+struct MoveBody {
+    run: u32,
+}
+
+async fn move_task(
+    State(state): State<AppState>,
+    CurrentSite(site): CurrentSite,
+    Path((_, day, task)): Path<(String, String, i64)>,
+    bytes: axum::body::Bytes,
+) -> Result<Json<ListView>, ApiError> {
+    let day = parse_day(&day)?;
+    let b: MoveBody = body(&bytes)?;
+    state.store.move_task(site.id, day, task, b.run).await?;
+    stored(&state, &site, day).await
+}
+
+#[derive(Deserialize)]
+#[serde(deny_unknown_fields)]
+struct HoldBody {
+    holder: String,
+}
+
+async fn hold_run(
+    State(state): State<AppState>,
+    CurrentSite(site): CurrentSite,
+    Path((_, day, run)): Path<(String, String, u32)>,
+    bytes: axum::body::Bytes,
+) -> Result<Json<ListView>, ApiError> {
+    let day = parse_day(&day)?;
+    let b: HoldBody = body(&bytes)?;
+    let holder = b.holder.trim().to_string();
+    if holder.chars().count() > MAX_HOLDER_CHARS || holder.chars().any(char::is_control) {
+        return Err(ApiError::BadRequest(format!(
+            "holder: at most {MAX_HOLDER_CHARS} printable characters"
+        )));
+    }
+    state.store.hold_run(site.id, day, run, holder).await?;
+    stored(&state, &site, day).await
+}
+
+async fn stored(
+    state: &AppState,
+    site: &crate::master::Site,
+    day: NaiveDate,
+) -> Result<Json<ListView>, ApiError> {
+    state
+        .store
+        .count_list(site.id, day)
+        .await?
+        .map(Json)
+        .ok_or_else(|| ApiError::NotFound(format!("no count list for {day}")))
+}

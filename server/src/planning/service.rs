@@ -1,0 +1,278 @@
+//! Joins the planning arithmetic to the store: classify a site, build a day's
+//! list (preview or stored), and show it as text, CSV or JSON.
+
+use super::abc;
+use super::plan::{self, Capacity, Fill, Plan, PlanInput};
+use super::{
+    AbcSummary, ListView, MAX_COUNTERS, MAX_MINUTES, NewCountList, NewTask, Summary, TaskView,
+};
+use crate::master::Site;
+use crate::store::{Store, StoreError};
+use crate::time::Timestamp;
+use chrono::{Days, NaiveDate, Utc};
+use std::fmt::Write as _;
+use std::sync::Arc;
+
+/// Milliseconds in a day.
+const DAY_MS: i64 = 86_400_000;
+
+/// Classifies a site's items from issues in the window ending with `day`.
+pub async fn classify(
+    store: &dyn Store,
+    site: &Site,
+    day: NaiveDate,
+) -> Result<AbcSummary, StoreError> {
+    let settings = store.planning_settings(site.id).await?;
+    let to = crate::store::sqlite::planning::day_start_ms(day) + DAY_MS;
+    let from = to - i64::from(settings.abc.window_days) * DAY_MS;
+    let usage = store
+        .abc_usage(site.id, Timestamp(from), Timestamp(to))
+        .await?;
+    let classes = abc::classify(&usage, &settings.abc);
+    store
+        .record_classes(site.id, day, settings.abc, classes)
+        .await
+}
+
+/// Checks the supervisor's capacity.
+pub fn check_capacity(c: Capacity) -> Result<(), String> {
+    if c.counters == 0 || c.counters > MAX_COUNTERS {
+        return Err(format!("counters must be 1 to {MAX_COUNTERS}"));
+    }
+    if c.minutes == 0 || c.minutes > MAX_MINUTES {
+        return Err(format!("minutes must be 1 to {MAX_MINUTES} per counter"));
+    }
+    Ok(())
+}
+
+/// Builds a day's list without storing it; classifies the site first if it never was.
+pub async fn preview(
+    store: &dyn Store,
+    site: &Site,
+    day: NaiveDate,
+    capacity: Capacity,
+    fill: Fill,
+) -> Result<(PlanInput, Plan), StoreError> {
+    if store.latest_abc(site.id).await?.is_none() {
+        classify(store, site, day).await?;
+    }
+    let input = store.plan_input(site.id, day, capacity, fill).await?;
+    let plan = plan::build(&input);
+    Ok((input, plan))
+}
+
+/// Builds and stores a day's list, and returns it as stored.
+pub async fn build(
+    store: &dyn Store,
+    site: &Site,
+    day: NaiveDate,
+    capacity: Capacity,
+    fill: Fill,
+    replace: bool,
+) -> Result<ListView, StoreError> {
+    let (input, plan) = preview(store, site, day, capacity, fill).await?;
+    let list = NewCountList {
+        day,
+        counters: capacity.counters,
+        minutes: capacity.minutes,
+        level_s: plan.level_s,
+        warnings: plan.warnings.clone(),
+        watermark: input.watermark,
+        replace,
+        tasks: plan
+            .tasks
+            .iter()
+            .map(|t| NewTask {
+                bin_id: input.bins[t.bin as usize].id,
+                seq: t.seq,
+                run: t.run,
+                reason: t.reason,
+                class: t.class,
+                detail: t.detail.clone(),
+                lines: t.lines,
+                est_s: t.seconds,
+            })
+            .collect(),
+    };
+    store.save_count_list(site.id, list).await?;
+    store
+        .count_list(site.id, day)
+        .await?
+        .ok_or_else(|| anyhow::anyhow!("the list for {day} was stored but cannot be read").into())
+}
+
+/// Shows an unstored plan the way a stored list is shown.
+pub fn view(input: &PlanInput, plan: &Plan) -> ListView {
+    let tasks = plan
+        .tasks
+        .iter()
+        .map(|t| {
+            let b = &input.bins[t.bin as usize];
+            TaskView {
+                id: None,
+                seq: t.seq,
+                run: t.run,
+                bin: b.code.clone(),
+                zone: b.zone.clone(),
+                aisle: b.place.aisle,
+                bay: b.place.bay,
+                level: b.place.level,
+                reason: t.reason.as_str().to_string(),
+                class: t.class,
+                detail: t.detail.clone(),
+                lines: t.lines,
+                est_s: t.seconds,
+                status: "open".into(),
+            }
+        })
+        .collect();
+    let mut v = ListView {
+        day: plan.day,
+        stored: false,
+        version: 0,
+        counters: plan.capacity.counters,
+        minutes: plan.capacity.minutes,
+        level_s: plan.level_s,
+        watermark: input.watermark,
+        warnings: plan.warnings.clone(),
+        runs: Vec::new(),
+        summary: Summary {
+            due_items: plan.due_items,
+            due_items_planned: plan.due_items_planned,
+            ..Summary::default()
+        },
+        tasks,
+    };
+    v.tally(&[]);
+    v
+}
+
+fn minutes(s: i64) -> String {
+    format!("{}:{:02}", s / 60, s % 60)
+}
+
+/// Writes the list as a plain table, run by run.
+pub fn to_text(v: &ListView) -> String {
+    let mut out = String::new();
+    let _ = writeln!(
+        out,
+        "Count list {} — {} task(s), {} counter(s) x {} min, level {} (m:ss)",
+        v.day,
+        v.tasks.len(),
+        v.counters,
+        v.minutes,
+        minutes(v.level_s)
+    );
+    let mut reasons: Vec<String> = v
+        .summary
+        .by_reason
+        .iter()
+        .map(|(k, n)| format!("{k} {n}"))
+        .collect();
+    reasons.extend(
+        v.summary
+            .by_class
+            .iter()
+            .map(|(k, n)| format!("class {k} {n}")),
+    );
+    let _ = writeln!(out, "{}", reasons.join(", "));
+    for w in &v.warnings {
+        let _ = writeln!(out, "warning: {w}");
+    }
+    for r in &v.runs {
+        let holder = if r.holder.is_empty() {
+            String::new()
+        } else {
+            format!(" ({})", r.holder)
+        };
+        let _ = writeln!(
+            out,
+            "\nRun {}{holder}: {} task(s), {}",
+            r.run,
+            r.tasks,
+            minutes(r.est_s)
+        );
+        for t in v.tasks.iter().filter(|t| t.run == r.run) {
+            let class = t.class.map_or("-".to_string(), |c| c.to_string());
+            let _ = writeln!(
+                out,
+                "  {:>4}  {:<14} {:<16} {:<2} {:>3} line(s) {:>6}  {}",
+                t.seq,
+                t.bin,
+                t.reason,
+                class,
+                t.lines,
+                minutes(t.est_s),
+                t.detail
+            );
+        }
+    }
+    out
+}
+
+/// Writes the list as CSV, one task a row.
+pub fn to_csv(v: &ListView) -> Result<String, csv::Error> {
+    let mut w = csv::Writer::from_writer(Vec::new());
+    w.write_record([
+        "day", "run", "seq", "bin", "zone", "aisle", "bay", "level", "reason", "class", "lines",
+        "est_s", "status", "detail",
+    ])?;
+    for t in &v.tasks {
+        w.write_record([
+            v.day.to_string(),
+            t.run.to_string(),
+            t.seq.to_string(),
+            t.bin.clone(),
+            t.zone.clone(),
+            t.aisle.to_string(),
+            t.bay.to_string(),
+            t.level.to_string(),
+            t.reason.clone(),
+            t.class.map(|c| c.to_string()).unwrap_or_default(),
+            t.lines.to_string(),
+            t.est_s.to_string(),
+            t.status.clone(),
+            t.detail.clone(),
+        ])?;
+    }
+    let bytes = w.into_inner().map_err(|e| e.into_error())?;
+    Ok(String::from_utf8(bytes).expect("the CSV writer writes the UTF-8 it was given"))
+}
+
+/// Hour (UTC) at which the nightly classification runs.
+pub const NIGHTLY_HOUR_UTC: u32 = 2;
+
+/// Re-classifies every site once a night, logging failures; runs until the process ends.
+pub async fn nightly_classification(store: Arc<dyn Store>) {
+    loop {
+        let now = Utc::now();
+        let today = now.date_naive();
+        let at = today
+            .and_hms_opt(NIGHTLY_HOUR_UTC, 0, 0)
+            .expect("the hour is a valid constant")
+            .and_utc();
+        let next = if at > now {
+            at
+        } else {
+            at.checked_add_days(Days::new(1)).unwrap_or(at)
+        };
+        let wait = (next - now).to_std().unwrap_or_default();
+        tokio::time::sleep(wait).await;
+        let day = Utc::now().date_naive();
+        match store.sites().await {
+            Ok(sites) => {
+                for site in sites {
+                    match classify(store.as_ref(), &site, day).await {
+                        Ok(s) => {
+                            tracing::info!(site = %site.code, changed = s.changed, "nightly ABC classification")
+                        }
+                        Err(e) => {
+                            tracing::error!(site = %site.code, error = ?e, "nightly ABC classification failed")
+                        }
+                    }
+                }
+            }
+            Err(e) => tracing::error!(error = ?e, "nightly ABC classification cannot list sites"),
+        }
+    }
+}
