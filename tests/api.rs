@@ -306,3 +306,55 @@ async fn concurrent_batches_all_land_without_busy_errors() {
     let (_, now) = app.get("/api/v1/sites/T/balances?sku=S1").await;
     assert_eq!(now["balances"][0]["qty"], 8 * 5 * 50);
 }
+
+#[tokio::test]
+async fn a_batch_and_its_audit_row_commit_together() {
+    let app = spawn_app().await;
+    app.small_site().await;
+    let site = app
+        .state
+        .store
+        .site(&cairn::master::SiteCode::parse("T").unwrap())
+        .await
+        .unwrap()
+        .unwrap();
+    let batches = |rows: &[cairn::accounts::audit::AuditRow]| {
+        rows.iter()
+            .filter(|r| r.subject == "movements")
+            .map(|r| r.detail.clone())
+            .collect::<Vec<_>>()
+    };
+    let refused = json!([movement(
+        "a1",
+        "Q-09-09-9",
+        "S1",
+        1,
+        "receipt",
+        "2026-03-02T08:00:00Z"
+    )]);
+    let (s, _) = app.post("/api/v1/sites/T/movements", &refused).await;
+    assert_eq!(s, 422);
+    let rows = app.state.store.audit_events(site.id, 100).await.unwrap();
+    assert!(
+        batches(&rows).is_empty(),
+        "a refused batch leaves no audit row"
+    );
+    let good = json!([movement(
+        "a2",
+        "A-01-01-1",
+        "S1",
+        3,
+        "receipt",
+        "2026-03-02T08:00:00Z"
+    )]);
+    let (s, _) = app.post("/api/v1/sites/T/movements", &good).await;
+    assert_eq!(s, 200);
+    let rows = app.state.store.audit_events(site.id, 100).await.unwrap();
+    let details = batches(&rows);
+    assert_eq!(details.len(), 1, "{details:?}");
+    let d: serde_json::Value = serde_json::from_str(&details[0]).unwrap();
+    assert_eq!(
+        (d["recorded"].as_u64(), d["already_recorded"].as_u64()),
+        (Some(1), Some(0))
+    );
+}

@@ -333,18 +333,10 @@ async fn dispatch(command: Command) -> anyhow::Result<()> {
         } => {
             let state = open(db)?;
             let site = site_of(state.store.as_ref(), &site).await?;
-            match import_csv(state.store.as_ref(), &site, kind, &path, true).await {
+            let audit = AuditEvent::now(Actor::Cli, Action::Import, path.display().to_string())
+                .at_site(site.id);
+            match import_csv(state.store.as_ref(), &site, kind, &path, true, Some(audit)).await {
                 Ok(s) => {
-                    let audit =
-                        AuditEvent::now(Actor::Cli, Action::Import, path.display().to_string())
-                            .at_site(site.id)
-                            .detail(serde_json::json!({
-                                "kind": format!("{kind:?}").to_lowercase(),
-                                "rows": s.rows,
-                                "written": s.written,
-                                "already_recorded": s.already_recorded,
-                            }));
-                    state.store.record_audit(audit).await?;
                     println!(
                         "{}: {} rows read, {} written, {} already recorded",
                         path.display(),

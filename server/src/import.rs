@@ -2,6 +2,7 @@
 //! anything is written, the whole file is written in one transaction, and each
 //! error names its line and column.
 
+use crate::accounts::audit::AuditEvent;
 use crate::batch::{Collector, FieldError, RowError};
 use crate::ledger::MovementRecord;
 use crate::master::{BinRecord, ItemRecord, PackRecord, Site};
@@ -28,6 +29,18 @@ pub enum ImportKind {
     Bins,
     Packs,
     Movements,
+}
+
+impl ImportKind {
+    /// Returns the kind's name as the command line spells it.
+    pub fn as_str(self) -> &'static str {
+        match self {
+            ImportKind::Items => "items",
+            ImportKind::Bins => "bins",
+            ImportKind::Packs => "packs",
+            ImportKind::Movements => "movements",
+        }
+    }
 }
 
 /// One refused line of a CSV file.
@@ -213,15 +226,22 @@ where
     })
 }
 
-/// Imports one CSV file into a site: all rows or none.
+/// Imports one CSV file into a site: all rows or none, with its `audit` event (if any)
+/// written in the same transaction.
 pub async fn import_csv(
     store: &dyn Store,
     site: &Site,
     kind: ImportKind,
     path: &Path,
     show: bool,
+    audit: Option<AuditEvent>,
 ) -> Result<ImportSummary, ImportError> {
     let id = site.id;
+    let audit = |rows: usize| {
+        audit
+            .clone()
+            .map(|a| a.detail(serde_json::json!({"kind": kind.as_str(), "rows": rows})))
+    };
     let done = |rows: usize, written: usize, already_recorded: usize| ImportSummary {
         rows,
         written,
@@ -231,19 +251,28 @@ pub async fn import_csv(
         ImportKind::Items => {
             let p = parse(path, show, ItemRecord::validate)?;
             let n = p.rows.len();
-            let w = write(show, n, &p.lines, |pr| store.put_items(id, p.rows, pr)).await?;
+            let w = write(show, n, &p.lines, |pr| {
+                store.put_items(id, p.rows, pr, audit(n))
+            })
+            .await?;
             Ok(done(n, w, 0))
         }
         ImportKind::Bins => {
             let p = parse(path, show, BinRecord::validate)?;
             let n = p.rows.len();
-            let w = write(show, n, &p.lines, |pr| store.put_bins(id, p.rows, pr)).await?;
+            let w = write(show, n, &p.lines, |pr| {
+                store.put_bins(id, p.rows, pr, audit(n))
+            })
+            .await?;
             Ok(done(n, w, 0))
         }
         ImportKind::Packs => {
             let p = parse(path, show, PackRecord::validate)?;
             let n = p.rows.len();
-            let w = write(show, n, &p.lines, |pr| store.put_packs(id, p.rows, pr)).await?;
+            let w = write(show, n, &p.lines, |pr| {
+                store.put_packs(id, p.rows, pr, audit(n))
+            })
+            .await?;
             Ok(done(n, w, 0))
         }
         ImportKind::Movements => {
@@ -253,7 +282,7 @@ pub async fn import_csv(
             })?;
             let n = p.rows.len();
             let o = write(show, n, &p.lines, |pr| {
-                store.record_movements(id, p.rows, pr)
+                store.record_movements(id, p.rows, pr, audit(n))
             })
             .await?;
             Ok(done(n, o.recorded, o.already_recorded))

@@ -295,17 +295,18 @@ pub async fn generate(
     let bins = bins(spec);
     let (items, packs) = items(spec, &mut rng, &bins);
     store
-        .put_bins(site.id, bins.clone(), Progress::default())
+        .put_bins(site.id, bins.clone(), Progress::default(), None)
         .await?;
     store
         .put_items(
             site.id,
             items.iter().map(|d| d.item.clone()).collect(),
             Progress::default(),
+            None,
         )
         .await?;
     store
-        .put_packs(site.id, packs.clone(), Progress::default())
+        .put_packs(site.id, packs.clone(), Progress::default(), None)
         .await?;
 
     let pb = if show {
@@ -331,7 +332,12 @@ pub async fn generate(
         if buffer.len() >= FLUSH_ROWS || day + 1 == spec.days {
             summary.movements += buffer.len();
             store
-                .record_movements(site.id, std::mem::take(&mut buffer), Progress::default())
+                .record_movements(
+                    site.id,
+                    std::mem::take(&mut buffer),
+                    Progress::default(),
+                    None,
+                )
                 .await?;
             pb.set_message(format!("{} movements", summary.movements));
         }

@@ -51,15 +51,10 @@ async fn post_movements(
 ) -> Result<Json<RecordOutcome>, ApiError> {
     let now = Timestamp::now();
     let rows = rows.validated(|r: MovementRecord| r.validate(now, API_SOURCE))?;
+    let audit = audit::api_batch(&p, site.id, "movements", json!({}));
     let outcome = state
         .store
-        .record_movements(site.id, rows, Progress::default())
-        .await?;
-    let detail =
-        json!({"recorded": outcome.recorded, "already_recorded": outcome.already_recorded});
-    state
-        .store
-        .record_audit(audit::api_batch(&p, site.id, "movements", detail))
+        .record_movements(site.id, rows, Progress::default(), Some(audit))
         .await?;
     Ok(Json(outcome))
 }

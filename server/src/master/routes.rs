@@ -75,18 +75,10 @@ async fn post_bins(
     rows: JsonRows,
 ) -> Result<Json<Written>, ApiError> {
     let rows = rows.validated(BinRecord::validate)?;
+    let audit = audit::api_batch(&p, site.id, "bins", json!({}));
     let written = state
         .store
-        .put_bins(site.id, rows, Progress::default())
-        .await?;
-    state
-        .store
-        .record_audit(audit::api_batch(
-            &p,
-            site.id,
-            "bins",
-            json!({"written": written}),
-        ))
+        .put_bins(site.id, rows, Progress::default(), Some(audit))
         .await?;
     Ok(Json(Written { written }))
 }
@@ -98,18 +90,10 @@ async fn post_items(
     rows: JsonRows,
 ) -> Result<Json<Written>, ApiError> {
     let rows = rows.validated(ItemRecord::validate)?;
+    let audit = audit::api_batch(&p, site.id, "items", json!({}));
     let written = state
         .store
-        .put_items(site.id, rows, Progress::default())
-        .await?;
-    state
-        .store
-        .record_audit(audit::api_batch(
-            &p,
-            site.id,
-            "items",
-            json!({"written": written}),
-        ))
+        .put_items(site.id, rows, Progress::default(), Some(audit))
         .await?;
     Ok(Json(Written { written }))
 }
@@ -121,18 +105,10 @@ async fn post_packs(
     rows: JsonRows,
 ) -> Result<Json<Written>, ApiError> {
     let rows = rows.validated(PackRecord::validate)?;
+    let audit = audit::api_batch(&p, site.id, "packs", json!({}));
     let written = state
         .store
-        .put_packs(site.id, rows, Progress::default())
-        .await?;
-    state
-        .store
-        .record_audit(audit::api_batch(
-            &p,
-            site.id,
-            "packs",
-            json!({"written": written}),
-        ))
+        .put_packs(site.id, rows, Progress::default(), Some(audit))
         .await?;
     Ok(Json(Written { written }))
 }

@@ -4,6 +4,7 @@
 
 pub mod sqlite;
 
+use crate::accounts::audit::AuditEvent;
 use crate::accounts::store::AccountStore;
 use crate::batch::RowError;
 use crate::ledger::{BalanceRow, Movement, NewMovement, RecordOutcome};
@@ -140,11 +141,13 @@ pub trait Store: AccountStore + Send + Sync + 'static {
     /// Lists a site's bins (of one zone, if given) in zone, aisle, bay, level order.
     async fn bins(&self, site: SiteId, zone: Option<ZoneCode>) -> Result<Vec<Bin>, StoreError>;
     /// Creates or updates bins (by code), creating zones as needed. All or nothing.
+    /// A batch's `audit` event (if any) is written in the same transaction, with its counts.
     async fn put_bins(
         &self,
         site: SiteId,
         rows: Vec<NewBin>,
         progress: Progress,
+        audit: Option<AuditEvent>,
     ) -> Result<usize, StoreError>;
     /// Creates or updates items (by SKU). All or nothing.
     async fn put_items(
@@ -152,6 +155,7 @@ pub trait Store: AccountStore + Send + Sync + 'static {
         site: SiteId,
         rows: Vec<NewItem>,
         progress: Progress,
+        audit: Option<AuditEvent>,
     ) -> Result<usize, StoreError>;
     /// Creates or updates packs (by GTIN). All or nothing.
     async fn put_packs(
@@ -159,6 +163,7 @@ pub trait Store: AccountStore + Send + Sync + 'static {
         site: SiteId,
         rows: Vec<NewPack>,
         progress: Progress,
+        audit: Option<AuditEvent>,
     ) -> Result<usize, StoreError>;
     /// Appends movements, idempotent by sender id. All or nothing.
     async fn record_movements(
@@ -166,6 +171,7 @@ pub trait Store: AccountStore + Send + Sync + 'static {
         site: SiteId,
         rows: Vec<NewMovement>,
         progress: Progress,
+        audit: Option<AuditEvent>,
     ) -> Result<RecordOutcome, StoreError>;
     /// Reads balances now or as of an instant.
     async fn balances(&self, site: SiteId, query: BalanceQuery) -> Result<BalancePage, StoreError>;

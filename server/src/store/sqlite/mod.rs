@@ -11,6 +11,7 @@ pub mod pool;
 use super::{
     BalancePage, BalanceQuery, HistoryPage, HistoryQuery, Progress, ShelfRow, Store, StoreError,
 };
+use crate::accounts::audit::AuditEvent;
 use crate::ledger::{NewMovement, RecordOutcome};
 use crate::master::codes::Sku;
 use crate::master::codes::ZoneCode;
@@ -130,6 +131,23 @@ impl SqliteStore {
     }
 }
 
+/// Writes a batch's audit event in the batch's own transaction, with the counts
+/// it wrote added to the event's detail, so the two commit or vanish together.
+fn audit_in(
+    tx: &rusqlite::Transaction<'_>,
+    audit: Option<AuditEvent>,
+    counts: serde_json::Value,
+) -> Result<(), StoreError> {
+    let Some(mut event) = audit else {
+        return Ok(());
+    };
+    match (&mut event.detail, counts) {
+        (serde_json::Value::Object(d), serde_json::Value::Object(c)) => d.extend(c),
+        (d, c) => *d = c,
+    }
+    accounts::insert_audit(tx, &event)
+}
+
 #[async_trait]
 impl Store for SqliteStore {
     async fn ping(&self) -> Result<(), StoreError> {
@@ -183,9 +201,14 @@ impl Store for SqliteStore {
         site: SiteId,
         rows: Vec<NewBin>,
         progress: Progress,
+        audit: Option<AuditEvent>,
     ) -> Result<usize, StoreError> {
-        self.write_tx(move |tx| master::put_bins(tx, site, &rows, &progress))
-            .await
+        self.write_tx(move |tx| {
+            let written = master::put_bins(tx, site, &rows, &progress)?;
+            audit_in(tx, audit, serde_json::json!({"written": written}))?;
+            Ok(written)
+        })
+        .await
     }
 
     async fn put_items(
@@ -193,9 +216,14 @@ impl Store for SqliteStore {
         site: SiteId,
         rows: Vec<NewItem>,
         progress: Progress,
+        audit: Option<AuditEvent>,
     ) -> Result<usize, StoreError> {
-        self.write_tx(move |tx| master::put_items(tx, site, &rows, &progress))
-            .await
+        self.write_tx(move |tx| {
+            let written = master::put_items(tx, site, &rows, &progress)?;
+            audit_in(tx, audit, serde_json::json!({"written": written}))?;
+            Ok(written)
+        })
+        .await
     }
 
     async fn put_packs(
@@ -203,9 +231,14 @@ impl Store for SqliteStore {
         site: SiteId,
         rows: Vec<NewPack>,
         progress: Progress,
+        audit: Option<AuditEvent>,
     ) -> Result<usize, StoreError> {
-        self.write_tx(move |tx| master::put_packs(tx, site, &rows, &progress))
-            .await
+        self.write_tx(move |tx| {
+            let written = master::put_packs(tx, site, &rows, &progress)?;
+            audit_in(tx, audit, serde_json::json!({"written": written}))?;
+            Ok(written)
+        })
+        .await
     }
 
     async fn record_movements(
@@ -213,10 +246,18 @@ impl Store for SqliteStore {
         site: SiteId,
         rows: Vec<NewMovement>,
         progress: Progress,
+        audit: Option<AuditEvent>,
     ) -> Result<RecordOutcome, StoreError> {
         let every = self.opts.snapshot_every;
         self.write_tx(move |tx| {
-            ledger::insert_movements(tx, site, &rows, Timestamp::now(), every, &progress)
+            let outcome =
+                ledger::insert_movements(tx, site, &rows, Timestamp::now(), every, &progress)?;
+            let counts = serde_json::json!({
+                "recorded": outcome.recorded,
+                "already_recorded": outcome.already_recorded,
+            });
+            audit_in(tx, audit, counts)?;
+            Ok(outcome)
         })
         .await
     }
