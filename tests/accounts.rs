@@ -165,6 +165,35 @@ async fn too_many_failures_from_one_address_block_every_account_from_it() {
 }
 
 #[tokio::test]
+async fn an_admin_lifts_an_address_lock_and_sign_ins_from_it_work_again() {
+    let app = spawn_app().await;
+    app.small_site().await;
+    app.add_user("other", "T", &[Role::Admin], PASSWORD, None)
+        .await;
+    let other = app.sign_in("other", PASSWORD).await;
+    for i in 0..MAX_ADDRESS_FAILURES {
+        app.try_sign_in(&format!("guess{i}"), "wrong password here")
+            .await;
+    }
+    assert_eq!(app.try_sign_in(ROOT_USER, ROOT_PASSWORD).await.status, 429);
+    let admin = Auth::Session(other.clone());
+    let lift = |address: &'static str| {
+        app.send(
+            Method::POST,
+            "/sites/T/admin/unlock-address",
+            &admin,
+            form(&[("csrf", &other.csrf), ("address", address)]),
+        )
+    };
+    let a = lift("not an address").await;
+    assert_eq!(a.status, 400, "{}", a.text);
+    assert_eq!(app.try_sign_in(ROOT_USER, ROOT_PASSWORD).await.status, 429);
+    let a = lift("127.0.0.1").await;
+    assert_eq!(a.status, 303, "{}", a.text);
+    assert_eq!(app.try_sign_in(ROOT_USER, ROOT_PASSWORD).await.status, 303);
+}
+
+#[tokio::test]
 async fn a_phone_enrols_with_a_pin_and_a_revoked_token_is_refused_at_once() {
     let app = spawn_app().await;
     app.small_site().await;

@@ -31,6 +31,7 @@ pub fn routes(t: &mut RouteTable) {
         .post("/sites/{site}/admin/users", admin, create_user)
         .post("/sites/{site}/admin/roles", admin, set_roles)
         .post("/sites/{site}/admin/unlock", admin, unlock)
+        .post("/sites/{site}/admin/unlock-address", admin, unlock_address)
         .get("/sites/{site}/admin/devices", admin, devices_page)
         .post(
             "/sites/{site}/admin/devices/{device}/revoke",
@@ -252,6 +253,39 @@ async fn unlock(
     state
         .store
         .unlock_account(throttle::account_key(name.as_str()), audit)
+        .await?;
+    Ok(back_to(&site, "users"))
+}
+
+/// Longest client address accepted (an IPv6 address with zone fits well inside).
+const MAX_ADDRESS_CHARS: usize = 64;
+
+async fn unlock_address(
+    State(state): State<AppState>,
+    CurrentUser(p): CurrentUser,
+    CurrentSite(site): CurrentSite,
+    ClientAddress(address): ClientAddress,
+    Form(fields): Form<Fields>,
+) -> Result<Response, ApiError> {
+    let typed = field(&fields, "address").trim();
+    let ip = (typed.len() <= MAX_ADDRESS_CHARS)
+        .then(|| typed.parse::<std::net::IpAddr>().ok())
+        .flatten();
+    let Some(ip) = ip else {
+        let m = format!("'{typed}' is not an IP address, e.g. 192.0.2.10 or 2001:db8::7");
+        return render_users(&state, &p, site, StatusCode::BAD_REQUEST, m).await;
+    };
+    let target = ip.to_string();
+    let audit = AuditEvent::now(
+        p.actor(),
+        Action::AccountUnlocked,
+        format!("address {target}"),
+    )
+    .at_site(site.id)
+    .from_address(&address);
+    state
+        .store
+        .unlock_account(throttle::address_key(&target), audit)
         .await?;
     Ok(back_to(&site, "users"))
 }
