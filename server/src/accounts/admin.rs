@@ -247,14 +247,24 @@ async fn unlock(
         Ok(n) => n,
         Err(m) => return render_users(&state, &p, site, StatusCode::BAD_REQUEST, m).await,
     };
-    let audit = AuditEvent::now(p.actor(), Action::AccountUnlocked, name.as_str())
+    let key = throttle::account_key(name.as_str());
+    lift_lock(&state, &p, &site, &address, key, name.as_str()).await
+}
+
+/// Clears the sign-in failures behind one throttling key and audits who did it.
+async fn lift_lock(
+    state: &AppState,
+    p: &Principal,
+    site: &Site,
+    address: &str,
+    key: String,
+    subject: &str,
+) -> Result<Response, ApiError> {
+    let audit = AuditEvent::now(p.actor(), Action::AccountUnlocked, subject)
         .at_site(site.id)
-        .from_address(&address);
-    state
-        .store
-        .unlock_account(throttle::account_key(name.as_str()), audit)
-        .await?;
-    Ok(back_to(&site, "users"))
+        .from_address(address);
+    state.store.unlock_account(key, audit).await?;
+    Ok(back_to(site, "users"))
 }
 
 /// Longest client address accepted (an IPv6 address with zone fits well inside).
@@ -276,18 +286,16 @@ async fn unlock_address(
         return render_users(&state, &p, site, StatusCode::BAD_REQUEST, m).await;
     };
     let target = ip.to_string();
-    let audit = AuditEvent::now(
-        p.actor(),
-        Action::AccountUnlocked,
-        format!("address {target}"),
+    let key = throttle::address_key(&target);
+    lift_lock(
+        &state,
+        &p,
+        &site,
+        &address,
+        key,
+        &format!("address {target}"),
     )
-    .at_site(site.id)
-    .from_address(&address);
-    state
-        .store
-        .unlock_account(throttle::address_key(&target), audit)
-        .await?;
-    Ok(back_to(&site, "users"))
+    .await
 }
 
 #[derive(Template)]
