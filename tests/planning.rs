@@ -495,3 +495,90 @@ async fn a_classification_run_is_summarised_and_kept_in_each_items_history() {
         (Some(1), Some(1))
     );
 }
+
+#[tokio::test]
+async fn a_counter_downloads_their_run_with_labels_and_items_but_no_book_quantities() {
+    let app = spawn_app().await;
+    site_with_triggers(&app).await;
+    let (s, list) = app
+        .post(
+            "/api/v1/sites/T/count-lists",
+            &build("2026-03-03", 1, 60, json!({})),
+        )
+        .await;
+    assert_eq!(s, 200, "{list}");
+    for (user, pin) in [("cora", "4821"), ("dan", "5932")] {
+        app.add_user(
+            user,
+            "T",
+            &[cairn::accounts::Role::Counter],
+            "test-only-password",
+            Some(pin),
+        )
+        .await;
+    }
+    let held = app
+        .with_token(app.client.put(format!(
+            "{}/api/v1/sites/T/count-lists/2026-03-03/runs/1",
+            app.base
+        )))
+        .json(&json!({"holder": "cora"}))
+        .send()
+        .await
+        .unwrap();
+    assert_eq!(held.status(), 200);
+    let phone = |user: &'static str, pin: &'static str| {
+        let app = &app;
+        async move {
+            let token = app.enrol(user, pin, "T").await.json()["token"]
+                .as_str()
+                .unwrap()
+                .to_string();
+            let r = app
+                .client
+                .get(format!(
+                    "{}/api/v1/sites/T/my-tasks?day=2026-03-03",
+                    app.base
+                ))
+                .bearer_auth(token)
+                .send()
+                .await
+                .unwrap();
+            assert_eq!(r.status(), 200);
+            r.json::<serde_json::Value>().await.unwrap()
+        }
+    };
+    let mine = phone("cora", "4821").await;
+    assert_eq!(mine["run"], 1);
+    let (_, stored) = app.get("/api/v1/sites/T/count-lists/2026-03-03").await;
+    assert_eq!(
+        mine["version"], stored["version"],
+        "the phone can tell a stale copy"
+    );
+    let tasks = mine["tasks"].as_array().unwrap();
+    assert_eq!(tasks.len(), 2, "{mine}");
+    assert_eq!(tasks[0]["bin"], "A-01-01-1");
+    let label = tasks[0]["label"].as_str().unwrap();
+    assert!(
+        cairn_scan::BinLabel::parse(label).is_ok(),
+        "{label} is a valid bin label"
+    );
+    assert_eq!(tasks[0]["items"][0]["sku"], "S1");
+    assert_eq!(tasks[0]["items"][0]["description"], "Hex bolt M8");
+    assert!(
+        tasks.iter().all(|t| t["kind"] == "count"),
+        "no trigger reason reaches the phone"
+    );
+    let text = mine.to_string();
+    for word in ["qty", "balance", "lines", "reason", "negative", "short"] {
+        assert!(
+            !text.contains(word),
+            "'{word}' must not reach a counter: {text}"
+        );
+    }
+    let other = phone("dan", "5932").await;
+    assert!(
+        other["run"].is_null() && other["tasks"].as_array().unwrap().is_empty(),
+        "{other}"
+    );
+}

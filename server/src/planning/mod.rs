@@ -8,6 +8,7 @@ pub mod abc;
 pub mod calendar;
 pub mod due;
 pub mod estimate;
+pub mod phone;
 pub mod plan;
 pub mod routes;
 pub mod service;

@@ -3,13 +3,15 @@
 //! and building, reading and adjusting a day's list.
 
 use super::calendar::{Calendar, MAX_HOLIDAYS};
+use super::phone;
 use super::plan::{Capacity, Fill};
 use super::short_pick::{ShortPickOutcome, ShortPickRecord};
 use super::{AbcSummary, ClassChange, ListView, Settings, service};
 use crate::AppState;
+use crate::accounts::Role;
 use crate::error::ApiError;
 use crate::http::access::{
-    Access, BOOK_READERS, BOOK_WRITERS, COUNT_POLICY, LIST_KEEPERS, RouteTable,
+    Access, BOOK_READERS, BOOK_WRITERS, COUNT_POLICY, CurrentUser, LIST_KEEPERS, RouteTable,
 };
 use crate::http::extract::{CurrentSite, JsonRows, Params};
 use crate::master::codes::Sku;
@@ -79,7 +81,8 @@ pub fn routes(t: &mut RouteTable) {
         path!("/count-lists/{day}/runs/{run}"),
         Access::Site(LIST_KEEPERS),
         hold_run,
-    );
+    )
+    .get(path!("/my-tasks"), Access::Site(&[Role::Counter]), my_tasks);
 }
 
 /// Source recorded for short-pick reports that name none.
@@ -265,6 +268,45 @@ async fn build_list(
 #[serde(deny_unknown_fields)]
 struct ListParams {
     format: Option<String>,
+}
+
+#[derive(Deserialize)]
+#[serde(deny_unknown_fields)]
+struct MyTasksParams {
+    day: Option<String>,
+}
+
+/// The signed-in counter's run of the day's list, without book quantities.
+async fn my_tasks(
+    State(state): State<AppState>,
+    CurrentUser(p): CurrentUser,
+    CurrentSite(site): CurrentSite,
+    Params(q): Params<MyTasksParams>,
+) -> Result<Json<phone::PhoneList>, ApiError> {
+    let day = match q.day {
+        Some(d) => parse_day(&d)?,
+        None => chrono::Utc::now().date_naive(),
+    };
+    let list = state.store.count_list(site.id, day).await?.ok_or_else(|| {
+        ApiError::NotFound(format!("no count list for {day} yet: ask your supervisor"))
+    })?;
+    let holder = p.user.name.as_str().to_string();
+    let bins = list
+        .runs
+        .iter()
+        .find(|r| r.holder == holder)
+        .map(|r| {
+            list.tasks
+                .iter()
+                .filter(|t| t.run == r.run)
+                .map(|t| t.bin.clone())
+                .collect()
+        })
+        .unwrap_or_default();
+    let contents = state.store.bin_contents(site.id, bins).await?;
+    Ok(Json(phone::for_counter(
+        &list, &holder, &site.code, &contents,
+    )))
 }
 
 async fn get_list(

@@ -252,6 +252,13 @@ pub trait Store: AccountStore + Send + Sync + 'static {
         run: u32,
         holder: String,
     ) -> Result<(), StoreError>;
+    /// Lists what each named bin should hold (items with a non-zero balance and
+    /// their packs), without quantities: what a counter may be told.
+    async fn bin_contents(
+        &self,
+        site: SiteId,
+        bins: Vec<String>,
+    ) -> Result<std::collections::HashMap<String, Vec<crate::planning::phone::ItemBrief>>, StoreError>;
     /// Marks a task done and its bin counted whole.
     async fn finish_task(&self, site: SiteId, task: i64, at: Timestamp) -> Result<(), StoreError>;
 }

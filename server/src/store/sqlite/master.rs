@@ -5,6 +5,7 @@ use crate::master::codes::{BinCode, ZoneCode};
 use crate::master::{
     Bin, NewBin, NewItem, NewPack, NewSite, Side, Site, SiteCode, SiteCounts, SiteId,
 };
+use crate::planning::phone::{ItemBrief, PackBrief};
 use crate::store::{Progress, ShelfRow, StoreError};
 use crate::time::Timestamp;
 use rusqlite::{Connection, OptionalExtension, Transaction, params};
@@ -122,6 +123,58 @@ pub fn bins(
             side: Side::from_stored(&side),
             walk_seq,
         });
+    }
+    Ok(out)
+}
+
+/// Lists, per named bin, the items with a non-zero balance there and their packs
+/// (no quantities: this is what a blind counter may be told).
+pub fn bin_contents(
+    conn: &Connection,
+    site: SiteId,
+    bins: &[String],
+) -> Result<HashMap<String, Vec<ItemBrief>>, StoreError> {
+    let mut items = conn.prepare_cached(
+        "select distinct i.id, i.sku, i.description, i.base_unit, i.lot_tracked
+         from bin b join balance k on k.bin_id = b.id join item i on i.id = k.item_id
+         where b.site_id = ?1 and b.code = ?2 and k.qty <> 0
+         order by i.sku",
+    )?;
+    let mut packs = conn
+        .prepare_cached("select gtin, level, units from pack where item_id = ?1 order by units")?;
+    let mut out = HashMap::new();
+    for bin in bins {
+        let rows = items
+            .query_map(params![site.0, bin], |r| {
+                Ok((
+                    r.get::<_, i64>(0)?,
+                    r.get(1)?,
+                    r.get(2)?,
+                    r.get(3)?,
+                    r.get(4)?,
+                ))
+            })?
+            .collect::<rusqlite::Result<Vec<(i64, String, String, String, bool)>>>()?;
+        let mut briefs = Vec::with_capacity(rows.len());
+        for (id, sku, description, base_unit, lot_tracked) in rows {
+            let packs = packs
+                .query_map([id], |r| {
+                    Ok(PackBrief {
+                        gtin: r.get(0)?,
+                        level: r.get(1)?,
+                        units: r.get(2)?,
+                    })
+                })?
+                .collect::<rusqlite::Result<Vec<_>>>()?;
+            briefs.push(ItemBrief {
+                sku,
+                description,
+                base_unit,
+                lot_tracked,
+                packs,
+            });
+        }
+        out.insert(bin.clone(), briefs);
     }
     Ok(out)
 }

@@ -190,6 +190,17 @@ impl Store for SqliteStore {
             .await
     }
 
+    async fn bin_contents(
+        &self,
+        site: SiteId,
+        bins: Vec<String>,
+    ) -> Result<std::collections::HashMap<String, Vec<crate::planning::phone::ItemBrief>>, StoreError>
+    {
+        self.readers
+            .run(move |c| master::bin_contents(c, site, &bins))
+            .await
+    }
+
     async fn bins(&self, site: SiteId, zone: Option<ZoneCode>) -> Result<Vec<Bin>, StoreError> {
         self.readers
             .run(move |c| master::bins(c, site, zone.as_ref()))

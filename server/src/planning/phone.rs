@@ -1,0 +1,111 @@
+//! The counter's view of the day's list, as the phone downloads it: their own
+//! run in walking order, each bin with its scannable label and the items the
+//! bin should hold — never a book quantity, and no trigger reason that hints at
+//! one. The list's version lets the phone tell when its copy is stale.
+
+use super::ListView;
+use crate::master::SiteCode;
+use crate::master::codes::BinCode;
+use serde::Serialize;
+use std::collections::HashMap;
+
+/// An item the counter may meet in a bin: what it is and how it is packed.
+#[derive(Debug, Clone, PartialEq, Eq, Serialize)]
+pub struct ItemBrief {
+    pub sku: String,
+    pub description: String,
+    pub base_unit: String,
+    pub lot_tracked: bool,
+    /// GTIN-14 and units of each pack level, so a case scan adds its units.
+    pub packs: Vec<PackBrief>,
+}
+
+/// One pack of an item.
+#[derive(Debug, Clone, PartialEq, Eq, Serialize)]
+pub struct PackBrief {
+    pub gtin: String,
+    pub level: String,
+    pub units: u32,
+}
+
+/// One bin to count.
+#[derive(Debug, Clone, PartialEq, Eq, Serialize)]
+pub struct PhoneTask {
+    pub id: Option<i64>,
+    pub seq: u32,
+    pub bin: String,
+    /// The text of the bin's label, so the phone can check the scanned label.
+    pub label: String,
+    pub zone: String,
+    pub aisle: u16,
+    pub bay: u16,
+    pub level: u8,
+    /// `count` or `recount` (a recount must not learn why).
+    pub kind: &'static str,
+    pub done: bool,
+    pub items: Vec<ItemBrief>,
+}
+
+/// The counter's part of the day's list.
+#[derive(Debug, Clone, Serialize)]
+pub struct PhoneList {
+    pub day: chrono::NaiveDate,
+    pub version: i64,
+    /// The run this counter holds, if any.
+    pub run: Option<u32>,
+    pub tasks: Vec<PhoneTask>,
+}
+
+/// Picks the counter's run out of the day's list and strips it to what a blind count may see.
+pub fn for_counter(
+    list: &ListView,
+    holder: &str,
+    site: &SiteCode,
+    contents: &HashMap<String, Vec<ItemBrief>>,
+) -> PhoneList {
+    let run = list.runs.iter().find(|r| r.holder == holder).map(|r| r.run);
+    let tasks = list
+        .tasks
+        .iter()
+        .filter(|t| Some(t.run) == run)
+        .map(|t| {
+            let label = BinCode::parse(&t.bin)
+                .ok()
+                .and_then(|_| {
+                    cairn_scan::BinLabel::encode(
+                        site.as_str(),
+                        &t.zone,
+                        &format!("{:02}", t.aisle),
+                        &format!("{:02}", t.bay),
+                        &t.level.to_string(),
+                    )
+                    .ok()
+                })
+                .map(|l| l.text().to_string())
+                .unwrap_or_default();
+            PhoneTask {
+                id: t.id,
+                seq: t.seq,
+                bin: t.bin.clone(),
+                label,
+                zone: t.zone.clone(),
+                aisle: t.aisle,
+                bay: t.bay,
+                level: t.level,
+                kind: if t.reason == "recount" {
+                    "recount"
+                } else {
+                    "count"
+                },
+                done: t.status == "done",
+                items: contents.get(&t.bin).cloned().unwrap_or_default(),
+            }
+        })
+        .collect();
+    PhoneList {
+        day: list.day,
+        version: list.version,
+        run,
+        tasks,
+    }
+}
