@@ -6,7 +6,9 @@ mod common;
 use cairn::accounts::Role;
 use cairn::accounts::UserName;
 use cairn::accounts::throttle::{LOCKED_TEXT, MAX_ACCOUNT_FAILURES, MAX_ADDRESS_FAILURES};
-use common::{Auth, Body, ROOT_PASSWORD, ROOT_USER, TestApp, movement, spawn_app};
+use common::{
+    Auth, Body, ROOT_PASSWORD, ROOT_USER, TestApp, cairn_with_input, movement, spawn_app,
+};
 use reqwest::Method;
 use serde_json::json;
 
@@ -411,25 +413,6 @@ async fn the_audit_trail_records_who_did_what_and_refuses_update_and_delete() {
         .to_string();
     assert!(delete.contains("append-only"), "{delete}");
     assert!(count(&app, "select count(*) from audit_event") >= 3);
-}
-
-fn cairn_with_input(args: &[&str], input: &str) -> std::process::Output {
-    use std::io::Write as _;
-    use std::process::{Command, Stdio};
-    let mut child = Command::new(env!("CARGO_BIN_EXE_cairn"))
-        .args(args)
-        .stdin(Stdio::piped())
-        .stdout(Stdio::piped())
-        .stderr(Stdio::piped())
-        .spawn()
-        .expect("the cairn binary runs");
-    child
-        .stdin
-        .take()
-        .unwrap()
-        .write_all(input.as_bytes())
-        .unwrap();
-    child.wait_with_output().unwrap()
 }
 
 #[tokio::test]

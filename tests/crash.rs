@@ -2,6 +2,9 @@
 //! batches: after a restart every acknowledged id is present exactly once,
 //! balances equal the sum of movements, and the file passes integrity_check.
 
+mod common;
+
+use common::cairn_with_input;
 use serde_json::{Value, json};
 use std::io::{BufRead, BufReader};
 use std::path::Path;
@@ -43,25 +46,6 @@ fn serve(db: &str) -> (Child, String) {
         .trim_end_matches('/')
         .to_string();
     (child, url)
-}
-
-/// Runs `cairn` with `input` on standard input.
-fn cairn_with_input(args: &[&str], input: &str) -> std::process::Output {
-    use std::io::Write as _;
-    let mut child = Command::new(env!("CARGO_BIN_EXE_cairn"))
-        .args(args)
-        .stdin(Stdio::piped())
-        .stdout(Stdio::piped())
-        .stderr(Stdio::piped())
-        .spawn()
-        .expect("the cairn binary runs");
-    child
-        .stdin
-        .take()
-        .unwrap()
-        .write_all(input.as_bytes())
-        .unwrap();
-    child.wait_with_output().unwrap()
 }
 
 /// Makes the host system's user and its integration token through the CLI.

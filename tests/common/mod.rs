@@ -373,3 +373,23 @@ impl TestApp {
 pub fn movement(id: &str, bin: &str, sku: &str, qty: i64, kind: &str, at: &str) -> Value {
     json!({"id": id, "bin": bin, "sku": sku, "qty": qty, "kind": kind, "event_at": at})
 }
+
+/// Runs the real `cairn` binary with `input` on standard input.
+pub fn cairn_with_input(args: &[&str], input: &str) -> std::process::Output {
+    use std::io::Write as _;
+    use std::process::{Command, Stdio};
+    let mut child = Command::new(env!("CARGO_BIN_EXE_cairn"))
+        .args(args)
+        .stdin(Stdio::piped())
+        .stdout(Stdio::piped())
+        .stderr(Stdio::piped())
+        .spawn()
+        .expect("the cairn binary runs");
+    child
+        .stdin
+        .take()
+        .expect("stdin was piped")
+        .write_all(input.as_bytes())
+        .expect("the child reads its stdin");
+    child.wait_with_output().expect("the child exits")
+}
