@@ -9,13 +9,36 @@ import { createInterface } from "node:readline";
 import { chromium } from "playwright-core";
 
 export const ROOT = join(dirname(fileURLToPath(import.meta.url)), "..", "..");
-const BIN = process.env.CAIRN_BIN ?? join(ROOT, "target", "debug", "cairn");
+export const BIN = process.env.CAIRN_BIN ?? join(ROOT, "target", "debug", "cairn");
 
-/** Starts `cairn serve` on 127.0.0.1:0 over a new database with site T; returns {url, stop}. */
-export async function startServer() {
+/** The counter the phone suites sign in as (test-only secrets). */
+export const COUNTER = { user: "esme", pin: "2468", display: "Esme Tulloch" };
+const ADMIN = { user: "ada", password: "test-only-password-ada" };
+
+/** Runs the cairn binary with `input` on standard input; returns its standard output. */
+function cairn(args, input = "") {
+  return execFileSync(BIN, args, { input, encoding: "utf8" });
+}
+
+/**
+ * Starts `cairn serve` on 127.0.0.1:0 over a new database with site T; returns
+ * {url, db, stop}. With `site: true` the site also gets a counter with a PIN and an
+ * admin's integration token (`token`), made through the CLI.
+ */
+export async function startServer({ site = false } = {}) {
   const dir = mkdtempSync(join(tmpdir(), "cairn-browser-"));
   const db = join(dir, "t.db");
-  execFileSync(BIN, ["site", "add", "--db", db, "--code", "T", "--name", "Browser test"]);
+  cairn(["site", "add", "--db", db, "--code", "T", "--name", "Browser test"]);
+  let token = null;
+  if (site) {
+    cairn(["user", "add", "--db", db, "--site", "T", "--name", ADMIN.user,
+      "--roles", "admin,supervisor,inventory_manager", "--password-stdin"], `${ADMIN.password}\n`);
+    cairn(["user", "add", "--db", db, "--site", "T", "--name", COUNTER.user,
+      "--display-name", COUNTER.display, "--roles", "counter", "--with-pin", "--password-stdin"],
+      `test-only-password-esme\n${COUNTER.pin}\n`);
+    token = cairn(["user", "token", "--db", db, "--site", "T", "--name", ADMIN.user,
+      "--role", "admin", "--label", "browser tests"]).trim().split(/\s+/).pop();
+  }
   const child = spawn(BIN, ["serve", "--db", db, "--listen", "127.0.0.1:0"], { stdio: ["ignore", "pipe", "inherit"] });
   const line = await new Promise((resolve, reject) => {
     const rl = createInterface({ input: child.stdout });
@@ -23,8 +46,26 @@ export async function startServer() {
     child.once("exit", (code) => reject(new Error(`cairn serve exited with ${code}`)));
   });
   const url = line.split(" at ")[1].trim().replace(/\/$/, "");
+  const api = async (method, path, body) => {
+    const r = await fetch(`${url}${path}`, {
+      method,
+      headers: { authorization: `Bearer ${token}`, "content-type": "application/json" },
+      body: body === undefined ? undefined : JSON.stringify(body),
+    });
+    const text = await r.text();
+    if (!r.ok) throw new Error(`${method} ${path}: ${r.status} ${text}`);
+    return text ? JSON.parse(text) : null;
+  };
   return {
     url,
+    db,
+    token,
+    api,
+    /** Runs one SQL query on the server's database file with the sqlite3 CLI; returns rows. */
+    sql(query) {
+      const out = execFileSync("sqlite3", ["-json", `file:${db}?mode=ro`, query], { encoding: "utf8" });
+      return out.trim() ? JSON.parse(out) : [];
+    },
     stop() {
       child.kill("SIGTERM");
       rmSync(dir, { recursive: true, force: true });
@@ -32,23 +73,79 @@ export async function startServer() {
   };
 }
 
-/** Launches headless Chromium with the flags that work on this machine. */
-export async function launch(extraArgs = []) {
-  const userDataDir = mkdtempSync(join(tmpdir(), "cairn-chromium-"));
-  const context = await chromium.launchPersistentContext(userDataDir, {
+/** Adds the GS1 mod-10 check digit to a GTIN body (GS1 General Specifications §7.9.1). */
+export function gtin(body) {
+  const digits = [...body].map(Number).reverse();
+  const sum = digits.reduce((s, d, i) => s + d * (i % 2 === 0 ? 3 : 1), 0);
+  return body + String((10 - (sum % 10)) % 10);
+}
+
+/** The test site's items: an each and a case GTIN per item (invented data). */
+export const ITEMS = [
+  { sku: "KL-1001", description: "Hex bolt M8 x 40", base_unit: "each", each: gtin("0501234500010"), case: gtin("1501234500017"), units: 12, bin: "A-01-01-1" },
+  { sku: "KL-1002", description: "Flat washer M8", base_unit: "each", each: gtin("0501234500020"), case: gtin("1501234500024"), units: 50, bin: "A-01-02-1" },
+  { sku: "KL-1003", description: "Cable tie 300 mm", base_unit: "each", each: gtin("0501234500030"), case: gtin("1501234500031"), units: 100, bin: "A-01-03-1" },
+  { sku: "KL-2001", description: "Sealant cartridge", base_unit: "each", each: gtin("0501234500040"), case: gtin("1501234500048"), units: 6, bin: null, lot_tracked: true },
+];
+
+/** Today's date (UTC), as the server's my-tasks default uses it. */
+export const today = () => new Date().toISOString().slice(0, 10);
+
+/**
+ * Gives the site bins, items with each and case packs, stock in three bins, and today's
+ * count list with its one run held by the counter; returns the list.
+ */
+export async function seedSite(server) {
+  const { api } = server;
+  await api("PUT", "/api/v1/sites/T/planning/calendar",
+    { working_weekdays: ["mon", "tue", "wed", "thu", "fri", "sat", "sun"], holidays: [] });
+  await api("POST", "/api/v1/sites/T/bins", [1, 2, 3, 4].map((bay) =>
+    ({ zone: "A", aisle: 1, bay, level: 1, side: bay % 2 ? "L" : "R" })));
+  await api("POST", "/api/v1/sites/T/items", ITEMS.map((i) => ({
+    sku: i.sku, description: i.description, base_unit: i.base_unit, unit_cost_minor: 120,
+    lot_tracked: Boolean(i.lot_tracked),
+  })));
+  await api("POST", "/api/v1/sites/T/packs", ITEMS.flatMap((i) => [
+    { sku: i.sku, gtin: i.each, level: "each", units: 1 },
+    { sku: i.sku, gtin: i.case, level: "case", units: i.units },
+  ]));
+  const at = new Date(Date.now() - 3 * 86400_000).toISOString();
+  await api("POST", "/api/v1/sites/T/movements", ITEMS.filter((i) => i.bin).map((i, n) => ({
+    id: `seed-${n}`, bin: i.bin, sku: i.sku, qty: 40 + n, kind: "receipt", event_at: at,
+  })));
+  await api("POST", `/api/v1/sites/T/planning/abc?day=${today()}`, {});
+  const list = await api("POST", "/api/v1/sites/T/count-lists",
+    { day: today(), counters: 1, minutes: 480, fill: "capacity" });
+  await api("PUT", `/api/v1/sites/T/count-lists/${today()}/runs/1`, { holder: COUNTER.user });
+  return list;
+}
+
+/** Chromium's flags that work on this machine. */
+const FLAGS = [
+  "--no-sandbox", "--disable-gpu", "--disable-quic", "--no-first-run",
+  "--disable-background-networking", "--disable-component-update", "--disable-sync",
+];
+
+/**
+ * Launches headless Chromium with the flags that work on this machine, on a fresh
+ * user-data dir (or `userDataDir` to test persistence across a browser restart).
+ */
+export async function launch(extraArgs = [], { userDataDir, viewport } = {}) {
+  const fresh = !userDataDir;
+  const dir = userDataDir ?? mkdtempSync(join(tmpdir(), "cairn-chromium-"));
+  const context = await chromium.launchPersistentContext(dir, {
     executablePath: "/usr/bin/chromium",
     headless: true,
-    args: [
-      "--no-sandbox", "--disable-gpu", "--disable-quic", "--no-first-run",
-      "--disable-background-networking", "--disable-component-update", "--disable-sync",
-      ...extraArgs,
-    ],
+    viewport: viewport ?? { width: 360, height: 740 },
+    args: [...FLAGS, ...extraArgs],
   });
   return {
     context,
-    async close() {
-      await context.close();
-      rmSync(userDataDir, { recursive: true, force: true });
+    userDataDir: dir,
+    /** Closes the browser; removes its user-data dir unless `keep`. */
+    async close({ keep = false } = {}) {
+      await context.close().catch(() => {});
+      if (fresh && !keep) rmSync(dir, { recursive: true, force: true });
     },
   };
 }

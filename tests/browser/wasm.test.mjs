@@ -11,7 +11,7 @@ before(async () => {
   server = await startServer();
   browser = await launch();
   page = await browser.context.newPage();
-  await page.goto(`${server.url}/app/`);
+  await page.goto(`${server.url}/app/label-check.html`);
   await page.waitForFunction(() => document.getElementById("out").textContent === "Ready.");
 });
 

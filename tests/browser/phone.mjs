@@ -1,0 +1,37 @@
+// Helpers for the phone-app suites: sign a fresh browser in, read its outbox.
+import { COUNTER } from "./harness.mjs";
+
+/** Opens the app, signs in as the counter and acknowledges the caution screen. */
+export async function signIn(page, server) {
+  await page.goto(`${server.url}/app/`);
+  await page.waitForSelector("#signin:not([hidden])");
+  await page.fill("input[name=user]", COUNTER.user);
+  await page.fill("input[name=pin]", COUNTER.pin);
+  await page.fill("input[name=site]", "t");
+  await page.fill("input[name=device_name]", "test phone");
+  await page.click("#signin-form button");
+  await page.waitForSelector("#caution:not([hidden])");
+  await page.click("#caution-ok");
+  await page.waitForSelector("#today:not([hidden]) .task");
+}
+
+/** Waits until the service worker controls the page (so the shell is cached). */
+export async function controlled(page) {
+  await page.waitForFunction(() => navigator.serviceWorker.controller !== null, null, { timeout: 15_000 });
+}
+
+/** The number of events in the outbox, read from IndexedDB by the page. */
+export const outboxCount = (page) => page.evaluate(() => globalThis.cairnOutboxCount());
+
+/** Types `text` as a keyboard-wedge scanner does: fast keys, then Enter. */
+export async function scan(page, text, delay = 4) {
+  await page.keyboard.type(text, { delay });
+  await page.keyboard.press("Enter");
+}
+
+/** Waits for the scan message to read `pattern`; returns its state (ok, warn, error). */
+export async function message(page, pattern) {
+  await page.waitForFunction((src) => new RegExp(src).test(document.getElementById("msg").textContent),
+    pattern.source, { timeout: 10_000 });
+  return page.getAttribute("#msg", "data-state");
+}
