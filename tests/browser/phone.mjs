@@ -35,3 +35,29 @@ export async function message(page, pattern) {
     pattern.source, { timeout: 10_000 });
   return page.getAttribute("#msg", "data-state");
 }
+
+/** Every event in the outbox, read straight from IndexedDB (oldest first). */
+export function outbox(page) {
+  return page.evaluate(() => new Promise((resolve, reject) => {
+    const r = indexedDB.open("cairn-phone");
+    r.onerror = () => reject(r.error);
+    r.onsuccess = () => {
+      const all = r.result.transaction("outbox").objectStore("outbox").getAll();
+      all.onsuccess = () => { r.result.close(); resolve(all.result); };
+      all.onerror = () => reject(all.error);
+    };
+  }));
+}
+
+/** Taps the task of `bin` and scans its label; waits until the bin is open. */
+export async function openBin(page, bin, label) {
+  await page.click(`#today-list .task[data-bin="${bin}"] button`);
+  await page.waitForSelector("#bin:not([hidden])");
+  await scan(page, label);
+  await page.waitForFunction((b) => document.getElementById("bin-title").textContent === `Counting ${b}`, bin);
+}
+
+/** Waits until the open bin shows `n` lines. */
+export async function lines(page, n) {
+  await page.waitForFunction((k) => document.querySelectorAll("#lines li").length === k, n, { timeout: 20_000 });
+}

@@ -73,6 +73,12 @@ function say(text, level = "ok") {
   m.hidden = !text;
 }
 
+/** Shows (or with "" clears) a note about syncing, apart from the scan messages. */
+function note(text) {
+  $("#sync-note").textContent = text;
+  $("#sync-note").hidden = !text;
+}
+
 const clock = (ms) => new Date(ms).toLocaleTimeString([], { hour: "2-digit", minute: "2-digit" });
 const utcToday = () => new Date().toISOString().slice(0, 10);
 
@@ -201,7 +207,7 @@ async function renderSync() {
     ? `${c.offset_ms} ms ± ${c.uncertainty_ms} ms` : "not measured yet";
   $("#sync-storage").textContent = state.persist === null ? "not asked"
     : state.persist ? "kept (persistent storage granted)"
-      : "not guaranteed: the browser refused persistent storage and may clear data when space runs low — sync often";
+      : "not guaranteed (the browser refused persistent storage): sync often";
   const list = $("#problems");
   list.replaceChildren();
   const probs = await db.problems();
@@ -280,10 +286,11 @@ async function refresh() {
     if (r.status === 401) return revoked();
     const answer = await r.json();
     if (!r.ok) {
-      say(answer.error ?? `The list could not be read (${r.status}).`, "warn");
+      note(answer.error ?? `The list could not be read (${r.status}).`);
       return;
     }
     const list = { ...answer, fetched_at: Date.now() };
+    note("");
     if (state.open && state.list && list.version !== state.list.version) {
       state.pendingList = list;
       await db.set("list_pending", list);
@@ -292,7 +299,7 @@ async function refresh() {
     }
     await refreshCatalog();
   } catch {
-    say("No connection: the list on the phone is used.", "warn");
+    note("No connection: the list on the phone is used.");
   } finally {
     $("#refresh").disabled = false;
     render();
@@ -531,6 +538,7 @@ async function syncNow() {
     state.lastSync = (await db.get("last_sync")) ?? state.lastSync;
     if (outcome.state === "done") {
       state.retry = 0;
+      note("");
     } else if (outcome.state === "offline") {
       const wait = backoff(state.retry++);
       state.retryTimer = setTimeout(syncNow, wait);
@@ -538,7 +546,7 @@ async function syncNow() {
     } else if (outcome.state === "revoked") {
       revoked();
     } else {
-      say(`The server refused the outbox: ${outcome.message}. Nothing was lost; ask your supervisor.`, "error");
+      note(`The server refused the outbox: ${outcome.message}. Nothing was lost; ask your supervisor.`);
     }
   } finally {
     state.syncing = false;

@@ -83,7 +83,6 @@ export async function syncOutbox(progress = () => {}) {
       await db.set("last_sync", Date.now());
       progress(sent, total);
     }
-    await db.set("last_sync", Date.now());
     return new SyncOutcome("done", sent);
   };
   if (globalThis.navigator?.locks) {
