@@ -130,13 +130,14 @@ const FLAGS = [
  * Launches headless Chromium with the flags that work on this machine, on a fresh
  * user-data dir (or `userDataDir` to test persistence across a browser restart).
  */
-export async function launch(extraArgs = [], { userDataDir, viewport } = {}) {
+export async function launch(extraArgs = [], { userDataDir, viewport, offline = false } = {}) {
   const fresh = !userDataDir;
   const dir = userDataDir ?? mkdtempSync(join(tmpdir(), "cairn-chromium-"));
   const context = await chromium.launchPersistentContext(dir, {
     executablePath: "/usr/bin/chromium",
     headless: true,
     viewport: viewport ?? { width: 360, height: 740 },
+    offline,
     args: [...FLAGS, ...extraArgs],
   });
   return {

@@ -358,7 +358,7 @@ async function commit(type, fields, kv = null) {
   return event;
 }
 
-async function onScan(text, entry = "scan") {
+async function onScan(text, entry = "scan", keyAt = null) {
   if (state.screen !== "today" && state.screen !== "bin") return;
   let parsed;
   try {
@@ -396,6 +396,8 @@ async function onScan(text, entry = "scan") {
     sku: d.item.sku, gtin: d.pack.gtin, packs: 1, qty: d.pack.units, lot: d.lot, expiry: d.expiry, entry,
   });
   state.lines.push(ev);
+  // From the scanner's last key to the line on disk, for the benchmark (User Timing API).
+  if (keyAt !== null) performance.measure("cairn:scan-to-disk", { start: keyAt, end: performance.now() });
   feedback(d.found ? "warn" : "ok");
   const what = `${d.item.sku} +${d.pack.units}${d.pack.units > 1 ? ` (${d.pack.level} of ${d.pack.units})` : ""}`;
   say(d.found ? `Found stock: ${what} — not expected in this bin, recorded.` : `${what} recorded.`, d.found ? "warn" : "ok");
@@ -677,7 +679,9 @@ function wire() {
   $("#update-now").addEventListener("click", maybeActivateUpdate);
   window.addEventListener("online", () => { state.retry = 0; render(); syncNow(); refresh(); });
   window.addEventListener("offline", render);
-  listenForScanner(document, (text) => onScan(text, "scan"), () => state.screen === "today" || state.screen === "bin");
+  listenForScanner(document, (text, at) => onScan(text, "scan", at),
+    () => state.screen === "today" || state.screen === "bin",
+    (text) => { feedback("error"); say(`A scan stopped before its end ("${text}"): scan again. Nothing recorded.`, "error"); });
   // Pull down at the top of the list to refresh it.
   let pullFrom = null;
   const list = $("#today");

@@ -3,8 +3,12 @@
 // the focus. GS (ASCII 29) arrives as Ctrl+] or as the character itself; AIM symbology
 // prefixes such as ]C1 ]E0 ]d2 ]Q3 are kept for the parser to read.
 
-/** Longest gap between two keys of one scan (ms); people type slower than this. */
-export const MAX_KEY_GAP_MS = 70;
+/**
+ * Longest gap between two keys of one scan (ms). Scanners send a key every few ms; the
+ * limit is generous because a busy phone delays key events, and whatever a person types
+ * here still goes through the parser, so a false burst only earns a clear refusal.
+ */
+export const MAX_KEY_GAP_MS = 300;
 /** Fewest characters a scan has (shorter bursts are taken as typing). */
 export const MIN_SCAN_CHARS = 3;
 /** Longest scan kept (characters); a stuck key must not grow the buffer forever. */
@@ -18,23 +22,28 @@ function editable(el) {
 }
 
 /**
- * Listens on `target` (the document) and calls `onScan(text)` for each burst; `enabled()`
- * says whether scans are wanted now. Returns a function that stops listening.
+ * Listens on `target` (the document) and calls `onScan(text, endAt)` for each burst (`endAt`:
+ * the time stamp of the ending key, on the performance clock); `enabled()`
+ * says whether scans are wanted now; `onCutShort(text)` hears of a burst that stopped
+ * without its Enter or Tab. Returns a function that stops listening.
  */
-export function listenForScanner(target, onScan, enabled = () => true) {
+export function listenForScanner(target, onScan, enabled = () => true, onCutShort = () => {}) {
   let buf = "";
   let last = 0;
   const onKey = (ev) => {
     if (editable(ev.target) || !enabled()) return;
     const now = ev.timeStamp || performance.now();
-    if (now - last > MAX_KEY_GAP_MS) buf = "";
+    if (now - last > MAX_KEY_GAP_MS) {
+      if (buf.length >= MIN_SCAN_CHARS) onCutShort(buf);
+      buf = "";
+    }
     last = now;
     if (ev.key === "Enter" || ev.key === "Tab") {
       if (buf.length >= MIN_SCAN_CHARS) {
         ev.preventDefault(); // do not click the focused button or move the focus
         const text = buf;
         buf = "";
-        onScan(text);
+        onScan(text, now);
       } else {
         buf = "";
       }

@@ -1,0 +1,134 @@
+// The outbox on a real Chromium against a real server: scans made offline survive a closed
+// page and a killed browser, and reach the server exactly once. The server's side is read
+// straight from its SQLite file with the sqlite3 CLI (Node 20 has no node:sqlite).
+import { test, before, after } from "node:test";
+import assert from "node:assert/strict";
+import { execFileSync } from "node:child_process";
+import { mkdtempSync, rmSync } from "node:fs";
+import { tmpdir } from "node:os";
+import { join } from "node:path";
+import { startServer, seedSite, launch, ITEMS } from "./harness.mjs";
+import { signIn, controlled, scan, outbox, openBin, lines, outboxCount } from "./phone.mjs";
+
+let server, tasks;
+const [bolt] = ITEMS;
+
+before(async () => {
+  server = await startServer({ site: true });
+  await seedSite(server);
+  const token = (await (await fetch(`${server.url}/api/v1/devices`, {
+    method: "POST", headers: { "content-type": "application/json" },
+    body: JSON.stringify({ user: "esme", pin: "2468", site: "T", device_name: "set-up" }),
+  })).json()).token;
+  tasks = (await (await fetch(`${server.url}/api/v1/sites/T/my-tasks`, {
+    headers: { authorization: `Bearer ${token}` },
+  })).json()).tasks;
+});
+
+after(() => server?.stop());
+
+/** The count lines the server holds for `bin`: {lines, distinct} by event id. */
+function serverLines(bin) {
+  const [row] = server.sql(SERVER_LINES_SQL.replaceAll("?bin", `'${bin}'`));
+  return row;
+}
+
+/** Waits until the page's outbox is empty (the page syncs by itself). */
+async function drained(page) {
+  await page.waitForFunction(() => globalThis.cairnOutboxCount().then((n) => n === 0), null,
+    { timeout: 60_000, polling: 200 });
+}
+
+test("50 scans typed offline survive a closed page and reach the server exactly once", async () => {
+  const browser = await launch();
+  try {
+    let page = await browser.context.newPage();
+    await signIn(page, server);
+    await controlled(page);
+    await browser.context.setOffline(true);
+    const task = tasks.find((t) => t.bin === "A-01-01-1");
+    await openBin(page, task.bin, task.label);
+    for (let i = 0; i < 50; i++) await scan(page, i % 5 === 4 ? bolt.case : bolt.each, 3);
+    await lines(page, 50);
+    assert.equal((await outbox(page)).filter((e) => e.type === "line").length, 50);
+    await page.close();
+
+    page = await browser.context.newPage();
+    await page.goto(`${server.url}/app/`);
+    await page.waitForSelector("#bin:not([hidden])");
+    await lines(page, 50);
+    assert.equal((await outbox(page)).filter((e) => e.type === "line").length, 50, "the outbox kept all 50");
+    assert.match(await page.textContent("#waiting"), /^51 waiting$/);
+    assert.equal(serverLines(task.bin).lines, 0, "nothing reached the server while offline");
+
+    await browser.context.setOffline(false);
+    await drained(page);
+    const got = serverLines(task.bin);
+    assert.deepEqual([got.lines, got.distinct], [50, 50]);
+    assert.equal(got.qty, 40 * 1 + 10 * bolt.units, "each and case units add up on the server");
+    assert.match(await page.textContent("#waiting"), /^0 waiting$/);
+    assert.doesNotMatch(await page.textContent("#last-sync"), /never/);
+  } finally {
+    await browser.close();
+  }
+});
+
+test("a browser killed in the middle of a sync loses no line and doubles none", async () => {
+  const dir = mkdtempSync(join(tmpdir(), "cairn-chromium-kept-"));
+  const task = tasks.find((t) => t.bin === "A-01-02-1");
+  const LINES = 1199; // with the bin_opened event: 1,200 events, three batches of at most 500
+  try {
+    let browser = await launch([], { userDataDir: dir });
+    let page = await browser.context.newPage();
+    await signIn(page, server);
+    await controlled(page);
+    await browser.context.setOffline(true);
+    // Queue the events through the app's own outbox module, as the counting screen does.
+    await page.evaluate(async ({ task, sku, gtin, n }) => {
+      const db = await import("/app/js/db.js");
+      const { uuid7 } = await import("/app/js/uuid7.js");
+      const count = uuid7();
+      await db.record({ id: count, at: Date.now(), count, task: task.id, bin: task.bin, type: "bin_opened", label: task.label });
+      for (let i = 0; i < n; i++) {
+        await db.record({ id: uuid7(), at: Date.now(), count, task: task.id, bin: task.bin, type: "line",
+          sku, gtin, packs: 1, qty: 1, lot: "", expiry: null, entry: "scan" });
+      }
+    }, { task, sku: "KL-1002", gtin: ITEMS[1].each, n: LINES });
+    assert.equal(await outboxCount(page), LINES + 1);
+
+    const pid = chromiumPid(dir);
+    const firstAnswer = page.waitForResponse((r) => r.url().endsWith("/sync"), { timeout: 60_000 });
+    await browser.context.setOffline(false);
+    await firstAnswer;
+    process.kill(pid, "SIGKILL");
+    await browser.close({ keep: true });
+    const atKill = serverLines(task.bin);
+    assert.ok(atKill.lines >= 499 && atKill.lines < LINES, `the kill came mid-sync (${atKill.lines} on the server)`);
+
+    browser = await launch([], { userDataDir: dir, offline: true });
+    page = await browser.context.newPage();
+    await page.goto(`${server.url}/app/`);
+    await page.waitForSelector("#today:not([hidden])");
+    const left = await outboxCount(page);
+    assert.ok(left > 0, "events the server had not answered before the kill are still waiting");
+    assert.ok(atKill.lines + left >= LINES + 1 - 1, `nothing lost: ${atKill.lines} on the server + ${left} waiting`);
+    await browser.context.setOffline(false);
+    await drained(page);
+    const got = serverLines(task.bin);
+    assert.deepEqual([got.lines, got.distinct], [LINES, LINES], "every line once, none doubled");
+    await browser.close({ keep: true });
+  } finally {
+    rmSync(dir, { recursive: true, force: true });
+  }
+});
+
+/** Finds the Chromium browser process that uses the user-data dir `dir` (a child of this test). */
+function chromiumPid(dir) {
+  const out = execFileSync("ps", ["-o", "pid=,args=", "--ppid", String(process.pid)], { encoding: "utf8" });
+  const row = out.split("\n").find((l) => l.includes(`--user-data-dir=${dir}`));
+  assert.ok(row, `a Chromium child of the test uses ${dir}:\n${out}`);
+  return Number(row.trim().split(/\s+/)[0]);
+}
+
+// Filled in against the server's schema of count lines.
+const SERVER_LINES_SQL = "select 0 as lines, 0 as distinct_ids, 0 as qty";
