@@ -16,6 +16,7 @@ pub mod ledger;
 pub mod master;
 pub mod planning;
 pub mod store;
+pub mod sync;
 pub mod time;
 
 use config::Config;
