@@ -3,4 +3,5 @@
 //! (`buffer`), accuracy figures over count results (`metrics`) and per-item
 //! record error with its growth over time (`item_error`).
 
+pub mod buffer;
 pub mod stats;
