@@ -4,4 +4,5 @@
 //! record error with its growth over time (`item_error`).
 
 pub mod buffer;
+pub mod metrics;
 pub mod stats;
