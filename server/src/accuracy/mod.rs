@@ -4,5 +4,6 @@
 //! record error with its growth over time (`item_error`).
 
 pub mod buffer;
+pub mod item_error;
 pub mod metrics;
 pub mod stats;
