@@ -5,6 +5,7 @@
 //! the caller has already bound, so tests can bind port 0.
 
 pub mod accounts;
+pub mod accuracy;
 pub mod batch;
 pub mod cli;
 pub mod config;
