@@ -297,6 +297,13 @@ async fn dispatch(command: Command) -> anyhow::Result<()> {
             }
             let site = site_of(state.store.as_ref(), demo::DEMO_SITE).await?;
             demo::create_demo_users(state.store.as_ref(), &site).await?;
+            match demo::accounts::todays_list(state.store.as_ref(), &site).await {
+                Ok(tasks) => eprintln!(
+                    "Today's count list: {tasks} bins, runs held by {}",
+                    demo::accounts::DEMO_COUNTERS.join(" and ")
+                ),
+                Err(e) => eprintln!("Today's count list was not built: {e:#}"),
+            }
             serve(state, listen, true).await
         }
         Command::Serve(args) => {

@@ -5,6 +5,7 @@
 //! the caller has already bound, so tests can bind port 0.
 
 pub mod accounts;
+pub mod accuracy;
 pub mod batch;
 pub mod cli;
 pub mod config;
@@ -16,6 +17,7 @@ pub mod ledger;
 pub mod master;
 pub mod planning;
 pub mod store;
+pub mod sync;
 pub mod time;
 
 use config::Config;

@@ -35,6 +35,7 @@ pub mod keys;
 pub mod label_sheet;
 pub mod scan;
 pub mod symbology;
+pub mod wire;
 
 pub use bin_label::BinLabel;
 pub use check::{gtin_check_digit, mod37_2_check};

@@ -121,3 +121,33 @@ pub fn login_note() -> String {
     note.push_str("Cookies are sent without the Secure flag here: keep the demo on 127.0.0.1.");
     note
 }
+
+/// Counters who hold today's runs on the demo site, in run order.
+pub const DEMO_COUNTERS: [&str; 2] = ["esme", "farid"];
+/// Minutes each demo counter has for counting today.
+const DEMO_MINUTES: u32 = 120;
+
+/// Builds today's count list on the demo site if there is none yet, and gives its runs
+/// to the demo counters, so their phones have work the moment they sign in. Returns the
+/// number of tasks of today's list.
+pub async fn todays_list(store: &dyn Store, site: &Site) -> anyhow::Result<usize> {
+    use crate::planning::plan::{Capacity, Fill};
+    let day = chrono::Utc::now().date_naive();
+    if let Some(list) = store.count_list(site.id, day).await? {
+        return Ok(list.tasks.len());
+    }
+    let capacity = Capacity {
+        counters: DEMO_COUNTERS.len() as u32,
+        minutes: DEMO_MINUTES,
+    };
+    let list =
+        crate::planning::service::build(store, site, day, capacity, Fill::Level, false).await?;
+    for run in &list.runs {
+        if let Some(who) = DEMO_COUNTERS.get(run.run as usize - 1) {
+            store
+                .hold_run(site.id, day, run.run, (*who).to_string())
+                .await?;
+        }
+    }
+    Ok(list.tasks.len())
+}

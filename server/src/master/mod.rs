@@ -119,14 +119,31 @@ pub struct Bin {
 impl Bin {
     /// Builds the scannable label of this bin in `site`.
     pub fn label(&self, site: &SiteCode) -> Result<cairn_scan::BinLabel, cairn_scan::ScanError> {
-        cairn_scan::BinLabel::encode(
+        place_label(
             site.as_str(),
             self.zone.as_str(),
-            &format!("{:02}", self.aisle),
-            &format!("{:02}", self.bay),
-            &self.level.to_string(),
+            self.aisle,
+            self.bay,
+            self.level,
         )
     }
+}
+
+/// Builds the scannable label of a place: aisle and bay as two digits at least.
+pub fn place_label(
+    site: &str,
+    zone: &str,
+    aisle: u16,
+    bay: u16,
+    level: u8,
+) -> Result<cairn_scan::BinLabel, cairn_scan::ScanError> {
+    cairn_scan::BinLabel::encode(
+        site,
+        zone,
+        &format!("{aisle:02}"),
+        &format!("{bay:02}"),
+        &level.to_string(),
+    )
 }
 
 /// A bin row as sent (CSV columns or JSON fields).

@@ -56,6 +56,13 @@ pub struct PhoneList {
     pub tasks: Vec<PhoneTask>,
 }
 
+/// Returns the text of a bin's label (what its barcode says), if its place can be printed.
+pub fn label_text(site: &str, zone: &str, aisle: u16, bay: u16, level: u8) -> Option<String> {
+    crate::master::place_label(site, zone, aisle, bay, level)
+        .ok()
+        .map(|l| l.text().to_string())
+}
+
 /// Picks the counter's run out of the day's list and strips it to what a blind count may see.
 pub fn for_counter(
     list: &ListView,
@@ -71,17 +78,7 @@ pub fn for_counter(
         .map(|t| {
             let label = BinCode::parse(&t.bin)
                 .ok()
-                .and_then(|_| {
-                    cairn_scan::BinLabel::encode(
-                        site.as_str(),
-                        &t.zone,
-                        &format!("{:02}", t.aisle),
-                        &format!("{:02}", t.bay),
-                        &t.level.to_string(),
-                    )
-                    .ok()
-                })
-                .map(|l| l.text().to_string())
+                .and_then(|_| label_text(site.as_str(), &t.zone, t.aisle, t.bay, t.level))
                 .unwrap_or_default();
             PhoneTask {
                 id: t.id,

@@ -261,4 +261,24 @@ pub trait Store: AccountStore + Send + Sync + 'static {
     ) -> Result<std::collections::HashMap<String, Vec<crate::planning::phone::ItemBrief>>, StoreError>;
     /// Marks a task done and its bin counted whole.
     async fn finish_task(&self, site: SiteId, task: i64, at: Timestamp) -> Result<(), StoreError>;
+
+    // Phones' counts.
+
+    /// Applies a sync request in one transaction; one result per event, in order.
+    async fn apply_sync(
+        &self,
+        batch: crate::sync::SyncBatch,
+    ) -> Result<Vec<cairn_scan::wire::EventResult>, StoreError>;
+    /// Lists every item of a site with its packs (no quantities), for phones.
+    async fn catalog(
+        &self,
+        site: SiteId,
+    ) -> Result<Vec<crate::planning::phone::ItemBrief>, StoreError>;
+    /// Lists a site's count lines in arrival order, `limit` after line `after`.
+    async fn count_lines(
+        &self,
+        site: SiteId,
+        after: i64,
+        limit: usize,
+    ) -> Result<Vec<crate::store::sqlite::sync::StoredLine>, StoreError>;
 }

@@ -29,6 +29,11 @@ pub const MIGRATIONS: &[Migration] = &[
         name: "0003_planning.sql",
         sql: include_str!("../../../../migrations/0003_planning.sql"),
     },
+    Migration {
+        version: 4,
+        name: "0004_counts.sql",
+        sql: include_str!("../../../../migrations/0004_counts.sql"),
+    },
 ];
 
 /// Returns the newest schema version this binary knows.

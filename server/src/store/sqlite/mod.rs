@@ -7,6 +7,7 @@ pub mod master;
 pub mod migrate;
 pub mod planning;
 pub mod pool;
+pub mod sync;
 
 use super::{
     BalancePage, BalanceQuery, HistoryPage, HistoryQuery, Progress, ShelfRow, Store, StoreError,
@@ -410,6 +411,31 @@ impl Store for SqliteStore {
 
     async fn finish_task(&self, site: SiteId, task: i64, at: Timestamp) -> Result<(), StoreError> {
         self.write_tx(move |tx| planning::finish_task(tx, site, task, at))
+            .await
+    }
+
+    async fn apply_sync(
+        &self,
+        batch: crate::sync::SyncBatch,
+    ) -> Result<Vec<cairn_scan::wire::EventResult>, StoreError> {
+        self.write_tx(move |tx| sync::apply_sync(tx, &batch)).await
+    }
+
+    async fn catalog(
+        &self,
+        site: SiteId,
+    ) -> Result<Vec<crate::planning::phone::ItemBrief>, StoreError> {
+        self.readers.run(move |c| sync::catalog(c, site)).await
+    }
+
+    async fn count_lines(
+        &self,
+        site: SiteId,
+        after: i64,
+        limit: usize,
+    ) -> Result<Vec<sync::StoredLine>, StoreError> {
+        self.readers
+            .run(move |c| sync::count_lines(c, site, after, limit))
             .await
     }
 }

@@ -1,0 +1,39 @@
+//! Phones' counts arriving: the sync endpoint's domain. A request carries the device's
+//! clock and a batch of events (docs/phone-sync.md); each event is parsed on its own
+//! ([`event`]), its time corrected to the server's clock ([`clock`]), and the store applies
+//! the accepted ones in one transaction, idempotent by event id.
+//!
+//! Events become count passes and count lines, the input of netting. Counts are facts: a
+//! pass for a task whose run moved to another counter while the phone was offline is kept
+//! and flagged, never dropped.
+
+pub mod clock;
+pub mod event;
+pub mod routes;
+
+use crate::accounts::{DeviceId, UserId};
+use crate::master::SiteId;
+use crate::time::Timestamp;
+use cairn_scan::wire::EventResult;
+use clock::ClockSample;
+use event::Event;
+
+/// Who is sending: the signed-in counter and, from a phone, its device.
+#[derive(Debug, Clone)]
+pub struct Sender {
+    pub user: UserId,
+    /// The name a run's holder is recorded under.
+    pub user_name: String,
+    pub device: Option<DeviceId>,
+}
+
+/// One sync request, parsed: every event either read or already refused.
+#[derive(Debug, Clone)]
+pub struct SyncBatch {
+    pub site: SiteId,
+    pub site_code: String,
+    pub sender: Sender,
+    pub clock: ClockSample,
+    pub received_at: Timestamp,
+    pub events: Vec<Result<Event, EventResult>>,
+}
