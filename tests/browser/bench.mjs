@@ -73,7 +73,7 @@ try {
   const t = await page.evaluate(() => performance.getEntriesByName("cairn:scan-to-disk").map((e) => e.duration));
   console.log(`scan to disk over ${t.length} scans: median ${pct(t, 50).toFixed(2)} ms, p95 ${pct(t, 95).toFixed(2)} ms, max ${Math.max(...t).toFixed(2)} ms`);
   await page.click("#bin-done").catch(() => {});
-  await page.waitForFunction(() => globalThis.cairnOutboxCount().then((n) => n === 0), null, { timeout: 120_000, polling: 100 });
+  await page.waitForFunction(() => document.getElementById("waiting").textContent === "0 waiting", null, { timeout: 120_000 });
 
   // 2. Many queued events: queue offline, then time from reconnecting to an empty outbox.
   await browser.context.setOffline(true);
@@ -91,7 +91,7 @@ try {
   }, { task: t2, sku: ITEMS[1].sku, gtin: ITEMS[1].each, n: EVENTS });
   const started = performance.now();
   await browser.context.setOffline(false);
-  await page.waitForFunction(() => globalThis.cairnOutboxCount().then((n) => n === 0), null, { timeout: 600_000, polling: 50 });
+  await page.waitForFunction(() => document.getElementById("waiting").textContent === "0 waiting", null, { timeout: 600_000, polling: 20 });
   const ms = performance.now() - started;
   console.log(`sync of ${queued} queued events: ${(ms / 1000).toFixed(2)} s (${Math.round(queued / (ms / 1000))} events/s), ${await outboxCount(page)} left`);
 } finally {

@@ -61,11 +61,6 @@ export async function startServer({ site = false } = {}) {
     db,
     token,
     api,
-    /** Runs one SQL query on the server's database file with the sqlite3 CLI; returns rows. */
-    sql(query) {
-      const out = execFileSync("sqlite3", ["-json", `file:${db}?mode=ro`, query], { encoding: "utf8" });
-      return out.trim() ? JSON.parse(out) : [];
-    },
     stop() {
       child.kill("SIGTERM");
       rmSync(dir, { recursive: true, force: true });

@@ -430,7 +430,9 @@ async function closeBin(type) {
     return;
   }
   const o = state.open;
-  await commit(type, {}, () => ({ open: undefined }));
+  // "Empty" is a finding about the bin; "done" closes the pass (and the task) on the server.
+  if (type === "bin_empty") await commit("bin_empty", {});
+  await commit("bin_done", {}, () => ({ open: undefined }));
   state.closed.set(o.task, type);
   state.open = null;
   state.chosen = null;
