@@ -1,7 +1,7 @@
 // Shared set-up for the browser suites: a real `cairn serve` on a loopback port over a
 // fresh database, and headless Chromium from Debian's package.
 import { spawn, execFileSync } from "node:child_process";
-import { mkdtempSync, rmSync } from "node:fs";
+import { mkdtempSync, rmSync, writeFileSync } from "node:fs";
 import { tmpdir } from "node:os";
 import { join, dirname } from "node:path";
 import { fileURLToPath } from "node:url";
@@ -23,9 +23,10 @@ function cairn(args, input = "") {
 /**
  * Starts `cairn serve` on 127.0.0.1:0 over a new database with site T; returns
  * {url, db, stop}. With `site: true` the site also gets a counter with a PIN and an
- * admin's integration token (`token`), made through the CLI.
+ * admin's integration token (`token`), made through the CLI. `webDir` serves the phone app
+ * from another folder (through a config file's `web_dir`).
  */
-export async function startServer({ site = false } = {}) {
+export async function startServer({ site = false, webDir = null } = {}) {
   const dir = mkdtempSync(join(tmpdir(), "cairn-browser-"));
   const db = join(dir, "t.db");
   cairn(["site", "add", "--db", db, "--code", "T", "--name", "Browser test"]);
@@ -39,7 +40,12 @@ export async function startServer({ site = false } = {}) {
     token = cairn(["user", "token", "--db", db, "--site", "T", "--name", ADMIN.user,
       "--role", "admin", "--label", "browser tests"]).trim().split(/\s+/).pop();
   }
-  const child = spawn(BIN, ["serve", "--db", db, "--listen", "127.0.0.1:0"], { stdio: ["ignore", "pipe", "inherit"] });
+  const args = ["serve", "--db", db, "--listen", "127.0.0.1:0"];
+  if (webDir) {
+    writeFileSync(join(dir, "cairn.toml"), `web_dir = ${JSON.stringify(webDir)}\n`);
+    args.push("--config", join(dir, "cairn.toml"));
+  }
+  const child = spawn(BIN, args, { stdio: ["ignore", "pipe", "inherit"] });
   const line = await new Promise((resolve, reject) => {
     const rl = createInterface({ input: child.stdout });
     rl.once("line", resolve);

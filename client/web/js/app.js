@@ -594,7 +594,8 @@ let registration = null;
 
 async function registerWorker() {
   if (!("serviceWorker" in navigator)) return;
-  const hadController = Boolean(navigator.serviceWorker.controller);
+  // The first worker's claim of a new page is no update; any later change of worker is.
+  let controlled = Boolean(navigator.serviceWorker.controller);
   registration = await navigator.serviceWorker.register("sw.js", { type: "module", scope: "./" });
   const offer = () => {
     if (registration.waiting && navigator.serviceWorker.controller) {
@@ -610,7 +611,11 @@ async function registerWorker() {
   offer();
   let reloading = false;
   navigator.serviceWorker.addEventListener("controllerchange", () => {
-    if (!hadController || reloading) return;
+    if (!controlled) {
+      controlled = true;
+      return;
+    }
+    if (reloading) return;
     reloading = true;
     location.reload();
   });
