@@ -2,8 +2,8 @@
 // no connection at all (served by the service worker from its cache).
 import { test, before, after } from "node:test";
 import assert from "node:assert/strict";
-import { startServer, seedSite, launch, COUNTER } from "./harness.mjs";
-import { signIn, controlled } from "./phone.mjs";
+import { startServer, seedSite, launch, COUNTER, ITEMS } from "./harness.mjs";
+import { signIn, controlled, openBin, scan } from "./phone.mjs";
 
 let server;
 
@@ -62,6 +62,53 @@ test("a wrong PIN is refused with the server's message and no device is stored",
     assert.match(await page.textContent("#signin-error"), /name or PIN/i);
     await page.reload();
     await page.waitForSelector("#signin:not([hidden])");
+  } finally {
+    await browser.close();
+  }
+});
+
+test("a list from another day, or older than the server's, is flagged stale", async () => {
+  const browser = await launch();
+  try {
+    const page = await browser.context.newPage();
+    await signIn(page, server);
+    await controlled(page);
+    assert.equal(await page.isHidden("#stale"), true, "a fresh list is not stale");
+    const list = await page.evaluate(async () => (await import("/app/js/db.js")).get("list"));
+
+    // The supervisor changes the list while a bin is open: the phone learns of it on a
+    // refresh, keeps the bin's list and says so.
+    await openBin(page, "A-01-01-1", list.tasks[0].label);
+    await server.api("PUT", `/api/v1/sites/T/count-lists/${list.day}/runs/1`, { holder: COUNTER.user });
+    const changed = await server.api("GET", `/api/v1/sites/T/count-lists/${list.day}`);
+    assert.ok(changed.version > list.version, "the change raised the list's version");
+    // Coming back online makes the phone check its list.
+    await browser.context.setOffline(true);
+    await browser.context.setOffline(false);
+    await page.waitForSelector("#stale:not([hidden])");
+    assert.match(await page.textContent("#stale"),
+      new RegExp(`changed on the server \\(version ${changed.version}, this phone holds ${list.version}\\)`));
+    assert.match(await page.textContent("#bin-title"), /^Counting A-01-01-1/, "the open bin stays");
+    await scan(page, ITEMS[0].each);
+    await page.waitForFunction(() => document.querySelectorAll("#lines li").length === 1);
+    await page.click("#bin-done");
+    await page.waitForSelector("#today:not([hidden])");
+    assert.equal(await page.isHidden("#stale"), true, "the newer list is loaded once the bin is done");
+    const held = await page.evaluate(async () => (await import("/app/js/db.js")).get("list"));
+    assert.equal(held.version, changed.version);
+
+    // A list kept from yesterday, opened offline.
+    await page.evaluate(async () => {
+      const db = await import("/app/js/db.js");
+      const l = await db.get("list");
+      await db.set("list", { ...l, day: "2020-01-01", fetched_at: Date.now() - 30 * 3600_000 });
+      await db.del("open");
+    });
+    await browser.context.setOffline(true);
+    await page.reload();
+    await page.waitForSelector("#today:not([hidden])");
+    await page.waitForSelector("#stale:not([hidden])");
+    assert.match(await page.textContent("#stale"), /for 2020-01-01, not today/);
   } finally {
     await browser.close();
   }

@@ -106,6 +106,9 @@ function progress(sent, total) {
 function render() {
   renderStatus();
   $("#update").hidden = !state.updateReady;
+  const stale = state.screen === "today" || state.screen === "bin" ? staleReason() : null;
+  $("#stale").hidden = !stale;
+  $("#stale").textContent = stale ?? "";
   if (state.screen === "today") renderToday();
   if (state.screen === "bin") renderBin();
   if (state.screen === "sync") renderSync();
@@ -132,9 +135,6 @@ function taskDone(t) {
 function renderToday() {
   const sec = $("#today-list");
   sec.replaceChildren();
-  const stale = staleReason();
-  $("#stale").hidden = !stale;
-  $("#stale").textContent = stale ?? "";
   $("#persist-warning").hidden = state.persist !== false;
   const l = state.list;
   if (!l) {
