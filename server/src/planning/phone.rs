@@ -71,16 +71,7 @@ pub fn for_counter(
         .map(|t| {
             let label = BinCode::parse(&t.bin)
                 .ok()
-                .and_then(|_| {
-                    cairn_scan::BinLabel::encode(
-                        site.as_str(),
-                        &t.zone,
-                        &format!("{:02}", t.aisle),
-                        &format!("{:02}", t.bay),
-                        &t.level.to_string(),
-                    )
-                    .ok()
-                })
+                .and_then(|_| t.label(site).ok())
                 .map(|l| l.text().to_string())
                 .unwrap_or_default();
             PhoneTask {
