@@ -577,7 +577,7 @@ async fn hold_run(
             .any(|c| c.name == holder)
     {
         let m = format!(
-            "'{holder}' is not a counter at {}: an admin gives the role on the users page",
+            "{holder} is not a counter at {}: an admin gives the role on the users page",
             site.code
         );
         let showing = Showing::refused(StatusCode::BAD_REQUEST, m);

@@ -114,7 +114,7 @@ pub async fn save_plan(
 }
 
 /// Returns a short fingerprint of what a list holds (day, capacity, warnings,
-/// and each task's bin, run, order, reason and time), so a page can tell
+/// and each task's bin, run, order, reason, time and detail), so a page can tell
 /// whether the list it would save now is the one the supervisor previewed.
 pub fn digest(v: &ListView) -> String {
     use sha2::{Digest, Sha256};
@@ -125,8 +125,8 @@ pub fn digest(v: &ListView) -> String {
     }
     for t in &v.tasks {
         h.update(format!(
-            "t|{}|{}|{}|{}|{}\n",
-            t.bin, t.run, t.seq, t.reason, t.est_s
+            "t|{}|{}|{}|{}|{}|{}\n",
+            t.bin, t.run, t.seq, t.reason, t.est_s, t.detail
         ));
     }
     h.finalize()[..12]
