@@ -501,6 +501,52 @@ async fn a_triggered_count_that_does_not_fit_is_a_warning_on_the_page() {
     let day = get(&app, &sam, &page(DAY)).await;
     let warned = warnings_box(&day.text);
     assert!(warned.contains("A-01-02-1"), "{}", day.text);
+    // With room for everything, triggered bins still lead their run, before due ones.
+    let (s, b) = app
+        .post(
+            "/api/v1/sites/T/bins",
+            &json!([{"zone": "A", "aisle": 1, "bay": 3, "level": 1, "side": "L"}]),
+        )
+        .await;
+    assert_eq!(s, 200, "{b}");
+    let (s, b) = app
+        .post(
+            "/api/v1/sites/T/movements",
+            &json!([
+                movement(
+                    "m3",
+                    "A-01-03-1",
+                    "S1",
+                    5,
+                    "receipt",
+                    "2026-03-01T08:00:00Z"
+                ),
+                movement("m4", "A-01-03-1", "S1", -1, "pick", "2026-03-01T09:00:00Z"),
+            ]),
+        )
+        .await;
+    assert_eq!(s, 200, "{b}");
+    let full = post(
+        &app,
+        &sam,
+        &format!("{}/preview", page("2026-03-05")),
+        &[
+            ("csrf", &sam.csrf),
+            ("counters", "1"),
+            ("minutes", "60"),
+            ("fill", "capacity"),
+        ],
+    )
+    .await;
+    let reasons: Vec<&str> = full
+        .text
+        .split("<td class=\"n\">")
+        .filter_map(|p| p.split("<td>").nth(3))
+        .map(|r| r.split(['<', '\n']).next().unwrap())
+        .collect();
+    assert_eq!(reasons, ["negative balance", "short pick", "due"]);
+    assert_eq!(warnings_box(&full.text), "");
+    assert_eq!(full.text.matches("<tr class=\"triggered\">").count(), 2);
     // With room for both, there is nothing to warn about.
     let roomy = post(
         &app,
