@@ -154,7 +154,9 @@ async fn a_supervisor_builds_assigns_moves_and_watches_the_days_list() {
     site(&app).await;
     let sam = app.sign_in("sam", PASSWORD).await;
 
-    // The list's address without a day is today's (UTC).
+    // The site page leads to the list; its address without a day is today's (UTC).
+    let site_page = get(&app, &sam, "/sites/T").await;
+    assert!(site_page.text.contains("href=\"/sites/T/count-lists\""));
     let today = get(&app, &sam, "/sites/T/count-lists").await;
     assert_eq!(today.status, 303);
     let to = today.headers["location"].to_str().unwrap();

@@ -323,3 +323,70 @@ pub async fn nightly_classification(store: Arc<dyn Store>) {
         }
     }
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::planning::TaskView;
+
+    fn list() -> ListView {
+        let mut v = ListView {
+            day: NaiveDate::from_ymd_opt(2026, 3, 3).expect("a valid date"),
+            stored: false,
+            version: 0,
+            counters: 1,
+            minutes: 60,
+            level_s: 0,
+            watermark: 0,
+            warnings: Vec::new(),
+            runs: Vec::new(),
+            summary: Summary::default(),
+            tasks: vec![TaskView {
+                id: None,
+                seq: 1,
+                run: 1,
+                bin: "A-01-01-1".into(),
+                zone: "A".into(),
+                aisle: 1,
+                bay: 1,
+                level: 1,
+                reason: "short_pick".into(),
+                class: None,
+                detail: "S1 short 3".into(),
+                lines: 1,
+                est_s: 150,
+                status: "open".into(),
+            }],
+        };
+        v.tally(&[]);
+        v
+    }
+
+    #[test]
+    fn the_digest_changes_with_what_the_list_holds_and_only_with_that() {
+        let a = list();
+        assert_eq!(digest(&a), digest(&list()));
+        assert_eq!(digest(&a).len(), 24);
+        let mut b = list();
+        b.tasks[0].detail.push_str("; S1 short 1");
+        assert_ne!(digest(&a), digest(&b), "a second report on the same bin");
+        let mut c = list();
+        c.warnings.push("left off".into());
+        assert_ne!(digest(&a), digest(&c));
+        let mut d = list();
+        d.version = 9;
+        d.watermark = 77;
+        assert_eq!(digest(&a), digest(&d), "bookkeeping fields do not count");
+    }
+
+    #[test]
+    fn csv_minutes_have_one_decimal_rounded_half_up() {
+        assert_eq!(tenths_of_minutes(150), "2.5");
+        assert_eq!(tenths_of_minutes(153), "2.6");
+        assert_eq!(tenths_of_minutes(152), "2.5");
+        assert_eq!(tenths_of_minutes(0), "0.0");
+        let csv = to_csv(&list()).expect("the list writes");
+        assert!(csv.starts_with("day,run,holder,seq,bin,"), "{csv}");
+        assert!(csv.contains(",150,2.5,open,"), "{csv}");
+    }
+}
