@@ -356,7 +356,7 @@ async fn a_stored_list_is_read_exported_adjusted_and_not_rebuilt_by_accident() {
         .text()
         .await
         .unwrap();
-    assert!(csv.starts_with("day,run,seq,bin,"), "{csv}");
+    assert!(csv.starts_with("day,run,holder,seq,bin,"), "{csv}");
     assert_eq!(
         csv.lines().count(),
         1 + read["tasks"].as_array().unwrap().len()

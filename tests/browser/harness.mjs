@@ -11,12 +11,25 @@ import { chromium } from "playwright-core";
 export const ROOT = join(dirname(fileURLToPath(import.meta.url)), "..", "..");
 const BIN = process.env.CAIRN_BIN ?? join(ROOT, "target", "debug", "cairn");
 
-/** Starts `cairn serve` on 127.0.0.1:0 over a new database with site T; returns {url, stop}. */
-export async function startServer() {
+/** Runs the `cairn` binary with `args`, feeding `input` on standard input; returns its output. */
+export function cairn(args, input = "") {
+  return execFileSync(BIN, args, { input, encoding: "utf8" });
+}
+
+/**
+ * Starts `cairn serve` on 127.0.0.1:0 over a new database with site T; returns {url, stop}.
+ * `prepare(db, dir)` runs before the server starts (imports, users, a saved list);
+ * `env` adds environment variables to the server's.
+ */
+export async function startServer({ prepare, env } = {}) {
   const dir = mkdtempSync(join(tmpdir(), "cairn-browser-"));
   const db = join(dir, "t.db");
   execFileSync(BIN, ["site", "add", "--db", db, "--code", "T", "--name", "Browser test"]);
-  const child = spawn(BIN, ["serve", "--db", db, "--listen", "127.0.0.1:0"], { stdio: ["ignore", "pipe", "inherit"] });
+  if (prepare) await prepare(db, dir);
+  const child = spawn(BIN, ["serve", "--db", db, "--listen", "127.0.0.1:0"], {
+    stdio: ["ignore", "pipe", "inherit"],
+    env: { ...process.env, ...env },
+  });
   const line = await new Promise((resolve, reject) => {
     const rl = createInterface({ input: child.stdout });
     rl.once("line", resolve);
