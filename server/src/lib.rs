@@ -15,6 +15,7 @@ pub mod http;
 pub mod import;
 pub mod ledger;
 pub mod master;
+pub mod netting;
 pub mod planning;
 pub mod store;
 pub mod sync;

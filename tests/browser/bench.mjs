@@ -6,8 +6,8 @@
 import { gzipSync, brotliCompressSync } from "node:zlib";
 import { readFileSync } from "node:fs";
 import { join } from "node:path";
-import { startServer, seedSite, launch, ITEMS, ROOT } from "./harness.mjs";
-import { signIn, controlled, openBin, lines, outboxCount } from "./phone.mjs";
+import { startServer, seedSite, ITEMS, ROOT } from "./harness.mjs";
+import { launchPhone, signIn, controlled, openBin, lines, outboxCount } from "./phone.mjs";
 
 const arg = (name, dflt) => {
   const i = process.argv.indexOf(`--${name}`);
@@ -24,7 +24,7 @@ const kb = (n) => `${(n / 1024).toFixed(1)} KiB`;
 
 const server = await startServer({ site: true });
 await seedSite(server);
-const browser = await launch();
+const browser = await launchPhone();
 try {
   // 3. First load: every response of the first visit, as the server sent it.
   const page = await browser.context.newPage();

@@ -3,8 +3,8 @@
 import { test, before, after } from "node:test";
 import assert from "node:assert/strict";
 import { join } from "node:path";
-import { startServer, seedSite, launch, ITEMS, gtin, ROOT } from "./harness.mjs";
-import { signIn, scan, message, outbox, openBin, lines } from "./phone.mjs";
+import { startServer, seedSite, ITEMS, gtin, ROOT } from "./harness.mjs";
+import { launchPhone, signIn, scan, message, outbox, openBin, lines } from "./phone.mjs";
 
 let server, tasks;
 const [bolt, washer] = ITEMS;
@@ -26,7 +26,7 @@ after(() => server?.stop());
 const label = (bin) => tasks.find((t) => t.bin === bin).label;
 
 test("scans add each and case units, keep GS1 lot and expiry, and undo takes back the last line", async () => {
-  const browser = await launch();
+  const browser = await launchPhone();
   try {
     const page = await browser.context.newPage();
     await signIn(page, server);
@@ -95,7 +95,7 @@ test("scans add each and case units, keep GS1 lot and expiry, and undo takes bac
 });
 
 test("a wrong bin, a bad check digit and an unknown GTIN each show their message and record nothing", async () => {
-  const browser = await launch();
+  const browser = await launchPhone();
   try {
     const page = await browser.context.newPage();
     await signIn(page, server);
@@ -139,7 +139,7 @@ test("a wrong bin, a bad check digit and an unknown GTIN each show their message
 
 test("the camera reads a GS1-128 code through the wasm decoder into a recorded line", async () => {
   const video = join(ROOT, "tests/browser/fixtures/camera-gs1-128.mjpeg");
-  const browser = await launch([
+  const browser = await launchPhone([
     "--use-fake-device-for-media-stream", "--use-fake-ui-for-media-stream",
     `--use-file-for-fake-video-capture=${video}`,
   ]);

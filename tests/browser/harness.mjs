@@ -15,18 +15,21 @@ export const BIN = process.env.CAIRN_BIN ?? join(ROOT, "target", "debug", "cairn
 export const COUNTER = { user: "esme", pin: "2468", display: "Esme Tulloch" };
 const ADMIN = { user: "ada", password: "test-only-password-ada" };
 
-/** Runs the cairn binary with `input` on standard input; returns its standard output. */
-function cairn(args, input = "") {
+/** Runs the `cairn` binary with `args`, feeding `input` on standard input; returns its output. */
+export function cairn(args, input = "") {
   return execFileSync(BIN, args, { input, encoding: "utf8" });
 }
 
 /**
  * Starts `cairn serve` on 127.0.0.1:0 over a new database with site T; returns
- * {url, db, stop}. With `site: true` the site also gets a counter with a PIN and an
- * admin's integration token (`token`), made through the CLI. `webDir` serves the phone app
- * from another folder (through a config file's `web_dir`).
+ * {url, db, token, api, stop}.
+ * - `prepare(db, dir)` runs before the server starts (imports, users, a saved list);
+ * - `env` adds environment variables to the server's;
+ * - `site: true` gives the site a counter with a PIN and an admin's integration token
+ *   (`token`, used by `api(method, path, body)`), made through the CLI;
+ * - `webDir` serves the phone app from another folder (through a config file's `web_dir`).
  */
-export async function startServer({ site = false, webDir = null } = {}) {
+export async function startServer({ prepare, env, site = false, webDir = null } = {}) {
   const dir = mkdtempSync(join(tmpdir(), "cairn-browser-"));
   const db = join(dir, "t.db");
   cairn(["site", "add", "--db", db, "--code", "T", "--name", "Browser test"]);
@@ -40,12 +43,16 @@ export async function startServer({ site = false, webDir = null } = {}) {
     token = cairn(["user", "token", "--db", db, "--site", "T", "--name", ADMIN.user,
       "--role", "admin", "--label", "browser tests"]).trim().split(/\s+/).pop();
   }
+  if (prepare) await prepare(db, dir);
   const args = ["serve", "--db", db, "--listen", "127.0.0.1:0"];
   if (webDir) {
     writeFileSync(join(dir, "cairn.toml"), `web_dir = ${JSON.stringify(webDir)}\n`);
     args.push("--config", join(dir, "cairn.toml"));
   }
-  const child = spawn(BIN, args, { stdio: ["ignore", "pipe", "inherit"] });
+  const child = spawn(BIN, args, {
+    stdio: ["ignore", "pipe", "inherit"],
+    env: { ...process.env, ...env },
+  });
   const line = await new Promise((resolve, reject) => {
     const rl = createInterface({ input: child.stdout });
     rl.once("line", resolve);
@@ -137,7 +144,7 @@ export async function launch(extraArgs = [], { userDataDir, viewport, offline = 
   const context = await chromium.launchPersistentContext(dir, {
     executablePath: "/usr/bin/chromium",
     headless: true,
-    viewport: viewport ?? { width: 360, height: 740 },
+    viewport: viewport ?? undefined,
     offline,
     args: [...FLAGS, ...extraArgs],
   });

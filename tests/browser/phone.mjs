@@ -1,5 +1,5 @@
 // Helpers for the phone-app suites: sign a fresh browser in, read its outbox.
-import { COUNTER } from "./harness.mjs";
+import { COUNTER, launch } from "./harness.mjs";
 
 /** Opens the app, signs in as the counter and acknowledges the caution screen. */
 export async function signIn(page, server) {
@@ -61,3 +61,9 @@ export async function openBin(page, bin, label) {
 export async function lines(page, n) {
   await page.waitForFunction((k) => document.querySelectorAll("#lines li").length === k, n, { timeout: 20_000 });
 }
+
+/** A phone's screen in CSS pixels (a common small Android size). */
+export const PHONE = { width: 360, height: 740 };
+
+/** Launches Chromium with a phone-sized window (options as `launch`). */
+export const launchPhone = (args = [], options = {}) => launch(args, { viewport: PHONE, ...options });

@@ -6,8 +6,8 @@ import assert from "node:assert/strict";
 import { mkdtempSync, readFileSync, rmSync } from "node:fs";
 import { tmpdir } from "node:os";
 import { join } from "node:path";
-import { startServer, seedSite, launch, ITEMS, ROOT, COUNTER } from "./harness.mjs";
-import { scan, openBin, lines, controlled } from "./phone.mjs";
+import { startServer, seedSite, ITEMS, ROOT, COUNTER } from "./harness.mjs";
+import { launchPhone, scan, openBin, lines, controlled } from "./phone.mjs";
 
 let server;
 const keep = process.env.CAIRN_SCREENSHOTS === "1";
@@ -43,7 +43,7 @@ function checkShot(file) {
 }
 
 test("the phone never receives a book quantity, and the main screens fit 360 px", async () => {
-  const browser = await launch([], { viewport: { width: 360, height: 740 } });
+  const browser = await launchPhone();
   try {
     const page = await browser.context.newPage();
     const inspected = [];

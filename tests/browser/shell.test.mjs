@@ -2,8 +2,8 @@
 // no connection at all (served by the service worker from its cache).
 import { test, before, after } from "node:test";
 import assert from "node:assert/strict";
-import { startServer, seedSite, launch, COUNTER, ITEMS } from "./harness.mjs";
-import { signIn, controlled, openBin, scan } from "./phone.mjs";
+import { startServer, seedSite, COUNTER, ITEMS } from "./harness.mjs";
+import { launchPhone, signIn, controlled, openBin, scan } from "./phone.mjs";
 
 let server;
 
@@ -15,7 +15,7 @@ before(async () => {
 after(() => server?.stop());
 
 test("after one sign-in online, the app starts offline with today's list in walking order", async () => {
-  const browser = await launch();
+  const browser = await launchPhone();
   try {
     const page = await browser.context.newPage();
     await signIn(page, server);
@@ -49,7 +49,7 @@ test("after one sign-in online, the app starts offline with today's list in walk
 });
 
 test("a wrong PIN is refused with the server's message and no device is stored", async () => {
-  const browser = await launch();
+  const browser = await launchPhone();
   try {
     const page = await browser.context.newPage();
     await page.goto(`${server.url}/app/`);
@@ -68,7 +68,7 @@ test("a wrong PIN is refused with the server's message and no device is stored",
 });
 
 test("a list from another day, or older than the server's, is flagged stale", async () => {
-  const browser = await launch();
+  const browser = await launchPhone();
   try {
     const page = await browser.context.newPage();
     await signIn(page, server);

@@ -7,8 +7,8 @@ import { execFileSync } from "node:child_process";
 import { mkdtempSync, rmSync } from "node:fs";
 import { tmpdir } from "node:os";
 import { join } from "node:path";
-import { startServer, seedSite, launch, ITEMS } from "./harness.mjs";
-import { signIn, controlled, scan, outbox, openBin, lines, outboxCount } from "./phone.mjs";
+import { startServer, seedSite, ITEMS } from "./harness.mjs";
+import { launchPhone, signIn, controlled, scan, outbox, openBin, lines, outboxCount } from "./phone.mjs";
 
 let server, tasks;
 const [bolt] = ITEMS;
@@ -55,7 +55,7 @@ async function drained(page) {
 }
 
 test("50 scans typed offline survive a closed page and reach the server exactly once", async () => {
-  const browser = await launch();
+  const browser = await launchPhone();
   try {
     let page = await browser.context.newPage();
     await signIn(page, server);
@@ -93,7 +93,7 @@ test("a browser killed in the middle of a sync loses no line and doubles none", 
   const task = tasks.find((t) => t.bin === "A-01-02-1");
   const LINES = 1199; // with the bin_opened event: 1,200 events, three batches of at most 500
   try {
-    let browser = await launch([], { userDataDir: dir });
+    let browser = await launchPhone([], { userDataDir: dir });
     let page = await browser.context.newPage();
     await signIn(page, server);
     await controlled(page);
@@ -120,7 +120,7 @@ test("a browser killed in the middle of a sync loses no line and doubles none", 
     const atKill = await serverLines(task.bin);
     assert.ok(atKill.lines >= 499 && atKill.lines < LINES, `the kill came mid-sync (${atKill.lines} on the server)`);
 
-    browser = await launch([], { userDataDir: dir, offline: true });
+    browser = await launchPhone([], { userDataDir: dir, offline: true });
     page = await browser.context.newPage();
     await page.goto(`${server.url}/app/`);
     await page.waitForSelector("#today:not([hidden])");

@@ -5,8 +5,8 @@ import assert from "node:assert/strict";
 import { cpSync, mkdtempSync, readFileSync, rmSync, writeFileSync } from "node:fs";
 import { tmpdir } from "node:os";
 import { join } from "node:path";
-import { startServer, seedSite, launch, ITEMS, ROOT } from "./harness.mjs";
-import { signIn, controlled, scan, openBin, lines, outboxCount } from "./phone.mjs";
+import { startServer, seedSite, ITEMS, ROOT } from "./harness.mjs";
+import { launchPhone, signIn, controlled, scan, openBin, lines, outboxCount } from "./phone.mjs";
 
 let server, web;
 
@@ -26,7 +26,7 @@ after(() => {
 const cacheNames = (page) => page.evaluate(() => caches.keys());
 
 test("a new version waits while a bin is open and starts after it, keeping the outbox", async () => {
-  const browser = await launch();
+  const browser = await launchPhone();
   try {
     const page = await browser.context.newPage();
     await signIn(page, server);

@@ -9,7 +9,7 @@ use crate::http::extract::CurrentSite;
 use crate::master::{Site, SiteCounts};
 use askama::Template;
 use axum::extract::State;
-use axum::response::Html;
+use axum::response::{Html, IntoResponse, Response};
 
 /// Adds the page routes.
 pub fn routes(t: &mut RouteTable) {
@@ -47,6 +47,42 @@ pub fn render(page: &impl Template) -> Result<Html<String>, ApiError> {
         page.render()
             .map_err(|e| anyhow::anyhow!("page template: {e}"))?,
     ))
+}
+
+#[derive(Template)]
+#[template(path = "refusal.html")]
+struct Refusal {
+    me: Option<Me>,
+    message: String,
+    version: &'static str,
+}
+
+/// A page handler's failure, answered as a small page rather than JSON.
+#[derive(Debug)]
+pub struct PageError(pub ApiError);
+
+impl<E: Into<ApiError>> From<E> for PageError {
+    fn from(e: E) -> Self {
+        PageError(e.into())
+    }
+}
+
+impl IntoResponse for PageError {
+    fn into_response(self) -> Response {
+        let status = self.0.status();
+        let page = Refusal {
+            me: None,
+            message: self.0.public_text(),
+            version: VERSION,
+        };
+        match page.render() {
+            Ok(html) => (status, Html(html)).into_response(),
+            Err(e) => {
+                tracing::error!(error = %e, "refusal page template");
+                self.0.into_response()
+            }
+        }
+    }
 }
 
 struct SiteLine {

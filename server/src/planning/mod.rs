@@ -2,14 +2,17 @@
 //! classes (`abc`), the calendar and due rule (`calendar`, `due`), task times
 //! (`estimate`), the walk and its runs (`walk`) and the day's selection
 //! (`plan`). This file holds the settings and the shapes the list is shown
-//! in; `service` joins the arithmetic to the store; `routes` is the HTTP side.
+//! in; `service` joins the arithmetic to the store; `routes` is the HTTP side
+//! (`pages` the supervisor's pages, `progress` what they tally).
 
 pub mod abc;
 pub mod calendar;
 pub mod due;
 pub mod estimate;
+pub mod pages;
 pub mod phone;
 pub mod plan;
+pub mod progress;
 pub mod routes;
 pub mod service;
 pub mod short_pick;
@@ -126,6 +129,16 @@ pub struct TaskView {
     pub lines: u32,
     pub est_s: i64,
     pub status: String,
+}
+
+impl TaskView {
+    /// Builds the scannable label of this task's bin in `site`.
+    pub fn label(
+        &self,
+        site: &crate::master::SiteCode,
+    ) -> Result<cairn_scan::BinLabel, cairn_scan::ScanError> {
+        crate::master::place_label(site.as_str(), &self.zone, self.aisle, self.bay, self.level)
+    }
 }
 
 /// One counter's run.

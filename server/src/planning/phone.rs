@@ -78,7 +78,8 @@ pub fn for_counter(
         .map(|t| {
             let label = BinCode::parse(&t.bin)
                 .ok()
-                .and_then(|_| label_text(site.as_str(), &t.zone, t.aisle, t.bay, t.level))
+                .and_then(|_| t.label(site).ok())
+                .map(|l| l.text().to_string())
                 .unwrap_or_default();
             PhoneTask {
                 id: t.id,

@@ -5,6 +5,7 @@
 use super::calendar::{Calendar, MAX_HOLIDAYS};
 use super::phone;
 use super::plan::{Capacity, Fill};
+use super::progress::{self, Progress};
 use super::short_pick::{ShortPickOutcome, ShortPickRecord};
 use super::{AbcSummary, ClassChange, ListView, Settings, service};
 use crate::AppState;
@@ -82,7 +83,14 @@ pub fn routes(t: &mut RouteTable) {
         Access::Site(LIST_KEEPERS),
         hold_run,
     )
+    .get(
+        path!("/count-lists/{day}/progress"),
+        Access::Site(BOOK_READERS),
+        get_progress,
+    )
     .get(path!("/my-tasks"), Access::Site(&[Role::Counter]), my_tasks);
+    // The supervisor's pages of the list sit with the list's API.
+    super::pages::routes(t);
 }
 
 /// Source recorded for short-pick reports that name none.
@@ -90,7 +98,7 @@ const API_SOURCE: &str = "api";
 /// Longest name a run's holder may have.
 const MAX_HOLDER_CHARS: usize = 64;
 
-fn parse_day(text: &str) -> Result<NaiveDate, ApiError> {
+pub(super) fn parse_day(text: &str) -> Result<NaiveDate, ApiError> {
     NaiveDate::parse_from_str(text.trim(), "%Y-%m-%d").map_err(|_| {
         ApiError::BadRequest(format!(
             "'{text}' is not a date: use YYYY-MM-DD, e.g. 2026-03-02"
@@ -325,12 +333,39 @@ async fn get_list(
         None | Some("json") => Ok(Json(list).into_response()),
         Some("csv") => {
             let csv = service::to_csv(&list).map_err(anyhow::Error::from)?;
-            Ok(([(header::CONTENT_TYPE, "text/csv; charset=utf-8")], csv).into_response())
+            let file = format!(
+                "attachment; filename=\"count-list-{}-{day}.csv\"",
+                site.code
+            );
+            Ok((
+                [
+                    (header::CONTENT_TYPE, "text/csv; charset=utf-8".to_string()),
+                    (header::CONTENT_DISPOSITION, file),
+                ],
+                csv,
+            )
+                .into_response())
         }
         Some(other) => Err(ApiError::BadRequest(format!(
             "format '{other}' is not json or csv"
         ))),
     }
+}
+
+/// Tasks and minutes not started, in progress and done, per run: what the
+/// supervisor's page polls to stay current.
+async fn get_progress(
+    State(state): State<AppState>,
+    CurrentSite(site): CurrentSite,
+    Path((_, day)): Path<(String, String)>,
+) -> Result<Json<Progress>, ApiError> {
+    let day = parse_day(&day)?;
+    let list = state
+        .store
+        .count_list(site.id, day)
+        .await?
+        .ok_or_else(|| ApiError::NotFound(format!("no count list for {day}")))?;
+    Ok(Json(progress::of(&list)))
 }
 
 #[derive(Deserialize)]

@@ -71,10 +71,22 @@ pub async fn build(
     replace: bool,
 ) -> Result<ListView, StoreError> {
     let (input, plan) = preview(store, site, day, capacity, fill).await?;
+    save_plan(store, site, &input, &plan, replace).await
+}
+
+/// Stores a plan built by [`preview`] as its day's list, and returns it as stored.
+pub async fn save_plan(
+    store: &dyn Store,
+    site: &Site,
+    input: &PlanInput,
+    plan: &Plan,
+    replace: bool,
+) -> Result<ListView, StoreError> {
+    let day = plan.day;
     let list = NewCountList {
         day,
-        counters: capacity.counters,
-        minutes: capacity.minutes,
+        counters: plan.capacity.counters,
+        minutes: plan.capacity.minutes,
         level_s: plan.level_s,
         warnings: plan.warnings.clone(),
         watermark: input.watermark,
@@ -99,6 +111,28 @@ pub async fn build(
         .count_list(site.id, day)
         .await?
         .ok_or_else(|| anyhow::anyhow!("the list for {day} was stored but cannot be read").into())
+}
+
+/// Returns a short fingerprint of what a list holds (day, capacity, warnings,
+/// and each task's bin, run, order, reason, time and detail), so a page can tell
+/// whether the list it would save now is the one the supervisor previewed.
+pub fn digest(v: &ListView) -> String {
+    use sha2::{Digest, Sha256};
+    let mut h = Sha256::new();
+    h.update(format!("{}|{}|{}\n", v.day, v.counters, v.minutes));
+    for w in &v.warnings {
+        h.update(format!("w|{w}\n"));
+    }
+    for t in &v.tasks {
+        h.update(format!(
+            "t|{}|{}|{}|{}|{}|{}\n",
+            t.bin, t.run, t.seq, t.reason, t.est_s, t.detail
+        ));
+    }
+    h.finalize()[..12]
+        .iter()
+        .map(|b| format!("{b:02x}"))
+        .collect()
 }
 
 /// Shows an unstored plan the way a stored list is shown.
@@ -210,17 +244,29 @@ pub fn to_text(v: &ListView) -> String {
     out
 }
 
-/// Writes the list as CSV, one task a row.
+/// Writes seconds as minutes with one decimal, rounded half up (150 -> "2.5").
+fn tenths_of_minutes(s: i64) -> String {
+    let tenths = (s.max(0) + 3) / 6;
+    format!("{}.{}", tenths / 10, tenths % 10)
+}
+
+/// Writes the list as CSV, one task a row, with the run's holder.
 pub fn to_csv(v: &ListView) -> Result<String, csv::Error> {
     let mut w = csv::Writer::from_writer(Vec::new());
     w.write_record([
-        "day", "run", "seq", "bin", "zone", "aisle", "bay", "level", "reason", "class", "lines",
-        "est_s", "status", "detail",
+        "day", "run", "holder", "seq", "bin", "zone", "aisle", "bay", "level", "reason", "class",
+        "lines", "est_s", "est_min", "status", "detail",
     ])?;
     for t in &v.tasks {
+        let holder = v
+            .runs
+            .iter()
+            .find(|r| r.run == t.run)
+            .map_or("", |r| r.holder.as_str());
         w.write_record([
             v.day.to_string(),
             t.run.to_string(),
+            holder.to_string(),
             t.seq.to_string(),
             t.bin.clone(),
             t.zone.clone(),
@@ -231,6 +277,7 @@ pub fn to_csv(v: &ListView) -> Result<String, csv::Error> {
             t.class.map(|c| c.to_string()).unwrap_or_default(),
             t.lines.to_string(),
             t.est_s.to_string(),
+            tenths_of_minutes(t.est_s),
             t.status.clone(),
             t.detail.clone(),
         ])?;
@@ -274,5 +321,72 @@ pub async fn nightly_classification(store: Arc<dyn Store>) {
             }
             Err(e) => tracing::error!(error = ?e, "nightly ABC classification cannot list sites"),
         }
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::planning::TaskView;
+
+    fn list() -> ListView {
+        let mut v = ListView {
+            day: NaiveDate::from_ymd_opt(2026, 3, 3).expect("a valid date"),
+            stored: false,
+            version: 0,
+            counters: 1,
+            minutes: 60,
+            level_s: 0,
+            watermark: 0,
+            warnings: Vec::new(),
+            runs: Vec::new(),
+            summary: Summary::default(),
+            tasks: vec![TaskView {
+                id: None,
+                seq: 1,
+                run: 1,
+                bin: "A-01-01-1".into(),
+                zone: "A".into(),
+                aisle: 1,
+                bay: 1,
+                level: 1,
+                reason: "short_pick".into(),
+                class: None,
+                detail: "S1 short 3".into(),
+                lines: 1,
+                est_s: 150,
+                status: "open".into(),
+            }],
+        };
+        v.tally(&[]);
+        v
+    }
+
+    #[test]
+    fn the_digest_changes_with_what_the_list_holds_and_only_with_that() {
+        let a = list();
+        assert_eq!(digest(&a), digest(&list()));
+        assert_eq!(digest(&a).len(), 24);
+        let mut b = list();
+        b.tasks[0].detail.push_str("; S1 short 1");
+        assert_ne!(digest(&a), digest(&b), "a second report on the same bin");
+        let mut c = list();
+        c.warnings.push("left off".into());
+        assert_ne!(digest(&a), digest(&c));
+        let mut d = list();
+        d.version = 9;
+        d.watermark = 77;
+        assert_eq!(digest(&a), digest(&d), "bookkeeping fields do not count");
+    }
+
+    #[test]
+    fn csv_minutes_have_one_decimal_rounded_half_up() {
+        assert_eq!(tenths_of_minutes(150), "2.5");
+        assert_eq!(tenths_of_minutes(153), "2.6");
+        assert_eq!(tenths_of_minutes(152), "2.5");
+        assert_eq!(tenths_of_minutes(0), "0.0");
+        let csv = to_csv(&list()).expect("the list writes");
+        assert!(csv.starts_with("day,run,holder,seq,bin,"), "{csv}");
+        assert!(csv.contains(",150,2.5,open,"), "{csv}");
     }
 }

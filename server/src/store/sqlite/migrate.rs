@@ -34,6 +34,11 @@ pub const MIGRATIONS: &[Migration] = &[
         name: "0004_counts.sql",
         sql: include_str!("../../../../migrations/0004_counts.sql"),
     },
+    Migration {
+        version: 5,
+        name: "0005_netting.sql",
+        sql: include_str!("../../../../migrations/0005_netting.sql"),
+    },
 ];
 
 /// Returns the newest schema version this binary knows.
