@@ -4,7 +4,7 @@ import { test, before, after } from "node:test";
 import assert from "node:assert/strict";
 import { join } from "node:path";
 import { startServer, seedSite, ITEMS, gtin, ROOT } from "./harness.mjs";
-import { launchPhone, signIn, scan, message, outbox, openBin, lines } from "./phone.mjs";
+import { launchPhone, signIn, scan, message, journal, openBin, lines } from "./phone.mjs";
 
 let server, tasks;
 const [bolt, washer] = ITEMS;
@@ -46,7 +46,8 @@ test("scans add each and case units, keep GS1 lot and expiry, and undo takes bac
     await lines(page, 3);
     assert.equal(await page.textContent(`#bin-items li[data-sku="${bolt.sku}"] .counted`), `${1 + 1 + bolt.units} each`);
 
-    let events = await outbox(page);
+    // The journal keeps every event the phone recorded, sent or not (the page syncs meanwhile).
+    let events = (await journal(page)).map(({ status: _s, flags: _f, ...e }) => e);
     assert.deepEqual(events.map((e) => e.type), ["bin_opened", "line", "line", "line"]);
     const opened = events[0];
     assert.equal(opened.label, label("A-01-01-1"));
@@ -65,7 +66,7 @@ test("scans add each and case units, keep GS1 lot and expiry, and undo takes bac
 
     await page.click("#undo");
     await lines(page, 2);
-    events = await outbox(page);
+    events = await journal(page);
     assert.deepEqual(events.at(-1).type, "undo");
     assert.equal(events.at(-1).line, kase.id);
     assert.equal(await page.textContent(`#bin-items li[data-sku="${bolt.sku}"] .counted`), "2 each");
@@ -76,7 +77,7 @@ test("scans add each and case units, keep GS1 lot and expiry, and undo takes bac
     for (const k of ["2", "5"]) await page.click(`#keypad [data-key="${k}"]`);
     await page.click("#keypad-add");
     await lines(page, 3);
-    const keyed = (await outbox(page)).at(-1);
+    const keyed = (await journal(page)).at(-1);
     assert.deepEqual([keyed.sku, keyed.gtin, keyed.packs, keyed.qty, keyed.entry], [bolt.sku, null, 25, 25, "keypad"]);
 
     // Bin done returns to the list with the bin ticked; the next bin is found by its label alone.
@@ -88,7 +89,7 @@ test("scans add each and case units, keep GS1 lot and expiry, and undo takes bac
     await page.click("#bin-empty");
     await page.waitForSelector("#today:not([hidden])");
     assert.match(await page.textContent("#today-progress"), /2 of 3 bins done/);
-    assert.deepEqual((await outbox(page)).slice(-4).map((e) => e.type), ["bin_done", "bin_opened", "bin_empty", "bin_done"]);
+    assert.deepEqual((await journal(page)).slice(-4).map((e) => e.type), ["bin_done", "bin_opened", "bin_empty", "bin_done"]);
   } finally {
     await browser.close();
   }
@@ -104,12 +105,12 @@ test("a wrong bin, a bad check digit and an unknown GTIN each show their message
     await scan(page, label("A-01-02-1"));
     assert.equal(await message(page, /^Wrong bin/), "error");
     assert.equal(await page.getAttribute("body", "data-feedback"), "error");
-    assert.equal((await outbox(page)).length, 0, "a wrong bin records nothing");
+    assert.equal((await journal(page)).length, 0, "a wrong bin records nothing");
     assert.match(await page.textContent("#bin-title"), /^Go to A-01-01-1/);
 
     await scan(page, label("A-01-01-1"));
     await page.waitForFunction(() => document.getElementById("bin-title").textContent === "Counting A-01-01-1");
-    assert.equal((await outbox(page)).length, 1);
+    assert.equal((await journal(page)).length, 1);
     // Another bin's label while counting is refused as well.
     await scan(page, label("A-01-03-1"));
     assert.equal(await message(page, /^Wrong bin: this label is CB1-T-A-01-03-1/), "error");
@@ -122,16 +123,21 @@ test("a wrong bin, a bad check digit and an unknown GTIN each show their message
     assert.equal(await message(page, /^Unknown GTIN 04006381333931.*Nothing recorded/), "error");
     await scan(page, "hello-world");
     assert.equal(await message(page, /Nothing recorded/), "error");
-    assert.equal((await outbox(page)).length, 1, "none of the refusals recorded anything");
+    assert.equal((await journal(page)).length, 1, "none of the refusals recorded anything");
     assert.equal(await page.$$eval("#lines li", (l) => l.length), 0);
 
     // An item of the catalogue the bin was not expected to hold is found stock, recorded.
     await scan(page, washer.each);
     assert.equal(await message(page, /^Found stock: KL-1002/), "warn");
-    const events = await outbox(page);
+    const events = await journal(page);
     assert.equal(events.length, 2);
     assert.equal(events[1].sku, washer.sku);
     assert.ok(await page.$(`#bin-items li.found[data-sku="${washer.sku}"]`));
+    // Once sent, the server agrees: the line is flagged found stock.
+    await page.waitForFunction(() => document.getElementById("waiting").textContent === "0 waiting"
+      && document.body.dataset.syncing !== "yes");
+    const sent = (await journal(page)).find((e) => e.id === events[1].id);
+    assert.deepEqual([sent.status, sent.flags], ["accepted", ["found_stock"]]);
   } finally {
     await browser.close();
   }
@@ -156,7 +162,7 @@ test("the camera reads a GS1-128 code through the wasm decoder into a recorded l
     assert.equal(await page.getAttribute("#camera", "data-decoder"), "wasm");
     assert.ok(decoderRequests.some((u) => u.endsWith(".wasm")), "the decoder loads when the camera opens");
     await page.click("#camera-toggle");
-    const line = (await outbox(page)).find((e) => e.type === "line");
+    const line = (await journal(page)).find((e) => e.type === "line");
     // The fixture encodes (01)15012345000173(17)271231(10)B7 (fixtures/make-camera-fixture.mjs).
     assert.deepEqual([line.gtin, line.qty, line.lot, line.expiry, line.entry],
       [bolt.case, bolt.units, "B7", "2027-12-31", "camera"]);

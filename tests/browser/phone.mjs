@@ -36,18 +36,24 @@ export async function message(page, pattern) {
   return page.getAttribute("#msg", "data-state");
 }
 
-/** Every event in the outbox, read straight from IndexedDB (oldest first). */
-export function outbox(page) {
-  return page.evaluate(() => new Promise((resolve, reject) => {
+/** Every event in one of the app's IndexedDB stores, oldest first (UUIDv7 keys sort by time). */
+function readStore(page, store) {
+  return page.evaluate((name) => new Promise((resolve, reject) => {
     const r = indexedDB.open("cairn-phone");
     r.onerror = () => reject(r.error);
     r.onsuccess = () => {
-      const all = r.result.transaction("outbox").objectStore("outbox").getAll();
+      const all = r.result.transaction(name).objectStore(name).getAll();
       all.onsuccess = () => { r.result.close(); resolve(all.result); };
       all.onerror = () => reject(all.error);
     };
-  }));
+  }), store);
 }
+
+/** The events still waiting to be sent. */
+export const outbox = (page) => readStore(page, "outbox");
+
+/** Every event the phone recorded (kept after sync, with its status). */
+export const journal = (page) => readStore(page, "journal");
 
 /** Taps the task of `bin` and scans its label; waits until the bin is open. */
 export async function openBin(page, bin, label) {
