@@ -354,7 +354,8 @@ async function commit(type, fields, kv = null) {
   await db.record(event, kv ? kv(event) : null);
   state.waiting += 1;
   renderStatus();
-  scheduleSync(SYNC_SETTLE_MS);
+  if (navigator.onLine) scheduleSync(SYNC_SETTLE_MS);
+  else registerBackgroundSync();
   return event;
 }
 
@@ -430,6 +431,7 @@ async function closeBin(type) {
     return;
   }
   const o = state.open;
+  if (camera) await toggleCamera();
   // "Empty" is a finding about the bin; "done" closes the pass (and the task) on the server.
   if (type === "bin_empty") await commit("bin_empty", {});
   await commit("bin_done", {}, () => ({ open: undefined }));

@@ -7,6 +7,8 @@ import * as db from "./db.js";
 
 /** Most events in one request (the server's MAX_SYNC_EVENTS). */
 export const MAX_SYNC_EVENTS = 500;
+/** Longest round trip the server takes as a clock sample (its MAX_RTT_MS); longer: none sent. */
+export const MAX_RTT_MS = 120_000;
 /** Retry delays: first, and the ceiling (ms); each retry doubles, then a random 50–100 %. */
 export const RETRY_FIRST_MS = 1000;
 export const RETRY_MAX_MS = 60_000;
@@ -54,7 +56,7 @@ export async function syncOutbox(progress = () => {}) {
       if (batch.length === 0) break;
       const body = {
         device_clock: Date.now(),
-        rtt_ms: (await db.get("rtt_ms")) ?? null,
+        rtt_ms: usableRtt(await db.get("rtt_ms")),
         events: batch.map(({ site: _site, ...e }) => e),
       };
       let r;
@@ -89,6 +91,10 @@ export async function syncOutbox(progress = () => {}) {
     return navigator.locks.request("cairn-sync", run);
   }
   return run();
+}
+
+function usableRtt(ms) {
+  return Number.isInteger(ms) && ms >= 0 && ms <= MAX_RTT_MS ? ms : null;
 }
 
 async function text(r) {
