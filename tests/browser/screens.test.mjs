@@ -102,7 +102,9 @@ test("the phone never receives a book quantity, and the main screens fit 360 px"
     await page.waitForSelector("#today:not([hidden])");
     await page.click("#status");
     await page.waitForSelector("#sync:not([hidden])");
-    await page.waitForFunction(() => document.body.dataset.syncing !== "yes");
+    await page.click("#sync-now");
+    await page.waitForFunction(() => document.getElementById("waiting").textContent === "0 waiting"
+      && document.body.dataset.syncing !== "yes" && /ms/.test(document.getElementById("sync-clock").textContent));
     await shot("sync");
     await page.click("#refresh").catch(() => {});
     await Promise.all(pending);

@@ -83,6 +83,21 @@ test("50 scans typed offline survive a closed page and reach the server exactly 
     assert.equal(got.qty, 40 * 1 + 10 * bolt.units, "each and case units add up on the server");
     assert.match(await page.textContent("#waiting"), /^0 waiting$/);
     assert.doesNotMatch(await page.textContent("#last-sync"), /never/);
+
+    // An id sent before with other content is a conflict: out of the outbox, onto the
+    // problems list, never resent.
+    await page.evaluate(async () => {
+      const db = await import("/app/js/db.js");
+      const line = (await db.journalAll()).find((e) => e.type === "line");
+      const { status: _s, flags: _f, ...event } = line;
+      await db.record({ ...event, qty: event.qty + 1 });
+    });
+    await page.click("#status");
+    await page.click("#sync-now");
+    await page.waitForSelector("#problems li");
+    assert.match(await page.textContent("#problems li"), /^conflict: line A-01-01-1 KL-1001/);
+    assert.equal(await outboxCount(page), 0);
+    assert.equal((await serverLines(task.bin)).lines, 50, "the conflicting event changed nothing");
   } finally {
     await browser.close();
   }
