@@ -598,7 +598,7 @@ async function registerWorker() {
   if (!("serviceWorker" in navigator)) return;
   // The first worker's claim of a new page is no update; any later change of worker is.
   let controlled = Boolean(navigator.serviceWorker.controller);
-  registration = await navigator.serviceWorker.register("sw.js", { type: "module", scope: "./" });
+  registration = await navigator.serviceWorker.register("sw.js", { type: "module", scope: "./", updateViaCache: "none" });
   const offer = () => {
     if (registration.waiting && navigator.serviceWorker.controller) {
       state.updateReady = true;
