@@ -358,3 +358,30 @@ async fn a_batch_and_its_audit_row_commit_together() {
         (Some(1), Some(0))
     );
 }
+
+#[tokio::test]
+async fn the_phone_app_shell_is_served_gzip_compressed_to_a_client_that_asks() {
+    let app = spawn_app().await;
+    let r = app
+        .client
+        .get(format!("{}/app/js/app.js", app.base))
+        .header("accept-encoding", "gzip")
+        .send()
+        .await
+        .unwrap();
+    assert_eq!(r.status(), 200);
+    assert_eq!(
+        r.headers()
+            .get("content-encoding")
+            .map(|v| v.to_str().unwrap()),
+        Some("gzip")
+    );
+    let compressed = r.bytes().await.unwrap().len();
+    let plain = std::fs::read(concat!(
+        env!("CARGO_MANIFEST_DIR"),
+        "/../client/web/js/app.js"
+    ))
+    .unwrap()
+    .len();
+    assert!(compressed < plain, "{compressed} bytes sent for {plain}");
+}

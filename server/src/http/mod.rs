@@ -52,6 +52,8 @@ pub fn router(state: AppState) -> Router {
         )
         .fallback(not_found)
         .layer(DefaultBodyLimit::max(state.config.max_body_bytes))
+        // Phones on weak Wi-Fi: the app shell, wasm and JSON answers go gzip-compressed.
+        .layer(tower_http::compression::CompressionLayer::new())
         .layer(TraceLayer::new_for_http())
         .with_state(state)
 }
