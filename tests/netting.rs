@@ -294,6 +294,35 @@ async fn a_pick_during_the_count_is_netted_not_flagged() {
     let d = s.detail(r["id"].as_i64().unwrap()).await;
     assert_eq!(states(&d), [40, 35]);
     assert_eq!(window_moves(&d), ["p1"]);
+
+    // `cairn net` prints the same reasoning, by the pass's uid or id.
+    let db = s.app.db.to_str().unwrap().to_string();
+    for count in [p.count.clone(), r["pass_id"].to_string()] {
+        let out = common::cairn_with_input(&["net", "--db", &db, "--count", &count], "");
+        let text = String::from_utf8_lossy(&out.stdout);
+        assert!(
+            out.status.success(),
+            "{}",
+            String::from_utf8_lossy(&out.stderr)
+        );
+        for want in [
+            "A-01-01-1 S1",
+            "counted 35",
+            "opening 40",
+            "-5 pick from host",
+            "feasible states F: 40 (opening), 35* (after",
+            "f* = 35",
+            "variance c − f* = +0",
+            "status matches_state",
+            "verdict hit",
+            "settled",
+        ] {
+            assert!(text.contains(want), "missing '{want}' in:\n{text}");
+        }
+    }
+    let out = common::cairn_with_input(&["net", "--db", &db, "--count", "no-such"], "");
+    assert!(!out.status.success());
+    assert!(String::from_utf8_lossy(&out.stderr).contains("no count pass"));
 }
 
 #[tokio::test]
