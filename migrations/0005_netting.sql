@@ -138,4 +138,4 @@ drop table count_task;
 alter table count_task_rebuilt rename to count_task;
 create index count_task_list on count_task(list_id, run, seq);
 create unique index count_task_bin on count_task(list_id, bin_id) where recount_of is null;
-create index count_task_recount on count_task(recount_of) where recount_of is not null;
+create index count_task_recount on count_task(recount_of);

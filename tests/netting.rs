@@ -1115,3 +1115,229 @@ async fn settings_are_read_by_book_readers_and_changed_only_by_count_policy() {
         assert_eq!(r.status(), 403, "{path}");
     }
 }
+
+// ---------------------------------------------------------------------------
+// A simulated day on the demo site.
+
+#[tokio::test]
+async fn a_simulated_day_flags_every_clear_record_error_and_nothing_moves_alone_raise() {
+    use cairn::demo::count_day::{self, KeyStock};
+    use std::collections::BTreeMap;
+
+    // A small Kestrel Lane site with 60 days of history: the history's unrecorded and
+    // mis-keyed picks and mis-putaways leave the book apart from the shelf.
+    let app = spawn_app().await;
+    let mut spec = cairn::demo::DemoSpec::standard(42);
+    spec.items = 60;
+    spec.bins = 150;
+    spec.days = 60;
+    cairn::demo::generate(app.state.store.as_ref(), &spec, false)
+        .await
+        .expect("the demo site generates");
+    app.add_user("root", "KLN", &[Role::Admin], "test-only-password", None)
+        .await;
+    let admin = app.issue_token("KLN", "root", Role::Admin).await;
+    app.add_user(
+        "esme",
+        "KLN",
+        &[Role::Counter],
+        "test-only-password",
+        Some("2468"),
+    )
+    .await;
+    let phone = app.enrol("esme", "2468", "KLN").await.json()["token"]
+        .as_str()
+        .unwrap()
+        .to_string();
+
+    // Book and shelf of every key, straight from the file (the shelf is demo-only).
+    let conn = rusqlite::Connection::open(&app.db).unwrap();
+    let mut keys: Vec<KeyStock> = conn
+        .prepare(
+            "select b.code, i.sku, k.lot, coalesce(bal.qty, 0), coalesce(sh.qty, 0)
+             from (select bin_id, item_id, lot from balance
+                   union select bin_id, item_id, lot from demo_shelf) k
+             join bin b on b.id = k.bin_id join item i on i.id = k.item_id
+             left join balance bal on bal.bin_id = k.bin_id and bal.item_id = k.item_id
+                  and bal.lot = k.lot
+             left join demo_shelf sh on sh.bin_id = k.bin_id and sh.item_id = k.item_id
+                  and sh.lot = k.lot
+             where coalesce(bal.qty, 0) <> 0 or coalesce(sh.qty, 0) <> 0
+             order by b.walk_seq, b.code, i.sku, k.lot",
+        )
+        .unwrap()
+        .query_map([], |r| {
+            Ok(KeyStock {
+                bin: r.get(0)?,
+                sku: r.get(1)?,
+                lot: r.get(2)?,
+                book: r.get(3)?,
+                truth: r.get(4)?,
+            })
+        })
+        .unwrap()
+        .map(Result::unwrap)
+        .collect();
+    drop(conn);
+    // Every bin with a record error, and as many without, up to 60 bins (3 hours).
+    let wrong: std::collections::BTreeSet<String> = keys
+        .iter()
+        .filter(|k| k.book != k.truth)
+        .map(|k| k.bin.clone())
+        .collect();
+    let mut chosen: Vec<String> = Vec::new();
+    for k in &keys {
+        if !chosen.contains(&k.bin)
+            && (wrong.contains(&k.bin) || chosen.len() < 2 * wrong.len().max(10))
+            && chosen.len() < 60
+        {
+            chosen.push(k.bin.clone());
+        }
+    }
+    keys.retain(|k| chosen.contains(&k.bin));
+    let start = Timestamp::now().0 - 4 * 60 * MIN;
+    let mut rng = <rand_chacha::ChaCha8Rng as SeedableRng>::seed_from_u64(9);
+    let day = count_day::simulate(&keys, start, &mut rng);
+    assert!(
+        !day.picks.is_empty() && !wrong.is_empty(),
+        "the day has work"
+    );
+
+    // Deliveries in the order they reach the server: each bin's events when it is done,
+    // each pick when the host posts it (up to 10 minutes late, often after the bin).
+    enum Delivery<'a> {
+        Count(&'a count_day::BinCount),
+        Pick(&'a count_day::LatePick),
+    }
+    let mut deliveries: Vec<(i64, Delivery)> = day
+        .counts
+        .iter()
+        .map(|c| (c.done_at, Delivery::Count(c)))
+        .chain(day.picks.iter().map(|p| (p.posted_at, Delivery::Pick(p))))
+        .collect();
+    deliveries.sort_by_key(|(t, _)| *t);
+    let mut late = 0;
+    for (_, d) in &deliveries {
+        match d {
+            Delivery::Count(c) => {
+                let pass = id();
+                let ev = |t: i64, kind: &str, extra: Value| {
+                    let mut e = json!({"id": id(), "at": t, "count": pass, "task": null,
+                                       "bin": c.bin, "type": kind});
+                    e.as_object_mut()
+                        .unwrap()
+                        .extend(extra.as_object().unwrap().clone());
+                    e
+                };
+                let mut events = vec![{
+                    let mut e = ev(c.opened_at, "bin_opened", json!({"label": ""}));
+                    e["id"] = json!(pass);
+                    e
+                }];
+                for l in &c.lines {
+                    events.push(ev(
+                        l.at,
+                        "line",
+                        json!({"sku": l.sku, "gtin": null, "packs": 1, "qty": l.qty,
+                               "lot": l.lot, "entry": "keypad"}),
+                    ));
+                }
+                events.push(ev(c.done_at, "bin_done", json!({})));
+                let r = app
+                    .client
+                    .post(format!("{}/api/v1/sites/KLN/sync", app.base))
+                    .bearer_auth(&phone)
+                    .json(
+                        &json!({"device_clock": Timestamp::now().0, "rtt_ms": 0, "events": events}),
+                    )
+                    .send()
+                    .await
+                    .unwrap();
+                let v: Value = r.json().await.unwrap();
+                for res in v["results"].as_array().unwrap() {
+                    assert_eq!(res["status"], "accepted", "{v}");
+                }
+            }
+            Delivery::Pick(p) => {
+                let bin_done = day.counts.iter().find(|c| c.bin == p.bin).unwrap().done_at;
+                late += usize::from(p.posted_at > bin_done);
+                let r = app
+                    .client
+                    .post(format!("{}/api/v1/sites/KLN/movements", app.base))
+                    .bearer_auth(&admin)
+                    .json(
+                        &json!([{"id": p.uid, "bin": p.bin, "sku": p.sku, "lot": p.lot,
+                                   "qty": p.qty, "kind": "pick", "event_at": at(p.event_at),
+                                   "source": "host"}]),
+                    )
+                    .send()
+                    .await
+                    .unwrap();
+                assert_eq!(r.status(), 200, "{}", r.text().await.unwrap());
+            }
+        }
+    }
+
+    let mut variances = BTreeMap::new();
+    let mut after = 0;
+    loop {
+        let r = app
+            .client
+            .get(format!(
+                "{}/api/v1/sites/KLN/count-results?state=current&limit=1000&after={after}",
+                app.base
+            ))
+            .bearer_auth(&admin)
+            .send()
+            .await
+            .unwrap();
+        let page: Value = r.json().await.unwrap();
+        for row in page["results"].as_array().unwrap() {
+            let key = (
+                row["bin"].as_str().unwrap().to_string(),
+                row["sku"].as_str().unwrap().to_string(),
+                row["lot"].as_str().unwrap().to_string(),
+            );
+            variances.insert(key, row["variance"].as_i64().unwrap());
+        }
+        match page["next"].as_i64() {
+            Some(n) => after = n,
+            None => break,
+        }
+    }
+    let s = count_day::score(&day, &variances);
+    println!(
+        "simulated day: {} bins, {} keys, {} picks during counts ({late} posted after the bin \
+         was done); clear record errors {}, raised {}; raised {} (with an error {}); \
+         precision {:.3}, recall {:.3}; raised by moves alone {}",
+        day.counts.len(),
+        day.expected.len(),
+        day.picks.len(),
+        s.clear_errors,
+        s.clear_errors_raised,
+        s.raised,
+        s.raised_with_error,
+        s.precision(),
+        s.recall(),
+        s.raised_by_moves_alone
+    );
+    assert!(
+        s.clear_errors > 0,
+        "the history injected errors into the counted bins"
+    );
+    assert!(
+        late > 0,
+        "some picks reached the server after their bin was done"
+    );
+    assert_eq!(
+        s.recall(),
+        1.0,
+        "every clear error of a unit or more is raised: {s:?}"
+    );
+    assert_eq!(s.raised_by_moves_alone, 0, "{s:?}");
+    assert_eq!(
+        s.precision(),
+        1.0,
+        "the counter is exact, so every raised key is an error"
+    );
+}

@@ -436,8 +436,8 @@ pub fn place_recount(
     Placement::Unassigned {
         run,
         warning: format!(
-            "recount of {bin} has no counter other than {first_counter}: \
-             give run {run} to another counter"
+            "recounts in run {run} (first: recount of {bin}) have no counter other than \
+             {first_counter}: give run {run} to another counter"
         ),
     }
 }

@@ -593,10 +593,11 @@ fn insert_result(
 
 /// Counts the recount tasks (recounts and supervisor counts) of a key of a pass.
 fn recount_tasks_of(conn: &Connection, pass_id: i64, key: &ItemLot) -> Result<i64, StoreError> {
+    // Written from the result side so the planner walks two small index ranges.
     Ok(conn
         .prepare_cached(
-            "select count(*) from count_task t join count_result r on r.id = t.recount_of
-             where r.pass_id = ?1 and r.item_id = ?2 and r.lot = ?3",
+            "select count(*) from count_task where recount_of in
+                 (select id from count_result where pass_id = ?1 and item_id = ?2 and lot = ?3)",
         )?
         .query_row(params![pass_id, key.0, key.1], |r| r.get(0))?)
 }
@@ -609,9 +610,11 @@ fn latest_recount_pass(
 ) -> Result<Option<i64>, StoreError> {
     Ok(conn
         .prepare_cached(
-            "select p.id from count_pass p join count_task t on t.id = p.task_id
-             join count_result r on r.id = t.recount_of
-             where r.pass_id = ?1 and r.item_id = ?2 and r.lot = ?3 and p.done_at is not null
+            "select p.id from count_pass p
+             where p.task_id in (select t.id from count_task t where t.recount_of in
+                     (select r.id from count_result r
+                      where r.pass_id = ?1 and r.item_id = ?2 and r.lot = ?3))
+               and p.done_at is not null
              order by p.done_at desc, p.id desc limit 1",
         )?
         .query_row(params![pass_id, key.0, key.1], |r| r.get(0))
@@ -799,14 +802,23 @@ fn add_recount_task(
     ])?;
     let task = tx.last_insert_rowid();
     if let Some(w) = warning {
+        // Said once per run and counter, however many recounts wait there.
         let mut all: Vec<String> = serde_json::from_str(&warnings).unwrap_or_default();
+        if all.contains(&w) {
+            return bump_list(tx, list).map(|()| task);
+        }
         all.push(w);
         tx.prepare_cached("update count_list set warnings = ?2 where id = ?1")?
             .execute(params![list, json(&all)?])?;
     }
+    bump_list(tx, list)?;
+    Ok(task)
+}
+
+fn bump_list(tx: &Transaction, list: i64) -> Result<(), StoreError> {
     tx.prepare_cached("update count_list set version = version + 1 where id = ?1")?
         .execute([list])?;
-    Ok(task)
+    Ok(())
 }
 
 // ---------------------------------------------------------------------------
