@@ -48,7 +48,7 @@ fn sample_path(path: &str) -> String {
             "{site}" => "T",
             "{bin}" => "A-01-01-1",
             "{sku}" => "S1",
-            "{device}" | "{token}" | "{task}" | "{run}" => "999999",
+            "{device}" | "{token}" | "{task}" | "{run}" | "{id}" => "999999",
             "{day}" => "2026-03-02",
             s if s.starts_with('{') => {
                 panic!("add a sample value for {s} (route {path}) to the access test")

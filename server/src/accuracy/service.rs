@@ -238,7 +238,7 @@ pub async fn accuracy_report(
     period.check_span().map_err(ApiError::BadRequest)?;
     let settings = store.accuracy_settings(site.id).await?;
     let stored = store
-        .count_results(
+        .accuracy_results(
             site.id,
             ResultQuery {
                 from: period.from(),
@@ -438,7 +438,7 @@ pub async fn item_reports(
         return Err(ApiError::NotFound("no such item at this site".into()));
     }
     let results = store
-        .count_results(
+        .accuracy_results(
             site.id,
             ResultQuery {
                 from: period.from(),
@@ -567,7 +567,7 @@ pub async fn buffer_reports(
     }
     // The error history runs up to the end of the window, from the start.
     let history = store
-        .count_results(
+        .accuracy_results(
             site.id,
             ResultQuery {
                 from: Timestamp(i64::MIN),

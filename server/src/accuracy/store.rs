@@ -91,7 +91,7 @@ pub trait AccuracyStore: Send + Sync {
         settings: AccuracySettings,
     ) -> Result<(), StoreError>;
     /// Reads the current count results of a period, oldest first.
-    async fn count_results(
+    async fn accuracy_results(
         &self,
         site: SiteId,
         query: ResultQuery,

@@ -6,6 +6,7 @@
 
 pub mod accounts;
 mod catalog;
+pub mod count_day;
 mod sim;
 
 use crate::master::codes::{BinCode, Sku, ZoneCode};

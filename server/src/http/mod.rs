@@ -27,6 +27,7 @@ pub fn route_table() -> RouteTable {
     crate::planning::routes::routes(&mut t);
     crate::accuracy::routes::routes(&mut t);
     crate::sync::routes::routes(&mut t);
+    crate::netting::routes::routes(&mut t);
     t
 }
 

@@ -356,7 +356,7 @@ impl AccuracyStore for SqliteStore {
         self.write_tx(move |tx| put_settings(tx, site, &s)).await
     }
 
-    async fn count_results(
+    async fn accuracy_results(
         &self,
         site: SiteId,
         query: ResultQuery,
