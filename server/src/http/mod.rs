@@ -26,6 +26,8 @@ pub fn route_table() -> RouteTable {
     crate::ledger::routes::routes(&mut t);
     crate::planning::routes::routes(&mut t);
     crate::sync::routes::routes(&mut t);
+    crate::review::pages::routes(&mut t);
+    crate::review::routes::routes(&mut t);
     t
 }
 

@@ -7,6 +7,7 @@ pub mod master;
 pub mod migrate;
 pub mod planning;
 pub mod pool;
+pub mod review;
 pub mod sync;
 
 use super::{
