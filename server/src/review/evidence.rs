@@ -57,9 +57,16 @@ pub struct Evidence {
 }
 
 impl Evidence {
-    /// Parses stored evidence.
+    /// Parses stored evidence: the netting itself, or a record that holds it
+    /// under `netting` beside the facts it was computed from.
     pub fn parse(json: &str) -> Result<Self, String> {
-        serde_json::from_str(json).map_err(|e| format!("the stored evidence does not parse: {e}"))
+        let bad = |e: serde_json::Error| format!("the stored evidence does not parse: {e}");
+        let mut v: serde_json::Value = serde_json::from_str(json).map_err(bad)?;
+        let netting = match v.get_mut("netting") {
+            Some(n) if n.is_object() => n.take(),
+            _ => v,
+        };
+        serde_json::from_value(netting).map_err(bad)
     }
 
     /// Returns the index of `f*`: the stored one when it points at a state
@@ -141,5 +148,16 @@ mod tests {
                 .contains("net the count again")
         );
         assert!(Evidence::parse("[").is_err());
+    }
+
+    #[test]
+    fn the_netting_may_be_held_under_its_own_name() {
+        let e = Evidence::parse(
+            r#"{"sku": "S1", "netting": {"opening": 3, "states": [{"qty": 3, "at": null}],
+                "post_at": "2026-03-03T09:00:00Z"}, "moves": []}"#,
+        )
+        .unwrap();
+        assert_eq!(e.opening, 3);
+        assert_eq!(e.post_at, Some(Timestamp(1_772_528_400_000)));
     }
 }

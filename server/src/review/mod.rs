@@ -24,10 +24,10 @@ pub const DECIDERS: &[Role] = &[Role::InventoryManager, Role::Admin];
 
 /// Above this absolute value (minor units) only an inventory manager may
 /// approve, until a site stores its own (an invented default, not a standard).
-pub const DEFAULT_MANAGER_VALUE_MINOR: i64 = 100_000;
+pub const DEFAULT_MANAGER_VALUE_MINOR: i64 = 50_000;
 /// Bulk approval is offered below this absolute value (minor units), until a
 /// site stores its own (an invented default, not a standard).
-pub const DEFAULT_BULK_VALUE_MINOR: i64 = 10_000;
+pub const DEFAULT_BULK_VALUE_MINOR: i64 = 5_000;
 
 /// Most differences one list page shows.
 pub const MAX_LIST_ROWS: usize = 500;

@@ -177,7 +177,7 @@ pub trait ReviewStore: Send + Sync {
     /// Reads the site's review policy (the defaults until one is stored).
     async fn review_policy(&self, site: SiteId) -> Result<ReviewPolicy, StoreError>;
     /// Reads the site's reason codes (the defaults while it has none).
-    async fn reason_codes(&self, site: SiteId) -> Result<Vec<ReasonCode>, StoreError>;
+    async fn review_reasons(&self, site: SiteId) -> Result<Vec<ReasonCode>, StoreError>;
     /// Lists current out-of-tolerance results without a decision.
     async fn differences(
         &self,

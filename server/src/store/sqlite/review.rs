@@ -700,7 +700,7 @@ impl ReviewStore for SqliteStore {
         self.readers.run(move |c| review_policy(c, site)).await
     }
 
-    async fn reason_codes(&self, site: SiteId) -> Result<Vec<ReasonCode>, StoreError> {
+    async fn review_reasons(&self, site: SiteId) -> Result<Vec<ReasonCode>, StoreError> {
         self.readers.run(move |c| reason_codes(c, site)).await
     }
 
