@@ -94,3 +94,48 @@ create table count_review (
 
 -- A recount task names the result it re-checks.
 alter table count_task add column recount_of integer references count_result(id);
+
+-- The netting service's own columns. A recount's verdict on the first result:
+-- confirmed (waits for review), book_right (the first count was wrong: a hit) or
+-- supervisor_count (neither: a supervisor counts the bin).
+alter table count_result add column recount_outcome text
+    check (recount_outcome in ('confirmed', 'book_right', 'supervisor_count'));
+-- Logged against the count, not the record: a recount found the book right.
+alter table count_result add column first_count_wrong integer not null default 0
+    check (first_count_wrong in (0, 1));
+create index count_result_current on count_result(pass_id, item_id, lot) where superseded_by is null;
+create index count_result_settling on count_result(settles_at) where settled = 0 and superseded_by is null;
+-- Late movements find the passes they may change by bin and done time.
+create index count_pass_done on count_pass(bin_id, done_at) where done_at is not null;
+
+-- A recount is a second task for a bin already on the day's list, so the list's
+-- one-task-per-bin rule holds only for tasks that re-check no result. SQLite cannot
+-- drop a table constraint, so the table is rebuilt with the same columns and rows;
+-- references to it are checked at commit (count_pass.task_id points at the same ids).
+pragma defer_foreign_keys = on;
+create table count_task_rebuilt (
+    id          integer primary key,
+    list_id     integer not null references count_list(id),
+    bin_id      integer not null references bin(id),
+    seq         integer not null,
+    run         integer not null,
+    reason      text not null check (reason in ('recount', 'negative_balance', 'short_pick',
+                                                'zero_balance', 'due', 'dead_stock')),
+    class       text check (class in ('A', 'B', 'C')),
+    detail      text not null,
+    lines       integer not null,
+    est_s       integer not null,
+    status      text not null default 'open' check (status in ('open', 'started', 'done')),
+    done_at     integer,
+    recount_of  integer references count_result(id)
+) strict;
+insert into count_task_rebuilt (id, list_id, bin_id, seq, run, reason, class, detail, lines,
+                                est_s, status, done_at, recount_of)
+    select id, list_id, bin_id, seq, run, reason, class, detail, lines, est_s, status, done_at,
+           recount_of
+    from count_task;
+drop table count_task;
+alter table count_task_rebuilt rename to count_task;
+create index count_task_list on count_task(list_id, run, seq);
+create unique index count_task_bin on count_task(list_id, bin_id) where recount_of is null;
+create index count_task_recount on count_task(recount_of) where recount_of is not null;

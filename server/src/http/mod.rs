@@ -26,6 +26,7 @@ pub fn route_table() -> RouteTable {
     crate::ledger::routes::routes(&mut t);
     crate::planning::routes::routes(&mut t);
     crate::sync::routes::routes(&mut t);
+    crate::netting::routes::routes(&mut t);
     crate::review::pages::routes(&mut t);
     crate::review::routes::routes(&mut t);
     t

@@ -2,11 +2,15 @@
 //! taken, so no aisle has to be frozen (DESIGN §4), and the tolerance and
 //! recount rules that decide what happens to a difference (§5).
 //!
-//! Both files are pure arithmetic with no I/O: `rule` (windows, feasible
-//! book states, the nearest state, settling) and `tolerance` (hits, recount
-//! outcomes). The store and the routes that feed them live elsewhere.
+//! Pure arithmetic with no I/O: `rule` (windows, feasible book states, the
+//! nearest state, settling), `tolerance` (hits, recount outcomes) and `service`
+//! (a pass's facts to the rows to write, recount placement and effects). The
+//! store (`store::sqlite::netting`) gathers the facts and writes inside the sync
+//! and movement transactions; `routes` serves results and policy.
 
+pub mod routes;
 pub mod rule;
+pub mod service;
 pub mod tolerance;
 
 #[cfg(test)]

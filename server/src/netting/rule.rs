@@ -6,7 +6,7 @@
 //! DEVELOPERS.md ("Netting") states the rule as implemented.
 
 use crate::time::Timestamp;
-use serde::Serialize;
+use serde::{Deserialize, Serialize};
 
 /// The event-time uncertainty a count adjustment is posted with: the server
 /// stamps it itself, so [`KeyResult::adjustment`] lands where it was meant to.
@@ -14,12 +14,12 @@ pub const ADJUSTMENT_UNCERTAINTY_MS: i64 = 0;
 
 /// The ledger's sequence number of a movement: unique and stable, so it orders
 /// movements that share an event time.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, PartialOrd, Ord, Hash, Serialize)]
+#[derive(Debug, Clone, Copy, PartialEq, Eq, PartialOrd, Ord, Hash, Serialize, Deserialize)]
 #[serde(transparent)]
 pub struct MoveId(pub i64);
 
 /// The timing of one counter's pass over one bin, in server time.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
 pub struct CountTiming {
     /// `s`: the first scan in the bin (for a bin marked done with no scan at
     /// all, the moment it was opened or marked done).
@@ -31,7 +31,7 @@ pub struct CountTiming {
 }
 
 /// How one key `(item, lot)` of the bin was counted.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
 #[serde(tag = "how", rename_all = "snake_case")]
 pub enum KeyCount {
     /// Scanned or keyed: the quantity in base units and the key's last scan
@@ -42,14 +42,14 @@ pub enum KeyCount {
 }
 
 /// A closed interval of server time `[start, end]`.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
 pub struct Window {
     pub start: Timestamp,
     pub end: Timestamp,
 }
 
 /// Where a movement falls relative to a window.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
 #[serde(rename_all = "snake_case")]
 pub enum Place {
     /// Entirely before it, even widened by its uncertainty: part of the opening balance.
@@ -61,7 +61,7 @@ pub enum Place {
 }
 
 /// One movement of the key as the netting sees it.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, PartialOrd, Ord, Hash, Serialize)]
+#[derive(Debug, Clone, Copy, PartialEq, Eq, PartialOrd, Ord, Hash, Serialize, Deserialize)]
 pub struct NetMove {
     pub id: MoveId,
     /// When it physically happened, in server time.
@@ -74,7 +74,7 @@ pub struct NetMove {
 
 /// One feasible book value: the opening balance, or the balance once every
 /// window movement up to one event instant has been applied.
-#[derive(Debug, Clone, PartialEq, Eq, Serialize)]
+#[derive(Debug, Clone, PartialEq, Eq, Serialize, Deserialize)]
 pub struct BookState {
     pub qty: i64,
     /// The event instant of the movements that produced it; `None` for the opening.
@@ -84,7 +84,7 @@ pub struct BookState {
 }
 
 /// What happened, in words a manager can act on.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
 #[serde(rename_all = "snake_case")]
 pub enum Status {
     /// Nothing moved in the window: the count is compared with one book value.
@@ -101,7 +101,7 @@ pub enum Status {
 }
 
 /// Why a key gets no result.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
 #[serde(rename_all = "snake_case")]
 pub enum Skipped {
     /// Not scanned and the bin is not marked done: the counter may not have reached it.
@@ -115,7 +115,7 @@ pub enum Skipped {
 }
 
 /// The netting of one key: the evidence and the verdict.
-#[derive(Debug, Clone, PartialEq, Eq, Serialize)]
+#[derive(Debug, Clone, PartialEq, Eq, Serialize, Deserialize)]
 pub struct KeyResult {
     pub window: Window,
     /// `c`: the counted quantity (0 for a key not scanned in a bin marked done).
@@ -140,7 +140,7 @@ pub struct KeyResult {
 
 /// A count adjustment to post: `delta` at `event_at`, with uncertainty
 /// [`ADJUSTMENT_UNCERTAINTY_MS`].
-#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
 pub struct Adjustment {
     pub delta: i64,
     pub event_at: Timestamp,
@@ -340,7 +340,7 @@ fn posting_instant(window: &Window, state: &BookState) -> Timestamp {
 }
 
 /// The event-time habits of one movement source.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
 pub struct SourceTiming {
     /// How far its event times may be from the truth, ms.
     pub uncertainty_ms: i64,
@@ -349,7 +349,7 @@ pub struct SourceTiming {
 }
 
 /// Whether a count's results may still change.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
 #[serde(tag = "state", rename_all = "snake_case")]
 pub enum Settling {
     /// The bin is not marked done yet.

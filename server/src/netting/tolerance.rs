@@ -28,7 +28,7 @@ pub struct Tolerance {
 }
 
 /// A limit of a [`Tolerance`].
-#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
 #[serde(rename_all = "snake_case")]
 pub enum Limit {
     Units,
@@ -37,7 +37,7 @@ pub enum Limit {
 }
 
 /// The judgement of one variance.
-#[derive(Debug, Clone, PartialEq, Eq, Serialize)]
+#[derive(Debug, Clone, PartialEq, Eq, Serialize, Deserialize)]
 #[serde(tag = "verdict", rename_all = "snake_case")]
 pub enum Verdict {
     /// Variance 0.
@@ -163,7 +163,7 @@ pub fn judge(variance: i64, f_star: i64, unit_cost_minor: i64, tolerance: &Toler
 }
 
 /// What a recount says about a first count that was out of tolerance.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
 #[serde(rename_all = "snake_case")]
 pub enum RecountOutcome {
     /// The recount found the same difference: it goes to review.

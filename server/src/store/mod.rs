@@ -282,4 +282,67 @@ pub trait Store: AccountStore + ReviewStore + Send + Sync + 'static {
         after: i64,
         limit: usize,
     ) -> Result<Vec<crate::store::sqlite::sync::StoredLine>, StoreError>;
+
+    // Netting (DESIGN §4-5): results are written by the sync and movement paths
+    // themselves; these read them and keep the policy.
+
+    /// Reads a site's tolerances and review limits (the defaults until some are stored).
+    async fn netting_settings(
+        &self,
+        site: SiteId,
+    ) -> Result<crate::netting::service::NettingSettings, StoreError>;
+    /// Stores a site's tolerances and review limits.
+    async fn put_netting_settings(
+        &self,
+        site: SiteId,
+        settings: crate::netting::service::NettingSettings,
+    ) -> Result<(), StoreError>;
+    /// Lists a site's movement sources' timing.
+    async fn source_timings(
+        &self,
+        site: SiteId,
+    ) -> Result<Vec<crate::netting::service::SourceTimingRow>, StoreError>;
+    /// Replaces a site's movement sources' timing.
+    async fn put_source_timings(
+        &self,
+        site: SiteId,
+        rows: Vec<crate::netting::service::SourceTimingRow>,
+    ) -> Result<(), StoreError>;
+    /// Lists a site's reason codes.
+    async fn reason_codes(
+        &self,
+        site: SiteId,
+    ) -> Result<Vec<crate::netting::service::ReasonCode>, StoreError>;
+    /// Replaces a site's reason codes.
+    async fn put_reason_codes(
+        &self,
+        site: SiteId,
+        rows: Vec<crate::netting::service::ReasonCode>,
+    ) -> Result<(), StoreError>;
+    /// Lists a site's count results.
+    async fn count_results(
+        &self,
+        site: SiteId,
+        query: crate::store::sqlite::netting::ResultQuery,
+    ) -> Result<crate::store::sqlite::netting::ResultPage, StoreError>;
+    /// Reads one count result with its evidence.
+    async fn count_result(
+        &self,
+        site: SiteId,
+        id: i64,
+    ) -> Result<Option<crate::store::sqlite::netting::ResultDetail>, StoreError>;
+    /// Reads a count pass (by id or uid) with its current results.
+    async fn count_pass_report(
+        &self,
+        pass: String,
+    ) -> Result<Option<crate::store::sqlite::netting::PassReport>, StoreError>;
+    /// Nets again every pass marked done at a site (or one pass), superseding what changed.
+    async fn renet(
+        &self,
+        site: SiteId,
+        pass: Option<String>,
+        reason: String,
+    ) -> Result<crate::store::sqlite::netting::NetOutcome, StoreError>;
+    /// Marks results whose settling instant has passed as settled.
+    async fn settle_results(&self, now: Timestamp) -> Result<usize, StoreError>;
 }

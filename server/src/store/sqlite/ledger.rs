@@ -128,6 +128,7 @@ pub fn insert_movements(
         "insert into lot (item_id, code, expiry) values (?1, ?2, ?3) on conflict do nothing",
     )?;
     let mut reversed_q = tx.prepare_cached("select 1 from movement where reverses = ?1 limit 1")?;
+    let mut written_moves = Vec::new();
     for (i, m) in rows.iter().enumerate() {
         ids.push(None);
         let mut err = |field: &str, msg: String| errors.push(RowError::new(i, field, msg));
@@ -252,6 +253,12 @@ pub fn insert_movements(
             lot_q.execute(params![item_id, m.lot, m.expiry.map(|d| d.to_string())])?;
         }
         apply_to_balance(tx, &key, m.qty, m.event_at.0, snapshot_every)?;
+        written_moves.push(super::netting::NewMove {
+            uid: m.uid.as_str().to_string(),
+            key,
+            event_at: m.event_at.0,
+            source: m.source.clone(),
+        });
         outcome.recorded += 1;
         if (i + 1) % PROGRESS_EVERY == 0 {
             progress.tick(PROGRESS_EVERY as u64);
@@ -261,6 +268,9 @@ pub fn insert_movements(
         return Err(StoreError::Rejected(errors));
     }
     progress.tick((rows.len() % PROGRESS_EVERY) as u64);
+    // Results of counts these movements reach are re-netted in this same transaction.
+    drop((insert, lot_q, reversed_q));
+    super::netting::renet_after_movements(tx, site, &written_moves, now)?;
     outcome.watermark = watermark(tx)?;
     Ok(outcome)
 }

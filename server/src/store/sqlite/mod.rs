@@ -5,6 +5,7 @@ pub mod accounts;
 pub mod ledger;
 pub mod master;
 pub mod migrate;
+pub mod netting;
 pub mod planning;
 pub mod pool;
 pub mod review;
@@ -419,7 +420,14 @@ impl Store for SqliteStore {
         &self,
         batch: crate::sync::SyncBatch,
     ) -> Result<Vec<cairn_scan::wire::EventResult>, StoreError> {
-        self.write_tx(move |tx| sync::apply_sync(tx, &batch)).await
+        // Netting runs in the request's own transaction: the acknowledgement the phone
+        // deletes its copy on and the results of the passes it finished commit together.
+        self.write_tx(move |tx| {
+            let results = sync::apply_sync(tx, &batch)?;
+            netting::after_sync(tx, &batch, &results, Timestamp::now())?;
+            Ok(results)
+        })
+        .await
     }
 
     async fn catalog(
@@ -438,6 +446,105 @@ impl Store for SqliteStore {
         self.readers
             .run(move |c| sync::count_lines(c, site, after, limit))
             .await
+    }
+
+    async fn netting_settings(
+        &self,
+        site: SiteId,
+    ) -> Result<crate::netting::service::NettingSettings, StoreError> {
+        self.readers
+            .run(move |c| netting::netting_settings(c, site))
+            .await
+    }
+
+    async fn put_netting_settings(
+        &self,
+        site: SiteId,
+        settings: crate::netting::service::NettingSettings,
+    ) -> Result<(), StoreError> {
+        self.write_tx(move |tx| netting::put_netting_settings(tx, site, &settings))
+            .await
+    }
+
+    async fn source_timings(
+        &self,
+        site: SiteId,
+    ) -> Result<Vec<crate::netting::service::SourceTimingRow>, StoreError> {
+        self.readers
+            .run(move |c| netting::source_timings(c, site))
+            .await
+    }
+
+    async fn put_source_timings(
+        &self,
+        site: SiteId,
+        rows: Vec<crate::netting::service::SourceTimingRow>,
+    ) -> Result<(), StoreError> {
+        self.write_tx(move |tx| netting::put_source_timings(tx, site, &rows))
+            .await
+    }
+
+    async fn reason_codes(
+        &self,
+        site: SiteId,
+    ) -> Result<Vec<crate::netting::service::ReasonCode>, StoreError> {
+        self.readers
+            .run(move |c| netting::reason_codes(c, site))
+            .await
+    }
+
+    async fn put_reason_codes(
+        &self,
+        site: SiteId,
+        rows: Vec<crate::netting::service::ReasonCode>,
+    ) -> Result<(), StoreError> {
+        self.write_tx(move |tx| netting::put_reason_codes(tx, site, &rows))
+            .await
+    }
+
+    async fn count_results(
+        &self,
+        site: SiteId,
+        query: netting::ResultQuery,
+    ) -> Result<netting::ResultPage, StoreError> {
+        self.readers
+            .run(move |c| netting::count_results(c, site, &query, Timestamp::now()))
+            .await
+    }
+
+    async fn count_result(
+        &self,
+        site: SiteId,
+        id: i64,
+    ) -> Result<Option<netting::ResultDetail>, StoreError> {
+        self.readers
+            .run(move |c| netting::count_result(c, site, id, Timestamp::now()))
+            .await
+    }
+
+    async fn count_pass_report(
+        &self,
+        pass: String,
+    ) -> Result<Option<netting::PassReport>, StoreError> {
+        self.readers
+            .run(move |c| netting::pass_report(c, &pass, Timestamp::now()))
+            .await
+    }
+
+    async fn renet(
+        &self,
+        site: SiteId,
+        pass: Option<String>,
+        reason: String,
+    ) -> Result<netting::NetOutcome, StoreError> {
+        self.write_tx(move |tx| {
+            netting::renet_passes(tx, site, pass.as_deref(), &reason, Timestamp::now())
+        })
+        .await
+    }
+
+    async fn settle_results(&self, now: Timestamp) -> Result<usize, StoreError> {
+        self.write_tx(move |tx| netting::settle_due(tx, now)).await
     }
 }
 

@@ -1,0 +1,189 @@
+//! HTTP routes of netting, relative to `/api/v1/sites/{site}`: the results of counts
+//! netted against the ledger with their evidence (book readers: they carry book
+//! quantities, so counters never get them), and the policy behind them — tolerances,
+//! movement sources' timing, reason codes (read by book readers, set by count policy).
+
+use super::service::{self, NettingSettings, ReasonCode, SourceTimingRow};
+use crate::AppState;
+use crate::error::ApiError;
+use crate::http::access::{Access, BOOK_READERS, COUNT_POLICY, RouteTable};
+use crate::http::extract::{CurrentSite, Params};
+use crate::store::sqlite::netting::{
+    MAX_RESULTS_PAGE, ResultDetail, ResultPage, ResultQuery, ResultState,
+};
+use axum::Json;
+use axum::extract::{Path, State};
+use serde::Deserialize;
+
+/// Results one page returns unless asked for fewer.
+const DEFAULT_RESULTS_PAGE: usize = 200;
+
+/// Adds the netting routes.
+pub fn routes(t: &mut RouteTable) {
+    macro_rules! path {
+        ($tail:literal) => {
+            concat!("/api/v1/sites/{site}", $tail)
+        };
+    }
+    t.get(
+        path!("/count-results"),
+        Access::Site(BOOK_READERS),
+        list_results,
+    )
+    .get(
+        path!("/count-results/{id}"),
+        Access::Site(BOOK_READERS),
+        get_result,
+    )
+    .get(
+        path!("/netting/settings"),
+        Access::Site(BOOK_READERS),
+        get_settings,
+    )
+    .put(
+        path!("/netting/settings"),
+        Access::Site(COUNT_POLICY),
+        put_settings,
+    )
+    .get(
+        path!("/netting/sources"),
+        Access::Site(BOOK_READERS),
+        get_sources,
+    )
+    .put(
+        path!("/netting/sources"),
+        Access::Site(COUNT_POLICY),
+        put_sources,
+    )
+    .get(
+        path!("/netting/reason-codes"),
+        Access::Site(BOOK_READERS),
+        get_reason_codes,
+    )
+    .put(
+        path!("/netting/reason-codes"),
+        Access::Site(COUNT_POLICY),
+        put_reason_codes,
+    );
+}
+
+fn body<T: serde::de::DeserializeOwned>(bytes: &[u8]) -> Result<T, ApiError> {
+    let de = &mut serde_json::Deserializer::from_slice(bytes);
+    serde_path_to_error::deserialize(de).map_err(|e| {
+        let path = e.path().to_string();
+        ApiError::BadRequest(format!("{path}: {}", e.into_inner()))
+    })
+}
+
+#[derive(Deserialize)]
+#[serde(deny_unknown_fields)]
+struct ResultParams {
+    state: Option<ResultState>,
+    bin: Option<String>,
+    sku: Option<String>,
+    pass: Option<String>,
+    limit: Option<usize>,
+    #[serde(default)]
+    after: i64,
+}
+
+async fn list_results(
+    State(state): State<AppState>,
+    CurrentSite(site): CurrentSite,
+    Params(q): Params<ResultParams>,
+) -> Result<Json<ResultPage>, ApiError> {
+    let limit = q.limit.unwrap_or(DEFAULT_RESULTS_PAGE);
+    if !(1..=MAX_RESULTS_PAGE).contains(&limit) {
+        return Err(ApiError::BadRequest(format!(
+            "limit {limit} is out of range 1 to {MAX_RESULTS_PAGE}"
+        )));
+    }
+    let page = state
+        .store
+        .count_results(
+            site.id,
+            ResultQuery {
+                state: q.state.unwrap_or(ResultState::Open),
+                bin: q.bin,
+                sku: q.sku,
+                pass: q.pass,
+                limit,
+                after: q.after,
+            },
+        )
+        .await?;
+    Ok(Json(page))
+}
+
+async fn get_result(
+    State(state): State<AppState>,
+    CurrentSite(site): CurrentSite,
+    Path((_, id)): Path<(String, String)>,
+) -> Result<Json<ResultDetail>, ApiError> {
+    let n: i64 = id
+        .parse()
+        .map_err(|_| ApiError::BadRequest(format!("result id '{id}' is not a number")))?;
+    state
+        .store
+        .count_result(site.id, n)
+        .await?
+        .map(Json)
+        .ok_or_else(|| ApiError::NotFound(format!("no count result {n} at this site")))
+}
+
+async fn get_settings(
+    State(state): State<AppState>,
+    CurrentSite(site): CurrentSite,
+) -> Result<Json<NettingSettings>, ApiError> {
+    Ok(Json(state.store.netting_settings(site.id).await?))
+}
+
+async fn put_settings(
+    State(state): State<AppState>,
+    CurrentSite(site): CurrentSite,
+    bytes: axum::body::Bytes,
+) -> Result<Json<NettingSettings>, ApiError> {
+    let s: NettingSettings = body(&bytes)?;
+    s.check().map_err(ApiError::BadRequest)?;
+    state.store.put_netting_settings(site.id, s).await?;
+    Ok(Json(s))
+}
+
+async fn get_sources(
+    State(state): State<AppState>,
+    CurrentSite(site): CurrentSite,
+) -> Result<Json<Vec<SourceTimingRow>>, ApiError> {
+    Ok(Json(state.store.source_timings(site.id).await?))
+}
+
+async fn put_sources(
+    State(state): State<AppState>,
+    CurrentSite(site): CurrentSite,
+    bytes: axum::body::Bytes,
+) -> Result<Json<Vec<SourceTimingRow>>, ApiError> {
+    let rows: Vec<SourceTimingRow> = body(&bytes)?;
+    service::check_sources(&rows).map_err(ApiError::BadRequest)?;
+    state
+        .store
+        .put_source_timings(site.id, rows.clone())
+        .await?;
+    Ok(Json(rows))
+}
+
+async fn get_reason_codes(
+    State(state): State<AppState>,
+    CurrentSite(site): CurrentSite,
+) -> Result<Json<Vec<ReasonCode>>, ApiError> {
+    Ok(Json(state.store.reason_codes(site.id).await?))
+}
+
+async fn put_reason_codes(
+    State(state): State<AppState>,
+    CurrentSite(site): CurrentSite,
+    bytes: axum::body::Bytes,
+) -> Result<Json<Vec<ReasonCode>>, ApiError> {
+    let rows: Vec<ReasonCode> = body(&bytes)?;
+    service::check_reason_codes(&rows).map_err(ApiError::BadRequest)?;
+    state.store.put_reason_codes(site.id, rows.clone()).await?;
+    Ok(Json(rows))
+}

@@ -1,0 +1,1264 @@
+//! SQL of the netting service: gathering a pass's facts, writing `count_result` rows
+//! (a re-net supersedes, the old row stays), recount tasks on the day's list, recount
+//! outcomes, settling, the site's netting policy, and the reads behind the routes and
+//! `cairn net`. Every write here runs inside the transaction that brought the news: the
+//! sync request that marked a bin done (or sent a late line), or the movement batch
+//! that changed a key's history. The decisions are `netting::service`'s.
+
+use crate::master::SiteId;
+use crate::netting::rule::{BookState, CountTiming, KeyCount, KeyResult, Status};
+use crate::netting::service::{
+    self, Evidence, KeyFacts, LedgerMove, Netted, NettingSettings, Placement, ReasonCode,
+    SourceTimingRow, Sources, VERDICT_HIT, VERDICT_OUT,
+};
+use crate::netting::tolerance::{Tolerance, Verdict};
+use crate::planning::abc::Class;
+use crate::store::StoreError;
+use crate::store::sqlite::ledger::{self, Key};
+use crate::time::Timestamp;
+use rusqlite::{Connection, OptionalExtension, Transaction, params};
+use serde::Serialize;
+use std::collections::{BTreeMap, BTreeSet, HashSet};
+
+/// The stored status of a key whose re-net found nothing left to net (not scanned and
+/// zero throughout the window): the book now agrees with a count of 0.
+pub const STATUS_NOTHING_TO_NET: &str = "nothing_to_net";
+/// Most results one page returns.
+pub const MAX_RESULTS_PAGE: usize = 1_000;
+/// Most movement ids a re-net reason names before it says "and N more".
+const REASON_IDS: usize = 5;
+/// Estimated seconds of a recount task when the first task's estimate is unknown.
+const RECOUNT_EST_S: i64 = 120;
+
+fn json<T: Serialize>(v: &T) -> Result<String, StoreError> {
+    Ok(serde_json::to_string(v).map_err(anyhow::Error::from)?)
+}
+
+// ---------------------------------------------------------------------------
+// Policy: tolerances, source timing, reason codes.
+
+/// Reads a site's netting settings (the defaults until some are stored).
+pub fn netting_settings(conn: &Connection, site: SiteId) -> Result<NettingSettings, StoreError> {
+    let row = conn
+        .prepare_cached(
+            "select tol_a_units, tol_a_bp, tol_a_value_minor, tol_b_units, tol_b_bp,
+                    tol_b_value_minor, tol_c_units, tol_c_bp, tol_c_value_minor,
+                    auto_adjust, manager_value_minor, bulk_value_minor
+             from netting_settings where site_id = ?1",
+        )?
+        .query_row([site.0], |r| {
+            let t = |i: usize| -> rusqlite::Result<Tolerance> {
+                Ok(Tolerance {
+                    units: r.get(i)?,
+                    percent_bp: r.get(i + 1)?,
+                    value_minor: r.get(i + 2)?,
+                })
+            };
+            let mut s = NettingSettings::default();
+            s.tolerances.a = t(0)?;
+            s.tolerances.b = t(3)?;
+            s.tolerances.c = t(6)?;
+            s.auto_adjust = r.get(9)?;
+            s.manager_value_minor = r.get(10)?;
+            s.bulk_value_minor = r.get(11)?;
+            Ok(s)
+        })
+        .optional()?;
+    Ok(row.unwrap_or_default())
+}
+
+/// Stores a site's netting settings.
+pub fn put_netting_settings(
+    tx: &Transaction,
+    site: SiteId,
+    s: &NettingSettings,
+) -> Result<(), StoreError> {
+    let (a, b, c) = (s.tolerances.a, s.tolerances.b, s.tolerances.c);
+    tx.prepare_cached(
+        "insert or replace into netting_settings (site_id, tol_a_units, tol_a_bp,
+             tol_a_value_minor, tol_b_units, tol_b_bp, tol_b_value_minor, tol_c_units,
+             tol_c_bp, tol_c_value_minor, auto_adjust, manager_value_minor, bulk_value_minor)
+         values (?1, ?2, ?3, ?4, ?5, ?6, ?7, ?8, ?9, ?10, ?11, ?12, ?13)",
+    )?
+    .execute(params![
+        site.0,
+        a.units,
+        a.percent_bp,
+        a.value_minor,
+        b.units,
+        b.percent_bp,
+        b.value_minor,
+        c.units,
+        c.percent_bp,
+        c.value_minor,
+        s.auto_adjust,
+        s.manager_value_minor,
+        s.bulk_value_minor
+    ])?;
+    Ok(())
+}
+
+/// Lists a site's movement sources with their timing, by name.
+pub fn source_timings(conn: &Connection, site: SiteId) -> Result<Vec<SourceTimingRow>, StoreError> {
+    let rows = conn
+        .prepare_cached(
+            "select source, uncertainty_ms, posting_lag_ms from source_timing
+             where site_id = ?1 order by source",
+        )?
+        .query_map([site.0], |r| {
+            Ok(SourceTimingRow {
+                source: r.get(0)?,
+                uncertainty_ms: r.get(1)?,
+                posting_lag_ms: r.get(2)?,
+            })
+        })?
+        .collect::<rusqlite::Result<Vec<_>>>()?;
+    Ok(rows)
+}
+
+/// Replaces a site's source timings with `rows`.
+pub fn put_source_timings(
+    tx: &Transaction,
+    site: SiteId,
+    rows: &[SourceTimingRow],
+) -> Result<(), StoreError> {
+    tx.execute("delete from source_timing where site_id = ?1", [site.0])?;
+    let mut ins = tx.prepare_cached(
+        "insert into source_timing (site_id, source, uncertainty_ms, posting_lag_ms)
+         values (?1, ?2, ?3, ?4)",
+    )?;
+    for r in rows {
+        ins.execute(params![
+            site.0,
+            r.source,
+            r.uncertainty_ms,
+            r.posting_lag_ms
+        ])?;
+    }
+    Ok(())
+}
+
+/// Lists a site's reason codes, by code.
+pub fn reason_codes(conn: &Connection, site: SiteId) -> Result<Vec<ReasonCode>, StoreError> {
+    let rows = conn
+        .prepare_cached("select code, label from reason_code where site_id = ?1 order by code")?
+        .query_map([site.0], |r| {
+            Ok(ReasonCode {
+                code: r.get(0)?,
+                label: r.get(1)?,
+            })
+        })?
+        .collect::<rusqlite::Result<Vec<_>>>()?;
+    Ok(rows)
+}
+
+/// Replaces a site's reason codes with `rows`.
+pub fn put_reason_codes(
+    tx: &Transaction,
+    site: SiteId,
+    rows: &[ReasonCode],
+) -> Result<(), StoreError> {
+    tx.execute("delete from reason_code where site_id = ?1", [site.0])?;
+    let mut ins =
+        tx.prepare_cached("insert into reason_code (site_id, code, label) values (?1, ?2, ?3)")?;
+    for r in rows {
+        ins.execute(params![site.0, r.code, r.label])?;
+    }
+    Ok(())
+}
+
+// ---------------------------------------------------------------------------
+// Netting a pass.
+
+/// A pass as the netting needs it.
+#[derive(Debug, Clone)]
+struct PassFacts {
+    id: i64,
+    uid: String,
+    site: SiteId,
+    bin_id: i64,
+    bin_code: String,
+    task_est_s: Option<i64>,
+    user_name: String,
+    timing: CountTiming,
+    /// The result this pass re-checks (its task's `recount_of`).
+    recount_of: Option<i64>,
+}
+
+fn pass_facts(conn: &Connection, pass_id: i64) -> Result<Option<PassFacts>, StoreError> {
+    Ok(conn
+        .prepare_cached(
+            "select p.id, p.uid, p.site_id, p.bin_id, b.code, p.task_id, t.est_s, u.name,
+                    p.first_at, p.done_at, p.uncertainty_ms, t.recount_of
+             from count_pass p join bin b on b.id = p.bin_id
+             join user_account u on u.id = p.user_id
+             left join count_task t on t.id = p.task_id
+             where p.id = ?1",
+        )?
+        .query_row([pass_id], |r| {
+            Ok(PassFacts {
+                id: r.get(0)?,
+                uid: r.get(1)?,
+                site: SiteId(r.get(2)?),
+                bin_id: r.get(3)?,
+                bin_code: r.get(4)?,
+                task_est_s: r.get(6)?,
+                user_name: r.get(7)?,
+                timing: CountTiming {
+                    first_scan: Timestamp(r.get(8)?),
+                    done: r.get::<_, Option<i64>>(9)?.map(Timestamp),
+                    clock_uncertainty_ms: r.get(10)?,
+                },
+                recount_of: r.get(11)?,
+            })
+        })
+        .optional()?)
+}
+
+/// A key of a bin: item and lot.
+type ItemLot = (i64, String);
+
+/// The current (not superseded) result of one key of a pass.
+struct Current {
+    id: i64,
+    status: String,
+    evidence: Evidence,
+}
+
+fn current_result(
+    conn: &Connection,
+    pass_id: i64,
+    key: &ItemLot,
+) -> Result<Option<Current>, StoreError> {
+    let row = conn
+        .prepare_cached(
+            "select id, status, evidence from count_result
+             where pass_id = ?1 and item_id = ?2 and lot = ?3 and superseded_by is null",
+        )?
+        .query_row(params![pass_id, key.0, key.1], |r| {
+            Ok((
+                r.get::<_, i64>(0)?,
+                r.get::<_, String>(1)?,
+                r.get::<_, String>(2)?,
+            ))
+        })
+        .optional()?;
+    row.map(|(id, status, ev)| {
+        let evidence: Evidence = serde_json::from_str(&ev)
+            .map_err(|e| anyhow::anyhow!("count_result {id} has unreadable evidence: {e}"))?;
+        Ok(Current {
+            id,
+            status,
+            evidence,
+        })
+    })
+    .transpose()
+}
+
+fn item_facts(conn: &Connection, item: i64) -> Result<(String, i64, Option<Class>), StoreError> {
+    let (sku, cost): (String, i64) = conn
+        .prepare_cached("select sku, unit_cost_minor from item where id = ?1")?
+        .query_row([item], |r| Ok((r.get(0)?, r.get(1)?)))?;
+    let class: Option<String> = conn
+        .prepare_cached(
+            "select class from item_class where item_id = ?1 order by run_id desc limit 1",
+        )?
+        .query_row([item], |r| r.get(0))
+        .optional()?;
+    Ok((sku, cost, class.as_deref().and_then(Class::parse)))
+}
+
+fn key_moves(
+    conn: &Connection,
+    key: &Key,
+    from: i64,
+    to: i64,
+) -> Result<Vec<LedgerMove>, StoreError> {
+    let rows = conn
+        .prepare_cached(
+            "select id, uid, event_at, qty, kind, source from movement
+             where bin_id = ?1 and item_id = ?2 and lot = ?3 and event_at >= ?4 and event_at <= ?5
+             order by event_at, id",
+        )?
+        .query_map(params![key.bin_id, key.item_id, key.lot, from, to], |r| {
+            Ok(LedgerMove {
+                id: r.get(0)?,
+                uid: r.get(1)?,
+                event_at: Timestamp(r.get(2)?),
+                delta: r.get(3)?,
+                kind: r.get(4)?,
+                source: r.get(5)?,
+            })
+        })?
+        .collect::<rusqlite::Result<Vec<_>>>()?;
+    Ok(rows)
+}
+
+#[allow(clippy::too_many_arguments)]
+/// Builds the result of a key the re-net no longer finds anything to net for: the
+/// count of 0 and a book of 0 throughout the bin's window agree.
+fn vanished(
+    pass: &PassFacts,
+    item_id: i64,
+    lot: &str,
+    sku: String,
+    class: Option<Class>,
+    cost: i64,
+    sources: &Sources,
+    settings: &NettingSettings,
+) -> Option<Netted> {
+    let window = pass.timing.key_window(KeyCount::NotScanned)?;
+    let settles_at = crate::netting::rule::settles_after(&pass.timing, &sources.timings())?;
+    let netting = KeyResult {
+        window,
+        counted: 0,
+        scanned: false,
+        opening: 0,
+        states: vec![BookState {
+            qty: 0,
+            at: None,
+            moves: Vec::new(),
+        }],
+        nearest: 0,
+        f_star: 0,
+        variance: 0,
+        moves_in_window: Vec::new(),
+        status: Status::NoMovesInWindow,
+        post_at: window.start.plus_ms(-1),
+    };
+    Some(Netted {
+        item_id,
+        lot: lot.to_string(),
+        class,
+        unit_cost_minor: cost,
+        counted: 0,
+        f_star: 0,
+        variance: 0,
+        status: Status::NoMovesInWindow,
+        verdict: VERDICT_HIT,
+        counted_at: pass.timing.done.unwrap_or(pass.timing.first_scan),
+        window,
+        settles_at,
+        evidence: Evidence {
+            sku,
+            timing: pass.timing,
+            history_from: service::history_from(&pass.timing, sources),
+            balance_before: 0,
+            netting,
+            moves: Vec::new(),
+            tolerance: settings.tolerance_for(class),
+            judged: Verdict::Exact,
+            settles_at,
+        },
+    })
+}
+
+/// What netting a pass wrote.
+#[derive(Debug, Clone, Default, PartialEq, Eq, Serialize)]
+pub struct NetOutcome {
+    /// Results written (first nettings and superseding rows).
+    pub written: Vec<i64>,
+    /// Recount and supervisor-count tasks added to a day's list.
+    pub tasks: Vec<i64>,
+}
+
+/// Nets a pass marked done: every counted key and every key of the bin with a non-zero
+/// balance in the window (or only the keys in `only`). A key whose netting equals its
+/// current result keeps it; otherwise a new row is written and supersedes the old one,
+/// with `reason` as its `renet_reason`. Out-of-tolerance first counts get a recount
+/// task; a recount pass decides its first result's outcome. Does nothing for an open pass.
+pub fn net_pass(
+    tx: &Transaction,
+    pass_id: i64,
+    only: Option<&HashSet<ItemLot>>,
+    reason: &str,
+    now: Timestamp,
+) -> Result<NetOutcome, StoreError> {
+    let mut out = NetOutcome::default();
+    let Some(pass) = pass_facts(tx, pass_id)? else {
+        return Err(StoreError::NotFound(format!("no count pass {pass_id}")));
+    };
+    let Some(done) = pass.timing.done else {
+        return Ok(out);
+    };
+    let settings = netting_settings(tx, pass.site)?;
+    let sources = Sources::new(&source_timings(tx, pass.site)?);
+    let watermark = ledger::watermark(tx)?;
+    let history_from = service::history_from(&pass.timing, &sources);
+    // No key's window ends after the bin's, and no movement stamped later than its
+    // source's uncertainty after that can reach into it.
+    let history_to = done
+        .plus_ms(pass.timing.clock_uncertainty_ms.max(0))
+        .plus_ms(sources.max_uncertainty_ms());
+
+    // Counted keys: the sum of the lines not undone, and the last scan.
+    let mut counted: BTreeMap<ItemLot, (i64, i64)> = BTreeMap::new();
+    for row in tx
+        .prepare_cached(
+            "select l.item_id, l.lot, sum(l.qty), max(l.at) from count_line l
+             where l.pass_id = ?1
+               and not exists (select 1 from count_line_undo u where u.line_uid = l.uid)
+             group by l.item_id, l.lot",
+        )?
+        .query_map([pass.id], |r| {
+            Ok(((r.get(0)?, r.get(1)?), (r.get(2)?, r.get(3)?)))
+        })?
+    {
+        let (k, v) = row?;
+        counted.insert(k, v);
+    }
+    // Every key the bin has ever held, and every key this pass has a result for.
+    let mut keys: BTreeSet<ItemLot> = counted.keys().cloned().collect();
+    for row in tx
+        .prepare_cached("select item_id, lot from balance where bin_id = ?1")?
+        .query_map([pass.bin_id], |r| Ok((r.get(0)?, r.get(1)?)))?
+    {
+        keys.insert(row?);
+    }
+    for row in tx
+        .prepare_cached(
+            "select item_id, lot from count_result where pass_id = ?1 and superseded_by is null",
+        )?
+        .query_map([pass.id], |r| Ok((r.get(0)?, r.get(1)?)))?
+    {
+        keys.insert(row?);
+    }
+    let target = match pass.recount_of {
+        Some(r) => tx
+            .prepare_cached("select item_id, lot, pass_id from count_result where id = ?1")?
+            .query_row([r], |r| Ok(((r.get(0)?, r.get(1)?), r.get::<_, i64>(2)?)))
+            .optional()?,
+        None => None,
+    };
+    if let Some((k, _)) = &target {
+        keys.insert(k.clone());
+    }
+    if keys.len() > service::MAX_KEYS_PER_PASS {
+        return Err(anyhow::anyhow!(
+            "count {} touches {} keys, more than {}",
+            pass.uid,
+            keys.len(),
+            service::MAX_KEYS_PER_PASS
+        )
+        .into());
+    }
+
+    let mut changed = Vec::new();
+    for key in keys {
+        if only.is_some_and(|o| !o.contains(&key)) {
+            continue;
+        }
+        let ledger_key = Key {
+            bin_id: pass.bin_id,
+            item_id: key.0,
+            lot: key.1.clone(),
+        };
+        let (sku, cost, class) = item_facts(tx, key.0)?;
+        let count = match counted.get(&key) {
+            Some(&(qty, last)) => KeyCount::Scanned {
+                qty,
+                last: Timestamp(last),
+            },
+            None => KeyCount::NotScanned,
+        };
+        let facts = KeyFacts {
+            item_id: key.0,
+            sku: sku.clone(),
+            lot: key.1.clone(),
+            class,
+            unit_cost_minor: cost,
+            count,
+            balance_before: ledger::balance_as_of(tx, &ledger_key, history_from.0 - 1)?,
+            moves: key_moves(tx, &ledger_key, history_from.0, history_to.0)?,
+        };
+        let current = current_result(tx, pass.id, &key)?;
+        let is_target = target.as_ref().is_some_and(|(k, _)| *k == key);
+        let (fresh, vanished_row) =
+            match service::net_one(&pass.timing, &facts, &sources, &settings) {
+                Some(n) => (Some(n), false),
+                None if is_target
+                    || current
+                        .as_ref()
+                        .is_some_and(|c| c.status != STATUS_NOTHING_TO_NET) =>
+                {
+                    (
+                        vanished(&pass, key.0, &key.1, sku, class, cost, &sources, &settings),
+                        true,
+                    )
+                }
+                None => (None, false),
+            };
+        let Some(fresh) = fresh else { continue };
+        if let Some(c) = &current
+            && !service::differs(&c.evidence, &fresh.evidence)
+        {
+            continue;
+        }
+        let status = if vanished_row {
+            STATUS_NOTHING_TO_NET
+        } else {
+            service::status_text(fresh.status)
+        };
+        let id = insert_result(
+            tx,
+            &pass,
+            &fresh,
+            status,
+            watermark,
+            now,
+            if current.is_some() { reason } else { "" },
+        )?;
+        if let Some(c) = &current {
+            tx.prepare_cached("update count_result set superseded_by = ?1 where id = ?2")?
+                .execute(params![id, c.id])?;
+        }
+        out.written.push(id);
+        changed.push((key, id, fresh.verdict));
+    }
+
+    // A first count out of tolerance goes to a recount, once per key of the pass.
+    let is_recount = pass.recount_of.is_some();
+    for (key, id, verdict) in &changed {
+        if is_recount || *verdict != VERDICT_OUT {
+            continue;
+        }
+        if recount_tasks_of(tx, pass.id, key)? == 0 {
+            let sku = item_facts(tx, key.0)?.0;
+            out.tasks.push(add_recount_task(
+                tx, &pass, *id, &sku, true, watermark, now,
+            )?);
+        }
+    }
+    // Recount outcomes: this pass re-checks a result, or re-checked results of this
+    // pass changed under their recounts.
+    if let Some((key, first_pass)) = target {
+        out.tasks.extend(apply_recount(
+            tx, first_pass, &key, pass.id, watermark, now,
+        )?);
+    }
+    for (key, _, _) in &changed {
+        if is_recount {
+            continue;
+        }
+        if let Some(rc) = latest_recount_pass(tx, pass.id, key)? {
+            out.tasks
+                .extend(apply_recount(tx, pass.id, key, rc, watermark, now)?);
+        }
+    }
+    Ok(out)
+}
+
+#[allow(clippy::too_many_arguments)]
+fn insert_result(
+    tx: &Transaction,
+    pass: &PassFacts,
+    n: &Netted,
+    status: &str,
+    watermark: i64,
+    now: Timestamp,
+    reason: &str,
+) -> Result<i64, StoreError> {
+    tx.prepare_cached(
+        "insert into count_result (pass_id, site_id, bin_id, item_id, lot, class, counted,
+             f_star, variance, status, verdict, unit_cost_minor, counted_at, window_start,
+             window_end, evidence, watermark, settles_at, settled, renet_reason, computed_at)
+         values (?1, ?2, ?3, ?4, ?5, ?6, ?7, ?8, ?9, ?10, ?11, ?12, ?13, ?14, ?15, ?16, ?17,
+                 ?18, ?19, ?20, ?21)",
+    )?
+    .execute(params![
+        pass.id,
+        pass.site.0,
+        pass.bin_id,
+        n.item_id,
+        n.lot,
+        n.class.map(Class::as_str),
+        n.counted,
+        n.f_star,
+        n.variance,
+        status,
+        n.verdict,
+        n.unit_cost_minor,
+        n.counted_at.0,
+        n.window.start.0,
+        n.window.end.0,
+        json(&n.evidence)?,
+        watermark,
+        n.settles_at.0,
+        now > n.settles_at,
+        reason,
+        now.0
+    ])?;
+    Ok(tx.last_insert_rowid())
+}
+
+/// Counts the recount tasks (recounts and supervisor counts) of a key of a pass.
+fn recount_tasks_of(conn: &Connection, pass_id: i64, key: &ItemLot) -> Result<i64, StoreError> {
+    Ok(conn
+        .prepare_cached(
+            "select count(*) from count_task t join count_result r on r.id = t.recount_of
+             where r.pass_id = ?1 and r.item_id = ?2 and r.lot = ?3",
+        )?
+        .query_row(params![pass_id, key.0, key.1], |r| r.get(0))?)
+}
+
+/// Returns the last pass marked done that re-checks a key of a pass.
+fn latest_recount_pass(
+    conn: &Connection,
+    pass_id: i64,
+    key: &ItemLot,
+) -> Result<Option<i64>, StoreError> {
+    Ok(conn
+        .prepare_cached(
+            "select p.id from count_pass p join count_task t on t.id = p.task_id
+             join count_result r on r.id = t.recount_of
+             where r.pass_id = ?1 and r.item_id = ?2 and r.lot = ?3 and p.done_at is not null
+             order by p.done_at desc, p.id desc limit 1",
+        )?
+        .query_row(params![pass_id, key.0, key.1], |r| r.get(0))
+        .optional()?)
+}
+
+/// Applies the recount rule to a first result from the recount pass's result of the
+/// same key: the first result's verdict, outcome and first-count-wrong mark are set in
+/// place (its evidence keeps the original judgement); neither → a supervisor count.
+fn apply_recount(
+    tx: &Transaction,
+    first_pass: i64,
+    key: &ItemLot,
+    recount_pass: i64,
+    watermark: i64,
+    now: Timestamp,
+) -> Result<Vec<i64>, StoreError> {
+    let (Some(first), Some(recount)) = (
+        current_result(tx, first_pass, key)?,
+        current_result(tx, recount_pass, key)?,
+    ) else {
+        return Ok(Vec::new());
+    };
+    if first.evidence.judged.is_hit() {
+        // The first result became a hit by itself (a late movement): nothing to decide.
+        tx.prepare_cached(
+            "update count_result set verdict = 'hit', recount_outcome = null,
+                 first_count_wrong = 0 where id = ?1",
+        )?
+        .execute([first.id])?;
+        return Ok(Vec::new());
+    }
+    let cost: i64 = tx
+        .prepare_cached("select unit_cost_minor from count_result where id = ?1")?
+        .query_row([first.id], |r| r.get(0))?;
+    let effect = service::recount_effect(
+        &first.evidence.netting,
+        &recount.evidence.netting,
+        cost,
+        &first.evidence.tolerance,
+    );
+    tx.prepare_cached(
+        "update count_result set verdict = ?2, recount_outcome = ?3, first_count_wrong = ?4
+         where id = ?1",
+    )?
+    .execute(params![
+        first.id,
+        effect.verdict,
+        effect.outcome_text,
+        effect.first_count_wrong
+    ])?;
+    let mut tasks = Vec::new();
+    if effect.supervisor_count && recount_tasks_of(tx, first_pass, key)? < 2 {
+        let pass = pass_facts(tx, first_pass)?
+            .ok_or_else(|| anyhow::anyhow!("count pass {first_pass} vanished"))?;
+        tasks.push(add_recount_task(
+            tx,
+            &pass,
+            first.id,
+            &first.evidence.sku,
+            false,
+            watermark,
+            now,
+        )?);
+    }
+    Ok(tasks)
+}
+
+/// Adds a recount task for `result` to the day's list of the pass's done day (creating
+/// the list if there is none), ahead of its run: in a run held by someone other than
+/// the first counter when `assign`, else (or when there is no such run) in a run held
+/// by no one, with a warning on the list. Returns the task's id.
+fn add_recount_task(
+    tx: &Transaction,
+    pass: &PassFacts,
+    result: i64,
+    sku: &str,
+    assign: bool,
+    watermark: i64,
+    now: Timestamp,
+) -> Result<i64, StoreError> {
+    let done = pass.timing.done.unwrap_or(pass.timing.first_scan);
+    let day = done.to_utc().date_naive().format("%Y-%m-%d").to_string();
+    let list = tx
+        .prepare_cached(
+            "select id, counters, warnings from count_list where site_id = ?1 and day = ?2",
+        )?
+        .query_row(params![pass.site.0, day], |r| {
+            Ok((
+                r.get::<_, i64>(0)?,
+                r.get::<_, u32>(1)?,
+                r.get::<_, String>(2)?,
+            ))
+        })
+        .optional()?;
+    let (list, counters, warnings) = match list {
+        Some(l) => l,
+        None => {
+            tx.prepare_cached(
+                "insert into count_list (site_id, day, counters, minutes, level_s, warnings,
+                     built_at, watermark)
+                 values (?1, ?2, 1, ?3, 0, '[]', ?4, ?5)",
+            )?
+            .execute(params![
+                pass.site.0,
+                day,
+                RECOUNT_EST_S.div_euclid(60).max(1),
+                now.0,
+                watermark
+            ])?;
+            let id = tx.last_insert_rowid();
+            tx.prepare_cached("insert into count_run (list_id, run) values (?1, 1)")?
+                .execute([id])?;
+            (id, 1, "[]".to_string())
+        }
+    };
+    let runs = tx
+        .prepare_cached(
+            "select r.run, r.holder,
+                    (select count(*) from count_task t
+                     where t.list_id = r.list_id and t.run = r.run and t.status <> 'done')
+             from count_run r where r.list_id = ?1 order by r.run",
+        )?
+        .query_map([list], |r| Ok((r.get(0)?, r.get(1)?, r.get(2)?)))?
+        .collect::<rusqlite::Result<Vec<(u32, String, u32)>>>()?;
+    let placement = if assign {
+        service::place_recount(&runs, &pass.user_name, counters + 1, &pass.bin_code)
+    } else {
+        let run = runs
+            .iter()
+            .filter(|(_, h, _)| h.is_empty())
+            .map(|(r, _, _)| *r)
+            .min()
+            .unwrap_or(counters + 1);
+        Placement::Unassigned {
+            run,
+            warning: format!(
+                "supervisor count of {} ({sku}): the recount agreed with neither the first \
+                 count nor the book; run {run} is held by no one",
+                pass.bin_code
+            ),
+        }
+    };
+    let (run, warning) = match placement {
+        Placement::Run(r) => (r, None),
+        Placement::Unassigned { run, warning } => (run, Some(warning)),
+    };
+    if run > counters {
+        tx.prepare_cached("insert into count_run (list_id, run) values (?1, ?2)")?
+            .execute(params![list, run])?;
+        tx.prepare_cached("update count_list set counters = ?2 where id = ?1")?
+            .execute(params![list, run])?;
+    }
+    let seq: i64 = tx
+        .prepare_cached(
+            "select coalesce(min(seq), 1) - 1 from count_task where list_id = ?1 and run = ?2",
+        )?
+        .query_row(params![list, run], |r| r.get(0))?;
+    let class: Option<String> = tx
+        .prepare_cached("select class from count_result where id = ?1")?
+        .query_row([result], |r| r.get(0))?;
+    let lines: i64 = tx
+        .prepare_cached("select count(*) from balance where bin_id = ?1 and qty <> 0")?
+        .query_row([pass.bin_id], |r| r.get(0))?;
+    let detail = if assign {
+        format!("recount of {sku} (result {result})")
+    } else {
+        format!("supervisor count of {sku} (result {result})")
+    };
+    tx.prepare_cached(
+        "insert into count_task (list_id, bin_id, seq, run, reason, class, detail, lines, est_s,
+             recount_of)
+         values (?1, ?2, ?3, ?4, 'recount', ?5, ?6, ?7, ?8, ?9)",
+    )?
+    .execute(params![
+        list,
+        pass.bin_id,
+        seq,
+        run,
+        class,
+        detail,
+        lines.max(1),
+        pass.task_est_s.unwrap_or(RECOUNT_EST_S),
+        result
+    ])?;
+    let task = tx.last_insert_rowid();
+    if let Some(w) = warning {
+        let mut all: Vec<String> = serde_json::from_str(&warnings).unwrap_or_default();
+        all.push(w);
+        tx.prepare_cached("update count_list set warnings = ?2 where id = ?1")?
+            .execute(params![list, json(&all)?])?;
+    }
+    tx.prepare_cached("update count_list set version = version + 1 where id = ?1")?
+        .execute([list])?;
+    Ok(task)
+}
+
+// ---------------------------------------------------------------------------
+// Hooks: sync and the ledger.
+
+/// Nets the passes a sync request touched: each accepted new event's pass, if the
+/// pass is marked done. A pass netted before gets superseding rows only for keys that
+/// changed, with a reason naming the late events.
+pub fn after_sync(
+    tx: &Transaction,
+    batch: &crate::sync::SyncBatch,
+    results: &[cairn_scan::wire::EventResult],
+    now: Timestamp,
+) -> Result<NetOutcome, StoreError> {
+    let mut touched: BTreeMap<String, Vec<String>> = BTreeMap::new();
+    for (event, result) in batch.events.iter().zip(results) {
+        if let Ok(e) = event
+            && result.status == cairn_scan::wire::EventStatus::Accepted
+            && !result.repeat
+        {
+            touched
+                .entry(e.pass.to_string())
+                .or_default()
+                .push(e.id.to_string());
+        }
+    }
+    let mut out = NetOutcome::default();
+    for (pass_uid, events) in touched {
+        let Some((pass_id, netted_before)) = tx
+            .prepare_cached(
+                "select p.id, exists (select 1 from count_result r where r.pass_id = p.id)
+                 from count_pass p where p.uid = ?1 and p.done_at is not null",
+            )?
+            .query_row([&pass_uid], |r| {
+                Ok((r.get::<_, i64>(0)?, r.get::<_, bool>(1)?))
+            })
+            .optional()?
+        else {
+            continue;
+        };
+        let reason = if netted_before {
+            format!(
+                "count {pass_uid}: {} after the bin was netted",
+                name_ids("event", &events)
+            )
+        } else {
+            String::new()
+        };
+        let o = net_pass(tx, pass_id, None, &reason, now)?;
+        out.written.extend(o.written);
+        out.tasks.extend(o.tasks);
+    }
+    Ok(out)
+}
+
+fn name_ids(what: &str, ids: &[String]) -> String {
+    let shown: Vec<&str> = ids.iter().take(REASON_IDS).map(String::as_str).collect();
+    let more = ids.len().saturating_sub(REASON_IDS);
+    let s = if ids.len() == 1 { "" } else { "s" };
+    let tail = if more > 0 {
+        format!(" and {more} more")
+    } else {
+        String::new()
+    };
+    format!("{what}{s} {}{tail}", shown.join(", "))
+}
+
+/// A movement just written, as the re-net hook needs it.
+#[derive(Debug, Clone)]
+pub struct NewMove {
+    pub uid: String,
+    pub key: Key,
+    pub event_at: i64,
+    pub source: String,
+}
+
+/// Re-nets every key of a pass marked done that a newly written movement may change:
+/// same bin and key, and `event_at − source uncertainty ≤ e + u` (`rule::must_renet`).
+/// Runs in the movement batch's transaction, so a result and the ledger never disagree.
+pub fn renet_after_movements(
+    tx: &Transaction,
+    site: SiteId,
+    moves: &[NewMove],
+    now: Timestamp,
+) -> Result<NetOutcome, StoreError> {
+    let mut out = NetOutcome::default();
+    if moves.is_empty() {
+        return Ok(out);
+    }
+    // Most batches meet no done pass at all: one look decides.
+    let widest: Option<i64> = tx
+        .prepare_cached(
+            "select max(uncertainty_ms) from count_pass where site_id = ?1 and done_at is not null",
+        )?
+        .query_row([site.0], |r| r.get(0))?;
+    let Some(widest_u) = widest else {
+        return Ok(out);
+    };
+    let sources = Sources::new(&source_timings(tx, site)?);
+    // (pass, key) -> the movements that re-net it.
+    let mut due: BTreeMap<(i64, ItemLot), Vec<String>> = BTreeMap::new();
+    let mut passes = tx.prepare_cached(
+        "select id, first_at, done_at, uncertainty_ms from count_pass
+         where bin_id = ?1 and done_at is not null and done_at >= ?2",
+    )?;
+    for m in moves {
+        let su = sources.uncertainty_ms(&m.source);
+        let reach = m.event_at - su - widest_u;
+        let rows = passes
+            .query_map(params![m.key.bin_id, reach], |r| {
+                Ok((
+                    r.get::<_, i64>(0)?,
+                    CountTiming {
+                        first_scan: Timestamp(r.get(1)?),
+                        done: Some(Timestamp(r.get(2)?)),
+                        clock_uncertainty_ms: r.get(3)?,
+                    },
+                ))
+            })?
+            .collect::<rusqlite::Result<Vec<_>>>()?;
+        let key: ItemLot = (m.key.item_id, m.key.lot.clone());
+        for (pass, timing) in rows {
+            if crate::netting::rule::must_renet(&key, &timing, &key, Timestamp(m.event_at), su) {
+                due.entry((pass, key.clone()))
+                    .or_default()
+                    .push(m.uid.clone());
+            }
+        }
+    }
+    for ((pass, key), uids) in due {
+        let only: HashSet<ItemLot> = [key].into_iter().collect();
+        let reason = format!(
+            "{} recorded after the count, stamped within its reach (event time − source \
+             uncertainty ≤ bin done + clock uncertainty)",
+            name_ids("movement", &uids)
+        );
+        let o = net_pass(tx, pass, Some(&only), &reason, now)?;
+        out.written.extend(o.written);
+        out.tasks.extend(o.tasks);
+    }
+    Ok(out)
+}
+
+/// Marks every current result whose settling instant has passed as settled; returns how many.
+pub fn settle_due(tx: &Transaction, now: Timestamp) -> Result<usize, StoreError> {
+    Ok(tx
+        .prepare_cached(
+            "update count_result set settled = 1
+             where settled = 0 and superseded_by is null and settles_at < ?1",
+        )?
+        .execute([now.0])?)
+}
+
+// ---------------------------------------------------------------------------
+// Reads.
+
+/// Which results a listing shows.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, serde::Deserialize)]
+#[serde(rename_all = "snake_case")]
+pub enum ResultState {
+    /// Current results out of tolerance with no review yet.
+    Open,
+    /// Every current (not superseded) result.
+    Current,
+    /// Every row, superseded ones included.
+    All,
+}
+
+/// A query over a site's results, paged by id.
+#[derive(Debug, Clone)]
+pub struct ResultQuery {
+    pub state: ResultState,
+    pub bin: Option<String>,
+    pub sku: Option<String>,
+    /// A count pass by id or uid.
+    pub pass: Option<String>,
+    pub limit: usize,
+    /// Results with an id greater than this.
+    pub after: i64,
+}
+
+/// One result as the API lists it.
+#[derive(Debug, Clone, PartialEq, Eq, Serialize)]
+pub struct ResultRow {
+    pub id: i64,
+    pub pass_id: i64,
+    pub pass: String,
+    pub counter: String,
+    pub bin: String,
+    pub sku: String,
+    pub lot: String,
+    pub class: Option<String>,
+    pub counted: i64,
+    pub f_star: i64,
+    pub variance: i64,
+    pub variance_value_minor: i64,
+    pub status: String,
+    pub verdict: String,
+    pub unit_cost_minor: i64,
+    pub counted_at: Timestamp,
+    pub window_start: Timestamp,
+    pub window_end: Timestamp,
+    pub watermark: i64,
+    pub settles_at: Timestamp,
+    pub settled: bool,
+    pub superseded_by: Option<i64>,
+    pub renet_reason: String,
+    pub recount_outcome: Option<String>,
+    pub first_count_wrong: bool,
+    pub reviewed: bool,
+    pub computed_at: Timestamp,
+}
+
+/// A page of results.
+#[derive(Debug, Clone, Serialize)]
+pub struct ResultPage {
+    pub results: Vec<ResultRow>,
+    pub next: Option<i64>,
+}
+
+/// One result with its evidence, the rows it replaced and its recount tasks.
+#[derive(Debug, Clone, Serialize)]
+pub struct ResultDetail {
+    #[serde(flatten)]
+    pub row: ResultRow,
+    pub evidence: Evidence,
+    /// Earlier rows of the same key of the same pass, newest first.
+    pub replaces: Vec<i64>,
+    /// Recount and supervisor-count tasks of this key of this pass.
+    pub recount_tasks: Vec<i64>,
+}
+
+const ROW_SELECT: &str = "select r.id, r.pass_id, p.uid, u.name, b.code, i.sku, r.lot, r.class,
+        r.counted, r.f_star, r.variance, r.status, r.verdict, r.unit_cost_minor, r.counted_at,
+        r.window_start, r.window_end, r.watermark, r.settles_at, r.settled, r.superseded_by,
+        r.renet_reason, r.recount_outcome, r.first_count_wrong,
+        exists (select 1 from count_review v where v.result_id = r.id), r.computed_at, r.evidence
+     from count_result r join count_pass p on p.id = r.pass_id
+     join user_account u on u.id = p.user_id join bin b on b.id = r.bin_id
+     join item i on i.id = r.item_id";
+
+fn map_row(r: &rusqlite::Row<'_>, now: Timestamp) -> rusqlite::Result<(ResultRow, String)> {
+    let variance: i64 = r.get(10)?;
+    let cost: i64 = r.get(13)?;
+    let settles_at = Timestamp(r.get(18)?);
+    Ok((
+        ResultRow {
+            id: r.get(0)?,
+            pass_id: r.get(1)?,
+            pass: r.get(2)?,
+            counter: r.get(3)?,
+            bin: r.get(4)?,
+            sku: r.get(5)?,
+            lot: r.get(6)?,
+            class: r.get(7)?,
+            counted: r.get(8)?,
+            f_star: r.get(9)?,
+            variance,
+            variance_value_minor: variance.saturating_mul(cost),
+            status: r.get(11)?,
+            verdict: r.get(12)?,
+            unit_cost_minor: cost,
+            counted_at: Timestamp(r.get(14)?),
+            window_start: Timestamp(r.get(15)?),
+            window_end: Timestamp(r.get(16)?),
+            watermark: r.get(17)?,
+            settles_at,
+            settled: r.get::<_, bool>(19)? || now > settles_at,
+            superseded_by: r.get(20)?,
+            renet_reason: r.get(21)?,
+            recount_outcome: r.get(22)?,
+            first_count_wrong: r.get(23)?,
+            reviewed: r.get(24)?,
+            computed_at: Timestamp(r.get(25)?),
+        },
+        r.get(26)?,
+    ))
+}
+
+/// Lists a site's results, by id.
+pub fn count_results(
+    conn: &Connection,
+    site: SiteId,
+    q: &ResultQuery,
+    now: Timestamp,
+) -> Result<ResultPage, StoreError> {
+    let mut sql = format!("{ROW_SELECT} where r.site_id = ?1 and r.id > ?2");
+    let mut args: Vec<rusqlite::types::Value> = vec![site.0.into(), q.after.into()];
+    match q.state {
+        ResultState::Open => sql.push_str(
+            " and r.superseded_by is null and r.verdict = 'out_of_tolerance'
+              and not exists (select 1 from count_review v where v.result_id = r.id)",
+        ),
+        ResultState::Current => sql.push_str(" and r.superseded_by is null"),
+        ResultState::All => {}
+    }
+    if let Some(b) = &q.bin {
+        args.push(b.clone().into());
+        sql.push_str(&format!(" and b.code = ?{}", args.len()));
+    }
+    if let Some(s) = &q.sku {
+        args.push(s.clone().into());
+        sql.push_str(&format!(" and i.sku = ?{}", args.len()));
+    }
+    if let Some(p) = &q.pass {
+        args.push(p.clone().into());
+        let n = args.len();
+        sql.push_str(&format!(" and (p.uid = ?{n} or cast(p.id as text) = ?{n})"));
+    }
+    let limit = q.limit.clamp(1, MAX_RESULTS_PAGE);
+    sql.push_str(&format!(" order by r.id limit {limit}"));
+    let results = conn
+        .prepare(&sql)?
+        .query_map(rusqlite::params_from_iter(args), |r| map_row(r, now))?
+        .map(|row| row.map(|(r, _)| r))
+        .collect::<rusqlite::Result<Vec<_>>>()?;
+    let next = (results.len() == limit)
+        .then(|| results.last().map(|r| r.id))
+        .flatten();
+    Ok(ResultPage { results, next })
+}
+
+/// Reads one result with its evidence.
+pub fn count_result(
+    conn: &Connection,
+    site: SiteId,
+    id: i64,
+    now: Timestamp,
+) -> Result<Option<ResultDetail>, StoreError> {
+    let Some((row, evidence)) = conn
+        .prepare_cached(&format!("{ROW_SELECT} where r.site_id = ?1 and r.id = ?2"))?
+        .query_row(params![site.0, id], |r| map_row(r, now))
+        .optional()?
+    else {
+        return Ok(None);
+    };
+    let evidence: Evidence = serde_json::from_str(&evidence)
+        .map_err(|e| anyhow::anyhow!("count_result {id} has unreadable evidence: {e}"))?;
+    let mut replaces = Vec::new();
+    let mut at = row.id;
+    while let Some(prev) = conn
+        .prepare_cached("select id from count_result where superseded_by = ?1")?
+        .query_row([at], |r| r.get::<_, i64>(0))
+        .optional()?
+    {
+        replaces.push(prev);
+        at = prev;
+    }
+    let recount_tasks = conn
+        .prepare_cached(
+            "select t.id from count_task t join count_result r on r.id = t.recount_of
+             join count_result me on me.pass_id = r.pass_id and me.item_id = r.item_id
+                  and me.lot = r.lot
+             where me.id = ?1 order by t.id",
+        )?
+        .query_map([row.id], |r| r.get(0))?
+        .collect::<rusqlite::Result<Vec<i64>>>()?;
+    Ok(Some(ResultDetail {
+        row,
+        evidence,
+        replaces,
+        recount_tasks,
+    }))
+}
+
+/// A pass and every current result of it, for `cairn net`.
+#[derive(Debug, Clone, Serialize)]
+pub struct PassReport {
+    pub pass_id: i64,
+    pub pass: String,
+    pub site: String,
+    pub bin: String,
+    pub counter: String,
+    pub first_at: Timestamp,
+    pub done_at: Option<Timestamp>,
+    pub uncertainty_ms: i64,
+    pub recount_of: Option<i64>,
+    pub results: Vec<ResultDetail>,
+}
+
+/// Reads a pass (by id or uid) and its current results.
+pub fn pass_report(
+    conn: &Connection,
+    pass: &str,
+    now: Timestamp,
+) -> Result<Option<PassReport>, StoreError> {
+    let head = conn
+        .prepare_cached(
+            "select p.id, p.uid, s.code, b.code, u.name, p.first_at, p.done_at, p.uncertainty_ms,
+                    t.recount_of, p.site_id
+             from count_pass p join site s on s.id = p.site_id join bin b on b.id = p.bin_id
+             join user_account u on u.id = p.user_id left join count_task t on t.id = p.task_id
+             where p.uid = ?1 or cast(p.id as text) = ?1",
+        )?
+        .query_row([pass], |r| {
+            Ok((
+                PassReport {
+                    pass_id: r.get(0)?,
+                    pass: r.get(1)?,
+                    site: r.get(2)?,
+                    bin: r.get(3)?,
+                    counter: r.get(4)?,
+                    first_at: Timestamp(r.get(5)?),
+                    done_at: r.get::<_, Option<i64>>(6)?.map(Timestamp),
+                    uncertainty_ms: r.get(7)?,
+                    recount_of: r.get(8)?,
+                    results: Vec::new(),
+                },
+                SiteId(r.get(9)?),
+            ))
+        })
+        .optional()?;
+    let Some((mut report, site)) = head else {
+        return Ok(None);
+    };
+    let ids = conn
+        .prepare_cached(
+            "select r.id from count_result r join item i on i.id = r.item_id
+             where r.pass_id = ?1 and r.superseded_by is null order by i.sku, r.lot",
+        )?
+        .query_map([report.pass_id], |r| r.get(0))?
+        .collect::<rusqlite::Result<Vec<i64>>>()?;
+    for id in ids {
+        if let Some(d) = count_result(conn, site, id, now)? {
+            report.results.push(d);
+        }
+    }
+    Ok(Some(report))
+}
+
+/// Re-nets every pass marked done of a site, or one pass; for support after a policy
+/// change. Returns what was written.
+pub fn renet_passes(
+    tx: &Transaction,
+    site: SiteId,
+    pass: Option<&str>,
+    reason: &str,
+    now: Timestamp,
+) -> Result<NetOutcome, StoreError> {
+    let ids = tx
+        .prepare_cached(
+            "select id from count_pass where site_id = ?1 and done_at is not null
+               and (?2 is null or uid = ?2 or cast(id as text) = ?2)
+             order by done_at, id",
+        )?
+        .query_map(params![site.0, pass], |r| r.get(0))?
+        .collect::<rusqlite::Result<Vec<i64>>>()?;
+    let mut out = NetOutcome::default();
+    for id in ids {
+        let o = net_pass(tx, id, None, reason, now)?;
+        out.written.extend(o.written);
+        out.tasks.extend(o.tasks);
+    }
+    Ok(out)
+}
