@@ -22,13 +22,6 @@ use serde::Serialize;
 /// above the site's threshold to inventory managers).
 pub const DECIDERS: &[Role] = &[Role::InventoryManager, Role::Admin];
 
-/// Above this absolute value (minor units) only an inventory manager may
-/// approve, until a site stores its own (an invented default, not a standard).
-pub const DEFAULT_MANAGER_VALUE_MINOR: i64 = 50_000;
-/// Bulk approval is offered below this absolute value (minor units), until a
-/// site stores its own (an invented default, not a standard).
-pub const DEFAULT_BULK_VALUE_MINOR: i64 = 5_000;
-
 /// Most differences one list page shows.
 pub const MAX_LIST_ROWS: usize = 500;
 /// Most differences one bulk approval may carry.
@@ -57,10 +50,13 @@ pub struct ReviewPolicy {
 }
 
 impl Default for ReviewPolicy {
+    /// Returns the limits of the netting settings' defaults, which a site keeps
+    /// until it stores its own.
     fn default() -> Self {
+        let s = crate::netting::service::NettingSettings::default();
         Self {
-            manager_value_minor: DEFAULT_MANAGER_VALUE_MINOR,
-            bulk_value_minor: DEFAULT_BULK_VALUE_MINOR,
+            manager_value_minor: s.manager_value_minor,
+            bulk_value_minor: s.bulk_value_minor,
         }
     }
 }
