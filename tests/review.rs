@@ -38,7 +38,7 @@ fn id() -> String {
 /// Site T: 40 of S1 in BIN_1 and 10 in BIN_2, a day's list of one run, and the
 /// people of the review: cora and dan count, ines is the inventory manager,
 /// sam is supervisor and admin (no inventory manager role), mona both counts
-/// and manages inventory.
+/// and manages inventory, eve counts too.
 async fn review_site(app: &TestApp) {
     app.small_site().await;
     let (s, b) = app
@@ -75,6 +75,7 @@ async fn review_site(app: &TestApp) {
             &[Role::Counter, Role::InventoryManager][..],
             Some("6043"),
         ),
+        ("eve", &[Role::Counter][..], Some("7154")),
     ] {
         app.add_user(user, "T", roles, PASSWORD, pin).await;
     }
@@ -101,38 +102,81 @@ async fn set_limits(app: &TestApp, manager_minor: i64, bulk_minor: i64) {
 /// Gives run 1 to `who`, enrols their phone and counts each bin as `(bin, qty)`
 /// with a scan of single units, marking it done: one sync request.
 async fn count_bins(app: &TestApp, who: &str, pin: &str, counts: &[(&str, i64)]) {
+    count_run(app, DAY, who, pin, counts).await;
+}
+
+/// Recounts bins as dan. The phone's clock is corrected to the server's, so the
+/// count was done today (UTC), and its recount tasks are on today's list, in a
+/// run no one holds until it is given to him.
+async fn recount_bins(app: &TestApp, counts: &[(&str, i64)]) {
+    let today = chrono::Utc::now().date_naive().to_string();
+    count_run(app, &today, "dan", "5932", counts).await;
+}
+
+async fn count_run(app: &TestApp, day: &str, who: &str, pin: &str, counts: &[(&str, i64)]) {
+    let tasks = phone_tasks(app, day, 1, who, pin).await;
+    let found = count_tasks(app, &tasks, counts).await;
+    assert_eq!(
+        found,
+        counts.len(),
+        "{who} holds every bin to count: {}",
+        tasks.1
+    );
+}
+
+/// Gives `run` of `day`'s list to `who`, enrols their phone and returns its
+/// token with the phone's view of the run.
+async fn phone_tasks(app: &TestApp, day: &str, run: u32, who: &str, pin: &str) -> (String, Value) {
     let r = app
         .with_token(app.client.put(format!(
-            "{}/api/v1/sites/T/count-lists/{DAY}/runs/1",
+            "{}/api/v1/sites/T/count-lists/{day}/runs/{run}",
             app.base
         )))
         .json(&json!({"holder": who}))
         .send()
         .await
         .unwrap();
-    assert_eq!(r.status(), 200);
-    let token = app.enrol(who, pin, "T").await.json()["token"]
+    assert_eq!(r.status(), 200, "{}", r.text().await.unwrap_or_default());
+    let enrolled = app.enrol(who, pin, "T").await;
+    let token = enrolled.json()["token"]
         .as_str()
-        .expect("the phone enrols")
+        .unwrap_or_else(|| panic!("{who}'s phone enrols: {}", enrolled.text))
         .to_string();
-    let tasks: Value = app
-        .client
-        .get(format!("{}/api/v1/sites/T/my-tasks?day={DAY}", app.base))
-        .bearer_auth(&token)
+    let tasks = my_tasks(app, &token, day).await;
+    (token, tasks)
+}
+
+async fn my_tasks(app: &TestApp, token: &str, day: &str) -> Value {
+    app.client
+        .get(format!("{}/api/v1/sites/T/my-tasks?day={day}", app.base))
+        .bearer_auth(token)
         .send()
         .await
         .unwrap()
         .json()
         .await
-        .unwrap();
+        .unwrap()
+}
+
+/// Counts each bin of `counts` the phone holds an open task for, as one sync
+/// request (open, one scan of single units, done); returns how many it held.
+async fn count_tasks(
+    app: &TestApp,
+    (token, tasks): &(String, Value),
+    counts: &[(&str, i64)],
+) -> usize {
     let mut events = Vec::new();
+    let mut found = 0;
     for (i, (bin, qty)) in counts.iter().enumerate() {
-        let task = tasks["tasks"]
+        let Some(task) = tasks["tasks"]
             .as_array()
             .unwrap()
             .iter()
-            .find(|t| t["bin"] == *bin)
-            .unwrap_or_else(|| panic!("{bin} is on the list: {tasks}"));
+            .find(|t| t["bin"] == *bin && t["done"] != true)
+        else {
+            continue;
+        };
+        found += 1;
         let count = id();
         let at = NINE + i as i64 * 20_000;
         let base = json!({"count": count, "task": task["id"], "bin": bin});
@@ -159,10 +203,13 @@ async fn count_bins(app: &TestApp, who: &str, pin: &str, counts: &[(&str, i64)])
         ));
         events.push(event(id(), at + 12_000, "bin_done", json!({})));
     }
+    if events.is_empty() {
+        return 0;
+    }
     let r = app
         .client
         .post(format!("{}/api/v1/sites/T/sync", app.base))
-        .bearer_auth(&token)
+        .bearer_auth(token)
         .json(&json!({"device_clock": NINE + 60_000, "rtt_ms": 80, "events": events}))
         .send()
         .await
@@ -177,6 +224,7 @@ async fn count_bins(app: &TestApp, who: &str, pin: &str, counts: &[(&str, i64)])
             .all(|r| r["status"] == "accepted"),
         "{answer}"
     );
+    found
 }
 
 async fn get(app: &TestApp, s: &Session, path: &str) -> Answer {
@@ -259,8 +307,34 @@ async fn an_approved_difference_posts_one_adjustment_at_the_book_states_instant(
     count_bins(&app, "cora", "4821", &[(BIN_1, 36)]).await;
     let ines = app.sign_in("ines", PASSWORD).await;
 
+    // Out of tolerance, so a recount goes first (DESIGN §5): not decided before it.
     let id = difference_of(&app, &ines, BIN_1).await;
+    let list = get(&app, &ines, "/sites/T/differences").await;
+    assert!(list.text.contains("recount pending"), "{}", list.text);
+    let early = post(
+        &app,
+        &ines,
+        &format!("/sites/T/differences/{id}/approve"),
+        &[("reason", "damaged")],
+    )
+    .await;
+    assert_eq!(early.status, 409, "{}", early.text);
+    assert!(
+        early.text.contains("waits for its recount"),
+        "{}",
+        early.text
+    );
+    recount_bins(&app, &[(BIN_1, 36)]).await;
+    let list = get(&app, &ines, "/sites/T/differences").await;
+    assert_eq!(
+        listed(&list.text),
+        [(id, BIN_1.to_string())],
+        "the recount's own result is shown with the first, not as a second difference"
+    );
+    assert!(list.text.contains("confirmed by recount"), "{}", list.text);
+
     let detail = get(&app, &ines, &format!("/sites/T/differences/{id}")).await;
+    assert!(detail.text.contains("counted by dan"), "{}", detail.text);
     assert_eq!(detail.status, 200, "{}", detail.text);
     assert!(
         detail.text.contains(r#"<dd id="counted">36</dd>"#),
@@ -350,6 +424,7 @@ async fn a_rejection_keeps_the_book_and_records_the_investigation_note() {
     let app = spawn_app().await;
     review_site(&app).await;
     count_bins(&app, "cora", "4821", &[(BIN_1, 36)]).await;
+    recount_bins(&app, &[(BIN_1, 36)]).await;
     let ines = app.sign_in("ines", PASSWORD).await;
     let id = difference_of(&app, &ines, BIN_1).await;
     let path = format!("/sites/T/differences/{id}/reject");
@@ -394,6 +469,7 @@ async fn nobody_approves_a_difference_in_a_bin_they_counted() {
     let app = spawn_app().await;
     review_site(&app).await;
     count_bins(&app, "mona", "6043", &[(BIN_1, 36)]).await;
+    recount_bins(&app, &[(BIN_1, 36)]).await;
     let mona = app.sign_in("mona", PASSWORD).await;
     let id = difference_of(&app, &mona, BIN_1).await;
     let page = get(&app, &mona, &format!("/sites/T/differences/{id}")).await;
@@ -442,6 +518,7 @@ async fn above_the_value_limit_only_an_inventory_manager_approves() {
     // 4 × 4.50 = 18.00 is above a limit of 10.00.
     set_limits(&app, 1_000, 500).await;
     count_bins(&app, "cora", "4821", &[(BIN_1, 36)]).await;
+    recount_bins(&app, &[(BIN_1, 36)]).await;
     let sam = app.sign_in("sam", PASSWORD).await;
     let id = difference_of(&app, &sam, BIN_1).await;
     let path = format!("/sites/T/differences/{id}/approve");
@@ -468,7 +545,26 @@ async fn bulk_approval_takes_only_the_differences_below_the_bulk_limit_and_the_f
     review_site(&app).await;
     // BIN_1: −4 × 4.50 = 18.00; BIN_2: −5 × 4.50 = 22.50; bulk below 20.00.
     set_limits(&app, 100_000, 2_000).await;
+    // Today's list has two runs, held by dan and eve, so the two recounts are
+    // shared between them.
+    let today = chrono::Utc::now().date_naive().to_string();
+    let (s, b) = app
+        .post(
+            "/api/v1/sites/T/count-lists",
+            &json!({"day": today, "counters": 2, "minutes": 120}),
+        )
+        .await;
+    assert_eq!(s, 200, "{b}");
+    let dan = phone_tasks(&app, &today, 1, "dan", "5932").await;
+    let eve = phone_tasks(&app, &today, 2, "eve", "7154").await;
     count_bins(&app, "cora", "4821", &[(BIN_1, 36), (BIN_2, 5)]).await;
+    let recounts = [(BIN_1, 36), (BIN_2, 5)];
+    let mut recounted = 0;
+    for (token, _) in [dan, eve] {
+        let fresh = (token.clone(), my_tasks(&app, &token, &today).await);
+        recounted += count_tasks(&app, &fresh, &recounts).await;
+    }
+    assert_eq!(recounted, 2, "both recounts were done");
     let ines = app.sign_in("ines", PASSWORD).await;
     let list = get(&app, &ines, "/sites/T/differences").await;
     let ids = listed(&list.text);

@@ -123,6 +123,8 @@ pub struct Candidate {
     pub settled: bool,
     pub settles_at: Timestamp,
     pub value_minor: i64,
+    /// A recount (or supervisor count) of it is not done yet.
+    pub recount_pending: bool,
     /// Everyone who counted the bin for this result (its pass and recounts).
     pub counters: Vec<UserId>,
 }
@@ -165,6 +167,11 @@ pub enum Refusal {
          it, so decide once it has settled"
     )]
     Provisional { id: i64, settles_at: Timestamp },
+    #[error(
+        "difference {0} waits for its recount: a difference is decided once a second count \
+         has confirmed it"
+    )]
+    RecountPending(i64),
     #[error("you counted this bin, so someone else must review difference {0}")]
     OwnCount(i64),
     #[error(
@@ -252,6 +259,9 @@ pub fn check_decision(
             settles_at: c.settles_at,
         });
     }
+    if c.recount_pending {
+        return Err(Refusal::RecountPending(c.id));
+    }
     if crate::accounts::check_not_own_count(who.user, c.counters.iter().copied()).is_err() {
         return Err(Refusal::OwnCount(c.id));
     }
@@ -301,6 +311,7 @@ mod tests {
             settled: true,
             settles_at: Timestamp(1_000),
             value_minor: 5_000,
+            recount_pending: false,
             counters: vec![UserId(1)],
         }
     }
@@ -412,6 +423,10 @@ mod tests {
             },
             Candidate {
                 verdict: "hit".into(),
+                ..candidate()
+            },
+            Candidate {
+                recount_pending: true,
                 ..candidate()
             },
         ];

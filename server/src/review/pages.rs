@@ -120,6 +120,9 @@ struct ListRow {
     /// Offered for bulk approval (settled, below the bulk limit).
     bulk: bool,
     needs_manager: bool,
+    /// The recount in words (empty when there is none).
+    recount: String,
+    recount_pending: bool,
 }
 
 fn list_row(r: &DifferenceRow, policy: &ReviewPolicy, now: Timestamp) -> ListRow {
@@ -140,8 +143,16 @@ fn list_row(r: &DifferenceRow, policy: &ReviewPolicy, now: Timestamp) -> ListRow
         counter: r.counter.clone(),
         settled,
         settles_at: when(r.settles_at),
-        bulk: settled && r.value_minor < policy.bulk_value_minor,
+        bulk: settled && r.recount != "pending" && r.value_minor < policy.bulk_value_minor,
         needs_manager: r.value_minor > policy.manager_value_minor,
+        recount: match r.recount.as_str() {
+            "pending" => "recount pending".into(),
+            "confirmed" => "confirmed by recount".into(),
+            "book_right" => "recount found the book right".into(),
+            "supervisor_count" => "supervisor count".into(),
+            other => status_words(other),
+        },
+        recount_pending: r.recount == "pending",
     }
 }
 

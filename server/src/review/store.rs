@@ -46,6 +46,10 @@ pub struct DifferenceRow {
     pub settles_at: Timestamp,
     /// The user name of who counted.
     pub counter: String,
+    /// The recount of this count: empty (none), `pending` (a recount or
+    /// supervisor count is not done yet), or its outcome (`confirmed`,
+    /// `book_right`, `supervisor_count`).
+    pub recount: String,
 }
 
 /// An earlier (superseded) or later row of the same key and count.

@@ -39,7 +39,10 @@ const MAX_RECOUNT_DEPTH: usize = 8;
 const ROW_COLUMNS: &str =
     "r.id, b.code, z.code, i.sku, i.description, r.lot, coalesce(r.class, ''),
      r.counted, r.f_star, r.variance, r.unit_cost_minor, r.status, r.counted_at, r.settled,
-     r.settles_at, u.name";
+     r.settles_at, u.name, coalesce(r.recount_outcome, ''),
+     exists (select 1 from count_task t join count_result r0 on r0.id = t.recount_of
+             where r0.pass_id = r.pass_id and r0.item_id = r.item_id and r0.lot = r.lot
+               and t.status <> 'done')";
 
 const ROW_JOINS: &str = "from count_result r
      join bin b on b.id = r.bin_id
@@ -69,6 +72,11 @@ fn difference_row(r: &Row) -> rusqlite::Result<DifferenceRow> {
         settled: r.get::<_, i64>(13)? == 1,
         settles_at: Timestamp(r.get(14)?),
         counter: r.get(15)?,
+        recount: if r.get::<_, bool>(17)? {
+            "pending".into()
+        } else {
+            r.get(16)?
+        },
     })
 }
 
@@ -152,6 +160,8 @@ pub fn differences(
         "select {ROW_COLUMNS} {ROW_JOINS}
          where r.site_id = ?1 and r.verdict = 'out_of_tolerance' and r.superseded_by is null
            and not exists (select 1 from count_review v where v.result_id = r.id)
+           and not exists (select 1 from count_task t where t.id = p.task_id
+                                                   and t.recount_of is not null)
            and (?2 is null or r.class = ?2)
            and (?3 is null or z.code = ?3)
            and (?4 is null or abs(r.variance) * r.unit_cost_minor >= ?4)
@@ -452,22 +462,9 @@ fn stored_candidate(tx: &Transaction, site: SiteId, id: i64) -> Result<Option<St
     let Some(facts) = result_facts(tx, site, id)? else {
         return Ok(None);
     };
-    let (settled, settles_at, variance, cost, bin, sku): (i64, i64, i64, i64, String, String) = tx
-        .prepare_cached(
-            "select r.settled, r.settles_at, r.variance, r.unit_cost_minor, b.code, i.sku
-             from count_result r join bin b on b.id = r.bin_id join item i on i.id = r.item_id
-             where r.id = ?1",
-        )?
-        .query_row([id], |r| {
-            Ok((
-                r.get(0)?,
-                r.get(1)?,
-                r.get(2)?,
-                r.get(3)?,
-                r.get(4)?,
-                r.get(5)?,
-            ))
-        })?;
+    let row = tx
+        .prepare_cached(&format!("select {ROW_COLUMNS} {ROW_JOINS} where r.id = ?1"))?
+        .query_row([id], difference_row)?;
     let decided: Option<String> = tx
         .prepare_cached("select decision from count_review where result_id = ?1")?
         .query_row([id], |r| r.get(0))
@@ -479,15 +476,16 @@ fn stored_candidate(tx: &Transaction, site: SiteId, id: i64) -> Result<Option<St
             verdict: facts.verdict.clone(),
             superseded_by: facts.superseded_by,
             decided,
-            settled: settled == 1,
-            settles_at: Timestamp(settles_at),
-            value_minor: value_minor(variance, cost),
+            settled: row.settled,
+            settles_at: row.settles_at,
+            value_minor: row.value_minor,
+            recount_pending: row.recount == "pending",
             counters,
         },
         facts,
-        variance,
-        bin,
-        sku,
+        variance: row.variance,
+        bin: row.bin,
+        sku: row.sku,
     }))
 }
 
