@@ -108,6 +108,18 @@ enum Command {
         #[arg(long)]
         save: bool,
     },
+    /// Print how a count was netted: every key of the pass, with its window, opening,
+    /// moves, feasible states, f*, variance, tolerance, verdict and settling.
+    Net {
+        #[arg(long, env = "CAIRN_DB")]
+        db: PathBuf,
+        /// The count pass: its id or its uid.
+        #[arg(long)]
+        count: String,
+        /// Print the results as JSON instead.
+        #[arg(long)]
+        json: bool,
+    },
     /// Manage sites.
     Site {
         #[command(subcommand)]
@@ -467,6 +479,26 @@ async fn dispatch(command: Command) -> anyhow::Result<()> {
             }
             Ok(())
         }
+        Command::Net { db, count, json } => {
+            if !db.exists() {
+                anyhow::bail!("database {} does not exist", db.display());
+            }
+            let state = open(db)?;
+            let report = state
+                .store
+                .count_pass_report(count.clone())
+                .await?
+                .ok_or_else(|| anyhow::anyhow!("no count pass with id or uid '{count}'"))?;
+            if json {
+                println!("{}", serde_json::to_string_pretty(&report)?);
+            } else {
+                print!(
+                    "{}",
+                    crate::netting::report::to_text(&report, crate::time::Timestamp::now())
+                );
+            }
+            Ok(())
+        }
         Command::Site {
             command:
                 SiteCommand::Add {
@@ -507,11 +539,27 @@ async fn serve(state: AppState, listen: SocketAddr, demo: bool) -> anyhow::Resul
     tokio::spawn(planning::service::nightly_classification(
         state.store.clone(),
     ));
+    tokio::spawn(settle_results(state.store.clone()));
     crate::run(state, listener, async {
         let _ = tokio::signal::ctrl_c().await;
     })
     .await?;
     Ok(())
+}
+
+/// How often `cairn serve` marks results whose settling instant has passed.
+const SETTLE_EVERY: std::time::Duration = std::time::Duration::from_secs(60);
+
+/// Marks settled results once a minute; reads already treat a passed settling instant
+/// as settled, so this only keeps the stored flag (and its index) current.
+async fn settle_results(store: std::sync::Arc<dyn Store>) {
+    let mut tick = tokio::time::interval(SETTLE_EVERY);
+    loop {
+        tick.tick().await;
+        if let Err(e) = store.settle_results(crate::time::Timestamp::now()).await {
+            tracing::warn!("marking settled count results failed: {e}");
+        }
+    }
 }
 
 /// Reads `n` secrets: from standard input, one per line, or by prompting

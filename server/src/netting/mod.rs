@@ -8,6 +8,7 @@
 //! store (`store::sqlite::netting`) gathers the facts and writes inside the sync
 //! and movement transactions; `routes` serves results and policy.
 
+pub mod report;
 pub mod routes;
 pub mod rule;
 pub mod service;

@@ -1,0 +1,1117 @@
+//! End-to-end tests of netting over real HTTP and a real SQLite file: phones send counts
+//! through the sync endpoint with a device token, the host posts movements through the
+//! movements API, and the results are read back from the count-results API.
+//!
+//! The phone's clock is the real clock (so the server's correction is a few ms) and
+//! every instant is placed minutes apart from a base half an hour in the past, so the
+//! few ms a request takes cannot move a movement across a window edge. Each case works
+//! the netting rule (DESIGN §4, DEVELOPERS "Netting") by hand in its comment. Tolerances
+//! are the defaults (A exact, B 2 %, C 5 %: common practice, no source); the test items
+//! are not classified, so they are held to class A's: exact.
+
+mod common;
+
+use cairn::accounts::Role;
+use cairn::time::Timestamp;
+use common::{TestApp, spawn_app};
+use rand::SeedableRng;
+use rand::seq::SliceRandom;
+use serde_json::{Value, json};
+use uuid::Uuid;
+
+const MIN: i64 = 60_000;
+const BIN1: &str = "A-01-01-1";
+const BIN2: &str = "A-01-02-1";
+
+/// A test site: T with two bins and items S1 (plain) and L1 (lot-tracked), counters cora
+/// and dan with phones, and `base` half an hour ago.
+struct Site {
+    app: TestApp,
+    cora: String,
+    dan: String,
+    base: i64,
+}
+
+async fn site() -> Site {
+    let app = spawn_app().await;
+    app.small_site().await;
+    let mut tokens = Vec::new();
+    for (user, pin) in [("cora", "4821"), ("dan", "5932")] {
+        app.add_user(user, "T", &[Role::Counter], "test-only-password", Some(pin))
+            .await;
+        let a = app.enrol(user, pin, "T").await;
+        assert_eq!(a.status, 201, "{}", a.text);
+        tokens.push(a.json()["token"].as_str().unwrap().to_string());
+    }
+    let base = Timestamp::now().0 - 30 * MIN;
+    let dan = tokens.pop().unwrap();
+    let cora = tokens.pop().unwrap();
+    Site {
+        app,
+        cora,
+        dan,
+        base,
+    }
+}
+
+/// A movement to post: id, bin, SKU, lot, quantity, kind, event time (ms), source.
+type Move<'a> = (
+    &'a str,
+    &'a str,
+    &'a str,
+    &'a str,
+    i64,
+    &'a str,
+    i64,
+    &'a str,
+);
+
+fn at(ms: i64) -> String {
+    Timestamp(ms).to_string()
+}
+
+fn id() -> String {
+    Uuid::now_v7().to_string()
+}
+
+impl Site {
+    /// Posts movements `(id, bin, sku, lot, qty, kind, event_at, source)`; all must be accepted.
+    async fn moves(&self, rows: &[Move<'_>]) {
+        let body: Vec<Value> = rows
+            .iter()
+            .map(|(id, bin, sku, lot, qty, kind, t, source)| {
+                json!({"id": id, "bin": bin, "sku": sku, "lot": lot, "qty": qty, "kind": kind,
+                       "event_at": at(*t), "source": source})
+            })
+            .collect();
+        let (s, b) = self
+            .app
+            .post("/api/v1/sites/T/movements", &Value::Array(body))
+            .await;
+        assert_eq!(s, 200, "{b}");
+    }
+
+    /// Sends a JSON PUT with the admin's token.
+    async fn put(&self, path: &str, body: &Value) -> (u16, Value) {
+        let r = self
+            .app
+            .with_token(self.app.client.put(format!("{}{path}", self.app.base)))
+            .json(body)
+            .send()
+            .await
+            .unwrap();
+        (r.status().as_u16(), r.json().await.unwrap_or(Value::Null))
+    }
+
+    /// Sends events from a phone whose clock is the real clock, with a round trip of `rtt` ms.
+    async fn sync(&self, token: &str, events: Vec<Value>, rtt: i64) -> Value {
+        let body = json!({"device_clock": Timestamp::now().0, "rtt_ms": rtt, "events": events});
+        let r = self
+            .app
+            .client
+            .post(format!("{}/api/v1/sites/T/sync", self.app.base))
+            .bearer_auth(token)
+            .json(&body)
+            .send()
+            .await
+            .unwrap();
+        assert_eq!(r.status(), 200);
+        let v: Value = r.json().await.unwrap();
+        for res in v["results"].as_array().unwrap() {
+            assert_eq!(res["status"], "accepted", "{v}");
+        }
+        v
+    }
+
+    /// Reads results (`state` open, current or all), oldest first.
+    async fn results(&self, query: &str) -> Vec<Value> {
+        let (s, page) = self
+            .app
+            .get(&format!("/api/v1/sites/T/count-results?{query}"))
+            .await;
+        assert_eq!(s, 200, "{page}");
+        page["results"].as_array().unwrap().clone()
+    }
+
+    /// The one current result of a key of a pass.
+    async fn current(&self, pass: &Pass, sku: &str) -> Value {
+        let rows = self
+            .results(&format!("state=current&pass={}&sku={sku}", pass.count))
+            .await;
+        assert_eq!(rows.len(), 1, "one current result of {sku}: {rows:?}");
+        rows[0].clone()
+    }
+
+    async fn detail(&self, id: i64) -> Value {
+        let (s, d) = self
+            .app
+            .get(&format!("/api/v1/sites/T/count-results/{id}"))
+            .await;
+        assert_eq!(s, 200, "{d}");
+        d
+    }
+}
+
+/// One pass over a bin, keyed lines (no GTIN).
+#[derive(Clone)]
+struct Pass {
+    count: String,
+    bin: &'static str,
+    task: Option<i64>,
+}
+
+impl Pass {
+    fn new(bin: &'static str) -> Self {
+        Self {
+            count: id(),
+            bin,
+            task: None,
+        }
+    }
+    fn event(&self, t: i64, kind: &str, extra: Value) -> Value {
+        let mut e = json!({"id": id(), "at": t, "count": self.count, "task": self.task,
+                           "bin": self.bin, "type": kind});
+        e.as_object_mut()
+            .unwrap()
+            .extend(extra.as_object().unwrap().clone());
+        e
+    }
+    fn opened(&self, t: i64) -> Value {
+        let mut e = self.event(t, "bin_opened", json!({"label": ""}));
+        e["id"] = json!(self.count);
+        e
+    }
+    fn line(&self, t: i64, sku: &str, lot: &str, qty: i64) -> Value {
+        self.event(
+            t,
+            "line",
+            json!({"sku": sku, "gtin": null, "packs": 1, "qty": qty, "lot": lot, "entry": "keypad"}),
+        )
+    }
+    fn done(&self, t: i64) -> Value {
+        self.event(t, "bin_done", json!({}))
+    }
+}
+
+fn states(detail: &Value) -> Vec<i64> {
+    detail["evidence"]["netting"]["states"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .map(|s| s["qty"].as_i64().unwrap())
+        .collect()
+}
+
+fn window_moves(detail: &Value) -> Vec<String> {
+    detail["evidence"]["moves"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .map(|m| m["uid"].as_str().unwrap().to_string())
+        .collect()
+}
+
+/// Forty of S1 received into bin 1 an hour before the base.
+async fn forty_in_bin1(s: &Site) {
+    s.moves(&[(
+        "r0",
+        BIN1,
+        "S1",
+        "",
+        40,
+        "receipt",
+        s.base - 60 * MIN,
+        "host",
+    )])
+    .await;
+}
+
+#[tokio::test]
+async fn a_count_with_no_moves_in_its_window_is_compared_with_the_one_book_value() {
+    // Book 40 since an hour before the window; the counter keys 40 and marks the bin done.
+    // F = {40}, c = 40: variance 0, status no_moves_in_window, a hit.
+    let s = site().await;
+    forty_in_bin1(&s).await;
+    let p = Pass::new(BIN1);
+    let b = s.base;
+    s.sync(
+        &s.cora,
+        vec![
+            p.opened(b),
+            p.line(b + MIN, "S1", "", 40),
+            p.done(b + 2 * MIN),
+        ],
+        0,
+    )
+    .await;
+    let r = s.current(&p, "S1").await;
+    assert_eq!(
+        (
+            r["counted"].as_i64(),
+            r["f_star"].as_i64(),
+            r["variance"].as_i64()
+        ),
+        (Some(40), Some(40), Some(0))
+    );
+    assert_eq!(r["status"], "no_moves_in_window");
+    assert_eq!(r["verdict"], "hit");
+    let d = s.detail(r["id"].as_i64().unwrap()).await;
+    assert_eq!(states(&d), [40]);
+    assert_eq!(d["evidence"]["netting"]["opening"], 40);
+    assert!(
+        r["watermark"].as_i64().unwrap() >= 1,
+        "the ledger mark is kept"
+    );
+}
+
+#[tokio::test]
+async fn a_pick_during_the_count_is_netted_not_flagged() {
+    // Book 40; a pick of 5 happens one minute into the count, before the counter keys the
+    // key at minute 2. Window [s − u, last + u] holds the pick: F = {40, 35}. The counter
+    // saw 35: c = 35 is a state, variance 0 (matches_state). No aisle was frozen.
+    let s = site().await;
+    forty_in_bin1(&s).await;
+    let b = s.base;
+    s.moves(&[("p1", BIN1, "S1", "", -5, "pick", b + MIN, "host")])
+        .await;
+    let p = Pass::new(BIN1);
+    s.sync(
+        &s.cora,
+        vec![
+            p.opened(b),
+            p.line(b + 2 * MIN, "S1", "", 35),
+            p.done(b + 3 * MIN),
+        ],
+        0,
+    )
+    .await;
+    let r = s.current(&p, "S1").await;
+    assert_eq!(
+        (r["variance"].as_i64(), r["f_star"].as_i64()),
+        (Some(0), Some(35))
+    );
+    assert_eq!(r["status"], "matches_state");
+    let d = s.detail(r["id"].as_i64().unwrap()).await;
+    assert_eq!(states(&d), [40, 35]);
+    assert_eq!(window_moves(&d), ["p1"]);
+
+    // `cairn net` prints the same reasoning, by the pass's uid or id.
+    let db = s.app.db.to_str().unwrap().to_string();
+    for count in [p.count.clone(), r["pass_id"].to_string()] {
+        let out = common::cairn_with_input(&["net", "--db", &db, "--count", &count], "");
+        let text = String::from_utf8_lossy(&out.stdout);
+        assert!(
+            out.status.success(),
+            "{}",
+            String::from_utf8_lossy(&out.stderr)
+        );
+        for want in [
+            "A-01-01-1 S1",
+            "counted 35",
+            "opening 40",
+            "-5 pick from host",
+            "feasible states F: 40 (opening), 35* (after",
+            "f* = 35",
+            "variance c − f* = +0",
+            "status matches_state",
+            "verdict hit",
+            "settled",
+        ] {
+            assert!(text.contains(want), "missing '{want}' in:\n{text}");
+        }
+    }
+    let out = common::cairn_with_input(&["net", "--db", &db, "--count", "no-such"], "");
+    assert!(!out.status.success());
+    assert!(String::from_utf8_lossy(&out.stderr).contains("no count pass"));
+}
+
+#[tokio::test]
+async fn a_receipt_during_the_count_is_netted_not_flagged() {
+    // Book 40; 12 received at minute 1; counted 52 at minute 2. F = {40, 52}, c = 52:
+    // variance 0. Had the counter keyed 40 (before the receipt was shelved) it would
+    // match too: both are states.
+    let s = site().await;
+    forty_in_bin1(&s).await;
+    let b = s.base;
+    s.moves(&[("g1", BIN1, "S1", "", 12, "receipt", b + MIN, "host")])
+        .await;
+    let p = Pass::new(BIN1);
+    s.sync(
+        &s.cora,
+        vec![
+            p.opened(b),
+            p.line(b + 2 * MIN, "S1", "", 52),
+            p.done(b + 3 * MIN),
+        ],
+        0,
+    )
+    .await;
+    let r = s.current(&p, "S1").await;
+    assert_eq!(
+        (r["variance"].as_i64(), r["status"].as_str()),
+        (Some(0), Some("matches_state"))
+    );
+    let d = s.detail(r["id"].as_i64().unwrap()).await;
+    assert_eq!(states(&d), [40, 52]);
+}
+
+#[tokio::test]
+async fn a_count_matching_the_middle_of_several_moves_has_no_difference() {
+    // Book 40; pick 5 at minute 1, pick 3 at minute 2, receipt 10 at minute 3; the
+    // counter keys at minute 4. F = {40, 35, 32, 42}. c = 35 (counted after the first
+    // pick, before the second reached the shelf): a state, variance 0, f* = 35.
+    // c = 34 instead would be nearest 35 (distance 1): variance −1, matches_no_state.
+    let s = site().await;
+    forty_in_bin1(&s).await;
+    let b = s.base;
+    s.moves(&[
+        ("p1", BIN1, "S1", "", -5, "pick", b + MIN, "host"),
+        ("p2", BIN1, "S1", "", -3, "pick", b + 2 * MIN, "host"),
+        ("g1", BIN1, "S1", "", 10, "receipt", b + 3 * MIN, "host"),
+    ])
+    .await;
+    let p = Pass::new(BIN1);
+    s.sync(
+        &s.cora,
+        vec![
+            p.opened(b),
+            p.line(b + 4 * MIN, "S1", "", 35),
+            p.done(b + 5 * MIN),
+        ],
+        0,
+    )
+    .await;
+    let r = s.current(&p, "S1").await;
+    assert_eq!(
+        (r["variance"].as_i64(), r["f_star"].as_i64()),
+        (Some(0), Some(35))
+    );
+    let d = s.detail(r["id"].as_i64().unwrap()).await;
+    assert_eq!(states(&d), [40, 35, 32, 42]);
+    assert_eq!(window_moves(&d), ["p1", "p2", "g1"]);
+
+    let q = Pass::new(BIN1);
+    s.sync(
+        &s.dan,
+        vec![
+            q.opened(b),
+            q.line(b + 4 * MIN, "S1", "", 34),
+            q.done(b + 5 * MIN),
+        ],
+        0,
+    )
+    .await;
+    let r = s.current(&q, "S1").await;
+    assert_eq!(
+        (r["variance"].as_i64(), r["f_star"].as_i64()),
+        (Some(-1), Some(35))
+    );
+    assert_eq!(r["status"], "matches_no_state");
+    assert_eq!(
+        r["verdict"], "out_of_tolerance",
+        "class A (unclassified) is exact"
+    );
+}
+
+#[tokio::test]
+async fn clock_uncertainty_widens_the_window_over_a_move_just_before_the_first_scan() {
+    // Both bins hold 40; each gets a pick of 4 stamped 4 s before the counter's first
+    // scan, and each counter keys 40 (the pick had not happened yet by the shelf).
+    // Bin 1's phone reports a 20 s round trip: u ≥ 10 s, so the window starts ≥ 10 s
+    // before the first scan and holds the pick: F = {40, 36}, c = 40: variance 0.
+    // Bin 2's phone reports 0 ms: u is only the drift allowance (≤ 0.4 s here), the pick
+    // lies before the window, the opening is 36 and c = 40 is a difference of +4.
+    let s = site().await;
+    let b = s.base;
+    s.moves(&[
+        ("r1", BIN1, "S1", "", 40, "receipt", b - 60 * MIN, "host"),
+        ("r2", BIN2, "S1", "", 40, "receipt", b - 60 * MIN, "host"),
+        ("p1", BIN1, "S1", "", -4, "pick", b - 4_000, "host"),
+        ("p2", BIN2, "S1", "", -4, "pick", b - 4_000, "host"),
+    ])
+    .await;
+    let wide = Pass::new(BIN1);
+    s.sync(
+        &s.cora,
+        vec![
+            wide.opened(b),
+            wide.line(b + MIN, "S1", "", 40),
+            wide.done(b + 2 * MIN),
+        ],
+        20_000,
+    )
+    .await;
+    let narrow = Pass::new(BIN2);
+    s.sync(
+        &s.dan,
+        vec![
+            narrow.opened(b),
+            narrow.line(b + MIN, "S1", "", 40),
+            narrow.done(b + 2 * MIN),
+        ],
+        0,
+    )
+    .await;
+    let r = s.current(&wide, "S1").await;
+    assert_eq!(
+        (r["variance"].as_i64(), r["status"].as_str()),
+        (Some(0), Some("matches_state"))
+    );
+    let d = s.detail(r["id"].as_i64().unwrap()).await;
+    assert!(
+        d["evidence"]["timing"]["clock_uncertainty_ms"]
+            .as_i64()
+            .unwrap()
+            >= 10_000
+    );
+    assert_eq!(states(&d), [40, 36]);
+    let r = s.current(&narrow, "S1").await;
+    assert_eq!(
+        (r["variance"].as_i64(), r["f_star"].as_i64()),
+        (Some(4), Some(36))
+    );
+    assert_eq!(r["status"], "no_moves_in_window");
+}
+
+#[tokio::test]
+async fn a_source_uncertainty_pulls_a_move_into_the_window() {
+    // The host's event times are off by up to 3 minutes. A pick stamped 2 minutes before
+    // the first scan may have happened during the count: [t − 3 min, t + 3 min] overlaps
+    // the window, so F = {40, 35} and a count of 40 is a state.
+    let s = site().await;
+    let (st, b) = s
+        .put(
+            "/api/v1/sites/T/netting/sources",
+            &json!([{"source": "host", "uncertainty_ms": 3 * MIN, "posting_lag_ms": 0}]),
+        )
+        .await;
+    assert_eq!(st, 200, "{b}");
+    forty_in_bin1(&s).await;
+    let base = s.base;
+    s.moves(&[("p1", BIN1, "S1", "", -5, "pick", base - 2 * MIN, "host")])
+        .await;
+    let p = Pass::new(BIN1);
+    s.sync(
+        &s.cora,
+        vec![
+            p.opened(base),
+            p.line(base + MIN, "S1", "", 40),
+            p.done(base + 2 * MIN),
+        ],
+        0,
+    )
+    .await;
+    let r = s.current(&p, "S1").await;
+    assert_eq!(
+        (r["variance"].as_i64(), r["status"].as_str()),
+        (Some(0), Some("matches_state"))
+    );
+}
+
+#[tokio::test]
+async fn a_late_posted_pick_re_nets_the_result_and_keeps_the_old_row() {
+    // The host posts picks up to an hour late. The counter keys 35 at minute 2; the book
+    // shows 40 and nothing moved: variance −5, out of tolerance, provisional (done at
+    // minute 3 + an hour of lag is still ahead). Then the host posts the pick of 5 it
+    // made at minute 1: event_at − 0 ≤ e + u, so the key re-nets: F = {40, 35}, c = 35,
+    // variance 0. The new row supersedes the first, which stays, and names the pick.
+    // A pick stamped after the window (minute 10) changes nothing.
+    let s = site().await;
+    let (st, b) = s
+        .put(
+            "/api/v1/sites/T/netting/sources",
+            &json!([{"source": "host", "uncertainty_ms": 0, "posting_lag_ms": 60 * MIN}]),
+        )
+        .await;
+    assert_eq!(st, 200, "{b}");
+    forty_in_bin1(&s).await;
+    let base = s.base;
+    let p = Pass::new(BIN1);
+    s.sync(
+        &s.cora,
+        vec![
+            p.opened(base),
+            p.line(base + 2 * MIN, "S1", "", 35),
+            p.done(base + 3 * MIN),
+        ],
+        0,
+    )
+    .await;
+    let first = s.current(&p, "S1").await;
+    assert_eq!(
+        (first["variance"].as_i64(), first["verdict"].as_str()),
+        (Some(-5), Some("out_of_tolerance"))
+    );
+    assert_eq!(
+        first["settled"], false,
+        "an hour of posting lag has not passed"
+    );
+    s.moves(&[("late-pick", BIN1, "S1", "", -5, "pick", base + MIN, "host")])
+        .await;
+    let now = s.current(&p, "S1").await;
+    assert_ne!(now["id"], first["id"]);
+    assert_eq!(
+        (now["variance"].as_i64(), now["verdict"].as_str()),
+        (Some(0), Some("hit"))
+    );
+    let reason = now["renet_reason"].as_str().unwrap();
+    assert!(reason.contains("late-pick"), "{reason}");
+    let all = s.results(&format!("state=all&pass={}", p.count)).await;
+    assert_eq!(all.len(), 2, "the old row stays: {all:?}");
+    assert_eq!(all[0]["superseded_by"], now["id"]);
+    assert!(now["watermark"].as_i64() > first["watermark"].as_i64());
+
+    s.moves(&[("after", BIN1, "S1", "", -2, "pick", base + 10 * MIN, "host")])
+        .await;
+    let all = s.results(&format!("state=all&pass={}", p.count)).await;
+    assert_eq!(all.len(), 2, "a move after the window re-nets nothing");
+}
+
+#[tokio::test]
+async fn a_key_in_the_book_not_scanned_in_a_bin_marked_done_is_netted_as_zero() {
+    // Bin 1 holds 40 of S1 and 6 of L1 lot LOT-7; the counter keys only S1 and marks the
+    // bin done. L1 is netted over the bin's window [s − u, e + u] with c = 0: F = {6},
+    // f* = 6, variance −6, missing_from_bin. A key at 0 throughout the window (L1 lot
+    // OLD, received and picked long before) gets no result at all.
+    let s = site().await;
+    let b = s.base;
+    s.moves(&[
+        ("r0", BIN1, "S1", "", 40, "receipt", b - 60 * MIN, "host"),
+        (
+            "r1",
+            BIN1,
+            "L1",
+            "LOT-7",
+            6,
+            "receipt",
+            b - 60 * MIN,
+            "host",
+        ),
+        ("r2", BIN1, "L1", "OLD", 3, "receipt", b - 90 * MIN, "host"),
+        ("p2", BIN1, "L1", "OLD", -3, "pick", b - 80 * MIN, "host"),
+    ])
+    .await;
+    let p = Pass::new(BIN1);
+    s.sync(
+        &s.cora,
+        vec![
+            p.opened(b),
+            p.line(b + MIN, "S1", "", 40),
+            p.done(b + 2 * MIN),
+        ],
+        0,
+    )
+    .await;
+    let rows = s.results(&format!("state=current&pass={}", p.count)).await;
+    assert_eq!(rows.len(), 2, "S1 and L1/LOT-7, not L1/OLD: {rows:?}");
+    let l1 = rows.iter().find(|r| r["sku"] == "L1").unwrap();
+    assert_eq!(l1["lot"], "LOT-7");
+    assert_eq!(
+        (
+            l1["counted"].as_i64(),
+            l1["f_star"].as_i64(),
+            l1["variance"].as_i64()
+        ),
+        (Some(0), Some(6), Some(-6))
+    );
+    assert_eq!(l1["status"], "missing_from_bin");
+    let d = s.detail(l1["id"].as_i64().unwrap()).await;
+    assert_eq!(d["evidence"]["netting"]["scanned"], false);
+    assert!(
+        d["evidence"]["netting"]["window"]["end"].as_str().unwrap()
+            >= d["evidence"]["timing"]["done"].as_str().unwrap()
+    );
+}
+
+#[tokio::test]
+async fn stock_counted_where_the_book_has_none_is_found_stock() {
+    // Bin 2 has never held S1; the counter keys 3. F = {0}, f* = 0, variance +3,
+    // found_stock; out of tolerance (a percent of 0 is 0, and class A is exact anyway).
+    let s = site().await;
+    let b = s.base;
+    let p = Pass::new(BIN2);
+    s.sync(
+        &s.cora,
+        vec![
+            p.opened(b),
+            p.line(b + MIN, "S1", "", 3),
+            p.done(b + 2 * MIN),
+        ],
+        0,
+    )
+    .await;
+    let r = s.current(&p, "S1").await;
+    assert_eq!(
+        (r["f_star"].as_i64(), r["variance"].as_i64()),
+        (Some(0), Some(3))
+    );
+    assert_eq!(r["status"], "found_stock");
+    assert_eq!(r["verdict"], "out_of_tolerance");
+    assert_eq!(r["variance_value_minor"], 3 * 450, "3 boxes at 4.50");
+}
+
+#[tokio::test]
+async fn an_open_bin_is_not_netted_and_lines_after_done_re_net() {
+    // Nothing is netted until the bin is done. A line that reaches the server after
+    // bin_done (another request) re-nets the pass: 30 + 10 = 40 = the book.
+    let s = site().await;
+    forty_in_bin1(&s).await;
+    let b = s.base;
+    let p = Pass::new(BIN1);
+    s.sync(&s.cora, vec![p.opened(b), p.line(b + MIN, "S1", "", 30)], 0)
+        .await;
+    assert!(
+        s.results(&format!("state=all&pass={}", p.count))
+            .await
+            .is_empty()
+    );
+    s.sync(&s.cora, vec![p.done(b + 3 * MIN)], 0).await;
+    assert_eq!(s.current(&p, "S1").await["variance"], -10);
+    s.sync(&s.cora, vec![p.line(b + 2 * MIN, "S1", "", 10)], 0)
+        .await;
+    let r = s.current(&p, "S1").await;
+    assert_eq!(r["variance"], 0);
+    assert!(
+        r["renet_reason"]
+            .as_str()
+            .unwrap()
+            .contains("after the bin was netted")
+    );
+}
+
+/// The semantic content of a result, without ids and instants that depend on arrival.
+fn essence(s: &Site, rows: &[Value]) -> Vec<String> {
+    let _ = s;
+    let mut v: Vec<String> = rows
+        .iter()
+        .map(|r| {
+            format!(
+                "{} {} {} c={} f*={} v={} {} {}",
+                r["bin"],
+                r["sku"],
+                r["lot"],
+                r["counted"],
+                r["f_star"],
+                r["variance"],
+                r["status"],
+                r["verdict"]
+            )
+        })
+        .collect();
+    v.sort();
+    v
+}
+
+#[tokio::test]
+async fn results_do_not_depend_on_the_order_movements_and_count_events_arrive() {
+    // One scenario, delivered in many orders, each on a fresh server: bin 1 has 40 of S1
+    // received long before; during the count a pick of 5 (minute 1) and a receipt of 8
+    // (minute 3); a pick of 2 after the window (minute 20); L1 lot A 4 units received
+    // long before and never scanned. The counter keys 35 at minute 2, keys a wrong 9 at
+    // minute 2.5 and undoes it, and marks the bin done at minute 4.
+    // By hand: S1 window [s − u, 2 min + u], F = {40, 35}, c = 35 → variance 0 (the
+    // receipt at minute 3 is after the key's last scan). L1/A: not scanned, bin window,
+    // F = {4}, c = 0 → −4 missing_from_bin.
+    // Every arrival order must end with these two current results.
+    let orders: Vec<Vec<usize>> = {
+        let mut rng = rand_chacha::ChaCha8Rng::seed_from_u64(7);
+        let mut v = vec![(0..9).collect::<Vec<_>>(), (0..9).rev().collect()];
+        for _ in 0..6 {
+            let mut o: Vec<usize> = (0..9).collect();
+            o.shuffle(&mut rng);
+            v.push(o);
+        }
+        v
+    };
+    let mut seen: Option<Vec<String>> = None;
+    for order in orders {
+        let s = site().await;
+        let b = s.base;
+        let p = Pass::new(BIN1);
+        let wrong = p.line(b + 150_000, "S1", "", 9);
+        let wrong_id = wrong["id"].as_str().unwrap().to_string();
+        let undo = p.event(b + 160_000, "undo", json!({"line": wrong_id}));
+        let items: Vec<Item> = vec![
+            Item::Moves(vec![("r0", "S1", "", 40, "receipt", b - 60 * MIN)]),
+            Item::Moves(vec![("rl", "L1", "A", 4, "receipt", b - 60 * MIN)]),
+            Item::Moves(vec![("p1", "S1", "", -5, "pick", b + MIN)]),
+            Item::Moves(vec![("g1", "S1", "", 8, "receipt", b + 3 * MIN)]),
+            Item::Moves(vec![("p9", "S1", "", -2, "pick", b + 20 * MIN)]),
+            Item::Events(vec![p.opened(b), p.line(b + 2 * MIN, "S1", "", 35)]),
+            Item::Events(vec![wrong.clone()]),
+            Item::Events(vec![undo.clone()]),
+            Item::Events(vec![p.done(b + 4 * MIN)]),
+        ];
+        for i in &order {
+            match &items[*i] {
+                Item::Moves(m) => {
+                    let rows: Vec<_> = m
+                        .iter()
+                        .map(|(id, sku, lot, q, k, t)| (*id, BIN1, *sku, *lot, *q, *k, *t, "host"))
+                        .collect();
+                    s.moves(&rows).await;
+                }
+                Item::Events(e) => {
+                    s.sync(&s.cora, e.clone(), 0).await;
+                }
+            }
+        }
+        let rows = s.results(&format!("state=current&pass={}", p.count)).await;
+        let got = essence(&s, &rows);
+        assert_eq!(got.len(), 2, "order {order:?}: {rows:?}");
+        assert!(
+            got.iter()
+                .any(|g| g.contains("\"S1\"") && g.contains("v=0 ")),
+            "{got:?}"
+        );
+        assert!(
+            got.iter()
+                .any(|g| g.contains("\"L1\"") && g.contains("v=-4 ")),
+            "{got:?}"
+        );
+        match &seen {
+            None => seen = Some(got),
+            Some(first) => assert_eq!(&got, first, "order {order:?}"),
+        }
+    }
+}
+
+enum Item {
+    Moves(
+        Vec<(
+            &'static str,
+            &'static str,
+            &'static str,
+            i64,
+            &'static str,
+            i64,
+        )>,
+    ),
+    Events(Vec<Value>),
+}
+
+// ---------------------------------------------------------------------------
+// Recounts (DESIGN §5).
+
+/// Makes every weekday a working day and saves today's list with `counters` runs, run 1
+/// held by cora and (with two runs) run 2 by dan. Returns the day.
+async fn todays_list(s: &Site, counters: u32) -> String {
+    let (st, b) = s
+        .put(
+            "/api/v1/sites/T/planning/calendar",
+            &json!({"working_weekdays": ["mon", "tue", "wed", "thu", "fri", "sat", "sun"]}),
+        )
+        .await;
+    assert_eq!(st, 200, "{b}");
+    let day = Timestamp(s.base + 5 * MIN)
+        .to_utc()
+        .date_naive()
+        .format("%Y-%m-%d")
+        .to_string();
+    let (st, b) = s
+        .app
+        .post(
+            "/api/v1/sites/T/count-lists",
+            &json!({"day": day, "counters": counters, "minutes": 120}),
+        )
+        .await;
+    assert_eq!(st, 200, "{b}");
+    for (run, who) in [(1, "cora"), (2, "dan")]
+        .into_iter()
+        .take(counters as usize)
+    {
+        let (st, b) = s
+            .put(
+                &format!("/api/v1/sites/T/count-lists/{day}/runs/{run}"),
+                &json!({"holder": who}),
+            )
+            .await;
+        assert_eq!(st, 200, "{b}");
+    }
+    day
+}
+
+async fn my_tasks(s: &Site, token: &str, day: &str) -> Value {
+    let r = s
+        .app
+        .client
+        .get(format!("{}/api/v1/sites/T/my-tasks?day={day}", s.app.base))
+        .bearer_auth(token)
+        .send()
+        .await
+        .unwrap();
+    assert_eq!(r.status(), 200);
+    r.json().await.unwrap()
+}
+
+/// Cora counts 35 of S1 in bin 1 against a book of 40 (variance −5: out of tolerance
+/// for A, B (2 %) and C (5 %) alike). Returns her pass and result.
+async fn short_count(s: &Site) -> (Pass, Value) {
+    forty_in_bin1(s).await;
+    let b = s.base;
+    let p = Pass::new(BIN1);
+    s.sync(
+        &s.cora,
+        vec![
+            p.opened(b),
+            p.line(b + MIN, "S1", "", 35),
+            p.done(b + 2 * MIN),
+        ],
+        0,
+    )
+    .await;
+    let r = s.current(&p, "S1").await;
+    assert_eq!(
+        (r["variance"].as_i64(), r["verdict"].as_str()),
+        (Some(-5), Some("out_of_tolerance"))
+    );
+    (p, r)
+}
+
+/// The recount task of the day's list for bin 1, as the list API shows it.
+async fn recount_tasks(s: &Site, day: &str) -> (Vec<Value>, Value) {
+    let (st, list) = s
+        .app
+        .get(&format!("/api/v1/sites/T/count-lists/{day}"))
+        .await;
+    assert_eq!(st, 200, "{list}");
+    let tasks = list["tasks"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .filter(|t| t["reason"] == "recount")
+        .cloned()
+        .collect();
+    (tasks, list)
+}
+
+#[tokio::test]
+async fn out_of_tolerance_sends_a_blind_recount_to_another_counter_first() {
+    let s = site().await;
+    let day = todays_list(&s, 2).await;
+    let (_, first) = short_count(&s).await;
+    let (tasks, list) = recount_tasks(&s, &day).await;
+    assert_eq!(tasks.len(), 1, "{list}");
+    let run = tasks[0]["run"].as_u64().unwrap();
+    assert_eq!(run, 2, "dan's run, not cora's: {list}");
+    let min_seq = list["tasks"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .filter(|t| t["run"] == run)
+        .map(|t| t["seq"].as_i64().unwrap())
+        .min()
+        .unwrap();
+    assert_eq!(
+        tasks[0]["seq"].as_i64().unwrap(),
+        min_seq,
+        "ahead of the plan"
+    );
+    let d = s.detail(first["id"].as_i64().unwrap()).await;
+    assert_eq!(d["recount_tasks"].as_array().unwrap().len(), 1);
+
+    // Dan's phone sees a recount with no reason and no quantity; cora's does not see it.
+    let dans = my_tasks(&s, &s.dan, &day).await;
+    let rc = dans["tasks"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .find(|t| t["kind"] == "recount")
+        .unwrap_or_else(|| panic!("dan has the recount: {dans}"))
+        .clone();
+    let text = rc.to_string();
+    assert!(
+        !text.contains("40") || !text.contains("35"),
+        "no book or count: {text}"
+    );
+    assert!(
+        rc.get("reason").is_none() && rc.get("detail").is_none(),
+        "{rc}"
+    );
+    let coras = my_tasks(&s, &s.cora, &day).await;
+    assert!(
+        !coras["tasks"]
+            .as_array()
+            .unwrap()
+            .iter()
+            .any(|t| t["kind"] == "recount"),
+        "{coras}"
+    );
+}
+
+#[tokio::test]
+async fn with_no_other_counter_the_recount_waits_unassigned_with_a_warning() {
+    let s = site().await;
+    let day = todays_list(&s, 1).await;
+    short_count(&s).await;
+    let (tasks, list) = recount_tasks(&s, &day).await;
+    assert_eq!(tasks.len(), 1, "{list}");
+    let run = tasks[0]["run"].as_u64().unwrap();
+    assert_ne!(run, 1, "not cora's run");
+    let warnings = list["warnings"].to_string();
+    assert!(
+        warnings.contains("recount of A-01-01-1") && warnings.contains("cora"),
+        "{warnings}"
+    );
+}
+
+#[tokio::test]
+async fn a_recount_without_a_list_creates_the_days_list() {
+    let s = site().await;
+    short_count(&s).await;
+    let day = Timestamp(s.base + 2 * MIN)
+        .to_utc()
+        .date_naive()
+        .format("%Y-%m-%d")
+        .to_string();
+    let (tasks, list) = recount_tasks(&s, &day).await;
+    assert_eq!(tasks.len(), 1, "{list}");
+    assert!(
+        list["warnings"]
+            .to_string()
+            .contains("no counter other than cora")
+    );
+}
+
+/// Dan recounts bin 1 through his recount task and keys `qty` (the book is still 40).
+async fn recount(s: &Site, day: &str, qty: i64) {
+    let dans = my_tasks(s, &s.dan, day).await;
+    let task = dans["tasks"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .find(|t| t["kind"] == "recount")
+        .unwrap()["id"]
+        .as_i64()
+        .unwrap();
+    let mut p = Pass::new(BIN1);
+    p.task = Some(task);
+    let b = s.base + 10 * MIN;
+    s.sync(
+        &s.dan,
+        vec![
+            p.opened(b),
+            p.line(b + MIN, "S1", "", qty),
+            p.done(b + 2 * MIN),
+        ],
+        0,
+    )
+    .await;
+}
+
+#[tokio::test]
+async fn recount_outcomes_confirm_clear_or_call_a_supervisor() {
+    // First count 35 against 40: v₁ = −5. Building the day's list classified the items
+    // (S1 is class C, 5 %: 2 units of 40), so −5 is out.
+    // - recount 35: v₂ = −5 = v₁ → confirmed; the result waits for review, still out.
+    // - recount 40: v₂ = 0 → the book was right: the result becomes a hit and the first
+    //   count is marked wrong.
+    // - recount 30: v₂ = −10, within tolerance of neither (|−10| > 2 and |−10 − (−5)| > 2)
+    //   → a supervisor count: a recount task held by no one, and a warning.
+    for (qty, outcome, verdict, wrong) in [
+        (35, "confirmed", "out_of_tolerance", false),
+        (40, "book_right", "hit", true),
+        (30, "supervisor_count", "out_of_tolerance", false),
+    ] {
+        let s = site().await;
+        let day = todays_list(&s, 2).await;
+        let (p, _) = short_count(&s).await;
+        recount(&s, &day, qty).await;
+        let r = s.current(&p, "S1").await;
+        assert_eq!(r["recount_outcome"], outcome, "recount {qty}: {r}");
+        assert_eq!(r["verdict"], verdict, "recount {qty}");
+        assert_eq!(r["first_count_wrong"], wrong, "recount {qty}");
+        let open = s.results("state=open").await;
+        let still_open = open.iter().any(|o| o["id"] == r["id"]);
+        assert_eq!(
+            still_open,
+            verdict == "out_of_tolerance",
+            "recount {qty}: {open:?}"
+        );
+        let (tasks, list) = recount_tasks(&s, &day).await;
+        if outcome == "supervisor_count" {
+            assert_eq!(tasks.len(), 2, "{list}");
+            let sup = &tasks[1];
+            let holders = list["runs"].to_string();
+            assert!(
+                list["warnings"]
+                    .to_string()
+                    .contains("supervisor count of A-01-01-1"),
+                "{list}"
+            );
+            assert!(
+                sup["run"].as_u64().unwrap() > 2,
+                "a run nobody holds: {holders}"
+            );
+        } else {
+            assert_eq!(
+                tasks.len(),
+                1,
+                "no supervisor count after {outcome}: {list}"
+            );
+        }
+    }
+}
+
+#[tokio::test]
+async fn settings_are_read_by_book_readers_and_changed_only_by_count_policy() {
+    let s = site().await;
+    let (st, d) = s.app.get("/api/v1/sites/T/netting/settings").await;
+    assert_eq!(st, 200);
+    assert_eq!(d["tolerances"]["a"]["units"], 0, "A exact by default");
+    assert_eq!(d["tolerances"]["b"]["percent_bp"], 200, "B 2 %");
+    assert_eq!(d["tolerances"]["c"]["percent_bp"], 500, "C 5 %");
+    let mut changed = d.clone();
+    changed["tolerances"]["a"] = json!({"units": 1});
+    let (st, b) = s.put("/api/v1/sites/T/netting/settings", &changed).await;
+    assert_eq!(st, 200, "{b}");
+    // With A allowing one unit, a difference of −1 is a hit.
+    forty_in_bin1(&s).await;
+    let p = Pass::new(BIN1);
+    let base = s.base;
+    s.sync(
+        &s.cora,
+        vec![
+            p.opened(base),
+            p.line(base + MIN, "S1", "", 39),
+            p.done(base + 2 * MIN),
+        ],
+        0,
+    )
+    .await;
+    assert_eq!(s.current(&p, "S1").await["verdict"], "hit");
+
+    changed["tolerances"]["b"] = json!({"percent_bp": -5});
+    let (st, b) = s.put("/api/v1/sites/T/netting/settings", &changed).await;
+    assert_eq!(st, 400);
+    assert!(
+        b["error"].to_string().contains("tolerances.b") || b.to_string().contains("tolerances.b"),
+        "{b}"
+    );
+    let (st, _) = s
+        .put(
+            "/api/v1/sites/T/netting/reason-codes",
+            &json!([{"code": "damage", "label": "Damaged in the aisle"}]),
+        )
+        .await;
+    assert_eq!(st, 200);
+    let (_, codes) = s.app.get("/api/v1/sites/T/netting/reason-codes").await;
+    assert_eq!(codes[0]["code"], "damage");
+
+    // A counter's phone gets none of it.
+    for path in [
+        "/api/v1/sites/T/count-results",
+        "/api/v1/sites/T/netting/settings",
+        "/api/v1/sites/T/netting/sources",
+    ] {
+        let r = s
+            .app
+            .client
+            .get(format!("{}{path}", s.app.base))
+            .bearer_auth(&s.cora)
+            .send()
+            .await
+            .unwrap();
+        assert_eq!(r.status(), 403, "{path}");
+    }
+}
