@@ -17,6 +17,7 @@ pub mod ledger;
 pub mod master;
 pub mod netting;
 pub mod planning;
+pub mod review;
 pub mod store;
 pub mod sync;
 pub mod time;

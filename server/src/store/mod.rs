@@ -16,6 +16,7 @@ use crate::planning::calendar::Calendar;
 use crate::planning::plan::{Capacity, Fill, PlanInput};
 use crate::planning::short_pick::{NewShortPick, ShortPickOutcome};
 use crate::planning::{AbcSummary, ClassChange, ListView, NewCountList, Settings};
+use crate::review::store::ReviewStore;
 use crate::time::Timestamp;
 use async_trait::async_trait;
 use chrono::NaiveDate;
@@ -128,7 +129,7 @@ pub struct ShelfRow {
 
 /// The operations the rest of Cairn needs from storage.
 #[async_trait]
-pub trait Store: AccountStore + AccuracyStore + Send + Sync + 'static {
+pub trait Store: AccountStore + AccuracyStore + ReviewStore + Send + Sync + 'static {
     /// Answers when the database is open and migrated.
     async fn ping(&self) -> Result<(), StoreError>;
     /// Creates a site; its code must be new.

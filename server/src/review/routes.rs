@@ -1,0 +1,138 @@
+//! The host's feed of posted count adjustments: what the review approved, in
+//! ledger order, paged by the ledger's sequence number so a host that stores
+//! the last `next` it saw receives each adjustment exactly once.
+
+use super::MAX_FEED_ROWS;
+use super::store::AdjustmentRow;
+use crate::AppState;
+use crate::error::ApiError;
+use crate::http::access::{Access, BOOK_READERS, RouteTable};
+use crate::http::extract::{CurrentSite, Params};
+use axum::Json;
+use axum::extract::State;
+use axum::http::{HeaderName, header};
+use axum::response::{IntoResponse, Response};
+use serde::{Deserialize, Serialize};
+
+/// Adjustments per page when the caller names no limit.
+const DEFAULT_FEED_ROWS: usize = 200;
+/// The header that carries the next page's cursor of a CSV page.
+pub const NEXT_HEADER: &str = "x-next-after";
+
+/// Adds the feed's route.
+pub fn routes(t: &mut RouteTable) {
+    t.get(
+        "/api/v1/sites/{site}/adjustments",
+        Access::Site(BOOK_READERS),
+        get_adjustments,
+    );
+}
+
+#[derive(Deserialize)]
+#[serde(deny_unknown_fields)]
+struct FeedParams {
+    after: Option<String>,
+    limit: Option<usize>,
+    format: Option<String>,
+}
+
+/// A page of the feed.
+#[derive(Debug, Serialize)]
+pub struct FeedPage {
+    pub adjustments: Vec<AdjustmentRow>,
+    /// Pass as `after` for the next page; absent on the last page.
+    pub next: Option<String>,
+}
+
+/// The CSV columns, in order.
+pub const CSV_COLUMNS: [&str; 12] = [
+    "id",
+    "seq",
+    "bin",
+    "sku",
+    "lot",
+    "qty",
+    "event_at",
+    "review",
+    "result",
+    "reason_code",
+    "approver",
+    "approved_at",
+];
+
+/// Writes a page of adjustments as CSV with a header line.
+pub fn to_csv(rows: &[AdjustmentRow]) -> anyhow::Result<Vec<u8>> {
+    let mut w = csv::Writer::from_writer(Vec::new());
+    w.write_record(CSV_COLUMNS)?;
+    for r in rows {
+        w.write_record([
+            r.id.clone(),
+            r.seq.to_string(),
+            r.bin.clone(),
+            r.sku.clone(),
+            r.lot.clone(),
+            r.qty.to_string(),
+            r.event_at.to_string(),
+            r.review.to_string(),
+            r.result.to_string(),
+            r.reason_code.clone(),
+            r.approver.clone(),
+            r.approved_at.to_string(),
+        ])?;
+    }
+    w.into_inner()
+        .map_err(|e| anyhow::anyhow!("cannot finish the adjustments CSV: {e}"))
+}
+
+async fn get_adjustments(
+    State(state): State<AppState>,
+    CurrentSite(site): CurrentSite,
+    Params(p): Params<FeedParams>,
+) -> Result<Response, ApiError> {
+    let after = match p.after.as_deref().map(str::trim) {
+        None | Some("") => 0,
+        Some(t) => t.parse::<i64>().ok().filter(|n| *n >= 0).ok_or_else(|| {
+            ApiError::BadRequest(format!(
+                "after: '{t}' is not a cursor (pass the 'next' of the previous page)"
+            ))
+        })?,
+    };
+    let limit = p.limit.unwrap_or(DEFAULT_FEED_ROWS);
+    if limit == 0 || limit > MAX_FEED_ROWS {
+        return Err(ApiError::BadRequest(format!(
+            "limit: {limit} is not 1 to {MAX_FEED_ROWS}"
+        )));
+    }
+    let rows = state.store.adjustments(site.id, after, limit).await?;
+    let next = rows
+        .last()
+        .filter(|_| rows.len() == limit)
+        .map(|r| r.seq.to_string());
+    match p.format.as_deref() {
+        None | Some("json") => Ok(Json(FeedPage {
+            adjustments: rows,
+            next,
+        })
+        .into_response()),
+        Some("csv") => {
+            let csv = to_csv(&rows)?;
+            let file = format!("attachment; filename=\"adjustments-{}.csv\"", site.code);
+            let mut resp = (
+                [
+                    (header::CONTENT_TYPE, "text/csv; charset=utf-8".to_string()),
+                    (header::CONTENT_DISPOSITION, file),
+                ],
+                csv,
+            )
+                .into_response();
+            if let Some(n) = next.and_then(|n| n.parse().ok()) {
+                resp.headers_mut()
+                    .insert(HeaderName::from_static(NEXT_HEADER), n);
+            }
+            Ok(resp)
+        }
+        Some(other) => Err(ApiError::BadRequest(format!(
+            "format '{other}' is not json or csv"
+        ))),
+    }
+}
