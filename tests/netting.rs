@@ -1341,3 +1341,58 @@ async fn a_simulated_day_flags_every_clear_record_error_and_nothing_moves_alone_
         "the counter is exact, so every raised key is an error"
     );
 }
+
+#[tokio::test]
+async fn two_recounts_in_one_run_keep_their_order_and_positive_walk_positions() {
+    let s = site().await;
+    let day = todays_list(&s, 2).await;
+    short_count(&s).await;
+    // A second short count, in bin 2: book 20, counted 17.
+    s.moves(&[(
+        "r2",
+        BIN2,
+        "S1",
+        "",
+        20,
+        "receipt",
+        s.base - 60 * MIN,
+        "host",
+    )])
+    .await;
+    let b = s.base + 10 * MIN;
+    let p = Pass::new(BIN2);
+    s.sync(
+        &s.cora,
+        vec![
+            p.opened(b),
+            p.line(b + MIN, "S1", "", 17),
+            p.done(b + 2 * MIN),
+        ],
+        0,
+    )
+    .await;
+    let (tasks, list) = recount_tasks(&s, &day).await;
+    assert_eq!(tasks.len(), 2, "{list}");
+    let seqs: Vec<i64> = tasks.iter().map(|t| t["seq"].as_i64().unwrap()).collect();
+    assert!(seqs.iter().all(|&q| q >= 1), "{seqs:?}");
+    let run2: Vec<&Value> = list["tasks"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .filter(|t| t["run"] == 2)
+        .collect();
+    let order: Vec<&str> = run2
+        .iter()
+        .take(2)
+        .map(|t| t["bin"].as_str().unwrap())
+        .collect();
+    assert_eq!(
+        order,
+        [BIN1, BIN2],
+        "both recounts lead, first sent first: {list}"
+    );
+    let mut all: Vec<i64> = run2.iter().map(|t| t["seq"].as_i64().unwrap()).collect();
+    let n = all.len();
+    all.dedup();
+    assert_eq!(all.len(), n, "every walk position once: {list}");
+}
