@@ -118,6 +118,44 @@ enum Command {
         #[command(subcommand)]
         command: UserCommand,
     },
+    /// Copy the database while the server runs (SQLite's online backup), then check the copy.
+    Backup {
+        #[arg(long, env = "CAIRN_DB")]
+        db: PathBuf,
+        /// A new file, or a folder to hold cairn-YYYYMMDDTHHMMSS.sssZ.db.
+        #[arg(long)]
+        to: PathBuf,
+        /// With a folder: keep only the newest N backups there.
+        #[arg(long)]
+        keep: Option<usize>,
+    },
+    /// Replace the database with a checked backup (stop the server first).
+    Restore {
+        /// The backup file.
+        #[arg(long)]
+        from: PathBuf,
+        #[arg(long, env = "CAIRN_DB")]
+        db: PathBuf,
+        /// Replace an existing database file.
+        #[arg(long)]
+        force: bool,
+    },
+    /// Check one server's readiness over HTTP (for container health checks); exits 0 when ready.
+    Probe {
+        #[arg(default_value = "http://127.0.0.1:8080/readyz")]
+        url: String,
+    },
+    /// Check settings files.
+    Config {
+        #[command(subcommand)]
+        command: ConfigCommand,
+    },
+}
+
+#[derive(Subcommand)]
+enum ConfigCommand {
+    /// Read a TOML settings file as `cairn serve --config` would, and print the result.
+    Check { path: PathBuf },
 }
 
 #[derive(Clone, Copy, clap::ValueEnum)]
@@ -235,13 +273,7 @@ enum UserCommand {
 /// Runs the command line and returns the process exit code.
 pub fn main() -> ExitCode {
     let cli = Cli::parse();
-    tracing_subscriber::fmt()
-        .with_env_filter(
-            tracing_subscriber::EnvFilter::try_from_default_env()
-                .unwrap_or_else(|_| "info,tower_http=warn".into()),
-        )
-        .with_writer(std::io::stderr)
-        .init();
+    init_logs();
     let rt = match tokio::runtime::Builder::new_multi_thread()
         .enable_all()
         .build()
@@ -258,6 +290,22 @@ pub fn main() -> ExitCode {
             eprintln!("cairn: {e:#}");
             ExitCode::FAILURE
         }
+    }
+}
+
+/// Logs go to standard error: plain text, or one JSON object a line when
+/// `CAIRN_LOG_FORMAT=json` (for journald or a log shipper). `RUST_LOG` sets the levels.
+fn init_logs() {
+    let filter = tracing_subscriber::EnvFilter::try_from_default_env()
+        .unwrap_or_else(|_| "info,tower_http=warn".into());
+    let json = std::env::var("CAIRN_LOG_FORMAT").is_ok_and(|v| v.eq_ignore_ascii_case("json"));
+    let builder = tracing_subscriber::fmt()
+        .with_env_filter(filter)
+        .with_writer(std::io::stderr);
+    if json {
+        builder.json().flatten_event(true).init();
+    } else {
+        builder.init();
     }
 }
 
@@ -489,7 +537,56 @@ async fn dispatch(command: Command) -> anyhow::Result<()> {
             Ok(())
         }
         Command::User { command } => user_command(command).await,
+        Command::Backup { db, to, keep } => {
+            let report = tokio::task::spawn_blocking(move || crate::backup::backup(&db, &to, keep))
+                .await??;
+            println!("backup {report}");
+            Ok(())
+        }
+        Command::Restore { from, db, force } => {
+            let report =
+                tokio::task::spawn_blocking(move || crate::backup::restore(&from, &db, force))
+                    .await??;
+            println!("restored {report}");
+            Ok(())
+        }
+        Command::Probe { url } => probe(&url).await,
+        Command::Config {
+            command: ConfigCommand::Check { path },
+        } => {
+            let config = Config::from_file(&path)?;
+            println!("{config:#?}");
+            Ok(())
+        }
     }
+}
+
+/// Sends one GET to a plain-HTTP URL on this host and fails unless it answers 2xx.
+async fn probe(url: &str) -> anyhow::Result<()> {
+    use tokio::io::{AsyncReadExt, AsyncWriteExt};
+    let rest = url
+        .strip_prefix("http://")
+        .ok_or_else(|| anyhow::anyhow!("probe takes an http:// URL, not {url}"))?;
+    let (host, path) = match rest.find('/') {
+        Some(i) => (&rest[..i], &rest[i..]),
+        None => (rest, "/"),
+    };
+    let work = async {
+        let mut conn = tokio::net::TcpStream::connect(host).await?;
+        conn.write_all(format!("GET {path} HTTP/1.0\r\nHost: {host}\r\n\r\n").as_bytes())
+            .await?;
+        let mut head = vec![0u8; 64];
+        let n = conn.read(&mut head).await?;
+        Ok::<_, std::io::Error>(String::from_utf8_lossy(&head[..n]).to_string())
+    };
+    let head = tokio::time::timeout(std::time::Duration::from_secs(5), work)
+        .await
+        .map_err(|_| anyhow::anyhow!("{url} did not answer within 5 s"))?
+        .map_err(|e| anyhow::anyhow!("{url}: {e}"))?;
+    let status = head.split_whitespace().nth(1).unwrap_or("");
+    anyhow::ensure!(status.starts_with('2'), "{url} answered {status}");
+    println!("{url}: {status}");
+    Ok(())
 }
 
 async fn serve(state: AppState, listen: SocketAddr, demo: bool) -> anyhow::Result<()> {
@@ -507,11 +604,25 @@ async fn serve(state: AppState, listen: SocketAddr, demo: bool) -> anyhow::Resul
     tokio::spawn(planning::service::nightly_classification(
         state.store.clone(),
     ));
-    crate::run(state, listener, async {
-        let _ = tokio::signal::ctrl_c().await;
-    })
-    .await?;
+    crate::run(state, listener, shutdown_signal()).await?;
     Ok(())
+}
+
+/// Resolves on Ctrl-C or SIGTERM (what systemd and container engines send to stop).
+async fn shutdown_signal() {
+    let term = async {
+        match tokio::signal::unix::signal(tokio::signal::unix::SignalKind::terminate()) {
+            Ok(mut s) => {
+                s.recv().await;
+            }
+            Err(_) => std::future::pending::<()>().await,
+        }
+    };
+    tokio::select! {
+        _ = tokio::signal::ctrl_c() => {}
+        _ = term => {}
+    }
+    tracing::info!("stopping: finishing the requests in flight");
 }
 
 /// Reads `n` secrets: from standard input, one per line, or by prompting

@@ -171,6 +171,16 @@ impl Store for SqliteStore {
             .await
     }
 
+    async fn ping_writer(&self) -> Result<(), StoreError> {
+        self.writer
+            .run(|conn| {
+                // BEGIN IMMEDIATE takes the write lock; rolling back writes nothing.
+                conn.execute_batch("begin immediate; rollback")?;
+                Ok(())
+            })
+            .await
+    }
+
     async fn create_site(&self, site: NewSite) -> Result<Site, StoreError> {
         self.write_tx(move |tx| master::create_site(tx, &site))
             .await
