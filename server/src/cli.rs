@@ -145,6 +145,19 @@ enum Command {
         #[arg(default_value = "http://127.0.0.1:8080/readyz")]
         url: String,
     },
+    /// Drive the sync endpoint of a fresh in-process server on loopback with N phones for a
+    /// bounded time; print events/s, p50/p99 latency and the raw SQLite ceiling of the same rows.
+    Loadtest {
+        #[arg(long, default_value_t = 200)]
+        phones: usize,
+        #[arg(long, default_value_t = 20)]
+        seconds: u64,
+        /// Events per sync request.
+        #[arg(long, default_value_t = 100)]
+        batch: usize,
+        #[arg(long, value_enum, default_value_t = Synchronous::Full)]
+        synchronous: Synchronous,
+    },
     /// Check settings files.
     Config {
         #[command(subcommand)]
@@ -551,6 +564,23 @@ async fn dispatch(command: Command) -> anyhow::Result<()> {
             Ok(())
         }
         Command::Probe { url } => probe(&url).await,
+        Command::Loadtest {
+            phones,
+            seconds,
+            batch,
+            synchronous,
+        } => {
+            let outcome = crate::loadtest::run(crate::loadtest::Spec {
+                phones,
+                seconds,
+                batch,
+                synchronous,
+            })
+            .await?;
+            println!("{phones} phones, {batch} events a request, synchronous={synchronous:?}");
+            println!("{outcome}");
+            Ok(())
+        }
         Command::Config {
             command: ConfigCommand::Check { path },
         } => {

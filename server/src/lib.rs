@@ -15,6 +15,7 @@ pub mod error;
 pub mod http;
 pub mod import;
 pub mod ledger;
+pub mod loadtest;
 pub mod master;
 pub mod netting;
 pub mod planning;
