@@ -11,7 +11,7 @@ use cairn::planning::plan::{self, BinFacts, Capacity, Fill, ItemFacts, Plan, Pla
 use cairn::planning::walk::Place;
 use cairn::planning::{Settings, service};
 use chrono::NaiveDate;
-use common::{movement, spawn_app};
+use common::spawn_app;
 use serde_json::json;
 use std::collections::HashMap;
 
@@ -253,36 +253,6 @@ async fn a_simulated_year_on_the_demo_site_keeps_frequencies_capacity_and_level(
     );
 }
 
-/// Site T with a negative balance on A-01-01-1 and a short pick reported on A-01-02-1.
-async fn site_with_triggers(app: &common::TestApp) {
-    app.small_site().await;
-    let (s, b) = app
-        .post(
-            "/api/v1/sites/T/movements",
-            &json!([
-                movement(
-                    "m1",
-                    "A-01-01-1",
-                    "S1",
-                    10,
-                    "receipt",
-                    "2026-03-02T08:00:00Z"
-                ),
-                movement("m2", "A-01-01-1", "S1", -12, "pick", "2026-03-02T09:00:00Z"),
-            ]),
-        )
-        .await;
-    assert_eq!(s, 200, "{b}");
-    let (s, b) = app
-        .post(
-            "/api/v1/sites/T/short-picks",
-            &json!([{"id": "sp1", "bin": "A-01-02-1", "sku": "L1", "short_qty": 3,
-                     "reported_at": "2026-03-02T10:00:00Z"}]),
-        )
-        .await;
-    assert_eq!((s, b["recorded"].as_u64()), (200, Some(1)), "{b}");
-}
-
 fn build(day: &str, counters: u32, minutes: u32, extra: serde_json::Value) -> serde_json::Value {
     let mut b = json!({"day": day, "counters": counters, "minutes": minutes});
     if let (Some(o), Some(x)) = (b.as_object_mut(), extra.as_object()) {
@@ -294,7 +264,7 @@ fn build(day: &str, counters: u32, minutes: u32, extra: serde_json::Value) -> se
 #[tokio::test]
 async fn triggered_bins_lead_the_list_and_one_left_off_is_named_in_a_warning() {
     let app = spawn_app().await;
-    site_with_triggers(&app).await;
+    app.site_with_triggers().await;
     let (s, list) = app
         .post(
             "/api/v1/sites/T/count-lists",
@@ -330,7 +300,7 @@ async fn triggered_bins_lead_the_list_and_one_left_off_is_named_in_a_warning() {
 #[tokio::test]
 async fn a_stored_list_is_read_exported_adjusted_and_not_rebuilt_by_accident() {
     let app = spawn_app().await;
-    site_with_triggers(&app).await;
+    app.site_with_triggers().await;
     let path = "/api/v1/sites/T/count-lists";
     let (s, list) = app.post(path, &build("2026-03-03", 2, 60, json!({}))).await;
     assert_eq!((s, list["stored"].as_bool()), (200, Some(true)), "{list}");
@@ -408,7 +378,7 @@ async fn a_stored_list_is_read_exported_adjusted_and_not_rebuilt_by_accident() {
 #[tokio::test]
 async fn short_picks_are_idempotent_and_bad_rows_are_named() {
     let app = spawn_app().await;
-    site_with_triggers(&app).await;
+    app.site_with_triggers().await;
     let path = "/api/v1/sites/T/short-picks";
     let same = json!([{"id": "sp1", "bin": "A-01-02-1", "sku": "L1", "short_qty": 3,
                        "reported_at": "2026-03-02T10:00:00Z"}]);
@@ -468,7 +438,7 @@ async fn settings_and_calendar_round_trip_and_bad_values_are_refused() {
 #[tokio::test]
 async fn a_classification_run_is_summarised_and_kept_in_each_items_history() {
     let app = spawn_app().await;
-    site_with_triggers(&app).await;
+    app.site_with_triggers().await;
     let (s, none) = app.get("/api/v1/sites/T/planning/abc").await;
     assert_eq!(s, 404, "{none}");
     let (s, run) = app
@@ -499,7 +469,7 @@ async fn a_classification_run_is_summarised_and_kept_in_each_items_history() {
 #[tokio::test]
 async fn a_counter_downloads_their_run_with_labels_and_items_but_no_book_quantities() {
     let app = spawn_app().await;
-    site_with_triggers(&app).await;
+    app.site_with_triggers().await;
     let (s, list) = app
         .post(
             "/api/v1/sites/T/count-lists",

@@ -18,32 +18,7 @@ const DAY: &str = "2026-03-03";
 /// Site T with a negative balance on A-01-01-1 and a short pick reported on
 /// A-01-02-1; supervisor sam, planner pia, counters cora and dan.
 async fn site(app: &TestApp) {
-    app.small_site().await;
-    let (s, b) = app
-        .post(
-            "/api/v1/sites/T/movements",
-            &json!([
-                movement(
-                    "m1",
-                    "A-01-01-1",
-                    "S1",
-                    10,
-                    "receipt",
-                    "2026-03-02T08:00:00Z"
-                ),
-                movement("m2", "A-01-01-1", "S1", -12, "pick", "2026-03-02T09:00:00Z"),
-            ]),
-        )
-        .await;
-    assert_eq!(s, 200, "{b}");
-    let (s, b) = app
-        .post(
-            "/api/v1/sites/T/short-picks",
-            &json!([{"id": "sp1", "bin": "A-01-02-1", "sku": "L1", "short_qty": 3,
-                     "reported_at": "2026-03-02T10:00:00Z"}]),
-        )
-        .await;
-    assert_eq!(s, 200, "{b}");
+    app.site_with_triggers().await;
     for (name, role, pin) in [
         ("sam", Role::Supervisor, None),
         ("pia", Role::Planner, None),

@@ -108,6 +108,25 @@ enum Command {
         #[arg(long)]
         save: bool,
     },
+    /// Print the accuracy report of a period, or the buffer of every item.
+    Report {
+        /// accuracy: IRA, value accuracy, adjustments, compliance, coverage;
+        /// buffer: safety stock and order point with every term.
+        what: ReportKind,
+        #[arg(long, env = "CAIRN_DB")]
+        db: PathBuf,
+        #[arg(long)]
+        site: String,
+        /// First day, YYYY-MM-DD (accuracy: default 90 days before --until).
+        #[arg(long)]
+        since: Option<chrono::NaiveDate>,
+        /// Last day, YYYY-MM-DD (accuracy: default today; buffer: the last day of demand,
+        /// default yesterday, UTC).
+        #[arg(long)]
+        until: Option<chrono::NaiveDate>,
+        #[arg(long, value_enum, default_value_t = PlanFormat::Text)]
+        format: PlanFormat,
+    },
     /// Manage sites.
     Site {
         #[command(subcommand)]
@@ -169,6 +188,12 @@ enum Command {
 enum ConfigCommand {
     /// Read a TOML settings file as `cairn serve --config` would, and print the result.
     Check { path: PathBuf },
+}
+
+#[derive(Clone, Copy, clap::ValueEnum)]
+enum ReportKind {
+    Accuracy,
+    Buffer,
 }
 
 #[derive(Clone, Copy, clap::ValueEnum)]
@@ -588,6 +613,14 @@ async fn dispatch(command: Command) -> anyhow::Result<()> {
             println!("{config:#?}");
             Ok(())
         }
+        Command::Report {
+            what,
+            db,
+            site,
+            since,
+            until,
+            format,
+        } => report(what, db, site, since, until, format).await,
     }
 }
 
@@ -616,6 +649,78 @@ async fn probe(url: &str) -> anyhow::Result<()> {
     let status = head.split_whitespace().nth(1).unwrap_or("");
     anyhow::ensure!(status.starts_with('2'), "{url} answered {status}");
     println!("{url}: {status}");
+    Ok(())
+}
+
+async fn report(
+    what: ReportKind,
+    db: PathBuf,
+    site: String,
+    since: Option<chrono::NaiveDate>,
+    until: Option<chrono::NaiveDate>,
+    format: PlanFormat,
+) -> anyhow::Result<()> {
+    use crate::accuracy::report as table;
+    use crate::accuracy::service;
+    if !db.exists() {
+        anyhow::bail!("database {} does not exist", db.display());
+    }
+    let state = open(db)?;
+    let store = state.store.as_ref();
+    let site = site_of(store, &site).await?;
+    let public = |e: crate::error::ApiError| anyhow::anyhow!("{}", e.public_text());
+    let tables = match what {
+        ReportKind::Accuracy => {
+            let period = service::Period::new(since, until, service::DEFAULT_PERIOD_DAYS)
+                .map_err(anyhow::Error::msg)?;
+            let r = service::accuracy_report(store, &site, period, service::Filter::default())
+                .await
+                .map_err(public)?;
+            if let PlanFormat::Json = format {
+                println!("{}", serde_json::to_string_pretty(&r)?);
+                return Ok(());
+            }
+            table::ACCURACY_TABLES
+                .iter()
+                .filter_map(|name| table::accuracy_table(&r, name))
+                .collect::<Vec<_>>()
+        }
+        ReportKind::Buffer => {
+            if since.is_some() {
+                anyhow::bail!(
+                    "--since is for the accuracy report; the buffer's window is the site's demand window up to --until"
+                );
+            }
+            let settings = store.accuracy_settings(site.id).await?;
+            let window =
+                service::DemandWindow::new(until, None, &settings).map_err(anyhow::Error::msg)?;
+            let r = service::buffer_reports(store, &site, window, None)
+                .await
+                .map_err(public)?;
+            if let PlanFormat::Json = format {
+                println!("{}", serde_json::to_string_pretty(&r)?);
+                return Ok(());
+            }
+            vec![table::buffer_table(&r)]
+        }
+    };
+    for (i, t) in tables.iter().enumerate() {
+        match format {
+            PlanFormat::Csv => {
+                // Several tables in one CSV stream are separated by a blank line.
+                if i > 0 {
+                    println!();
+                }
+                print!("{}", table::to_csv(t)?);
+            }
+            _ => {
+                if i > 0 {
+                    println!();
+                }
+                print!("{}", table::to_text(t));
+            }
+        }
+    }
     Ok(())
 }
 

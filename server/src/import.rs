@@ -1,8 +1,9 @@
-//! CSV import of items, bins, packs and movements: every row is checked before
+//! CSV import of items, bins, packs, movements and planner inputs: every row is checked before
 //! anything is written, the whole file is written in one transaction, and each
 //! error names its line and column.
 
 use crate::accounts::audit::AuditEvent;
+use crate::accuracy::inputs::PlannerInputRecord;
 use crate::batch::{Collector, FieldError, RowError};
 use crate::ledger::MovementRecord;
 use crate::master::{BinRecord, ItemRecord, PackRecord, Site};
@@ -29,6 +30,8 @@ pub enum ImportKind {
     Bins,
     Packs,
     Movements,
+    /// The planner's lead times and review periods, per item (`sku`) or item group (`group`).
+    PlannerInputs,
 }
 
 impl ImportKind {
@@ -39,6 +42,7 @@ impl ImportKind {
             ImportKind::Bins => "bins",
             ImportKind::Packs => "packs",
             ImportKind::Movements => "movements",
+            ImportKind::PlannerInputs => "planner-inputs",
         }
     }
 }
@@ -286,6 +290,15 @@ pub async fn import_csv(
             })
             .await?;
             Ok(done(n, o.recorded, o.already_recorded))
+        }
+        ImportKind::PlannerInputs => {
+            let p = parse(path, show, PlannerInputRecord::validate)?;
+            let n = p.rows.len();
+            let w = write(show, n, &p.lines, |_| {
+                store.put_planner_inputs(id, p.rows, IMPORT_SOURCE.into(), audit(n))
+            })
+            .await?;
+            Ok(done(n, w, 0))
         }
     }
 }

@@ -367,6 +367,36 @@ impl TestApp {
             .await;
         assert_eq!(s, 200, "{b}");
     }
+
+    /// Creates site T (as `small_site`) with a negative balance on A-01-01-1 and a short pick reported on A-01-02-1.
+    pub async fn site_with_triggers(&self) {
+        self.small_site().await;
+        let (s, b) = self
+            .post(
+                "/api/v1/sites/T/movements",
+                &json!([
+                    movement(
+                        "m1",
+                        "A-01-01-1",
+                        "S1",
+                        10,
+                        "receipt",
+                        "2026-03-02T08:00:00Z"
+                    ),
+                    movement("m2", "A-01-01-1", "S1", -12, "pick", "2026-03-02T09:00:00Z"),
+                ]),
+            )
+            .await;
+        assert_eq!(s, 200, "{b}");
+        let (s, b) = self
+            .post(
+                "/api/v1/sites/T/short-picks",
+                &json!([{"id": "sp1", "bin": "A-01-02-1", "sku": "L1", "short_qty": 3,
+                         "reported_at": "2026-03-02T10:00:00Z"}]),
+            )
+            .await;
+        assert_eq!((s, b["recorded"].as_u64()), (200, Some(1)), "{b}");
+    }
 }
 
 /// Builds one movement as the API takes it.

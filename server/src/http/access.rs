@@ -45,6 +45,8 @@ pub const BOOK_WRITERS: &[Role] = &[Role::InventoryManager, Role::Admin];
 pub const LIST_KEEPERS: &[Role] = &[Role::Supervisor, Role::InventoryManager, Role::Admin];
 /// Roles that set how a site counts: frequencies, classification, calendar.
 pub const COUNT_POLICY: &[Role] = &[Role::InventoryManager, Role::Admin];
+/// Roles that set the planner's buffer inputs and the site's accuracy target.
+pub const PLANNERS: &[Role] = &[Role::Planner, Role::InventoryManager, Role::Admin];
 /// Roles that administer a site's users, devices, tokens and audit trail.
 pub const ADMINS: &[Role] = &[Role::Admin];
 

@@ -27,6 +27,7 @@ pub fn route_table() -> RouteTable {
     crate::master::routes::routes(&mut t);
     crate::ledger::routes::routes(&mut t);
     crate::planning::routes::routes(&mut t);
+    crate::accuracy::routes::routes(&mut t);
     crate::sync::routes::routes(&mut t);
     t
 }

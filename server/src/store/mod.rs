@@ -6,6 +6,7 @@ pub mod sqlite;
 
 use crate::accounts::audit::AuditEvent;
 use crate::accounts::store::AccountStore;
+use crate::accuracy::store::AccuracyStore;
 use crate::batch::RowError;
 use crate::ledger::{BalanceRow, Movement, NewMovement, RecordOutcome};
 use crate::master::codes::{BinCode, Sku, ZoneCode};
@@ -127,7 +128,7 @@ pub struct ShelfRow {
 
 /// The operations the rest of Cairn needs from storage.
 #[async_trait]
-pub trait Store: AccountStore + Send + Sync + 'static {
+pub trait Store: AccountStore + AccuracyStore + Send + Sync + 'static {
     /// Answers when the database is open and migrated.
     async fn ping(&self) -> Result<(), StoreError>;
 

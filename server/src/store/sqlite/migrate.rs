@@ -39,6 +39,11 @@ pub const MIGRATIONS: &[Migration] = &[
         name: "0005_netting.sql",
         sql: include_str!("../../../../migrations/0005_netting.sql"),
     },
+    Migration {
+        version: 6,
+        name: "0006_buffer.sql",
+        sql: include_str!("../../../../migrations/0006_buffer.sql"),
+    },
 ];
 
 /// Returns the newest schema version this binary knows.

@@ -2,6 +2,7 @@
 //! readers. All SQL of Cairn lives below this module.
 
 pub mod accounts;
+pub mod accuracy;
 pub mod ledger;
 pub mod master;
 pub mod migrate;

@@ -1,0 +1,335 @@
+//! HTTP routes of record accuracy and the planner's buffer, relative to
+//! `/api/v1/sites/{site}`: the accuracy report of a period (JSON, or any of
+//! its tables as CSV), per-item record error, the site's accuracy settings,
+//! the planner's inputs, and the buffer of every item or one. Book readers
+//! read; planners (and inventory managers) set inputs and settings.
+
+use super::inputs::{AccuracySettings, PlannerInputRecord};
+use super::report::{self, ACCURACY_TABLES, Table};
+use super::service::{
+    self, AccuracyReport, BufferReport, DEFAULT_PERIOD_DAYS, DemandWindow, Filter, ItemReport,
+    Period,
+};
+use crate::AppState;
+use crate::accounts::audit;
+use crate::error::ApiError;
+use crate::http::access::{Access, BOOK_READERS, CurrentUser, PLANNERS, RouteTable};
+use crate::http::extract::{CurrentSite, JsonRows, Params};
+use crate::master::Site;
+use crate::master::codes::Sku;
+use crate::planning::abc::Class;
+use axum::Json;
+use axum::extract::{Path, State};
+use axum::http::header;
+use axum::response::{IntoResponse, Response};
+use chrono::NaiveDate;
+use serde::Deserialize;
+
+/// Adds the accuracy and buffer routes, API and pages.
+pub fn routes(t: &mut RouteTable) {
+    macro_rules! path {
+        ($tail:literal) => {
+            concat!("/api/v1/sites/{site}", $tail)
+        };
+    }
+    let read = Access::Site(BOOK_READERS);
+    t.get(path!("/accuracy"), read, get_accuracy)
+        .get(path!("/accuracy/items"), read, get_items)
+        .get(path!("/accuracy/items/{sku}"), read, get_item)
+        .get(path!("/accuracy/settings"), read, get_settings)
+        .put(
+            path!("/accuracy/settings"),
+            Access::Site(PLANNERS),
+            put_settings,
+        )
+        .get(path!("/planner-inputs"), read, get_inputs)
+        .post(
+            path!("/planner-inputs"),
+            Access::Site(PLANNERS),
+            post_inputs,
+        )
+        .get(path!("/buffer"), read, get_buffers)
+        .get(path!("/buffer/{sku}"), read, get_buffer);
+    super::pages::routes(t);
+}
+
+/// Query parameters the accuracy and buffer routes and pages share; an empty
+/// value is the same as none (as a page's "all" choice sends it).
+#[derive(Debug, Default, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct ReportParams {
+    pub since: Option<String>,
+    pub until: Option<String>,
+    pub class: Option<String>,
+    pub zone: Option<String>,
+    pub format: Option<String>,
+    pub table: Option<String>,
+    pub window_days: Option<String>,
+}
+
+fn given(v: &Option<String>) -> Option<&str> {
+    v.as_deref().map(str::trim).filter(|s| !s.is_empty())
+}
+
+/// Parses a `YYYY-MM-DD` day, naming the parameter when it is not one.
+pub fn parse_day(name: &str, text: &str) -> Result<NaiveDate, ApiError> {
+    NaiveDate::parse_from_str(text.trim(), "%Y-%m-%d").map_err(|_| {
+        ApiError::BadRequest(format!(
+            "{name}: '{text}' is not a date: use YYYY-MM-DD, e.g. 2026-03-02"
+        ))
+    })
+}
+
+impl ReportParams {
+    fn day(&self, name: &str, v: &Option<String>) -> Result<Option<NaiveDate>, ApiError> {
+        given(v).map(|t| parse_day(name, t)).transpose()
+    }
+
+    /// Returns the period asked for, `default_days` up to today when not given.
+    pub fn period(&self, default_days: u64) -> Result<Period, ApiError> {
+        Period::new(
+            self.day("since", &self.since)?,
+            self.day("until", &self.until)?,
+            default_days,
+        )
+        .map_err(ApiError::BadRequest)
+    }
+
+    /// Returns the class and zone filter.
+    pub fn filter(&self) -> Result<Filter, ApiError> {
+        let class = given(&self.class)
+            .map(|c| {
+                Class::parse(&c.to_ascii_uppercase())
+                    .ok_or_else(|| ApiError::BadRequest(format!("class: '{c}' is not A, B or C")))
+            })
+            .transpose()?;
+        Ok(Filter {
+            class,
+            zone: given(&self.zone).map(str::to_string),
+        })
+    }
+
+    /// Returns the demand window asked for (the site's by default).
+    pub fn window(&self, settings: &AccuracySettings) -> Result<DemandWindow, ApiError> {
+        let days = given(&self.window_days)
+            .map(|d| {
+                d.parse::<u32>().map_err(|_| {
+                    ApiError::BadRequest(format!("window_days: '{d}' is not a whole number"))
+                })
+            })
+            .transpose()?;
+        DemandWindow::new(self.day("until", &self.until)?, days, settings)
+            .map_err(ApiError::BadRequest)
+    }
+
+    fn csv(&self) -> Result<bool, ApiError> {
+        match given(&self.format) {
+            None | Some("json") => Ok(false),
+            Some("csv") => Ok(true),
+            Some(other) => Err(ApiError::BadRequest(format!(
+                "format: '{other}' is not json or csv"
+            ))),
+        }
+    }
+}
+
+/// Answers a table as a CSV download.
+pub fn csv_response(site: &Site, t: &Table) -> Result<Response, ApiError> {
+    let body = report::to_csv(t).map_err(anyhow::Error::from)?;
+    let file = format!("attachment; filename=\"{}-{}.csv\"", t.name, site.code);
+    Ok((
+        [
+            (header::CONTENT_TYPE, "text/csv; charset=utf-8".to_string()),
+            (header::CONTENT_DISPOSITION, file),
+        ],
+        body,
+    )
+        .into_response())
+}
+
+fn sku(text: &str) -> Result<Sku, ApiError> {
+    Sku::parse(text).map_err(|e| ApiError::BadRequest(e.to_string()))
+}
+
+/// Builds the accuracy report a request asks for.
+pub async fn report_for(
+    state: &AppState,
+    site: &Site,
+    p: &ReportParams,
+) -> Result<AccuracyReport, ApiError> {
+    service::accuracy_report(
+        state.store.as_ref(),
+        site,
+        p.period(DEFAULT_PERIOD_DAYS)?,
+        p.filter()?,
+    )
+    .await
+}
+
+async fn get_accuracy(
+    State(state): State<AppState>,
+    CurrentSite(site): CurrentSite,
+    Params(p): Params<ReportParams>,
+) -> Result<Response, ApiError> {
+    let csv = p.csv()?;
+    let r = report_for(&state, &site, &p).await?;
+    if !csv {
+        return Ok(Json(r).into_response());
+    }
+    let name = given(&p.table).unwrap_or("summary");
+    let t = report::accuracy_table(&r, name).ok_or_else(|| {
+        ApiError::BadRequest(format!(
+            "table: '{name}' is not one of {}",
+            ACCURACY_TABLES.join(", ")
+        ))
+    })?;
+    csv_response(&site, &t)
+}
+
+/// Per-item figures cover all history unless a start is given.
+fn item_period(p: &ReportParams) -> Result<Period, ApiError> {
+    let since = p
+        .day("since", &p.since)?
+        .unwrap_or(NaiveDate::from_ymd_opt(1970, 1, 1).expect("1970-01-01 is a date"));
+    Period::new(Some(since), p.day("until", &p.until)?, 1).map_err(ApiError::BadRequest)
+}
+
+async fn get_items(
+    State(state): State<AppState>,
+    CurrentSite(site): CurrentSite,
+    Params(p): Params<ReportParams>,
+) -> Result<Response, ApiError> {
+    let csv = p.csv()?;
+    let items: Vec<ItemReport> =
+        service::item_reports(state.store.as_ref(), &site, item_period(&p)?, None).await?;
+    if csv {
+        csv_response(&site, &report::items_table(&items))
+    } else {
+        Ok(Json(items).into_response())
+    }
+}
+
+async fn get_item(
+    State(state): State<AppState>,
+    CurrentSite(site): CurrentSite,
+    Path((_, code)): Path<(String, String)>,
+    Params(p): Params<ReportParams>,
+) -> Result<Response, ApiError> {
+    let csv = p.csv()?;
+    let items = service::item_reports(
+        state.store.as_ref(),
+        &site,
+        item_period(&p)?,
+        Some(sku(&code)?),
+    )
+    .await?;
+    if csv {
+        return csv_response(&site, &report::items_table(&items));
+    }
+    let item = items
+        .into_iter()
+        .next()
+        .ok_or_else(|| ApiError::NotFound(format!("no item '{code}' at this site")))?;
+    Ok(Json(item).into_response())
+}
+
+async fn get_settings(
+    State(state): State<AppState>,
+    CurrentSite(site): CurrentSite,
+) -> Result<Json<AccuracySettings>, ApiError> {
+    Ok(Json(state.store.accuracy_settings(site.id).await?))
+}
+
+async fn put_settings(
+    State(state): State<AppState>,
+    CurrentSite(site): CurrentSite,
+    bytes: axum::body::Bytes,
+) -> Result<Json<AccuracySettings>, ApiError> {
+    let de = &mut serde_json::Deserializer::from_slice(&bytes);
+    let s: AccuracySettings = serde_path_to_error::deserialize(de).map_err(|e| {
+        let path = e.path().to_string();
+        ApiError::BadRequest(format!("{path}: {}", e.into_inner()))
+    })?;
+    s.check().map_err(ApiError::BadRequest)?;
+    state.store.put_accuracy_settings(site.id, s).await?;
+    Ok(Json(s))
+}
+
+async fn get_inputs(
+    State(state): State<AppState>,
+    CurrentSite(site): CurrentSite,
+    Params(p): Params<ReportParams>,
+) -> Result<Response, ApiError> {
+    let csv = p.csv()?;
+    let inputs = state.store.planner_inputs(site.id).await?;
+    if csv {
+        csv_response(&site, &report::inputs_table(&inputs))
+    } else {
+        Ok(Json(inputs).into_response())
+    }
+}
+
+async fn post_inputs(
+    State(state): State<AppState>,
+    CurrentUser(user): CurrentUser,
+    CurrentSite(site): CurrentSite,
+    rows: JsonRows,
+) -> Result<Json<serde_json::Value>, ApiError> {
+    let rows = rows.validated(PlannerInputRecord::validate)?;
+    let n = rows.len();
+    let event = audit::api_batch(
+        &user,
+        site.id,
+        "planner_inputs",
+        serde_json::json!({ "rows": n }),
+    );
+    let written = state
+        .store
+        .put_planner_inputs(site.id, rows, user.user.name.to_string(), Some(event))
+        .await?;
+    Ok(Json(serde_json::json!({ "written": written })))
+}
+
+/// Builds the buffer reports a request asks for.
+pub async fn buffers_for(
+    state: &AppState,
+    site: &Site,
+    p: &ReportParams,
+    sku: Option<Sku>,
+) -> Result<Vec<BufferReport>, ApiError> {
+    let settings = state.store.accuracy_settings(site.id).await?;
+    let window = p.window(&settings)?;
+    service::buffer_reports(state.store.as_ref(), site, window, sku).await
+}
+
+async fn get_buffers(
+    State(state): State<AppState>,
+    CurrentSite(site): CurrentSite,
+    Params(p): Params<ReportParams>,
+) -> Result<Response, ApiError> {
+    let csv = p.csv()?;
+    let reports = buffers_for(&state, &site, &p, None).await?;
+    if csv {
+        csv_response(&site, &report::buffer_table(&reports))
+    } else {
+        Ok(Json(reports).into_response())
+    }
+}
+
+async fn get_buffer(
+    State(state): State<AppState>,
+    CurrentSite(site): CurrentSite,
+    Path((_, code)): Path<(String, String)>,
+    Params(p): Params<ReportParams>,
+) -> Result<Response, ApiError> {
+    let csv = p.csv()?;
+    let reports = buffers_for(&state, &site, &p, Some(sku(&code)?)).await?;
+    if csv {
+        return csv_response(&site, &report::buffer_table(&reports));
+    }
+    let r = reports
+        .into_iter()
+        .next()
+        .ok_or_else(|| ApiError::NotFound(format!("no item '{code}' at this site")))?;
+    Ok(Json(r).into_response())
+}
