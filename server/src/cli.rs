@@ -176,6 +176,9 @@ enum Command {
         batch: usize,
         #[arg(long, value_enum, default_value_t = Synchronous::Full)]
         synchronous: Synchronous,
+        /// Each phone syncs once per this many ms (staggered); 0 sends back to back.
+        #[arg(long, default_value_t = 0)]
+        interval_ms: u64,
     },
     /// Check settings files.
     Config {
@@ -594,15 +597,19 @@ async fn dispatch(command: Command) -> anyhow::Result<()> {
             seconds,
             batch,
             synchronous,
+            interval_ms,
         } => {
             let outcome = crate::loadtest::run(crate::loadtest::Spec {
                 phones,
                 seconds,
                 batch,
                 synchronous,
+                interval: std::time::Duration::from_millis(interval_ms),
             })
             .await?;
-            println!("{phones} phones, {batch} events a request, synchronous={synchronous:?}");
+            println!(
+                "{phones} phones, {batch} events a request, interval {interval_ms} ms, synchronous={synchronous:?}"
+            );
             println!("{outcome}");
             Ok(())
         }

@@ -29,6 +29,9 @@ pub struct Spec {
     pub seconds: u64,
     pub batch: usize,
     pub synchronous: Synchronous,
+    /// Each phone sends once per interval (staggered); zero sends back to back, which
+    /// measures the ceiling of throughput but queues every phone behind the writer.
+    pub interval: Duration,
 }
 
 /// What the load measured.
@@ -103,8 +106,10 @@ pub async fn run(spec: Spec) -> anyhow::Result<Outcome> {
     for (i, token) in tokens.into_iter().enumerate() {
         let base = base.clone();
         let batch = spec.batch;
+        let interval = spec.interval;
+        let first = started + interval.mul_f64(i as f64 / spec.phones as f64);
         phones.push(tokio::spawn(async move {
-            phone(i, &base, &token, batch, deadline).await
+            phone(i, &base, &token, batch, deadline, first, interval).await
         }));
     }
     let mut latencies = Vec::new();
@@ -259,13 +264,23 @@ async fn phone(
     token: &str,
     batch: usize,
     deadline: Instant,
+    first: Instant,
+    interval: Duration,
 ) -> anyhow::Result<(Vec<f64>, u64)> {
+    let mut next = first;
     let client = reqwest::Client::new();
     let bin = format!("A-{:02}-{:02}-1", 1 + i / 90, 1 + i % 90);
     let mut latencies = Vec::new();
     let mut accepted = 0;
     let mut rtt: Option<i64> = None;
-    while Instant::now() < deadline {
+    loop {
+        if !interval.is_zero() {
+            tokio::time::sleep_until(next.into()).await;
+            next += interval;
+        }
+        if Instant::now() >= deadline {
+            break;
+        }
         let now = chrono::Utc::now().timestamp_millis();
         let pass = uuid::Uuid::now_v7().to_string();
         let mut events = vec![json!({"id": pass, "at": now, "count": pass, "task": null,
