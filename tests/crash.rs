@@ -1,6 +1,7 @@
-//! The server killed with SIGKILL during a stream of acknowledged movement
-//! batches: after a restart every acknowledged id is present exactly once,
-//! balances equal the sum of movements, and the file passes integrity_check.
+//! The server killed with SIGKILL during a stream of acknowledged movement batches
+//! and phones' sync batches: after a restart every acknowledged movement and event is
+//! present exactly once, each acknowledged line is one count line, balances equal the
+//! sum of movements, and the file passes integrity_check.
 
 mod common;
 
@@ -18,6 +19,9 @@ const ROUNDS: u64 = 4;
 const SENDERS: usize = 4;
 /// Movements per batch.
 const BATCH: usize = 100;
+/// Phones syncing during each round, and events per sync request.
+const PHONES: usize = 2;
+const SYNC_BATCH: usize = 50;
 
 fn cairn(args: &[&str]) -> std::process::Output {
     Command::new(env!("CARGO_BIN_EXE_cairn"))
@@ -128,6 +132,65 @@ fn setup(dir: &Path) -> String {
     db
 }
 
+/// Makes a counter with a phone PIN through the CLI.
+fn counter(db: &str, name: &str) {
+    let out = cairn_with_input(
+        &[
+            "user",
+            "add",
+            "--db",
+            db,
+            "--site",
+            "T",
+            "--name",
+            name,
+            "--roles",
+            "counter",
+            "--with-pin",
+            "--password-stdin",
+        ],
+        "test-only-counter-password\n4821\n",
+    );
+    assert!(
+        out.status.success(),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+}
+
+/// One sync request: a pass over a bin with its lines, all new ids.
+fn sync_batch() -> (Vec<String>, Vec<String>, Value) {
+    let pass = uuid::Uuid::now_v7().to_string();
+    let mut ids = vec![pass.clone()];
+    let mut lines = Vec::new();
+    let mut events = vec![
+        json!({"id": pass, "at": 1_772_528_400_000i64, "count": pass,
+        "task": null, "bin": "A-01-01-1", "type": "bin_opened", "label": ""}),
+    ];
+    for i in 1..SYNC_BATCH {
+        let id = uuid::Uuid::now_v7().to_string();
+        events.push(
+            json!({"id": id, "at": 1_772_528_400_000i64 + i as i64, "count": pass,
+            "task": null, "bin": "A-01-01-1", "type": "line", "sku": "S1", "qty": 1 + i as i64 % 9,
+            "lot": "", "entry": "keypad"}),
+        );
+        ids.push(id.clone());
+        lines.push(id);
+    }
+    (
+        ids,
+        lines,
+        json!({"device_clock": chrono_now_ms(), "rtt_ms": 5, "events": events}),
+    )
+}
+
+fn chrono_now_ms() -> i64 {
+    std::time::SystemTime::now()
+        .duration_since(std::time::UNIX_EPOCH)
+        .unwrap()
+        .as_millis() as i64
+}
+
 fn batch(round: u64, sender: usize, n: usize) -> (Vec<String>, Value) {
     let ids: Vec<String> = (0..BATCH)
         .map(|i| format!("c{round}-{sender}-{n}-{i}"))
@@ -148,11 +211,58 @@ async fn a_killed_server_loses_no_acknowledged_movement() {
     let dir = tempfile::tempdir().unwrap();
     let db = setup(dir.path());
     let token = host_token(&db);
+    for p in 0..PHONES {
+        counter(&db, &format!("phone{p}"));
+    }
     let acked: Arc<Mutex<Vec<String>>> = Arc::default();
+    let acked_events: Arc<Mutex<Vec<String>>> = Arc::default();
+    let acked_lines: Arc<Mutex<Vec<String>>> = Arc::default();
+    let mut phone_tokens = Vec::new();
     for round in 0..ROUNDS {
         let (mut child, url) = serve(&db);
         let client = reqwest::Client::new();
+        if phone_tokens.is_empty() {
+            for p in 0..PHONES {
+                let r = client
+                    .post(format!("{url}/api/v1/devices"))
+                    .json(&json!({"user": format!("phone{p}"), "pin": "4821", "site": "T", "device_name": "p"}))
+                    .send()
+                    .await
+                    .unwrap();
+                assert_eq!(r.status(), 201);
+                let v: Value = r.json().await.unwrap();
+                phone_tokens.push(v["token"].as_str().unwrap().to_string());
+            }
+        }
         let mut tasks = Vec::new();
+        for phone in &phone_tokens {
+            let (client, url, phone) = (client.clone(), url.clone(), phone.clone());
+            let (events, lines) = (acked_events.clone(), acked_lines.clone());
+            tasks.push(tokio::spawn(async move {
+                loop {
+                    let (ids, line_ids, body) = sync_batch();
+                    let Ok(r) = client
+                        .post(format!("{url}/api/v1/sites/T/sync"))
+                        .bearer_auth(&phone)
+                        .json(&body)
+                        .send()
+                        .await
+                    else {
+                        return;
+                    };
+                    let Ok(answer) = r.json::<Value>().await else {
+                        return;
+                    };
+                    let results = answer["results"].as_array().expect("a sync answer");
+                    assert!(
+                        results.iter().all(|r| r["status"] == "accepted"),
+                        "{answer}"
+                    );
+                    events.lock().unwrap().extend(ids);
+                    lines.lock().unwrap().extend(line_ids);
+                }
+            }));
+        }
         for sender in 0..SENDERS {
             let (client, url, acked, token) =
                 (client.clone(), url.clone(), acked.clone(), token.clone());
@@ -212,4 +322,24 @@ async fn a_killed_server_loses_no_acknowledged_movement() {
         )
         .unwrap();
     assert_eq!(drift, 0, "balances equal the sum of movements");
+    let events = acked_events.lock().unwrap();
+    assert!(
+        events.len() >= ROUNDS as usize * SYNC_BATCH,
+        "the phones got only {} events acknowledged",
+        events.len()
+    );
+    let mut q = conn
+        .prepare("select count(*) from sync_event where uid = ?1")
+        .unwrap();
+    for id in events.iter() {
+        let n: i64 = q.query_row([id], |r| r.get(0)).unwrap();
+        assert_eq!(n, 1, "acknowledged event {id} is stored {n} times");
+    }
+    let mut q = conn
+        .prepare("select count(*) from count_line where uid = ?1")
+        .unwrap();
+    for id in acked_lines.lock().unwrap().iter() {
+        let n: i64 = q.query_row([id], |r| r.get(0)).unwrap();
+        assert_eq!(n, 1, "acknowledged line {id} is {n} count lines");
+    }
 }

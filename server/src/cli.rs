@@ -149,6 +149,60 @@ enum Command {
         #[command(subcommand)]
         command: UserCommand,
     },
+    /// Copy the database while the server runs (SQLite's online backup), then check the copy.
+    Backup {
+        #[arg(long, env = "CAIRN_DB")]
+        db: PathBuf,
+        /// A new file, or a folder to hold cairn-YYYYMMDDTHHMMSS.sssZ.db.
+        #[arg(long)]
+        to: PathBuf,
+        /// With a folder: keep only the newest N backups there.
+        #[arg(long)]
+        keep: Option<usize>,
+    },
+    /// Replace the database with a checked backup (stop the server first).
+    Restore {
+        /// The backup file.
+        #[arg(long)]
+        from: PathBuf,
+        #[arg(long, env = "CAIRN_DB")]
+        db: PathBuf,
+        /// Replace an existing database file.
+        #[arg(long)]
+        force: bool,
+    },
+    /// Check one server's readiness over HTTP (for container health checks); exits 0 when ready.
+    Probe {
+        #[arg(default_value = "http://127.0.0.1:8080/readyz")]
+        url: String,
+    },
+    /// Drive the sync endpoint of a fresh in-process server on loopback with N phones for a
+    /// bounded time; print events/s, p50/p99 latency and the raw SQLite ceiling of the same rows.
+    Loadtest {
+        #[arg(long, default_value_t = 200)]
+        phones: usize,
+        #[arg(long, default_value_t = 20)]
+        seconds: u64,
+        /// Events per sync request.
+        #[arg(long, default_value_t = 100)]
+        batch: usize,
+        #[arg(long, value_enum, default_value_t = Synchronous::Full)]
+        synchronous: Synchronous,
+        /// Each phone syncs once per this many ms (staggered); 0 sends back to back.
+        #[arg(long, default_value_t = 0)]
+        interval_ms: u64,
+    },
+    /// Check settings files.
+    Config {
+        #[command(subcommand)]
+        command: ConfigCommand,
+    },
+}
+
+#[derive(Subcommand)]
+enum ConfigCommand {
+    /// Read a TOML settings file as `cairn serve --config` would, and print the result.
+    Check { path: PathBuf },
 }
 
 #[derive(Clone, Copy, clap::ValueEnum)]
@@ -272,13 +326,7 @@ enum UserCommand {
 /// Runs the command line and returns the process exit code.
 pub fn main() -> ExitCode {
     let cli = Cli::parse();
-    tracing_subscriber::fmt()
-        .with_env_filter(
-            tracing_subscriber::EnvFilter::try_from_default_env()
-                .unwrap_or_else(|_| "info,tower_http=warn".into()),
-        )
-        .with_writer(std::io::stderr)
-        .init();
+    init_logs();
     let rt = match tokio::runtime::Builder::new_multi_thread()
         .enable_all()
         .build()
@@ -295,6 +343,22 @@ pub fn main() -> ExitCode {
             eprintln!("cairn: {e:#}");
             ExitCode::FAILURE
         }
+    }
+}
+
+/// Logs go to standard error: plain text, or one JSON object a line when
+/// `CAIRN_LOG_FORMAT=json` (for journald or a log shipper). `RUST_LOG` sets the levels.
+fn init_logs() {
+    let filter = tracing_subscriber::EnvFilter::try_from_default_env()
+        .unwrap_or_else(|_| "info,tower_http=warn".into());
+    let json = std::env::var("CAIRN_LOG_FORMAT").is_ok_and(|v| v.eq_ignore_ascii_case("json"));
+    let builder = tracing_subscriber::fmt()
+        .with_env_filter(filter)
+        .with_writer(std::io::stderr);
+    if json {
+        builder.json().flatten_event(true).init();
+    } else {
+        builder.init();
     }
 }
 
@@ -546,6 +610,48 @@ async fn dispatch(command: Command) -> anyhow::Result<()> {
             Ok(())
         }
         Command::User { command } => user_command(command).await,
+        Command::Backup { db, to, keep } => {
+            let report = tokio::task::spawn_blocking(move || crate::backup::backup(&db, &to, keep))
+                .await??;
+            println!("backup {report}");
+            Ok(())
+        }
+        Command::Restore { from, db, force } => {
+            let report =
+                tokio::task::spawn_blocking(move || crate::backup::restore(&from, &db, force))
+                    .await??;
+            println!("restored {report}");
+            Ok(())
+        }
+        Command::Probe { url } => probe(&url).await,
+        Command::Loadtest {
+            phones,
+            seconds,
+            batch,
+            synchronous,
+            interval_ms,
+        } => {
+            let outcome = crate::loadtest::run(crate::loadtest::Spec {
+                phones,
+                seconds,
+                batch,
+                synchronous,
+                interval: std::time::Duration::from_millis(interval_ms),
+            })
+            .await?;
+            println!(
+                "{phones} phones, {batch} events a request, interval {interval_ms} ms, synchronous={synchronous:?}"
+            );
+            println!("{outcome}");
+            Ok(())
+        }
+        Command::Config {
+            command: ConfigCommand::Check { path },
+        } => {
+            let config = Config::from_file(&path)?;
+            println!("{config:#?}");
+            Ok(())
+        }
         Command::Report {
             what,
             db,
@@ -555,6 +661,34 @@ async fn dispatch(command: Command) -> anyhow::Result<()> {
             format,
         } => report(what, db, site, since, until, format).await,
     }
+}
+
+/// Sends one GET to a plain-HTTP URL on this host and fails unless it answers 2xx.
+async fn probe(url: &str) -> anyhow::Result<()> {
+    use tokio::io::{AsyncReadExt, AsyncWriteExt};
+    let rest = url
+        .strip_prefix("http://")
+        .ok_or_else(|| anyhow::anyhow!("probe takes an http:// URL, not {url}"))?;
+    let (host, path) = match rest.find('/') {
+        Some(i) => (&rest[..i], &rest[i..]),
+        None => (rest, "/"),
+    };
+    let work = async {
+        let mut conn = tokio::net::TcpStream::connect(host).await?;
+        conn.write_all(format!("GET {path} HTTP/1.0\r\nHost: {host}\r\n\r\n").as_bytes())
+            .await?;
+        let mut head = vec![0u8; 64];
+        let n = conn.read(&mut head).await?;
+        Ok::<_, std::io::Error>(String::from_utf8_lossy(&head[..n]).to_string())
+    };
+    let head = tokio::time::timeout(std::time::Duration::from_secs(5), work)
+        .await
+        .map_err(|_| anyhow::anyhow!("{url} did not answer within 5 s"))?
+        .map_err(|e| anyhow::anyhow!("{url}: {e}"))?;
+    let status = head.split_whitespace().nth(1).unwrap_or("");
+    anyhow::ensure!(status.starts_with('2'), "{url} answered {status}");
+    println!("{url}: {status}");
+    Ok(())
 }
 
 async fn report(
@@ -645,10 +779,7 @@ async fn serve(state: AppState, listen: SocketAddr, demo: bool) -> anyhow::Resul
         state.store.clone(),
     ));
     tokio::spawn(settle_results(state.store.clone()));
-    crate::run(state, listener, async {
-        let _ = tokio::signal::ctrl_c().await;
-    })
-    .await?;
+    crate::run(state, listener, shutdown_signal()).await?;
     Ok(())
 }
 
@@ -665,6 +796,23 @@ async fn settle_results(store: std::sync::Arc<dyn Store>) {
             tracing::warn!("marking settled count results failed: {e}");
         }
     }
+}
+
+/// Resolves on Ctrl-C or SIGTERM (what systemd and container engines send to stop).
+async fn shutdown_signal() {
+    let term = async {
+        match tokio::signal::unix::signal(tokio::signal::unix::SignalKind::terminate()) {
+            Ok(mut s) => {
+                s.recv().await;
+            }
+            Err(_) => std::future::pending::<()>().await,
+        }
+    };
+    tokio::select! {
+        _ = tokio::signal::ctrl_c() => {}
+        _ = term => {}
+    }
+    tracing::info!("stopping: finishing the requests in flight");
 }
 
 /// Reads `n` secrets: from standard input, one per line, or by prompting

@@ -6,6 +6,7 @@
 
 pub mod accounts;
 pub mod accuracy;
+pub mod backup;
 pub mod batch;
 pub mod cli;
 pub mod config;
@@ -14,16 +15,19 @@ pub mod error;
 pub mod http;
 pub mod import;
 pub mod ledger;
+pub mod loadtest;
 pub mod master;
 pub mod netting;
 pub mod planning;
 pub mod review;
 pub mod store;
 pub mod sync;
+pub mod telemetry;
 pub mod time;
 
 use config::Config;
 use std::sync::Arc;
+use std::sync::atomic::{AtomicBool, Ordering};
 use store::Store;
 use store::sqlite::SqliteStore;
 
@@ -32,6 +36,8 @@ use store::sqlite::SqliteStore;
 pub struct AppState {
     pub store: Arc<dyn Store>,
     pub config: Arc<Config>,
+    /// Set once the server starts to shut down: `/readyz` then answers 503.
+    pub draining: Arc<AtomicBool>,
 }
 
 impl AppState {
@@ -41,6 +47,7 @@ impl AppState {
         Ok(Self {
             store: Arc::new(store),
             config: Arc::new(config),
+            draining: Arc::new(AtomicBool::new(false)),
         })
     }
 }
@@ -56,8 +63,12 @@ pub async fn run(
     listener: tokio::net::TcpListener,
     shutdown: impl std::future::Future<Output = ()> + Send + 'static,
 ) -> std::io::Result<()> {
+    let draining = state.draining.clone();
     let app = app(state).into_make_service_with_connect_info::<std::net::SocketAddr>();
     axum::serve(listener, app)
-        .with_graceful_shutdown(shutdown)
+        .with_graceful_shutdown(async move {
+            shutdown.await;
+            draining.store(true, Ordering::SeqCst);
+        })
         .await
 }

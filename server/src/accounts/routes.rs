@@ -212,8 +212,11 @@ async fn enrol(
     ClientAddress(address): ClientAddress,
     body: axum::body::Bytes,
 ) -> Result<(StatusCode, Json<Enrolled>), ApiError> {
-    let req: EnrolRequest = serde_json::from_slice(&body)
-        .map_err(|e| ApiError::BadRequest(format!("the enrolment body: {e}")))?;
+    let de = &mut serde_json::Deserializer::from_slice(&body);
+    let req: EnrolRequest = serde_path_to_error::deserialize(de).map_err(|e| {
+        let path = e.path().to_string();
+        ApiError::BadRequest(format!("the enrolment body, at {path}: {}", e.into_inner()))
+    })?;
     let site_code = SiteCode::parse(&req.site).map_err(|e| ApiError::BadRequest(e.to_string()))?;
     let user = signin::check(
         state.store.as_ref(),

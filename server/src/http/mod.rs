@@ -3,21 +3,23 @@
 
 pub mod access;
 pub mod extract;
+pub mod observe;
 pub mod pages;
 
 use crate::AppState;
 use crate::error::ApiError;
 use access::{Access, Guard, RouteTable, Rule};
 use axum::Router;
-use axum::extract::{DefaultBodyLimit, State};
-use axum::http::{StatusCode, header};
+use axum::extract::DefaultBodyLimit;
+use axum::http::header;
 use axum::response::IntoResponse;
-use tower_http::trace::TraceLayer;
 
 /// Declares every route of Cairn with its access rule.
 pub fn route_table() -> RouteTable {
     let mut t = RouteTable::default();
-    t.get("/healthz", Access::Public, healthz)
+    t.get("/healthz", Access::Public, observe::healthz)
+        .get("/readyz", Access::Public, observe::readyz)
+        .get("/metrics", Access::Public, observe::metrics)
         .get("/static/cairn.css", Access::Public, stylesheet);
     pages::routes(&mut t);
     crate::accounts::routes::routes(&mut t);
@@ -57,16 +59,8 @@ pub fn router(state: AppState) -> Router {
         .layer(DefaultBodyLimit::max(state.config.max_body_bytes))
         // Phones on weak Wi-Fi: the app shell, wasm and JSON answers go gzip-compressed.
         .layer(tower_http::compression::CompressionLayer::new())
-        .layer(TraceLayer::new_for_http())
+        .layer(axum::middleware::from_fn(observe::observe))
         .with_state(state)
-}
-
-async fn healthz(State(state): State<AppState>) -> Result<impl IntoResponse, ApiError> {
-    state.store.ping().await?;
-    Ok((
-        StatusCode::OK,
-        axum::Json(serde_json::json!({ "status": "ok" })),
-    ))
 }
 
 async fn stylesheet() -> impl IntoResponse {

@@ -132,6 +132,10 @@ pub struct ShelfRow {
 pub trait Store: AccountStore + AccuracyStore + ReviewStore + Send + Sync + 'static {
     /// Answers when the database is open and migrated.
     async fn ping(&self) -> Result<(), StoreError>;
+
+    /// Answers when the writer takes jobs and the file accepts a write lock
+    /// (a round trip through the writer; writes nothing).
+    async fn ping_writer(&self) -> Result<(), StoreError>;
     /// Creates a site; its code must be new.
     async fn create_site(&self, site: NewSite) -> Result<Site, StoreError>;
     /// Finds a site by code.

@@ -61,8 +61,16 @@ pub fn read(raw: &serde_json::Value, index: usize) -> Result<Event, EventResult>
         .map(str::to_string)
         .unwrap_or_else(|| format!("#{index}"));
     let refuse = |why: String| EventResult::rejected(&shown_id, why);
-    let wire: WireEvent = serde_json::from_value(raw.clone())
-        .map_err(|e| refuse(format!("event {index} cannot be read: {e}")))?;
+    let wire: WireEvent = serde_path_to_error::deserialize(raw.clone()).map_err(|e| {
+        let at = match e.path().to_string() {
+            p if p == "." => String::new(),
+            p => format!(" at {p}"),
+        };
+        refuse(format!(
+            "event {index} cannot be read{at}: {}",
+            e.into_inner()
+        ))
+    })?;
     let id = uuid_v7(&wire.id, "id").map_err(refuse)?;
     let pass = uuid_v7(&wire.count, "count").map_err(refuse)?;
     let bin = BinCode::parse(&wire.bin).map_err(|e| refuse(format!("bin: {e}")))?;

@@ -15,7 +15,7 @@ use axum::Json;
 use axum::extract::State;
 use axum::http::{HeaderMap, StatusCode, header};
 use axum::response::{IntoResponse, Response};
-use cairn_scan::wire::{MAX_RTT_MS, MAX_SYNC_EVENTS, SyncRequest, SyncResponse};
+use cairn_scan::wire::{EventStatus, MAX_RTT_MS, MAX_SYNC_EVENTS, SyncRequest, SyncResponse};
 use serde::{Deserialize, Serialize};
 use sha2::{Digest, Sha256};
 
@@ -96,6 +96,18 @@ async fn sync(
             events,
         })
         .await?;
+    let (mut accepted, mut repeats, mut rejected, mut conflicts) = (0, 0, 0, 0);
+    for r in &results {
+        match r.status {
+            EventStatus::Accepted => {
+                accepted += 1;
+                repeats += u64::from(r.repeat);
+            }
+            EventStatus::Rejected => rejected += 1,
+            EventStatus::Conflict => conflicts += 1,
+        }
+    }
+    crate::telemetry::metrics().sync_batch(accepted, repeats, rejected, conflicts);
     Ok(Json(SyncResponse {
         server_clock: Timestamp::now().0,
         offset_ms: clock.offset_ms,

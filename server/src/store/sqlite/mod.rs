@@ -174,6 +174,16 @@ impl Store for SqliteStore {
             .await
     }
 
+    async fn ping_writer(&self) -> Result<(), StoreError> {
+        self.writer
+            .run(|conn| {
+                // BEGIN IMMEDIATE takes the write lock; rolling back writes nothing.
+                conn.execute_batch("begin immediate; rollback")?;
+                Ok(())
+            })
+            .await
+    }
+
     async fn create_site(&self, site: NewSite) -> Result<Site, StoreError> {
         self.write_tx(move |tx| master::create_site(tx, &site))
             .await
@@ -423,12 +433,18 @@ impl Store for SqliteStore {
     ) -> Result<Vec<cairn_scan::wire::EventResult>, StoreError> {
         // Netting runs in the request's own transaction: the acknowledgement the phone
         // deletes its copy on and the results of the passes it finished commit together.
-        self.write_tx(move |tx| {
-            let results = sync::apply_sync(tx, &batch)?;
-            netting::after_sync(tx, &batch, &results, Timestamp::now())?;
-            Ok(results)
-        })
-        .await
+        let (results, netted) = self
+            .write_tx(move |tx| {
+                let results = sync::apply_sync(tx, &batch)?;
+                let netted = netting::after_sync(tx, &batch, &results, Timestamp::now())?;
+                Ok((results, netted.written.len() as u64))
+            })
+            .await?;
+        // Counted only once committed: a rolled-back netting never happened.
+        crate::telemetry::metrics()
+            .netting_runs
+            .fetch_add(netted, std::sync::atomic::Ordering::Relaxed);
+        Ok(results)
     }
 
     async fn catalog(

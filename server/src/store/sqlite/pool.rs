@@ -7,6 +7,7 @@ use crate::store::StoreError;
 use rusqlite::Connection;
 use std::path::{Path, PathBuf};
 use std::sync::Mutex;
+use std::time::Instant;
 use tokio::sync::{Semaphore, mpsc, oneshot};
 
 /// Writes queued for the writer before senders wait.
@@ -54,8 +55,14 @@ impl Writer {
         F: FnOnce(&mut Connection) -> Result<R, StoreError> + Send + 'static,
     {
         let (tx, rx) = oneshot::channel();
+        let queued = Instant::now();
         let job: WriteJob = Box::new(move |conn| {
-            let _ = tx.send(f(conn));
+            let m = crate::telemetry::metrics();
+            m.db_write_wait_seconds.observe_duration(queued.elapsed());
+            let started = Instant::now();
+            let out = f(conn);
+            m.db_write_seconds.observe_duration(started.elapsed());
+            let _ = tx.send(out);
         });
         self.jobs
             .send(job)
@@ -109,7 +116,11 @@ impl Readers {
             None => connect(&self.path, &self.opts, true)?,
         };
         let (conn, out) = tokio::task::spawn_blocking(move || {
+            let started = Instant::now();
             let out = f(&conn);
+            crate::telemetry::metrics()
+                .db_read_seconds
+                .observe_duration(started.elapsed());
             (conn, out)
         })
         .await
