@@ -538,8 +538,10 @@ fn counts_summary(db: &Path) -> BTreeMap<String, String> {
         let (k, v) = row.unwrap();
         out.insert(k, v);
     }
-    // Netting results, when netting has produced any: every column but row ids and
-    // instants (which follow the server's clock, not the counts).
+    // Netting results, when netting has produced any: what each current result says about
+    // its key (the count, the book value it was held to, the difference and the verdict).
+    // Windows, instants, settling and superseded rows follow the server's clock and the
+    // order news arrived in, not the counts, so they are left out.
     let has_results: bool = c
         .query_row(
             "select exists (select 1 from sqlite_master where type = 'table' and name = 'count_result')",
@@ -548,23 +550,14 @@ fn counts_summary(db: &Path) -> BTreeMap<String, String> {
         )
         .unwrap();
     if has_results {
-        let cols: Vec<String> = c
-            .prepare("select name from pragma_table_info('count_result')")
-            .unwrap()
-            .query_map([], |r| r.get(0))
-            .unwrap()
-            .map(|r| r.unwrap())
-            .filter(|n: &String| n != "id" && !n.ends_with("_at") && !n.ends_with("_id"))
-            .collect();
-        let sql = format!(
-            "select {} from count_result",
-            cols.iter()
-                .map(|c| format!("quote(\"{c}\")"))
-                .collect::<Vec<_>>()
-                .join(" || '|' || ")
-        );
+        let sql = "select p.uid || '|' || i.sku || '|' || r.lot || '|' || quote(r.class) || '|' ||
+                          r.counted || '|' || r.f_star || '|' || r.variance || '|' || r.status ||
+                          '|' || r.verdict
+                   from count_result r join count_pass p on p.id = r.pass_id
+                   join item i on i.id = r.item_id
+                   where r.superseded_by is null";
         let mut rows: Vec<String> = c
-            .prepare(&sql)
+            .prepare(sql)
             .unwrap()
             .query_map([], |r| r.get(0))
             .unwrap()
