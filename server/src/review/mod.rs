@@ -61,12 +61,8 @@ impl Default for ReviewPolicy {
     }
 }
 
-/// One reason a reviewer may give.
-#[derive(Debug, Clone, PartialEq, Eq, Serialize)]
-pub struct ReasonCode {
-    pub code: String,
-    pub label: String,
-}
+/// One reason a reviewer may give: the same codes the netting policy routes keep.
+pub use crate::netting::service::ReasonCode;
 
 /// Returns the reason codes a site starts with.
 pub fn default_reasons() -> Vec<ReasonCode> {

@@ -113,22 +113,14 @@ pub fn review_policy(conn: &Connection, site: SiteId) -> Result<ReviewPolicy, St
         .unwrap_or_default())
 }
 
-/// Reads the site's reason codes, or the defaults while it has none.
+/// Reads the site's reason codes by label, or the defaults while it has none.
 pub fn reason_codes(conn: &Connection, site: SiteId) -> Result<Vec<ReasonCode>, StoreError> {
-    let stored = conn
-        .prepare_cached("select code, label from reason_code where site_id = ?1 order by label")?
-        .query_map([site.0], |r| {
-            Ok(ReasonCode {
-                code: r.get(0)?,
-                label: r.get(1)?,
-            })
-        })?
-        .collect::<rusqlite::Result<Vec<_>>>()?;
-    Ok(if stored.is_empty() {
-        default_reasons()
-    } else {
-        stored
-    })
+    let mut stored = super::netting::reason_codes(conn, site)?;
+    if stored.is_empty() {
+        return Ok(default_reasons());
+    }
+    stored.sort_by(|a, b| a.label.cmp(&b.label));
+    Ok(stored)
 }
 
 /// Stores the default reason codes for a site that has none, so a decision
