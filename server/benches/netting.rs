@@ -1,8 +1,9 @@
-//! Netting a day's counts against a big ledger: 20,000 count lines (4,000 bins marked
-//! done, five keys each, one in twenty a unit off) against 2,000,000 movements over
-//! 100,000 keys, with a pick inside the window of every other counted key. Prints the time of netting every pass
-//! in one write transaction (what the sync path does, a request at a time) and the peak
-//! memory of the process that did it.
+//! Netting a day's counts against a big ledger: 20,000 count lines (about 4,000 bins
+//! marked done, every key on the shelf keyed, one key in twenty a unit over) against
+//! 2,000,000 movements over 100,000 keys, with a pick inside the window of every other
+//! counted key. Prints the time of netting every pass in one write transaction (what the
+//! sync path does, a request at a time), the peak memory of the process that did it, and
+//! what the results said, by status and verdict, to check against how the data was built.
 //!
 //! Run: `cargo bench -p cairn-server --bench netting`. Sizes: CAIRN_BENCH_LINES (count
 //! lines, default 20000) and CAIRN_BENCH_MOVES (default 2000000).
@@ -98,7 +99,6 @@ fn make_db(path: &Path, lines: usize, moves: usize) {
     let keys = BINS * KEYS_PER_BIN;
     let key = |k: usize| (k / KEYS_PER_BIN, (k * 7 + k / KEYS_PER_BIN) % BINS);
     let start = COUNT_AT - 365 * DAY_MS;
-    let counted_bins = lines.div_ceil(KEYS_PER_BIN).min(BINS);
     let tx = conn.transaction().unwrap();
     {
         let mut ins = tx
@@ -132,6 +132,18 @@ fn make_db(path: &Path, lines: usize, moves: usize) {
             balance[k] += qty;
             last[k] = at;
         }
+        // Bins counted: enough for `lines` keyed lines. A key whose shelf is empty at the
+        // count is keyed by nobody, so a few more bins than lines / KEYS_PER_BIN are needed.
+        // (The in-window pick below takes one from every even key.)
+        let keyed = |k: usize| balance[k] - i64::from(k.is_multiple_of(2)) + i64::from(k % 20 == 1) > 0;
+        let mut counted_bins = 0;
+        let mut planned = 0;
+        while counted_bins < BINS && planned < lines {
+            planned += (0..KEYS_PER_BIN)
+                .filter(|j| keyed(counted_bins * KEYS_PER_BIN + j))
+                .count();
+            counted_bins += 1;
+        }
         // A pick during the count of every other counted key: the netting has work.
         for k in (0..counted_bins * KEYS_PER_BIN).step_by(2) {
             let (b, i) = key(k);
@@ -162,8 +174,8 @@ fn make_db(path: &Path, lines: usize, moves: usize) {
                     .unwrap();
             }
         }
-        // The passes: bin b counted from COUNT_AT + b s for 3 s, every key keyed once,
-        // the first line of each bin off by one.
+        // The passes: bin b counted from COUNT_AT + b s for 3 s, each key on the shelf
+        // keyed once.
         let mut pass = tx
             .prepare(
                 "insert into count_pass (uid, site_id, bin_id, user_id, first_at, done_at,
@@ -180,6 +192,9 @@ fn make_db(path: &Path, lines: usize, moves: usize) {
             .unwrap();
         let mut written = 0;
         for (b, bin_id) in bin_ids.iter().enumerate().take(counted_bins) {
+            if written >= lines {
+                break;
+            }
             let s = COUNT_AT + b as i64 * 1_000;
             pass.execute(params![
                 format!("pass{b}"),
@@ -191,15 +206,13 @@ fn make_db(path: &Path, lines: usize, moves: usize) {
             ])
             .unwrap();
             let pass_id = tx.last_insert_rowid();
+            // Whole bins: a key left unkeyed in a bin marked done reads as missing.
             for j in 0..KEYS_PER_BIN {
-                if written == lines {
-                    break;
-                }
                 let k = b * KEYS_PER_BIN + j;
                 let (_, i) = key(k);
-                // One key in twenty is a unit off; an empty or negative book is not keyed.
-                let qty = balance[k] + i64::from(k.is_multiple_of(20));
-                written += 1;
+                // One key in twenty (odd, so with no move in its window) is a unit over;
+                // an empty or negative shelf is not keyed.
+                let qty = balance[k] + i64::from(k % 20 == 1);
                 if qty <= 0 {
                     continue;
                 }
@@ -271,6 +284,9 @@ fn main() {
     conn.pragma_update(None, "synchronous", "full").unwrap();
     conn.pragma_update(None, "cache_size", -16_384).unwrap();
     let passes = ids(&conn, "select id from count_pass order by id");
+    let lines: i64 = conn
+        .query_row("select count(*) from count_line", [], |r| r.get(0))
+        .unwrap();
     let t = Instant::now();
     let tx = conn.transaction().unwrap();
     let mut written = 0;
@@ -283,6 +299,36 @@ fn main() {
     }
     tx.commit().unwrap();
     let took = t.elapsed();
+    // What the netting said, to check against how the data was built: one key in twenty
+    // is keyed a unit over, every other counted key had a pick inside its window.
+    let mut breakdown = conn
+        .prepare(
+            "select status, verdict, count(*), sum(variance <> 0) from count_result
+             where superseded_by is null group by status, verdict order by 3 desc",
+        )
+        .unwrap();
+    let rows = breakdown
+        .query_map([], |r| {
+            Ok((
+                r.get::<_, String>(0)?,
+                r.get::<_, String>(1)?,
+                r.get::<_, i64>(2)?,
+                r.get::<_, i64>(3)?,
+            ))
+        })
+        .unwrap();
+    for row in rows {
+        let (status, verdict, n, off) = row.unwrap();
+        println!("  {status:<22} {verdict:<8} {n:>7} results, {off:>6} with a variance");
+    }
+    let keyed_off: i64 = conn
+        .query_row(
+            "select count(*) from count_line where cast(substr(uid, 2) as integer) % 20 = 1",
+            [],
+            |r| r.get(0),
+        )
+        .unwrap();
+    println!("  built a unit over: {keyed_off} keyed lines");
     let (hits, in_window): (i64, i64) = conn
         .query_row(
             "select sum(verdict = 'hit'), sum(status = 'matches_state') from count_result",

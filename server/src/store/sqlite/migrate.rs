@@ -44,6 +44,11 @@ pub const MIGRATIONS: &[Migration] = &[
         name: "0006_buffer.sql",
         sql: include_str!("../../../../migrations/0006_buffer.sql"),
     },
+    Migration {
+        version: 7,
+        name: "0007_netting_reach.sql",
+        sql: include_str!("../../../../migrations/0007_netting_reach.sql"),
+    },
 ];
 
 /// Returns the newest schema version this binary knows.

@@ -190,10 +190,9 @@ fn pass_facts(conn: &Connection, pass_id: i64) -> Result<Option<PassFacts>, Stor
         .prepare_cached(
             "select p.id, p.uid, p.site_id, p.bin_id, b.code, p.task_id, t.est_s, u.name,
                     p.first_at, p.done_at, p.uncertainty_ms, t.recount_of
-             from count_pass p join bin b on b.id = p.bin_id
-             join user_account u on u.id = p.user_id
+             from count_pass p cross join bin b cross join user_account u
              left join count_task t on t.id = p.task_id
-             where p.id = ?1",
+             where p.id = ?1 and b.id = p.bin_id and u.id = p.user_id",
         )?
         .query_row([pass_id], |r| {
             Ok(PassFacts {
@@ -276,7 +275,7 @@ fn key_moves(
 ) -> Result<Vec<LedgerMove>, StoreError> {
     let rows = conn
         .prepare_cached(
-            "select id, uid, event_at, qty, kind, source from movement
+            "select id, uid, event_at, qty, kind, source from movement indexed by movement_key_time
              where bin_id = ?1 and item_id = ?2 and lot = ?3 and event_at >= ?4 and event_at <= ?5
              order by event_at, id",
         )?
@@ -593,11 +592,12 @@ fn insert_result(
 
 /// Counts the recount tasks (recounts and supervisor counts) of a key of a pass.
 fn recount_tasks_of(conn: &Connection, pass_id: i64, key: &ItemLot) -> Result<i64, StoreError> {
-    // Written from the result side so the planner walks two small index ranges.
+    // Cross joins fix the join order: the key's few results first, then their tasks, so
+    // the planner never walks every task of the site.
     Ok(conn
         .prepare_cached(
-            "select count(*) from count_task where recount_of in
-                 (select id from count_result where pass_id = ?1 and item_id = ?2 and lot = ?3)",
+            "select count(*) from count_result r cross join count_task t
+             where r.pass_id = ?1 and r.item_id = ?2 and r.lot = ?3 and t.recount_of = r.id",
         )?
         .query_row(params![pass_id, key.0, key.1], |r| r.get(0))?)
 }
@@ -610,11 +610,10 @@ fn latest_recount_pass(
 ) -> Result<Option<i64>, StoreError> {
     Ok(conn
         .prepare_cached(
-            "select p.id from count_pass p
-             where p.task_id in (select t.id from count_task t where t.recount_of in
-                     (select r.id from count_result r
-                      where r.pass_id = ?1 and r.item_id = ?2 and r.lot = ?3))
-               and p.done_at is not null
+            "select p.id from count_result r cross join count_task t
+                 cross join count_pass p indexed by count_pass_task
+             where r.pass_id = ?1 and r.item_id = ?2 and r.lot = ?3 and t.recount_of = r.id
+               and p.task_id = t.id and p.done_at is not null
              order by p.done_at desc, p.id desc limit 1",
         )?
         .query_row(params![pass_id, key.0, key.1], |r| r.get(0))
