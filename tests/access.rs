@@ -63,7 +63,8 @@ fn sample_path(path: &str) -> String {
 fn allowed(rule: &Rule, who: &Who) -> Result<(), u16> {
     let api = rule.path.starts_with("/api/");
     let bearer = matches!(who.kind, Kind::Device | Kind::Token);
-    if bearer && !api {
+    if bearer && !api && rule.access != Access::Public {
+        // Pages take a browser sign-in; a public page ignores a token sent with it.
         return Err(401);
     }
     if who.kind == Kind::Session && api && rule.method != Method::GET {

@@ -500,3 +500,43 @@ async fn structured_logs_carry_request_ids_and_never_a_password_pin_or_token() {
     let secret_tail = &token[token.len() - 12..];
     assert!(!logs.contains(secret_tail), "no part of the token either");
 }
+
+#[tokio::test]
+async fn the_probes_ignore_a_token_sent_with_them() {
+    // A monitor may send its usual Authorization header to every URL it watches; the
+    // public probes answer it as they answer anyone, whether the token is good or stale.
+    let app = spawn_app().await;
+    app.small_site().await;
+    let good = app.token.get().unwrap().clone();
+    for token in [good.as_str(), "cairn-api-not-a-token", "garbage"] {
+        for probe in ["/healthz", "/readyz"] {
+            let r = app
+                .client
+                .get(format!("{}{probe}", app.base))
+                .bearer_auth(token)
+                .send()
+                .await
+                .unwrap();
+            assert_eq!(r.status(), 200, "{probe} with token {token}");
+        }
+    }
+    // A route that is not public still refuses a stale token.
+    let r = app
+        .client
+        .get(format!("{}/api/v1/sites/T", app.base))
+        .bearer_auth("garbage")
+        .send()
+        .await
+        .unwrap();
+    assert_eq!(r.status(), 401);
+    // A known path asked with a method it does not take says which it takes.
+    let r = app
+        .client
+        .get(format!("{}/api/v1/sites/T/bins", app.base))
+        .bearer_auth(&good)
+        .send()
+        .await
+        .unwrap();
+    assert_eq!(r.status(), 405);
+    assert!(r.text().await.unwrap().contains("takes POST"));
+}

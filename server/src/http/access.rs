@@ -406,6 +406,20 @@ async fn check(guard: &Guard, req: Request, path: &str) -> Result<Request, ApiEr
     };
     let safe = method == Method::GET;
     let Some(&access) = guard.rules.get(&(method.clone(), path)) else {
+        let allowed: Vec<&str> = guard
+            .rules
+            .keys()
+            .filter(|(_, p)| *p == path)
+            .map(|(m, _)| m.as_str())
+            .collect();
+        if !allowed.is_empty() {
+            let mut allowed = allowed;
+            allowed.sort_unstable();
+            return Err(ApiError::MethodNotAllowed(format!(
+                "{path} takes {}, not {method}",
+                allowed.join(" or ")
+            )));
+        }
         tracing::error!(%method, path, "a route has no access rule; refusing it");
         return Err(ApiError::Forbidden("this route has no access rule".into()));
     };
@@ -414,7 +428,12 @@ async fn check(guard: &Guard, req: Request, path: &str) -> Result<Request, ApiEr
         req.extensions(),
         state.config.trust_forwarded_for,
     );
-    let principal = authenticate(state, req.headers(), api, safe).await?;
+    // A public route answers whoever asks: a probe that sends a token out of habit, or a
+    // stale one, is not refused (the token is then ignored).
+    let principal = match authenticate(state, req.headers(), api, safe).await {
+        Err(ApiError::Unauthorized(_)) if access == Access::Public => None,
+        other => other?,
+    };
 
     let (mut parts, body) = req.into_parts();
     match access {

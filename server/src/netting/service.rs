@@ -414,12 +414,7 @@ pub enum Placement {
 /// Chooses the run for a recount: a run held by someone other than the first counter
 /// (the one with the fewest tasks), else a run held by no one. `runs` is
 /// `(run, holder, open tasks)`; `free_run` is the number a new empty run would get.
-pub fn place_recount(
-    runs: &[(u32, String, u32)],
-    first_counter: &str,
-    free_run: u32,
-    bin: &str,
-) -> Placement {
+pub fn place_recount(runs: &[(u32, String, u32)], first_counter: &str, free_run: u32) -> Placement {
     let other = runs
         .iter()
         .filter(|(_, h, _)| !h.is_empty() && h != first_counter)
@@ -436,8 +431,8 @@ pub fn place_recount(
     Placement::Unassigned {
         run,
         warning: format!(
-            "recounts in run {run} (first: recount of {bin}) have no counter other than \
-             {first_counter}: give run {run} to another counter"
+            "recounts in run {run} have no counter other than {first_counter}: give run \
+             {run} to another counter"
         ),
     }
 }
@@ -500,25 +495,31 @@ mod tests {
             (2, "bruno".to_string(), 5),
             (3, "chiara".to_string(), 2),
         ];
-        assert_eq!(place_recount(&runs, "chiara", 4, "A-1"), Placement::Run(1));
+        assert_eq!(place_recount(&runs, "chiara", 4), Placement::Run(1));
     }
 
     #[test]
     fn a_recount_with_no_other_counter_waits_unassigned_with_a_warning() {
         let runs = vec![(1, "ada".to_string(), 3)];
-        match place_recount(&runs, "ada", 2, "A-1") {
+        match place_recount(&runs, "ada", 2) {
             Placement::Unassigned { run, warning } => {
                 assert_eq!(run, 2);
                 assert!(
-                    warning.contains("A-1") && warning.contains("ada"),
+                    warning.contains("run 2") && warning.contains("ada"),
                     "{warning}"
+                );
+                // The same words for every recount of the run, so the list says it once
+                // however many recounts wait there.
+                assert_eq!(
+                    place_recount(&runs, "ada", 2),
+                    Placement::Unassigned { run, warning }
                 );
             }
             p => panic!("expected unassigned, got {p:?}"),
         }
         let runs = vec![(1, "ada".to_string(), 3), (2, String::new(), 0)];
         assert!(matches!(
-            place_recount(&runs, "ada", 3, "A-1"),
+            place_recount(&runs, "ada", 3),
             Placement::Unassigned { run: 2, .. }
         ));
     }

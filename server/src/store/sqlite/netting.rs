@@ -190,9 +190,10 @@ fn pass_facts(conn: &Connection, pass_id: i64) -> Result<Option<PassFacts>, Stor
         .prepare_cached(
             "select p.id, p.uid, p.site_id, p.bin_id, b.code, p.task_id, t.est_s, u.name,
                     p.first_at, p.done_at, p.uncertainty_ms, t.recount_of
-             from count_pass p cross join bin b cross join user_account u
+             from count_pass p join bin b on b.id = p.bin_id
+             join user_account u on u.id = p.user_id
              left join count_task t on t.id = p.task_id
-             where p.id = ?1 and b.id = p.bin_id and u.id = p.user_id",
+             where p.id = ?1",
         )?
         .query_row([pass_id], |r| {
             Ok(PassFacts {
@@ -512,12 +513,12 @@ pub fn net_pass(
                 .execute(params![id, c.id])?;
         }
         out.written.push(id);
-        changed.push((key, id, fresh.verdict));
+        changed.push((key, id, fresh.verdict, current.is_some()));
     }
 
     // A first count out of tolerance goes to a recount, once per key of the pass.
     let is_recount = pass.recount_of.is_some();
-    for (key, id, verdict) in &changed {
+    for (key, id, verdict, _) in &changed {
         if is_recount || *verdict != VERDICT_OUT {
             continue;
         }
@@ -535,8 +536,9 @@ pub fn net_pass(
             tx, first_pass, &key, pass.id, watermark, now,
         )?);
     }
-    for (key, _, _) in &changed {
-        if is_recount {
+    for (key, _, _, renetted) in &changed {
+        // A key netted for the first time has had no result a recount could re-check.
+        if is_recount || !renetted {
             continue;
         }
         if let Some(rc) = latest_recount_pass(tx, pass.id, key)? {
@@ -740,7 +742,7 @@ fn add_recount_task(
         .query_map([list], |r| Ok((r.get(0)?, r.get(1)?, r.get(2)?)))?
         .collect::<rusqlite::Result<Vec<(u32, String, u32)>>>()?;
     let placement = if assign {
-        service::place_recount(&runs, &pass.user_name, counters + 1, &pass.bin_code)
+        service::place_recount(&runs, &pass.user_name, counters + 1)
     } else {
         let run = runs
             .iter()
