@@ -97,17 +97,6 @@ async fn policy(app: &TestApp) -> Value {
     all
 }
 
-async fn put_json(app: &TestApp, path: &str, body: &Value) -> (u16, Value) {
-    let r = app
-        .with_token(app.client.put(format!("{}{path}", app.base)))
-        .json(body)
-        .send()
-        .await
-        .expect("the server answers");
-    let status = r.status().as_u16();
-    (status, r.json().await.unwrap_or(Value::Null))
-}
-
 #[tokio::test]
 async fn a_manager_saves_each_form_and_the_json_api_reads_the_new_values() {
     let app = spawn_app().await;
@@ -365,12 +354,12 @@ struct Bad {
 async fn bad_input_names_the_field_says_why_and_changes_nothing() {
     let app = spawn_app().await;
     site(&app).await;
-    let (s, b) = put_json(
-        &app,
-        "/api/v1/sites/T/netting/sources",
-        &json!([{"source": "host", "uncertainty_ms": 1000, "posting_lag_ms": 60000}]),
-    )
-    .await;
+    let (s, b) = app
+        .put(
+            "/api/v1/sites/T/netting/sources",
+            &json!([{"source": "host", "uncertainty_ms": 1000, "posting_lag_ms": 60000}]),
+        )
+        .await;
     assert_eq!(s, 200, "{b}");
     let ines = app.sign_in("ines", PASSWORD).await;
     let before = policy(&app).await;
@@ -510,7 +499,7 @@ async fn bad_input_names_the_field_says_why_and_changes_nothing() {
     // The JSON route keeps the same bound on a percentage.
     let mut settings = before["settings"].clone();
     settings["tolerances"]["c"] = json!({"percent_bp": 10_001});
-    let (s, b) = put_json(&app, "/api/v1/sites/T/netting/settings", &settings).await;
+    let (s, b) = app.put("/api/v1/sites/T/netting/settings", &settings).await;
     assert_eq!(s, 400, "{b}");
     assert!(b["error"].as_str().unwrap().contains("tolerances.c"), "{b}");
     assert_eq!(policy(&app).await, before, "nothing changed");
@@ -529,7 +518,7 @@ async fn a_list_changed_since_the_page_was_opened_is_not_overwritten() {
         ("/api/v1/sites/T/netting/sources", &dock),
         ("/api/v1/sites/T/netting/reason-codes", &codes),
     ] {
-        let (s, b) = put_json(&app, path, body).await;
+        let (s, b) = app.put(path, body).await;
         assert_eq!(s, 200, "{b}");
     }
     let before = policy(&app).await;

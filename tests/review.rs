@@ -817,16 +817,11 @@ async fn a_reason_code_a_decision_names_is_relabelled_but_never_removed() {
         .filter(|c| c["code"] != "damaged")
         .cloned()
         .collect();
-    let r = app
-        .with_token(
-            app.client
-                .put(format!("{}/api/v1/sites/T/netting/reason-codes", app.base)),
-        )
-        .json(&without)
-        .send()
-        .await
-        .unwrap();
-    assert_eq!(r.status(), 409);
+    let (s, b) = app
+        .put("/api/v1/sites/T/netting/reason-codes", &json!(without))
+        .await;
+    assert_eq!(s, 409, "{b}");
+    assert!(b["error"].as_str().unwrap().contains("'damaged'"), "{b}");
     assert_eq!(
         app.get("/api/v1/sites/T/netting/reason-codes").await,
         before

@@ -198,6 +198,18 @@ impl TestApp {
         (status, r.json().await.unwrap_or(Value::Null))
     }
 
+    /// Sends a JSON PUT and returns the status and JSON body.
+    pub async fn put(&self, path: &str, body: &Value) -> (u16, Value) {
+        let r = self
+            .with_token(self.client.put(format!("{}{path}", self.base)))
+            .json(body)
+            .send()
+            .await
+            .expect("the server answers");
+        let status = r.status().as_u16();
+        (status, r.json().await.unwrap_or(Value::Null))
+    }
+
     /// Sends raw bytes as a JSON POST.
     pub async fn post_raw(&self, path: &str, body: Vec<u8>) -> (u16, Value) {
         let r = self
