@@ -747,3 +747,108 @@ async fn decisions_need_a_decider_and_the_form_token() {
     );
     assert_eq!(balance(&app, BIN_1, None).await, 40);
 }
+
+#[tokio::test]
+async fn a_reason_code_a_decision_names_is_relabelled_but_never_removed() {
+    let app = spawn_app().await;
+    review_site(&app).await;
+    count_bins(&app, "cora", "4821", &[(BIN_1, 36)]).await;
+    recount_bins(&app, &[(BIN_1, 36)]).await;
+    let ines = app.sign_in("ines", PASSWORD).await;
+    let id = difference_of(&app, &ines, BIN_1).await;
+    let approved = post(
+        &app,
+        &ines,
+        &format!("/sites/T/differences/{id}/approve"),
+        &[("reason", "damaged")],
+    )
+    .await;
+    assert_eq!(approved.status, 303, "{}", approved.text);
+
+    let action = "/sites/T/count-policy/reason-codes";
+    let page = get(&app, &ines, "/sites/T/count-policy").await;
+    assert_eq!(page.status, 200, "{}", page.text);
+    let row = page
+        .text
+        .split("<tr data-code=\"damaged\">")
+        .nth(1)
+        .and_then(|r| r.split("</tr>").next())
+        .unwrap_or_else(|| panic!("a row for 'damaged': {}", page.text));
+    assert!(
+        row.contains("<td class=\"n\">1</td>"),
+        "one decision: {row}"
+    );
+    assert!(!row.contains("name=\"remove."), "no remove box: {row}");
+
+    let fields = common::form_fields(&page.text, action);
+    let i = fields
+        .iter()
+        .find(|(k, v)| k.starts_with("code.") && v == "damaged")
+        .map(|(k, _)| k["code.".len()..].to_string())
+        .expect("the form lists 'damaged'");
+    let before = app.get("/api/v1/sites/T/netting/reason-codes").await;
+
+    // Removing it anyway (a form sent by hand) is refused and changes nothing.
+    let mut remove = fields.clone();
+    remove.push((format!("remove.{i}"), "on".into()));
+    let pairs: Vec<(&str, &str)> = remove
+        .iter()
+        .filter(|(k, _)| k != "csrf")
+        .map(|(k, v)| (k.as_str(), v.as_str()))
+        .collect();
+    let refused = post(&app, &ines, action, &pairs).await;
+    assert_eq!(refused.status, 409, "{}", refused.text);
+    assert!(
+        common::unescape(&refused.text)
+            .contains("reason code 'damaged' cannot be removed: 1 decision names it"),
+        "{}",
+        refused.text
+    );
+    assert_eq!(
+        app.get("/api/v1/sites/T/netting/reason-codes").await,
+        before
+    );
+    // The JSON route keeps the same rule.
+    let without: Vec<Value> = before
+        .1
+        .as_array()
+        .unwrap()
+        .iter()
+        .filter(|c| c["code"] != "damaged")
+        .cloned()
+        .collect();
+    let (s, b) = app
+        .put("/api/v1/sites/T/netting/reason-codes", &json!(without))
+        .await;
+    assert_eq!(s, 409, "{b}");
+    assert!(b["error"].as_str().unwrap().contains("'damaged'"), "{b}");
+    assert_eq!(
+        app.get("/api/v1/sites/T/netting/reason-codes").await,
+        before
+    );
+
+    // A new label is fine, and the decision keeps its code.
+    let mut relabel = fields.clone();
+    for (k, v) in relabel.iter_mut() {
+        if *k == format!("label.{i}") {
+            *v = "Damaged: written off".into();
+        }
+    }
+    let pairs: Vec<(&str, &str)> = relabel
+        .iter()
+        .filter(|(k, _)| k != "csrf")
+        .map(|(k, v)| (k.as_str(), v.as_str()))
+        .collect();
+    let saved = post(&app, &ines, action, &pairs).await;
+    assert_eq!(saved.status, 303, "{}", saved.text);
+    let (_, codes) = app.get("/api/v1/sites/T/netting/reason-codes").await;
+    assert!(
+        codes
+            .as_array()
+            .unwrap()
+            .contains(&json!({"code": "damaged", "label": "Damaged: written off"})),
+        "{codes}"
+    );
+    let (_, feed) = app.get("/api/v1/sites/T/adjustments").await;
+    assert_eq!(feed["adjustments"][0]["reason_code"], "damaged", "{feed}");
+}

@@ -74,6 +74,49 @@ pub fn form_token(html: &str) -> Option<String> {
     Some(html[at..at + end].to_string())
 }
 
+/// Undoes the HTML escaping of text and attribute values.
+pub fn unescape(s: &str) -> String {
+    s.replace("&quot;", "\"")
+        .replace("&#x27;", "'")
+        .replace("&#39;", "'")
+        .replace("&lt;", "<")
+        .replace("&gt;", ">")
+        .replace("&amp;", "&")
+}
+
+/// Returns the value of attribute `name` of an HTML tag's text, unescaped.
+pub fn attr(tag: &str, name: &str) -> Option<String> {
+    let key = format!(" {name}=\"");
+    let from = tag.find(&key)? + key.len();
+    Some(unescape(&tag[from..from + tag[from..].find('"')?]))
+}
+
+/// The text of the form that posts to `action`.
+pub fn form_html<'a>(html: &'a str, action: &str) -> &'a str {
+    let at = html
+        .find(&format!("action=\"{action}\""))
+        .unwrap_or_else(|| panic!("no form posts to {action}: {html}"));
+    &html[at..at + html[at..].find("</form>").expect("the form ends")]
+}
+
+/// What a browser would send from the form that posts to `action`: every
+/// named input with its value, checkboxes only when checked.
+pub fn form_fields(html: &str, action: &str) -> Vec<(String, String)> {
+    let mut out = Vec::new();
+    for piece in form_html(html, action).split("<input").skip(1) {
+        let tag = &piece[..piece.find('>').expect("the input tag ends")];
+        let Some(name) = attr(tag, "name") else {
+            continue;
+        };
+        let checkbox = attr(tag, "type").as_deref() == Some("checkbox");
+        if checkbox && !tag.contains(" checked") {
+            continue;
+        }
+        out.push((name, attr(tag, "value").unwrap_or_default()));
+    }
+    out
+}
+
 /// A running test server and a client for it.
 pub struct TestApp {
     pub base: String,
@@ -147,6 +190,18 @@ impl TestApp {
     pub async fn post(&self, path: &str, body: &Value) -> (u16, Value) {
         let r = self
             .with_token(self.client.post(format!("{}{path}", self.base)))
+            .json(body)
+            .send()
+            .await
+            .expect("the server answers");
+        let status = r.status().as_u16();
+        (status, r.json().await.unwrap_or(Value::Null))
+    }
+
+    /// Sends a JSON PUT and returns the status and JSON body.
+    pub async fn put(&self, path: &str, body: &Value) -> (u16, Value) {
+        let r = self
+            .with_token(self.client.put(format!("{}{path}", self.base)))
             .json(body)
             .send()
             .await

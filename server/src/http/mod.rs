@@ -30,6 +30,7 @@ pub fn route_table() -> RouteTable {
     crate::accuracy::routes::routes(&mut t);
     crate::sync::routes::routes(&mut t);
     crate::netting::routes::routes(&mut t);
+    crate::netting::pages::routes(&mut t);
     crate::review::pages::routes(&mut t);
     crate::review::routes::routes(&mut t);
     t

@@ -18,6 +18,11 @@ use serde::Deserialize;
 /// Results one page returns unless asked for fewer.
 const DEFAULT_RESULTS_PAGE: usize = 200;
 
+/// Who may read the netting policy: the JSON reads and the count-policy page.
+pub(super) const READ_POLICY: Access = Access::Site(BOOK_READERS);
+/// Who may change it: the JSON writes and the count-policy page's forms.
+pub(super) const SET_POLICY: Access = Access::Site(COUNT_POLICY);
+
 /// Adds the netting routes.
 pub fn routes(t: &mut RouteTable) {
     macro_rules! path {
@@ -35,36 +40,16 @@ pub fn routes(t: &mut RouteTable) {
         Access::Site(BOOK_READERS),
         get_result,
     )
-    .get(
-        path!("/netting/settings"),
-        Access::Site(BOOK_READERS),
-        get_settings,
-    )
-    .put(
-        path!("/netting/settings"),
-        Access::Site(COUNT_POLICY),
-        put_settings,
-    )
-    .get(
-        path!("/netting/sources"),
-        Access::Site(BOOK_READERS),
-        get_sources,
-    )
-    .put(
-        path!("/netting/sources"),
-        Access::Site(COUNT_POLICY),
-        put_sources,
-    )
+    .get(path!("/netting/settings"), READ_POLICY, get_settings)
+    .put(path!("/netting/settings"), SET_POLICY, put_settings)
+    .get(path!("/netting/sources"), READ_POLICY, get_sources)
+    .put(path!("/netting/sources"), SET_POLICY, put_sources)
     .get(
         path!("/netting/reason-codes"),
-        Access::Site(BOOK_READERS),
+        READ_POLICY,
         get_reason_codes,
     )
-    .put(
-        path!("/netting/reason-codes"),
-        Access::Site(COUNT_POLICY),
-        put_reason_codes,
-    );
+    .put(path!("/netting/reason-codes"), SET_POLICY, put_reason_codes);
 }
 
 fn body<T: serde::de::DeserializeOwned>(bytes: &[u8]) -> Result<T, ApiError> {

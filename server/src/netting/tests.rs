@@ -355,6 +355,16 @@ fn every_limit_that_is_set_must_hold() {
         .is_err()
     );
     assert!(t.check().is_ok());
+    let whole = Tolerance {
+        percent_bp: Some(10_000),
+        ..unset
+    };
+    assert!(whole.check().is_ok(), "100 % is the widest share");
+    let beyond = Tolerance {
+        percent_bp: Some(10_001),
+        ..unset
+    };
+    assert!(beyond.check().unwrap_err().contains("at most 10000"));
 }
 
 #[test]

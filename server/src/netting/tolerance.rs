@@ -73,7 +73,8 @@ impl Tolerance {
         }
     }
 
-    /// Checks the settings: no limit may be negative.
+    /// Checks the settings: no limit may be negative, and a percentage is at
+    /// most 100 % (beyond it, a count of nothing would pass against any book).
     pub fn check(&self) -> Result<(), String> {
         for (name, v) in [
             ("units", self.units),
@@ -85,6 +86,13 @@ impl Tolerance {
             {
                 return Err(format!("tolerance {name} must not be negative, found {v}"));
             }
+        }
+        if let Some(bp) = self.percent_bp
+            && bp > BASIS_POINTS_PER_WHOLE
+        {
+            return Err(format!(
+                "tolerance percent_bp must be at most {BASIS_POINTS_PER_WHOLE} (100 %), found {bp}"
+            ));
         }
         Ok(())
     }

@@ -318,12 +318,33 @@ pub trait Store: AccountStore + AccuracyStore + ReviewStore + Send + Sync + 'sta
         &self,
         site: SiteId,
     ) -> Result<Vec<crate::netting::service::ReasonCode>, StoreError>;
-    /// Replaces a site's reason codes.
+    /// Replaces a site's reason codes; a code a decision names is never dropped (Conflict).
     async fn put_reason_codes(
         &self,
         site: SiteId,
         rows: Vec<crate::netting::service::ReasonCode>,
     ) -> Result<(), StoreError>;
+    /// Replaces a site's movement sources' timing from a page that showed the
+    /// sources `shown`; refused (Conflict) if they changed since.
+    async fn edit_source_timings(
+        &self,
+        site: SiteId,
+        shown: Vec<String>,
+        rows: Vec<crate::netting::service::SourceTimingRow>,
+    ) -> Result<(), StoreError>;
+    /// Replaces a site's reason codes from a page that showed the codes `shown`;
+    /// refused (Conflict) if they changed since, or if a used code would go.
+    async fn edit_reason_codes(
+        &self,
+        site: SiteId,
+        shown: Vec<String>,
+        rows: Vec<crate::netting::service::ReasonCode>,
+    ) -> Result<(), StoreError>;
+    /// Counts the decisions that name each reason code of a site.
+    async fn reason_code_uses(
+        &self,
+        site: SiteId,
+    ) -> Result<std::collections::BTreeMap<String, i64>, StoreError>;
     /// Lists a site's count results.
     async fn count_results(
         &self,

@@ -519,6 +519,35 @@ impl Store for SqliteStore {
             .await
     }
 
+    async fn edit_source_timings(
+        &self,
+        site: SiteId,
+        shown: Vec<String>,
+        rows: Vec<crate::netting::service::SourceTimingRow>,
+    ) -> Result<(), StoreError> {
+        self.write_tx(move |tx| netting::edit_source_timings(tx, site, &shown, &rows))
+            .await
+    }
+
+    async fn edit_reason_codes(
+        &self,
+        site: SiteId,
+        shown: Vec<String>,
+        rows: Vec<crate::netting::service::ReasonCode>,
+    ) -> Result<(), StoreError> {
+        self.write_tx(move |tx| netting::edit_reason_codes(tx, site, &shown, &rows))
+            .await
+    }
+
+    async fn reason_code_uses(
+        &self,
+        site: SiteId,
+    ) -> Result<std::collections::BTreeMap<String, i64>, StoreError> {
+        self.readers
+            .run(move |c| netting::reason_code_uses(c, site))
+            .await
+    }
+
     async fn count_results(
         &self,
         site: SiteId,

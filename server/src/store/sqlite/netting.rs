@@ -152,12 +152,49 @@ pub fn reason_codes(conn: &Connection, site: SiteId) -> Result<Vec<ReasonCode>, 
     Ok(rows)
 }
 
-/// Replaces a site's reason codes with `rows`.
+/// Counts, per reason code, the decisions of a site that name it.
+pub fn reason_code_uses(
+    conn: &Connection,
+    site: SiteId,
+) -> Result<BTreeMap<String, i64>, StoreError> {
+    let rows = conn
+        .prepare_cached(
+            "select v.reason_code, count(*) from count_review v
+             join count_result r on r.id = v.result_id
+             where r.site_id = ?1 and v.reason_code <> ''
+             group by v.reason_code",
+        )?
+        .query_map([site.0], |r| Ok((r.get(0)?, r.get(1)?)))?
+        .collect::<rusqlite::Result<BTreeMap<String, i64>>>()?;
+    Ok(rows)
+}
+
+/// Replaces a site's reason codes with `rows`, refusing to drop a code that a
+/// decision names: the code would lose its meaning in that decision's record
+/// (the schema has no retired codes, so a used one is relabelled, not removed).
 pub fn put_reason_codes(
     tx: &Transaction,
     site: SiteId,
     rows: &[ReasonCode],
 ) -> Result<(), StoreError> {
+    let dropped: Vec<String> = reason_code_uses(tx, site)?
+        .into_iter()
+        .filter(|(code, _)| !rows.iter().any(|r| &r.code == code))
+        .map(|(code, n)| {
+            let taken = if n == 1 {
+                "decision names"
+            } else {
+                "decisions name"
+            };
+            format!(
+                "reason code '{code}' cannot be removed: {n} {taken} it; give it a new label \
+                 instead"
+            )
+        })
+        .collect();
+    if !dropped.is_empty() {
+        return Err(StoreError::Conflict(dropped.join("; ")));
+    }
     tx.execute("delete from reason_code where site_id = ?1", [site.0])?;
     let mut ins =
         tx.prepare_cached("insert into reason_code (site_id, code, label) values (?1, ?2, ?3)")?;
@@ -165,6 +202,48 @@ pub fn put_reason_codes(
         ins.execute(params![site.0, r.code, r.label])?;
     }
     Ok(())
+}
+
+/// Refuses a page's save over a list that changed after the page showed it,
+/// so a row someone else added meanwhile is not dropped unseen.
+fn still_as_shown(current: &[&str], shown: &[String], what: &str) -> Result<(), StoreError> {
+    let now: BTreeSet<&str> = current.iter().copied().collect();
+    let then: BTreeSet<&str> = shown.iter().map(String::as_str).collect();
+    if now == then {
+        return Ok(());
+    }
+    Err(StoreError::Conflict(format!(
+        "the {what} changed since this page was opened (someone else saved them): \
+         reload the page and make your change again"
+    )))
+}
+
+/// Replaces a site's source timings with `rows`, if the sources are still the
+/// ones `shown` lists.
+pub fn edit_source_timings(
+    tx: &Transaction,
+    site: SiteId,
+    shown: &[String],
+    rows: &[SourceTimingRow],
+) -> Result<(), StoreError> {
+    let current = source_timings(tx, site)?;
+    let names: Vec<&str> = current.iter().map(|r| r.source.as_str()).collect();
+    still_as_shown(&names, shown, "movement sources")?;
+    put_source_timings(tx, site, rows)
+}
+
+/// Replaces a site's reason codes with `rows`, if the codes reviewers see (the
+/// defaults while none are stored) are still the ones `shown` lists.
+pub fn edit_reason_codes(
+    tx: &Transaction,
+    site: SiteId,
+    shown: &[String],
+    rows: &[ReasonCode],
+) -> Result<(), StoreError> {
+    let current = super::review::reason_codes(tx, site)?;
+    let codes: Vec<&str> = current.iter().map(|r| r.code.as_str()).collect();
+    still_as_shown(&codes, shown, "reason codes")?;
+    put_reason_codes(tx, site, rows)
 }
 
 // ---------------------------------------------------------------------------
