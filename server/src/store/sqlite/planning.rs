@@ -568,6 +568,7 @@ pub fn plan_input(
         bins,
         items,
         triggers,
+        recounts: Vec::new(),
         zone_time: HashMap::new(),
         capacity,
         fill,
