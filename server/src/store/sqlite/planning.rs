@@ -810,6 +810,17 @@ pub fn move_task(
             "task {task} is done and cannot move"
         )));
     }
+    let holder: String = tx
+        .prepare_cached("select holder from count_run where list_id = ?1 and run = ?2")?
+        .query_row(params![list, run], |r| r.get(0))
+        .optional()?
+        .unwrap_or_default();
+    if recount_tasks::would_recount_own_count(tx, task, &holder)? {
+        return Err(StoreError::Conflict(format!(
+            "task {task} is a recount of a bin {holder} counted, and run {run} is {holder}'s: \
+             a recount goes to someone else"
+        )));
+    }
     tx.prepare_cached("update count_task set run = ?1 where id = ?2")?
         .execute(params![run, task])?;
     bump(tx, list)?;
@@ -828,6 +839,12 @@ pub fn hold_run(
     if run == 0 || run > counters {
         return Err(StoreError::NotFound(format!(
             "the list for {day} has runs 1 to {counters}"
+        )));
+    }
+    if let Some(bin) = recount_tasks::recount_counted_by(tx, list, run, holder)? {
+        return Err(StoreError::Conflict(format!(
+            "run {run} holds the recount of bin {bin}, which {holder} counted: a recount goes \
+             to someone else, so give {holder} another run or move the recount first"
         )));
     }
     tx.prepare_cached("update count_run set holder = ?1 where list_id = ?2 and run = ?3")?

@@ -4,7 +4,8 @@
 //! against it → `recount_of` → first result). So a list never deletes or copies
 //! such a task: rebuilding a list keeps its open recounts, and building a later
 //! day's list moves the open recounts of earlier lists onto it, the same rows with
-//! the same ids.
+//! the same ids. The task's run must never be held by someone who counted the key
+//! already.
 
 use crate::master::SiteId;
 use crate::planning::abc::Class;
@@ -180,4 +181,66 @@ pub fn note_carried(
         .execute(params![list, text])?;
     }
     Ok(())
+}
+
+/// Says whether `holder` counted already the key a recount task re-checks: they made
+/// the first count, or a recount of it (a supervisor count follows a recount). `None`
+/// when the task re-checks nothing.
+fn counted_before(conn: &Connection, task: i64, holder: &str) -> Result<Option<bool>, StoreError> {
+    Ok(conn
+        .prepare_cached(
+            "select exists (select 1 from count_pass p cross join user_account u
+                            where p.id = r.pass_id and u.id = p.user_id and u.name = ?2)
+                 or exists (select 1 from count_result r2 cross join count_task t2
+                                cross join count_pass p2 cross join user_account u2
+                            where r2.pass_id = r.pass_id and r2.item_id = r.item_id
+                              and r2.lot = r.lot and t2.recount_of = r2.id and t2.id <> t.id
+                              and p2.task_id = t2.id and p2.done_at is not null
+                              and u2.id = p2.user_id and u2.name = ?2)
+             from count_task t cross join count_result r
+             where t.id = ?1 and r.id = t.recount_of",
+        )?
+        .query_row(params![task, holder], |r| r.get(0))
+        .optional()?)
+}
+
+/// Returns the bin of the first open recount in run `run` of list `list` whose key
+/// `holder` counted already, if any.
+pub fn recount_counted_by(
+    conn: &Connection,
+    list: i64,
+    run: u32,
+    holder: &str,
+) -> Result<Option<String>, StoreError> {
+    if holder.is_empty() {
+        return Ok(None);
+    }
+    let tasks = conn
+        .prepare_cached(
+            "select t.id, b.code from count_task t join bin b on b.id = t.bin_id
+             where t.list_id = ?1 and t.run = ?2 and t.recount_of is not null
+               and t.status <> 'done'
+             order by t.seq",
+        )?
+        .query_map(params![list, run], |r| Ok((r.get(0)?, r.get(1)?)))?
+        .collect::<rusqlite::Result<Vec<(i64, String)>>>()?;
+    for (task, bin) in tasks {
+        if counted_before(conn, task, holder)? == Some(true) {
+            return Ok(Some(bin));
+        }
+    }
+    Ok(None)
+}
+
+/// Says whether moving task `task` into a run held by `holder` would give a recount
+/// to someone who counted its key already.
+pub fn would_recount_own_count(
+    conn: &Connection,
+    task: i64,
+    holder: &str,
+) -> Result<bool, StoreError> {
+    if holder.is_empty() {
+        return Ok(false);
+    }
+    Ok(counted_before(conn, task, holder)? == Some(true))
 }
