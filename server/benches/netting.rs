@@ -135,7 +135,8 @@ fn make_db(path: &Path, lines: usize, moves: usize) {
         // Bins counted: enough for `lines` keyed lines. A key whose shelf is empty at the
         // count is keyed by nobody, so a few more bins than lines / KEYS_PER_BIN are needed.
         // (The in-window pick below takes one from every even key.)
-        let keyed = |k: usize| balance[k] - i64::from(k.is_multiple_of(2)) + i64::from(k % 20 == 1) > 0;
+        let keyed =
+            |k: usize| balance[k] - i64::from(k.is_multiple_of(2)) + i64::from(k % 20 == 1) > 0;
         let mut counted_bins = 0;
         let mut planned = 0;
         while counted_bins < BINS && planned < lines {
