@@ -128,6 +128,7 @@ fn textbook_site() -> PlanInput {
         bins,
         items,
         triggers: Vec::new(),
+        recounts: Vec::new(),
         zone_time: HashMap::new(),
         capacity: Capacity {
             counters: 4,

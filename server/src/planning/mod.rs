@@ -245,7 +245,8 @@ pub struct NewCountList {
     pub level_s: i64,
     pub warnings: Vec<String>,
     pub watermark: i64,
-    /// Replace a list already stored for the day (refused once it has started).
+    /// Replace a list already stored for the day (refused once it has started); its
+    /// open recounts are kept.
     pub replace: bool,
     pub tasks: Vec<NewTask>,
 }
@@ -261,4 +262,7 @@ pub struct NewTask {
     pub detail: String,
     pub lines: u32,
     pub est_s: i64,
+    /// The stored recount task this is: kept (moved here from an earlier list if need
+    /// be), never deleted or copied, so netting still finds the count done against it.
+    pub recount_task: Option<i64>,
 }

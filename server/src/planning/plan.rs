@@ -1,6 +1,7 @@
-//! Building one day's count list from plain facts: triggered bins first, then
-//! due items by how overdue they are, within the day's capacity and the
-//! level that keeps the year's daily minutes even; then the walk and the runs.
+//! Building one day's count list from plain facts: open recounts first (kept
+//! whatever the capacity), then triggered bins, then due items by how overdue
+//! they are, within the day's capacity and the level that keeps the year's
+//! daily minutes even; then the walk and the runs.
 //! No I/O: the store gathers a [`PlanInput`], this returns a [`Plan`].
 
 use super::abc::Class;
@@ -46,6 +47,44 @@ pub struct Trigger {
     pub detail: String,
 }
 
+/// A recount or supervisor-count task already stored and not counted yet, on the
+/// day's own list or on an earlier day's (then it is carried to this one). The plan
+/// keeps the stored task, so what netting links to it (`recount_of`, and the pass
+/// done against it) stays; it is never dropped for capacity.
+#[derive(Debug, Clone)]
+pub struct OpenRecount {
+    /// The stored task's id.
+    pub task: i64,
+    /// Index into [`PlanInput::bins`].
+    pub bin: u32,
+    pub class: Option<Class>,
+    /// The stored detail (what is re-checked, for the supervisor).
+    pub detail: String,
+    pub lines: u32,
+    pub seconds: i64,
+    /// The day of the list it is on, when that is earlier than the day planned.
+    pub carried_from: Option<NaiveDate>,
+    /// A supervisor count (the recount agreed with neither): it waits in a run of its
+    /// own that no counter holds, outside the counters' capacity.
+    pub supervisor: bool,
+}
+
+/// What a carried task's detail says about the day it was first on a list.
+pub const CARRIED_NOTE: &str = "carried from";
+
+impl OpenRecount {
+    /// Returns the detail the list shows: the stored one, and where it was carried
+    /// from the first time it was (so a task carried twice keeps its first day).
+    pub fn shown_detail(&self) -> String {
+        match self.carried_from {
+            Some(d) if !self.detail.contains(CARRIED_NOTE) => {
+                format!("{}; {CARRIED_NOTE} {d}", self.detail)
+            }
+            _ => self.detail.clone(),
+        }
+    }
+}
+
 /// Whether due counts stop at the level or fill the whole capacity.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Default, serde::Deserialize, Serialize)]
 #[serde(rename_all = "snake_case")]
@@ -85,6 +124,8 @@ pub struct PlanInput {
     pub bins: Vec<BinFacts>,
     pub items: Vec<ItemFacts>,
     pub triggers: Vec<Trigger>,
+    /// Open recount and supervisor-count tasks, oldest first.
+    pub recounts: Vec<OpenRecount>,
     /// Task time per zone code, learned or from settings; zones not named use the settings.
     pub zone_time: HashMap<String, TaskTime>,
     pub capacity: Capacity,
@@ -144,14 +185,17 @@ pub struct Task {
     pub seq: u32,
     /// The run (counter slot), from 1.
     pub run: u32,
+    /// The stored recount task this is, kept rather than created again.
+    pub keep: Option<i64>,
 }
 
 /// The day's list.
 #[derive(Debug, Clone)]
 pub struct Plan {
     pub day: NaiveDate,
-    /// In the order they are done: run by run, each run's triggered bins
-    /// (walked) before its due bins (walked).
+    /// In the order they are done: run by run, each run's open recounts (walked),
+    /// then its other triggered bins (walked), then its due bins (walked).
+    /// Supervisor counts come last, in run `capacity.counters + 1`.
     pub tasks: Vec<Task>,
     pub capacity: Capacity,
     /// The day's share of the year's load, in seconds.
@@ -165,9 +209,20 @@ pub struct Plan {
 }
 
 impl Plan {
+    /// Returns the number of runs: the counters', and one more when supervisor
+    /// counts wait in a run of their own.
+    pub fn runs(&self) -> u32 {
+        self.tasks
+            .iter()
+            .map(|t| t.run)
+            .max()
+            .unwrap_or(0)
+            .max(self.capacity.counters)
+    }
+
     /// Returns the seconds of each run, run 1 first.
     pub fn run_seconds(&self) -> Vec<i64> {
-        let mut out = vec![0; self.capacity.counters as usize];
+        let mut out = vec![0; self.runs() as usize];
         for t in &self.tasks {
             out[(t.run - 1) as usize] += t.seconds;
         }
@@ -182,6 +237,45 @@ struct Chosen {
     class: Option<Class>,
     detail: String,
     seconds: i64,
+    lines: u32,
+    /// The stored recount task it keeps.
+    keep: Option<i64>,
+}
+
+/// Orders a run's tasks: open recounts, other triggered bins, the rest.
+fn rank(keep: Option<i64>, reason: Reason) -> u8 {
+    match (keep, reason.is_triggered()) {
+        (Some(_), _) => 0,
+        (None, true) => 1,
+        (None, false) => 2,
+    }
+}
+
+impl Chosen {
+    fn rank(&self) -> u8 {
+        rank(self.keep, self.reason)
+    }
+
+    fn task(&self, run: u32) -> Task {
+        Task {
+            bin: self.bin,
+            reason: self.reason,
+            class: self.class,
+            detail: self.detail.clone(),
+            lines: self.lines,
+            seconds: self.seconds,
+            seq: 0,
+            run,
+            keep: self.keep,
+        }
+    }
+}
+
+impl Task {
+    /// Orders a run's tasks: open recounts, other triggered bins, the rest.
+    pub fn rank(&self) -> u8 {
+        rank(self.keep, self.reason)
+    }
 }
 
 /// Builds the day's list.
@@ -250,6 +344,30 @@ pub fn build(input: &PlanInput) -> Plan {
     let mut chosen: Vec<Chosen> = Vec::new();
     let mut used = 0i64;
 
+    // Open recounts were sent already: each stays, ahead of everything, and takes
+    // its time from the day first. A recount is a task of its own (it re-checks one
+    // result), so the bin may still get its other trigger or due count below.
+    let mut recounts: Vec<&OpenRecount> = input.recounts.iter().collect();
+    recounts.sort_by_key(|r| r.task);
+    let mut supervisor: Vec<Chosen> = Vec::new();
+    for r in recounts {
+        let c = Chosen {
+            bin: r.bin,
+            reason: Reason::Triggered(TriggerKind::Recount),
+            class: r.class,
+            detail: r.shown_detail(),
+            seconds: r.seconds,
+            lines: r.lines,
+            keep: Some(r.task),
+        };
+        if r.supervisor {
+            supervisor.push(c);
+        } else {
+            used += r.seconds;
+            chosen.push(c);
+        }
+    }
+
     // Triggered bins, strongest reason first; one task per bin.
     let mut triggers: Vec<&Trigger> = input.triggers.iter().collect();
     triggers.sort_by_key(|t| (t.kind, t.bin));
@@ -278,6 +396,8 @@ pub fn build(input: &PlanInput) -> Plan {
             class: None,
             detail: t.detail.clone(),
             seconds: seconds[b],
+            lines: input.bins[b].lines,
+            keep: None,
         });
     }
 
@@ -361,21 +481,25 @@ pub fn build(input: &PlanInput) -> Plan {
                     )
                 },
                 seconds: seconds[b as usize],
+                lines: input.bins[b as usize].lines,
+                keep: None,
             });
         }
     }
 
-    // Two walks: the triggered bins, then the rest, each cut into contiguous
-    // runs so every counter does its urgent bins first. While the longest run
-    // is over one counter's minutes, drop the least urgent task (the last
-    // chosen) and cut again.
+    // Three walks: the open recounts, the other triggered bins, then the rest,
+    // each cut into contiguous runs so every counter does its urgent bins first.
+    // While the longest run is over one counter's minutes, drop the least urgent
+    // task (the last chosen) and cut again; open recounts are never dropped.
     let runs = input.capacity.counters as usize;
-    let mut tasks: Vec<Task> = loop {
-        let (urgent, rest): (Vec<usize>, Vec<usize>) =
-            (0..chosen.len()).partition(|&i| chosen[i].reason.is_triggered());
+    let cut: Vec<(usize, u32)> = loop {
+        let mut passes: [Vec<usize>; 3] = Default::default();
+        for (i, c) in chosen.iter().enumerate() {
+            passes[c.rank() as usize].push(i);
+        }
         let mut offsets = vec![0i64; runs];
         let mut cut = Vec::with_capacity(chosen.len());
-        for pass in [urgent, rest] {
+        for pass in passes {
             let places: Vec<Place> = pass
                 .iter()
                 .map(|&i| input.bins[chosen[i].bin as usize].place)
@@ -385,28 +509,22 @@ pub fn build(input: &PlanInput) -> Plan {
             let ranges = split(&times, &offsets);
             for (run, range) in ranges.iter().enumerate() {
                 offsets[run] += times[range.clone()].iter().sum::<i64>();
-                cut.extend(range.clone().map(|pos| (order[pos], run)));
+                cut.extend(range.clone().map(|pos| (order[pos], run as u32 + 1)));
             }
         }
-        if offsets.iter().all(|&o| o <= per_counter) {
-            break cut
-                .into_iter()
-                .map(|(i, run)| {
-                    let c = &chosen[i];
-                    Task {
-                        bin: c.bin,
-                        reason: c.reason,
-                        class: c.class,
-                        detail: c.detail.clone(),
-                        lines: input.bins[c.bin as usize].lines,
-                        seconds: c.seconds,
-                        seq: 0,
-                        run: run as u32 + 1,
-                    }
-                })
-                .collect();
+        let fits = offsets.iter().all(|&o| o <= per_counter);
+        if fits || chosen.last().is_none_or(|c| c.keep.is_some()) {
+            if !fits {
+                warnings.push(format!(
+                    "the open recounts alone take more than one counter's {} minutes: a run is over its time",
+                    input.capacity.minutes
+                ));
+            }
+            break cut;
         }
-        let dropped = chosen.pop().expect("an empty list always fits");
+        let dropped = chosen
+            .pop()
+            .expect("the list is not empty: its last task was looked at");
         if dropped.reason.is_triggered() {
             warnings.push(format!(
                 "triggered count of bin {} ({}: {}) does not fit in one counter's minutes and is not on the list",
@@ -416,12 +534,38 @@ pub fn build(input: &PlanInput) -> Plan {
             ));
         }
     };
-    // Each counter's tasks in the order they are done: its urgent stretch, then its walk.
-    tasks.sort_by_key(|t| (t.run, !t.reason.is_triggered()));
+    // Supervisor counts: a run of their own after the counters', walked, held by no one.
+    let supervisor_run = input.capacity.counters + 1;
+    let places: Vec<Place> = supervisor
+        .iter()
+        .map(|c| input.bins[c.bin as usize].place)
+        .collect();
+    let supervisor_order = walk_order(&places);
+    for &k in &supervisor_order {
+        let c = &supervisor[k];
+        warnings.push(format!(
+            "supervisor count of {} waits in run {supervisor_run}, which no counter holds: {}",
+            input.bins[c.bin as usize].code, c.detail
+        ));
+    }
+    let mut tasks: Vec<Task> = cut
+        .into_iter()
+        .map(|(i, run)| chosen[i].task(run))
+        .chain(
+            supervisor_order
+                .into_iter()
+                .map(|k| supervisor[k].task(supervisor_run)),
+        )
+        .collect();
+    // Each counter's tasks in the order they are done: its recounts, its other
+    // urgent stretch, then its walk (the sort is stable, so each walk keeps its order).
+    tasks.sort_by_key(|t| (t.run, t.rank()));
     let mut final_on = vec![false; input.bins.len()];
     for (i, t) in tasks.iter_mut().enumerate() {
         t.seq = i as u32 + 1;
-        final_on[t.bin as usize] = true;
+        if t.keep.is_none() {
+            final_on[t.bin as usize] = true;
+        }
     }
     let planned = due
         .iter()
@@ -490,6 +634,7 @@ mod tests {
                     detail: "x".into(),
                 })
                 .collect(),
+            recounts: Vec::new(),
             zone_time: HashMap::new(),
             capacity: Capacity { counters, minutes },
             fill: Fill::Capacity,
@@ -538,11 +683,119 @@ mod tests {
         );
     }
 
+    /// An open recount task `task` of bin `bin` that takes `seconds`.
+    fn recount(task: i64, bin: u32, seconds: i64, supervisor: bool) -> OpenRecount {
+        OpenRecount {
+            task,
+            bin,
+            class: Some(Class::B),
+            detail: format!("recount of S{bin} (result {task})"),
+            lines: 1,
+            seconds,
+            carried_from: None,
+            supervisor,
+        }
+    }
+
+    #[test]
+    fn open_recounts_lead_their_runs_and_stay_whatever_the_capacity() {
+        // Two counters of 3 minutes (360 s in all); two recounts of 150 s leave 60 s,
+        // too little for the negative balance of bin 5 (2 lines: 120 + 2 × 30 s).
+        let mut input = site(6, &[(4, TriggerKind::NegativeBalance)], 2, 3);
+        input.recounts = vec![recount(21, 5, 150, false), recount(20, 1, 150, false)];
+        let plan = build(&input);
+        let kept: Vec<(Option<i64>, u32)> = plan
+            .tasks
+            .iter()
+            .filter(|t| t.keep.is_some())
+            .map(|t| (t.keep, t.seq))
+            .collect();
+        assert_eq!(kept.len(), 2, "{:?}", plan.tasks);
+        for t in &plan.tasks {
+            assert_eq!(
+                t.keep.is_some(),
+                t.reason == Reason::Triggered(TriggerKind::Recount)
+            );
+        }
+        assert!(
+            plan.tasks.iter().all(|t| t.keep.is_some()),
+            "nothing else fits: {:?}",
+            plan.tasks
+        );
+        assert!(
+            plan.warnings.iter().any(|w| w.contains("A-01-05-1")),
+            "the negative balance left off is named: {:?}",
+            plan.warnings
+        );
+        // With one 2-minute counter the recounts are over its time: both stay, with a warning.
+        let mut input = site(6, &[], 1, 2);
+        input.recounts = vec![recount(20, 1, 150, false), recount(21, 5, 150, false)];
+        let plan = build(&input);
+        assert_eq!(plan.tasks.len(), 2, "{:?}", plan.tasks);
+        assert!(
+            plan.warnings
+                .iter()
+                .any(|w| w.contains("open recounts alone")),
+            "{:?}",
+            plan.warnings
+        );
+    }
+
+    #[test]
+    fn a_bin_with_a_recount_keeps_its_own_trigger_and_the_recount_goes_first() {
+        let mut input = site(3, &[(1, TriggerKind::ShortPick)], 1, 60);
+        input.recounts = vec![recount(7, 1, 150, false)];
+        let plan = build(&input);
+        let first = &plan.tasks[0];
+        assert_eq!((first.keep, first.bin, first.seq), (Some(7), 1, 1));
+        assert_eq!(first.detail, "recount of S1 (result 7)");
+        let second = &plan.tasks[1];
+        assert_eq!(
+            (second.keep, second.bin, second.reason),
+            (None, 1, Reason::Triggered(TriggerKind::ShortPick))
+        );
+    }
+
+    #[test]
+    fn a_carried_recount_says_where_from_once_and_supervisor_counts_wait_apart() {
+        let mut r = recount(7, 0, 150, false);
+        r.carried_from = NaiveDate::from_ymd_opt(2026, 2, 27);
+        assert_eq!(
+            r.shown_detail(),
+            "recount of S0 (result 7); carried from 2026-02-27"
+        );
+        r.detail = r.shown_detail();
+        r.carried_from = NaiveDate::from_ymd_opt(2026, 2, 28);
+        assert_eq!(
+            r.shown_detail(),
+            "recount of S0 (result 7); carried from 2026-02-27",
+            "carried twice, it keeps the first day"
+        );
+
+        let mut input = site(4, &[], 2, 60);
+        input.recounts = vec![recount(8, 2, 150, true), recount(9, 3, 150, false)];
+        let plan = build(&input);
+        assert_eq!(plan.runs(), 3);
+        let sup: Vec<&Task> = plan.tasks.iter().filter(|t| t.run == 3).collect();
+        assert_eq!(sup.len(), 1, "{:?}", plan.tasks);
+        assert_eq!((sup[0].keep, sup[0].bin), (Some(8), 2));
+        assert_eq!(plan.tasks.last().map(|t| t.keep), Some(Some(8)));
+        assert!(
+            plan.warnings
+                .iter()
+                .any(|w| w.contains("supervisor count of A-01-03-1") && w.contains("run 3")),
+            "{:?}",
+            plan.warnings
+        );
+        assert_eq!(plan.run_seconds().len(), 3);
+    }
+
     proptest! {
         #[test]
         fn triggered_tasks_lead_every_run_and_none_vanishes_without_a_warning(
             n in 1usize..60,
             raw in prop::collection::vec((0u32..60, 0usize..4), 0..30),
+            recs in prop::collection::vec((0u32..60, 0i64..400, any::<bool>()), 0..6),
             counters in 1u32..5,
             minutes in 1u32..30,
             level in any::<bool>(),
@@ -553,28 +806,47 @@ mod tests {
                 .collect();
             let mut input = site(n, &trig, counters, minutes);
             if level { input.fill = Fill::Level; }
+            input.recounts = recs
+                .iter()
+                .enumerate()
+                .map(|(i, &(b, s, sup))| recount(100 + i as i64, b % n as u32, s, sup))
+                .collect();
             let plan = build(&input);
-            // Every bin at most once, within capacity, runs within one counter's minutes.
-            let mut bins: Vec<u32> = plan.tasks.iter().map(|t| t.bin).collect();
+            // Every open recount is on the list once, as itself: supervisor counts in the
+            // run after the counters', the others in the counters' runs.
+            for r in &input.recounts {
+                let on: Vec<&Task> = plan.tasks.iter().filter(|t| t.keep == Some(r.task)).collect();
+                prop_assert_eq!(on.len(), 1);
+                prop_assert_eq!(on[0].bin, r.bin);
+                prop_assert_eq!(on[0].run == counters + 1, r.supervisor);
+            }
+            prop_assert!(plan.tasks.iter().filter(|t| t.run > counters).all(|t| t.keep.is_some()));
+            // Every other bin at most once, runs within one counter's minutes unless the
+            // recounts alone are over (then they are all that is left, and it is said).
+            let mut bins: Vec<u32> = plan.tasks.iter().filter(|t| t.keep.is_none()).map(|t| t.bin).collect();
             bins.sort_unstable();
             let len = bins.len();
             bins.dedup();
             prop_assert_eq!(bins.len(), len);
-            prop_assert!(plan.run_seconds().iter().all(|&s| s <= input.capacity.per_counter_s()));
-            // In each run, no due task comes before a triggered one.
-            for run in 1..=counters {
-                let reasons: Vec<bool> = plan.tasks.iter().filter(|t| t.run == run).map(|t| t.reason.is_triggered()).collect();
-                prop_assert!(reasons.windows(2).all(|w| w[0] || !w[1]), "run {run}: {reasons:?}");
+            let over = plan.run_seconds().iter().take(counters as usize).any(|&s| s > input.capacity.per_counter_s());
+            if over {
+                prop_assert!(plan.warnings.iter().any(|w| w.contains("open recounts alone")));
+                prop_assert!(plan.tasks.iter().all(|t| t.keep.is_some()));
             }
-            // A due task is on the list only if every triggered bin is on it too.
-            let triggered_off: Vec<u32> = trig.iter().map(|t| t.0).filter(|b| !plan.tasks.iter().any(|t| t.bin == *b)).collect();
+            // In each run, recounts first, then other triggered tasks, then due ones.
+            for run in 1..=plan.runs() {
+                let ranks: Vec<u8> = plan.tasks.iter().filter(|t| t.run == run).map(Task::rank).collect();
+                prop_assert!(ranks.windows(2).all(|w| w[0] <= w[1]), "run {run}: {ranks:?}");
+            }
+            // A triggered bin left off is named in a warning.
+            let triggered_off: Vec<u32> = trig.iter().map(|t| t.0).filter(|b| !plan.tasks.iter().any(|t| t.bin == *b && t.keep.is_none())).collect();
             for b in &triggered_off {
                 let code = &input.bins[*b as usize].code;
                 prop_assert!(plan.warnings.iter().any(|w| w.contains(code.as_str())), "bin {code} dropped silently");
             }
             // Each pass is walked in order and cut into contiguous runs.
-            for pass in [true, false] {
-                let seq: Vec<&Task> = plan.tasks.iter().filter(|t| t.reason.is_triggered() == pass).collect();
+            for pass in 0..3u8 {
+                let seq: Vec<&Task> = plan.tasks.iter().filter(|t| t.rank() == pass && t.run <= counters).collect();
                 let places: Vec<Place> = seq.iter().map(|t| input.bins[t.bin as usize].place).collect();
                 prop_assert_eq!(walk_order(&places), (0..places.len()).collect::<Vec<_>>());
                 prop_assert!(seq.windows(2).all(|w| w[0].run <= w[1].run));

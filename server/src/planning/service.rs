@@ -85,7 +85,7 @@ pub async fn save_plan(
     let day = plan.day;
     let list = NewCountList {
         day,
-        counters: plan.capacity.counters,
+        counters: plan.runs(),
         minutes: plan.capacity.minutes,
         level_s: plan.level_s,
         warnings: plan.warnings.clone(),
@@ -103,6 +103,7 @@ pub async fn save_plan(
                 detail: t.detail.clone(),
                 lines: t.lines,
                 est_s: t.seconds,
+                recount_task: t.keep,
             })
             .collect(),
     };
@@ -164,7 +165,7 @@ pub fn view(input: &PlanInput, plan: &Plan) -> ListView {
         day: plan.day,
         stored: false,
         version: 0,
-        counters: plan.capacity.counters,
+        counters: plan.runs(),
         minutes: plan.capacity.minutes,
         level_s: plan.level_s,
         watermark: input.watermark,

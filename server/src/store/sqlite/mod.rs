@@ -9,6 +9,7 @@ pub mod migrate;
 pub mod netting;
 pub mod planning;
 pub mod pool;
+pub mod recount_tasks;
 pub mod review;
 pub mod sync;
 

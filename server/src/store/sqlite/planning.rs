@@ -15,10 +15,11 @@ use crate::planning::{AbcSummary, ClassChange, NewCountList};
 use crate::planning::{ListView, Settings, Summary, TaskView, TriggerKind};
 use crate::store::StoreError;
 use crate::store::sqlite::ledger::watermark;
+use crate::store::sqlite::recount_tasks::{self, Placing};
 use crate::time::Timestamp;
 use chrono::NaiveDate;
 use rusqlite::{Connection, OptionalExtension, Transaction, params};
-use std::collections::HashMap;
+use std::collections::{HashMap, HashSet};
 
 /// Milliseconds in a day.
 const DAY_MS: i64 = 86_400_000;
@@ -568,6 +569,7 @@ pub fn plan_input(
         bins,
         items,
         triggers,
+        recounts: recount_tasks::open_recounts(conn, site, day, &index)?,
         zone_time: HashMap::new(),
         capacity,
         fill,
@@ -581,55 +583,77 @@ pub fn plan_input(
 }
 
 /// Stores a day's list; an existing one is replaced only when asked and not yet started.
+/// Its open recounts are not deleted: the plan placed each again (`recount_task`), and
+/// recounts the plan carries from earlier lists move here, noted on the list they left.
 pub fn save_count_list(
     tx: &Transaction,
     site: SiteId,
     list: &NewCountList,
 ) -> Result<i64, StoreError> {
     let day = day_text(list.day);
-    let existing: Option<(i64, i64)> = tx
-        .prepare_cached("select id, version from count_list where site_id = ?1 and day = ?2")?
-        .query_row(params![site.0, day], |r| Ok((r.get(0)?, r.get(1)?)))
+    let existing: Option<i64> = tx
+        .prepare_cached("select id from count_list where site_id = ?1 and day = ?2")?
+        .query_row(params![site.0, day], |r| r.get(0))
         .optional()?;
-    let mut version = 1;
-    if let Some((id, v)) = existing {
-        if !list.replace {
-            return Err(StoreError::Conflict(format!(
-                "a count list for {day} already exists: ask to replace it"
-            )));
-        }
-        let started: bool = tx
-            .prepare_cached(
-                "select 1 from count_task where list_id = ?1 and status <> 'open' limit 1",
-            )?
-            .exists([id])?;
-        if started {
-            return Err(StoreError::Conflict(format!(
-                "the count list for {day} has started: move its tasks instead of rebuilding it"
-            )));
-        }
-        tx.execute("delete from count_task where list_id = ?1", [id])?;
-        tx.execute("delete from count_run where list_id = ?1", [id])?;
-        tx.execute("delete from count_list where id = ?1", [id])?;
-        version = v + 1;
-    }
     let warnings = serde_json::to_string(&list.warnings).map_err(anyhow::Error::from)?;
-    tx.prepare_cached(
-        "insert into count_list (site_id, day, counters, minutes, level_s, warnings, built_at, watermark, version)
-         values (?1, ?2, ?3, ?4, ?5, ?6, ?7, ?8, ?9)",
-    )?
-    .execute(params![
-        site.0,
-        day,
-        list.counters,
-        list.minutes,
-        list.level_s,
-        warnings,
-        Timestamp::now().0,
-        list.watermark,
-        version
-    ])?;
-    let id = tx.last_insert_rowid();
+    let id = match existing {
+        Some(id) => {
+            if !list.replace {
+                return Err(StoreError::Conflict(format!(
+                    "a count list for {day} already exists: ask to replace it"
+                )));
+            }
+            let started: bool = tx
+                .prepare_cached(
+                    "select 1 from count_task where list_id = ?1 and status <> 'open' limit 1",
+                )?
+                .exists([id])?;
+            if started {
+                return Err(StoreError::Conflict(format!(
+                    "the count list for {day} has started: move its tasks instead of rebuilding it"
+                )));
+            }
+            // The list keeps its row (and so its recounts): its version goes up.
+            tx.execute(
+                "delete from count_task where list_id = ?1 and recount_of is null",
+                [id],
+            )?;
+            tx.execute("delete from count_run where list_id = ?1", [id])?;
+            tx.prepare_cached(
+                "update count_list set counters = ?2, minutes = ?3, level_s = ?4, warnings = ?5,
+                     built_at = ?6, watermark = ?7, version = version + 1
+                 where id = ?1",
+            )?
+            .execute(params![
+                id,
+                list.counters,
+                list.minutes,
+                list.level_s,
+                warnings,
+                Timestamp::now().0,
+                list.watermark
+            ])?;
+            id
+        }
+        None => {
+            tx.prepare_cached(
+                "insert into count_list (site_id, day, counters, minutes, level_s, warnings,
+                     built_at, watermark, version)
+                 values (?1, ?2, ?3, ?4, ?5, ?6, ?7, ?8, 1)",
+            )?
+            .execute(params![
+                site.0,
+                day,
+                list.counters,
+                list.minutes,
+                list.level_s,
+                warnings,
+                Timestamp::now().0,
+                list.watermark
+            ])?;
+            tx.last_insert_rowid()
+        }
+    };
     let mut run = tx.prepare_cached("insert into count_run (list_id, run) values (?1, ?2)")?;
     for r in 1..=list.counters {
         run.execute(params![id, r])?;
@@ -638,7 +662,22 @@ pub fn save_count_list(
         "insert into count_task (list_id, bin_id, seq, run, reason, class, detail, lines, est_s)
          values (?1, ?2, ?3, ?4, ?5, ?6, ?7, ?8, ?9)",
     )?;
+    let mut kept = HashSet::new();
+    let mut carried = Vec::new();
     for t in &list.tasks {
+        if let Some(task) = t.recount_task {
+            let placing = Placing {
+                task,
+                seq: t.seq,
+                run: t.run,
+                detail: &t.detail,
+            };
+            carried.extend(recount_tasks::keep_recount(
+                tx, site, id, list.day, &placing,
+            )?);
+            kept.insert(task);
+            continue;
+        }
         ins.execute(params![
             id,
             t.bin_id,
@@ -651,6 +690,8 @@ pub fn save_count_list(
             t.est_s
         ])?;
     }
+    recount_tasks::refuse_unplaced(tx, id, &kept)?;
+    recount_tasks::note_carried(tx, &carried, list.day)?;
     Ok(id)
 }
 
@@ -769,6 +810,17 @@ pub fn move_task(
             "task {task} is done and cannot move"
         )));
     }
+    let holder: String = tx
+        .prepare_cached("select holder from count_run where list_id = ?1 and run = ?2")?
+        .query_row(params![list, run], |r| r.get(0))
+        .optional()?
+        .unwrap_or_default();
+    if recount_tasks::would_recount_own_count(tx, task, &holder)? {
+        return Err(StoreError::Conflict(format!(
+            "task {task} is a recount of a bin {holder} counted, and run {run} is {holder}'s: \
+             a recount goes to someone else"
+        )));
+    }
     tx.prepare_cached("update count_task set run = ?1 where id = ?2")?
         .execute(params![run, task])?;
     bump(tx, list)?;
@@ -787,6 +839,12 @@ pub fn hold_run(
     if run == 0 || run > counters {
         return Err(StoreError::NotFound(format!(
             "the list for {day} has runs 1 to {counters}"
+        )));
+    }
+    if let Some(bin) = recount_tasks::recount_counted_by(tx, list, run, holder)? {
+        return Err(StoreError::Conflict(format!(
+            "run {run} holds the recount of bin {bin}, which {holder} counted: a recount goes \
+             to someone else, so give {holder} another run or move the recount first"
         )));
     }
     tx.prepare_cached("update count_run set holder = ?1 where list_id = ?2 and run = ?3")?

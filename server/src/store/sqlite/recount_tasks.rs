@@ -1,0 +1,246 @@
+//! SQL for the recount tasks a day's list keeps. Netting adds a recount (or a
+//! supervisor count) as a task whose `recount_of` names the result it re-checks;
+//! netting later finds the recount's outcome through that task (task → pass done
+//! against it → `recount_of` → first result). So a list never deletes or copies
+//! such a task: rebuilding a list keeps its open recounts, and building a later
+//! day's list moves the open recounts of earlier lists onto it, the same rows with
+//! the same ids. The task's run must never be held by someone who counted the key
+//! already.
+
+use crate::master::SiteId;
+use crate::planning::abc::Class;
+use crate::planning::plan::OpenRecount;
+use crate::store::StoreError;
+use chrono::NaiveDate;
+use rusqlite::{Connection, OptionalExtension, Transaction, params};
+use std::collections::{BTreeMap, HashMap, HashSet};
+
+/// Reads the recount and supervisor-count tasks not counted yet (no pass marked done
+/// against them) on the site's lists of `day` and every earlier day, oldest first.
+/// `bins` maps a bin's id to its index in the plan's bins.
+pub fn open_recounts(
+    conn: &Connection,
+    site: SiteId,
+    day: NaiveDate,
+    bins: &HashMap<i64, u32>,
+) -> Result<Vec<OpenRecount>, StoreError> {
+    // The few tasks that re-check a result come first (the non-null range of
+    // count_task_recount, named so the planner does not walk every task in id order),
+    // then their lists. A supervisor count is the second task sent for a key of a pass
+    // (netting sends one only after a recount).
+    let mut q = conn.prepare_cached(
+        "select t.id, t.bin_id, t.class, t.detail, t.lines, t.est_s, l.day,
+                exists (select 1 from count_result r cross join count_result r2
+                            cross join count_task t2
+                        where r.id = t.recount_of and r2.pass_id = r.pass_id
+                          and r2.item_id = r.item_id and r2.lot = r.lot
+                          and t2.recount_of = r2.id and t2.id < t.id)
+         from count_task t indexed by count_task_recount cross join count_list l
+         where t.recount_of is not null and l.id = t.list_id and l.site_id = ?1 and l.day <= ?2
+           and t.status <> 'done'
+           and not exists (select 1 from count_pass p
+                           where p.task_id = t.id and p.done_at is not null)
+         order by t.id",
+    )?;
+    let day_text = day.format("%Y-%m-%d").to_string();
+    let mut rows = q.query(params![site.0, day_text])?;
+    let mut out = Vec::new();
+    while let Some(r) = rows.next()? {
+        let (task, bin_id): (i64, i64) = (r.get(0)?, r.get(1)?);
+        let bin = *bins.get(&bin_id).ok_or_else(|| {
+            anyhow::anyhow!("recount task {task} names bin {bin_id} of another site")
+        })?;
+        let class: Option<String> = r.get(2)?;
+        let from: String = r.get(6)?;
+        let from = NaiveDate::parse_from_str(&from, "%Y-%m-%d")
+            .map_err(|e| anyhow::anyhow!("a count list has the day '{from}': {e}"))?;
+        out.push(OpenRecount {
+            task,
+            bin,
+            class: class.as_deref().and_then(Class::parse),
+            detail: r.get(3)?,
+            lines: r.get(4)?,
+            seconds: r.get(5)?,
+            carried_from: (from < day).then_some(from),
+            supervisor: r.get(7)?,
+        });
+    }
+    Ok(out)
+}
+
+/// A recount moved from an earlier day's list.
+pub struct Carried {
+    from_list: i64,
+    bin: String,
+    task: i64,
+}
+
+/// Where a kept recount goes in the list being saved.
+pub struct Placing<'a> {
+    pub task: i64,
+    pub seq: u32,
+    pub run: u32,
+    pub detail: &'a str,
+}
+
+/// Puts a stored recount task in its place on list `list` (of `day`), from wherever it
+/// is: the same row, so what netting links to it stays. Refused when it was counted
+/// since the plan was read. Returns where it came from when that was another list.
+pub fn keep_recount(
+    tx: &Transaction,
+    site: SiteId,
+    list: i64,
+    day: NaiveDate,
+    p: &Placing,
+) -> Result<Option<Carried>, StoreError> {
+    let row: Option<(i64, String, String, String, bool)> = tx
+        .prepare_cached(
+            "select t.list_id, l.day, t.status, b.code,
+                    exists (select 1 from count_pass p
+                            where p.task_id = t.id and p.done_at is not null)
+             from count_task t join count_list l on l.id = t.list_id join bin b on b.id = t.bin_id
+             where t.id = ?1 and l.site_id = ?2 and t.recount_of is not null",
+        )?
+        .query_row(params![p.task, site.0], |r| {
+            Ok((r.get(0)?, r.get(1)?, r.get(2)?, r.get(3)?, r.get(4)?))
+        })
+        .optional()?;
+    let Some((from, from_day, status, bin, counted)) = row else {
+        return Err(StoreError::Conflict(format!(
+            "task {} is not a recount of this site: build the list again",
+            p.task
+        )));
+    };
+    if status == "done" || counted || from_day > day.format("%Y-%m-%d").to_string() {
+        return Err(StoreError::Conflict(format!(
+            "the recount of bin {bin} (task {}) was counted while the list was built: \
+             build the list again",
+            p.task
+        )));
+    }
+    // A task a phone opened on an earlier day and never finished starts afresh here.
+    tx.prepare_cached(
+        "update count_task set list_id = ?2, seq = ?3, run = ?4, status = 'open', detail = ?5
+         where id = ?1",
+    )?
+    .execute(params![p.task, list, p.seq, p.run, p.detail])?;
+    Ok((from != list).then_some(Carried {
+        from_list: from,
+        bin,
+        task: p.task,
+    }))
+}
+
+/// Refuses a save that would leave a recount of list `list` without a place: one
+/// netting added after the plan was read.
+pub fn refuse_unplaced(tx: &Transaction, list: i64, kept: &HashSet<i64>) -> Result<(), StoreError> {
+    let mut q = tx.prepare_cached(
+        "select t.id, b.code from count_task t join bin b on b.id = t.bin_id
+         where t.list_id = ?1 and t.recount_of is not null",
+    )?;
+    let rows = q
+        .query_map([list], |r| {
+            Ok((r.get::<_, i64>(0)?, r.get::<_, String>(1)?))
+        })?
+        .collect::<rusqlite::Result<Vec<_>>>()?;
+    match rows.into_iter().find(|(id, _)| !kept.contains(id)) {
+        Some((task, bin)) => Err(StoreError::Conflict(format!(
+            "a recount of bin {bin} (task {task}) reached this list while it was built: \
+             build the list again"
+        ))),
+        None => Ok(()),
+    }
+}
+
+/// Says on each earlier list which of its recounts moved to the list of `to`, and
+/// raises its version so a phone holding it fetches it again.
+pub fn note_carried(
+    tx: &Transaction,
+    carried: &[Carried],
+    to: NaiveDate,
+) -> Result<(), StoreError> {
+    let mut by_list: BTreeMap<i64, Vec<&Carried>> = BTreeMap::new();
+    for c in carried {
+        by_list.entry(c.from_list).or_default().push(c);
+    }
+    for (list, moved) in by_list {
+        let text: String = tx
+            .prepare_cached("select warnings from count_list where id = ?1")?
+            .query_row([list], |r| r.get(0))?;
+        let mut warnings: Vec<String> = serde_json::from_str(&text).unwrap_or_default();
+        warnings.extend(moved.iter().map(|c| {
+            format!(
+                "the recount of bin {} (task {}) was not counted on this day: carried to the list of {to}",
+                c.bin, c.task
+            )
+        }));
+        let text = serde_json::to_string(&warnings).map_err(anyhow::Error::from)?;
+        tx.prepare_cached(
+            "update count_list set warnings = ?2, version = version + 1 where id = ?1",
+        )?
+        .execute(params![list, text])?;
+    }
+    Ok(())
+}
+
+/// Says whether `holder` counted already the key a recount task re-checks: they made
+/// the first count, or a recount of it (a supervisor count follows a recount). `None`
+/// when the task re-checks nothing.
+fn counted_before(conn: &Connection, task: i64, holder: &str) -> Result<Option<bool>, StoreError> {
+    Ok(conn
+        .prepare_cached(
+            "select exists (select 1 from count_pass p cross join user_account u
+                            where p.id = r.pass_id and u.id = p.user_id and u.name = ?2)
+                 or exists (select 1 from count_result r2 cross join count_task t2
+                                cross join count_pass p2 cross join user_account u2
+                            where r2.pass_id = r.pass_id and r2.item_id = r.item_id
+                              and r2.lot = r.lot and t2.recount_of = r2.id and t2.id <> t.id
+                              and p2.task_id = t2.id and p2.done_at is not null
+                              and u2.id = p2.user_id and u2.name = ?2)
+             from count_task t cross join count_result r
+             where t.id = ?1 and r.id = t.recount_of",
+        )?
+        .query_row(params![task, holder], |r| r.get(0))
+        .optional()?)
+}
+
+/// Returns the bin of the first open recount in run `run` of list `list` whose key
+/// `holder` counted already, if any.
+pub fn recount_counted_by(
+    conn: &Connection,
+    list: i64,
+    run: u32,
+    holder: &str,
+) -> Result<Option<String>, StoreError> {
+    if holder.is_empty() {
+        return Ok(None);
+    }
+    let tasks = conn
+        .prepare_cached(
+            "select t.id, b.code from count_task t join bin b on b.id = t.bin_id
+             where t.list_id = ?1 and t.run = ?2 and t.recount_of is not null
+               and t.status <> 'done'
+             order by t.seq",
+        )?
+        .query_map(params![list, run], |r| Ok((r.get(0)?, r.get(1)?)))?
+        .collect::<rusqlite::Result<Vec<(i64, String)>>>()?;
+    for (task, bin) in tasks {
+        if counted_before(conn, task, holder)? == Some(true) {
+            return Ok(Some(bin));
+        }
+    }
+    Ok(None)
+}
+
+/// Says whether moving task `task` into a run held by `holder` would give a recount
+/// to someone who counted its key already.
+pub fn would_recount_own_count(
+    conn: &Connection,
+    task: i64,
+    holder: &str,
+) -> Result<bool, StoreError> {
+    if holder.is_empty() {
+        return Ok(false);
+    }
+    Ok(counted_before(conn, task, holder)? == Some(true))
+}
