@@ -288,6 +288,8 @@ async fn the_probes_answer_and_metrics_count_requests_sync_events_and_database_t
     assert!(d("cairn_sync_events_total{result=\"rejected\"}") >= 1.0);
     assert!(d("cairn_sync_batch_events_count") >= 1.0);
     assert!(d("cairn_db_write_seconds_count") >= 1.0);
+    // The sync was committed as a group (of one, here).
+    assert!(d("cairn_db_write_group_size_count") >= 1.0);
     assert!(d("cairn_db_read_seconds_count") >= 1.0);
     assert!(
         d(

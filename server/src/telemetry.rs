@@ -19,6 +19,8 @@ const LATENCY_BUCKETS_S: [f64; 12] = [
 ];
 /// Upper bounds of the batch-size buckets (events per sync request, at most 500).
 const BATCH_BUCKETS: [f64; 9] = [1.0, 5.0, 10.0, 25.0, 50.0, 100.0, 200.0, 300.0, 500.0];
+/// Upper bounds of the group-commit buckets (shared writes per commit, at most 32).
+const GROUP_BUCKETS: [f64; 6] = [1.0, 2.0, 4.0, 8.0, 16.0, 32.0];
 /// Distinct (method, route, status) series kept; more fall into one "other" series,
 /// so a scan of random paths cannot grow the map without bound.
 const MAX_REQUEST_SERIES: usize = 512;
@@ -101,6 +103,7 @@ pub struct Metrics {
     pub netting_runs: AtomicU64,
     pub db_write_seconds: Histogram,
     pub db_write_wait_seconds: Histogram,
+    pub db_write_group_size: Histogram,
     pub db_read_seconds: Histogram,
 }
 
@@ -115,6 +118,7 @@ static METRICS: std::sync::LazyLock<Metrics> = std::sync::LazyLock::new(|| Metri
     netting_runs: AtomicU64::new(0),
     db_write_seconds: Histogram::new(&LATENCY_BUCKETS_S),
     db_write_wait_seconds: Histogram::new(&LATENCY_BUCKETS_S),
+    db_write_group_size: Histogram::new(&GROUP_BUCKETS),
     db_read_seconds: Histogram::new(&LATENCY_BUCKETS_S),
 });
 
@@ -222,6 +226,12 @@ impl Metrics {
             "cairn_db_write_wait_seconds",
             "Time a write waits in the writer's queue.",
             &self.db_write_wait_seconds,
+        );
+        histogram(
+            &mut out,
+            "cairn_db_write_group_size",
+            "Phone syncs committed together in one transaction (group commit).",
+            &self.db_write_group_size,
         );
         histogram(
             &mut out,

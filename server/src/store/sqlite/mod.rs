@@ -134,6 +134,17 @@ impl SqliteStore {
             })
             .await
     }
+
+    /// Runs `f` in a write transaction it may share with other such writes queued at
+    /// the same moment (one commit for the group); `f`'s own changes are undone if it
+    /// fails. Answers only after the commit.
+    pub async fn write_shared<R, F>(&self, f: F) -> Result<R, StoreError>
+    where
+        R: Send + 'static,
+        F: FnOnce(&rusqlite::Transaction<'_>) -> Result<R, StoreError> + Send + 'static,
+    {
+        self.writer.run_shared(f).await
+    }
 }
 
 /// Writes a batch's audit event in the batch's own transaction, with the counts
@@ -432,10 +443,11 @@ impl Store for SqliteStore {
         &self,
         batch: crate::sync::SyncBatch,
     ) -> Result<Vec<cairn_scan::wire::EventResult>, StoreError> {
-        // Netting runs in the request's own transaction: the acknowledgement the phone
-        // deletes its copy on and the results of the passes it finished commit together.
+        // Netting runs in the request's own transaction (a savepoint of a group commit
+        // when several phones sync at once): the acknowledgement the phone deletes its
+        // copy on and the results of the passes it finished commit together.
         let (results, netted) = self
-            .write_tx(move |tx| {
+            .write_shared(move |tx| {
                 let results = sync::apply_sync(tx, &batch)?;
                 let netted = netting::after_sync(tx, &batch, &results, Timestamp::now())?;
                 Ok((results, netted.written.len() as u64))
