@@ -3,7 +3,8 @@
 //!   rusqlite ceiling (plain batched INSERTs into the same schema), FULL and NORMAL;
 //! - point-in-time balance look-ups over a 2,000,000-movement ledger for a typical
 //!   key and for a busy key with 10,000 movements (with and without snapshots);
-//! - peak memory of `cairn serve` on that ledger.
+//! - peak memory of `cairn serve` on that ledger;
+//! - time to back up and to restore that ledger's database (`cairn backup` / `restore`).
 //!
 //! Run: `cargo bench -p cairn-server --bench ledger`. Sizes can be lowered with
 //! CAIRN_BENCH_INGEST (movements, default 200000) and CAIRN_BENCH_LEDGER
@@ -557,5 +558,39 @@ fn lookup_table(dir: &Path, ledger: usize) {
         "## `cairn serve` on that ledger: peak RSS {:.1} MiB (RSS at end {:.1} MiB)",
         hwm as f64 / 1024.0,
         rss as f64 / 1024.0
+    );
+    backup_table(dir, &path);
+}
+
+/// Times `cairn backup` and `cairn restore` of the ledger database: each copies every
+/// page, then checks the copy (integrity check, schema, every balance against its
+/// movements), as the commands do.
+fn backup_table(dir: &Path, db: &Path) {
+    let copy = dir.join("ledger-backup.db");
+    let t = Instant::now();
+    let b = cairn::backup::backup(db, &copy, None).unwrap();
+    let backup_s = t.elapsed().as_secs_f64();
+    let restored = dir.join("restored.db");
+    let t = Instant::now();
+    let r = cairn::backup::restore(&copy, &restored, false).unwrap();
+    let restore_s = t.elapsed().as_secs_f64();
+    assert_eq!(b.summary.movements, r.summary.movements);
+    println!();
+    println!(
+        "## Backup and restore of that ledger ({} movements, {:.0} MiB)",
+        b.summary.movements,
+        b.bytes as f64 / (1024.0 * 1024.0)
+    );
+    println!("| command | total | copy | check of the copy |");
+    println!("|---|---|---|---|");
+    println!(
+        "| backup | {backup_s:.1} s | {:.1} s | {:.1} s |",
+        b.copy.as_secs_f64(),
+        b.check.as_secs_f64()
+    );
+    println!(
+        "| restore | {restore_s:.1} s | {:.1} s (incl. checking the backup first) | {:.1} s |",
+        r.copy.as_secs_f64(),
+        r.check.as_secs_f64()
     );
 }
