@@ -494,13 +494,17 @@ pub fn net_pass(
     {
         keys.insert(row?);
     }
+    // Keys with a current result: only these have a result to compare with.
+    let mut netted: BTreeSet<ItemLot> = BTreeSet::new();
     for row in tx
         .prepare_cached(
             "select item_id, lot from count_result where pass_id = ?1 and superseded_by is null",
         )?
         .query_map([pass.id], |r| Ok((r.get(0)?, r.get(1)?)))?
     {
-        keys.insert(row?);
+        let key = row?;
+        keys.insert(key.clone());
+        netted.insert(key);
     }
     let target = match pass.recount_of {
         Some(r) => tx
@@ -550,7 +554,11 @@ pub fn net_pass(
             balance_before: ledger::balance_as_of(tx, &ledger_key, history_from.0 - 1)?,
             moves: key_moves(tx, &ledger_key, history_from.0, history_to.0)?,
         };
-        let current = current_result(tx, pass.id, &key)?;
+        let current = if netted.contains(&key) {
+            current_result(tx, pass.id, &key)?
+        } else {
+            None
+        };
         let is_target = target.as_ref().is_some_and(|(k, _)| *k == key);
         let (fresh, vanished_row) =
             match service::net_one(&pass.timing, &facts, &sources, &settings) {
