@@ -786,14 +786,23 @@ async fn serve(state: AppState, listen: SocketAddr, demo: bool) -> anyhow::Resul
 /// How often `cairn serve` marks results whose settling instant has passed.
 const SETTLE_EVERY: std::time::Duration = std::time::Duration::from_secs(60);
 
-/// Marks settled results once a minute; reads already treat a passed settling instant
-/// as settled, so this only keeps the stored flag (and its index) current.
+/// Marks settled results once a minute and posts the automatic count adjustments then due
+/// (sites that allow them). Reads already treat a passed settling instant as settled; the
+/// stored flag keeps its index current, and a result is adjusted automatically at most a
+/// minute after it settles.
 async fn settle_results(store: std::sync::Arc<dyn Store>) {
     let mut tick = tokio::time::interval(SETTLE_EVERY);
     loop {
         tick.tick().await;
-        if let Err(e) = store.settle_results(crate::time::Timestamp::now()).await {
-            tracing::warn!("marking settled count results failed: {e}");
+        match store.settle_results(crate::time::Timestamp::now()).await {
+            Ok(o) if !o.adjusted.is_empty() => {
+                tracing::info!(
+                    "posted {} automatic count adjustments within tolerance",
+                    o.adjusted.len()
+                );
+            }
+            Ok(_) => {}
+            Err(e) => tracing::warn!("settling count results failed: {e}"),
         }
     }
 }

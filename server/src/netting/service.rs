@@ -401,6 +401,27 @@ pub fn differs(stored: &Evidence, fresh: &Evidence) -> bool {
     strip(key(stored)) != strip(key(fresh))
 }
 
+/// Says whether a result is adjusted without a review (DESIGN §5), given that the store
+/// found it current, settled, unreviewed, not a recount's and not waiting for one, and
+/// its site allowing it: the variance is not 0 and within its class's tolerance, both as
+/// judged when it was netted and under the site's tolerance now (a tightened policy
+/// stops older results from passing on the old limits).
+pub fn adjusts_automatically(
+    settings: &NettingSettings,
+    class: Option<Class>,
+    unit_cost_minor: i64,
+    evidence: &Evidence,
+) -> bool {
+    let n = &evidence.netting;
+    let now = judge(
+        n.variance,
+        n.f_star,
+        unit_cost_minor,
+        &settings.tolerance_for(class),
+    );
+    settings.auto_adjust && n.variance != 0 && evidence.judged.is_hit() && now.is_hit()
+}
+
 /// Where a recount task goes in the day's list.
 #[derive(Debug, Clone, PartialEq, Eq)]
 pub enum Placement {
@@ -522,6 +543,58 @@ mod tests {
             place_recount(&runs, "ada", 3),
             Placement::Unassigned { run: 2, .. }
         ));
+    }
+
+    /// Nets a count of `counted` against a book of `book` with no moves, class `class`.
+    fn netted(counted: i64, book: i64, class: Option<Class>, settings: &NettingSettings) -> Netted {
+        let timing = CountTiming {
+            first_scan: Timestamp(10_000),
+            done: Some(Timestamp(20_000)),
+            clock_uncertainty_ms: 500,
+        };
+        let facts = KeyFacts {
+            item_id: 1,
+            sku: "S1".into(),
+            lot: String::new(),
+            class,
+            unit_cost_minor: 450,
+            count: KeyCount::Scanned {
+                qty: counted,
+                last: Timestamp(15_000),
+            },
+            balance_before: book,
+            moves: Vec::new(),
+        };
+        net_one(&timing, &facts, &Sources::default(), settings).expect("a scanned key nets")
+    }
+
+    #[test]
+    fn only_a_non_zero_variance_within_tolerance_is_adjusted_automatically_where_allowed() {
+        // Class C 5 % of f* (common practice, no source): 2 units of 40.
+        let on = NettingSettings {
+            auto_adjust: true,
+            ..NettingSettings::default()
+        };
+        let c = Some(Class::C);
+        let adjusts = |n: &Netted, s: &NettingSettings| {
+            adjusts_automatically(s, n.class, n.unit_cost_minor, &n.evidence)
+        };
+        assert!(adjusts(&netted(39, 40, c, &on), &on));
+        assert!(adjusts(&netted(42, 40, c, &on), &on));
+        assert!(
+            !adjusts(&netted(39, 40, c, &on), &NettingSettings::default()),
+            "switch off"
+        );
+        assert!(!adjusts(&netted(40, 40, c, &on), &on), "variance 0");
+        assert!(!adjusts(&netted(37, 40, c, &on), &on), "3 of 40 is out");
+        // Unclassified is held to class A's: exact.
+        assert!(!adjusts(&netted(39, 40, None, &on), &on));
+        // Judged a hit when netted, but the site's class C is exact now: not adjusted.
+        let mut tightened = on;
+        tightened.tolerances.c = Tolerance::EXACT;
+        let n = netted(39, 40, c, &on);
+        assert!(n.evidence.judged.is_hit());
+        assert!(!adjusts(&n, &tightened));
     }
 
     #[test]

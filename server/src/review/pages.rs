@@ -435,6 +435,16 @@ struct ReviewShown {
     movement: String,
 }
 
+/// An adjustment Cairn posted by itself, shown where a decision would be.
+struct AutoShown {
+    id: i64,
+    qty: String,
+    event_at: String,
+    posted_at: String,
+    movement: String,
+    reason: &'static str,
+}
+
 struct RecountShown {
     task: i64,
     status: String,
@@ -468,6 +478,7 @@ struct DetailPage {
     scans: Vec<(String, i64, i64, String)>,
     history: Vec<HistoryRow>,
     review: Option<ReviewShown>,
+    automatic: Option<AutoShown>,
     recounts: Vec<RecountShown>,
     /// The signed-in user may decide here (role, not yet decided, current).
     can_decide: bool,
@@ -575,8 +586,10 @@ async fn render_detail(
     let me = Me::of(p);
     let own_count = d.row.counter == p.user.name.as_str()
         || d.recounts.iter().any(|r| r.counter == p.user.name.as_str());
-    let can_decide =
-        p.holds_any(site.id, DECIDERS) && d.review.is_none() && d.superseded_by.is_none();
+    let can_decide = p.holds_any(site.id, DECIDERS)
+        && d.review.is_none()
+        && d.automatic.is_none()
+        && d.superseded_by.is_none();
     let page = render(&DetailPage {
         csrf: me.csrf.clone(),
         me: Some(me),
@@ -651,6 +664,14 @@ async fn render_detail(
             by: r.decided_by.clone(),
             at: when(r.decided_at),
             movement: r.movement.clone().unwrap_or_default(),
+        }),
+        automatic: d.automatic.as_ref().map(|a| AutoShown {
+            id: a.id,
+            qty: signed(a.qty),
+            event_at: when(a.event_at),
+            posted_at: when(a.posted_at),
+            movement: a.movement.clone(),
+            reason: super::AUTO_REASON,
         }),
         recounts: d
             .recounts

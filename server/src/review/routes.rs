@@ -1,6 +1,7 @@
-//! The host's feed of posted count adjustments: what the review approved, in
-//! ledger order, paged by the ledger's sequence number so a host that stores
-//! the last `next` it saw receives each adjustment exactly once.
+//! The host's feed of posted count adjustments: what the review approved and
+//! what was posted automatically within tolerance (`automatic`), in ledger
+//! order, paged by the ledger's sequence number so a host that stores the last
+//! `next` it saw receives each adjustment exactly once.
 
 use super::MAX_FEED_ROWS;
 use super::store::AdjustmentRow;
@@ -44,8 +45,9 @@ pub struct FeedPage {
     pub next: Option<String>,
 }
 
-/// The CSV columns, in order.
-pub const CSV_COLUMNS: [&str; 12] = [
+/// The CSV columns, in order (`automatic` last, so readers of the earlier columns by
+/// position are not disturbed; `review` is empty for an automatic adjustment).
+pub const CSV_COLUMNS: [&str; 13] = [
     "id",
     "seq",
     "bin",
@@ -58,6 +60,7 @@ pub const CSV_COLUMNS: [&str; 12] = [
     "reason_code",
     "approver",
     "approved_at",
+    "automatic",
 ];
 
 /// Writes a page of adjustments as CSV with a header line.
@@ -73,11 +76,12 @@ pub fn to_csv(rows: &[AdjustmentRow]) -> anyhow::Result<Vec<u8>> {
             r.lot.clone(),
             r.qty.to_string(),
             r.event_at.to_string(),
-            r.review.to_string(),
+            r.review.map(|v| v.to_string()).unwrap_or_default(),
             r.result.to_string(),
             r.reason_code.clone(),
             r.approver.clone(),
             r.approved_at.to_string(),
+            r.automatic.to_string(),
         ])?;
     }
     w.into_inner()

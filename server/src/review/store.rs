@@ -101,6 +101,20 @@ pub struct ReviewRow {
     pub movement: Option<String>,
 }
 
+/// The count adjustment Cairn posted for a result by itself (the site allows it and the
+/// result was a settled hit with a variance): no person reviewed it.
+#[derive(Debug, Clone, PartialEq, Eq, Serialize)]
+pub struct AutoAdjustment {
+    /// The stable id of the automatic posting.
+    pub id: i64,
+    pub result: i64,
+    /// The uid of the count-adjustment movement.
+    pub movement: String,
+    pub qty: i64,
+    pub event_at: Timestamp,
+    pub posted_at: Timestamp,
+}
+
 /// A recount of the key and what it found.
 #[derive(Debug, Clone, PartialEq, Eq, Serialize)]
 pub struct RecountRow {
@@ -132,6 +146,8 @@ pub struct DifferenceDetail {
     pub moves: Vec<WindowMove>,
     pub scans: Vec<ScanLine>,
     pub review: Option<ReviewRow>,
+    /// The adjustment posted automatically instead of a review, if one was.
+    pub automatic: Option<AutoAdjustment>,
     pub recounts: Vec<RecountRow>,
 }
 
@@ -168,11 +184,18 @@ pub struct AdjustmentRow {
     pub lot: String,
     pub qty: i64,
     pub event_at: Timestamp,
-    pub review: i64,
+    /// The approval's review; `None` for an automatic adjustment.
+    pub review: Option<i64>,
     pub result: i64,
+    /// The reviewer's reason code, or [`crate::review::AUTO_REASON_CODE`] for an
+    /// automatic adjustment.
     pub reason_code: String,
+    /// Who approved it; empty for an automatic adjustment.
     pub approver: String,
+    /// When it was approved, or posted automatically.
     pub approved_at: Timestamp,
+    /// Posted by Cairn within tolerance, without a review.
+    pub automatic: bool,
 }
 
 /// The review's storage operations.
@@ -210,7 +233,7 @@ pub trait ReviewStore: Send + Sync {
         site: SiteId,
         decision: NewDecision,
     ) -> Result<Result<Decided, Refusal>, StoreError>;
-    /// Lists posted count adjustments after ledger sequence `after`.
+    /// Lists posted count adjustments (approved and automatic) after ledger sequence `after`.
     async fn adjustments(
         &self,
         site: SiteId,

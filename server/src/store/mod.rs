@@ -369,6 +369,10 @@ pub trait Store: AccountStore + AccuracyStore + ReviewStore + Send + Sync + 'sta
         pass: Option<String>,
         reason: String,
     ) -> Result<crate::store::sqlite::netting::NetOutcome, StoreError>;
-    /// Marks results whose settling instant has passed as settled.
-    async fn settle_results(&self, now: Timestamp) -> Result<usize, StoreError>;
+    /// Marks results whose settling instant has passed as settled and posts the automatic
+    /// count adjustments then due, in one transaction.
+    async fn settle_results(
+        &self,
+        now: Timestamp,
+    ) -> Result<crate::store::sqlite::netting::SettleOutcome, StoreError>;
 }

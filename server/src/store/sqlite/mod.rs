@@ -3,6 +3,7 @@
 
 pub mod accounts;
 pub mod accuracy;
+pub mod auto_adjust;
 pub mod ledger;
 pub mod master;
 pub mod migrate;
@@ -492,8 +493,10 @@ impl Store for SqliteStore {
         site: SiteId,
         settings: crate::netting::service::NettingSettings,
     ) -> Result<(), StoreError> {
-        self.write_tx(move |tx| netting::put_netting_settings(tx, site, &settings))
-            .await
+        self.write_tx(move |tx| {
+            netting::put_netting_settings(tx, site, &settings, Timestamp::now())
+        })
+        .await
     }
 
     async fn source_timings(
@@ -602,8 +605,10 @@ impl Store for SqliteStore {
         .await
     }
 
-    async fn settle_results(&self, now: Timestamp) -> Result<usize, StoreError> {
-        self.write_tx(move |tx| netting::settle_due(tx, now)).await
+    async fn settle_results(&self, now: Timestamp) -> Result<netting::SettleOutcome, StoreError> {
+        let every = self.opts.snapshot_every;
+        self.write_tx(move |tx| netting::settle_due(tx, now, every))
+            .await
     }
 }
 

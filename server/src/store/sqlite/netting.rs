@@ -67,18 +67,29 @@ pub fn netting_settings(conn: &Connection, site: SiteId) -> Result<NettingSettin
     Ok(row.unwrap_or_default())
 }
 
-/// Stores a site's netting settings.
+/// Stores a site's netting settings. Switching automatic adjustment on records `now` as
+/// the instant from which received counts are adjusted; keeping it on keeps that instant.
 pub fn put_netting_settings(
     tx: &Transaction,
     site: SiteId,
     s: &NettingSettings,
+    now: Timestamp,
 ) -> Result<(), StoreError> {
     let (a, b, c) = (s.tolerances.a, s.tolerances.b, s.tolerances.c);
+    let was_from: Option<i64> = tx
+        .prepare_cached(
+            "select auto_adjust_from from netting_settings where site_id = ?1 and auto_adjust = 1",
+        )?
+        .query_row([site.0], |r| r.get(0))
+        .optional()?
+        .flatten();
+    let auto_from = s.auto_adjust.then(|| was_from.unwrap_or(now.0));
     tx.prepare_cached(
         "insert or replace into netting_settings (site_id, tol_a_units, tol_a_bp,
              tol_a_value_minor, tol_b_units, tol_b_bp, tol_b_value_minor, tol_c_units,
-             tol_c_bp, tol_c_value_minor, auto_adjust, manager_value_minor, bulk_value_minor)
-         values (?1, ?2, ?3, ?4, ?5, ?6, ?7, ?8, ?9, ?10, ?11, ?12, ?13)",
+             tol_c_bp, tol_c_value_minor, auto_adjust, manager_value_minor, bulk_value_minor,
+             auto_adjust_from)
+         values (?1, ?2, ?3, ?4, ?5, ?6, ?7, ?8, ?9, ?10, ?11, ?12, ?13, ?14)",
     )?
     .execute(params![
         site.0,
@@ -93,7 +104,8 @@ pub fn put_netting_settings(
         c.value_minor,
         s.auto_adjust,
         s.manager_value_minor,
-        s.bulk_value_minor
+        s.bulk_value_minor,
+        auto_from
     ])?;
     Ok(())
 }
@@ -1062,14 +1074,32 @@ pub fn renet_after_movements(
     Ok(out)
 }
 
-/// Marks every current result whose settling instant has passed as settled; returns how many.
-pub fn settle_due(tx: &Transaction, now: Timestamp) -> Result<usize, StoreError> {
-    Ok(tx
+/// What a settling pass did.
+#[derive(Debug, Clone, Default, PartialEq, Eq, Serialize)]
+pub struct SettleOutcome {
+    /// Results newly marked settled.
+    pub settled: usize,
+    /// Count adjustments posted automatically (sites that allow it), oldest result first.
+    pub adjusted: Vec<crate::review::store::AutoAdjustment>,
+}
+
+/// Marks every current result whose settling instant has passed as settled, then posts
+/// the automatic adjustments now due (`auto_adjust::post_due`) in the same transaction.
+/// A result already settled when it was netted (its settling instant had passed) is
+/// picked up by the next pass, like any other settled result.
+pub fn settle_due(
+    tx: &Transaction,
+    now: Timestamp,
+    snapshot_every: i64,
+) -> Result<SettleOutcome, StoreError> {
+    let settled = tx
         .prepare_cached(
             "update count_result set settled = 1
              where settled = 0 and superseded_by is null and settles_at < ?1",
         )?
-        .execute([now.0])?)
+        .execute([now.0])?;
+    let adjusted = super::auto_adjust::post_due(tx, now, snapshot_every)?;
+    Ok(SettleOutcome { settled, adjusted })
 }
 
 // ---------------------------------------------------------------------------
@@ -1129,6 +1159,8 @@ pub struct ResultRow {
     pub recount_outcome: Option<String>,
     pub first_count_wrong: bool,
     pub reviewed: bool,
+    /// A count adjustment was posted for it automatically (within tolerance, no review).
+    pub auto_adjusted: bool,
     pub computed_at: Timestamp,
 }
 
@@ -1149,13 +1181,16 @@ pub struct ResultDetail {
     pub replaces: Vec<i64>,
     /// Recount and supervisor-count tasks of this key of this pass.
     pub recount_tasks: Vec<i64>,
+    /// The count adjustment posted for it automatically, if one was.
+    pub automatic_adjustment: Option<crate::review::store::AutoAdjustment>,
 }
 
 const ROW_SELECT: &str = "select r.id, r.pass_id, p.uid, u.name, b.code, i.sku, r.lot, r.class,
         r.counted, r.f_star, r.variance, r.status, r.verdict, r.unit_cost_minor, r.counted_at,
         r.window_start, r.window_end, r.watermark, r.settles_at, r.settled, r.superseded_by,
         r.renet_reason, r.recount_outcome, r.first_count_wrong,
-        exists (select 1 from count_review v where v.result_id = r.id), r.computed_at, r.evidence
+        exists (select 1 from count_review v where v.result_id = r.id), r.computed_at, r.evidence,
+        exists (select 1 from count_auto_adjustment a where a.result_id = r.id)
      from count_result r join count_pass p on p.id = r.pass_id
      join user_account u on u.id = p.user_id join bin b on b.id = r.bin_id
      join item i on i.id = r.item_id";
@@ -1192,6 +1227,7 @@ fn map_row(r: &rusqlite::Row<'_>, now: Timestamp) -> rusqlite::Result<(ResultRow
             recount_outcome: r.get(22)?,
             first_count_wrong: r.get(23)?,
             reviewed: r.get(24)?,
+            auto_adjusted: r.get(27)?,
             computed_at: Timestamp(r.get(25)?),
         },
         r.get(26)?,
@@ -1276,11 +1312,13 @@ pub fn count_result(
         )?
         .query_map([row.id], |r| r.get(0))?
         .collect::<rusqlite::Result<Vec<i64>>>()?;
+    let automatic_adjustment = super::auto_adjust::of_result(conn, row.id)?;
     Ok(Some(ResultDetail {
         row,
         evidence,
         replaces,
         recount_tasks,
+        automatic_adjustment,
     }))
 }
 

@@ -7,7 +7,7 @@ use super::SqliteStore;
 use super::accounts::insert_audit;
 use super::ledger::insert_movements;
 use crate::accounts::UserId;
-use crate::accounts::audit::{Action, AuditEvent};
+use crate::accounts::audit::{Action, Actor, AuditEvent};
 use crate::ledger::{MovementKind, NewMovement};
 use crate::master::SiteId;
 use crate::master::codes::{BinCode, MovementUid, Sku};
@@ -17,8 +17,8 @@ use crate::review::store::{
     OtherRow, RecountRow, ReviewRow, ReviewStore, ScanLine, WindowMove,
 };
 use crate::review::{
-    Candidate, Decision, MAX_FEED_ROWS, MAX_LIST_ROWS, ReasonCode, Refusal, ReviewPolicy,
-    check_decision, default_reasons, value_minor,
+    AUTO_REASON_CODE, Candidate, Decision, MAX_FEED_ROWS, MAX_LIST_ROWS, ReasonCode, Refusal,
+    ReviewPolicy, check_decision, default_reasons, value_minor,
 };
 use crate::store::{Progress, StoreError};
 use crate::time::Timestamp;
@@ -377,6 +377,7 @@ pub fn difference(
         })
         .optional()?;
     let recounts = recounts(conn, &f)?;
+    let automatic = super::auto_adjust::of_result(conn, id)?;
     Ok(Some(DifferenceDetail {
         row,
         verdict: f.verdict,
@@ -395,6 +396,7 @@ pub fn difference(
         moves,
         scans,
         review,
+        automatic,
         recounts,
     }))
 }
@@ -497,6 +499,97 @@ fn insert_review(tx: &Transaction, d: &NewDecision, decision: &str) -> Result<i6
     Ok(tx.last_insert_rowid())
 }
 
+/// One count adjustment to post: what, where, when, and who it is recorded for.
+pub(super) struct Posting<'a> {
+    /// The result the adjustment settles.
+    pub result: i64,
+    pub bin: &'a str,
+    pub sku: &'a str,
+    pub lot: &'a str,
+    /// `c − f*` of the result.
+    pub qty: i64,
+    /// The result's posting instant, from its evidence.
+    pub event_at: Timestamp,
+    pub doc_ref: String,
+    pub actor: &'a Actor,
+    pub address: &'a str,
+    /// When it is recorded (the movement's `recorded_at`, the audit event's time).
+    pub at: Timestamp,
+    /// What the audit event says besides the movement: the review, or that it was automatic.
+    pub detail: serde_json::Value,
+}
+
+/// The movement a posting wrote.
+pub(super) struct Posted {
+    pub uid: String,
+    pub movement_id: i64,
+}
+
+/// Posts one count adjustment inside the caller's transaction, as approvals and automatic
+/// adjustments both do: one `count_adjustment` movement through the ledger's insert path
+/// (balances, snapshots and the re-net of the key stay right) and its `adjustment` audit
+/// event. A refusal by the ledger is a programming error here: the result's bin, item and
+/// lot were stored by the netting itself.
+pub(super) fn post_count_adjustment(
+    tx: &Transaction,
+    site: SiteId,
+    p: &Posting,
+    snapshot_every: i64,
+) -> Result<Posted, StoreError> {
+    let stored_code = |what: &str, e: String| {
+        StoreError::Internal(anyhow::anyhow!(
+            "stored {what} of result {} is invalid: {e}",
+            p.result
+        ))
+    };
+    let uid = uuid::Uuid::now_v7().to_string();
+    let movement = NewMovement {
+        uid: MovementUid::parse(&uid).map_err(|e| stored_code("uid", e.to_string()))?,
+        bin: BinCode::parse(p.bin).map_err(|e| stored_code("bin", e.to_string()))?,
+        sku: Sku::parse(p.sku).map_err(|e| stored_code("sku", e.to_string()))?,
+        lot: p.lot.to_string(),
+        expiry: None,
+        qty: p.qty,
+        kind: MovementKind::CountAdjustment,
+        event_at: p.event_at,
+        source: COUNT_SOURCE.into(),
+        doc_ref: p.doc_ref.clone(),
+        actor: p.actor.name().to_string(),
+        reverses: None,
+        recorded_at: None,
+    };
+    insert_movements(
+        tx,
+        site,
+        std::slice::from_ref(&movement),
+        p.at,
+        snapshot_every,
+        &Progress::default(),
+    )
+    .map_err(|e| match e {
+        StoreError::Rejected(rows) => StoreError::Internal(anyhow::anyhow!(
+            "the count adjustment of result {} was refused by the ledger: {rows:?}",
+            p.result
+        )),
+        other => other,
+    })?;
+    let movement_id: i64 = tx
+        .prepare_cached("select id from movement where uid = ?1")?
+        .query_row([&uid], |r| r.get(0))?;
+    let mut detail = json!({"bin": p.bin, "sku": p.sku, "lot": p.lot, "qty": p.qty,
+                            "event_at": p.event_at.to_string()});
+    if let (Some(d), Some(extra)) = (detail.as_object_mut(), p.detail.as_object()) {
+        d.extend(extra.clone());
+    }
+    let mut event = AuditEvent::now(p.actor.clone(), Action::Adjustment, uid.clone())
+        .at_site(site)
+        .from_address(p.address)
+        .detail(detail);
+    event.at = p.at;
+    insert_audit(tx, &event)?;
+    Ok(Posted { uid, movement_id })
+}
+
 /// Takes one approval inside the caller's transaction.
 fn approve_one(
     tx: &Transaction,
@@ -532,73 +625,42 @@ fn approve_one(
         }));
     }
     let review = insert_review(tx, d, "approved")?;
-    let stored_code = |what: &str, e: String| {
-        StoreError::Internal(anyhow::anyhow!(
-            "stored {what} of result {} is invalid: {e}",
-            d.result
-        ))
-    };
-    let uid = uuid::Uuid::now_v7().to_string();
-    let movement = NewMovement {
-        uid: MovementUid::parse(&uid).map_err(|e| stored_code("uid", e.to_string()))?,
-        bin: BinCode::parse(&s.bin).map_err(|e| stored_code("bin", e.to_string()))?,
-        sku: Sku::parse(&s.sku).map_err(|e| stored_code("sku", e.to_string()))?,
-        lot: s.facts.lot.clone(),
-        expiry: None,
-        qty: s.variance,
-        kind: MovementKind::CountAdjustment,
-        event_at: post_at,
-        source: COUNT_SOURCE.into(),
-        doc_ref: review.to_string(),
-        actor: d.actor.name().to_string(),
-        reverses: None,
-        recorded_at: None,
-    };
-    insert_movements(
-        tx,
-        site,
-        std::slice::from_ref(&movement),
-        d.at,
-        snapshot_every,
-        &Progress::default(),
-    )
-    .map_err(|e| match e {
-        StoreError::Rejected(rows) => StoreError::Internal(anyhow::anyhow!(
-            "the count adjustment of result {} was refused by the ledger: {rows:?}",
-            d.result
-        )),
-        other => other,
-    })?;
-    let movement_id: i64 = tx
-        .prepare_cached("select id from movement where uid = ?1")?
-        .query_row([&uid], |r| r.get(0))?;
-    tx.prepare_cached("update count_review set movement_id = ?1 where id = ?2")?
-        .execute(params![movement_id, review])?;
-    let event = |action: Action, subject: String, detail: serde_json::Value| {
-        AuditEvent::now(d.actor.clone(), action, subject)
-            .at_site(site)
-            .from_address(&d.address)
-            .detail(detail)
-    };
     insert_audit(
         tx,
-        &event(
+        &AuditEvent::now(
+            d.actor.clone(),
             Action::Approval,
             format!("difference {}", d.result),
+        )
+        .at_site(site)
+        .from_address(&d.address)
+        .detail(
             json!({"review": review, "result": d.result, "decision": "approved",
                    "reason_code": d.reason, "value_minor": s.candidate.value_minor,
                    "bulk": bulk}),
         ),
     )?;
-    insert_audit(
+    let posted = post_count_adjustment(
         tx,
-        &event(
-            Action::Adjustment,
-            uid.clone(),
-            json!({"review": review, "bin": s.bin, "sku": s.sku, "lot": s.facts.lot,
-                   "qty": s.variance, "event_at": post_at.to_string()}),
-        ),
+        site,
+        &Posting {
+            result: d.result,
+            bin: &s.bin,
+            sku: &s.sku,
+            lot: &s.facts.lot,
+            qty: s.variance,
+            event_at: post_at,
+            doc_ref: review.to_string(),
+            actor: &d.actor,
+            address: &d.address,
+            at: d.at,
+            detail: json!({"review": review}),
+        },
+        snapshot_every,
     )?;
+    tx.prepare_cached("update count_review set movement_id = ?1 where id = ?2")?
+        .execute(params![posted.movement_id, review])?;
+    let uid = posted.uid;
     Ok(Ok(Decided {
         result: d.result,
         review,
@@ -644,7 +706,9 @@ fn reject_one(
     }))
 }
 
-/// Lists posted count adjustments after ledger sequence `after`.
+/// Lists posted count adjustments after ledger sequence `after`: approved ones and those
+/// posted automatically (no review, no approver, reason [`AUTO_REASON_CODE`], approved at
+/// the instant they were posted), in one ledger order.
 pub fn adjustments(
     conn: &Connection,
     site: SiteId,
@@ -654,17 +718,20 @@ pub fn adjustments(
     let limit = limit.clamp(1, MAX_FEED_ROWS) as i64;
     let rows = conn
         .prepare_cached(
-            "select m.uid, m.id, b.code, i.sku, m.lot, m.qty, m.event_at, v.id, v.result_id,
-                    v.reason_code, u.name, v.decided_at
+            "select m.uid, m.id, b.code, i.sku, m.lot, m.qty, m.event_at, v.id,
+                    coalesce(v.result_id, a.result_id), coalesce(v.reason_code, ?4),
+                    coalesce(u.name, ''), coalesce(v.decided_at, a.posted_at), a.id is not null
              from movement m
-             join count_review v on v.movement_id = m.id
+             left join count_review v on v.movement_id = m.id
+             left join count_auto_adjustment a on a.movement_id = m.id
              join bin b on b.id = m.bin_id
              join item i on i.id = m.item_id
-             join user_account u on u.id = v.decided_by
+             left join user_account u on u.id = v.decided_by
              where m.site_id = ?1 and m.id > ?2 and m.kind = 'count_adjustment'
+               and (v.id is not null or a.id is not null)
              order by m.id limit ?3",
         )?
-        .query_map(params![site.0, after, limit], |r| {
+        .query_map(params![site.0, after, limit, AUTO_REASON_CODE], |r| {
             Ok(AdjustmentRow {
                 id: r.get(0)?,
                 seq: r.get(1)?,
@@ -678,6 +745,7 @@ pub fn adjustments(
                 reason_code: r.get(9)?,
                 approver: r.get(10)?,
                 approved_at: Timestamp(r.get(11)?),
+                automatic: r.get(12)?,
             })
         })?
         .collect::<rusqlite::Result<Vec<_>>>()?;
