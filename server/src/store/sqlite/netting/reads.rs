@@ -1,0 +1,286 @@
+//! SQL of the netting's reads: the results the routes and pages list, one result with
+//! its evidence, and a pass's full reasoning for `cairn net`.
+
+use super::*;
+
+/// Which results a listing shows.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, serde::Deserialize)]
+#[serde(rename_all = "snake_case")]
+pub enum ResultState {
+    /// Current results out of tolerance with no review yet.
+    Open,
+    /// Every current (not superseded) result.
+    Current,
+    /// Every row, superseded ones included.
+    All,
+}
+
+/// A query over a site's results, paged by id.
+#[derive(Debug, Clone)]
+pub struct ResultQuery {
+    pub state: ResultState,
+    pub bin: Option<String>,
+    pub sku: Option<String>,
+    /// A count pass by id or uid.
+    pub pass: Option<String>,
+    pub limit: usize,
+    /// Results with an id greater than this.
+    pub after: i64,
+}
+
+/// One result as the API lists it.
+#[derive(Debug, Clone, PartialEq, Eq, Serialize)]
+pub struct ResultRow {
+    pub id: i64,
+    pub pass_id: i64,
+    pub pass: String,
+    pub counter: String,
+    pub bin: String,
+    pub sku: String,
+    pub lot: String,
+    pub class: Option<String>,
+    pub counted: i64,
+    pub f_star: i64,
+    pub variance: i64,
+    pub variance_value_minor: i64,
+    pub status: String,
+    pub verdict: String,
+    pub unit_cost_minor: i64,
+    pub counted_at: Timestamp,
+    pub window_start: Timestamp,
+    pub window_end: Timestamp,
+    pub watermark: i64,
+    pub settles_at: Timestamp,
+    pub settled: bool,
+    pub superseded_by: Option<i64>,
+    pub renet_reason: String,
+    pub recount_outcome: Option<String>,
+    pub first_count_wrong: bool,
+    pub reviewed: bool,
+    /// A count adjustment was posted for it automatically (within tolerance, no review).
+    pub auto_adjusted: bool,
+    pub computed_at: Timestamp,
+}
+
+/// A page of results.
+#[derive(Debug, Clone, Serialize)]
+pub struct ResultPage {
+    pub results: Vec<ResultRow>,
+    pub next: Option<i64>,
+}
+
+/// One result with its evidence, the rows it replaced and its recount tasks.
+#[derive(Debug, Clone, Serialize)]
+pub struct ResultDetail {
+    #[serde(flatten)]
+    pub row: ResultRow,
+    pub evidence: Evidence,
+    /// Earlier rows of the same key of the same pass, newest first.
+    pub replaces: Vec<i64>,
+    /// Recount and supervisor-count tasks of this key of this pass.
+    pub recount_tasks: Vec<i64>,
+    /// The count adjustment posted for it automatically, if one was.
+    pub automatic_adjustment: Option<crate::review::store::AutoAdjustment>,
+}
+
+const ROW_SELECT: &str = "select r.id, r.pass_id, p.uid, u.name, b.code, i.sku, r.lot, r.class,
+        r.counted, r.f_star, r.variance, r.status, r.verdict, r.unit_cost_minor, r.counted_at,
+        r.window_start, r.window_end, r.watermark, r.settles_at, r.settled, r.superseded_by,
+        r.renet_reason, r.recount_outcome, r.first_count_wrong,
+        exists (select 1 from count_review v where v.result_id = r.id), r.computed_at, r.evidence,
+        exists (select 1 from count_auto_adjustment a where a.result_id = r.id)
+     from count_result r join count_pass p on p.id = r.pass_id
+     join user_account u on u.id = p.user_id join bin b on b.id = r.bin_id
+     join item i on i.id = r.item_id";
+
+fn map_row(r: &rusqlite::Row<'_>, now: Timestamp) -> rusqlite::Result<(ResultRow, String)> {
+    let variance: i64 = r.get(10)?;
+    let cost: i64 = r.get(13)?;
+    let settles_at = Timestamp(r.get(18)?);
+    Ok((
+        ResultRow {
+            id: r.get(0)?,
+            pass_id: r.get(1)?,
+            pass: r.get(2)?,
+            counter: r.get(3)?,
+            bin: r.get(4)?,
+            sku: r.get(5)?,
+            lot: r.get(6)?,
+            class: r.get(7)?,
+            counted: r.get(8)?,
+            f_star: r.get(9)?,
+            variance,
+            variance_value_minor: variance.saturating_mul(cost),
+            status: r.get(11)?,
+            verdict: r.get(12)?,
+            unit_cost_minor: cost,
+            counted_at: Timestamp(r.get(14)?),
+            window_start: Timestamp(r.get(15)?),
+            window_end: Timestamp(r.get(16)?),
+            watermark: r.get(17)?,
+            settles_at,
+            settled: r.get::<_, bool>(19)? || now > settles_at,
+            superseded_by: r.get(20)?,
+            renet_reason: r.get(21)?,
+            recount_outcome: r.get(22)?,
+            first_count_wrong: r.get(23)?,
+            reviewed: r.get(24)?,
+            auto_adjusted: r.get(27)?,
+            computed_at: Timestamp(r.get(25)?),
+        },
+        r.get(26)?,
+    ))
+}
+
+/// Lists a site's results, by id.
+pub fn count_results(
+    conn: &Connection,
+    site: SiteId,
+    q: &ResultQuery,
+    now: Timestamp,
+) -> Result<ResultPage, StoreError> {
+    let mut sql = format!("{ROW_SELECT} where r.site_id = ?1 and r.id > ?2");
+    let mut args: Vec<rusqlite::types::Value> = vec![site.0.into(), q.after.into()];
+    match q.state {
+        ResultState::Open => sql.push_str(
+            " and r.superseded_by is null and r.verdict = 'out_of_tolerance'
+              and not exists (select 1 from count_review v where v.result_id = r.id)",
+        ),
+        ResultState::Current => sql.push_str(" and r.superseded_by is null"),
+        ResultState::All => {}
+    }
+    if let Some(b) = &q.bin {
+        args.push(b.clone().into());
+        sql.push_str(&format!(" and b.code = ?{}", args.len()));
+    }
+    if let Some(s) = &q.sku {
+        args.push(s.clone().into());
+        sql.push_str(&format!(" and i.sku = ?{}", args.len()));
+    }
+    if let Some(p) = &q.pass {
+        args.push(p.clone().into());
+        let n = args.len();
+        sql.push_str(&format!(" and (p.uid = ?{n} or cast(p.id as text) = ?{n})"));
+    }
+    let limit = q.limit.clamp(1, MAX_RESULTS_PAGE);
+    sql.push_str(&format!(" order by r.id limit {limit}"));
+    let results = conn
+        .prepare(&sql)?
+        .query_map(rusqlite::params_from_iter(args), |r| map_row(r, now))?
+        .map(|row| row.map(|(r, _)| r))
+        .collect::<rusqlite::Result<Vec<_>>>()?;
+    let next = (results.len() == limit)
+        .then(|| results.last().map(|r| r.id))
+        .flatten();
+    Ok(ResultPage { results, next })
+}
+
+/// Reads one result with its evidence.
+pub fn count_result(
+    conn: &Connection,
+    site: SiteId,
+    id: i64,
+    now: Timestamp,
+) -> Result<Option<ResultDetail>, StoreError> {
+    let Some((row, evidence)) = conn
+        .prepare_cached(&format!("{ROW_SELECT} where r.site_id = ?1 and r.id = ?2"))?
+        .query_row(params![site.0, id], |r| map_row(r, now))
+        .optional()?
+    else {
+        return Ok(None);
+    };
+    let evidence: Evidence = serde_json::from_str(&evidence)
+        .map_err(|e| anyhow::anyhow!("count_result {id} has unreadable evidence: {e}"))?;
+    let mut replaces = Vec::new();
+    let mut at = row.id;
+    while let Some(prev) = conn
+        .prepare_cached("select id from count_result where superseded_by = ?1")?
+        .query_row([at], |r| r.get::<_, i64>(0))
+        .optional()?
+    {
+        replaces.push(prev);
+        at = prev;
+    }
+    let recount_tasks = conn
+        .prepare_cached(
+            "select t.id from count_task t join count_result r on r.id = t.recount_of
+             join count_result me on me.pass_id = r.pass_id and me.item_id = r.item_id
+                  and me.lot = r.lot
+             where me.id = ?1 order by t.id",
+        )?
+        .query_map([row.id], |r| r.get(0))?
+        .collect::<rusqlite::Result<Vec<i64>>>()?;
+    let automatic_adjustment = crate::store::sqlite::auto_adjust::of_result(conn, row.id)?;
+    Ok(Some(ResultDetail {
+        row,
+        evidence,
+        replaces,
+        recount_tasks,
+        automatic_adjustment,
+    }))
+}
+
+/// A pass and every current result of it, for `cairn net`.
+#[derive(Debug, Clone, Serialize)]
+pub struct PassReport {
+    pub pass_id: i64,
+    pub pass: String,
+    pub site: String,
+    pub bin: String,
+    pub counter: String,
+    pub first_at: Timestamp,
+    pub done_at: Option<Timestamp>,
+    pub uncertainty_ms: i64,
+    pub recount_of: Option<i64>,
+    pub results: Vec<ResultDetail>,
+}
+
+/// Reads a pass (by id or uid) and its current results.
+pub fn pass_report(
+    conn: &Connection,
+    pass: &str,
+    now: Timestamp,
+) -> Result<Option<PassReport>, StoreError> {
+    let head = conn
+        .prepare_cached(
+            "select p.id, p.uid, s.code, b.code, u.name, p.first_at, p.done_at, p.uncertainty_ms,
+                    t.recount_of, p.site_id
+             from count_pass p join site s on s.id = p.site_id join bin b on b.id = p.bin_id
+             join user_account u on u.id = p.user_id left join count_task t on t.id = p.task_id
+             where p.uid = ?1 or cast(p.id as text) = ?1",
+        )?
+        .query_row([pass], |r| {
+            Ok((
+                PassReport {
+                    pass_id: r.get(0)?,
+                    pass: r.get(1)?,
+                    site: r.get(2)?,
+                    bin: r.get(3)?,
+                    counter: r.get(4)?,
+                    first_at: Timestamp(r.get(5)?),
+                    done_at: r.get::<_, Option<i64>>(6)?.map(Timestamp),
+                    uncertainty_ms: r.get(7)?,
+                    recount_of: r.get(8)?,
+                    results: Vec::new(),
+                },
+                SiteId(r.get(9)?),
+            ))
+        })
+        .optional()?;
+    let Some((mut report, site)) = head else {
+        return Ok(None);
+    };
+    let ids = conn
+        .prepare_cached(
+            "select r.id from count_result r join item i on i.id = r.item_id
+             where r.pass_id = ?1 and r.superseded_by is null order by i.sku, r.lot",
+        )?
+        .query_map([report.pass_id], |r| r.get(0))?
+        .collect::<rusqlite::Result<Vec<i64>>>()?;
+    for id in ids {
+        if let Some(d) = count_result(conn, site, id, now)? {
+            report.results.push(d);
+        }
+    }
+    Ok(Some(report))
+}
