@@ -442,6 +442,15 @@ async fn bad_input_names_the_field_says_why_and_changes_nothing() {
         },
         Bad {
             action: REASONS,
+            typed: &[
+                ("new_code", "auto_within_tolerance"),
+                ("new_label", "Small one"),
+            ],
+            field: "new_code",
+            says: "is kept for automatic adjustments",
+        },
+        Bad {
+            action: REASONS,
             typed: &[("new_code", "shrink"), ("new_label", "")],
             field: "new_label",
             says: "Label of 'shrink' must not be empty",

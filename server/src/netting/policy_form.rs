@@ -647,6 +647,14 @@ impl ReasonsForm {
                          '_' or '-' (no spaces)."
                     ),
                 ));
+            } else if code == crate::review::AUTO_REASON_CODE {
+                errors.push(FormError::new(
+                    "new_code",
+                    format!(
+                        "New reason code '{code}' is kept for automatic adjustments; pick \
+                         another."
+                    ),
+                ));
             } else if shown.iter().any(|c| c == code) {
                 errors.push(FormError::new(
                     "new_code",

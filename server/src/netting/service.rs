@@ -120,7 +120,8 @@ pub struct ReasonCode {
     pub label: String,
 }
 
-/// Checks a list of reason codes: codes given once, short, of letters, digits, `_` or `-`.
+/// Checks a list of reason codes: codes given once, short, of letters, digits, `_` or `-`,
+/// and none the code the feed gives automatic adjustments.
 pub fn check_reason_codes(rows: &[ReasonCode]) -> Result<(), String> {
     if rows.len() > MAX_POLICY_ROWS {
         return Err(format!(
@@ -137,6 +138,12 @@ pub fn check_reason_codes(rows: &[ReasonCode]) -> Result<(), String> {
         if !ok {
             return Err(format!(
                 "[{i}].code '{}' must be 1 to 32 letters, digits, '_' or '-'",
+                r.code
+            ));
+        }
+        if r.code == crate::review::AUTO_REASON_CODE {
+            return Err(format!(
+                "[{i}].code '{}' is reserved for automatic adjustments; pick another",
                 r.code
             ));
         }
@@ -629,5 +636,15 @@ mod tests {
             label: "x".into(),
         }];
         assert!(check_reason_codes(&codes).is_err());
+        // The feed tells automatic rows by this code too: a reviewer's code may not take it.
+        let codes = vec![ReasonCode {
+            code: crate::review::AUTO_REASON_CODE.into(),
+            label: "Small and fine".into(),
+        }];
+        assert!(
+            check_reason_codes(&codes)
+                .unwrap_err()
+                .contains("reserved for automatic")
+        );
     }
 }
