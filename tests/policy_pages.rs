@@ -97,6 +97,24 @@ async fn policy(app: &TestApp) -> Value {
     all
 }
 
+/// The audit trail's count-policy changes, oldest first: actor, subject, detail.
+fn policy_audit(app: &TestApp) -> Vec<(String, String, Value)> {
+    let conn = rusqlite::Connection::open(&app.db).unwrap();
+    let mut stmt = conn
+        .prepare(
+            "select actor, subject, detail from audit_event
+             where action = 'count_policy_changed' order by id",
+        )
+        .unwrap();
+    stmt.query_map([], |r| {
+        let detail: String = r.get(2)?;
+        Ok((r.get(0)?, r.get(1)?, serde_json::from_str(&detail).unwrap()))
+    })
+    .unwrap()
+    .collect::<Result<_, _>>()
+    .unwrap()
+}
+
 #[tokio::test]
 async fn a_manager_saves_each_form_and_the_json_api_reads_the_new_values() {
     let app = spawn_app().await;
@@ -261,6 +279,24 @@ async fn a_manager_saves_each_form_and_the_json_api_reads_the_new_values() {
     want.sort_by_key(|v| v["code"].as_str().unwrap().to_string());
     let (_, stored) = app.get("/api/v1/sites/T/netting/reason-codes").await;
     assert_eq!(stored, Value::Array(want));
+
+    // Each save is in the audit trail: who, which part, and the value it set.
+    let trail = policy_audit(&app);
+    for part in ["settings", "sources", "reason-codes"] {
+        assert!(
+            trail
+                .iter()
+                .any(|(actor, subject, _)| actor.contains("ines") && subject == part),
+            "{part} in {trail:?}"
+        );
+    }
+    let mut last = trail.last().unwrap().2["now"].as_array().unwrap().clone();
+    last.sort_by_key(|v| v["code"].as_str().unwrap().to_string());
+    assert_eq!(
+        Value::Array(last),
+        stored,
+        "the last change names the new list"
+    );
 }
 
 #[tokio::test]
@@ -530,6 +566,15 @@ async fn a_list_changed_since_the_page_was_opened_is_not_overwritten() {
         let (s, b) = app.put(path, body).await;
         assert_eq!(s, 200, "{b}");
     }
+    let trail = policy_audit(&app);
+    assert_eq!(
+        trail
+            .iter()
+            .map(|(_, subject, d)| (subject.as_str(), &d["now"]))
+            .collect::<Vec<_>>(),
+        [("sources", &dock), ("reason-codes", &codes)],
+        "the host's changes are in the audit trail"
+    );
     let before = policy(&app).await;
     let mut sources = form_fields(&page.text, SOURCES);
     set(&mut sources, "new_source", "host");
@@ -548,6 +593,7 @@ async fn a_list_changed_since_the_page_was_opened_is_not_overwritten() {
         );
     }
     assert_eq!(policy(&app).await, before, "what was saved meanwhile stays");
+    assert_eq!(policy_audit(&app), trail, "a refused save is not audited");
     assert_eq!(before["sources"], dock);
     assert_eq!(before["reason-codes"], codes);
 }

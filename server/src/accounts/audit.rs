@@ -72,6 +72,9 @@ pub enum Action {
     Approval,
     /// A count adjustment posted to the ledger.
     Adjustment,
+    /// A change to a site's count policy: tolerances, review limits, automatic
+    /// adjustment, source timings or reason codes.
+    CountPolicyChanged,
 }
 
 impl Action {
@@ -95,6 +98,7 @@ impl Action {
             Action::ApiBatch => "api_batch",
             Action::Approval => "approval",
             Action::Adjustment => "adjustment",
+            Action::CountPolicyChanged => "count_policy_changed",
         }
     }
 }
@@ -152,6 +156,20 @@ pub fn api_batch(by: &super::Principal, site: SiteId, what: &str, detail: Value)
     AuditEvent::now(by.actor(), Action::ApiBatch, what)
         .at_site(site)
         .detail(detail)
+}
+
+/// Builds the audit event of a count-policy change: `part` names what changed
+/// (`settings`, `sources`, `reason-codes`), `now` is the new value.
+pub fn policy_change(
+    by: &super::Principal,
+    site: SiteId,
+    part: &str,
+    now: &impl serde::Serialize,
+) -> AuditEvent {
+    let value = serde_json::to_value(now).unwrap_or(Value::Null);
+    AuditEvent::now(by.actor(), Action::CountPolicyChanged, part)
+        .at_site(site)
+        .detail(serde_json::json!({ "now": value }))
 }
 
 /// One stored event, as pages and the CSV export show it.

@@ -11,8 +11,8 @@
 use super::policy_form::{Errors, Fields, ReasonsForm, SettingsForm, SourcesForm};
 use super::routes::{READ_POLICY, SET_POLICY};
 use crate::AppState;
-use crate::accounts::Principal;
-use crate::http::access::{Access, CurrentUser, RouteTable};
+use crate::accounts::{Principal, audit};
+use crate::http::access::{Access, ClientAddress, CurrentUser, RouteTable};
 use crate::http::extract::{CurrentSite, Params};
 use crate::http::pages::{Me, PageError, VERSION, render};
 use crate::master::Site;
@@ -196,13 +196,19 @@ fn refused(e: StoreError) -> Result<(StatusCode, Errors), PageError> {
 async fn save_settings(
     State(state): State<AppState>,
     CurrentUser(p): CurrentUser,
+    ClientAddress(address): ClientAddress,
     CurrentSite(site): CurrentSite,
     Form(fields): Form<Fields>,
 ) -> Result<Response, PageError> {
     let form = SettingsForm::read(&fields);
     match form.parse() {
         Ok(settings) => {
-            state.store.put_netting_settings(site.id, settings).await?;
+            let audit =
+                audit::policy_change(&p, site.id, "settings", &settings).from_address(&address);
+            state
+                .store
+                .put_netting_settings(site.id, settings, audit)
+                .await?;
             Ok(Redirect::to(&saved_url(&site, "settings")).into_response())
         }
         Err(errors) => {
@@ -219,6 +225,7 @@ async fn save_settings(
 async fn save_sources(
     State(state): State<AppState>,
     CurrentUser(p): CurrentUser,
+    ClientAddress(address): ClientAddress,
     CurrentSite(site): CurrentSite,
     Form(fields): Form<Fields>,
 ) -> Result<Response, PageError> {
@@ -226,7 +233,12 @@ async fn save_sources(
     let (status, errors) = match form.parse() {
         Ok(edit) => match state
             .store
-            .edit_source_timings(site.id, edit.shown, edit.rows)
+            .edit_source_timings(
+                site.id,
+                edit.shown,
+                edit.rows.clone(),
+                audit::policy_change(&p, site.id, "sources", &edit.rows).from_address(&address),
+            )
             .await
         {
             Ok(()) => return Ok(Redirect::to(&saved_url(&site, "sources")).into_response()),
@@ -245,6 +257,7 @@ async fn save_sources(
 async fn save_reason_codes(
     State(state): State<AppState>,
     CurrentUser(p): CurrentUser,
+    ClientAddress(address): ClientAddress,
     CurrentSite(site): CurrentSite,
     Form(fields): Form<Fields>,
 ) -> Result<Response, PageError> {
@@ -252,7 +265,13 @@ async fn save_reason_codes(
     let (status, errors) = match form.parse() {
         Ok(edit) => match state
             .store
-            .edit_reason_codes(site.id, edit.shown, edit.rows)
+            .edit_reason_codes(
+                site.id,
+                edit.shown,
+                edit.rows.clone(),
+                audit::policy_change(&p, site.id, "reason-codes", &edit.rows)
+                    .from_address(&address),
+            )
             .await
         {
             Ok(()) => {

@@ -5,8 +5,11 @@
 
 use super::service::{self, NettingSettings, ReasonCode, SourceTimingRow};
 use crate::AppState;
+use crate::accounts::audit;
 use crate::error::ApiError;
-use crate::http::access::{Access, BOOK_READERS, COUNT_POLICY, RouteTable};
+use crate::http::access::{
+    Access, BOOK_READERS, COUNT_POLICY, ClientAddress, CurrentUser, RouteTable,
+};
 use crate::http::extract::{CurrentSite, Params};
 use crate::store::sqlite::netting::{
     MAX_RESULTS_PAGE, ResultDetail, ResultPage, ResultQuery, ResultState,
@@ -125,12 +128,15 @@ async fn get_settings(
 
 async fn put_settings(
     State(state): State<AppState>,
+    CurrentUser(p): CurrentUser,
+    ClientAddress(address): ClientAddress,
     CurrentSite(site): CurrentSite,
     bytes: axum::body::Bytes,
 ) -> Result<Json<NettingSettings>, ApiError> {
     let s: NettingSettings = body(&bytes)?;
     s.check().map_err(ApiError::BadRequest)?;
-    state.store.put_netting_settings(site.id, s).await?;
+    let audit = audit::policy_change(&p, site.id, "settings", &s).from_address(&address);
+    state.store.put_netting_settings(site.id, s, audit).await?;
     Ok(Json(s))
 }
 
@@ -143,14 +149,17 @@ async fn get_sources(
 
 async fn put_sources(
     State(state): State<AppState>,
+    CurrentUser(p): CurrentUser,
+    ClientAddress(address): ClientAddress,
     CurrentSite(site): CurrentSite,
     bytes: axum::body::Bytes,
 ) -> Result<Json<Vec<SourceTimingRow>>, ApiError> {
     let rows: Vec<SourceTimingRow> = body(&bytes)?;
     service::check_sources(&rows).map_err(ApiError::BadRequest)?;
+    let audit = audit::policy_change(&p, site.id, "sources", &rows).from_address(&address);
     state
         .store
-        .put_source_timings(site.id, rows.clone())
+        .put_source_timings(site.id, rows.clone(), audit)
         .await?;
     Ok(Json(rows))
 }
@@ -164,11 +173,17 @@ async fn get_reason_codes(
 
 async fn put_reason_codes(
     State(state): State<AppState>,
+    CurrentUser(p): CurrentUser,
+    ClientAddress(address): ClientAddress,
     CurrentSite(site): CurrentSite,
     bytes: axum::body::Bytes,
 ) -> Result<Json<Vec<ReasonCode>>, ApiError> {
     let rows: Vec<ReasonCode> = body(&bytes)?;
     service::check_reason_codes(&rows).map_err(ApiError::BadRequest)?;
-    state.store.put_reason_codes(site.id, rows.clone()).await?;
+    let audit = audit::policy_change(&p, site.id, "reason-codes", &rows).from_address(&address);
+    state
+        .store
+        .put_reason_codes(site.id, rows.clone(), audit)
+        .await?;
     Ok(Json(rows))
 }

@@ -301,6 +301,7 @@ pub trait Store: AccountStore + AccuracyStore + ReviewStore + Send + Sync + 'sta
         &self,
         site: SiteId,
         settings: crate::netting::service::NettingSettings,
+        audit: AuditEvent,
     ) -> Result<(), StoreError>;
     /// Lists a site's movement sources' timing.
     async fn source_timings(
@@ -312,6 +313,7 @@ pub trait Store: AccountStore + AccuracyStore + ReviewStore + Send + Sync + 'sta
         &self,
         site: SiteId,
         rows: Vec<crate::netting::service::SourceTimingRow>,
+        audit: AuditEvent,
     ) -> Result<(), StoreError>;
     /// Lists a site's reason codes.
     async fn reason_codes(
@@ -323,6 +325,7 @@ pub trait Store: AccountStore + AccuracyStore + ReviewStore + Send + Sync + 'sta
         &self,
         site: SiteId,
         rows: Vec<crate::netting::service::ReasonCode>,
+        audit: AuditEvent,
     ) -> Result<(), StoreError>;
     /// Replaces a site's movement sources' timing from a page that showed the
     /// sources `shown`; refused (Conflict) if they changed since.
@@ -331,6 +334,7 @@ pub trait Store: AccountStore + AccuracyStore + ReviewStore + Send + Sync + 'sta
         site: SiteId,
         shown: Vec<String>,
         rows: Vec<crate::netting::service::SourceTimingRow>,
+        audit: AuditEvent,
     ) -> Result<(), StoreError>;
     /// Replaces a site's reason codes from a page that showed the codes `shown`;
     /// refused (Conflict) if they changed since, or if a used code would go.
@@ -339,6 +343,7 @@ pub trait Store: AccountStore + AccuracyStore + ReviewStore + Send + Sync + 'sta
         site: SiteId,
         shown: Vec<String>,
         rows: Vec<crate::netting::service::ReasonCode>,
+        audit: AuditEvent,
     ) -> Result<(), StoreError>;
     /// Counts the decisions that name each reason code of a site.
     async fn reason_code_uses(

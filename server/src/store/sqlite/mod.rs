@@ -492,8 +492,10 @@ impl Store for SqliteStore {
         &self,
         site: SiteId,
         settings: crate::netting::service::NettingSettings,
+        audit: AuditEvent,
     ) -> Result<(), StoreError> {
         self.write_tx(move |tx| {
+            accounts::insert_audit(tx, &audit)?;
             netting::put_netting_settings(tx, site, &settings, Timestamp::now())
         })
         .await
@@ -512,9 +514,13 @@ impl Store for SqliteStore {
         &self,
         site: SiteId,
         rows: Vec<crate::netting::service::SourceTimingRow>,
+        audit: AuditEvent,
     ) -> Result<(), StoreError> {
-        self.write_tx(move |tx| netting::put_source_timings(tx, site, &rows))
-            .await
+        self.write_tx(move |tx| {
+            accounts::insert_audit(tx, &audit)?;
+            netting::put_source_timings(tx, site, &rows)
+        })
+        .await
     }
 
     async fn reason_codes(
@@ -530,9 +536,13 @@ impl Store for SqliteStore {
         &self,
         site: SiteId,
         rows: Vec<crate::netting::service::ReasonCode>,
+        audit: AuditEvent,
     ) -> Result<(), StoreError> {
-        self.write_tx(move |tx| netting::put_reason_codes(tx, site, &rows))
-            .await
+        self.write_tx(move |tx| {
+            accounts::insert_audit(tx, &audit)?;
+            netting::put_reason_codes(tx, site, &rows)
+        })
+        .await
     }
 
     async fn edit_source_timings(
@@ -540,9 +550,13 @@ impl Store for SqliteStore {
         site: SiteId,
         shown: Vec<String>,
         rows: Vec<crate::netting::service::SourceTimingRow>,
+        audit: AuditEvent,
     ) -> Result<(), StoreError> {
-        self.write_tx(move |tx| netting::edit_source_timings(tx, site, &shown, &rows))
-            .await
+        self.write_tx(move |tx| {
+            accounts::insert_audit(tx, &audit)?;
+            netting::edit_source_timings(tx, site, &shown, &rows)
+        })
+        .await
     }
 
     async fn edit_reason_codes(
@@ -550,9 +564,13 @@ impl Store for SqliteStore {
         site: SiteId,
         shown: Vec<String>,
         rows: Vec<crate::netting::service::ReasonCode>,
+        audit: AuditEvent,
     ) -> Result<(), StoreError> {
-        self.write_tx(move |tx| netting::edit_reason_codes(tx, site, &shown, &rows))
-            .await
+        self.write_tx(move |tx| {
+            accounts::insert_audit(tx, &audit)?;
+            netting::edit_reason_codes(tx, site, &shown, &rows)
+        })
+        .await
     }
 
     async fn reason_code_uses(
