@@ -515,3 +515,46 @@ fn hidden(html: &str, name: &str) -> String {
     let at = html.find(&key).unwrap_or_else(|| panic!("no field {name}")) + key.len();
     html[at..at + html[at..].find('"').unwrap()].to_string()
 }
+
+#[tokio::test]
+async fn a_list_whose_task_has_a_count_line_is_not_rebuilt_even_before_its_bin_opens() {
+    let s = site().await;
+    let day = s.today;
+    let list = s.build(day, 1, false).await;
+    let task = list["tasks"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .find(|t| t["bin"] == BIN1)
+        .unwrap_or_else(|| panic!("bin 1 is on the list: {list}"))
+        .clone();
+    assert_eq!(
+        s.hold(day, task["run"].as_u64().unwrap(), "cora").await.0,
+        200
+    );
+    // A phone's line reaches the server before its bin-opened event (they travel in
+    // separate batches): the task is still open, but a count now points at it.
+    let pass = Uuid::now_v7().to_string();
+    let line = json!({"id": Uuid::now_v7().to_string(), "at": Timestamp::now().0, "count": pass,
+                      "task": task["id"], "bin": BIN1, "type": "line", "sku": "S1",
+                      "gtin": null, "packs": 1, "qty": 40, "lot": "", "entry": "keypad"});
+    s.sync(&s.cora, vec![line]).await;
+    let before = s.list(day).await;
+    let body = json!({"day": day.to_string(), "counters": 2, "minutes": 120, "replace": true});
+    let (st, refused) = s.app.post("/api/v1/sites/T/count-lists", &body).await;
+    assert_eq!(st, 409, "{refused}");
+    assert!(
+        refused.to_string().contains("has started"),
+        "the refusal says why: {refused}"
+    );
+    let kept = s.list(day).await;
+    assert_eq!(kept, before, "nothing changed");
+    assert!(
+        kept["tasks"]
+            .as_array()
+            .unwrap()
+            .iter()
+            .any(|t| t["id"] == task["id"]),
+        "the counted task stays: {kept}"
+    );
+}

@@ -603,9 +603,16 @@ pub fn save_count_list(
                     "a count list for {day} already exists: ask to replace it"
                 )));
             }
+            // A task is started once a count points at it, even while it still reads
+            // open (a line can reach the server before its bin-opened event).
             let started: bool = tx
                 .prepare_cached(
-                    "select 1 from count_task where list_id = ?1 and status <> 'open' limit 1",
+                    "select 1 from count_task t
+                     where t.list_id = ?1
+                       and (t.status <> 'open'
+                            or exists (select 1 from count_pass p indexed by count_pass_task
+                                       where p.task_id = t.id))
+                     limit 1",
                 )?
                 .exists([id])?;
             if started {
