@@ -116,6 +116,11 @@ async fn a_backup_taken_while_movements_stream_in_restores_to_a_sound_balanced_c
         &restored.display().to_string(),
     ]);
     assert!(out.status.success(), "{}", stderr(&out));
+    let said = String::from_utf8(out.stdout).unwrap();
+    assert!(
+        said.contains("backup: integrity ok, balances ok; copy: quick check ok"),
+        "{said}"
+    );
     let state = cairn::AppState::open(cairn::config::Config {
         db: restored.clone(),
         ..cairn::config::Config::default()

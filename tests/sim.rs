@@ -77,7 +77,8 @@ async fn template() -> Template {
     }
     let dir = tempfile::tempdir().unwrap();
     let db = dir.path().join("template.db");
-    cairn::backup::backup(&app.db, &db, None).expect("the template copies");
+    cairn::backup::backup(&app.db, &db, None, &indicatif::ProgressBar::hidden())
+        .expect("the template copies");
     Template {
         db,
         phones,

@@ -568,11 +568,12 @@ fn lookup_table(dir: &Path, ledger: usize) {
 fn backup_table(dir: &Path, db: &Path) {
     let copy = dir.join("ledger-backup.db");
     let t = Instant::now();
-    let b = cairn::backup::backup(db, &copy, None).unwrap();
+    let b = cairn::backup::backup(db, &copy, None, &indicatif::ProgressBar::hidden()).unwrap();
     let backup_s = t.elapsed().as_secs_f64();
     let restored = dir.join("restored.db");
     let t = Instant::now();
-    let r = cairn::backup::restore(&copy, &restored, false).unwrap();
+    let r =
+        cairn::backup::restore(&copy, &restored, false, &indicatif::ProgressBar::hidden()).unwrap();
     let restore_s = t.elapsed().as_secs_f64();
     assert_eq!(b.summary.movements, r.summary.movements);
     println!();

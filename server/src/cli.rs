@@ -14,6 +14,7 @@ use crate::planning::plan::{Capacity, Fill};
 use crate::store::Store;
 use crate::store::sqlite::Synchronous;
 use clap::{Args, Parser, Subcommand};
+use std::io::IsTerminal;
 use std::net::SocketAddr;
 use std::path::PathBuf;
 use std::process::ExitCode;
@@ -611,15 +612,24 @@ async fn dispatch(command: Command) -> anyhow::Result<()> {
         }
         Command::User { command } => user_command(command).await,
         Command::Backup { db, to, keep } => {
-            let report = tokio::task::spawn_blocking(move || crate::backup::backup(&db, &to, keep))
-                .await??;
+            let report = tokio::task::spawn_blocking(move || {
+                let progress = crate::backup::spinner(std::io::stderr().is_terminal());
+                let r = crate::backup::backup(&db, &to, keep, &progress);
+                progress.finish_and_clear();
+                r
+            })
+            .await??;
             println!("backup {report}");
             Ok(())
         }
         Command::Restore { from, db, force } => {
-            let report =
-                tokio::task::spawn_blocking(move || crate::backup::restore(&from, &db, force))
-                    .await??;
+            let report = tokio::task::spawn_blocking(move || {
+                let progress = crate::backup::spinner(std::io::stderr().is_terminal());
+                let r = crate::backup::restore(&from, &db, force, &progress);
+                progress.finish_and_clear();
+                r
+            })
+            .await??;
             println!("restored {report}");
             Ok(())
         }

@@ -96,7 +96,7 @@ pub async fn run(spec: Spec) -> anyhow::Result<Outcome> {
     let empty = dir.join("ceiling.db");
     tokio::task::spawn_blocking({
         let (db, empty) = (db.clone(), empty.clone());
-        move || backup::backup(&db, &empty, None)
+        move || backup::backup(&db, &empty, None, &indicatif::ProgressBar::hidden())
     })
     .await??;
 
