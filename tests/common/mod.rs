@@ -406,6 +406,35 @@ impl TestApp {
         .await
     }
 
+    /// Enrols a phone for a counter at site T and returns its device token.
+    pub async fn phone(&self, user: &str, pin: &str) -> String {
+        let a = self.enrol(user, pin, "T").await;
+        assert_eq!(a.status, 201, "{}", a.text);
+        a.json()["token"].as_str().unwrap().to_string()
+    }
+
+    /// Sends a phone's events to site T with the phone's clock at the real clock and a
+    /// round trip of `rtt_ms`; every event must be accepted. Returns the answer.
+    pub async fn sync(&self, token: &str, events: Vec<Value>, rtt_ms: i64) -> Value {
+        let body = json!({"device_clock": cairn::time::Timestamp::now().0, "rtt_ms": rtt_ms,
+                          "events": events});
+        let auth = Auth::Bearer(token.to_string());
+        let a = self
+            .send(
+                Method::POST,
+                "/api/v1/sites/T/sync",
+                &auth,
+                Body::Json(body),
+            )
+            .await;
+        assert_eq!(a.status, 200, "{}", a.text);
+        let v = a.json();
+        for res in v["results"].as_array().unwrap() {
+            assert_eq!(res["status"], "accepted", "{v}");
+        }
+        v
+    }
+
     /// Creates site `T` with two bins, a plain item `S1` and a lot-tracked
     /// item `L1`, an admin `root`, and makes `get`/`post` send root's admin token.
     pub async fn small_site(&self) {
@@ -471,6 +500,28 @@ impl TestApp {
             .await;
         assert_eq!((s, b["recorded"].as_u64()), (200, Some(1)), "{b}");
     }
+}
+
+/// Site T of the counting suites and the device tokens of its counters' phones.
+pub struct PhoneSite {
+    pub app: TestApp,
+    pub cora: String,
+    pub dan: String,
+}
+
+/// Starts an app with site T (`small_site`), counters cora (PIN 4821) and dan
+/// (PIN 5932), each with an enrolled phone, and then `others`.
+pub async fn phone_site(others: &[Person<'_>]) -> PhoneSite {
+    let app = spawn_app().await;
+    app.small_site().await;
+    app.add_people(&[("cora", &[Role::Counter], Some("4821"))])
+        .await;
+    let cora = app.phone("cora", "4821").await;
+    app.add_people(&[("dan", &[Role::Counter], Some("5932"))])
+        .await;
+    let dan = app.phone("dan", "5932").await;
+    app.add_people(others).await;
+    PhoneSite { app, cora, dan }
 }
 
 /// The two bins of `small_site`.
