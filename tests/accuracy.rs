@@ -7,12 +7,10 @@
 mod common;
 
 use cairn::accounts::Role;
-use common::{Auth, Body, TestApp, spawn_app};
+use common::{Auth, Body, PASSWORD, TestApp, spawn_app};
 use reqwest::Method;
 use rusqlite::{Connection, params};
 use serde_json::{Value, json};
-
-const PASSWORD: &str = "test-only-password";
 
 /// Milliseconds of `day` at `hour`:00 UTC.
 fn at(day: &str, hour: i64) -> i64 {
@@ -30,28 +28,25 @@ fn id(c: &Connection, sql: &str, key: &str) -> i64 {
 async fn site() -> TestApp {
     let app = spawn_app().await;
     app.small_site().await;
-    let (s, b) = app
-        .post(
-            "/api/v1/sites/T/bins",
-            &json!([{"zone": "B", "aisle": 2, "bay": 1, "level": 1, "side": "L"}]),
-        )
-        .await;
-    assert_eq!(s, 200, "{b}");
-    let (s, b) = app
-        .post(
-            "/api/v1/sites/T/items",
-            &json!([
-                {"sku": "I1", "description": "Washer", "base_unit": "box", "unit_cost_minor": 500},
-                {"sku": "I2", "description": "Hinge", "base_unit": "each", "unit_cost_minor": 1200},
-                {"sku": "I3", "description": "Rivet", "base_unit": "box", "unit_cost_minor": 50, "group": "fasteners"}
-            ]),
-        )
-        .await;
-    assert_eq!(s, 200, "{b}");
-    for who in ["ada", "bruno"] {
-        app.add_user(who, "T", &[Role::Counter], PASSWORD, Some("1357"))
-            .await;
-    }
+    app.post_ok(
+        "/api/v1/sites/T/bins",
+        &json!([{"zone": "B", "aisle": 2, "bay": 1, "level": 1, "side": "L"}]),
+    )
+    .await;
+    app.post_ok(
+        "/api/v1/sites/T/items",
+        &json!([
+            {"sku": "I1", "description": "Washer", "base_unit": "box", "unit_cost_minor": 500},
+            {"sku": "I2", "description": "Hinge", "base_unit": "each", "unit_cost_minor": 1200},
+            {"sku": "I3", "description": "Rivet", "base_unit": "box", "unit_cost_minor": 50, "group": "fasteners"}
+        ]),
+    )
+    .await;
+    app.add_people(&[
+        ("ada", &[Role::Counter], Some("1357")),
+        ("bruno", &[Role::Counter], Some("1357")),
+    ])
+    .await;
     app
 }
 

@@ -5,36 +5,24 @@
 //! the host reads them from the adjustments feed, marked automatic.
 //!
 //! Tolerances are the defaults (class C 5 % of f*: common practice, no source); building
-//! the day's list classifies S1 as class C.
+//! the day's list classifies S1 as class C. With `review_site`'s book of S1 (40 in BIN_1,
+//! 10 in BIN_2), one unit off is within 5 % of 40 (2 units) but not of 10 (0.5 units).
 
 mod common;
 
-use cairn::accounts::Role;
 use cairn::time::Timestamp;
-use common::{Auth, Body, TestApp, movement, spawn_app};
+use common::{
+    Auth, BIN_1, BIN_2, Body, PASSWORD, REVIEW_DAY, TestApp, review_site, s1_each_gtin, spawn_app,
+};
 use reqwest::Method;
 use serde_json::{Value, json};
 use uuid::Uuid;
 
-const DAY: &str = "2026-03-03";
 /// 2026-03-03T09:00:00Z in ms (the phone's clock; the server corrects it).
 const NINE: i64 = 1_772_528_400_000;
-const PASSWORD: &str = "test-only-password";
-/// Book of S1: 40 in BIN_1, 10 in BIN_2. One unit off is within 5 % of 40 (2 units)
-/// but not of 10 (0.5 units).
-const BIN_1: &str = "A-01-01-1";
-const BIN_2: &str = "A-01-02-1";
 /// A host that may post up to 15 minutes late: counts stay provisional that long.
 const LAG_MS: i64 = 900_000;
 const DAY_MS: i64 = 86_400_000;
-
-/// A GTIN-13 from its first twelve digits, with the check digit of GS1 General
-/// Specifications §7.9 (mod-10 weights 3-1) worked out by the scanning crate.
-fn each() -> String {
-    let body = "501234567890";
-    let check = cairn_scan::gtin_check_digit(body).expect("digits");
-    format!("{body}{check}")
-}
 
 fn id() -> String {
     Uuid::now_v7().to_string()
@@ -44,43 +32,6 @@ fn ms(t: &Value) -> i64 {
     Timestamp::parse_rfc3339(t.as_str().expect("an instant"))
         .expect("RFC 3339")
         .0
-}
-
-/// Site T with 40 of S1 in BIN_1 and 10 in BIN_2, a day's list of one run, and two
-/// counters, cora and dan, and ines, the inventory manager.
-async fn site(app: &TestApp) {
-    app.small_site().await;
-    let (s, b) = app
-        .post(
-            "/api/v1/sites/T/packs",
-            &json!([{"sku": "S1", "gtin": each(), "level": "each", "units": 1}]),
-        )
-        .await;
-    assert_eq!(s, 200, "{b}");
-    let (s, b) = app
-        .post(
-            "/api/v1/sites/T/movements",
-            &json!([
-                movement("r1", BIN_1, "S1", 40, "receipt", "2026-03-02T08:00:00Z"),
-                movement("r2", BIN_2, "S1", 10, "receipt", "2026-03-02T08:00:00Z")
-            ]),
-        )
-        .await;
-    assert_eq!(s, 200, "{b}");
-    let (s, b) = app
-        .post(
-            "/api/v1/sites/T/count-lists",
-            &json!({"day": DAY, "counters": 1, "minutes": 120}),
-        )
-        .await;
-    assert_eq!(s, 200, "{b}");
-    for (user, roles, pin) in [
-        ("cora", &[Role::Counter][..], Some("4821")),
-        ("dan", &[Role::Counter][..], Some("5932")),
-        ("ines", &[Role::InventoryManager][..], None),
-    ] {
-        app.add_user(user, "T", roles, PASSWORD, pin).await;
-    }
 }
 
 async fn put(app: &TestApp, path: &str, body: &Value) {
@@ -154,7 +105,7 @@ async fn count(app: &TestApp, day: &str, who: &str, pin: &str, counts: &[(&str, 
             id(),
             at + 5_000,
             "line",
-            json!({"sku": "S1", "gtin": each(), "packs": qty, "qty": qty, "lot": "", "entry": "scan"}),
+            json!({"sku": "S1", "gtin": s1_each_gtin(), "packs": qty, "qty": qty, "lot": "", "entry": "scan"}),
         ));
         events.push(event(id(), at + 12_000, "bin_done", json!({})));
     }
@@ -232,8 +183,8 @@ async fn settle(app: &TestApp, at: i64) -> usize {
 #[tokio::test]
 async fn nothing_is_posted_while_the_switch_is_off_nor_for_counts_received_before_it_was_on() {
     let app = spawn_app().await;
-    site(&app).await;
-    count(&app, DAY, "cora", "4821", &[(BIN_1, 39)]).await;
+    review_site(&app, &[]).await;
+    count(&app, REVIEW_DAY, "cora", "4821", &[(BIN_1, 39)]).await;
     let r = current(&app, BIN_1).await;
     assert_eq!(
         (r["verdict"].as_str(), r["variance"].as_i64()),
@@ -255,7 +206,7 @@ async fn nothing_is_posted_while_the_switch_is_off_nor_for_counts_received_befor
 #[tokio::test]
 async fn a_settled_variance_within_tolerance_is_adjusted_once_at_its_posting_instant() {
     let app = spawn_app().await;
-    site(&app).await;
+    review_site(&app, &[]).await;
     set_auto_adjust(&app, true).await;
     put(
         &app,
@@ -263,7 +214,7 @@ async fn a_settled_variance_within_tolerance_is_adjusted_once_at_its_posting_ins
         &json!([{"source": "api", "uncertainty_ms": 0, "posting_lag_ms": LAG_MS}]),
     )
     .await;
-    count(&app, DAY, "cora", "4821", &[(BIN_1, 39), (BIN_2, 9)]).await;
+    count(&app, REVIEW_DAY, "cora", "4821", &[(BIN_1, 39), (BIN_2, 9)]).await;
     let hit = current(&app, BIN_1).await;
     let out = current(&app, BIN_2).await;
     assert_eq!(
@@ -415,10 +366,10 @@ async fn a_settled_variance_within_tolerance_is_adjusted_once_at_its_posting_ins
 #[tokio::test]
 async fn a_count_the_recount_found_wrong_is_never_adjusted() {
     let app = spawn_app().await;
-    site(&app).await;
+    review_site(&app, &[]).await;
     set_auto_adjust(&app, true).await;
     // 36 against 40 is out of tolerance: a recount goes to dan, who finds the 40.
-    count(&app, DAY, "cora", "4821", &[(BIN_1, 36)]).await;
+    count(&app, REVIEW_DAY, "cora", "4821", &[(BIN_1, 36)]).await;
     let first = current(&app, BIN_1).await;
     assert_eq!(first["verdict"], "out_of_tolerance", "{first}");
     // Waiting for its recount: nothing is posted.

@@ -13,7 +13,7 @@ mod common;
 
 use cairn::accounts::Role;
 use cairn::time::Timestamp;
-use common::{TestApp, spawn_app};
+use common::{PhoneSite, TestApp, phone_site, spawn_app};
 use rand::SeedableRng;
 use rand::seq::SliceRandom;
 use serde_json::{Value, json};
@@ -33,24 +33,12 @@ struct Site {
 }
 
 async fn site() -> Site {
-    let app = spawn_app().await;
-    app.small_site().await;
-    let mut tokens = Vec::new();
-    for (user, pin) in [("cora", "4821"), ("dan", "5932")] {
-        app.add_user(user, "T", &[Role::Counter], "test-only-password", Some(pin))
-            .await;
-        let a = app.enrol(user, pin, "T").await;
-        assert_eq!(a.status, 201, "{}", a.text);
-        tokens.push(a.json()["token"].as_str().unwrap().to_string());
-    }
-    let base = Timestamp::now().0 - 30 * MIN;
-    let dan = tokens.pop().unwrap();
-    let cora = tokens.pop().unwrap();
+    let PhoneSite { app, cora, dan } = phone_site(&[]).await;
     Site {
         app,
         cora,
         dan,
-        base,
+        base: Timestamp::now().0 - 30 * MIN,
     }
 }
 
@@ -93,34 +81,12 @@ impl Site {
 
     /// Sends a JSON PUT with the admin's token.
     async fn put(&self, path: &str, body: &Value) -> (u16, Value) {
-        let r = self
-            .app
-            .with_token(self.app.client.put(format!("{}{path}", self.app.base)))
-            .json(body)
-            .send()
-            .await
-            .unwrap();
-        (r.status().as_u16(), r.json().await.unwrap_or(Value::Null))
+        self.app.put(path, body).await
     }
 
     /// Sends events from a phone whose clock is the real clock, with a round trip of `rtt` ms.
     async fn sync(&self, token: &str, events: Vec<Value>, rtt: i64) -> Value {
-        let body = json!({"device_clock": Timestamp::now().0, "rtt_ms": rtt, "events": events});
-        let r = self
-            .app
-            .client
-            .post(format!("{}/api/v1/sites/T/sync", self.app.base))
-            .bearer_auth(token)
-            .json(&body)
-            .send()
-            .await
-            .unwrap();
-        assert_eq!(r.status(), 200);
-        let v: Value = r.json().await.unwrap();
-        for res in v["results"].as_array().unwrap() {
-            assert_eq!(res["status"], "accepted", "{v}");
-        }
-        v
+        self.app.sync(token, events, rtt).await
     }
 
     /// Reads results (`state` open, current or all), oldest first.

@@ -8,12 +8,12 @@
 mod common;
 
 use cairn::accounts::Role;
-use common::{Answer, Auth, Body, Session, TestApp, attr, form_fields, spawn_app, unescape};
+use common::{
+    Answer, Auth, Body, PASSWORD, Session, TestApp, attr, form_fields, spawn_app, unescape,
+};
 use reqwest::Method;
 use serde_json::{Value, json};
 
-/// Test-only secrets.
-const PASSWORD: &str = "test-only-password";
 const PAGE: &str = "/sites/T/count-policy";
 const SETTINGS: &str = "/sites/T/count-policy/settings";
 const SOURCES: &str = "/sites/T/count-policy/sources";
@@ -23,14 +23,13 @@ const REASONS: &str = "/sites/T/count-policy/reason-codes";
 /// cora (counter).
 async fn site(app: &TestApp) {
     app.small_site().await;
-    for (name, role, pin) in [
-        ("ines", Role::InventoryManager, None),
-        ("sam", Role::Supervisor, None),
-        ("pia", Role::Planner, None),
-        ("cora", Role::Counter, Some("4821")),
-    ] {
-        app.add_user(name, "T", &[role], PASSWORD, pin).await;
-    }
+    app.add_people(&[
+        ("ines", &[Role::InventoryManager], None),
+        ("sam", &[Role::Supervisor], None),
+        ("pia", &[Role::Planner], None),
+        ("cora", &[Role::Counter], Some("4821")),
+    ])
+    .await;
 }
 
 async fn get(app: &TestApp, s: &Session, path: &str) -> Answer {

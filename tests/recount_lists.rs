@@ -16,7 +16,7 @@ mod common;
 use cairn::accounts::Role;
 use cairn::time::Timestamp;
 use chrono::{NaiveDate, Utc};
-use common::{Auth, Body, Session, TestApp, spawn_app};
+use common::{Auth, Body, PASSWORD, PhoneSite, Session, TestApp, phone_site};
 use reqwest::Method;
 use serde_json::{Value, json};
 use uuid::Uuid;
@@ -24,8 +24,6 @@ use uuid::Uuid;
 const MIN: i64 = 60_000;
 const HOUR: i64 = 60 * MIN;
 const BIN1: &str = "A-01-01-1";
-/// Test-only secret of the supervisor's password.
-const PASSWORD: &str = "test-only-password";
 
 /// Site T (two bins, S1 and L1), counters cora and dan with phones, supervisor sam;
 /// every weekday worked; forty of S1 in bin 1 since the day before yesterday.
@@ -40,18 +38,7 @@ struct Site {
 }
 
 async fn site() -> Site {
-    let app = spawn_app().await;
-    app.small_site().await;
-    let mut tokens = Vec::new();
-    for (user, pin) in [("cora", "4821"), ("dan", "5932")] {
-        app.add_user(user, "T", &[Role::Counter], PASSWORD, Some(pin))
-            .await;
-        let a = app.enrol(user, pin, "T").await;
-        assert_eq!(a.status, 201, "{}", a.text);
-        tokens.push(a.json()["token"].as_str().unwrap().to_string());
-    }
-    app.add_user("sam", "T", &[Role::Supervisor], PASSWORD, None)
-        .await;
+    let PhoneSite { app, cora, dan } = phone_site(&[("sam", &[Role::Supervisor], None)]).await;
     let today = Utc::now().date_naive();
     let yesterday = today.pred_opt().unwrap();
     let noon_before = yesterday
@@ -61,13 +48,14 @@ async fn site() -> Site {
         .timestamp_millis();
     let s = Site {
         app,
-        dan: tokens.pop().unwrap(),
-        cora: tokens.pop().unwrap(),
+        cora,
+        dan,
         today,
         yesterday,
         noon_before,
     };
     let (st, b) = s
+        .app
         .put(
             "/api/v1/sites/T/planning/calendar",
             &json!({"working_weekdays": ["mon", "tue", "wed", "thu", "fri", "sat", "sun"]}),
@@ -82,17 +70,6 @@ async fn site() -> Site {
 }
 
 impl Site {
-    async fn put(&self, path: &str, body: &Value) -> (u16, Value) {
-        let r = self
-            .app
-            .with_token(self.app.client.put(format!("{}{path}", self.app.base)))
-            .json(body)
-            .send()
-            .await
-            .unwrap();
-        (r.status().as_u16(), r.json().await.unwrap_or(Value::Null))
-    }
-
     /// Builds (or with `replace` rebuilds) the list of `day` through the API.
     async fn build(&self, day: NaiveDate, counters: u32, replace: bool) -> Value {
         let body = json!({"day": day.to_string(), "counters": counters, "minutes": 120,
@@ -113,30 +90,12 @@ impl Site {
 
     /// Gives run `run` of `day` to `who`; returns the status.
     async fn hold(&self, day: NaiveDate, run: u64, who: &str) -> (u16, Value) {
-        self.put(
-            &format!("/api/v1/sites/T/count-lists/{day}/runs/{run}"),
-            &json!({"holder": who}),
-        )
-        .await
-    }
-
-    /// Sends a phone's events; every one must be accepted.
-    async fn sync(&self, token: &str, events: Vec<Value>) {
-        let body = json!({"device_clock": Timestamp::now().0, "rtt_ms": 0, "events": events});
-        let r = self
-            .app
-            .client
-            .post(format!("{}/api/v1/sites/T/sync", self.app.base))
-            .bearer_auth(token)
-            .json(&body)
-            .send()
+        self.app
+            .put(
+                &format!("/api/v1/sites/T/count-lists/{day}/runs/{run}"),
+                &json!({"holder": who}),
+            )
             .await
-            .unwrap();
-        assert_eq!(r.status(), 200);
-        let v: Value = r.json().await.unwrap();
-        for res in v["results"].as_array().unwrap() {
-            assert_eq!(res["status"], "accepted", "{v}");
-        }
     }
 
     /// Counts `qty` of S1 in bin 1 from `at` on, against `task` if any.
@@ -158,7 +117,7 @@ impl Site {
             json!({"sku": "S1", "gtin": null, "packs": 1, "qty": qty, "lot": "", "entry": "keypad"}),
         );
         let done = event(at + 2 * MIN, "bin_done", json!({}));
-        self.sync(token, vec![opened, line, done]).await;
+        self.app.sync(token, vec![opened, line, done], 0).await;
         pass
     }
 
@@ -538,7 +497,7 @@ async fn a_list_whose_task_has_a_count_line_is_not_rebuilt_even_before_its_bin_o
     let line = json!({"id": Uuid::now_v7().to_string(), "at": Timestamp::now().0, "count": pass,
                       "task": task["id"], "bin": BIN1, "type": "line", "sku": "S1",
                       "gtin": null, "packs": 1, "qty": 40, "lot": "", "entry": "keypad"});
-    s.sync(&s.cora, vec![line]).await;
+    s.app.sync(&s.cora, vec![line], 0).await;
     let before = s.list(day).await;
     let body = json!({"day": day.to_string(), "counters": 2, "minutes": 120, "replace": true});
     let (st, refused) = s.app.post("/api/v1/sites/T/count-lists", &body).await;

@@ -7,79 +7,33 @@
 mod common;
 
 use cairn::accounts::Role;
-use common::{Answer, Auth, Body, Session, TestApp, movement, spawn_app};
+use common::{
+    Answer, Auth, BIN_1, BIN_2, Body, PASSWORD, Person, REVIEW_DAY, Session, TestApp, review_site,
+    s1_each_gtin, spawn_app,
+};
 use reqwest::Method;
 use serde_json::{Value, json};
 use uuid::Uuid;
 
-const DAY: &str = "2026-03-03";
 /// 2026-03-03T09:00:00Z in ms (the phone's clock; the server corrects it).
 const NINE: i64 = 1_772_528_400_000;
-const PASSWORD: &str = "test-only-password";
-/// Bins of the test site and what the book holds of S1 (unit cost 4.50) in each.
-const BIN_1: &str = "A-01-01-1";
-const BIN_2: &str = "A-01-02-1";
-
-/// A GTIN-13 from its first twelve digits, with the check digit of GS1 General
-/// Specifications §7.9 (mod-10 weights 3-1) worked out by the scanning crate.
-fn gtin13(body: &str) -> String {
-    let check = cairn_scan::gtin_check_digit(body).expect("digits");
-    format!("{body}{check}")
-}
-
-fn each() -> String {
-    gtin13("501234567890")
-}
 
 fn id() -> String {
     Uuid::now_v7().to_string()
 }
 
-/// Site T: 40 of S1 in BIN_1 and 10 in BIN_2, a day's list of one run, and the
-/// people of the review: cora and dan count, ines is the inventory manager,
-/// sam is supervisor and admin (no inventory manager role), mona both counts
-/// and manages inventory, eve counts too.
-async fn review_site(app: &TestApp) {
-    app.small_site().await;
-    let (s, b) = app
-        .post(
-            "/api/v1/sites/T/packs",
-            &json!([{"sku": "S1", "gtin": each(), "level": "each", "units": 1}]),
-        )
-        .await;
-    assert_eq!(s, 200, "{b}");
-    let (s, b) = app
-        .post(
-            "/api/v1/sites/T/movements",
-            &json!([
-                movement("r1", BIN_1, "S1", 40, "receipt", "2026-03-02T08:00:00Z"),
-                movement("r2", BIN_2, "S1", 10, "receipt", "2026-03-02T08:00:00Z")
-            ]),
-        )
-        .await;
-    assert_eq!(s, 200, "{b}");
-    let (s, b) = app
-        .post(
-            "/api/v1/sites/T/count-lists",
-            &json!({"day": DAY, "counters": 1, "minutes": 120}),
-        )
-        .await;
-    assert_eq!(s, 200, "{b}");
-    for (user, roles, pin) in [
-        ("cora", &[Role::Counter][..], Some("4821")),
-        ("dan", &[Role::Counter][..], Some("5932")),
-        ("ines", &[Role::InventoryManager][..], None),
-        ("sam", &[Role::Supervisor, Role::Admin][..], None),
-        (
-            "mona",
-            &[Role::Counter, Role::InventoryManager][..],
-            Some("6043"),
-        ),
-        ("eve", &[Role::Counter][..], Some("7154")),
-    ] {
-        app.add_user(user, "T", roles, PASSWORD, pin).await;
-    }
-}
+/// Who the review needs besides `review_site`'s cora, dan and ines: sam is
+/// supervisor and admin (no inventory manager role), mona both counts and
+/// manages inventory, eve counts too.
+const OTHERS: &[Person] = &[
+    ("sam", &[Role::Supervisor, Role::Admin], None),
+    (
+        "mona",
+        &[Role::Counter, Role::InventoryManager],
+        Some("6043"),
+    ),
+    ("eve", &[Role::Counter], Some("7154")),
+];
 
 /// Changes the site's review limits through the netting settings API.
 async fn set_limits(app: &TestApp, manager_minor: i64, bulk_minor: i64) {
@@ -102,7 +56,7 @@ async fn set_limits(app: &TestApp, manager_minor: i64, bulk_minor: i64) {
 /// Gives run 1 to `who`, enrols their phone and counts each bin as `(bin, qty)`
 /// with a scan of single units, marking it done: one sync request.
 async fn count_bins(app: &TestApp, who: &str, pin: &str, counts: &[(&str, i64)]) {
-    count_run(app, DAY, who, pin, counts).await;
+    count_run(app, REVIEW_DAY, who, pin, counts).await;
 }
 
 /// Recounts bins as dan. The phone's clock is corrected to the server's, so the
@@ -199,7 +153,7 @@ async fn count_tasks(
             id(),
             at + 5_000,
             "line",
-            json!({"sku": "S1", "gtin": each(), "packs": qty, "qty": qty, "lot": "", "entry": "scan"}),
+            json!({"sku": "S1", "gtin": s1_each_gtin(), "packs": qty, "qty": qty, "lot": "", "entry": "scan"}),
         ));
         events.push(event(id(), at + 12_000, "bin_done", json!({})));
     }
@@ -303,7 +257,7 @@ fn ms(t: &Value) -> i64 {
 #[tokio::test]
 async fn an_approved_difference_posts_one_adjustment_at_the_book_states_instant() {
     let app = spawn_app().await;
-    review_site(&app).await;
+    review_site(&app, OTHERS).await;
     count_bins(&app, "cora", "4821", &[(BIN_1, 36)]).await;
     let ines = app.sign_in("ines", PASSWORD).await;
 
@@ -422,7 +376,7 @@ async fn an_approved_difference_posts_one_adjustment_at_the_book_states_instant(
 #[tokio::test]
 async fn a_rejection_keeps_the_book_and_records_the_investigation_note() {
     let app = spawn_app().await;
-    review_site(&app).await;
+    review_site(&app, OTHERS).await;
     count_bins(&app, "cora", "4821", &[(BIN_1, 36)]).await;
     recount_bins(&app, &[(BIN_1, 36)]).await;
     let ines = app.sign_in("ines", PASSWORD).await;
@@ -467,7 +421,7 @@ async fn a_rejection_keeps_the_book_and_records_the_investigation_note() {
 #[tokio::test]
 async fn nobody_approves_a_difference_in_a_bin_they_counted() {
     let app = spawn_app().await;
-    review_site(&app).await;
+    review_site(&app, OTHERS).await;
     count_bins(&app, "mona", "6043", &[(BIN_1, 36)]).await;
     recount_bins(&app, &[(BIN_1, 36)]).await;
     let mona = app.sign_in("mona", PASSWORD).await;
@@ -514,7 +468,7 @@ async fn nobody_approves_a_difference_in_a_bin_they_counted() {
 #[tokio::test]
 async fn above_the_value_limit_only_an_inventory_manager_approves() {
     let app = spawn_app().await;
-    review_site(&app).await;
+    review_site(&app, OTHERS).await;
     // 4 × 4.50 = 18.00 is above a limit of 10.00.
     set_limits(&app, 1_000, 500).await;
     count_bins(&app, "cora", "4821", &[(BIN_1, 36)]).await;
@@ -542,7 +496,7 @@ async fn above_the_value_limit_only_an_inventory_manager_approves() {
 async fn bulk_approval_takes_only_the_differences_below_the_bulk_limit_and_the_feed_lists_each_once()
  {
     let app = spawn_app().await;
-    review_site(&app).await;
+    review_site(&app, OTHERS).await;
     // BIN_1: −4 × 4.50 = 18.00; BIN_2: −5 × 4.50 = 22.50; bulk below 20.00.
     set_limits(&app, 100_000, 2_000).await;
     // Today's list has two runs, held by dan and eve, so the two recounts are
@@ -687,7 +641,7 @@ async fn bulk_approval_takes_only_the_differences_below_the_bulk_limit_and_the_f
 #[tokio::test]
 async fn a_provisional_difference_waits_until_it_settles() {
     let app = spawn_app().await;
-    review_site(&app).await;
+    review_site(&app, OTHERS).await;
     // A host that may post up to a day late keeps the count provisional.
     let r = app
         .with_token(
@@ -720,7 +674,7 @@ async fn a_provisional_difference_waits_until_it_settles() {
 #[tokio::test]
 async fn decisions_need_a_decider_and_the_form_token() {
     let app = spawn_app().await;
-    review_site(&app).await;
+    review_site(&app, OTHERS).await;
     count_bins(&app, "cora", "4821", &[(BIN_1, 36)]).await;
     let ines = app.sign_in("ines", PASSWORD).await;
     let id = difference_of(&app, &ines, BIN_1).await;
@@ -751,7 +705,7 @@ async fn decisions_need_a_decider_and_the_form_token() {
 #[tokio::test]
 async fn a_reason_code_a_decision_names_is_relabelled_but_never_removed() {
     let app = spawn_app().await;
-    review_site(&app).await;
+    review_site(&app, OTHERS).await;
     count_bins(&app, "cora", "4821", &[(BIN_1, 36)]).await;
     recount_bins(&app, &[(BIN_1, 36)]).await;
     let ines = app.sign_in("ines", PASSWORD).await;

@@ -7,26 +7,23 @@ mod common;
 use cairn::accounts::Role;
 use cairn::master::SiteCode;
 use cairn::time::Timestamp;
-use common::{Answer, Auth, Body, Session, TestApp, movement, spawn_app};
+use common::{Answer, Auth, Body, PASSWORD, Session, TestApp, movement, spawn_app};
 use reqwest::Method;
 use serde_json::{Value, json};
 
-/// Test-only secrets.
-const PASSWORD: &str = "test-only-password";
 const DAY: &str = "2026-03-03";
 
 /// Site T with a negative balance on A-01-01-1 and a short pick reported on
 /// A-01-02-1; supervisor sam, planner pia, counters cora and dan.
 async fn site(app: &TestApp) {
     app.site_with_triggers().await;
-    for (name, role, pin) in [
-        ("sam", Role::Supervisor, None),
-        ("pia", Role::Planner, None),
-        ("cora", Role::Counter, Some("4821")),
-        ("dan", Role::Counter, Some("5932")),
-    ] {
-        app.add_user(name, "T", &[role], PASSWORD, pin).await;
-    }
+    app.add_people(&[
+        ("sam", &[Role::Supervisor], None),
+        ("pia", &[Role::Planner], None),
+        ("cora", &[Role::Counter], Some("4821")),
+        ("dan", &[Role::Counter], Some("5932")),
+    ])
+    .await;
 }
 
 fn page(day: &str) -> String {

@@ -17,6 +17,11 @@ use std::sync::OnceLock;
 /// The test site's admin, who also posts the test data. Test-only password.
 pub const ROOT_USER: &str = "root";
 pub const ROOT_PASSWORD: &str = "test-only-root-password";
+/// The test-only password of everyone `add_people` adds.
+pub const PASSWORD: &str = "test-only-password";
+
+/// One person of site T: user name, roles there, and a phone PIN (for counters).
+pub type Person<'a> = (&'a str, &'a [Role], Option<&'a str>);
 
 /// How a test request proves who sends it.
 #[derive(Debug, Clone)]
@@ -198,6 +203,13 @@ impl TestApp {
         (status, r.json().await.unwrap_or(Value::Null))
     }
 
+    /// Sends a JSON POST that must succeed (200) and returns the JSON body.
+    pub async fn post_ok(&self, path: &str, body: &Value) -> Value {
+        let (s, b) = self.post(path, body).await;
+        assert_eq!(s, 200, "POST {path}: {b}");
+        b
+    }
+
     /// Sends a JSON PUT and returns the status and JSON body.
     pub async fn put(&self, path: &str, body: &Value) -> (u16, Value) {
         let r = self
@@ -277,6 +289,13 @@ impl TestApp {
             )
             .await
             .unwrap();
+    }
+
+    /// Adds people to site T, each with the test-only [`PASSWORD`].
+    pub async fn add_people(&self, people: &[Person<'_>]) {
+        for (name, roles, pin) in people {
+            self.add_user(name, "T", roles, PASSWORD, *pin).await;
+        }
     }
 
     /// Issues an integration token for a user and role at a site, straight in the store.
@@ -387,6 +406,35 @@ impl TestApp {
         .await
     }
 
+    /// Enrols a phone for a counter at site T and returns its device token.
+    pub async fn phone(&self, user: &str, pin: &str) -> String {
+        let a = self.enrol(user, pin, "T").await;
+        assert_eq!(a.status, 201, "{}", a.text);
+        a.json()["token"].as_str().unwrap().to_string()
+    }
+
+    /// Sends a phone's events to site T with the phone's clock at the real clock and a
+    /// round trip of `rtt_ms`; every event must be accepted. Returns the answer.
+    pub async fn sync(&self, token: &str, events: Vec<Value>, rtt_ms: i64) -> Value {
+        let body = json!({"device_clock": cairn::time::Timestamp::now().0, "rtt_ms": rtt_ms,
+                          "events": events});
+        let auth = Auth::Bearer(token.to_string());
+        let a = self
+            .send(
+                Method::POST,
+                "/api/v1/sites/T/sync",
+                &auth,
+                Body::Json(body),
+            )
+            .await;
+        assert_eq!(a.status, 200, "{}", a.text);
+        let v = a.json();
+        for res in v["results"].as_array().unwrap() {
+            assert_eq!(res["status"], "accepted", "{v}");
+        }
+        v
+    }
+
     /// Creates site `T` with two bins, a plain item `S1` and a lot-tracked
     /// item `L1`, an admin `root`, and makes `get`/`post` send root's admin token.
     pub async fn small_site(&self) {
@@ -452,6 +500,76 @@ impl TestApp {
             .await;
         assert_eq!((s, b["recorded"].as_u64()), (200, Some(1)), "{b}");
     }
+}
+
+/// Site T of the counting suites and the device tokens of its counters' phones.
+pub struct PhoneSite {
+    pub app: TestApp,
+    pub cora: String,
+    pub dan: String,
+}
+
+/// Starts an app with site T (`small_site`), counters cora (PIN 4821) and dan
+/// (PIN 5932), each with an enrolled phone, and then `others`.
+pub async fn phone_site(others: &[Person<'_>]) -> PhoneSite {
+    let app = spawn_app().await;
+    app.small_site().await;
+    app.add_people(&[("cora", &[Role::Counter], Some("4821"))])
+        .await;
+    let cora = app.phone("cora", "4821").await;
+    app.add_people(&[("dan", &[Role::Counter], Some("5932"))])
+        .await;
+    let dan = app.phone("dan", "5932").await;
+    app.add_people(others).await;
+    PhoneSite { app, cora, dan }
+}
+
+/// The two bins of `small_site`.
+pub const BIN_1: &str = "A-01-01-1";
+pub const BIN_2: &str = "A-01-02-1";
+/// The day of the count list of `review_site`.
+pub const REVIEW_DAY: &str = "2026-03-03";
+
+/// Returns the GTIN-13 of one unit (each) of S1 at `review_site`: its first twelve
+/// digits with the check digit of GS1 General Specifications §7.9 (mod-10 weights
+/// 3-1) worked out by the scanning crate.
+pub fn s1_each_gtin() -> String {
+    let body = "501234567890";
+    let check = cairn_scan::gtin_check_digit(body).expect("digits");
+    format!("{body}{check}")
+}
+
+/// Makes site T of the review suites (on `small_site`): S1's each has the GTIN
+/// `s1_each_gtin()`; the book holds 40 of S1 (unit cost 4.50) in BIN_1 and 10 in
+/// BIN_2; the list of REVIEW_DAY has one run; cora (PIN 4821) and dan (PIN 5932)
+/// count, ines is the inventory manager; then `extra` people join.
+pub async fn review_site(app: &TestApp, extra: &[Person<'_>]) {
+    app.small_site().await;
+    app.post_ok(
+        "/api/v1/sites/T/packs",
+        &json!([{"sku": "S1", "gtin": s1_each_gtin(), "level": "each", "units": 1}]),
+    )
+    .await;
+    app.post_ok(
+        "/api/v1/sites/T/movements",
+        &json!([
+            movement("r1", BIN_1, "S1", 40, "receipt", "2026-03-02T08:00:00Z"),
+            movement("r2", BIN_2, "S1", 10, "receipt", "2026-03-02T08:00:00Z")
+        ]),
+    )
+    .await;
+    app.post_ok(
+        "/api/v1/sites/T/count-lists",
+        &json!({"day": REVIEW_DAY, "counters": 1, "minutes": 120}),
+    )
+    .await;
+    app.add_people(&[
+        ("cora", &[Role::Counter], Some("4821")),
+        ("dan", &[Role::Counter], Some("5932")),
+        ("ines", &[Role::InventoryManager], None),
+    ])
+    .await;
+    app.add_people(extra).await;
 }
 
 /// Builds one movement as the API takes it.
