@@ -11,6 +11,7 @@ use anyhow::{Context, bail, ensure};
 use indicatif::{ProgressBar, ProgressStyle};
 use rusqlite::backup::{Backup, StepResult};
 use rusqlite::{Connection, OpenFlags};
+use std::io::IsTerminal;
 use std::path::{Path, PathBuf};
 use std::time::{Duration, Instant};
 
@@ -32,19 +33,24 @@ pub enum Depth {
     Quick,
 }
 
-/// A spinner on standard error that names the stage a long backup or restore is in,
-/// with the time it has taken so far; hidden when `show` is false.
-pub fn spinner(show: bool) -> ProgressBar {
-    if !show {
-        return ProgressBar::hidden();
-    }
-    let pb = ProgressBar::new_spinner();
-    pb.set_style(
-        ProgressStyle::with_template("{spinner} {elapsed:>4} {msg}")
-            .expect("the template is a fixed, valid string"),
-    );
-    pb.enable_steady_tick(Duration::from_millis(200));
-    pb
+/// Runs `work` with a spinner on standard error that names the stage a long backup or
+/// restore is in, with the time it has taken so far; hidden unless standard error is a
+/// terminal, and cleared when `work` returns.
+pub fn with_spinner<T>(work: impl FnOnce(&ProgressBar) -> T) -> T {
+    let pb = if std::io::stderr().is_terminal() {
+        let pb = ProgressBar::new_spinner();
+        pb.set_style(
+            ProgressStyle::with_template("{spinner} {elapsed:>4} {msg}")
+                .expect("the template is a fixed, valid string"),
+        );
+        pb.enable_steady_tick(Duration::from_millis(200));
+        pb
+    } else {
+        ProgressBar::hidden()
+    };
+    let out = work(&pb);
+    pb.finish_and_clear();
+    out
 }
 
 /// What a checked database file holds.

@@ -14,7 +14,6 @@ use crate::planning::plan::{Capacity, Fill};
 use crate::store::Store;
 use crate::store::sqlite::Synchronous;
 use clap::{Args, Parser, Subcommand};
-use std::io::IsTerminal;
 use std::net::SocketAddr;
 use std::path::PathBuf;
 use std::process::ExitCode;
@@ -613,10 +612,7 @@ async fn dispatch(command: Command) -> anyhow::Result<()> {
         Command::User { command } => user_command(command).await,
         Command::Backup { db, to, keep } => {
             let report = tokio::task::spawn_blocking(move || {
-                let progress = crate::backup::spinner(std::io::stderr().is_terminal());
-                let r = crate::backup::backup(&db, &to, keep, &progress);
-                progress.finish_and_clear();
-                r
+                crate::backup::with_spinner(|p| crate::backup::backup(&db, &to, keep, p))
             })
             .await??;
             println!("backup {report}");
@@ -624,10 +620,7 @@ async fn dispatch(command: Command) -> anyhow::Result<()> {
         }
         Command::Restore { from, db, force } => {
             let report = tokio::task::spawn_blocking(move || {
-                let progress = crate::backup::spinner(std::io::stderr().is_terminal());
-                let r = crate::backup::restore(&from, &db, force, &progress);
-                progress.finish_and_clear();
-                r
+                crate::backup::with_spinner(|p| crate::backup::restore(&from, &db, force, p))
             })
             .await??;
             println!("restored {report}");
