@@ -18,8 +18,12 @@ use reqwest::Method;
 use serde_json::{Value, json};
 use uuid::Uuid;
 
-/// 2026-03-03T09:00:00Z in ms (the phone's clock; the server corrects it).
-const NINE: i64 = 1_772_528_400_000;
+/// The phone's clock now: an hour behind the server's (the server corrects it). Read
+/// afresh for each count, and a count's events are a few ms apart and sent at once, so a
+/// later count (a recount) is later than the one before it in server time too.
+fn phone_now() -> i64 {
+    cairn::time::Timestamp::now().0 - 3_600_000
+}
 /// A host that may post up to 15 minutes late: counts stay provisional that long.
 const LAG_MS: i64 = 900_000;
 const DAY_MS: i64 = 86_400_000;
@@ -75,6 +79,7 @@ async fn count(app: &TestApp, day: &str, who: &str, pin: &str, counts: &[(&str, 
         .json()
         .await
         .unwrap();
+    let phone_at = phone_now() - 20 * counts.len() as i64;
     let mut events = Vec::new();
     for (i, (bin, qty)) in counts.iter().enumerate() {
         let task = tasks["tasks"]
@@ -84,7 +89,7 @@ async fn count(app: &TestApp, day: &str, who: &str, pin: &str, counts: &[(&str, 
             .find(|t| t["bin"] == *bin && t["done"] != true)
             .unwrap_or_else(|| panic!("{who} holds {bin}: {tasks}"));
         let pass = id();
-        let at = NINE + i as i64 * 20_000;
+        let at = phone_at + i as i64 * 20;
         let base = json!({"count": pass, "task": task["id"], "bin": bin});
         let event = |eid: String, t: i64, kind: &str, extra: Value| {
             let mut e = base.clone();
@@ -103,17 +108,21 @@ async fn count(app: &TestApp, day: &str, who: &str, pin: &str, counts: &[(&str, 
         ));
         events.push(event(
             id(),
-            at + 5_000,
+            at + 5,
             "line",
             json!({"sku": "S1", "gtin": s1_each_gtin(), "packs": qty, "qty": qty, "lot": "", "entry": "scan"}),
         ));
-        events.push(event(id(), at + 12_000, "bin_done", json!({})));
+        events.push(event(id(), at + 12, "bin_done", json!({})));
     }
     let r = app
         .client
         .post(format!("{}/api/v1/sites/T/sync", app.base))
         .bearer_auth(&token)
-        .json(&json!({"device_clock": NINE + 60_000, "rtt_ms": 80, "events": events}))
+        .json(&app.stamped(
+            &token,
+            &json!({"device_clock": phone_at + 20 * counts.len() as i64, "rtt_ms": 80,
+                    "events": events}),
+        ))
         .send()
         .await
         .unwrap();

@@ -212,7 +212,8 @@ async fn bad_events_in_a_sync_are_refused_one_by_one_and_leave_no_trace() {
         .to_string();
     let v7 = || uuid::Uuid::now_v7().to_string();
     let pass = v7();
-    let base = |kind: &str| json!({"id": v7(), "at": 1_772_528_400_000i64, "count": pass, "task": null, "bin": "A-01-01-1", "type": kind});
+    let now = cairn::time::Timestamp::now().0;
+    let base = |kind: &str| json!({"id": v7(), "at": now - 1_000, "user": "cora", "count": pass, "task": null, "bin": "A-01-01-1", "type": kind});
     let with = |kind: &str, extra: Value| {
         let mut e = base(kind);
         e.as_object_mut()
@@ -279,7 +280,7 @@ async fn bad_events_in_a_sync_are_refused_one_by_one_and_leave_no_trace() {
         (json!(null), "cannot be read"),
     ];
     let before = table_counts(&app.db);
-    let body = json!({"device_clock": 1_772_528_401_000i64, "rtt_ms": 20,
+    let body = json!({"device_clock": now, "rtt_ms": 20,
                       "events": events.iter().map(|(e, _)| e.clone()).collect::<Vec<_>>()});
     let r = app
         .client

@@ -159,18 +159,17 @@ fn counter(db: &str, name: &str) {
 }
 
 /// One sync request: a pass over a bin with its lines, all new ids.
-fn sync_batch() -> (Vec<String>, Vec<String>, Value) {
+fn sync_batch(user: &str) -> (Vec<String>, Vec<String>, Value) {
     let pass = uuid::Uuid::now_v7().to_string();
+    let start = chrono_now_ms() - 60_000;
     let mut ids = vec![pass.clone()];
     let mut lines = Vec::new();
-    let mut events = vec![
-        json!({"id": pass, "at": 1_772_528_400_000i64, "count": pass,
-        "task": null, "bin": "A-01-01-1", "type": "bin_opened", "label": ""}),
-    ];
+    let mut events = vec![json!({"id": pass, "at": start, "user": user, "count": pass,
+        "task": null, "bin": "A-01-01-1", "type": "bin_opened", "label": ""})];
     for i in 1..SYNC_BATCH {
         let id = uuid::Uuid::now_v7().to_string();
         events.push(
-            json!({"id": id, "at": 1_772_528_400_000i64 + i as i64, "count": pass,
+            json!({"id": id, "at": start + i as i64, "user": user, "count": pass,
             "task": null, "bin": "A-01-01-1", "type": "line", "sku": "S1", "qty": 1 + i as i64 % 9,
             "lot": "", "entry": "keypad"}),
         );
@@ -235,12 +234,13 @@ async fn a_killed_server_loses_no_acknowledged_movement() {
             }
         }
         let mut tasks = Vec::new();
-        for phone in &phone_tokens {
+        for (p, phone) in phone_tokens.iter().enumerate() {
             let (client, url, phone) = (client.clone(), url.clone(), phone.clone());
+            let user = format!("phone{p}");
             let (events, lines) = (acked_events.clone(), acked_lines.clone());
             tasks.push(tokio::spawn(async move {
                 loop {
-                    let (ids, line_ids, body) = sync_batch();
+                    let (ids, line_ids, body) = sync_batch(&user);
                     let Ok(r) = client
                         .post(format!("{url}/api/v1/sites/T/sync"))
                         .bearer_auth(&phone)

@@ -1213,9 +1213,10 @@ async fn a_simulated_day_flags_every_clear_record_error_and_nothing_moves_alone_
                     .client
                     .post(format!("{}/api/v1/sites/KLN/sync", app.base))
                     .bearer_auth(&phone)
-                    .json(
+                    .json(&app.stamped(
+                        &phone,
                         &json!({"device_clock": Timestamp::now().0, "rtt_ms": 0, "events": events}),
-                    )
+                    ))
                     .send()
                     .await
                     .unwrap();

@@ -267,10 +267,11 @@ async fn the_probes_answer_and_metrics_count_requests_sync_events_and_database_t
         .unwrap()
         .to_string();
     let pass = uuid::Uuid::now_v7().to_string();
-    let body = json!({"device_clock": 1_772_528_400_000i64, "rtt_ms": 50, "events": [
-        {"id": pass, "at": 1_772_528_399_000i64, "count": pass, "task": null, "bin": "A-01-01-1",
-         "type": "bin_opened", "label": ""},
-        {"id": uuid::Uuid::now_v7().to_string(), "at": 1_772_528_399_500i64, "count": pass,
+    let now = cairn::time::Timestamp::now().0;
+    let body = json!({"device_clock": now, "rtt_ms": 50, "events": [
+        {"id": pass, "at": now - 1_000, "user": "cora", "count": pass, "task": null,
+         "bin": "A-01-01-1", "type": "bin_opened", "label": ""},
+        {"id": uuid::Uuid::now_v7().to_string(), "at": now - 500, "user": "cora", "count": pass,
          "task": null, "bin": "Z-09-09-9", "type": "bin_done"}
     ]});
     let r = app

@@ -15,8 +15,12 @@ use reqwest::Method;
 use serde_json::{Value, json};
 use uuid::Uuid;
 
-/// 2026-03-03T09:00:00Z in ms (the phone's clock; the server corrects it).
-const NINE: i64 = 1_772_528_400_000;
+/// The phone's clock now: an hour behind the server's (the server corrects it). Read
+/// afresh for each count, and a count's events are a few ms apart and sent at once, so a
+/// later count (a recount) is later than the one before it in server time too.
+fn phone_now() -> i64 {
+    cairn::time::Timestamp::now().0 - 3_600_000
+}
 
 fn id() -> String {
     Uuid::now_v7().to_string()
@@ -119,6 +123,7 @@ async fn count_tasks(
     (token, tasks): &(String, Value),
     counts: &[(&str, i64)],
 ) -> usize {
+    let phone_at = phone_now() - 20 * counts.len() as i64;
     let mut events = Vec::new();
     let mut found = 0;
     for (i, (bin, qty)) in counts.iter().enumerate() {
@@ -132,7 +137,7 @@ async fn count_tasks(
         };
         found += 1;
         let count = id();
-        let at = NINE + i as i64 * 20_000;
+        let at = phone_at + i as i64 * 20;
         let base = json!({"count": count, "task": task["id"], "bin": bin});
         let event = |eid: String, t: i64, kind: &str, extra: Value| {
             let mut e = base.clone();
@@ -151,11 +156,11 @@ async fn count_tasks(
         ));
         events.push(event(
             id(),
-            at + 5_000,
+            at + 5,
             "line",
             json!({"sku": "S1", "gtin": s1_each_gtin(), "packs": qty, "qty": qty, "lot": "", "entry": "scan"}),
         ));
-        events.push(event(id(), at + 12_000, "bin_done", json!({})));
+        events.push(event(id(), at + 12, "bin_done", json!({})));
     }
     if events.is_empty() {
         return 0;
@@ -164,7 +169,11 @@ async fn count_tasks(
         .client
         .post(format!("{}/api/v1/sites/T/sync", app.base))
         .bearer_auth(token)
-        .json(&json!({"device_clock": NINE + 60_000, "rtt_ms": 80, "events": events}))
+        .json(&app.stamped(
+            token,
+            &json!({"device_clock": phone_at + 20 * counts.len() as i64, "rtt_ms": 80,
+                    "events": events}),
+        ))
         .send()
         .await
         .unwrap();

@@ -428,6 +428,8 @@ async fn play(t: &Template, s: &Script, seed: u64, mode: Mode, db: &Path) -> Ack
         if p.next < script.len() && (rng.random_bool(0.6) || p.outbox.is_empty()) {
             let mut e = script[p.next].body.clone();
             e["at"] = json!(p.clock(started));
+            // The template enrolled phone i for counter{i}.
+            e["user"] = json!(format!("counter{who}"));
             p.outbox.push(e);
             p.next += 1;
             continue;

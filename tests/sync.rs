@@ -9,8 +9,12 @@ use serde_json::{Value, json};
 use uuid::Uuid;
 
 const DAY: &str = "2026-03-03";
-/// 2026-03-03T09:00:00Z in ms.
-const NINE: i64 = 1_772_528_400_000;
+/// The phone's clock in these tests: an hour before the run, in whole minutes, the same
+/// for every test of the run (the server corrects it to its own clock).
+fn nine() -> i64 {
+    static NINE: std::sync::OnceLock<i64> = std::sync::OnceLock::new();
+    *NINE.get_or_init(|| (cairn::time::Timestamp::now().0 - 3_600_000) / 60_000 * 60_000)
+}
 
 /// A GTIN-13 from its first twelve digits, with the check digit of GS1 General
 /// Specifications §7.9 (the mod-10 weights 3-1) worked out by the scanning crate.
@@ -115,7 +119,7 @@ async fn sync(app: &common::TestApp, token: &str, body: &Value) -> (u16, Value) 
         .client
         .post(format!("{}/api/v1/sites/T/sync", app.base))
         .bearer_auth(token)
-        .json(body)
+        .json(&app.stamped(token, body))
         .send()
         .await
         .unwrap();
@@ -181,15 +185,15 @@ async fn a_counted_bin_becomes_a_pass_with_lines_and_its_task_is_done() {
     let case = gtin13("501234567891");
     let each = gtin13("501234567890");
     let events = vec![
-        pass.opened(NINE, &phone.label),
-        pass.line(NINE + 5_000, &case, 3, 36),
-        pass.line(NINE + 9_000, &each, 4, 4),
-        pass.event(NINE + 12_000, "bin_done", json!({})),
+        pass.opened(nine(), &phone.label),
+        pass.line(nine() + 5_000, &case, 3, 36),
+        pass.line(nine() + 9_000, &each, 4, 4),
+        pass.event(nine() + 12_000, "bin_done", json!({})),
     ];
     let (s, answer) = sync(
         &app,
         &phone.token,
-        &json!({"device_clock": NINE + 60_000, "rtt_ms": 80, "events": events}),
+        &json!({"device_clock": nine() + 60_000, "rtt_ms": 80, "events": events}),
     )
     .await;
     assert_eq!(s, 200, "{answer}");
@@ -214,9 +218,9 @@ async fn a_resent_batch_is_acknowledged_again_and_applied_once() {
     let app = spawn_app().await;
     let phone = counting_site(&app).await;
     let pass = Pass::new(phone.task);
-    let body = json!({"device_clock": NINE, "events": [
-        pass.opened(NINE - 1_000, &phone.label),
-        pass.line(NINE - 500, &gtin13("501234567890"), 1, 1),
+    let body = json!({"device_clock": nine(), "events": [
+        pass.opened(nine() - 1_000, &phone.label),
+        pass.line(nine() - 500, &gtin13("501234567890"), 1, 1),
     ]});
     let (_, first) = sync(&app, &phone.token, &body).await;
     let (s, again) = sync(&app, &phone.token, &body).await;
@@ -239,11 +243,11 @@ async fn a_known_id_with_other_content_is_a_conflict_and_nothing_is_merged() {
     let app = spawn_app().await;
     let phone = counting_site(&app).await;
     let pass = Pass::new(phone.task);
-    let line = pass.line(NINE, &gtin13("501234567890"), 2, 2);
+    let line = pass.line(nine(), &gtin13("501234567890"), 2, 2);
     let (_, _) = sync(
         &app,
         &phone.token,
-        &json!({"device_clock": NINE, "events": [line.clone()]}),
+        &json!({"device_clock": nine(), "events": [line.clone()]}),
     )
     .await;
     let mut changed = line.clone();
@@ -252,7 +256,7 @@ async fn a_known_id_with_other_content_is_a_conflict_and_nothing_is_merged() {
     let (_, answer) = sync(
         &app,
         &phone.token,
-        &json!({"device_clock": NINE, "events": [changed]}),
+        &json!({"device_clock": nine(), "events": [changed]}),
     )
     .await;
     assert_eq!(statuses(&answer), ["conflict"]);
@@ -266,24 +270,24 @@ async fn each_event_is_judged_on_its_own_and_a_refusal_says_why() {
     let app = spawn_app().await;
     let phone = counting_site(&app).await;
     let pass = Pass::new(phone.task);
-    let mut unknown_sku = pass.line(NINE + 3, &gtin13("501234567890"), 1, 1);
+    let mut unknown_sku = pass.line(nine() + 3, &gtin13("501234567890"), 1, 1);
     unknown_sku["sku"] = json!("NOPE");
     unknown_sku["gtin"] = Value::Null;
-    let mut wrong_bin = pass.event(NINE + 6, "bin_done", json!({}));
+    let mut wrong_bin = pass.event(nine() + 6, "bin_done", json!({}));
     wrong_bin["bin"] = json!("A-01-02-1");
     let events = vec![
-        pass.opened(NINE, &phone.label),
-        pass.line(NINE + 1, &gtin13("501234567892"), 1, 1), // L1's GTIN under S1
-        pass.line(NINE + 2, &gtin13("501234567891"), 2, 12), // 2 cases are 24, not 12
+        pass.opened(nine(), &phone.label),
+        pass.line(nine() + 1, &gtin13("501234567892"), 1, 1), // L1's GTIN under S1
+        pass.line(nine() + 2, &gtin13("501234567891"), 2, 12), // 2 cases are 24, not 12
         unknown_sku,
         json!({"id": id(), "type": "line"}),
-        pass.line(NINE + 4, &gtin13("501234567890"), 7, 7),
+        pass.line(nine() + 4, &gtin13("501234567890"), 7, 7),
         wrong_bin,
     ];
     let (s, answer) = sync(
         &app,
         &phone.token,
-        &json!({"device_clock": NINE + 10, "events": events}),
+        &json!({"device_clock": nine() + 10, "events": events}),
     )
     .await;
     assert_eq!(s, 200, "{answer}");
@@ -313,7 +317,7 @@ async fn a_label_of_another_bin_is_refused() {
     let (_, answer) = sync(
         &app,
         &phone.token,
-        &json!({"device_clock": NINE, "events": [pass.opened(NINE, other.text())]}),
+        &json!({"device_clock": nine(), "events": [pass.opened(nine(), other.text())]}),
     )
     .await;
     assert_eq!(statuses(&answer), ["rejected"]);
@@ -332,19 +336,19 @@ async fn events_arriving_out_of_order_make_the_same_pass_and_an_undo_may_come_fi
     let phone = counting_site(&app).await;
     let pass = Pass::new(phone.task);
     let each = gtin13("501234567890");
-    let kept = pass.line(NINE + 2_000, &each, 2, 2);
-    let undone = pass.line(NINE + 3_000, &each, 9, 9);
-    let undo = pass.event(NINE + 4_000, "undo", json!({"line": undone["id"]}));
-    let done = pass.event(NINE + 5_000, "bin_done", json!({}));
+    let kept = pass.line(nine() + 2_000, &each, 2, 2);
+    let undone = pass.line(nine() + 3_000, &each, 9, 9);
+    let undo = pass.event(nine() + 4_000, "undo", json!({"line": undone["id"]}));
+    let done = pass.event(nine() + 5_000, "bin_done", json!({}));
     // Sent in reverse, over two requests.
     for batch in [
         vec![done, undo],
-        vec![undone, kept, pass.opened(NINE, &phone.label)],
+        vec![undone, kept, pass.opened(nine(), &phone.label)],
     ] {
         let (_, answer) = sync(
             &app,
             &phone.token,
-            &json!({"device_clock": NINE + 9_000, "events": batch}),
+            &json!({"device_clock": nine() + 9_000, "events": batch}),
         )
         .await;
         assert!(
@@ -379,9 +383,9 @@ async fn a_count_for_a_task_moved_to_another_counter_is_kept_and_flagged() {
     let (_, answer) = sync(
         &app,
         &phone.token,
-        &json!({"device_clock": NINE, "events": [
-            pass.opened(NINE - 10, &phone.label),
-            pass.line(NINE - 5, &gtin13("501234567890"), 3, 3),
+        &json!({"device_clock": nine(), "events": [
+            pass.opened(nine() - 10, &phone.label),
+            pass.line(nine() - 5, &gtin13("501234567890"), 3, 3),
         ]}),
     )
     .await;
@@ -395,13 +399,13 @@ async fn an_item_the_bin_was_not_expected_to_hold_is_found_stock() {
     let app = spawn_app().await;
     let phone = counting_site(&app).await;
     let pass = Pass::new(phone.task);
-    let mut found = pass.line(NINE, &gtin13("501234567892"), 1, 1);
+    let mut found = pass.line(nine(), &gtin13("501234567892"), 1, 1);
     found["sku"] = json!("L1");
     found["lot"] = json!("B-77");
     let (_, answer) = sync(
         &app,
         &phone.token,
-        &json!({"device_clock": NINE, "events": [found]}),
+        &json!({"device_clock": nine(), "events": [found]}),
     )
     .await;
     assert_eq!(
@@ -449,15 +453,15 @@ async fn a_whole_request_that_cannot_be_read_is_refused_and_changes_nothing() {
     let app = spawn_app().await;
     let phone = counting_site(&app).await;
     let pass = Pass::new(phone.task);
-    let line = pass.line(NINE, &gtin13("501234567890"), 1, 1);
+    let line = pass.line(nine(), &gtin13("501234567890"), 1, 1);
     let too_many: Vec<Value> = (0..501).map(|_| line.clone()).collect();
     for (body, needle) in [
         (
-            json!({"device_clock": NINE, "events": too_many}),
+            json!({"device_clock": nine(), "events": too_many}),
             "at most 500",
         ),
         (
-            json!({"device_clock": NINE, "events": [line.clone()], "extra": 1}),
+            json!({"device_clock": nine(), "events": [line.clone()], "extra": 1}),
             "unknown field",
         ),
         (
@@ -465,7 +469,7 @@ async fn a_whole_request_that_cannot_be_read_is_refused_and_changes_nothing() {
             "device_clock",
         ),
         (
-            json!({"device_clock": NINE, "rtt_ms": -4, "events": []}),
+            json!({"device_clock": nine(), "rtt_ms": -4, "events": []}),
             "rtt_ms",
         ),
     ] {
@@ -521,14 +525,14 @@ async fn only_counters_sync_and_a_supervisor_cannot_send_counts() {
     let (s, _) = app
         .post(
             "/api/v1/sites/T/sync",
-            &json!({"device_clock": NINE, "events": []}),
+            &json!({"device_clock": nine(), "events": []}),
         )
         .await;
     assert_eq!(s, 403, "the admin token is not a counter");
     let (s, _) = sync(
         &app,
         &phone.token,
-        &json!({"device_clock": NINE, "events": []}),
+        &json!({"device_clock": nine(), "events": []}),
     )
     .await;
     assert_eq!(s, 200);

@@ -282,13 +282,17 @@ async fn phone(
             break;
         }
         let now = chrono::Utc::now().timestamp_millis();
+        // Events are made before the request is sent, never after its device_clock.
+        let start = now - batch as i64;
         let pass = uuid::Uuid::now_v7().to_string();
-        let mut events = vec![json!({"id": pass, "at": now, "count": pass, "task": null,
-                                     "bin": bin, "type": "bin_opened", "label": ""})];
+        // Phone i belongs to counter phone{i} (set_up).
+        let user = format!("phone{i}");
+        let mut events = vec![json!({"id": pass, "at": start, "user": user, "count": pass,
+                                     "task": null, "bin": bin, "type": "bin_opened", "label": ""})];
         for k in 1..batch {
             events.push(
-                json!({"id": uuid::Uuid::now_v7().to_string(), "at": now + k as i64,
-                "count": pass, "task": null, "bin": bin, "type": "line", "sku": "LOAD-1",
+                json!({"id": uuid::Uuid::now_v7().to_string(), "at": start + k as i64,
+                "user": user, "count": pass, "task": null, "bin": bin, "type": "line", "sku": "LOAD-1",
                 "qty": 1 + (k % 9) as i64, "lot": "", "entry": "keypad"}),
             );
         }

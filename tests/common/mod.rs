@@ -122,6 +122,20 @@ pub fn form_fields(html: &str, action: &str) -> Vec<(String, String)> {
     out
 }
 
+/// Says on each event that `user` made it, where the event does not say (the wire's
+/// `user`).
+pub fn made_by(user: &str, events: Vec<Value>) -> Vec<Value> {
+    events
+        .into_iter()
+        .map(|mut e| {
+            if let Some(o) = e.as_object_mut() {
+                o.entry("user").or_insert_with(|| json!(user));
+            }
+            e
+        })
+        .collect()
+}
+
 /// A running test server and a client for it.
 pub struct TestApp {
     pub base: String,
@@ -130,6 +144,9 @@ pub struct TestApp {
     pub db: PathBuf,
     /// The bearer token `get`, `post` and `post_raw` send (set by `small_site`).
     pub token: OnceLock<String>,
+    /// Who each phone enrolled through `enrol` belongs to (token → sign-in name), so
+    /// events sent with a token say who made them.
+    phones: std::sync::Mutex<std::collections::HashMap<String, String>>,
     _dir: tempfile::TempDir,
     shutdown: Option<tokio::sync::oneshot::Sender<()>>,
 }
@@ -166,6 +183,7 @@ pub async fn spawn_app() -> TestApp {
         state,
         db,
         token: OnceLock::new(),
+        phones: Default::default(),
         _dir: dir,
         shutdown: Some(tx),
     }
@@ -395,15 +413,57 @@ impl TestApp {
 
     /// Enrols a phone for a counter and returns the answer.
     pub async fn enrol(&self, user: &str, pin: &str, site: &str) -> Answer {
-        self.send(
-            Method::POST,
-            "/api/v1/devices",
-            &Auth::Anonymous,
-            Body::Json(
-                json!({"user": user, "pin": pin, "site": site, "device_name": "test phone"}),
-            ),
-        )
-        .await
+        let a = self
+            .send(
+                Method::POST,
+                "/api/v1/devices",
+                &Auth::Anonymous,
+                Body::Json(
+                    json!({"user": user, "pin": pin, "site": site, "device_name": "test phone"}),
+                ),
+            )
+            .await;
+        if let Some(token) = a.json().get("token").and_then(Value::as_str) {
+            self.phones
+                .lock()
+                .expect("the phone map is never poisoned")
+                .insert(token.to_string(), user.to_string());
+        }
+        a
+    }
+
+    /// Returns the sign-in name of the person a phone enrolled through `enrol` belongs to.
+    pub fn phone_user(&self, token: &str) -> String {
+        self.phones
+            .lock()
+            .expect("the phone map is never poisoned")
+            .get(token)
+            .cloned()
+            .unwrap_or_else(|| panic!("no phone was enrolled with token {token}"))
+    }
+
+    /// Says on each event that `token`'s person made it, where the event does not say
+    /// (events sent with a token `enrol` did not give are left as they are).
+    pub fn made_by(&self, token: &str, events: Vec<Value>) -> Vec<Value> {
+        let user = self
+            .phones
+            .lock()
+            .expect("the phone map is never poisoned")
+            .get(token)
+            .cloned();
+        match user {
+            Some(user) => made_by(&user, events),
+            None => events,
+        }
+    }
+
+    /// Returns a sync request body whose events say that `token`'s person made them.
+    pub fn stamped(&self, token: &str, body: &Value) -> Value {
+        let mut body = body.clone();
+        if let Some(events) = body.get_mut("events").and_then(Value::as_array_mut) {
+            *events = self.made_by(token, std::mem::take(events));
+        }
+        body
     }
 
     /// Enrols a phone for a counter at site T and returns its device token.
@@ -416,6 +476,7 @@ impl TestApp {
     /// Sends a phone's events to site T with the phone's clock at the real clock and a
     /// round trip of `rtt_ms`; every event must be accepted. Returns the answer.
     pub async fn sync(&self, token: &str, events: Vec<Value>, rtt_ms: i64) -> Value {
+        let events = self.made_by(token, events);
         let body = json!({"device_clock": cairn::time::Timestamp::now().0, "rtt_ms": rtt_ms,
                           "events": events});
         let auth = Auth::Bearer(token.to_string());

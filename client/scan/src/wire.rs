@@ -78,6 +78,10 @@ impl EventType {
 pub struct WireEvent {
     pub id: String,
     pub at: i64,
+    /// The name of the person who made the event (the one signed in on the phone then):
+    /// the server refuses an event whose person is not the one the token belongs to, so
+    /// counts waiting on a shared phone are never credited to the next person.
+    pub user: String,
     pub count: String,
     #[serde(default)]
     pub task: Option<i64>,
@@ -193,6 +197,9 @@ pub enum EventFlag {
     Reassigned,
     /// The bin was not expected to hold this item.
     FoundStock,
+    /// The count's times cannot be trusted (the phone's clock moved while the bin was
+    /// counted, or the pass spans far too long): its results wait for a person's review.
+    Held,
 }
 
 /// The answer for one event, in the order sent.
@@ -264,7 +271,7 @@ mod tests {
     #[test]
     fn a_line_reads_its_fields_and_a_missing_one_is_named() {
         let ok = line(
-            r#"{"id":"a","at":1,"count":"c","task":4,"bin":"A-01-01-1","type":"line",
+            r#"{"id":"a","at":1,"user":"u","count":"c","task":4,"bin":"A-01-01-1","type":"line",
                "sku":"KL-1","gtin":"05012345678900","packs":2,"qty":24,"lot":"L1","entry":"scan"}"#,
         )
         .unwrap();
@@ -272,28 +279,33 @@ mod tests {
             panic!("not a line")
         };
         assert_eq!((l.packs, l.qty, l.lot.as_str()), (2, 24, "L1"));
-        let missing = line(r#"{"id":"a","at":1,"count":"c","bin":"B","type":"line","qty":3}"#);
+        let missing =
+            line(r#"{"id":"a","at":1,"user":"u","count":"c","bin":"B","type":"line","qty":3}"#);
         assert_eq!(missing.unwrap_err(), "a line event needs 'sku'");
     }
 
     #[test]
     fn unknown_fields_and_bad_quantities_are_refused() {
         assert!(
-            line(r#"{"id":"a","at":1,"count":"c","bin":"B","type":"bin_done","qtty":1}"#).is_err()
+            line(
+                r#"{"id":"a","at":1,"user":"u","count":"c","bin":"B","type":"bin_done","qtty":1}"#
+            )
+            .is_err()
         );
         let zero = line(
-            r#"{"id":"a","at":1,"count":"c","bin":"B","type":"line","sku":"S","qty":0,"entry":"keypad"}"#,
+            r#"{"id":"a","at":1,"user":"u","count":"c","bin":"B","type":"line","sku":"S","qty":0,"entry":"keypad"}"#,
         );
         assert!(zero.unwrap_err().contains("out of range"));
     }
 
     #[test]
     fn the_canonical_text_ignores_field_order_and_spacing() {
-        let a: WireEvent =
-            serde_json::from_str(r#"{"id":"a","at":1,"count":"c","bin":"B","type":"bin_done"}"#)
-                .unwrap();
+        let a: WireEvent = serde_json::from_str(
+            r#"{"id":"a","at":1,"user":"u","count":"c","bin":"B","type":"bin_done"}"#,
+        )
+        .unwrap();
         let b: WireEvent = serde_json::from_str(
-            r#"{ "type": "bin_done", "bin": "B", "count": "c", "at": 1, "id": "a", "task": null }"#,
+            r#"{ "type": "bin_done", "bin": "B", "count": "c", "at": 1, "id": "a", "task": null, "user": "u" }"#,
         )
         .unwrap();
         assert_eq!(a.canonical(), b.canonical());

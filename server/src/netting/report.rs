@@ -40,6 +40,12 @@ fn verdict_text(v: &Verdict) -> String {
                 .collect();
             format!("out of tolerance (breaks {})", names.join(", "))
         }
+        Verdict::Held { reason, variance } => {
+            format!(
+                "held for review: {reason} (the variance alone: {})",
+                verdict_text(variance)
+            )
+        }
     }
 }
 

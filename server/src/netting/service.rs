@@ -260,6 +260,21 @@ pub struct Evidence {
     pub settles_at: Timestamp,
 }
 
+/// Holds a netted key for review: out of tolerance whatever its variance, because its
+/// pass's times cannot be trusted (`reason`, in plain words). A stretched window must
+/// never make a hit (DESIGN §6).
+pub fn hold(n: &mut Netted, reason: &str) {
+    if matches!(n.evidence.judged, Verdict::Held { .. }) {
+        return;
+    }
+    let variance = Box::new(n.evidence.judged.clone());
+    n.evidence.judged = Verdict::Held {
+        reason: reason.to_string(),
+        variance,
+    };
+    n.verdict = VERDICT_OUT;
+}
+
 /// One key of a pass, netted and judged: what the store writes as a `count_result` row.
 #[derive(Debug, Clone, PartialEq, Eq)]
 pub struct Netted {

@@ -47,12 +47,20 @@ pub enum Verdict {
     WithinTolerance,
     /// Outside at least one limit; `breached` names them.
     OutOfTolerance { breached: Vec<Limit> },
+    /// Out whatever the variance: the count's times cannot be trusted (the phone's clock
+    /// stepped while the bin was counted, or the pass spans hours), so its window may be
+    /// stretched. `reason` says why in plain words; `variance` is how the variance alone
+    /// was judged.
+    Held {
+        reason: String,
+        variance: Box<Verdict>,
+    },
 }
 
 impl Verdict {
     /// Says whether this counts as a hit for record accuracy.
     pub fn is_hit(&self) -> bool {
-        !matches!(self, Verdict::OutOfTolerance { .. })
+        !matches!(self, Verdict::OutOfTolerance { .. } | Verdict::Held { .. })
     }
 }
 

@@ -34,6 +34,8 @@ pub enum Body {
 pub struct Event {
     pub id: Uuid,
     pub device_at: i64,
+    /// The name of the person the phone says made the event.
+    pub user: String,
     pub pass: Uuid,
     pub task: Option<i64>,
     pub bin: BinCode,
@@ -41,6 +43,9 @@ pub struct Event {
     pub body: Body,
     pub canonical: String,
 }
+
+/// Longest person's name an event may carry, in bytes (sign-in names are far shorter).
+const MAX_USER_NAME_BYTES: usize = 200;
 
 fn uuid_v7(text: &str, field: &str) -> Result<Uuid, String> {
     let id = Uuid::parse_str(text).map_err(|_| format!("{field} '{text}' is not a UUID"))?;
@@ -76,6 +81,12 @@ pub fn read(raw: &serde_json::Value, index: usize) -> Result<Event, EventResult>
     let bin = BinCode::parse(&wire.bin).map_err(|e| refuse(format!("bin: {e}")))?;
     if wire.at <= 0 {
         return Err(refuse(format!("at {} is not a time", wire.at)));
+    }
+    let user = wire.user.trim();
+    if user.is_empty() || user.len() > MAX_USER_NAME_BYTES {
+        return Err(refuse(format!(
+            "user: name the person who made the event (1 to {MAX_USER_NAME_BYTES} bytes)"
+        )));
     }
     let body = match wire.body().map_err(refuse)? {
         EventBody::BinOpened { label } => Body::BinOpened { label },
@@ -124,6 +135,7 @@ pub fn read(raw: &serde_json::Value, index: usize) -> Result<Event, EventResult>
     Ok(Event {
         id,
         device_at: wire.at,
+        user: user.to_string(),
         pass,
         task: wire.task,
         bin,
@@ -144,7 +156,7 @@ mod tests {
 
     #[test]
     fn a_v4_id_is_refused_and_named() {
-        let raw = json!({"id": Uuid::new_v4().to_string(), "at": 5, "count": v7(),
+        let raw = json!({"id": Uuid::new_v4().to_string(), "at": 5, "user": "cora", "count": v7(),
                          "bin": "A-01-01-1", "type": "bin_done"});
         let err = read(&raw, 0).unwrap_err();
         assert!(err.reason.unwrap().contains("version 4"));
@@ -152,7 +164,7 @@ mod tests {
 
     #[test]
     fn a_line_with_a_bad_check_digit_is_refused_with_the_parsers_message() {
-        let raw = json!({"id": v7(), "at": 5, "count": v7(), "bin": "A-01-01-1", "type": "line",
+        let raw = json!({"id": v7(), "at": 5, "user": "cora", "count": v7(), "bin": "A-01-01-1", "type": "line",
                          "sku": "KL-1", "gtin": "05012345678901", "qty": 1, "entry": "scan"});
         let reason = read(&raw, 3).unwrap_err().reason.unwrap();
         assert!(reason.starts_with("gtin:"), "{reason}");

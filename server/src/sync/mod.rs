@@ -9,6 +9,7 @@
 
 pub mod clock;
 pub mod event;
+pub mod plausible;
 pub mod routes;
 
 use crate::accounts::{DeviceId, UserId};

@@ -70,6 +70,8 @@ async fn sync(
             "rtt_ms {rtt} is out of range 0 to {MAX_RTT_MS}"
         )));
     }
+    super::plausible::check_device_clock(received_at, request.device_clock)
+        .map_err(ApiError::BadRequest)?;
     let clock = ClockSample::measure(received_at, request.device_clock, request.rtt_ms);
     let device = match p.credential {
         Credential::Device { id, .. } => Some(id),

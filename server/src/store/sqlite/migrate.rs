@@ -49,6 +49,11 @@ pub const MIGRATIONS: &[Migration] = &[
         name: "0007_netting_reach.sql",
         sql: include_str!("../../../../migrations/0007_netting_reach.sql"),
     },
+    Migration {
+        version: 8,
+        name: "0008_pass_clock.sql",
+        sql: include_str!("../../../../migrations/0008_pass_clock.sql"),
+    },
 ];
 
 /// Returns the newest schema version this binary knows.

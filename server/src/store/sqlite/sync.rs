@@ -6,13 +6,17 @@ use crate::accounts::DeviceId;
 use crate::master::SiteId;
 use crate::planning::phone::{ItemBrief, PackBrief};
 use crate::store::StoreError;
-use crate::store::sqlite::planning::finish_task;
+use crate::store::sqlite::planning::{day_start_ms, finish_task};
+use crate::store::sqlite::recount_tasks::would_recount_own_count;
 use crate::sync::SyncBatch;
 use crate::sync::clock::ClockSample;
 use crate::sync::event::{Body, Event, Line};
+use crate::sync::plausible::{self, Sampled, TaskFloor};
 use crate::time::Timestamp;
 use cairn_scan::wire::{EventFlag, EventResult};
+use chrono::NaiveDate;
 use rusqlite::{Connection, OptionalExtension, Transaction, params};
+use std::collections::BTreeMap;
 
 /// Why an event was refused, or a store failure that aborts the whole request.
 enum Refusal {
@@ -42,6 +46,7 @@ fn flag_text(flags: &[EventFlag]) -> String {
         .map(|f| match f {
             EventFlag::Reassigned => "reassigned",
             EventFlag::FoundStock => "found_stock",
+            EventFlag::Held => "held",
         })
         .collect::<Vec<_>>()
         .join(",")
@@ -52,16 +57,24 @@ fn flags_of(text: &str) -> Vec<EventFlag> {
         .filter_map(|f| match f {
             "reassigned" => Some(EventFlag::Reassigned),
             "found_stock" => Some(EventFlag::FoundStock),
+            "held" => Some(EventFlag::Held),
             _ => None,
         })
         .collect()
 }
 
-/// Applies a sync request: every event gets a result, in the order sent.
+/// Applies a sync request: every event gets a result, in the order sent. Passes whose
+/// times cannot be trusted ([`plausible`]) are marked held before netting sees them.
 pub fn apply_sync(tx: &Transaction, batch: &SyncBatch) -> Result<Vec<EventResult>, StoreError> {
+    let sample = Sampled::of(&batch.clock, batch.received_at);
+    let mut device_step = None;
     if let Some(device) = batch.sender.device {
+        device_step =
+            previous_sample(tx, device)?.and_then(|prev| plausible::clock_step(prev, sample));
         save_clock(tx, device, &batch.clock, batch.received_at)?;
     }
+    // The passes this request added events to, with the places of those events' results.
+    let mut touched: BTreeMap<i64, Vec<usize>> = BTreeMap::new();
     let mut results = Vec::with_capacity(batch.events.len());
     for event in &batch.events {
         let event = match event {
@@ -88,8 +101,9 @@ pub fn apply_sync(tx: &Transaction, batch: &SyncBatch) -> Result<Vec<EventResult
         }
         tx.execute_batch("savepoint sync_event")?;
         match apply_event(tx, batch, event) {
-            Ok(flags) => {
+            Ok((flags, pass)) => {
                 tx.execute_batch("release sync_event")?;
+                touched.entry(pass).or_default().push(results.len());
                 results.push(EventResult::accepted(&id, false, flags));
             }
             Err(Refusal::Event(why)) => {
@@ -99,7 +113,79 @@ pub fn apply_sync(tx: &Transaction, batch: &SyncBatch) -> Result<Vec<EventResult
             Err(Refusal::Store(e)) => return Err(e),
         }
     }
+    for (pass, places) in touched {
+        if hold_if_untrusted(tx, pass, sample, device_step)? {
+            for i in places {
+                results[i].flags.push(EventFlag::Held);
+            }
+        }
+    }
     Ok(results)
+}
+
+/// Reads the clock sample a device's previous sync left, if any.
+fn previous_sample(tx: &Transaction, device: DeviceId) -> Result<Option<Sampled>, StoreError> {
+    Ok(tx
+        .prepare_cached(
+            "select offset_ms, uncertainty_ms, sampled_at from device_clock where device_id = ?1",
+        )?
+        .query_row([device.0], |r| {
+            Ok(Sampled {
+                offset_ms: r.get(0)?,
+                uncertainty_ms: r.get(1)?,
+                at: Timestamp(r.get(2)?),
+            })
+        })
+        .optional()?)
+}
+
+/// Marks pass `pass` held when its times cannot be trusted: the phone's clock stepped
+/// since its previous sync (`device_step`) or since the sync that first carried the pass,
+/// or the pass spans too long. Says whether the pass is held (now or before).
+fn hold_if_untrusted(
+    tx: &Transaction,
+    pass: i64,
+    sample: Sampled,
+    device_step: Option<i64>,
+) -> Result<bool, StoreError> {
+    let (held, first, done, offset, uncertainty, sampled_at) = tx
+        .prepare_cached(
+            "select held, first_at, done_at, clock_offset_ms, clock_uncertainty_ms,
+                    clock_sampled_at
+             from count_pass where id = ?1",
+        )?
+        .query_row([pass], |r| {
+            Ok((
+                r.get::<_, Option<String>>(0)?,
+                Timestamp(r.get(1)?),
+                r.get::<_, Option<i64>>(2)?.map(Timestamp),
+                r.get::<_, Option<i64>>(3)?,
+                r.get::<_, Option<i64>>(4)?,
+                r.get::<_, Option<i64>>(5)?,
+            ))
+        })?;
+    if held.is_some() {
+        return Ok(true);
+    }
+    let first_sample = match (offset, uncertainty, sampled_at) {
+        (Some(offset_ms), Some(uncertainty_ms), Some(at)) => Some(Sampled {
+            offset_ms,
+            uncertainty_ms,
+            at: Timestamp(at),
+        }),
+        _ => None,
+    };
+    let step = device_step.or_else(|| first_sample.and_then(|f| plausible::clock_step(f, sample)));
+    let reason = match step {
+        Some(step) => Some(plausible::step_reason(step)),
+        None => done.and_then(|done| plausible::span_reason(first, done)),
+    };
+    let Some(reason) = reason else {
+        return Ok(false);
+    };
+    tx.prepare_cached("update count_pass set held = ?2 where id = ?1 and held is null")?
+        .execute(params![pass, reason])?;
+    Ok(true)
 }
 
 fn save_clock(
@@ -132,6 +218,32 @@ struct BinRow {
     level: u8,
 }
 
+/// A task an event names, as the checks need it.
+struct TaskRow {
+    bin: i64,
+    bin_code: String,
+    holder: String,
+    day: String,
+    built_at: i64,
+    /// For a recount: when the pass it re-checks was marked done.
+    recheck_done_at: Option<i64>,
+    is_recount: bool,
+}
+
+impl TaskRow {
+    /// Returns the earliest moment the task could have been known to a phone.
+    fn floor(&self) -> Result<TaskFloor, StoreError> {
+        if let Some(done) = self.recheck_done_at {
+            return Ok(TaskFloor::Recount(Timestamp(done)));
+        }
+        let day = NaiveDate::parse_from_str(&self.day, "%Y-%m-%d")
+            .map_err(|e| anyhow::anyhow!("a count list has the day '{}': {e}", self.day))?;
+        Ok(TaskFloor::Listed(Timestamp(
+            day_start_ms(day).min(self.built_at),
+        )))
+    }
+}
+
 /// A pass already stored.
 struct PassRow {
     id: i64,
@@ -140,11 +252,12 @@ struct PassRow {
     user: i64,
 }
 
+/// Applies one event; returns its flags and the pass it went to.
 fn apply_event(
     tx: &Transaction,
     batch: &SyncBatch,
     event: &Event,
-) -> Result<Vec<EventFlag>, Refusal> {
+) -> Result<(Vec<EventFlag>, i64), Refusal> {
     let (at, uncertainty) = batch.clock.correct(event.device_at);
     let site = batch.site;
     let bin = tx
@@ -165,31 +278,67 @@ fn apply_event(
     let Some(bin) = bin else {
         return refuse(format!("no bin {} at this site", event.bin));
     };
+    if event.user != batch.sender.user_name {
+        return refuse(format!(
+            "made by {} on this phone, but {} is signed in now: sign in as {} to send it",
+            event.user, batch.sender.user_name, event.user
+        ));
+    }
     let mut flags = Vec::new();
+    let mut floor = None;
     if let Some(task) = event.task {
-        let row: Option<(i64, String, String)> = tx
+        let row = tx
             .prepare_cached(
-                "select t.bin_id, coalesce(r.holder, ''), b.code from count_task t
+                "select t.bin_id, coalesce(r.holder, ''), b.code, l.day, l.built_at,
+                        (select p.done_at from count_result c join count_pass p on p.id = c.pass_id
+                         where c.id = t.recount_of),
+                        t.recount_of is not null
+                 from count_task t
                  join count_list l on l.id = t.list_id join bin b on b.id = t.bin_id
                  left join count_run r on r.list_id = t.list_id and r.run = t.run
                  where t.id = ?1 and l.site_id = ?2",
             )?
             .query_row(params![task, site.0], |r| {
-                Ok((r.get(0)?, r.get(1)?, r.get(2)?))
+                Ok(TaskRow {
+                    bin: r.get(0)?,
+                    holder: r.get(1)?,
+                    bin_code: r.get(2)?,
+                    day: r.get(3)?,
+                    built_at: r.get(4)?,
+                    recheck_done_at: r.get(5)?,
+                    is_recount: r.get(6)?,
+                })
             })
             .optional()?;
-        let Some((task_bin, holder, task_bin_code)) = row else {
+        let Some(row) = row else {
             return refuse(format!("no task {task} at this site"));
         };
-        if task_bin != bin.id {
+        if row.bin != bin.id {
             return refuse(format!(
-                "task {task} is for bin {task_bin_code}, not {}",
-                event.bin
+                "task {task} is for bin {}, not {}",
+                row.bin_code, event.bin
             ));
         }
-        if holder != batch.sender.user_name {
+        // A recount is blind and by someone else (DESIGN §5): whoever counted the key
+        // already may not decide it, whatever run they hold.
+        if row.is_recount && would_recount_own_count(tx, task, &batch.sender.user_name)? {
+            return refuse(format!(
+                "task {task} is a recount of a count you made (bin {}): another counter must \
+                 recount it, so this count was not kept",
+                row.bin_code
+            ));
+        }
+        if row.holder != batch.sender.user_name {
             flags.push(EventFlag::Reassigned);
         }
+        floor = Some(row.floor()?);
+    }
+    if let Err(why) = plausible::check_event(
+        at,
+        uncertainty,
+        &plausible::bounds(batch.received_at, floor),
+    ) {
+        return refuse(why);
     }
     let pass_uid = event.pass.to_string();
     let pass = tx
@@ -265,8 +414,9 @@ fn apply_event(
         None => {
             tx.prepare_cached(
                 "insert into count_pass (uid, site_id, bin_id, task_id, user_id, device_id,
-                     first_at, uncertainty_ms, reassigned, received_at)
-                 values (?1, ?2, ?3, ?4, ?5, ?6, ?7, ?8, ?9, ?10)",
+                     first_at, uncertainty_ms, reassigned, received_at, clock_offset_ms,
+                     clock_uncertainty_ms, clock_sampled_at)
+                 values (?1, ?2, ?3, ?4, ?5, ?6, ?7, ?8, ?9, ?10, ?11, ?12, ?13)",
             )?
             .execute(params![
                 pass_uid,
@@ -278,6 +428,9 @@ fn apply_event(
                 at.0,
                 uncertainty,
                 flags.contains(&EventFlag::Reassigned),
+                batch.received_at.0,
+                batch.clock.offset_ms,
+                batch.clock.uncertainty_ms,
                 batch.received_at.0
             ])?;
             tx.last_insert_rowid()
@@ -355,8 +508,8 @@ fn apply_event(
 
     tx.prepare_cached(
         "insert into sync_event (uid, site_id, user_id, device_id, pass_uid, kind, body,
-             device_at, at, uncertainty_ms, flags, received_at)
-         values (?1, ?2, ?3, ?4, ?5, ?6, ?7, ?8, ?9, ?10, ?11, ?12)",
+             device_at, at, uncertainty_ms, flags, received_at, made_by)
+         values (?1, ?2, ?3, ?4, ?5, ?6, ?7, ?8, ?9, ?10, ?11, ?12, ?13)",
     )?
     .execute(params![
         id,
@@ -370,9 +523,10 @@ fn apply_event(
         at.0,
         uncertainty,
         flag_text(&flags),
-        batch.received_at.0
+        batch.received_at.0,
+        event.user
     ])?;
-    Ok(flags)
+    Ok((flags, pass_id))
 }
 
 /// Resolves a line's item and checks its pack; says whether the bin was not expected

@@ -55,13 +55,15 @@ struct PassFacts {
     timing: CountTiming,
     /// The result this pass re-checks (its task's `recount_of`).
     recount_of: Option<i64>,
+    /// Why the pass's times cannot be trusted, when they cannot (`count_pass.held`).
+    held: Option<String>,
 }
 
 fn pass_facts(conn: &Connection, pass_id: i64) -> Result<Option<PassFacts>, StoreError> {
     Ok(conn
         .prepare_cached(
             "select p.id, p.uid, p.site_id, p.bin_id, b.code, p.task_id, t.est_s, u.name,
-                    p.first_at, p.done_at, p.uncertainty_ms, t.recount_of
+                    p.first_at, p.done_at, p.uncertainty_ms, t.recount_of, p.held
              from count_pass p join bin b on b.id = p.bin_id
              join user_account u on u.id = p.user_id
              left join count_task t on t.id = p.task_id
@@ -82,6 +84,7 @@ fn pass_facts(conn: &Connection, pass_id: i64) -> Result<Option<PassFacts>, Stor
                     clock_uncertainty_ms: r.get(10)?,
                 },
                 recount_of: r.get(11)?,
+                held: r.get(12)?,
             })
         })
         .optional()?)
@@ -368,7 +371,12 @@ pub fn net_pass(
                 }
                 None => (None, false),
             };
-        let Some(fresh) = fresh else { continue };
+        let Some(mut fresh) = fresh else { continue };
+        if let Some(why) = &pass.held
+            && !vanished_row
+        {
+            service::hold(&mut fresh, why);
+        }
         if let Some(c) = &current
             && !service::differs(&c.evidence, &fresh.evidence)
         {
