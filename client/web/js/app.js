@@ -232,6 +232,22 @@ async function signIn(ev) {
     device_name: String(f.get("device_name")).trim() || "phone",
   };
   $("#signin-error").textContent = "";
+  // Counts waiting on this phone belong to the person who made them: nobody else signs in
+  // until they are sent, or they would be lost (the server refuses them from anyone else).
+  const waiting = (await db.outboxMakers()).filter((m) => m.user !== body.user);
+  if (waiting.length > 0) {
+    const m = waiting[0];
+    $("#signin-error").textContent =
+      `This phone still holds ${m.count} count event${m.count === 1 ? "" : "s"} made by ${m.user}, not sent yet. ` +
+      `${m.user} must sign in first so they are sent (they are kept until then); then ${body.user} can sign in.`;
+    const offer = h("button", { type: "button", class: "small", id: "signin-as-maker" }, `Sign in as ${m.user} to send them`);
+    offer.addEventListener("click", () => {
+      ev.target.elements.user.value = m.user;
+      ev.target.elements.pin.focus();
+    });
+    $("#signin-error").append(" ", offer);
+    return;
+  }
   let r;
   try {
     r = await fetch("/api/v1/devices", {
@@ -349,7 +365,9 @@ async function commit(type, fields, kv = null) {
   const now = Date.now();
   const id = uuid7(now);
   const o = state.open;
-  const event = { id, at: now, count: o?.count ?? id, task: o?.task ?? fields.task ?? null, bin: o?.bin ?? fields.bin, type, ...fields };
+  // Each event names who made it, so counts left on a shared phone are never sent as the
+  // next person's (the server refuses an event whose person is not the token's).
+  const event = { id, at: now, user: state.device.user, count: o?.count ?? id, task: o?.task ?? fields.task ?? null, bin: o?.bin ?? fields.bin, type, ...fields };
   if (type === "bin_opened") event.count = id;
   await db.record(event, kv ? kv(event) : null);
   state.waiting += 1;
@@ -544,7 +562,9 @@ async function syncNow() {
     state.lastSync = (await db.get("last_sync")) ?? state.lastSync;
     if (outcome.state === "done") {
       state.retry = 0;
-      note("");
+      note(outcome.held.length === 0 ? "" :
+        `Sent, but the count of ${outcome.held.join(", ")} goes to a manager's review: this phone's clock ` +
+        "changed while the bin was being counted, so its times cannot be trusted. Keep the phone's date and time automatic.");
     } else if (outcome.state === "offline") {
       const wait = backoff(state.retry++);
       state.retryTimer = setTimeout(syncNow, wait);

@@ -73,6 +73,17 @@ export function record(event, kv = null) {
 export const outboxBatch = (limit) =>
   tx(["outbox"], "readonly", (t) => req(t.objectStore("outbox").getAll(null, limit)));
 
+/** Returns who made the events waiting in the outbox: [{user, count}], most first. */
+export function outboxMakers() {
+  return tx(["outbox"], "readonly", async (t) => {
+    const counts = new Map();
+    for (const e of await req(t.objectStore("outbox").getAll())) {
+      if (e.user) counts.set(e.user, (counts.get(e.user) ?? 0) + 1);
+    }
+    return [...counts].map(([user, count]) => ({ user, count })).sort((a, b) => b.count - a.count);
+  });
+}
+
 export const outboxCount = () => tx(["outbox"], "readonly", (t) => req(t.objectStore("outbox").count()));
 
 /**

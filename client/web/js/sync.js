@@ -33,10 +33,12 @@ export async function call(device, path, init = {}) {
 
 /** Why a sync stopped: `done`, `offline` (no answer / 5xx), `revoked` (401), `refused` (4xx). */
 export class SyncOutcome {
-  constructor(state, sent, message = "") {
+  constructor(state, sent, message = "", held = []) {
     this.state = state;
     this.sent = sent;
     this.message = message;
+    /** Bins whose counts the server holds for a manager's review (the phone's clock moved). */
+    this.held = held;
   }
 }
 
@@ -50,14 +52,19 @@ export async function syncOutbox(progress = () => {}) {
     if (!device) return new SyncOutcome("done", 0, "not signed in");
     let total = await db.outboxCount();
     let sent = 0;
+    const held = new Set();
     progress(sent, total);
     for (;;) {
-      const batch = await db.outboxBatch(MAX_SYNC_EVENTS);
+      // Only the signed-in person's events: anyone else's wait for them (the sign-in page
+      // lets nobody else in while they do). An event from before events named their maker
+      // is the signed-in person's.
+      const batch = (await db.outboxBatch(MAX_SYNC_EVENTS))
+        .filter((e) => (e.user ?? device.user) === device.user);
       if (batch.length === 0) break;
       const body = {
         device_clock: Date.now(),
         rtt_ms: usableRtt(await db.get("rtt_ms")),
-        events: batch.map(({ site: _site, ...e }) => e),
+        events: batch.map(({ site: _site, ...e }) => ({ ...e, user: e.user ?? device.user })),
       };
       let r;
       try {
@@ -73,6 +80,10 @@ export async function syncOutbox(progress = () => {}) {
       if (r.status >= 500) return new SyncOutcome("offline", sent, `the server answered ${r.status}`);
       if (!r.ok) return new SyncOutcome("refused", sent, `${r.status}: ${await text(r)}`);
       const answer = await r.json();
+      const bins = new Map(batch.map((e) => [e.id, e.bin]));
+      for (const res of answer.results ?? []) {
+        if ((res.flags ?? []).includes("held") && bins.has(res.id)) held.add(bins.get(res.id));
+      }
       const removed = await db.settle(batch, answer.results ?? []);
       if (removed === 0) return new SyncOutcome("refused", sent, "the server answered no event");
       sent += removed;
@@ -85,7 +96,7 @@ export async function syncOutbox(progress = () => {}) {
       await db.set("last_sync", Date.now());
       progress(sent, total);
     }
-    return new SyncOutcome("done", sent);
+    return new SyncOutcome("done", sent, "", [...held]);
   };
   if (globalThis.navigator?.locks) {
     return navigator.locks.request("cairn-sync", run);
