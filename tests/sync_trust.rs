@@ -4,17 +4,19 @@
 
 mod common;
 
+use cairn::accounts::Role;
 use cairn::time::Timestamp;
-use common::{BIN_1, PhoneSite, phone_site};
+use common::{Auth, BIN_1, Body, PASSWORD, PhoneSite, phone_site};
+use reqwest::Method;
 use serde_json::{Value, json};
 use uuid::Uuid;
 
 const MIN: i64 = 60_000;
 const HOUR: i64 = 60 * MIN;
 
-/// Site T with 30 of S1 in BIN_1 since yesterday; cora and dan count.
+/// Site T with 30 of S1 in BIN_1 since yesterday; cora and dan count, ines reviews.
 async fn site() -> PhoneSite {
-    let s = phone_site(&[]).await;
+    let s = phone_site(&[("ines", &[Role::InventoryManager], None)]).await;
     let at = Timestamp(Timestamp::now().0 - 24 * HOUR).to_string();
     s.app
         .post_ok(
@@ -247,6 +249,24 @@ async fn a_clock_stepped_between_two_syncs_holds_the_pass_instead_of_a_hit() {
     assert_eq!(st, 200, "{detail}");
     let text = detail.to_string();
     assert!(text.contains("clock was changed by 2 h 00 min"), "{text}");
+    // The manager's page of the difference says why it is held.
+    let ines = s.app.sign_in("ines", PASSWORD).await;
+    let page = s
+        .app
+        .send(
+            Method::GET,
+            &format!("/sites/T/differences/{}", res["id"]),
+            &Auth::Session(ines),
+            Body::Empty,
+        )
+        .await;
+    assert_eq!(page.status, 200, "{}", page.text);
+    assert!(page.text.contains("id=\"held\""), "{}", page.text);
+    assert!(
+        page.text.contains("clock was changed by 2 h 00 min"),
+        "{}",
+        page.text
+    );
     assert!(instants_are_sane(&s));
 }
 

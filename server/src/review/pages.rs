@@ -473,6 +473,8 @@ struct DetailPage {
     watermark: i64,
     states: Vec<StateRow>,
     evidence_error: String,
+    /// Why the count's times cannot be trusted, when its pass is held (DESIGN §6).
+    held: String,
     svg: String,
     moves: Vec<MoveRow>,
     scans: Vec<(String, i64, i64, String)>,
@@ -610,6 +612,7 @@ async fn render_detail(
         watermark: d.watermark,
         states,
         evidence_error,
+        held: held_reason(&d.evidence),
         svg,
         moves: d
             .moves
@@ -806,6 +809,19 @@ async fn reject(
         Ok(_) => Ok(Redirect::to(&detail_url(&site, id, "rejected")).into_response()),
         Err(r) => refused(&state, &p, site, id, r).await,
     }
+}
+
+/// Returns why a result is held for review (its pass's times cannot be trusted), or "".
+fn held_reason(evidence: &str) -> String {
+    serde_json::from_str::<serde_json::Value>(evidence)
+        .ok()
+        .and_then(|v| {
+            let judged = v.get("judged")?;
+            (judged.get("verdict")?.as_str()? == "held")
+                .then(|| judged.get("reason")?.as_str().map(str::to_string))
+                .flatten()
+        })
+        .unwrap_or_default()
 }
 
 #[cfg(test)]
