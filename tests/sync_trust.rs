@@ -55,6 +55,9 @@ impl Pass {
         e["id"] = json!(self.count);
         e
     }
+    fn done(&self, at: i64) -> Value {
+        self.event(at, "bin_done", json!({}))
+    }
     fn line(&self, at: i64, qty: i64) -> Value {
         self.event(
             at,
@@ -138,7 +141,7 @@ async fn a_bin_opened_in_1970_is_refused_and_the_empty_count_is_not_a_hit() {
         vec![
             p.opened(1_000),
             p.event(now - 2_000, "bin_empty", json!({})),
-            p.event(now - 1_000, "bin_done", json!({})),
+            p.done(now - 1_000),
         ],
     )
     .await;
@@ -170,10 +173,7 @@ async fn absurd_clocks_are_refused_whole_and_store_nothing() {
             &s,
             &s.cora,
             clock,
-            vec![
-                p.opened(clock - 5_000),
-                p.event(clock - 1_000, "bin_done", json!({})),
-            ],
+            vec![p.opened(clock - 5_000), p.done(clock - 1_000)],
         )
         .await;
         assert_eq!(st, 400, "device_clock {clock}: {a}");
@@ -190,7 +190,7 @@ async fn absurd_clocks_are_refused_whole_and_store_nothing() {
         vec![
             p.opened(i64::MAX),
             p.line(year_3000, 3),
-            p.event(now + 10 * MIN, "bin_done", json!({})),
+            p.done(now + 10 * MIN),
         ],
     )
     .await;
@@ -226,13 +226,7 @@ async fn a_clock_stepped_between_two_syncs_holds_the_pass_instead_of_a_hit() {
     );
     // The phone's clock is put back two hours before it marks the bin done.
     let stepped = Timestamp::now().0 - 2 * HOUR;
-    let (st, a) = send(
-        &s,
-        &s.cora,
-        stepped,
-        vec![p.event(stepped - 500, "bin_done", json!({}))],
-    )
-    .await;
+    let (st, a) = send(&s, &s.cora, stepped, vec![p.done(stepped - 500)]).await;
     assert_eq!(st, 200, "{a}");
     assert_eq!(a["results"][0]["status"], "accepted", "{a}");
     assert_eq!(a["results"][0]["flags"], json!(["held"]), "{a}");
@@ -282,7 +276,7 @@ async fn a_pass_spanning_hours_is_held() {
         vec![
             p.opened(now - 6 * HOUR),
             p.line(now - 6 * HOUR + MIN, 30),
-            p.event(now - 1_000, "bin_done", json!({})),
+            p.done(now - 1_000),
         ],
     )
     .await;
@@ -304,7 +298,7 @@ async fn the_first_counter_cannot_recount_their_own_count() {
             vec![
                 first.opened(now - 3 * MIN),
                 first.line(now - 2 * MIN, 25),
-                first.event(now - MIN, "bin_done", json!({})),
+                first.done(now - MIN),
             ],
             20,
         )
@@ -333,7 +327,7 @@ async fn the_first_counter_cannot_recount_their_own_count() {
         vec![
             own.opened(now - 2_000),
             own.line(now - 1_500, 25),
-            own.event(now - 1_000, "bin_done", json!({})),
+            own.done(now - 1_000),
         ],
     )
     .await;
@@ -370,7 +364,7 @@ async fn the_first_counter_cannot_recount_their_own_count() {
             vec![
                 dans.opened(now - 2_000),
                 dans.line(now - 1_500, 25),
-                dans.event(now - 1_000, "bin_done", json!({})),
+                dans.done(now - 1_000),
             ],
             20,
         )
