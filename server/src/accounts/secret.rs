@@ -137,25 +137,24 @@ fn decoy() -> &'static SecretHash {
     DECOY.get_or_init(|| hash_blocking(&Secret::new(random_text())))
 }
 
-/// Hashes a secret on a blocking thread, off the async runtime.
+/// Hashes a secret on a blocking thread, off the async runtime. Requests hash
+/// through [`HashGate`](super::hashing::HashGate) instead, which caps how many run at once.
 pub async fn hash(secret: Secret) -> anyhow::Result<SecretHash> {
     tokio::task::spawn_blocking(move || hash_blocking(&secret))
         .await
         .map_err(|e| anyhow::anyhow!("the hashing task failed: {e}"))
 }
 
-/// Checks a secret on a blocking thread; with no stored hash it checks a decoy
-/// and answers false, taking the same time.
-pub async fn verify(secret: Secret, stored: Option<SecretHash>) -> anyhow::Result<bool> {
-    tokio::task::spawn_blocking(move || match stored {
-        Some(h) => verify_blocking(&secret, &h),
+/// Checks a secret against a stored hash; with none it checks a decoy and
+/// answers false, taking the same time. Slow by design: call it on a blocking thread.
+pub fn verify_or_decoy_blocking(secret: &Secret, stored: Option<&SecretHash>) -> bool {
+    match stored {
+        Some(h) => verify_blocking(secret, h),
         None => {
-            verify_blocking(&secret, decoy());
+            verify_blocking(secret, decoy());
             false
         }
-    })
-    .await
-    .map_err(|e| anyhow::anyhow!("the verifying task failed: {e}"))
+    }
 }
 
 /// Returns `TOKEN_BYTES` random bytes from the operating system as base64url text.
