@@ -421,3 +421,151 @@ async fn a_page_form_that_stops_coming_is_answered_408_too() {
     let sent = read_to_close(&mut conn).await;
     assert!(sent.starts_with("HTTP/1.1 408"), "{sent}");
 }
+
+// ---- a sign-in flood against the real binary ------------------------------------
+
+/// Hashes the flooded server may run at once (set on its command line, so the
+/// bound below does not depend on this machine's cores).
+const FLOOD_HASHES: usize = 4;
+/// Memory one argon2id hash holds, in MiB (`secret::HASH_MEMORY_KIB`).
+const HASH_MIB: usize = 19;
+/// What the server needs besides its hashes, in MiB: about 15 MiB measured at
+/// rest, with room for allocator slack and a hundred requests in flight.
+const FLOOD_OVERHEAD_MIB: usize = 64;
+
+/// The real `cairn serve` on a fresh database and port 0; killed when dropped.
+struct Served {
+    child: std::process::Child,
+    base: String,
+    _dir: tempfile::TempDir,
+}
+
+impl Drop for Served {
+    fn drop(&mut self) {
+        let _ = self.child.kill();
+        let _ = self.child.wait();
+    }
+}
+
+fn serve_binary(env: &[(&str, String)]) -> Served {
+    use std::io::BufRead as _;
+    let dir = tempfile::tempdir().unwrap();
+    let db = dir.path().join("flood.db").display().to_string();
+    let made = std::process::Command::new(env!("CARGO_BIN_EXE_cairn"))
+        .args(["site", "add", "--db", &db, "--code", "T", "--name", "T"])
+        .output()
+        .unwrap();
+    assert!(made.status.success(), "{made:?}");
+    let mut child = std::process::Command::new(env!("CARGO_BIN_EXE_cairn"))
+        .args(["serve", "--db", &db, "--listen", "127.0.0.1:0"])
+        .envs(env.iter().map(|(k, v)| (*k, v.as_str())))
+        .env("CAIRN_SECURE_COOKIES", "false")
+        .stdout(std::process::Stdio::piped())
+        .stderr(std::process::Stdio::null())
+        .spawn()
+        .unwrap();
+    let mut first = String::new();
+    std::io::BufReader::new(child.stdout.take().unwrap())
+        .read_line(&mut first)
+        .unwrap();
+    let base = first
+        .split(" at ")
+        .nth(1)
+        .expect("the server says where it listens")
+        .trim()
+        .trim_end_matches('/')
+        .to_string();
+    Served {
+        child,
+        base,
+        _dir: dir,
+    }
+}
+
+/// Reads one `Vm…` figure of a process from /proc, in KiB.
+fn vm_kib(pid: u32, field: &str) -> usize {
+    let status = std::fs::read_to_string(format!("/proc/{pid}/status")).unwrap();
+    status
+        .lines()
+        .find_map(|l| l.strip_prefix(field)?.strip_prefix(':'))
+        .and_then(|v| v.trim().trim_end_matches("kB").trim().parse().ok())
+        .unwrap_or_else(|| panic!("{field} in /proc/{pid}/status"))
+}
+
+#[tokio::test(flavor = "multi_thread", worker_threads = 2)]
+async fn a_flood_of_wrong_sign_ins_from_five_addresses_stays_under_the_memory_bound() {
+    let served = serve_binary(&[("CAIRN_MAX_CONCURRENT_HASHES", FLOOD_HASHES.to_string())]);
+    let pid = served.child.id();
+    let mut senders = Vec::new();
+    for k in 1..=5u8 {
+        // Five loopback addresses: the server sees five clients, and its
+        // per-address throttle (20 failures) lets each send 20 to the hasher.
+        let client = reqwest::Client::builder()
+            .local_address(std::net::IpAddr::from([127, 0, 0, k]))
+            .redirect(reqwest::redirect::Policy::none())
+            .build()
+            .unwrap();
+        let page = client
+            .get(format!("{}/sign-in", served.base))
+            .send()
+            .await
+            .unwrap();
+        let cookie = page
+            .headers()
+            .get_all("set-cookie")
+            .iter()
+            .filter_map(|v| v.to_str().ok())
+            .find_map(|c| c.strip_prefix("cairn_form="))
+            .and_then(|c| c.split(';').next())
+            .unwrap()
+            .to_string();
+        let csrf = form_token(&page.text().await.unwrap()).unwrap();
+        senders.push((client, cookie, csrf));
+    }
+    let rest_kib = vm_kib(pid, "VmRSS");
+    let started = Instant::now();
+    let mut flood = tokio::task::JoinSet::new();
+    for (k, (client, cookie, csrf)) in senders.iter().enumerate() {
+        for i in 0..20 {
+            let r = client
+                .post(format!("{}/sign-in", served.base))
+                .header("cookie", format!("cairn_form={cookie}"))
+                .form(&[
+                    ("csrf", csrf.clone()),
+                    // A new name each time, so no account lock stops the hashing.
+                    ("user", format!("nobody-{k}-{i}")),
+                    ("password", format!("wrong password {i}")),
+                ]);
+            flood.spawn(async move { r.send().await.map(|a| a.status().as_u16()) });
+        }
+    }
+    let mut statuses = std::collections::BTreeMap::<u16, usize>::new();
+    while let Some(done) = flood.join_next().await {
+        let status = done.unwrap().expect("every sign-in is answered");
+        *statuses.entry(status).or_default() += 1;
+    }
+    let took = started.elapsed();
+    let peak_kib = vm_kib(pid, "VmHWM");
+    let after_kib = vm_kib(pid, "VmRSS");
+    let bound_mib = FLOOD_HASHES * HASH_MIB + FLOOD_OVERHEAD_MIB;
+    eprintln!(
+        "100 wrong sign-ins from 5 addresses in {took:?}: answers {statuses:?}; RSS at rest \
+         {:.1} MiB, peak {:.1} MiB, after {:.1} MiB (bound {bound_mib} MiB)",
+        rest_kib as f64 / 1024.0,
+        peak_kib as f64 / 1024.0,
+        after_kib as f64 / 1024.0,
+    );
+    assert_eq!(statuses.values().sum::<usize>(), 100);
+    assert!(
+        statuses.keys().all(|s| *s == 401 || *s == 429),
+        "wrong (401) or busy (429), never anything else: {statuses:?}"
+    );
+    assert!(
+        statuses.get(&401).is_some_and(|n| *n >= FLOOD_HASHES),
+        "{statuses:?}"
+    );
+    assert!(
+        peak_kib < bound_mib * 1024,
+        "peak RSS {peak_kib} KiB is over the bound of {bound_mib} MiB"
+    );
+}

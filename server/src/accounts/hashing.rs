@@ -7,8 +7,8 @@
 //! [`HashGate`]; a request waits a bounded time for its turn and is then told
 //! to come back later (429 with `Retry-After`), never queued without bound.
 
-use super::secret::{self, Secret, SecretHash};
-use std::sync::Arc;
+use super::secret::{self, HashMemory, Secret, SecretHash};
+use std::sync::{Arc, Mutex};
 use std::time::Duration;
 use tokio::sync::{OwnedSemaphorePermit, Semaphore};
 
@@ -41,14 +41,31 @@ pub enum HashError {
 #[derive(Clone, Debug)]
 pub struct HashGate {
     turns: Arc<Semaphore>,
+    /// Working memory of turns that ended, for the next ones: never more
+    /// blocks than turns, each allocated once.
+    spare: Arc<Mutex<Vec<HashMemory>>>,
     max: usize,
     wait: Duration,
 }
 
-/// One turn to hash: held until the hash it is spent on has finished.
+/// One turn to hash, with its working memory: held until the hash it is
+/// spent on has finished, then the memory goes back to the gate.
 #[derive(Debug)]
 pub struct HashTurn {
+    memory: Option<HashMemory>,
+    spare: Arc<Mutex<Vec<HashMemory>>>,
     _permit: OwnedSemaphorePermit,
+}
+
+impl Drop for HashTurn {
+    fn drop(&mut self) {
+        if let Some(memory) = self.memory.take() {
+            self.spare
+                .lock()
+                .expect("the spare list is never left half-changed")
+                .push(memory);
+        }
+    }
 }
 
 impl HashGate {
@@ -58,6 +75,7 @@ impl HashGate {
         let max = max_concurrent.max(1);
         Self {
             turns: Arc::new(Semaphore::new(max)),
+            spare: Arc::new(Mutex::new(Vec::with_capacity(max))),
             max,
             wait,
         }
@@ -71,7 +89,19 @@ impl HashGate {
     /// Waits up to the gate's wait for a turn; `Busy` if none came free.
     pub async fn turn(&self) -> Result<HashTurn, HashError> {
         match tokio::time::timeout(self.wait, self.turns.clone().acquire_owned()).await {
-            Ok(Ok(permit)) => Ok(HashTurn { _permit: permit }),
+            Ok(Ok(permit)) => {
+                let memory = self
+                    .spare
+                    .lock()
+                    .expect("the spare list is never left half-changed")
+                    .pop();
+                Ok(HashTurn {
+                    // A new turn's memory is allocated on the blocking thread, not here.
+                    memory,
+                    spare: self.spare.clone(),
+                    _permit: permit,
+                })
+            }
             Ok(Err(_)) => Err(HashError::Internal(anyhow::anyhow!(
                 "the hashing gate was closed"
             ))),
@@ -88,29 +118,33 @@ impl HashGate {
 impl HashTurn {
     /// Hashes a secret on a blocking thread, keeping the turn until it is done.
     pub async fn hash(self, secret: Secret) -> anyhow::Result<SecretHash> {
-        // The turn moves into the blocking task: if the request is dropped
-        // meanwhile, the memory is still in use until the hash ends.
-        let turn = self;
-        tokio::task::spawn_blocking(move || {
-            let hash = secret::hash_blocking(&secret);
-            drop(turn);
-            hash
-        })
-        .await
-        .map_err(|e| anyhow::anyhow!("the hashing task failed: {e}"))
+        self.run(move |memory| secret::hash_with(memory, &secret))
+            .await
+            .map_err(|e| anyhow::anyhow!("the hashing task failed: {e}"))
     }
 
     /// Checks a secret on a blocking thread (a decoy when nothing is stored,
     /// answering false), keeping the turn until it is done.
     pub async fn verify(self, secret: Secret, stored: Option<SecretHash>) -> anyhow::Result<bool> {
-        let turn = self;
+        self.run(move |memory| secret::verify_or_decoy(memory, &secret, stored.as_ref()))
+            .await
+            .map_err(|e| anyhow::anyhow!("the verifying task failed: {e}"))
+    }
+
+    /// Runs `work` on a blocking thread with the turn's memory. The turn moves
+    /// into the task: if the request is dropped meanwhile, the memory is still
+    /// in use until the work ends, and only then is the turn given back.
+    async fn run<T: Send + 'static>(
+        mut self,
+        work: impl FnOnce(&mut HashMemory) -> T + Send + 'static,
+    ) -> Result<T, tokio::task::JoinError> {
         tokio::task::spawn_blocking(move || {
-            let ok = secret::verify_or_decoy_blocking(&secret, stored.as_ref());
-            drop(turn);
-            ok
+            let memory = self.memory.get_or_insert_with(HashMemory::new);
+            let out = work(memory);
+            drop(self);
+            out
         })
         .await
-        .map_err(|e| anyhow::anyhow!("the verifying task failed: {e}"))
     }
 }
 
