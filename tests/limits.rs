@@ -569,3 +569,41 @@ async fn a_flood_of_wrong_sign_ins_from_five_addresses_stays_under_the_memory_bo
         "peak RSS {peak_kib} KiB is over the bound of {bound_mib} MiB"
     );
 }
+
+#[test]
+fn a_limit_of_zero_in_the_environment_stops_cairn_serve_naming_the_setting() {
+    for (var, setting) in [
+        ("CAIRN_MAX_CONCURRENT_HASHES", "max_concurrent_hashes"),
+        ("CAIRN_REQUEST_HEAD_TIMEOUT_MS", "request_head_timeout_ms"),
+        ("CAIRN_REQUEST_BODY_TIMEOUT_MS", "request_body_timeout_ms"),
+    ] {
+        let dir = tempfile::tempdir().unwrap();
+        let db = dir.path().join("zero.db").display().to_string();
+        let made = std::process::Command::new(env!("CARGO_BIN_EXE_cairn"))
+            .args(["site", "add", "--db", &db, "--code", "T", "--name", "T"])
+            .output()
+            .unwrap();
+        assert!(made.status.success());
+        let mut child = std::process::Command::new(env!("CARGO_BIN_EXE_cairn"))
+            .args(["serve", "--db", &db, "--listen", "127.0.0.1:0"])
+            .env(var, "0")
+            .stdout(std::process::Stdio::null())
+            .stderr(std::process::Stdio::piped())
+            .spawn()
+            .unwrap();
+        let mut stderr = child.stderr.take().unwrap();
+        let (tx, rx) = std::sync::mpsc::channel();
+        std::thread::spawn(move || {
+            let mut text = String::new();
+            let _ = std::io::Read::read_to_string(&mut stderr, &mut text);
+            let _ = tx.send(text);
+        });
+        // A server that accepted the setting would serve on and never close stderr.
+        let text = rx.recv_timeout(CLOSE_BOUND);
+        let _ = child.kill();
+        let status = child.wait().unwrap();
+        let text = text.unwrap_or_else(|_| panic!("cairn serve started with {var}=0"));
+        assert!(!status.success(), "{var}: {text}");
+        assert!(text.contains(setting), "{var}: {text}");
+    }
+}
