@@ -233,6 +233,18 @@ struct ServeArgs {
     /// Mark session cookies Secure (true behind HTTPS, the default).
     #[arg(long, env = "CAIRN_SECURE_COOKIES")]
     secure_cookies: Option<bool>,
+    /// Password and PIN hashes allowed at once (each holds 19 MiB); default 2 × cores.
+    #[arg(long, env = "CAIRN_MAX_CONCURRENT_HASHES")]
+    max_concurrent_hashes: Option<usize>,
+    /// How long a sign-in waits for a turn to hash before a 429, in milliseconds.
+    #[arg(long, env = "CAIRN_HASH_WAIT_MS")]
+    hash_wait_ms: Option<u64>,
+    /// Time to send a whole request head, and the most a connection stays idle, in milliseconds.
+    #[arg(long, env = "CAIRN_REQUEST_HEAD_TIMEOUT_MS")]
+    request_head_timeout_ms: Option<u64>,
+    /// Time to send a whole request body after its head, in milliseconds.
+    #[arg(long, env = "CAIRN_REQUEST_BODY_TIMEOUT_MS")]
+    request_body_timeout_ms: Option<u64>,
 }
 
 #[derive(Subcommand)]
@@ -424,6 +436,19 @@ async fn dispatch(command: Command) -> anyhow::Result<()> {
             if let Some(s) = args.secure_cookies {
                 config.secure_cookies = s;
             }
+            if let Some(n) = args.max_concurrent_hashes {
+                config.max_concurrent_hashes = n;
+            }
+            if let Some(ms) = args.hash_wait_ms {
+                config.hash_wait_ms = ms;
+            }
+            if let Some(ms) = args.request_head_timeout_ms {
+                config.request_head_timeout_ms = ms;
+            }
+            if let Some(ms) = args.request_body_timeout_ms {
+                config.request_body_timeout_ms = ms;
+            }
+            config.check()?;
             if !config.db.exists() {
                 anyhow::bail!(
                     "database {} does not exist (create one with `cairn demo` or `cairn site add`)",

@@ -30,7 +30,26 @@ pub struct Config {
     /// Take the client address for sign-in throttling from the last
     /// `X-Forwarded-For` entry (only behind a reverse proxy that sets it).
     pub trust_forwarded_for: bool,
+    /// Password and PIN hashes allowed to run at once (each holds 19 MiB);
+    /// by default twice the cores available.
+    pub max_concurrent_hashes: usize,
+    /// How long a sign-in waits for a turn to hash before it is told to come
+    /// back later (429), in milliseconds.
+    pub hash_wait_ms: u64,
+    /// How long a connection may take to send a whole request head, counted
+    /// from when the server starts waiting for one, in milliseconds. It also
+    /// closes connections left idle between requests for that long.
+    pub request_head_timeout_ms: u64,
+    /// How long a request may take to send its whole body, counted from when
+    /// its head arrived, in milliseconds; a slower one is answered 408 and closed.
+    pub request_body_timeout_ms: u64,
 }
+
+/// Default of [`Config::request_head_timeout_ms`]: 15 s.
+pub const DEFAULT_REQUEST_HEAD_TIMEOUT_MS: u64 = 15_000;
+/// Default of [`Config::request_body_timeout_ms`]: 60 s, enough for a full
+/// `max_body_bytes` body at about 70 KiB/s (a weak phone connection).
+pub const DEFAULT_REQUEST_BODY_TIMEOUT_MS: u64 = 60_000;
 
 impl Default for Config {
     fn default() -> Self {
@@ -45,6 +64,10 @@ impl Default for Config {
             web_dir: PathBuf::from(concat!(env!("CARGO_MANIFEST_DIR"), "/../client/web")),
             secure_cookies: true,
             trust_forwarded_for: false,
+            max_concurrent_hashes: crate::accounts::hashing::default_max_concurrent_hashes(),
+            hash_wait_ms: crate::accounts::hashing::DEFAULT_HASH_WAIT_MS,
+            request_head_timeout_ms: DEFAULT_REQUEST_HEAD_TIMEOUT_MS,
+            request_body_timeout_ms: DEFAULT_REQUEST_BODY_TIMEOUT_MS,
         }
     }
 }
@@ -55,6 +78,30 @@ impl Config {
         let text = std::fs::read_to_string(path)
             .map_err(|e| anyhow::anyhow!("cannot read config {}: {e}", path.display()))?;
         toml::from_str(&text).map_err(|e| anyhow::anyhow!("config {}: {e}", path.display()))
+    }
+
+    /// Refuses settings the server cannot run with, naming the setting.
+    pub fn check(&self) -> anyhow::Result<()> {
+        for (name, ms) in [
+            ("request_head_timeout_ms", self.request_head_timeout_ms),
+            ("request_body_timeout_ms", self.request_body_timeout_ms),
+        ] {
+            if ms == 0 {
+                anyhow::bail!("{name} must be at least 1 (milliseconds)");
+            }
+        }
+        if self.max_concurrent_hashes == 0 {
+            anyhow::bail!("max_concurrent_hashes must be at least 1");
+        }
+        Ok(())
+    }
+
+    /// Returns the gate that caps concurrent password and PIN hashing.
+    pub fn hash_gate(&self) -> crate::accounts::hashing::HashGate {
+        crate::accounts::hashing::HashGate::new(
+            self.max_concurrent_hashes,
+            std::time::Duration::from_millis(self.hash_wait_ms),
+        )
     }
 
     /// Returns the store settings this config implies.

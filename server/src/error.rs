@@ -29,10 +29,26 @@ pub enum ApiError {
     Rejected(Vec<RowError>),
     #[error("{0}")]
     TooManyRequests(String),
+    /// The server is at a limit of its own (e.g. concurrent hashing): 429 with `Retry-After`.
+    #[error("{text}")]
+    Busy { text: String, retry_after_s: u64 },
     #[error("{0}")]
     Unavailable(String),
     #[error("internal error")]
     Internal(#[from] anyhow::Error),
+}
+
+impl From<crate::accounts::hashing::HashError> for ApiError {
+    fn from(e: crate::accounts::hashing::HashError) -> Self {
+        use crate::accounts::hashing::{BUSY_RETRY_AFTER_S, HashError};
+        match e {
+            HashError::Busy => ApiError::Busy {
+                text: e.to_string(),
+                retry_after_s: BUSY_RETRY_AFTER_S,
+            },
+            HashError::Internal(e) => ApiError::Internal(e),
+        }
+    }
 }
 
 impl From<StoreError> for ApiError {
@@ -62,7 +78,7 @@ impl ApiError {
             ApiError::Conflict(_) => StatusCode::CONFLICT,
             ApiError::TooLarge(_) => StatusCode::PAYLOAD_TOO_LARGE,
             ApiError::Rejected(_) => StatusCode::UNPROCESSABLE_ENTITY,
-            ApiError::TooManyRequests(_) => StatusCode::TOO_MANY_REQUESTS,
+            ApiError::TooManyRequests(_) | ApiError::Busy { .. } => StatusCode::TOO_MANY_REQUESTS,
             ApiError::Unavailable(_) => StatusCode::SERVICE_UNAVAILABLE,
             ApiError::Internal(_) => StatusCode::INTERNAL_SERVER_ERROR,
         }
@@ -92,6 +108,13 @@ impl IntoResponse for ApiError {
             ApiError::Rejected(rows) => json!({ "error": self.to_string(), "rows": rows }),
             other => json!({ "error": other.to_string() }),
         };
-        (status, Json(body)).into_response()
+        let mut response = (status, Json(body)).into_response();
+        if let ApiError::Busy { retry_after_s, .. } = self {
+            response.headers_mut().insert(
+                axum::http::header::RETRY_AFTER,
+                axum::http::HeaderValue::from(retry_after_s),
+            );
+        }
+        response
     }
 }

@@ -38,6 +38,8 @@ pub struct AppState {
     pub config: Arc<Config>,
     /// Set once the server starts to shut down: `/readyz` then answers 503.
     pub draining: Arc<AtomicBool>,
+    /// The cap on password and PIN hashes running at once.
+    pub hashing: accounts::hashing::HashGate,
 }
 
 impl AppState {
@@ -46,6 +48,7 @@ impl AppState {
         let store = SqliteStore::open(&config.db, config.store_options())?;
         Ok(Self {
             store: Arc::new(store),
+            hashing: config.hash_gate(),
             config: Arc::new(config),
             draining: Arc::new(AtomicBool::new(false)),
         })
@@ -64,11 +67,10 @@ pub async fn run(
     shutdown: impl std::future::Future<Output = ()> + Send + 'static,
 ) -> std::io::Result<()> {
     let draining = state.draining.clone();
-    let app = app(state).into_make_service_with_connect_info::<std::net::SocketAddr>();
-    axum::serve(listener, app)
-        .with_graceful_shutdown(async move {
-            shutdown.await;
-            draining.store(true, Ordering::SeqCst);
-        })
-        .await
+    let head_timeout = std::time::Duration::from_millis(state.config.request_head_timeout_ms);
+    http::serve::serve(listener, app(state), head_timeout, async move {
+        shutdown.await;
+        draining.store(true, Ordering::SeqCst);
+    })
+    .await
 }

@@ -148,13 +148,28 @@ export async function launch(extraArgs = [], { userDataDir, viewport, offline = 
     offline,
     args: [...FLAGS, ...extraArgs],
   });
+  // The server's content security policy and the pages it serves must agree: a
+  // violation Chromium reports fails the suite when its browser closes.
+  const violations = [];
+  context.on("console", (m) => {
+    if (/Content Security Policy/i.test(m.text())) violations.push(`${m.location().url}: ${m.text()}`);
+  });
   return {
     context,
     userDataDir: dir,
-    /** Closes the browser; removes its user-data dir unless `keep`. */
+    violations,
+    /**
+     * Closes the browser; removes its user-data dir unless `keep`. A CSP violation seen
+     * meanwhile is printed and fails the suite's process (not thrown: the caller's own
+     * clean-up, such as stopping the server, must still run).
+     */
     async close({ keep = false } = {}) {
       await context.close().catch(() => {});
       if (fresh && !keep) rmSync(dir, { recursive: true, force: true });
+      if (violations.length) {
+        console.error(`content security policy violations:\n${violations.join("\n")}`);
+        process.exitCode = 1;
+      }
     },
   };
 }

@@ -44,12 +44,12 @@ const list = Object.entries(images).find(([k]) => k.startsWith("images"))[1];
 test("the camera decoder reads every fixture format in the browser without crashing", async () => {
   for (const img of list.filter((i) => !i.file.includes("degraded"))) {
     const png = readFileSync(join(ROOT, "client/scan/tests/fixtures/images", img.file)).toString("base64");
-    const got = await page.evaluate(async (dataUrl) => {
+    const got = await page.evaluate(async (base64) => {
       const mod = await import("/app/pkg/cairn_camera.js");
       await mod.default();
-      const im = new Image();
-      im.src = dataUrl;
-      await im.decode();
+      // From bytes, not a data: URL, which the app's content security policy refuses.
+      const bytes = Uint8Array.from(atob(base64), (ch) => ch.charCodeAt(0));
+      const im = await createImageBitmap(new Blob([bytes], { type: "image/png" }));
       const c = document.createElement("canvas");
       c.width = im.width;
       c.height = im.height;
@@ -57,7 +57,7 @@ test("the camera decoder reads every fixture format in the browser without crash
       g.drawImage(im, 0, 0);
       const px = g.getImageData(0, 0, c.width, c.height);
       return mod.decodeFrame(new Uint8Array(px.data.buffer), c.width, c.height);
-    }, `data:image/png;base64,${png}`);
+    }, png);
     assert.ok(got, `${img.file} decodes`);
     const plain = (t) => t.replace(/^\][A-Za-z][0-9A-Za-z]/, "").replace(/[()\x1d]/g, "");
     assert.equal(plain(got.text), plain(img.text), `${img.file} (${got.format})`);

@@ -153,14 +153,20 @@ pub struct TestApp {
 
 /// Starts the real application on 127.0.0.1 with port 0 and a new database.
 pub async fn spawn_app() -> TestApp {
+    spawn_app_with(|_| {}).await
+}
+
+/// Starts the real application as `spawn_app` does, with settings changed by `tweak`.
+pub async fn spawn_app_with(tweak: impl FnOnce(&mut Config)) -> TestApp {
     let dir = tempfile::tempdir().expect("a temporary directory can be made");
     let db = dir.path().join("cairn.db");
-    let state = AppState::open(Config {
+    let mut config = Config {
         db: db.clone(),
         max_body_bytes: 256 * 1024,
         ..Config::default()
-    })
-    .expect("a fresh database opens");
+    };
+    tweak(&mut config);
+    let state = AppState::open(config).expect("a fresh database opens");
     let listener = tokio::net::TcpListener::bind("127.0.0.1:0")
         .await
         .expect("loopback port 0 binds");

@@ -5,7 +5,8 @@
 use super::audit::{
     Action, AuditEvent, AuditRow, MAX_AUDIT_EXPORT_ROWS, MAX_AUDIT_PAGE_ROWS, to_csv,
 };
-use super::secret::{self, API_TOKEN_PREFIX, Secret, Token};
+use super::hashing::HashError;
+use super::secret::{API_TOKEN_PREFIX, Secret, Token};
 use super::store::{ApiTokenRow, DeviceRow, NewApiToken, NewUser};
 use super::{DeviceId, Principal, Role, UserName, throttle};
 use crate::AppState;
@@ -182,10 +183,27 @@ async fn create_user(
         Ok(v) => v,
         Err((status, m)) => return render_users(&state, &p, site, status, m).await,
     };
-    let password = secret::hash(password).await?;
-    let pin = match pin {
-        Some(pin) => Some(secret::hash(pin).await?),
-        None => None,
+    let hashed = async {
+        let password = state.hashing.hash(password).await?;
+        let pin = match pin {
+            Some(pin) => Some(state.hashing.hash(pin).await?),
+            None => None,
+        };
+        Ok::<_, HashError>((password, pin))
+    };
+    let (password, pin) = match hashed.await {
+        Ok(v) => v,
+        Err(e @ HashError::Busy) => {
+            return render_users(
+                &state,
+                &p,
+                site,
+                StatusCode::TOO_MANY_REQUESTS,
+                e.to_string(),
+            )
+            .await;
+        }
+        Err(HashError::Internal(e)) => return Err(ApiError::Internal(e)),
     };
     let audit = AuditEvent::now(p.actor(), Action::UserCreated, name.as_str())
         .at_site(site.id)

@@ -6,6 +6,7 @@
 
 pub mod admin;
 pub mod audit;
+pub mod hashing;
 pub mod routes;
 pub mod secret;
 pub mod session;

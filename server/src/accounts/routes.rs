@@ -106,6 +106,7 @@ async fn sign_in(
     let secure = state.config.secure_cookies;
     let checked = signin::check(
         state.store.as_ref(),
+        &state.hashing,
         &form.user,
         form.password,
         Proof::Password,
@@ -131,6 +132,20 @@ async fn sign_in(
                 throttle::LOCKED_TEXT,
                 &form.user,
             );
+        }
+        Err(SignInError::Busy(e)) => {
+            let mut page = sign_in_form(
+                jar,
+                secure,
+                StatusCode::TOO_MANY_REQUESTS,
+                &e.to_string(),
+                &form.user,
+            )?;
+            page.headers_mut().insert(
+                axum::http::header::RETRY_AFTER,
+                axum::http::HeaderValue::from(super::hashing::BUSY_RETRY_AFTER_S),
+            );
+            return Ok(page);
         }
         Err(SignInError::Internal(e)) => return Err(ApiError::Internal(e)),
     };
@@ -220,6 +235,7 @@ async fn enrol(
     let site_code = SiteCode::parse(&req.site).map_err(|e| ApiError::BadRequest(e.to_string()))?;
     let user = signin::check(
         state.store.as_ref(),
+        &state.hashing,
         &req.user,
         req.pin,
         Proof::Pin,

@@ -3,7 +3,8 @@
 //! audit rows, and leaves starting a session or enrolling to the caller.
 
 use super::audit::{Action, Actor, AuditEvent};
-use super::secret::{self, Secret};
+use super::hashing::{HashError, HashGate};
+use super::secret::Secret;
 use super::throttle::{self, LOCKED_TEXT};
 use super::{User, UserName};
 use crate::error::ApiError;
@@ -35,6 +36,9 @@ pub enum SignInError {
     Wrong(Proof),
     #[error("{LOCKED_TEXT}")]
     Locked,
+    /// Every turn to hash stayed taken: nothing was checked or counted.
+    #[error(transparent)]
+    Busy(HashError),
     #[error(transparent)]
     Internal(#[from] anyhow::Error),
 }
@@ -50,6 +54,7 @@ impl From<SignInError> for ApiError {
         match e {
             SignInError::Wrong(_) => ApiError::Unauthorized(e.to_string()),
             SignInError::Locked => ApiError::TooManyRequests(e.to_string()),
+            SignInError::Busy(e) => e.into(),
             SignInError::Internal(e) => ApiError::Internal(e),
         }
     }
@@ -58,16 +63,28 @@ impl From<SignInError> for ApiError {
 /// The longest typed name the audit trail keeps of a failed sign-in, in characters.
 const MAX_AUDITED_NAME_CHARS: usize = 64;
 
+impl From<HashError> for SignInError {
+    fn from(e: HashError) -> Self {
+        match e {
+            HashError::Busy => SignInError::Busy(e),
+            HashError::Internal(e) => SignInError::Internal(e),
+        }
+    }
+}
+
 /// Checks a name and secret from `address`. A throttled account or address is
 /// refused before its secret is checked, even if the secret is right; every
-/// other attempt counts as a failure until its secret proves right.
+/// other attempt counts as a failure until its secret proves right. The turn
+/// to hash is taken first, so an attempt turned away as busy is not counted.
 pub async fn check(
     store: &dyn Store,
+    gate: &HashGate,
     typed_name: &str,
     secret: Secret,
     proof: Proof,
     address: &str,
 ) -> Result<User, SignInError> {
+    let turn = gate.turn().await?;
     let now = Timestamp::now();
     let account_key = throttle::account_key(typed_name);
     let address_key = throttle::address_key(address);
@@ -102,7 +119,7 @@ pub async fn check(
         Proof::Password => Some(c.password.clone()),
         Proof::Pin => c.pin.clone(),
     });
-    if secret::verify(secret, hash).await? {
+    if turn.verify(secret, hash).await? {
         store
             .sign_in_succeeded(account_key, address_key, now)
             .await?;

@@ -5,7 +5,7 @@
 //! runs for every request: it finds the rule of the matched route (refusing a
 //! route that has none), authenticates the sender (session cookie, device
 //! token or integration token), checks the role at the site named in the
-//! path, then the form token of state-changing page requests, and hands the
+//! path, then the origin and form token of state-changing page requests, and hands the
 //! handler a [`Principal`] through [`CurrentUser`] or [`CounterDevice`].
 //!
 //! Book quantities (balances, movement history, site counts) are open to
@@ -473,6 +473,11 @@ async fn check(guard: &Guard, req: Request, path: &str) -> Result<Request, ApiEr
     parts.extensions.insert(ClientAddress(address));
     let mut req = Request::from_parts(parts, body);
     if !api && !safe {
+        if !super::headers::same_origin(req.headers()) {
+            return Err(ApiError::Forbidden(
+                super::headers::FOREIGN_FORM_TEXT.into(),
+            ));
+        }
         // Public forms (sign-in) have no session yet: their token is the
         // pre-session cookie's, sent back in the form (double submit).
         let expected = match (&principal, access) {

@@ -2,9 +2,12 @@
 //! their access rules, health checks, and the server pages.
 
 pub mod access;
+pub mod body_deadline;
 pub mod extract;
+pub mod headers;
 pub mod observe;
 pub mod pages;
+pub mod serve;
 
 use crate::AppState;
 use crate::error::ApiError;
@@ -60,7 +63,12 @@ pub fn router(state: AppState) -> Router {
         .layer(DefaultBodyLimit::max(state.config.max_body_bytes))
         // Phones on weak Wi-Fi: the app shell, wasm and JSON answers go gzip-compressed.
         .layer(tower_http::compression::CompressionLayer::new())
+        .layer(axum::middleware::from_fn_with_state(
+            std::time::Duration::from_millis(state.config.request_body_timeout_ms),
+            body_deadline::body_deadline,
+        ))
         .layer(axum::middleware::from_fn(observe::observe))
+        .layer(axum::middleware::from_fn(headers::security_headers))
         .with_state(state)
 }
 
