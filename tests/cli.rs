@@ -120,3 +120,57 @@ fn labels_write_one_scannable_label_per_bin_of_the_zone() {
         "zone C is not on zone B's sheet"
     );
 }
+
+#[test]
+fn a_site_is_made_only_with_a_zone_the_tz_database_knows() {
+    let dir = tempfile::tempdir().unwrap();
+    let db = dir.path().join("zones.db");
+    let db = db.to_str().unwrap();
+    for bad in ["Mars/Olympus_Mons", "+05:30", "EST5EDT", ""] {
+        let out = cairn(&[
+            "site",
+            "add",
+            "--db",
+            db,
+            "--code",
+            "MARS",
+            "--name",
+            "Far",
+            "--time-zone",
+            bad,
+        ]);
+        assert!(!out.status.success(), "{bad} was taken");
+        let said = String::from_utf8_lossy(&out.stderr);
+        assert!(
+            said.contains("IANA zone name such as Europe/Berlin"),
+            "{bad}: {said}"
+        );
+    }
+    let out = cairn(&[
+        "site",
+        "add",
+        "--db",
+        db,
+        "--code",
+        "KTM",
+        "--name",
+        "Valley depot",
+        "--time-zone",
+        "Asia/Kathmandu",
+    ]);
+    assert!(
+        out.status.success(),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    assert!(String::from_utf8_lossy(&out.stdout).contains("(Asia/Kathmandu)"));
+    let conn = rusqlite::Connection::open(db).unwrap();
+    let zones: Vec<String> = conn
+        .prepare("select time_zone from site order by code")
+        .unwrap()
+        .query_map([], |r| r.get(0))
+        .unwrap()
+        .collect::<Result<_, _>>()
+        .unwrap();
+    assert_eq!(zones, ["Asia/Kathmandu"], "no refused site was written");
+}

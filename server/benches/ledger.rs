@@ -59,7 +59,7 @@ fn master_data(conn: &mut rusqlite::Connection, bins: usize, items: usize) -> Si
         &NewSite {
             code: SiteCode::parse("T").unwrap(),
             name: "Bench".into(),
-            time_zone: "UTC".into(),
+            time_zone: cairn::time::day::SiteZone::UTC,
         },
     )
     .unwrap();

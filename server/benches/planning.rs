@@ -50,7 +50,7 @@ fn make_db(path: &Path, items: usize, bins: usize, moves: usize) {
         &NewSite {
             code: SiteCode::parse("BIG").unwrap(),
             name: "Bench".into(),
-            time_zone: "UTC".into(),
+            time_zone: cairn::time::day::SiteZone::UTC,
         },
     )
     .unwrap();

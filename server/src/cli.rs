@@ -264,6 +264,7 @@ enum SiteCommand {
         code: String,
         #[arg(long)]
         name: String,
+        /// The site's IANA time zone (e.g. Europe/Berlin): its days are local days.
         #[arg(long, default_value = "UTC")]
         time_zone: String,
     },
@@ -628,10 +629,10 @@ async fn dispatch(command: Command) -> anyhow::Result<()> {
                 .create_site(NewSite {
                     code: SiteCode::parse(&code)?,
                     name,
-                    time_zone,
+                    time_zone: crate::time::day::SiteZone::parse(&time_zone)?,
                 })
                 .await?;
-            println!("site {} created", site.code);
+            println!("site {} created ({})", site.code, site.time_zone);
             Ok(())
         }
         Command::User { command } => user_command(command).await,

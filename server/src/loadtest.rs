@@ -160,7 +160,7 @@ async fn set_up(state: &AppState, phones: usize) -> anyhow::Result<(Vec<String>,
         .create_site(NewSite {
             code: SiteCode::parse("LT")?,
             name: "Load test".into(),
-            time_zone: "UTC".into(),
+            time_zone: crate::time::day::SiteZone::UTC,
         })
         .await?;
     // One hash for every account: hashing is slow by design and not what is measured.

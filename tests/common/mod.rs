@@ -273,7 +273,7 @@ impl TestApp {
             .create_site(cairn::master::NewSite {
                 code: SiteCode::parse(code).unwrap(),
                 name: format!("Test {code}"),
-                time_zone: "UTC".into(),
+                time_zone: cairn::time::day::SiteZone::UTC,
             })
             .await
             .unwrap()

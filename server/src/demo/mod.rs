@@ -290,7 +290,7 @@ pub async fn generate(
         .create_site(NewSite {
             code: spec.site_code.clone(),
             name: spec.site_name.clone(),
-            time_zone: "UTC".into(),
+            time_zone: crate::time::day::SiteZone::UTC,
         })
         .await?;
     let bins = bins(spec);

@@ -30,7 +30,9 @@ pub struct Site {
 pub struct NewSite {
     pub code: SiteCode,
     pub name: String,
-    pub time_zone: String,
+    /// Its IANA zone, read with `SiteZone::parse`: a site cannot be made with a zone the
+    /// tz database does not know.
+    pub time_zone: crate::time::day::SiteZone,
 }
 
 /// How many rows of each kind of master data a site holds.

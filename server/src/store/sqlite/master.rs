@@ -43,14 +43,14 @@ pub fn create_site(tx: &Transaction, site: &NewSite) -> Result<Site, StoreError>
     .execute(params![
         site.code.as_str(),
         site.name,
-        site.time_zone,
+        site.time_zone.name(),
         Timestamp::now().0
     ])?;
     Ok(Site {
         id: SiteId(tx.last_insert_rowid()),
         code: site.code.clone(),
         name: site.name.clone(),
-        time_zone: site.time_zone.clone(),
+        time_zone: site.time_zone.name().to_string(),
     })
 }
 

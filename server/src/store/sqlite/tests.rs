@@ -22,7 +22,7 @@ fn fresh() -> (Connection, SiteId) {
         &NewSite {
             code: SiteCode::parse("T").unwrap(),
             name: "Test".into(),
-            time_zone: "UTC".into(),
+            time_zone: crate::time::day::SiteZone::UTC,
         },
     )
     .unwrap();

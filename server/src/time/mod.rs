@@ -1,6 +1,8 @@
 //! Instants as integer milliseconds since the Unix epoch (UTC), the one time
 //! representation in the store and in the domain code.
 
+pub mod day;
+
 use chrono::{DateTime, SecondsFormat, TimeZone, Utc};
 use serde::{Deserialize, Deserializer, Serialize, Serializer};
 use std::fmt;

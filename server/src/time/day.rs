@@ -1,0 +1,317 @@
+//! A site's day (DESIGN.md §7): the one place where an instant becomes a local date at a
+//! site and a local date becomes the instants it spans. No I/O.
+//!
+//! A site keeps an IANA zone name; [`SiteZone::parse`] reads it once into a typed value
+//! backed by the tz database compiled into the binary (chrono-tz), so a site's days and
+//! its daylight-saving nights never depend on the host's zone files. A local day is
+//! `[start, end)` in instants: 24 hours most days, 23 on a spring-forward night, 25 on a
+//! fall-back night, and it starts at the first instant whose local date is that day (on
+//! the few zones whose clocks skip midnight itself, that is the end of the gap).
+
+use super::Timestamp;
+use chrono::{Datelike, NaiveDate, NaiveDateTime, NaiveTime, Offset, TimeZone, Utc};
+use chrono_tz::Tz;
+use std::fmt;
+use std::str::FromStr;
+
+/// Longest gap a zone's clocks skip at a transition, in minutes: no zone in the tz
+/// database skips more than a day, so the search for a day's first instant ends.
+const MAX_GAP_MINUTES: i64 = 24 * 60;
+/// Longest zone name accepted, in bytes (the tz database's longest is about 30).
+const MAX_ZONE_NAME_BYTES: usize = 64;
+
+/// A site's time zone, read from the tz database.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub struct SiteZone(Tz);
+
+/// Why a zone name was refused; the message names the accepted form.
+#[derive(Debug, Clone, PartialEq, Eq, thiserror::Error)]
+#[error(
+    "time zone '{given}' {why}: give an IANA zone name such as Europe/Berlin, \
+     America/Chicago or Asia/Kathmandu, or UTC"
+)]
+pub struct ZoneError {
+    given: String,
+    why: &'static str,
+}
+
+impl SiteZone {
+    /// The zone of a site that keeps UTC days.
+    pub const UTC: SiteZone = SiteZone(Tz::UTC);
+
+    /// Reads an IANA zone name. Offsets ("+05:30"), POSIX rules ("EST5EDT") and the
+    /// `Etc/GMT±N` zones (whose signs run backwards) are refused: a site names the place
+    /// whose clocks it keeps, so its daylight-saving rules come with it.
+    pub fn parse(text: &str) -> Result<Self, ZoneError> {
+        let given = text.trim();
+        let refuse = |why| ZoneError {
+            given: text.chars().take(MAX_ZONE_NAME_BYTES).collect(),
+            why,
+        };
+        if given.is_empty() {
+            return Err(refuse("is empty"));
+        }
+        if given.len() > MAX_ZONE_NAME_BYTES {
+            return Err(refuse("is too long"));
+        }
+        if given == "UTC" || given == "Etc/UTC" {
+            return Ok(Self::UTC);
+        }
+        if !given.contains('/') || given.starts_with("Etc/") {
+            return Err(refuse("is not a place's zone"));
+        }
+        Tz::from_str(given)
+            .map(SiteZone)
+            .map_err(|_| refuse("is not in the tz database"))
+    }
+
+    /// Returns the zone's name as the tz database spells it.
+    pub fn name(&self) -> &'static str {
+        self.0.name()
+    }
+
+    /// Returns the local date at this site at instant `at`.
+    pub fn day_of(&self, at: Timestamp) -> NaiveDate {
+        at.to_utc().with_timezone(&self.0).date_naive()
+    }
+
+    /// Returns today's local date at this site.
+    pub fn today(&self) -> NaiveDate {
+        self.day_of(Timestamp::now())
+    }
+
+    /// Returns the first instant whose local date at this site is `day`.
+    pub fn start_of(&self, day: NaiveDate) -> Timestamp {
+        let midnight = NaiveDateTime::new(day, NaiveTime::MIN);
+        // Ambiguous midnights take the earlier instant; a midnight in a gap takes the
+        // first local minute after the gap.
+        for minute in 0..=MAX_GAP_MINUTES {
+            let local = midnight + chrono::Duration::minutes(minute);
+            if let Some(at) = self.0.from_local_datetime(&local).earliest() {
+                return Timestamp(at.with_timezone(&Utc).timestamp_millis());
+            }
+        }
+        unreachable!("no zone skips more than MAX_GAP_MINUTES of local time")
+    }
+
+    /// Returns the instants `[start, end)` of local day `day` at this site.
+    pub fn range(&self, day: NaiveDate) -> (Timestamp, Timestamp) {
+        let next = day.succ_opt().unwrap_or(NaiveDate::MAX);
+        (self.start_of(day), self.start_of(next))
+    }
+
+    /// Returns the zone's abbreviation in effect at `at` (CET, CDT, +0545), for pages.
+    pub fn abbreviation(&self, at: Timestamp) -> String {
+        at.to_utc().with_timezone(&self.0).format("%Z").to_string()
+    }
+
+    /// Returns the zone's offset from UTC at `at`, in seconds east.
+    pub fn offset_s(&self, at: Timestamp) -> i32 {
+        self.0
+            .offset_from_utc_datetime(&at.to_utc().naive_utc())
+            .fix()
+            .local_minus_utc()
+    }
+}
+
+impl fmt::Display for SiteZone {
+    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        f.write_str(self.name())
+    }
+}
+
+/// A local date at a site.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub struct SiteDay {
+    pub zone: SiteZone,
+    pub date: NaiveDate,
+}
+
+impl SiteDay {
+    /// Returns the site's local day at instant `at`.
+    pub fn of(zone: SiteZone, at: Timestamp) -> Self {
+        Self {
+            zone,
+            date: zone.day_of(at),
+        }
+    }
+
+    /// Returns the instants `[start, end)` the day spans.
+    pub fn range(&self) -> (Timestamp, Timestamp) {
+        self.zone.range(self.date)
+    }
+
+    /// Returns the length of the day in hours (23, 24 or 25 on most zones' DST days).
+    pub fn hours(&self) -> f64 {
+        let (start, end) = self.range();
+        (end.0 - start.0) as f64 / 3_600_000.0
+    }
+
+    /// Returns the Monday that starts the day's ISO week, a local date.
+    pub fn week_monday(&self) -> NaiveDate {
+        let back = self.date.weekday().num_days_from_monday();
+        self.date - chrono::Duration::days(i64::from(back))
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use proptest::prelude::*;
+
+    fn zone(name: &str) -> SiteZone {
+        SiteZone::parse(name).unwrap()
+    }
+
+    fn date(y: i32, m: u32, d: u32) -> NaiveDate {
+        NaiveDate::from_ymd_opt(y, m, d).unwrap()
+    }
+
+    fn utc(text: &str) -> Timestamp {
+        Timestamp::parse_rfc3339(text).unwrap()
+    }
+
+    #[test]
+    fn zone_names_are_read_and_offsets_rules_and_nonsense_are_refused() {
+        assert_eq!(zone("America/Chicago").name(), "America/Chicago");
+        assert_eq!(zone(" UTC ").name(), "UTC");
+        assert_eq!(zone("Etc/UTC"), SiteZone::UTC);
+        for bad in [
+            "",
+            "  ",
+            "+05:30",
+            "EST5EDT",
+            "Etc/GMT+5",
+            "Mars/Olympus_Mons",
+            "CET",
+        ] {
+            let e = SiteZone::parse(bad).unwrap_err().to_string();
+            assert!(
+                e.contains("IANA zone name such as Europe/Berlin"),
+                "{bad}: {e}"
+            );
+        }
+        let long = "A/".repeat(100);
+        assert!(
+            SiteZone::parse(&long)
+                .unwrap_err()
+                .to_string()
+                .contains("too long")
+        );
+    }
+
+    #[test]
+    fn chicago_has_a_23_hour_day_in_march_and_a_25_hour_day_in_november() {
+        // US daylight saving 2026: from 2026-03-08 02:00 CST to 2026-11-01 02:00 CDT (the
+        // second Sunday of March and the first of November, US Energy Policy Act of 2005).
+        // Every boundary below was checked against Python 3.11's zoneinfo (an independent
+        // reader of the system's tz database) on 2026-12-04.
+        let z = zone("America/Chicago");
+        let spring = SiteDay {
+            zone: z,
+            date: date(2026, 3, 8),
+        };
+        assert_eq!(spring.hours(), 23.0);
+        assert_eq!(spring.range().0, utc("2026-03-08T06:00:00Z"));
+        assert_eq!(spring.range().1, utc("2026-03-09T05:00:00Z"));
+        let fall = SiteDay {
+            zone: z,
+            date: date(2026, 11, 1),
+        };
+        assert_eq!(fall.hours(), 25.0);
+        assert_eq!(fall.range().0, utc("2026-11-01T05:00:00Z"));
+        assert_eq!(fall.range().1, utc("2026-11-02T06:00:00Z"));
+        assert_eq!(
+            SiteDay {
+                zone: z,
+                date: date(2026, 6, 1)
+            }
+            .hours(),
+            24.0
+        );
+        // A count at 23:30 local on the fall-back day is on that day, not the next UTC one.
+        let late = utc("2026-11-02T05:30:00Z");
+        assert_eq!(z.day_of(late), date(2026, 11, 1));
+        assert_eq!(z.abbreviation(utc("2026-07-01T12:00:00Z")), "CDT");
+        assert_eq!(z.abbreviation(utc("2026-12-01T12:00:00Z")), "CST");
+    }
+
+    #[test]
+    fn half_and_three_quarter_hour_offsets_keep_their_minutes() {
+        // Asia/Kathmandu is UTC+05:45 and Asia/Kolkata UTC+05:30 all year (tz database;
+        // the day starts checked against Python 3.11's zoneinfo).
+        let k = zone("Asia/Kathmandu");
+        assert_eq!(k.offset_s(utc("2026-12-04T00:00:00Z")), 5 * 3_600 + 45 * 60);
+        assert_eq!(k.range(date(2026, 12, 7)).0, utc("2026-12-06T18:15:00Z"));
+        let i = zone("Asia/Kolkata");
+        assert_eq!(i.range(date(2026, 12, 7)).0, utc("2026-12-06T18:30:00Z"));
+        // A Monday at 03:00 local in Kathmandu is still Sunday in UTC; its week starts
+        // on that local Monday.
+        let monday_early = utc("2026-12-06T21:15:00Z");
+        let d = SiteDay::of(k, monday_early);
+        assert_eq!(d.date, date(2026, 12, 7));
+        assert_eq!(d.week_monday(), date(2026, 12, 7));
+    }
+
+    #[test]
+    fn kiritimati_and_pago_pago_are_a_day_apart_at_the_same_instant() {
+        // Pacific/Kiritimati keeps UTC+14 and Pacific/Pago_Pago UTC−11 (tz database;
+        // checked against Python 3.11's zoneinfo: 2026-12-05 07:44+14 and 2026-12-04 06:44−11).
+        let at = utc("2026-12-04T17:44:00Z");
+        assert_eq!(zone("Pacific/Kiritimati").day_of(at), date(2026, 12, 5));
+        assert_eq!(zone("Pacific/Pago_Pago").day_of(at), date(2026, 12, 4));
+        assert_eq!(SiteZone::UTC.day_of(at), date(2026, 12, 4));
+        let early = utc("2026-12-04T09:00:00Z");
+        assert_eq!(zone("Pacific/Pago_Pago").day_of(early), date(2026, 12, 3));
+    }
+
+    #[test]
+    fn a_zone_whose_clocks_skip_midnight_starts_its_day_after_the_gap() {
+        // America/Santiago springs forward at 24:00 local on the first Saturday of
+        // September in 2024 (Chile's rule in the tz database): 2024-09-08 has no 00:00.
+        // Python 3.11's zoneinfo gives the same: the day runs 04:00Z to 03:00Z next day.
+        let z = zone("America/Santiago");
+        let (start, end) = z.range(date(2024, 9, 8));
+        assert_eq!(start, utc("2024-09-08T04:00:00Z"));
+        assert_eq!(z.day_of(start), date(2024, 9, 8));
+        assert_eq!(z.day_of(start.plus_ms(-1)), date(2024, 9, 7));
+        assert_eq!(
+            (end.0 - start.0) / 3_600_000,
+            23,
+            "the skipped hour is missing"
+        );
+    }
+
+    const SOME_ZONES: &[&str] = &[
+        "UTC",
+        "America/Chicago",
+        "America/Santiago",
+        "America/St_Johns",
+        "Europe/London",
+        "Europe/Berlin",
+        "Australia/Lord_Howe",
+        "Asia/Kathmandu",
+        "Pacific/Kiritimati",
+        "Pacific/Pago_Pago",
+        "Pacific/Chatham",
+    ];
+
+    proptest! {
+        #[test]
+        fn every_instant_lies_in_the_range_of_its_own_day(
+            ms in 946_684_800_000i64..4_102_444_800_000i64,
+            z in 0..SOME_ZONES.len(),
+        ) {
+            let zone = SiteZone::parse(SOME_ZONES[z]).unwrap();
+            let at = Timestamp(ms);
+            let day = zone.day_of(at);
+            let (start, end) = zone.range(day);
+            prop_assert!(start <= at && at < end, "{} {at}: {day} is [{start}, {end})", zone);
+            prop_assert_eq!(zone.day_of(start), day);
+            prop_assert_eq!(zone.day_of(end.plus_ms(-1)), day);
+            prop_assert_eq!(zone.day_of(end), day.succ_opt().unwrap());
+            let hours = (end.0 - start.0) as f64 / 3_600_000.0;
+            prop_assert!((22.0..=26.0).contains(&hours), "{} {day}: {hours} h", zone);
+        }
+    }
+}
