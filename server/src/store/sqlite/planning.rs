@@ -608,7 +608,7 @@ pub fn save_count_list(
             let started: bool = tx
                 .prepare_cached(
                     "select 1 from count_task t
-                     where t.list_id = ?1
+                     where t.list_id = ?1 and t.withdrawn_at is null
                        and (t.status <> 'open'
                             or exists (select 1 from count_pass p indexed by count_pass_task
                                        where p.task_id = t.id))
@@ -732,7 +732,7 @@ pub fn count_list(
         "select t.id, t.seq, t.run, b.code, z.code, b.aisle, b.bay, b.level, t.reason, t.class, t.detail,
                 t.lines, t.est_s, t.status
          from count_task t join bin b on b.id = t.bin_id join zone z on z.id = b.zone_id
-         where t.list_id = ?1 order by t.run, t.seq",
+         where t.list_id = ?1 and t.withdrawn_at is null order by t.run, t.seq",
     )?;
     let tasks = q
         .query_map([id], |r| {
@@ -807,11 +807,18 @@ pub fn move_task(
             format!("the list for {day} has runs 1 to {counters}"),
         )]));
     }
-    let status: String = tx
-        .prepare_cached("select status from count_task where id = ?1 and list_id = ?2")?
-        .query_row(params![task, list], |r| r.get(0))
+    let (status, withdrawn): (String, bool) = tx
+        .prepare_cached(
+            "select status, withdrawn_at is not null from count_task where id = ?1 and list_id = ?2",
+        )?
+        .query_row(params![task, list], |r| Ok((r.get(0)?, r.get(1)?)))
         .optional()?
         .ok_or_else(|| StoreError::NotFound(format!("no task {task} in the list for {day}")))?;
+    if withdrawn {
+        return Err(StoreError::Conflict(format!(
+            "task {task} is a withdrawn recount and cannot move"
+        )));
+    }
     if status == "done" {
         return Err(StoreError::Conflict(format!(
             "task {task} is done and cannot move"
