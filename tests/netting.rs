@@ -967,12 +967,12 @@ async fn recount(s: &Site, day: &str, qty: i64) {
 
 #[tokio::test]
 async fn recount_outcomes_confirm_clear_or_call_a_supervisor() {
-    // First count 35 against 40: v₁ = −5. Building the day's list classified the items
-    // (S1 is class C, 5 %: 2 units of 40), so −5 is out.
+    // First count 35 against 40: v₁ = −5. S1 is too new for the day's first
+    // classification, so it is held to class A (exact), and −5 is out.
     // - recount 35: v₂ = −5 = v₁ → confirmed; the result waits for review, still out.
     // - recount 40: v₂ = 0 → the book was right: the result becomes a hit and the first
     //   count is marked wrong.
-    // - recount 30: v₂ = −10, within tolerance of neither (|−10| > 2 and |−10 − (−5)| > 2)
+    // - recount 30: v₂ = −10, within tolerance of neither (|−10| > 0 and |−10 − (−5)| > 0)
     //   → a supervisor count: a recount task held by no one, and a warning.
     for (qty, outcome, verdict, wrong) in [
         (35, "confirmed", "out_of_tolerance", false),
@@ -1363,7 +1363,7 @@ async fn two_recounts_in_one_run_keep_their_order_and_positive_walk_positions() 
     assert_eq!(all.len(), n, "every walk position once: {list}");
 }
 
-// One recount per bin and withdrawn recounts (DESIGN §5).
+// One recount per bin, withdrawn recounts and unclassified items (DESIGN §5).
 
 /// Receives into bin 1, an hour before the base: S1 40, L1 lot A1 10, L1 lot B2 10.
 async fn three_keys_in_bin1(s: &Site) {
@@ -1420,9 +1420,9 @@ async fn key_outcome(s: &Site, pass: &Pass, sku: &str, lot: &str) -> (String, St
 
 #[tokio::test]
 async fn three_keys_out_in_one_bin_get_one_recount_that_decides_all_three() {
-    // Every key below is out for any class (C allows 5 %: 2 of 40, 0.5 of 10). Cora
-    // counts S1 35 (v₁ = −5), L1 A1 8 (v₁ = −2) and L1 B2 12 (v₁ = +2): three keys out,
-    // one bin, one recount.
+    // The items have no class (the list's first classification ran before any stock
+    // arrived): held to class A, exact. Cora counts S1 35 (v₁ = −5), L1 A1 8 (v₁ = −2)
+    // and L1 B2 12 (v₁ = +2): three keys out, one bin, one recount.
     let s = site().await;
     let day = todays_list(&s, 2).await;
     three_keys_in_bin1(&s).await;
@@ -1457,8 +1457,8 @@ async fn three_keys_out_in_one_bin_get_one_recount_that_decides_all_three() {
     assert_eq!(phone_recounts(&s, &s.dan, &day).await.len(), 1);
 
     // Dan's one pass decides every key: S1 35 agrees with the first count (confirmed),
-    // L1 A1 10 with the book (book right), L1 B2 9 (v₂ = −1) with neither: |−1| > 0.5 and
-    // |−1 − 2| > 0.5 → a supervisor count, for that key only.
+    // L1 A1 10 with the book (book right), L1 B2 9 (v₂ = −1) with neither: |−1| > 0 and
+    // |−1 − 2| > 0 under exact tolerance → a supervisor count, for that key only.
     recount_bin1(
         &s,
         &day,
@@ -1556,5 +1556,67 @@ async fn a_late_posting_that_makes_the_first_count_a_hit_withdraws_its_recount()
     assert!(
         reason.contains("no key it re-checks is out of tolerance") && reason.contains("late2"),
         "{reason}"
+    );
+}
+
+#[tokio::test]
+async fn a_new_item_is_held_to_class_a_until_it_has_history_enough_to_be_classified() {
+    // Tolerances are the defaults (A exact, C 5 %: common practice, no source). Twenty of
+    // S1 arrived an hour ago; twenty of L1 lot A1 arrived 40 days ago and never issued.
+    // Building the list runs the first classification: L1 has more than the 30 days of
+    // history a first class needs and issued nothing (C); S1 is too new and stays
+    // unclassified. Counting 19 of each: 1 of 20 is 5 %, a hit for C, out for A.
+    let s = site().await;
+    s.moves(&[
+        (
+            "n1",
+            BIN1,
+            "S1",
+            "",
+            20,
+            "receipt",
+            s.base - 60 * MIN,
+            "host",
+        ),
+        (
+            "o1",
+            BIN2,
+            "L1",
+            "A1",
+            20,
+            "receipt",
+            s.base - 40 * 24 * 60 * MIN,
+            "host",
+        ),
+    ])
+    .await;
+    todays_list(&s, 2).await;
+    let b = s.base;
+    let new = Pass::new(BIN1);
+    let old = Pass::new(BIN2);
+    s.sync(
+        &s.cora,
+        vec![
+            new.opened(b),
+            new.line(b + MIN, "S1", "", 19),
+            new.done(b + 2 * MIN),
+            old.opened(b + 3 * MIN),
+            old.line(b + 4 * MIN, "L1", "A1", 19),
+            old.done(b + 5 * MIN),
+        ],
+        0,
+    )
+    .await;
+    let s1 = s.current(&new, "S1").await;
+    assert_eq!(
+        (s1["class"].clone(), s1["verdict"].as_str()),
+        (Value::Null, Some("out_of_tolerance")),
+        "{s1}"
+    );
+    let l1 = s.current(&old, "L1").await;
+    assert_eq!(
+        (l1["class"].as_str(), l1["verdict"].as_str()),
+        (Some("C"), Some("hit")),
+        "{l1}"
     );
 }

@@ -541,7 +541,8 @@ pub fn s1_each_gtin() -> String {
 
 /// Makes site T of the review suites (on `small_site`): S1's each has the GTIN
 /// `s1_each_gtin()`; the book holds 40 of S1 (unit cost 4.50) in BIN_1 and 10 in
-/// BIN_2; the list of REVIEW_DAY has one run; cora (PIN 4821) and dan (PIN 5932)
+/// BIN_2, received five weeks before REVIEW_DAY, so building its list (one run) gives S1
+/// its first class, C (history enough, no issues); cora (PIN 4821) and dan (PIN 5932)
 /// count, ines is the inventory manager; then `extra` people join.
 pub async fn review_site(app: &TestApp, extra: &[Person<'_>]) {
     app.small_site().await;
@@ -553,8 +554,8 @@ pub async fn review_site(app: &TestApp, extra: &[Person<'_>]) {
     app.post_ok(
         "/api/v1/sites/T/movements",
         &json!([
-            movement("r1", BIN_1, "S1", 40, "receipt", "2026-03-02T08:00:00Z"),
-            movement("r2", BIN_2, "S1", 10, "receipt", "2026-03-02T08:00:00Z")
+            movement("r1", BIN_1, "S1", 40, "receipt", "2026-01-27T08:00:00Z"),
+            movement("r2", BIN_2, "S1", 10, "receipt", "2026-01-27T08:00:00Z")
         ]),
     )
     .await;

@@ -135,7 +135,8 @@ pub fn put_calendar(tx: &Transaction, site: SiteId, c: &Calendar) -> Result<(), 
     Ok(())
 }
 
-/// Sums every item's issues (picks, net of their reversals) with event time in `[from, to)`.
+/// Sums every item's issues (picks, net of their reversals) with event time in `[from, to)`,
+/// with the event time of its first movement and whether it has a class already.
 /// One pass over the table: a year is most of the ledger, and walking the
 /// item index would visit every row out of order.
 pub fn abc_usage(
@@ -145,7 +146,10 @@ pub fn abc_usage(
     to: i64,
 ) -> Result<Vec<Usage>, StoreError> {
     let mut q = conn.prepare_cached(
-        "select i.id, i.unit_cost_minor, coalesce(u.issued, 0), coalesce(u.hits, 0)
+        "select i.id, i.unit_cost_minor, coalesce(u.issued, 0), coalesce(u.hits, 0),
+                (select min(m.event_at) from movement m indexed by movement_item_time
+                 where m.item_id = i.id),
+                exists (select 1 from item_class c where c.item_id = i.id)
          from item i left join (
              select item_id, sum(-qty) as issued, sum(case when qty < 0 then 1 else -1 end) as hits
              from movement not indexed
@@ -162,6 +166,8 @@ pub fn abc_usage(
             item,
             value_minor: i64::try_from(value).unwrap_or(i64::MAX),
             hits,
+            first_seen_ms: r.get(4)?,
+            classified: r.get(5)?,
         })
     })?;
     Ok(rows.collect::<rusqlite::Result<Vec<_>>>()?)
