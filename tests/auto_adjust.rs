@@ -5,7 +5,7 @@
 //! the host reads them from the adjustments feed, marked automatic.
 //!
 //! Tolerances are the defaults (class C 5 % of f*: common practice, no source); building
-//! the day's list classifies S1 as class C. With `review_site`'s book of S1 (40 in BIN_1,
+//! the day's list classifies S1 as class C (it has five weeks of history and no issues). With `review_site`'s book of S1 (40 in BIN_1,
 //! 10 in BIN_2), one unit off is within 5 % of 40 (2 units) but not of 10 (0.5 units).
 
 mod common;

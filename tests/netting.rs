@@ -967,12 +967,12 @@ async fn recount(s: &Site, day: &str, qty: i64) {
 
 #[tokio::test]
 async fn recount_outcomes_confirm_clear_or_call_a_supervisor() {
-    // First count 35 against 40: v₁ = −5. Building the day's list classified the items
-    // (S1 is class C, 5 %: 2 units of 40), so −5 is out.
+    // First count 35 against 40: v₁ = −5. S1 is too new for the day's first
+    // classification, so it is held to class A (exact), and −5 is out.
     // - recount 35: v₂ = −5 = v₁ → confirmed; the result waits for review, still out.
     // - recount 40: v₂ = 0 → the book was right: the result becomes a hit and the first
     //   count is marked wrong.
-    // - recount 30: v₂ = −10, within tolerance of neither (|−10| > 2 and |−10 − (−5)| > 2)
+    // - recount 30: v₂ = −10, within tolerance of neither (|−10| > 0 and |−10 − (−5)| > 0)
     //   → a supervisor count: a recount task held by no one, and a warning.
     for (qty, outcome, verdict, wrong) in [
         (35, "confirmed", "out_of_tolerance", false),
@@ -1362,4 +1362,281 @@ async fn two_recounts_in_one_run_keep_their_order_and_positive_walk_positions() 
     let n = all.len();
     all.dedup();
     assert_eq!(all.len(), n, "every walk position once: {list}");
+}
+
+// One recount per bin, withdrawn recounts and unclassified items (DESIGN §5).
+
+/// Receives into bin 1, an hour before the base: S1 40, L1 lot A1 10, L1 lot B2 10.
+async fn three_keys_in_bin1(s: &Site) {
+    let t = s.base - 60 * MIN;
+    s.moves(&[
+        ("r1", BIN1, "S1", "", 40, "receipt", t, "host"),
+        ("r2", BIN1, "L1", "A1", 10, "receipt", t, "host"),
+        ("r3", BIN1, "L1", "B2", 10, "receipt", t, "host"),
+    ])
+    .await;
+}
+
+/// The recount tasks of a counter's phone list.
+async fn phone_recounts(s: &Site, token: &str, day: &str) -> Vec<Value> {
+    my_tasks(s, token, day).await["tasks"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .filter(|t| t["kind"] == "recount")
+        .cloned()
+        .collect()
+}
+
+/// Dan counts bin 1 through his one recount task: `(sku, lot, qty)` lines, 10 minutes
+/// after the base.
+async fn recount_bin1(s: &Site, day: &str, lines: &[(&str, &str, i64)]) {
+    let rcs = phone_recounts(s, &s.dan, day).await;
+    assert_eq!(rcs.len(), 1, "dan has one recount: {rcs:?}");
+    let mut p = Pass::new(BIN1);
+    p.task = rcs[0]["id"].as_i64();
+    let b = s.base + 10 * MIN;
+    let mut events = vec![p.opened(b)];
+    for (i, (sku, lot, qty)) in lines.iter().enumerate() {
+        events.push(p.line(b + MIN + i as i64 * 1_000, sku, lot, *qty));
+    }
+    events.push(p.done(b + 2 * MIN));
+    s.sync(&s.dan, events, 0).await;
+}
+
+/// The recount outcome and verdict of a key's current result in a pass.
+async fn key_outcome(s: &Site, pass: &Pass, sku: &str, lot: &str) -> (String, String) {
+    let rows = s
+        .results(&format!("state=current&pass={}&sku={sku}", pass.count))
+        .await;
+    let r = rows
+        .iter()
+        .find(|r| r["lot"] == lot)
+        .unwrap_or_else(|| panic!("a current result of {sku} {lot}: {rows:?}"));
+    (
+        r["recount_outcome"].as_str().unwrap_or("").to_string(),
+        r["verdict"].as_str().unwrap().to_string(),
+    )
+}
+
+#[tokio::test]
+async fn three_keys_out_in_one_bin_get_one_recount_that_decides_all_three() {
+    // The items have no class (the list's first classification ran before any stock
+    // arrived): held to class A, exact. Cora counts S1 35 (v₁ = −5), L1 A1 8 (v₁ = −2)
+    // and L1 B2 12 (v₁ = +2): three keys out, one bin, one recount.
+    let s = site().await;
+    let day = todays_list(&s, 2).await;
+    three_keys_in_bin1(&s).await;
+    let p = Pass::new(BIN1);
+    let b = s.base;
+    s.sync(
+        &s.cora,
+        vec![
+            p.opened(b),
+            p.line(b + MIN, "S1", "", 35),
+            p.line(b + MIN + 1_000, "L1", "A1", 8),
+            p.line(b + MIN + 2_000, "L1", "B2", 12),
+            p.done(b + 2 * MIN),
+        ],
+        0,
+    )
+    .await;
+    let firsts: Vec<Value> = s.results(&format!("state=current&pass={}", p.count)).await;
+    assert_eq!(firsts.len(), 3, "{firsts:?}");
+    assert!(firsts.iter().all(|r| r["verdict"] == "out_of_tolerance"));
+    let (tasks, list) = recount_tasks(&s, &day).await;
+    assert_eq!(tasks.len(), 1, "one recount for the bin: {list}");
+    let detail = tasks[0]["detail"].as_str().unwrap();
+    for key in ["S1", "L1 lot A1", "L1 lot B2"] {
+        assert!(detail.contains(key), "the task lists {key}: {detail}");
+    }
+    let task = tasks[0]["id"].as_i64().unwrap();
+    for r in &firsts {
+        let d = s.detail(r["id"].as_i64().unwrap()).await;
+        assert_eq!(d["recount_tasks"], json!([task]), "{d}");
+    }
+    assert_eq!(phone_recounts(&s, &s.dan, &day).await.len(), 1);
+
+    // Dan's one pass decides every key: S1 35 agrees with the first count (confirmed),
+    // L1 A1 10 with the book (book right), L1 B2 9 (v₂ = −1) with neither: |−1| > 0 and
+    // |−1 − 2| > 0 under exact tolerance → a supervisor count, for that key only.
+    recount_bin1(
+        &s,
+        &day,
+        &[("S1", "", 35), ("L1", "A1", 10), ("L1", "B2", 9)],
+    )
+    .await;
+    assert_eq!(
+        key_outcome(&s, &p, "S1", "").await,
+        ("confirmed".into(), "out_of_tolerance".into())
+    );
+    assert_eq!(
+        key_outcome(&s, &p, "L1", "A1").await,
+        ("book_right".into(), "hit".into())
+    );
+    assert_eq!(
+        key_outcome(&s, &p, "L1", "B2").await,
+        ("supervisor_count".into(), "out_of_tolerance".into())
+    );
+    let (tasks, list) = recount_tasks(&s, &day).await;
+    assert_eq!(
+        tasks.len(),
+        2,
+        "the recount and one supervisor count: {list}"
+    );
+    let sup = tasks[1]["detail"].as_str().unwrap();
+    assert!(
+        sup.starts_with("supervisor count of L1 lot B2 (result "),
+        "the supervisor count re-checks the undecided key only: {sup}"
+    );
+}
+
+#[tokio::test]
+async fn a_late_posting_that_makes_the_first_count_a_hit_withdraws_its_recount() {
+    // Cora counts S1 35 of 40 and L1 A1 8 of 10 (lot B2 10 of 10, a hit): one recount for
+    // S1 and L1 A1. A pick of 5 of S1 stamped before her count, posted late, makes S1 a
+    // hit (f* = 35); the recount stays for L1 A1. A late pick of 2 of L1 A1 makes that a
+    // hit too: no key is out any more, and the recount is withdrawn.
+    let s = site().await;
+    let day = todays_list(&s, 2).await;
+    three_keys_in_bin1(&s).await;
+    let p = Pass::new(BIN1);
+    let b = s.base;
+    s.sync(
+        &s.cora,
+        vec![
+            p.opened(b),
+            p.line(b + MIN, "S1", "", 35),
+            p.line(b + MIN + 1_000, "L1", "A1", 8),
+            p.line(b + MIN + 2_000, "L1", "B2", 10),
+            p.done(b + 2 * MIN),
+        ],
+        0,
+    )
+    .await;
+    let (tasks, list) = recount_tasks(&s, &day).await;
+    assert_eq!(tasks.len(), 1, "{list}");
+    let task = tasks[0]["id"].as_i64().unwrap();
+    assert_eq!(phone_recounts(&s, &s.dan, &day).await.len(), 1);
+
+    let late = b - 20 * MIN;
+    s.moves(&[("late1", BIN1, "S1", "", -5, "pick", late, "host")])
+        .await;
+    assert_eq!(s.current(&p, "S1").await["verdict"], "hit");
+    let (tasks, list) = recount_tasks(&s, &day).await;
+    assert_eq!(
+        tasks.len(),
+        1,
+        "one key still out keeps the recount: {list}"
+    );
+    assert_eq!(phone_recounts(&s, &s.dan, &day).await.len(), 1);
+
+    s.moves(&[("late2", BIN1, "L1", "A1", -2, "pick", late, "host")])
+        .await;
+    let first = s
+        .results(&format!("state=current&pass={}&sku=L1", p.count))
+        .await
+        .into_iter()
+        .find(|r| r["lot"] == "A1")
+        .unwrap();
+    assert_eq!(first["verdict"], "hit", "{first}");
+    let (tasks, list) = recount_tasks(&s, &day).await;
+    assert!(
+        tasks.is_empty(),
+        "the withdrawn recount leaves the list: {list}"
+    );
+    assert!(
+        phone_recounts(&s, &s.dan, &day).await.is_empty(),
+        "and dan's phone"
+    );
+    let d = s.detail(first["id"].as_i64().unwrap()).await;
+    assert_eq!(d["recount_tasks"], json!([]), "{d}");
+    let withdrawn = &d["withdrawn_recounts"];
+    assert_eq!(withdrawn[0]["task"], task, "{d}");
+    let reason = withdrawn[0]["reason"].as_str().unwrap();
+    assert!(
+        reason.contains("no key it re-checks is out of tolerance") && reason.contains("late2"),
+        "{reason}"
+    );
+    // A phone that still shows the withdrawn recount cannot start a count against it.
+    let mut stale = Pass::new(BIN1);
+    stale.task = Some(task);
+    let now = Timestamp::now().0;
+    let answer = s
+        .app
+        .sync_answer(
+            &s.dan,
+            vec![stale.opened(now - 2_000), stale.done(now - 1_000)],
+            0,
+        )
+        .await;
+    for r in answer["results"].as_array().unwrap() {
+        assert_eq!(r["status"], "rejected", "{answer}");
+        assert!(
+            r["reason"].as_str().unwrap().contains("was withdrawn"),
+            "{answer}"
+        );
+    }
+}
+
+#[tokio::test]
+async fn a_new_item_is_held_to_class_a_until_it_has_history_enough_to_be_classified() {
+    // Tolerances are the defaults (A exact, C 5 %: common practice, no source). Twenty of
+    // S1 arrived an hour ago; twenty of L1 lot A1 arrived 40 days ago and never issued.
+    // Building the list runs the first classification: L1 has more than the 30 days of
+    // history a first class needs and issued nothing (C); S1 is too new and stays
+    // unclassified. Counting 19 of each: 1 of 20 is 5 %, a hit for C, out for A.
+    let s = site().await;
+    s.moves(&[
+        (
+            "n1",
+            BIN1,
+            "S1",
+            "",
+            20,
+            "receipt",
+            s.base - 60 * MIN,
+            "host",
+        ),
+        (
+            "o1",
+            BIN2,
+            "L1",
+            "A1",
+            20,
+            "receipt",
+            s.base - 40 * 24 * 60 * MIN,
+            "host",
+        ),
+    ])
+    .await;
+    todays_list(&s, 2).await;
+    let b = s.base;
+    let new = Pass::new(BIN1);
+    let old = Pass::new(BIN2);
+    s.sync(
+        &s.cora,
+        vec![
+            new.opened(b),
+            new.line(b + MIN, "S1", "", 19),
+            new.done(b + 2 * MIN),
+            old.opened(b + 3 * MIN),
+            old.line(b + 4 * MIN, "L1", "A1", 19),
+            old.done(b + 5 * MIN),
+        ],
+        0,
+    )
+    .await;
+    let s1 = s.current(&new, "S1").await;
+    assert_eq!(
+        (s1["class"].clone(), s1["verdict"].as_str()),
+        (Value::Null, Some("out_of_tolerance")),
+        "{s1}"
+    );
+    let l1 = s.current(&old, "L1").await;
+    assert_eq!(
+        (l1["class"].as_str(), l1["verdict"].as_str()),
+        (Some("C"), Some("hit")),
+        "{l1}"
+    );
 }

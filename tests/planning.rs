@@ -442,28 +442,44 @@ async fn a_classification_run_is_summarised_and_kept_in_each_items_history() {
     app.site_with_triggers().await;
     let (s, none) = app.get("/api/v1/sites/T/planning/abc").await;
     assert_eq!(s, 404, "{none}");
+    // S1 first moved on 2026-03-02 and L1 never did: on 2026-03-03 neither has the 30
+    // days of history a first class needs (DEVELOPERS "Planning"), so both stay
+    // unclassified (held to class A) instead of looking like slow C items.
     let (s, run) = app
         .post("/api/v1/sites/T/planning/abc?day=2026-03-03", &json!({}))
         .await;
     assert_eq!(s, 200, "{run}");
     assert_eq!(
         (run["items"].as_u64(), run["changed"].as_u64()),
-        (Some(2), Some(2))
+        (Some(0), Some(0)),
+        "{run}"
+    );
+    // A month on, S1 (the one item with issues) is classified A; L1 still has no history.
+    let (s, run) = app
+        .post("/api/v1/sites/T/planning/abc?day=2026-04-02", &json!({}))
+        .await;
+    assert_eq!(s, 200, "{run}");
+    assert_eq!(
+        (run["items"].as_u64(), run["changed"].as_u64()),
+        (Some(1), Some(1)),
+        "{run}"
     );
     // A second run changes nobody's class, so the history gains nothing.
     let (_, again) = app
-        .post("/api/v1/sites/T/planning/abc?day=2026-03-04", &json!({}))
+        .post("/api/v1/sites/T/planning/abc?day=2026-04-03", &json!({}))
         .await;
     assert_eq!(again["changed"], 0);
     let (s, history) = app.get("/api/v1/sites/T/items/S1/classes").await;
     assert_eq!(s, 200);
     assert_eq!(history.as_array().unwrap().len(), 1);
     assert_eq!(history[0]["class"], "A");
-    assert_eq!(history[0]["since"], "2026-03-03");
+    assert_eq!(history[0]["since"], "2026-04-02");
+    let (s, l1) = app.get("/api/v1/sites/T/items/L1/classes").await;
+    assert_eq!((s, l1.as_array().map(Vec::len)), (200, Some(0)), "{l1}");
     let (_, summary) = app.get("/api/v1/sites/T/planning/abc").await;
     assert_eq!(
         (summary["a"].as_u64(), summary["c"].as_u64()),
-        (Some(1), Some(1))
+        (Some(1), Some(0))
     );
 }
 

@@ -177,9 +177,17 @@ pub fn to_text(report: &PassReport, now: Timestamp) -> String {
             .done_at
             .map_or_else(|| "not yet".to_string(), |t| t.to_string()),
         report.uncertainty_ms,
-        report
-            .recount_of
-            .map_or_else(String::new, |r| format!(", a recount of result {r}"))
+        match report.rechecks.as_slice() {
+            [] => String::new(),
+            [one] => format!(", a recount of result {one}"),
+            many => format!(
+                ", a recount of results {}",
+                many.iter()
+                    .map(i64::to_string)
+                    .collect::<Vec<_>>()
+                    .join(", ")
+            ),
+        }
     );
     if report.results.is_empty() {
         let _ = writeln!(

@@ -28,7 +28,7 @@ pub async fn classify(
     let usage = store
         .abc_usage(site.id, Timestamp(from), Timestamp(to))
         .await?;
-    let classes = abc::classify(&usage, &settings.abc);
+    let classes = abc::hold_new_items(abc::classify(&usage, &settings.abc), &usage, to);
     store
         .record_classes(site.id, day, settings.abc, classes)
         .await

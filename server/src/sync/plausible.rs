@@ -181,13 +181,17 @@ pub fn span_reason(first: Timestamp, done: Timestamp) -> Option<String> {
     })
 }
 
-/// Writes a duration in words a counter reads: "3 h 05 min", "42 s".
+/// Writes a duration in words a counter reads, to the nearest minute from an hour up and
+/// the nearest second below: "3 h 05 min", "4 min 10 s", "42 s".
 fn span_text(ms: i64) -> String {
-    let s = ms / 1_000;
-    match s {
-        s if s >= 3_600 => format!("{} h {:02} min", s / 3_600, (s % 3_600) / 60),
-        s if s >= 60 => format!("{} min {:02} s", s / 60, s % 60),
-        s => format!("{s} s"),
+    let s = ms.saturating_add(500) / 1_000;
+    if s >= 3_600 {
+        let min = (s + 30) / 60;
+        format!("{} h {:02} min", min / 60, min % 60)
+    } else if s >= 60 {
+        format!("{} min {:02} s", s / 60, s % 60)
+    } else {
+        format!("{s} s")
     }
 }
 
@@ -257,6 +261,9 @@ mod tests {
             Some(-3_600_000)
         );
         assert!(step_reason(-3_600_000).contains("1 h 00 min"));
+        // A step measured a little short of two hours reads as the two hours it was.
+        assert!(step_reason(-7_199_930).contains("2 h 00 min"));
+        assert!(step_reason(61_400).contains("1 min 01 s"));
     }
 
     #[test]

@@ -132,7 +132,7 @@ pub fn planned_tasks(
          join count_list l on l.id = t.list_id
          join bin b on b.id = t.bin_id
          join zone z on z.id = b.zone_id
-         where l.site_id = ?1 and l.day >= ?2 and l.day <= ?3
+         where l.site_id = ?1 and l.day >= ?2 and l.day <= ?3 and t.withdrawn_at is null
          order by l.day, t.id",
     )?;
     let rows = stmt.query_map(params![site.0, from.to_string(), to.to_string()], |r| {

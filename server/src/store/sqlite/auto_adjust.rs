@@ -69,10 +69,12 @@ fn next_candidate(
                and not exists (select 1 from count_review v where v.result_id = r.id)
                and not exists (select 1 from count_task t
                                where t.id = p.task_id and t.recount_of is not null)
-               and not exists (select 1 from count_result r0 cross join count_task t
+               and not exists (select 1 from count_result r0 cross join count_task_recheck k
+                                   cross join count_task t
                                where r0.pass_id = r.pass_id and r0.item_id = r.item_id
-                                 and r0.lot = r.lot and t.recount_of = r0.id
-                                 and t.status <> 'done')
+                                 and r0.lot = r.lot and k.result_id = r0.id
+                                 and t.id = k.task_id and t.status <> 'done'
+                                 and t.withdrawn_at is null)
                and not exists (select 1 from count_result r0 cross join count_auto_adjustment a
                                where r0.pass_id = r.pass_id and r0.item_id = r.item_id
                                  and r0.lot = r.lot and a.result_id = r0.id)

@@ -54,6 +54,11 @@ pub const MIGRATIONS: &[Migration] = &[
         name: "0008_pass_clock.sql",
         sql: include_str!("../../../../migrations/0008_pass_clock.sql"),
     },
+    Migration {
+        version: 9,
+        name: "0009_recount_per_bin.sql",
+        sql: include_str!("../../../../migrations/0009_recount_per_bin.sql"),
+    },
 ];
 
 /// Returns the newest schema version this binary knows.
@@ -151,6 +156,135 @@ mod tests {
         for m in MIGRATIONS {
             assert!(m.name.starts_with(&format!("{:04}_", m.version)));
         }
+    }
+
+    /// Applies the migrations up to `version` the way `migrate` does.
+    fn migrate_up_to(conn: &mut Connection, version: i64) {
+        conn.execute_batch(
+            "create table schema_migration (version integer primary key, name text not null,
+                 checksum integer not null, applied_at integer not null) strict;",
+        )
+        .unwrap();
+        for m in MIGRATIONS.iter().filter(|m| m.version <= version) {
+            conn.execute_batch(m.sql).unwrap();
+            conn.execute(
+                "insert into schema_migration values (?1, ?2, ?3, 0)",
+                params![m.version, m.name, checksum(m.sql)],
+            )
+            .unwrap();
+        }
+    }
+
+    #[test]
+    fn open_recounts_of_one_pass_become_one_task_and_done_or_begun_ones_stay() {
+        let mut conn = Connection::open_in_memory().unwrap();
+        migrate_up_to(&mut conn, 7);
+        // One bin; pass 10 (cora) found S1 to S4 out, pass 11 found S1 out again later.
+        // The old schema sent one task per key: 200 (S1) and 201 (S2) open, 202 (S3) done
+        // and 205 its supervisor count, 206 (S4) begun by a phone (pass 12 points at it),
+        // 210 the recount of pass 11.
+        // Passes and tasks point at each other: the rows go in with the checks deferred.
+        conn.execute_batch(
+            "begin;
+             pragma defer_foreign_keys = on;
+             insert into site (id, code, name, created_at) values (1, 'T', 'T', 0);
+             insert into zone (id, site_id, code) values (1, 1, 'A');
+             insert into bin (id, site_id, zone_id, code, aisle, bay, level, side)
+                 values (1, 1, 1, 'A-01-01-1', 1, 1, 1, '');
+             insert into item (id, site_id, sku, description, base_unit, unit_cost_minor,
+                               lot_tracked)
+                 values (1, 1, 'S1', '', 'each', 1, 0), (2, 1, 'S2', '', 'each', 1, 0),
+                        (3, 1, 'S3', '', 'each', 1, 0), (4, 1, 'S4', '', 'each', 1, 0);
+             insert into user_account (id, name, display_name, password_hash, created_at)
+                 values (1, 'cora', 'Cora', '', 0), (2, 'dan', 'Dan', '', 0);
+             insert into count_list (id, site_id, day, counters, minutes, level_s, warnings,
+                                     built_at, watermark)
+                 values (1, 1, '2026-01-05', 2, 60, 0, '[]', 0, 0);
+             insert into count_pass (id, uid, site_id, bin_id, task_id, user_id, first_at,
+                                     done_at, uncertainty_ms, received_at)
+                 values (10, 'p10', 1, 1, null, 1, 0, 10, 0, 10),
+                        (11, 'p11', 1, 1, null, 1, 20, 30, 0, 30),
+                        (12, 'p12', 1, 1, 206, 2, 40, null, 0, 40),
+                        (13, 'p13', 1, 1, 202, 2, 40, 50, 0, 50);
+             insert into count_result (id, pass_id, site_id, bin_id, item_id, lot, counted,
+                     f_star, variance, status, verdict, unit_cost_minor, counted_at,
+                     window_start, window_end, evidence, watermark, settles_at, computed_at)
+                 values (100, 10, 1, 1, 1, '', 1, 2, -1, 'x', 'out_of_tolerance', 1, 0, 0, 0,
+                         '{}', 0, 0, 0),
+                        (101, 10, 1, 1, 2, '', 1, 2, -1, 'x', 'out_of_tolerance', 1, 0, 0, 0,
+                         '{}', 0, 0, 0),
+                        (102, 10, 1, 1, 3, '', 1, 2, -1, 'x', 'out_of_tolerance', 1, 0, 0, 0,
+                         '{}', 0, 0, 0),
+                        (103, 10, 1, 1, 4, '', 1, 2, -1, 'x', 'out_of_tolerance', 1, 0, 0, 0,
+                         '{}', 0, 0, 0),
+                        (110, 11, 1, 1, 1, '', 1, 2, -1, 'x', 'out_of_tolerance', 1, 0, 0, 0,
+                         '{}', 0, 0, 0);
+             insert into count_task (id, list_id, bin_id, seq, run, reason, detail, lines,
+                                     est_s, status, recount_of)
+                 values (200, 1, 1, 1, 2, 'recount', 'recount of S1 (result 100)', 1, 60,
+                         'open', 100),
+                        (201, 1, 1, 2, 2, 'recount', 'recount of S2 (result 101)', 1, 60,
+                         'open', 101),
+                        (202, 1, 1, 3, 2, 'recount', 'recount of S3 (result 102)', 1, 60,
+                         'done', 102),
+                        (205, 1, 1, 4, 3, 'recount', 'supervisor count of S3 (result 102)', 1,
+                         60, 'open', 102),
+                        (206, 1, 1, 5, 2, 'recount', 'recount of S4 (result 103)', 1, 60,
+                         'started', 103),
+                        (210, 1, 1, 6, 2, 'recount', 'recount of S1 (result 110)', 1, 60,
+                         'open', 110);
+             commit;",
+        )
+        .unwrap();
+        migrate(&mut conn).unwrap();
+
+        let links = |task: i64| -> Vec<i64> {
+            conn.prepare("select result_id from count_task_recheck where task_id = ?1 order by 1")
+                .unwrap()
+                .query_map([task], |r| r.get(0))
+                .unwrap()
+                .collect::<rusqlite::Result<_>>()
+                .unwrap()
+        };
+        let task = |id: i64| -> (String, String, bool, String, bool) {
+            conn.query_row(
+                "select detail, status, withdrawn_at is not null, withdrawn_reason, supervisor
+                 from count_task where id = ?1",
+                [id],
+                |r| Ok((r.get(0)?, r.get(1)?, r.get(2)?, r.get(3)?, r.get(4)?)),
+            )
+            .unwrap()
+        };
+        // The two open recounts of pass 10 are one task for the bin, listing both keys.
+        assert_eq!(links(200), vec![100, 101]);
+        let (detail, status, withdrawn, _, supervisor) = task(200);
+        assert_eq!(detail, "recount of S1, S2 (results 100, 101)");
+        assert_eq!(
+            (status.as_str(), withdrawn, supervisor),
+            ("open", false, false)
+        );
+        let (_, _, withdrawn, reason, _) = task(201);
+        assert!(
+            withdrawn && reason.contains("merged into task 200"),
+            "{reason}"
+        );
+        // Done, supervisor, begun and other-pass tasks stay as they were.
+        assert_eq!(task(202).1, "done");
+        assert!(!task(202).2);
+        assert_eq!(links(202), vec![102]);
+        let (_, _, withdrawn, _, supervisor) = task(205);
+        assert!(!withdrawn && supervisor, "a supervisor count stays one");
+        assert_eq!(links(205), vec![102]);
+        assert!(!task(206).2, "a recount a phone began is not merged");
+        assert_eq!(links(206), vec![103]);
+        assert!(!task(210).2, "another pass's recount stays its own");
+        assert_eq!(links(210), vec![110]);
+        let version: i64 = conn
+            .query_row("select version from count_list where id = 1", [], |r| {
+                r.get(0)
+            })
+            .unwrap();
+        assert_eq!(version, 2, "phones holding the list fetch it again");
     }
 
     #[test]

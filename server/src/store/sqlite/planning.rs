@@ -135,7 +135,8 @@ pub fn put_calendar(tx: &Transaction, site: SiteId, c: &Calendar) -> Result<(), 
     Ok(())
 }
 
-/// Sums every item's issues (picks, net of their reversals) with event time in `[from, to)`.
+/// Sums every item's issues (picks, net of their reversals) with event time in `[from, to)`,
+/// with the event time of its first movement and whether it has a class already.
 /// One pass over the table: a year is most of the ledger, and walking the
 /// item index would visit every row out of order.
 pub fn abc_usage(
@@ -145,7 +146,10 @@ pub fn abc_usage(
     to: i64,
 ) -> Result<Vec<Usage>, StoreError> {
     let mut q = conn.prepare_cached(
-        "select i.id, i.unit_cost_minor, coalesce(u.issued, 0), coalesce(u.hits, 0)
+        "select i.id, i.unit_cost_minor, coalesce(u.issued, 0), coalesce(u.hits, 0),
+                (select min(m.event_at) from movement m indexed by movement_item_time
+                 where m.item_id = i.id),
+                exists (select 1 from item_class c where c.item_id = i.id)
          from item i left join (
              select item_id, sum(-qty) as issued, sum(case when qty < 0 then 1 else -1 end) as hits
              from movement not indexed
@@ -162,6 +166,8 @@ pub fn abc_usage(
             item,
             value_minor: i64::try_from(value).unwrap_or(i64::MAX),
             hits,
+            first_seen_ms: r.get(4)?,
+            classified: r.get(5)?,
         })
     })?;
     Ok(rows.collect::<rusqlite::Result<Vec<_>>>()?)
@@ -608,7 +614,7 @@ pub fn save_count_list(
             let started: bool = tx
                 .prepare_cached(
                     "select 1 from count_task t
-                     where t.list_id = ?1
+                     where t.list_id = ?1 and t.withdrawn_at is null
                        and (t.status <> 'open'
                             or exists (select 1 from count_pass p indexed by count_pass_task
                                        where p.task_id = t.id))
@@ -732,7 +738,7 @@ pub fn count_list(
         "select t.id, t.seq, t.run, b.code, z.code, b.aisle, b.bay, b.level, t.reason, t.class, t.detail,
                 t.lines, t.est_s, t.status
          from count_task t join bin b on b.id = t.bin_id join zone z on z.id = b.zone_id
-         where t.list_id = ?1 order by t.run, t.seq",
+         where t.list_id = ?1 and t.withdrawn_at is null order by t.run, t.seq",
     )?;
     let tasks = q
         .query_map([id], |r| {
@@ -807,11 +813,18 @@ pub fn move_task(
             format!("the list for {day} has runs 1 to {counters}"),
         )]));
     }
-    let status: String = tx
-        .prepare_cached("select status from count_task where id = ?1 and list_id = ?2")?
-        .query_row(params![task, list], |r| r.get(0))
+    let (status, withdrawn): (String, bool) = tx
+        .prepare_cached(
+            "select status, withdrawn_at is not null from count_task where id = ?1 and list_id = ?2",
+        )?
+        .query_row(params![task, list], |r| Ok((r.get(0)?, r.get(1)?)))
         .optional()?
         .ok_or_else(|| StoreError::NotFound(format!("no task {task} in the list for {day}")))?;
+    if withdrawn {
+        return Err(StoreError::Conflict(format!(
+            "task {task} is a withdrawn recount and cannot move"
+        )));
+    }
     if status == "done" {
         return Err(StoreError::Conflict(format!(
             "task {task} is done and cannot move"

@@ -4,8 +4,9 @@
 //! against it → `recount_of` → first result). So a list never deletes or copies
 //! such a task: rebuilding a list keeps its open recounts, and building a later
 //! day's list moves the open recounts of earlier lists onto it, the same rows with
-//! the same ids. The task's run must never be held by someone who counted the key
-//! already.
+//! the same ids. The task's run must never be held by someone who counted one of its
+//! keys already. A withdrawn task (`withdrawn_at`) stays where it was and is read by
+//! none of these.
 
 use crate::master::SiteId;
 use crate::planning::abc::Class;
@@ -26,18 +27,12 @@ pub fn open_recounts(
 ) -> Result<Vec<OpenRecount>, StoreError> {
     // The few tasks that re-check a result come first (the non-null range of
     // count_task_recount, named so the planner does not walk every task in id order),
-    // then their lists. A supervisor count is the second task sent for a key of a pass
-    // (netting sends one only after a recount).
+    // then their lists. A withdrawn task is no longer sent anywhere.
     let mut q = conn.prepare_cached(
-        "select t.id, t.bin_id, t.class, t.detail, t.lines, t.est_s, l.day,
-                exists (select 1 from count_result r cross join count_result r2
-                            cross join count_task t2
-                        where r.id = t.recount_of and r2.pass_id = r.pass_id
-                          and r2.item_id = r.item_id and r2.lot = r.lot
-                          and t2.recount_of = r2.id and t2.id < t.id)
+        "select t.id, t.bin_id, t.class, t.detail, t.lines, t.est_s, l.day, t.supervisor
          from count_task t indexed by count_task_recount cross join count_list l
          where t.recount_of is not null and l.id = t.list_id and l.site_id = ?1 and l.day <= ?2
-           and t.status <> 'done'
+           and t.status <> 'done' and t.withdrawn_at is null
            and not exists (select 1 from count_pass p
                            where p.task_id = t.id and p.done_at is not null)
          order by t.id",
@@ -93,24 +88,39 @@ pub fn keep_recount(
     day: NaiveDate,
     p: &Placing,
 ) -> Result<Option<Carried>, StoreError> {
-    let row: Option<(i64, String, String, String, bool)> = tx
+    let row: Option<(i64, String, String, String, bool, bool)> = tx
         .prepare_cached(
             "select t.list_id, l.day, t.status, b.code,
                     exists (select 1 from count_pass p
-                            where p.task_id = t.id and p.done_at is not null)
+                            where p.task_id = t.id and p.done_at is not null),
+                    t.withdrawn_at is not null
              from count_task t join count_list l on l.id = t.list_id join bin b on b.id = t.bin_id
              where t.id = ?1 and l.site_id = ?2 and t.recount_of is not null",
         )?
         .query_row(params![p.task, site.0], |r| {
-            Ok((r.get(0)?, r.get(1)?, r.get(2)?, r.get(3)?, r.get(4)?))
+            Ok((
+                r.get(0)?,
+                r.get(1)?,
+                r.get(2)?,
+                r.get(3)?,
+                r.get(4)?,
+                r.get(5)?,
+            ))
         })
         .optional()?;
-    let Some((from, from_day, status, bin, counted)) = row else {
+    let Some((from, from_day, status, bin, counted, withdrawn)) = row else {
         return Err(StoreError::Conflict(format!(
             "task {} is not a recount of this site: build the list again",
             p.task
         )));
     };
+    if withdrawn {
+        return Err(StoreError::Conflict(format!(
+            "the recount of bin {bin} (task {}) was withdrawn while the list was built: \
+             build the list again",
+            p.task
+        )));
+    }
     if status == "done" || counted || from_day > day.format("%Y-%m-%d").to_string() {
         return Err(StoreError::Conflict(format!(
             "the recount of bin {bin} (task {}) was counted while the list was built: \
@@ -136,7 +146,7 @@ pub fn keep_recount(
 pub fn refuse_unplaced(tx: &Transaction, list: i64, kept: &HashSet<i64>) -> Result<(), StoreError> {
     let mut q = tx.prepare_cached(
         "select t.id, b.code from count_task t join bin b on b.id = t.bin_id
-         where t.list_id = ?1 and t.recount_of is not null",
+         where t.list_id = ?1 and t.recount_of is not null and t.withdrawn_at is null",
     )?;
     let rows = q
         .query_map([list], |r| {
@@ -183,25 +193,36 @@ pub fn note_carried(
     Ok(())
 }
 
-/// Says whether `holder` counted already the key a recount task re-checks: they made
-/// the first count, or a recount of it (a supervisor count follows a recount). `None`
-/// when the task re-checks nothing.
+/// Says whether `holder` counted already a key a recount task re-checks: they made the
+/// first count, or a recount of it (a supervisor count follows a recount). `None` when the
+/// task re-checks nothing.
 fn counted_before(conn: &Connection, task: i64, holder: &str) -> Result<Option<bool>, StoreError> {
-    Ok(conn
-        .prepare_cached(
-            "select exists (select 1 from count_pass p cross join user_account u
-                            where p.id = r.pass_id and u.id = p.user_id and u.name = ?2)
-                 or exists (select 1 from count_result r2 cross join count_task t2
-                                cross join count_pass p2 cross join user_account u2
-                            where r2.pass_id = r.pass_id and r2.item_id = r.item_id
-                              and r2.lot = r.lot and t2.recount_of = r2.id and t2.id <> t.id
-                              and p2.task_id = t2.id and p2.done_at is not null
-                              and u2.id = p2.user_id and u2.name = ?2)
-             from count_task t cross join count_result r
-             where t.id = ?1 and r.id = t.recount_of",
+    let rechecks: bool = conn
+        .prepare_cached("select recount_of is not null from count_task where id = ?1")?
+        .query_row([task], |r| r.get(0))
+        .optional()?
+        .unwrap_or(false);
+    if !rechecks {
+        return Ok(None);
+    }
+    Ok(Some(
+        conn.prepare_cached(
+            "select exists (select 1 from count_task_recheck k cross join count_result r
+                                cross join count_pass p cross join user_account u
+                            where k.task_id = ?1 and r.id = k.result_id and p.id = r.pass_id
+                              and u.id = p.user_id and u.name = ?2)
+                 or exists (select 1 from count_task_recheck k cross join count_result r
+                                cross join count_result r2 cross join count_task_recheck k2
+                                cross join count_pass p2 indexed by count_pass_task
+                                cross join user_account u2
+                            where k.task_id = ?1 and r.id = k.result_id
+                              and r2.pass_id = r.pass_id and r2.item_id = r.item_id
+                              and r2.lot = r.lot and k2.result_id = r2.id and k2.task_id <> ?1
+                              and p2.task_id = k2.task_id and p2.done_at is not null
+                              and u2.id = p2.user_id and u2.name = ?2)",
         )?
-        .query_row(params![task, holder], |r| r.get(0))
-        .optional()?)
+        .query_row(params![task, holder], |r| r.get(0))?,
+    ))
 }
 
 /// Returns the bin of the first open recount in run `run` of list `list` whose key
@@ -219,7 +240,7 @@ pub fn recount_counted_by(
         .prepare_cached(
             "select t.id, b.code from count_task t join bin b on b.id = t.bin_id
              where t.list_id = ?1 and t.run = ?2 and t.recount_of is not null
-               and t.status <> 'done'
+               and t.status <> 'done' and t.withdrawn_at is null
              order by t.seq",
         )?
         .query_map(params![list, run], |r| Ok((r.get(0)?, r.get(1)?)))?

@@ -40,9 +40,11 @@ const ROW_COLUMNS: &str =
     "r.id, b.code, z.code, i.sku, i.description, r.lot, coalesce(r.class, ''),
      r.counted, r.f_star, r.variance, r.unit_cost_minor, r.status, r.counted_at, r.settled,
      r.settles_at, u.name, coalesce(r.recount_outcome, ''),
-     exists (select 1 from count_task t join count_result r0 on r0.id = t.recount_of
+     exists (select 1 from count_result r0 cross join count_task_recheck k
+                 cross join count_task t
              where r0.pass_id = r.pass_id and r0.item_id = r.item_id and r0.lot = r.lot
-               and t.status <> 'done')";
+               and k.result_id = r0.id and t.id = k.task_id
+               and t.status <> 'done' and t.withdrawn_at is null)";
 
 const ROW_JOINS: &str = "from count_result r
      join bin b on b.id = r.bin_id
@@ -230,14 +232,14 @@ fn linked_passes(conn: &Connection, pass: i64, bin_id: i64) -> rusqlite::Result<
     let mut passes = BTreeSet::from([pass]);
     let mut rechecked = conn.prepare_cached(
         "select r.pass_id from count_pass p
-         join count_task t on t.id = p.task_id
-         join count_result r on r.id = t.recount_of
+         join count_task_recheck k on k.task_id = p.task_id
+         join count_result r on r.id = k.result_id
          where p.id = ?1",
     )?;
     let mut recounts = conn.prepare_cached(
-        "select p.id from count_pass p
-         join count_task t on t.id = p.task_id
-         join count_result r on r.id = t.recount_of
+        "select p.id from count_result r
+         join count_task_recheck k on k.result_id = r.id
+         join count_pass p on p.task_id = k.task_id
          where r.pass_id = ?1 and p.bin_id = ?2",
     )?;
     for _ in 0..MAX_RECOUNT_DEPTH {
@@ -405,8 +407,10 @@ pub fn difference(
 fn recounts(conn: &Connection, f: &ResultFacts) -> Result<Vec<RecountRow>, StoreError> {
     let tasks = conn
         .prepare_cached(
-            "select distinct t.id, t.status from count_task t
-             join count_result r on r.id = t.recount_of
+            "select distinct t.id,
+                    case when t.withdrawn_at is null then t.status else 'withdrawn' end
+             from count_result r join count_task_recheck k on k.result_id = r.id
+             join count_task t on t.id = k.task_id
              where r.pass_id = ?1 and r.bin_id = ?2 order by t.id",
         )?
         .query_map(params![f.pass_id, f.bin_id], |r| {

@@ -228,6 +228,8 @@ struct TaskRow {
     /// For a recount: when the pass it re-checks was marked done.
     recheck_done_at: Option<i64>,
     is_recount: bool,
+    /// Why the task was withdrawn (its first count became a hit), when it was.
+    withdrawn: Option<String>,
 }
 
 impl TaskRow {
@@ -286,13 +288,15 @@ fn apply_event(
     }
     let mut flags = Vec::new();
     let mut floor = None;
+    let mut withdrawn = None;
     if let Some(task) = event.task {
         let row = tx
             .prepare_cached(
                 "select t.bin_id, coalesce(r.holder, ''), b.code, l.day, l.built_at,
                         (select p.done_at from count_result c join count_pass p on p.id = c.pass_id
                          where c.id = t.recount_of),
-                        t.recount_of is not null
+                        t.recount_of is not null,
+                        case when t.withdrawn_at is not null then t.withdrawn_reason end
                  from count_task t
                  join count_list l on l.id = t.list_id join bin b on b.id = t.bin_id
                  left join count_run r on r.list_id = t.list_id and r.run = t.run
@@ -307,6 +311,7 @@ fn apply_event(
                     built_at: r.get(4)?,
                     recheck_done_at: r.get(5)?,
                     is_recount: r.get(6)?,
+                    withdrawn: r.get(7)?,
                 })
             })
             .optional()?;
@@ -332,6 +337,7 @@ fn apply_event(
             flags.push(EventFlag::Reassigned);
         }
         floor = Some(row.floor()?);
+        withdrawn = row.withdrawn;
     }
     if let Err(why) = plausible::check_event(
         at,
@@ -352,6 +358,14 @@ fn apply_event(
             })
         })
         .optional()?;
+    // A withdrawn recount needs no count: a new one against it is refused; a pass begun
+    // before it was withdrawn is kept as evidence (netting lets it decide nothing).
+    if let (Some(why), None) = (&withdrawn, &pass) {
+        return refuse(format!(
+            "task {} was withdrawn ({why}): this bin needs no recount now, so nothing was kept",
+            event.task.unwrap_or_default()
+        ));
+    }
     if let Some(p) = &pass {
         if p.user != batch.sender.user.0 {
             return refuse(format!("count {pass_uid} belongs to another counter"));

@@ -8,8 +8,8 @@
 use crate::master::SiteId;
 use crate::netting::rule::{BookState, CountTiming, KeyCount, KeyResult, Status};
 use crate::netting::service::{
-    self, Evidence, KeyFacts, LedgerMove, Netted, NettingSettings, Placement, ReasonCode,
-    SourceTimingRow, Sources, VERDICT_HIT, VERDICT_OUT,
+    self, Evidence, KeyFacts, LedgerMove, Netted, NettingSettings, ReasonCode, SourceTimingRow,
+    Sources, VERDICT_HIT, VERDICT_OUT,
 };
 use crate::netting::tolerance::{Tolerance, Verdict};
 use crate::planning::abc::Class;
@@ -22,6 +22,7 @@ use std::collections::{BTreeMap, BTreeSet, HashSet};
 
 mod policy;
 mod reads;
+mod recounts;
 pub use policy::*;
 pub use reads::*;
 
@@ -53,8 +54,10 @@ struct PassFacts {
     task_est_s: Option<i64>,
     user_name: String,
     timing: CountTiming,
-    /// The result this pass re-checks (its task's `recount_of`).
-    recount_of: Option<i64>,
+    /// The recount or supervisor-count task this pass was made against, if any.
+    recount_task: Option<i64>,
+    /// That task was withdrawn: the pass is netted as evidence and decides nothing.
+    withdrawn: bool,
     /// Why the pass's times cannot be trusted, when they cannot (`count_pass.held`).
     held: Option<String>,
 }
@@ -63,7 +66,9 @@ fn pass_facts(conn: &Connection, pass_id: i64) -> Result<Option<PassFacts>, Stor
     Ok(conn
         .prepare_cached(
             "select p.id, p.uid, p.site_id, p.bin_id, b.code, p.task_id, t.est_s, u.name,
-                    p.first_at, p.done_at, p.uncertainty_ms, t.recount_of, p.held
+                    p.first_at, p.done_at, p.uncertainty_ms,
+                    case when t.recount_of is not null then t.id end,
+                    coalesce(t.withdrawn_at is not null, 0), p.held
              from count_pass p join bin b on b.id = p.bin_id
              join user_account u on u.id = p.user_id
              left join count_task t on t.id = p.task_id
@@ -83,8 +88,9 @@ fn pass_facts(conn: &Connection, pass_id: i64) -> Result<Option<PassFacts>, Stor
                     done: r.get::<_, Option<i64>>(9)?.map(Timestamp),
                     clock_uncertainty_ms: r.get(10)?,
                 },
-                recount_of: r.get(11)?,
-                held: r.get(12)?,
+                recount_task: r.get(11)?,
+                withdrawn: r.get(12)?,
+                held: r.get(13)?,
             })
         })
         .optional()?)
@@ -302,14 +308,12 @@ pub fn net_pass(
         keys.insert(key.clone());
         netted.insert(key);
     }
-    let target = match pass.recount_of {
-        Some(r) => tx
-            .prepare_cached("select item_id, lot, pass_id from count_result where id = ?1")?
-            .query_row([r], |r| Ok(((r.get(0)?, r.get(1)?), r.get::<_, i64>(2)?)))
-            .optional()?,
-        None => None,
+    // The keys a recount pass re-checks, each with its first count's pass.
+    let targets = match pass.recount_task {
+        Some(task) => recounts::rechecked_keys(tx, task)?,
+        None => Vec::new(),
     };
-    if let Some((k, _)) = &target {
+    for (k, _) in &targets {
         keys.insert(k.clone());
     }
     if keys.len() > service::MAX_KEYS_PER_PASS {
@@ -355,7 +359,7 @@ pub fn net_pass(
         } else {
             None
         };
-        let is_target = target.as_ref().is_some_and(|(k, _)| *k == key);
+        let is_target = targets.iter().any(|(k, _)| *k == key);
         let (fresh, vanished_row) =
             match service::net_one(&pass.timing, &facts, &sources, &settings) {
                 Some(n) => (Some(n), false),
@@ -404,34 +408,41 @@ pub fn net_pass(
         changed.push((key, id, fresh.verdict, current.is_some()));
     }
 
-    // A first count out of tolerance goes to a recount, once per key of the pass.
-    let is_recount = pass.recount_of.is_some();
-    for (key, id, verdict, _) in &changed {
-        if is_recount || *verdict != VERDICT_OUT {
-            continue;
+    let recent = recounts::Sent { watermark, now };
+    if pass.recount_task.is_none() {
+        // The out-of-tolerance keys of a first count go to one recount of the bin.
+        let mut out_keys = Vec::new();
+        for (key, id, verdict, _) in &changed {
+            if *verdict == VERDICT_OUT && recounts::live_tasks_of(tx, pass.id, key)? == 0 {
+                out_keys.push(*id);
+            }
         }
-        if recount_tasks_of(tx, pass.id, key)? == 0 {
-            let sku = item_facts(tx, key.0)?.0;
-            out.tasks.push(add_recount_task(
-                tx, &pass, *id, &sku, true, watermark, now,
-            )?);
+        out.tasks
+            .extend(recounts::send(tx, &pass, &out_keys, false, &recent)?);
+        // Re-checked keys of this pass changed under their recounts: re-apply them.
+        let mut decide = Vec::new();
+        for (key, _, _, renetted) in &changed {
+            // A key netted for the first time has had no result a recount could re-check.
+            if *renetted && let Some(rc) = recounts::latest_recount_pass(tx, pass.id, key)? {
+                decide.push((key.clone(), rc));
+            }
         }
-    }
-    // Recount outcomes: this pass re-checks a result, or re-checked results of this
-    // pass changed under their recounts.
-    if let Some((key, first_pass)) = target {
-        out.tasks.extend(apply_recount(
-            tx, first_pass, &key, pass.id, watermark, now,
-        )?);
-    }
-    for (key, _, _, renetted) in &changed {
-        // A key netted for the first time has had no result a recount could re-check.
-        if is_recount || !renetted {
-            continue;
+        out.tasks
+            .extend(recounts::decide(tx, pass.id, &decide, &recent)?);
+        recounts::withdraw_unneeded(tx, pass.id, reason, now)?;
+    } else if !pass.withdrawn {
+        // A recount pass decides every key its task re-checks.
+        let mut by_first: BTreeMap<i64, Vec<(ItemLot, i64)>> = BTreeMap::new();
+        for (key, first_pass) in &targets {
+            by_first
+                .entry(*first_pass)
+                .or_default()
+                .push((key.clone(), pass.id));
         }
-        if let Some(rc) = latest_recount_pass(tx, pass.id, key)? {
+        for (first_pass, decide) in by_first {
             out.tasks
-                .extend(apply_recount(tx, pass.id, key, rc, watermark, now)?);
+                .extend(recounts::decide(tx, first_pass, &decide, &recent)?);
+            recounts::withdraw_unneeded(tx, first_pass, reason, now)?;
         }
     }
     Ok(out)
@@ -478,248 +489,6 @@ fn insert_result(
         now.0
     ])?;
     Ok(tx.last_insert_rowid())
-}
-
-/// Counts the recount tasks (recounts and supervisor counts) of a key of a pass.
-fn recount_tasks_of(conn: &Connection, pass_id: i64, key: &ItemLot) -> Result<i64, StoreError> {
-    // Cross joins fix the join order: the key's few results first, then their tasks, so
-    // the planner never walks every task of the site.
-    Ok(conn
-        .prepare_cached(
-            "select count(*) from count_result r cross join count_task t
-             where r.pass_id = ?1 and r.item_id = ?2 and r.lot = ?3 and t.recount_of = r.id",
-        )?
-        .query_row(params![pass_id, key.0, key.1], |r| r.get(0))?)
-}
-
-/// Returns the last pass marked done that re-checks a key of a pass.
-fn latest_recount_pass(
-    conn: &Connection,
-    pass_id: i64,
-    key: &ItemLot,
-) -> Result<Option<i64>, StoreError> {
-    Ok(conn
-        .prepare_cached(
-            "select p.id from count_result r cross join count_task t
-                 cross join count_pass p indexed by count_pass_task
-             where r.pass_id = ?1 and r.item_id = ?2 and r.lot = ?3 and t.recount_of = r.id
-               and p.task_id = t.id and p.done_at is not null
-             order by p.done_at desc, p.id desc limit 1",
-        )?
-        .query_row(params![pass_id, key.0, key.1], |r| r.get(0))
-        .optional()?)
-}
-
-/// Applies the recount rule to a first result from the recount pass's result of the
-/// same key: the first result's verdict, outcome and first-count-wrong mark are set in
-/// place (its evidence keeps the original judgement); neither → a supervisor count.
-fn apply_recount(
-    tx: &Transaction,
-    first_pass: i64,
-    key: &ItemLot,
-    recount_pass: i64,
-    watermark: i64,
-    now: Timestamp,
-) -> Result<Vec<i64>, StoreError> {
-    let (Some(first), Some(recount)) = (
-        current_result(tx, first_pass, key)?,
-        current_result(tx, recount_pass, key)?,
-    ) else {
-        return Ok(Vec::new());
-    };
-    if first.evidence.judged.is_hit() {
-        // The first result became a hit by itself (a late movement): nothing to decide.
-        tx.prepare_cached(
-            "update count_result set verdict = 'hit', recount_outcome = null,
-                 first_count_wrong = 0 where id = ?1",
-        )?
-        .execute([first.id])?;
-        return Ok(Vec::new());
-    }
-    let cost: i64 = tx
-        .prepare_cached("select unit_cost_minor from count_result where id = ?1")?
-        .query_row([first.id], |r| r.get(0))?;
-    let effect = service::recount_effect(
-        &first.evidence.netting,
-        &recount.evidence.netting,
-        cost,
-        &first.evidence.tolerance,
-    );
-    tx.prepare_cached(
-        "update count_result set verdict = ?2, recount_outcome = ?3, first_count_wrong = ?4
-         where id = ?1",
-    )?
-    .execute(params![
-        first.id,
-        effect.verdict,
-        effect.outcome_text,
-        effect.first_count_wrong
-    ])?;
-    let mut tasks = Vec::new();
-    if effect.supervisor_count && recount_tasks_of(tx, first_pass, key)? < 2 {
-        let pass = pass_facts(tx, first_pass)?
-            .ok_or_else(|| anyhow::anyhow!("count pass {first_pass} vanished"))?;
-        tasks.push(add_recount_task(
-            tx,
-            &pass,
-            first.id,
-            &first.evidence.sku,
-            false,
-            watermark,
-            now,
-        )?);
-    }
-    Ok(tasks)
-}
-
-/// Adds a recount task for `result` to the day's list of the pass's done day (creating
-/// the list if there is none), ahead of its run: in a run held by someone other than
-/// the first counter when `assign`, else (or when there is no such run) in a run held
-/// by no one, with a warning on the list. Returns the task's id.
-fn add_recount_task(
-    tx: &Transaction,
-    pass: &PassFacts,
-    result: i64,
-    sku: &str,
-    assign: bool,
-    watermark: i64,
-    now: Timestamp,
-) -> Result<i64, StoreError> {
-    let done = pass.timing.done.unwrap_or(pass.timing.first_scan);
-    let day = done.to_utc().date_naive().format("%Y-%m-%d").to_string();
-    let list = tx
-        .prepare_cached(
-            "select id, counters, warnings from count_list where site_id = ?1 and day = ?2",
-        )?
-        .query_row(params![pass.site.0, day], |r| {
-            Ok((
-                r.get::<_, i64>(0)?,
-                r.get::<_, u32>(1)?,
-                r.get::<_, String>(2)?,
-            ))
-        })
-        .optional()?;
-    let (list, counters, warnings) = match list {
-        Some(l) => l,
-        None => {
-            tx.prepare_cached(
-                "insert into count_list (site_id, day, counters, minutes, level_s, warnings,
-                     built_at, watermark)
-                 values (?1, ?2, 1, ?3, 0, '[]', ?4, ?5)",
-            )?
-            .execute(params![
-                pass.site.0,
-                day,
-                RECOUNT_EST_S.div_euclid(60).max(1),
-                now.0,
-                watermark
-            ])?;
-            let id = tx.last_insert_rowid();
-            tx.prepare_cached("insert into count_run (list_id, run) values (?1, 1)")?
-                .execute([id])?;
-            (id, 1, "[]".to_string())
-        }
-    };
-    let runs = tx
-        .prepare_cached(
-            "select r.run, r.holder,
-                    (select count(*) from count_task t
-                     where t.list_id = r.list_id and t.run = r.run and t.status <> 'done')
-             from count_run r where r.list_id = ?1 order by r.run",
-        )?
-        .query_map([list], |r| Ok((r.get(0)?, r.get(1)?, r.get(2)?)))?
-        .collect::<rusqlite::Result<Vec<(u32, String, u32)>>>()?;
-    let placement = if assign {
-        service::place_recount(&runs, &pass.user_name, counters + 1)
-    } else {
-        let run = runs
-            .iter()
-            .filter(|(_, h, _)| h.is_empty())
-            .map(|(r, _, _)| *r)
-            .min()
-            .unwrap_or(counters + 1);
-        Placement::Unassigned {
-            run,
-            warning: format!(
-                "supervisor count of {} ({sku}): the recount agreed with neither the first \
-                 count nor the book; run {run} is held by no one",
-                pass.bin_code
-            ),
-        }
-    };
-    let (run, warning) = match placement {
-        Placement::Run(r) => (r, None),
-        Placement::Unassigned { run, warning } => (run, Some(warning)),
-    };
-    if run > counters {
-        tx.prepare_cached("insert into count_run (list_id, run) values (?1, ?2)")?
-            .execute(params![list, run])?;
-        tx.prepare_cached("update count_list set counters = ?2 where id = ?1")?
-            .execute(params![list, run])?;
-    }
-    // Recounts lead the run, in the order they were sent: the new one goes after the
-    // recounts already there and everything after it moves down one place, so every
-    // sequence number stays a positive walk position.
-    let seq: i64 = tx
-        .prepare_cached(
-            "select coalesce(
-                 (select max(seq) + 1 from count_task
-                  where list_id = ?1 and run = ?2 and recount_of is not null),
-                 (select min(seq) from count_task where list_id = ?1 and run = ?2),
-                 1)",
-        )?
-        .query_row(params![list, run], |r| r.get(0))?;
-    tx.prepare_cached(
-        "update count_task set seq = seq + 1
-         where list_id = ?1 and run = ?2 and seq >= ?3 and recount_of is null",
-    )?
-    .execute(params![list, run, seq])?;
-    let class: Option<String> = tx
-        .prepare_cached("select class from count_result where id = ?1")?
-        .query_row([result], |r| r.get(0))?;
-    let lines: i64 = tx
-        .prepare_cached("select count(*) from balance where bin_id = ?1 and qty <> 0")?
-        .query_row([pass.bin_id], |r| r.get(0))?;
-    let detail = if assign {
-        format!("recount of {sku} (result {result})")
-    } else {
-        format!("supervisor count of {sku} (result {result})")
-    };
-    tx.prepare_cached(
-        "insert into count_task (list_id, bin_id, seq, run, reason, class, detail, lines, est_s,
-             recount_of)
-         values (?1, ?2, ?3, ?4, 'recount', ?5, ?6, ?7, ?8, ?9)",
-    )?
-    .execute(params![
-        list,
-        pass.bin_id,
-        seq,
-        run,
-        class,
-        detail,
-        lines.max(1),
-        pass.task_est_s.unwrap_or(RECOUNT_EST_S),
-        result
-    ])?;
-    let task = tx.last_insert_rowid();
-    if let Some(w) = warning {
-        // Said once per run and counter, however many recounts wait there.
-        let mut all: Vec<String> = serde_json::from_str(&warnings).unwrap_or_default();
-        if all.contains(&w) {
-            return bump_list(tx, list).map(|()| task);
-        }
-        all.push(w);
-        tx.prepare_cached("update count_list set warnings = ?2 where id = ?1")?
-            .execute(params![list, json(&all)?])?;
-    }
-    bump_list(tx, list)?;
-    Ok(task)
-}
-
-fn bump_list(tx: &Transaction, list: i64) -> Result<(), StoreError> {
-    tx.prepare_cached("update count_list set version = version + 1 where id = ?1")?
-        .execute([list])?;
-    Ok(())
 }
 
 // ---------------------------------------------------------------------------

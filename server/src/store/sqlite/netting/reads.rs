@@ -77,10 +77,20 @@ pub struct ResultDetail {
     pub evidence: Evidence,
     /// Earlier rows of the same key of the same pass, newest first.
     pub replaces: Vec<i64>,
-    /// Recount and supervisor-count tasks of this key of this pass.
+    /// Recount and supervisor-count tasks of this key of this pass, not withdrawn.
     pub recount_tasks: Vec<i64>,
+    /// Tasks of this key of this pass that were withdrawn, oldest first.
+    pub withdrawn_recounts: Vec<WithdrawnRecount>,
     /// The count adjustment posted for it automatically, if one was.
     pub automatic_adjustment: Option<crate::review::store::AutoAdjustment>,
+}
+
+/// A recount task withdrawn before anyone counted against it.
+#[derive(Debug, Clone, Serialize)]
+pub struct WithdrawnRecount {
+    pub task: i64,
+    pub at: Timestamp,
+    pub reason: String,
 }
 
 const ROW_SELECT: &str = "select r.id, r.pass_id, p.uid, u.name, b.code, i.sku, r.lot, r.class,
@@ -201,21 +211,42 @@ pub fn count_result(
         replaces.push(prev);
         at = prev;
     }
-    let recount_tasks = conn
+    let tasks = conn
         .prepare_cached(
-            "select t.id from count_task t join count_result r on r.id = t.recount_of
-             join count_result me on me.pass_id = r.pass_id and me.item_id = r.item_id
-                  and me.lot = r.lot
+            "select distinct t.id, t.withdrawn_at, t.withdrawn_reason from count_result me
+             join count_result r on r.pass_id = me.pass_id and r.item_id = me.item_id
+                  and r.lot = me.lot
+             join count_task_recheck k on k.result_id = r.id
+             join count_task t on t.id = k.task_id
              where me.id = ?1 order by t.id",
         )?
-        .query_map([row.id], |r| r.get(0))?
-        .collect::<rusqlite::Result<Vec<i64>>>()?;
+        .query_map([row.id], |r| {
+            Ok((
+                r.get::<_, i64>(0)?,
+                r.get::<_, Option<i64>>(1)?,
+                r.get::<_, String>(2)?,
+            ))
+        })?
+        .collect::<rusqlite::Result<Vec<_>>>()?;
+    let mut recount_tasks = Vec::new();
+    let mut withdrawn_recounts = Vec::new();
+    for (task, withdrawn_at, reason) in tasks {
+        match withdrawn_at {
+            None => recount_tasks.push(task),
+            Some(at) => withdrawn_recounts.push(WithdrawnRecount {
+                task,
+                at: Timestamp(at),
+                reason,
+            }),
+        }
+    }
     let automatic_adjustment = crate::store::sqlite::auto_adjust::of_result(conn, row.id)?;
     Ok(Some(ResultDetail {
         row,
         evidence,
         replaces,
         recount_tasks,
+        withdrawn_recounts,
         automatic_adjustment,
     }))
 }
@@ -231,7 +262,8 @@ pub struct PassReport {
     pub first_at: Timestamp,
     pub done_at: Option<Timestamp>,
     pub uncertainty_ms: i64,
-    pub recount_of: Option<i64>,
+    /// The first results this pass re-checks (its task's), if it is a recount.
+    pub rechecks: Vec<i64>,
     pub results: Vec<ResultDetail>,
 }
 
@@ -244,7 +276,7 @@ pub fn pass_report(
     let head = conn
         .prepare_cached(
             "select p.id, p.uid, s.code, b.code, u.name, p.first_at, p.done_at, p.uncertainty_ms,
-                    t.recount_of, p.site_id
+                    p.task_id, p.site_id
              from count_pass p join site s on s.id = p.site_id join bin b on b.id = p.bin_id
              join user_account u on u.id = p.user_id left join count_task t on t.id = p.task_id
              where p.uid = ?1 or cast(p.id as text) = ?1",
@@ -260,16 +292,23 @@ pub fn pass_report(
                     first_at: Timestamp(r.get(5)?),
                     done_at: r.get::<_, Option<i64>>(6)?.map(Timestamp),
                     uncertainty_ms: r.get(7)?,
-                    recount_of: r.get(8)?,
+                    rechecks: Vec::new(),
                     results: Vec::new(),
                 },
+                r.get::<_, Option<i64>>(8)?,
                 SiteId(r.get(9)?),
             ))
         })
         .optional()?;
-    let Some((mut report, site)) = head else {
+    let Some((mut report, task, site)) = head else {
         return Ok(None);
     };
+    report.rechecks = conn
+        .prepare_cached(
+            "select result_id from count_task_recheck where task_id = ?1 order by result_id",
+        )?
+        .query_map([task], |r| r.get(0))?
+        .collect::<rusqlite::Result<Vec<i64>>>()?;
     let ids = conn
         .prepare_cached(
             "select r.id from count_result r join item i on i.id = r.item_id
