@@ -866,6 +866,13 @@ async fn user_command(command: UserCommand) -> anyhow::Result<()> {
             let name = UserName::parse(&name).map_err(anyhow::Error::msg)?;
             let roles = Role::parse_list(&roles).map_err(anyhow::Error::msg)?;
             anyhow::ensure!(!roles.is_empty(), "name at least one role with --roles");
+            let display_name = display_name
+                .map(|d| {
+                    crate::input::text::field("--display-name", crate::input::text::Kind::Name, &d)
+                })
+                .transpose()
+                .map_err(anyhow::Error::msg)?
+                .filter(|d| !d.is_empty());
             let what: &[&str] = if with_pin {
                 &["password", "PIN"]
             } else {

@@ -35,6 +35,12 @@ pub enum ApiError {
     Internal(#[from] anyhow::Error),
 }
 
+impl From<crate::input::json::BodyError> for ApiError {
+    fn from(e: crate::input::json::BodyError) -> Self {
+        ApiError::BadRequest(e.to_string())
+    }
+}
+
 impl From<StoreError> for ApiError {
     fn from(e: StoreError) -> Self {
         match e {

@@ -34,9 +34,15 @@ fn place(path: &serde_path_to_error::Path) -> String {
 /// Checks that `bytes` is exactly one JSON value with no key given twice in any object.
 pub fn check_shape(bytes: &[u8]) -> Result<(), BodyError> {
     let mut de = serde_json::Deserializer::from_slice(bytes);
-    serde_path_to_error::deserialize::<_, UniqueKeys>(&mut de).map_err(|e| BodyError {
-        field: place(e.path()),
-        message: e.into_inner().to_string(),
+    serde_path_to_error::deserialize::<_, UniqueKeys>(&mut de).map_err(|e| {
+        let field = place(e.path());
+        let inner = e.into_inner();
+        let message = if inner.is_syntax() || inner.is_eof() {
+            format!("the body is not valid JSON: {inner}")
+        } else {
+            inner.to_string()
+        };
+        BodyError { field, message }
     })?;
     de.end().map_err(|e| BodyError {
         field: WHOLE_BODY.to_string(),
