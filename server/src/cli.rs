@@ -602,7 +602,12 @@ async fn dispatch(command: Command) -> anyhow::Result<()> {
                 .store
                 .create_site(NewSite {
                     code: SiteCode::parse(&code)?,
-                    name,
+                    name: crate::input::text::field(
+                        "--name",
+                        crate::input::text::Kind::Label,
+                        &name,
+                    )
+                    .map_err(anyhow::Error::msg)?,
                     time_zone,
                 })
                 .await?;
@@ -970,7 +975,12 @@ async fn user_command(command: UserCommand) -> anyhow::Result<()> {
                         user,
                         site: site.id,
                         role,
-                        name: label,
+                        name: crate::input::text::field(
+                            "--label",
+                            crate::input::text::Kind::Name,
+                            &label,
+                        )
+                        .map_err(anyhow::Error::msg)?,
                         token_digest: token.digest(),
                         at: crate::time::Timestamp::now(),
                     },
