@@ -315,7 +315,7 @@ async fn bad_events_in_a_sync_are_refused_one_by_one_and_leave_no_trace() {
 async fn sql_looking_free_text_is_stored_literally_and_harms_nothing() {
     let app = spawn_app().await;
     app.small_site().await;
-    let text = "Washer'); delete from item; -- \u{202e}ﾘ \u{0301}\"\\";
+    let text = "Washer'); delete from item; -- ﾘ \u{0301}\"\\";
     let (s, b) = app
         .post(ITEMS, &json!([item(json!({"description": text}))]))
         .await;
@@ -331,4 +331,575 @@ async fn sql_looking_free_text_is_stored_literally_and_harms_nothing() {
         .query_row("select count(*) from item", [], |r| r.get(0))
         .unwrap();
     assert_eq!(items, 3, "S1, L1 and N1 are all still there");
+}
+
+/// One request of the input-hygiene table: method, path, raw body, and a word its
+/// message must contain (the field, or what is wrong).
+struct Breach {
+    what: &'static str,
+    method: reqwest::Method,
+    path: String,
+    body: Vec<u8>,
+    says: &'static str,
+}
+
+fn breach(
+    what: &'static str,
+    method: reqwest::Method,
+    path: &str,
+    body: impl Into<Vec<u8>>,
+    says: &'static str,
+) -> Breach {
+    Breach {
+        what,
+        method,
+        path: path.to_string(),
+        body: body.into(),
+        says,
+    }
+}
+
+/// Appends `tail` to a JSON text: trailing data after the value.
+fn with_tail(v: Value, tail: &str) -> Vec<u8> {
+    format!("{v}{tail}").into_bytes()
+}
+
+fn short_pick(extra: Value) -> Value {
+    let mut m = json!({"id": "sp-9", "bin": "A-01-01-1", "sku": "S1", "short_qty": 1,
+                       "reported_at": "2026-03-02T10:00:00Z"});
+    m.as_object_mut()
+        .unwrap()
+        .extend(extra.as_object().unwrap().clone());
+    m
+}
+
+const P: &str = "/api/v1/sites/T";
+
+fn breaches(planning: &Value, netting: &Value) -> Vec<Breach> {
+    use reqwest::Method as M;
+    let path = |tail: &str| format!("{P}{tail}");
+    let netting_with = |k: &str, v: Value| {
+        let mut n = netting.clone();
+        n[k] = v;
+        json_bytes(n)
+    };
+    let mut task_time_max = planning.clone();
+    task_time_max["task_time"]["base_s"] = json!(u32::MAX);
+    let mut tolerance_max = netting.clone();
+    tolerance_max["tolerances"]["a"]["units"] = json!(i64::MAX);
+    let list = json!({"day": "2026-03-03", "counters": 1, "minutes": 60});
+    let accuracy = json!({"ira_target": 0.95, "demand_window_days": 90,
+                          "service_level": [0.98, 0.95, 0.9]});
+    let enrol = json!({"user": "cora", "pin": "4821", "site": "T", "device_name": "p"});
+    vec![
+        // Trailing data after the JSON value: every single-object route.
+        breach(
+            "planning settings + tail",
+            M::PUT,
+            &path("/planning/settings"),
+            with_tail(planning.clone(), " {}"),
+            "after the JSON value",
+        ),
+        breach(
+            "calendar + tail",
+            M::PUT,
+            &path("/planning/calendar"),
+            with_tail(json!({"working_weekdays": ["mon"]}), "x"),
+            "after the JSON value",
+        ),
+        breach(
+            "count list + tail",
+            M::POST,
+            &path("/count-lists"),
+            with_tail(list.clone(), "[]"),
+            "after the JSON value",
+        ),
+        breach(
+            "move task + tail",
+            M::POST,
+            &path("/count-lists/2026-03-03/tasks/1/move"),
+            with_tail(json!({"run": 1}), "1"),
+            "after the JSON value",
+        ),
+        breach(
+            "hold run + tail",
+            M::PUT,
+            &path("/count-lists/2026-03-03/runs/1"),
+            with_tail(json!({"holder": ""}), "\"\""),
+            "after the JSON value",
+        ),
+        breach(
+            "accuracy settings + tail",
+            M::PUT,
+            &path("/accuracy/settings"),
+            with_tail(accuracy.clone(), "}"),
+            "after the JSON value",
+        ),
+        breach(
+            "netting settings + tail",
+            M::PUT,
+            &path("/netting/settings"),
+            with_tail(netting.clone(), " null"),
+            "after the JSON value",
+        ),
+        breach(
+            "sources + tail",
+            M::PUT,
+            &path("/netting/sources"),
+            with_tail(json!([]), "[]"),
+            "after the JSON value",
+        ),
+        breach(
+            "reason codes + tail",
+            M::PUT,
+            &path("/netting/reason-codes"),
+            with_tail(json!([]), "0"),
+            "after the JSON value",
+        ),
+        breach(
+            "enrol + tail",
+            M::POST,
+            DEVICES,
+            with_tail(enrol.clone(), "{}"),
+            "after the JSON value",
+        ),
+        breach(
+            "movements + tail",
+            M::POST,
+            MOVES,
+            with_tail(json!([mv(json!({}))]), "[]"),
+            "after the JSON value",
+        ),
+        // Duplicate keys: refused, naming the key, wherever the object is.
+        breach(
+            "a cost given twice",
+            M::POST,
+            ITEMS,
+            r#"[{"sku": "N1", "description": "Washer", "base_unit": "each", "unit_cost_minor": 5, "unit_cost_minor": 500}]"#,
+            "\"unit_cost_minor\" is given twice",
+        ),
+        breach(
+            "a holder given twice",
+            M::PUT,
+            &path("/count-lists/2026-03-03/runs/1"),
+            r#"{"holder": "", "holder": "cora"}"#,
+            "\"holder\" is given twice",
+        ),
+        breach(
+            "auto_adjust given twice",
+            M::PUT,
+            &path("/netting/settings"),
+            format!(r#"{{"auto_adjust": true, {}"#, &netting.to_string()[1..]),
+            "\"auto_adjust\" is given twice",
+        ),
+        breach(
+            "a pin given twice",
+            M::POST,
+            DEVICES,
+            r#"{"user": "cora", "pin": "0000", "pin": "4821", "site": "T", "device_name": "p"}"#,
+            "\"pin\" is given twice",
+        ),
+        // Free text: control characters, bidi controls, length.
+        breach(
+            "a NUL in a description",
+            M::POST,
+            ITEMS,
+            json_bytes(json!([item(json!({"description": "Wash\u{0}er"}))])),
+            "description",
+        ),
+        breach(
+            "a BEL in a description",
+            M::POST,
+            ITEMS,
+            json_bytes(json!([item(json!({"description": "Washer\u{7}"}))])),
+            "control character",
+        ),
+        breach(
+            "a newline in a description",
+            M::POST,
+            ITEMS,
+            json_bytes(json!([item(json!({"description": "Wash\ner"}))])),
+            "line break",
+        ),
+        breach(
+            "a right-to-left override in a description",
+            M::POST,
+            ITEMS,
+            json_bytes(json!([item(
+                json!({"description": "Washer \u{202e}gnp.exe"})
+            )])),
+            "bidirectional",
+        ),
+        breach(
+            "a right-to-left isolate in a group",
+            M::POST,
+            ITEMS,
+            json_bytes(json!([item(json!({"group": "bolts\u{2067}"}))])),
+            "group",
+        ),
+        breach(
+            "a 100,000-character group",
+            M::POST,
+            ITEMS,
+            json_bytes(json!([item(json!({"group": "g".repeat(100_000)}))])),
+            "at most 64 characters",
+        ),
+        breach(
+            "a BEL in a reason-code label",
+            M::PUT,
+            &path("/netting/reason-codes"),
+            json_bytes(json!([{"code": "lost", "label": "Lost\u{7}"}])),
+            "label",
+        ),
+        breach(
+            "an override in a source name",
+            M::PUT,
+            &path("/netting/sources"),
+            json_bytes(
+                json!([{"source": "host\u{202d}", "uncertainty_ms": 0, "posting_lag_ms": 0}]),
+            ),
+            "source",
+        ),
+        breach(
+            "a BEL in a short-pick source",
+            M::POST,
+            &path("/short-picks"),
+            json_bytes(json!([short_pick(json!({"source": "wms\u{7}"}))])),
+            "source",
+        ),
+        breach(
+            "a newline in a movement's doc_ref",
+            M::POST,
+            MOVES,
+            json_bytes(json!([mv(json!({"doc_ref": "PO-1\r\nPO-2"}))])),
+            "doc_ref",
+        ),
+        breach(
+            "a C1 control in a planner group",
+            M::POST,
+            &path("/planner-inputs"),
+            json_bytes(json!([{"group": "g\u{85}h", "lead_time_days": 5}])),
+            "group",
+        ),
+        breach(
+            "a NUL in a phone's name",
+            M::POST,
+            DEVICES,
+            json_bytes(
+                json!({"user": "cora", "pin": "4821", "site": "T", "device_name": "p\u{0}"}),
+            ),
+            "device_name",
+        ),
+        // Days and instants outside 2000-01-01 ..= 2100-12-31.
+        breach(
+            "an ABC run in year 1",
+            M::POST,
+            &path("/planning/abc?day=0001-01-01"),
+            "",
+            "2000-01-01 to 2100-12-31",
+        ),
+        breach(
+            "an ABC run in 9999",
+            M::POST,
+            &path("/planning/abc?day=9999-12-31"),
+            "",
+            "2000-01-01 to 2100-12-31",
+        ),
+        breach(
+            "a list for 9999",
+            M::POST,
+            &path("/count-lists"),
+            json_bytes(json!({"day": "9999-12-31", "counters": 1, "minutes": 60})),
+            "2000-01-01 to 2100-12-31",
+        ),
+        breach(
+            "a holiday in 1900",
+            M::PUT,
+            &path("/planning/calendar"),
+            json_bytes(json!({"working_weekdays": ["mon"], "holidays": ["1900-01-01"]})),
+            "2000-01-01 to 2100-12-31",
+        ),
+        breach(
+            "a short pick reported in 9999",
+            M::POST,
+            &path("/short-picks"),
+            json_bytes(json!([short_pick(
+                json!({"reported_at": "9999-12-31T00:00:00Z"})
+            )])),
+            "reported_at",
+        ),
+        breach(
+            "a movement in 1970",
+            M::POST,
+            MOVES,
+            json_bytes(json!([mv(json!({"event_at": "1970-01-01T00:00:01Z"}))])),
+            "event_at",
+        ),
+        breach(
+            "an expiry in 2999",
+            M::POST,
+            MOVES,
+            json_bytes(json!([mv(
+                json!({"sku": "L1", "lot": "B1", "expiry": "2999-01-01"})
+            )])),
+            "expiry",
+        ),
+        // Money and timings bounded so no arithmetic overflows.
+        breach(
+            "a unit cost of i64::MAX",
+            M::POST,
+            ITEMS,
+            json_bytes(json!([item(json!({"unit_cost_minor": i64::MAX}))])),
+            "unit_cost_minor",
+        ),
+        breach(
+            "a posting lag of i64::MAX",
+            M::PUT,
+            &path("/netting/sources"),
+            json_bytes(
+                json!([{"source": "host", "uncertainty_ms": 0, "posting_lag_ms": i64::MAX}]),
+            ),
+            "posting_lag_ms",
+        ),
+        breach(
+            "an uncertainty of i64::MAX",
+            M::PUT,
+            &path("/netting/sources"),
+            json_bytes(
+                json!([{"source": "host", "uncertainty_ms": i64::MAX, "posting_lag_ms": 0}]),
+            ),
+            "uncertainty_ms",
+        ),
+        breach(
+            "a manager limit of i64::MAX",
+            M::PUT,
+            &path("/netting/settings"),
+            netting_with("manager_value_minor", json!(i64::MAX)),
+            "manager_value_minor",
+        ),
+        breach(
+            "a tolerance of i64::MAX units",
+            M::PUT,
+            &path("/netting/settings"),
+            json_bytes(tolerance_max),
+            "units",
+        ),
+        breach(
+            "a bin taking u32::MAX seconds",
+            M::PUT,
+            &path("/planning/settings"),
+            json_bytes(task_time_max),
+            "base_s",
+        ),
+        // Run holders: only users holding `counter` at the site.
+        breach(
+            "a holder that is a LIKE pattern",
+            M::PUT,
+            &path("/count-lists/2026-03-03/runs/1"),
+            json_bytes(json!({"holder": "%_%"})),
+            "not a counter",
+        ),
+        breach(
+            "a holder who is no counter here",
+            M::PUT,
+            &path("/count-lists/2026-03-03/runs/1"),
+            json_bytes(json!({"holder": "root"})),
+            "not a counter",
+        ),
+        breach(
+            "a holder nobody is called",
+            M::PUT,
+            &path("/count-lists/2026-03-03/runs/1"),
+            json_bytes(json!({"holder": "zed"})),
+            "not a counter",
+        ),
+    ]
+}
+
+#[tokio::test]
+async fn every_input_hygiene_breach_is_refused_naming_the_field_and_writes_nothing() {
+    let app = spawn_app().await;
+    app.small_site().await;
+    app.add_user(
+        "cora",
+        "T",
+        &[Role::Counter],
+        "test-only-password",
+        Some("4821"),
+    )
+    .await;
+    // A stored list, so the run routes reach their checks.
+    let (s, b) = app
+        .post(
+            &format!("{P}/count-lists"),
+            &json!({"day": "2026-03-03", "counters": 1, "minutes": 60}),
+        )
+        .await;
+    assert_eq!(s, 200, "{b}");
+    let (_, planning) = app.get(&format!("{P}/planning/settings")).await;
+    let (_, netting) = app.get(&format!("{P}/netting/settings")).await;
+    let before = content_digest(&app.db);
+    let mut failures = Vec::new();
+    for c in breaches(&planning, &netting) {
+        let mut r = app
+            .client
+            .request(c.method.clone(), format!("{}{}", app.base, c.path))
+            .header("content-type", "application/json")
+            .body(c.body);
+        if c.path != DEVICES {
+            r = app.with_token(r);
+        }
+        let r = r.send().await.expect("the server answers");
+        let status = r.status().as_u16();
+        let raw = r.text().await.unwrap_or_default();
+        let text = serde_json::from_str::<Value>(&raw)
+            .map(|v| strings_of(&v).join(" | "))
+            .unwrap_or(raw);
+        if !(400..500).contains(&status) {
+            failures.push(format!("{}: status {status}: {text}", c.what));
+        } else if !text.to_lowercase().contains(&c.says.to_lowercase()) {
+            failures.push(format!(
+                "{}: message does not mention '{}': {text}",
+                c.what, c.says
+            ));
+        }
+    }
+    assert!(failures.is_empty(), "{}", failures.join("\n"));
+    assert_eq!(
+        content_digest(&app.db),
+        before,
+        "a refused request changes no row of any table"
+    );
+}
+
+/// Every string in a JSON answer (the error and each row's field and message), unescaped.
+fn strings_of(v: &Value) -> Vec<String> {
+    match v {
+        Value::String(s) => vec![s.clone()],
+        Value::Array(a) => a.iter().flat_map(strings_of).collect(),
+        Value::Object(o) => o.values().flat_map(strings_of).collect(),
+        _ => Vec::new(),
+    }
+}
+
+/// Row counts and a digest of every row of every table, in a stable order.
+fn content_digest(db: &Path) -> BTreeMap<String, (i64, String)> {
+    use sha2::{Digest, Sha256};
+    let c = rusqlite::Connection::open(db).unwrap();
+    let names: Vec<String> = c
+        .prepare("select name from sqlite_master where type = 'table' and name not like 'sqlite_%'")
+        .unwrap()
+        .query_map([], |r| r.get(0))
+        .unwrap()
+        .collect::<Result<_, _>>()
+        .unwrap();
+    names
+        .into_iter()
+        .map(|n| {
+            let mut stmt = c
+                .prepare(&format!("select * from \"{n}\" order by 1"))
+                .unwrap();
+            let cols = stmt.column_count();
+            let mut h = Sha256::new();
+            let mut rows = stmt.query([]).unwrap();
+            let mut count = 0;
+            while let Some(row) = rows.next().unwrap() {
+                count += 1;
+                for i in 0..cols {
+                    let v: rusqlite::types::Value = row.get(i).unwrap();
+                    h.update(format!("{v:?}\u{1f}").as_bytes());
+                }
+                h.update(b"\x1e");
+            }
+            (n, (count, format!("{:x}", h.finalize())))
+        })
+        .collect()
+}
+
+#[tokio::test]
+async fn a_run_goes_only_to_a_counter_of_the_site_and_keeps_their_tasks_visible() {
+    let app = spawn_app().await;
+    app.site_with_triggers().await;
+    app.add_user(
+        "cora",
+        "T",
+        &[Role::Counter],
+        "test-only-password",
+        Some("4821"),
+    )
+    .await;
+    let (s, b) = app
+        .post(
+            &format!("{P}/count-lists"),
+            &json!({"day": "2026-03-03", "counters": 1, "minutes": 60}),
+        )
+        .await;
+    assert_eq!(s, 200, "{b}");
+    let run = format!("{P}/count-lists/2026-03-03/runs/1");
+    let (s, b) = app.put(&run, &json!({"holder": "CORA"})).await;
+    assert_eq!(s, 200, "{b}");
+    assert_eq!(
+        b["runs"][0]["holder"], "cora",
+        "kept by the stored user name"
+    );
+    let (s, b) = app.put(&run, &json!({"holder": "%_%"})).await;
+    assert_eq!(s, 400, "{b}");
+    let (_, list) = app.get(&format!("{P}/count-lists/2026-03-03")).await;
+    assert_eq!(
+        list["runs"][0]["holder"], "cora",
+        "a refused holder changes nothing"
+    );
+    let phone = app.phone("cora", "4821").await;
+    let tasks = app
+        .client
+        .get(format!("{}{P}/my-tasks?day=2026-03-03", app.base))
+        .bearer_auth(&phone)
+        .send()
+        .await
+        .unwrap();
+    assert_eq!(tasks.status(), 200);
+    let tasks: Value = tasks.json().await.unwrap();
+    assert!(
+        !tasks["tasks"].as_array().is_none_or(Vec::is_empty),
+        "cora still sees her run: {tasks}"
+    );
+    let (s, _) = app.put(&run, &json!({"holder": ""})).await;
+    assert_eq!(s, 200, "a run may go back to nobody");
+}
+
+#[tokio::test]
+async fn a_count_list_export_escapes_text_that_a_spreadsheet_would_run() {
+    let app = spawn_app().await;
+    app.site_with_triggers().await;
+    // A user name may begin with '-', which a spreadsheet takes for a formula.
+    app.add_user("-dan", "T", &[Role::Counter], "test-only-password", None)
+        .await;
+    let (s, b) = app
+        .post(
+            &format!("{P}/count-lists"),
+            &json!({"day": "2026-03-03", "counters": 1, "minutes": 60}),
+        )
+        .await;
+    assert_eq!(s, 200, "{b}");
+    let (s, b) = app
+        .put(
+            &format!("{P}/count-lists/2026-03-03/runs/1"),
+            &json!({"holder": "-dan"}),
+        )
+        .await;
+    assert_eq!(s, 200, "{b}");
+    let csv = app
+        .with_token(
+            app.client
+                .get(format!("{}{P}/count-lists/2026-03-03?format=csv", app.base)),
+        )
+        .send()
+        .await
+        .unwrap()
+        .text()
+        .await
+        .unwrap();
+    let row = csv.lines().nth(1).expect("a task row");
+    // OWASP "CSV Injection": a cell starting with '-' is prefixed with a single quote.
+    assert!(row.starts_with("2026-03-03,1,'-dan,1,"), "{csv}");
 }

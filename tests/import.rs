@@ -190,3 +190,67 @@ fn an_unknown_column_is_refused_with_its_name() {
         "{stderr}"
     );
 }
+
+#[test]
+fn an_empty_file_is_refused_not_imported_as_nothing() {
+    let dir = tempfile::tempdir().unwrap();
+    let db = site(dir.path());
+    let (ok, stderr) = import_movements(dir.path(), &db, "");
+    assert!(!ok, "an empty file fails the command");
+    assert!(
+        stderr.contains("line 1, header: the file is empty"),
+        "{stderr}"
+    );
+}
+
+#[test]
+fn a_header_without_rows_is_refused_naming_line_2() {
+    let dir = tempfile::tempdir().unwrap();
+    let db = site(dir.path());
+    let (ok, stderr) = import_movements(dir.path(), &db, "id,bin,sku,qty,kind,event_at\n");
+    assert!(!ok);
+    assert!(
+        stderr.contains("line 2, row: the file has a header line but no rows"),
+        "{stderr}"
+    );
+}
+
+#[test]
+fn a_nul_byte_in_a_field_is_refused_with_its_line_and_column() {
+    let dir = tempfile::tempdir().unwrap();
+    let db = site(dir.path());
+    let (ok, stderr) = import_movements(
+        dir.path(),
+        &db,
+        &movements_csv(
+            20,
+            Some((9, "m7,A-01-01-1,S1,3,receipt,2026-03-02T08:00:00Z\0")),
+        ),
+    );
+    assert!(!ok);
+    assert!(
+        stderr.contains("line 9, event_at: holds a NUL byte"),
+        "{stderr}"
+    );
+    assert_eq!(movement_count(Path::new(&db)), 0);
+    let items = dir.path().join("nul-items.csv");
+    write(
+        &items,
+        "sku,description,base_unit,unit_cost_minor\nN1,Wash\0er,each,5\n",
+    );
+    let out = cairn(&[
+        "import",
+        "items",
+        "--db",
+        &db,
+        "--site",
+        "T",
+        &items.display().to_string(),
+    ]);
+    let stderr = String::from_utf8_lossy(&out.stderr);
+    assert!(!out.status.success());
+    assert!(
+        stderr.contains("line 2, description: holds a NUL byte"),
+        "{stderr}"
+    );
+}

@@ -363,6 +363,14 @@ async fn a_stored_list_is_read_exported_adjusted_and_not_rebuilt_by_accident() {
             app.base
         )
     };
+    app.add_user(
+        "ana",
+        "T",
+        &[cairn::accounts::Role::Counter],
+        "test-only-password",
+        None,
+    )
+    .await;
     let put = |url: String| {
         app.with_token(app.client.put(url))
             .json(&json!({"holder": "Ana"}))
@@ -371,7 +379,8 @@ async fn a_stored_list_is_read_exported_adjusted_and_not_rebuilt_by_accident() {
     assert_eq!(put(run(1)).await.unwrap().status(), 200);
     assert_eq!(put(run(2)).await.unwrap().status(), 409);
     let (_, read) = app.get("/api/v1/sites/T/count-lists/2026-03-03").await;
-    assert_eq!(read["runs"][0]["holder"], "Ana");
+    // The holder is kept by the user's stored name, the one `my-tasks` matches.
+    assert_eq!(read["runs"][0]["holder"], "ana");
     let (s, _) = app.get("/api/v1/sites/T/count-lists/2026-03-04").await;
     assert_eq!(s, 404);
 }

@@ -628,7 +628,12 @@ async fn dispatch(command: Command) -> anyhow::Result<()> {
                 .store
                 .create_site(NewSite {
                     code: SiteCode::parse(&code)?,
-                    name,
+                    name: crate::input::text::field(
+                        "--name",
+                        crate::input::text::Kind::Label,
+                        &name,
+                    )
+                    .map_err(anyhow::Error::msg)?,
                     time_zone: crate::time::day::SiteZone::parse(&time_zone)?,
                 })
                 .await?;
@@ -892,6 +897,13 @@ async fn user_command(command: UserCommand) -> anyhow::Result<()> {
             let name = UserName::parse(&name).map_err(anyhow::Error::msg)?;
             let roles = Role::parse_list(&roles).map_err(anyhow::Error::msg)?;
             anyhow::ensure!(!roles.is_empty(), "name at least one role with --roles");
+            let display_name = display_name
+                .map(|d| {
+                    crate::input::text::field("--display-name", crate::input::text::Kind::Name, &d)
+                })
+                .transpose()
+                .map_err(anyhow::Error::msg)?
+                .filter(|d| !d.is_empty());
             let what: &[&str] = if with_pin {
                 &["password", "PIN"]
             } else {
@@ -989,7 +1001,12 @@ async fn user_command(command: UserCommand) -> anyhow::Result<()> {
                         user,
                         site: site.id,
                         role,
-                        name: label,
+                        name: crate::input::text::field(
+                            "--label",
+                            crate::input::text::Kind::Name,
+                            &label,
+                        )
+                        .map_err(anyhow::Error::msg)?,
                         token_digest: token.digest(),
                         at: crate::time::Timestamp::now(),
                     },

@@ -51,6 +51,12 @@ impl From<crate::accounts::hashing::HashError> for ApiError {
     }
 }
 
+impl From<crate::input::json::BodyError> for ApiError {
+    fn from(e: crate::input::json::BodyError) -> Self {
+        ApiError::BadRequest(e.to_string())
+    }
+}
+
 impl From<StoreError> for ApiError {
     fn from(e: StoreError) -> Self {
         match e {

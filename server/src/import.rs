@@ -119,6 +119,20 @@ fn parse<R: DeserializeOwned, T>(
         .from_path(path)
         .map_err(|e| unreadable(&e))?;
     let headers = rdr.headers().map_err(|e| unreadable(&e))?.clone();
+    if headers.iter().all(str::is_empty) {
+        return Err(ImportError::Lines(vec![LineError {
+            line: 1,
+            field: "header".into(),
+            message: "the file is empty: it needs a header line and at least one row".into(),
+        }]));
+    }
+    if let Some(col) = headers.iter().position(|h| h.contains('\0')) {
+        return Err(ImportError::Lines(vec![LineError {
+            line: 1,
+            field: "header".into(),
+            message: format!("column {} holds a NUL byte (U+0000)", col + 1),
+        }]));
+    }
     let pb = bar(show, Some(size), "checking");
     let mut c = Collector::default();
     let mut lines = Vec::new();
@@ -149,6 +163,11 @@ fn parse<R: DeserializeOwned, T>(
         }
         let i = lines.len();
         lines.push(line);
+        // A NUL ends strings in C tools and terminals; no field of any kind holds one.
+        if let Some(col) = record.iter().position(|f| f.contains('\0')) {
+            errors.push(nul_byte(line, &headers, col));
+            continue;
+        }
         match record.deserialize::<R>(Some(&headers)) {
             Ok(r) => c.push(i, validate(r)),
             Err(e) => {
@@ -176,6 +195,13 @@ fn parse<R: DeserializeOwned, T>(
         }
     }
     pb.finish_and_clear();
+    if lines.is_empty() && errors.is_empty() {
+        errors.push(LineError {
+            line: 2,
+            field: "row".into(),
+            message: "the file has a header line but no rows: nothing to import".into(),
+        });
+    }
     let rows = match c.finish() {
         Ok(rows) => rows,
         Err(row_errors) => {
@@ -188,6 +214,14 @@ fn parse<R: DeserializeOwned, T>(
         return Err(ImportError::Lines(errors));
     }
     Ok(Parsed { rows, lines })
+}
+
+fn nul_byte(line: u64, headers: &csv::StringRecord, col: usize) -> LineError {
+    LineError {
+        line,
+        field: headers.get(col).unwrap_or("row").to_string(),
+        message: "holds a NUL byte (U+0000), which no field may hold".into(),
+    }
 }
 
 fn to_line(lines: &[u64], e: RowError) -> LineError {

@@ -14,6 +14,7 @@ pub mod demo;
 pub mod error;
 pub mod http;
 pub mod import;
+pub mod input;
 pub mod ledger;
 pub mod loadtest;
 pub mod master;

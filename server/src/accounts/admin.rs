@@ -22,8 +22,8 @@ use axum::extract::{Path, State};
 use axum::http::{StatusCode, header};
 use axum::response::{IntoResponse, Redirect, Response};
 
-/// Longest display name or token name kept, in characters.
-pub const MAX_LABEL_CHARS: usize = 80;
+/// Longest display name or token name kept, in characters (the rule of names).
+pub const MAX_LABEL_CHARS: usize = crate::input::text::MAX_NAME_CHARS;
 
 /// Adds the admin routes.
 pub fn routes(t: &mut RouteTable) {
@@ -74,8 +74,9 @@ fn roles_of(fields: &Fields) -> Result<Vec<Role>, String> {
     Ok(roles)
 }
 
-fn label(text: &str) -> String {
-    text.trim().chars().take(MAX_LABEL_CHARS).collect()
+/// Checks a display or token name by the free-text rule of names, naming the field.
+fn label(field: &str, text: &str) -> Result<String, String> {
+    crate::input::text::field(field, crate::input::text::Kind::Name, text)
 }
 
 fn back_to(site: &Site, page: &str) -> Response {
@@ -173,10 +174,11 @@ async fn create_user(
         if roles.is_empty() {
             return Err(refused("tick at least one role".into()));
         }
-        let display = match label(field(&fields, "display_name")) {
-            d if d.is_empty() => name.to_string(),
-            d => d,
-        };
+        let display =
+            match label("display name", field(&fields, "display_name")).map_err(refused)? {
+                d if d.is_empty() => name.to_string(),
+                d => d,
+            };
         Ok((name, password, pin, roles, display))
     })();
     let (name, password, pin, roles, display_name) = match checked {
@@ -428,9 +430,13 @@ async fn issue_token(
                 .await;
         }
     };
-    let name = match label(field(&fields, "name")) {
-        n if n.is_empty() => format!("{user} ({role})"),
-        n => n,
+    let name = match label("token name", field(&fields, "name")) {
+        Ok(n) if n.is_empty() => format!("{user} ({role})"),
+        Ok(n) => n,
+        Err(m) => {
+            return render_tokens(&state, &p, site, StatusCode::BAD_REQUEST, String::new(), m)
+                .await;
+        }
     };
     let token = Token::generate(API_TOKEN_PREFIX);
     let audit = AuditEvent::now(p.actor(), Action::ApiTokenIssued, "")

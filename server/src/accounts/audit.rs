@@ -191,16 +191,18 @@ pub fn to_csv(rows: &[AuditRow]) -> anyhow::Result<Vec<u8>> {
     w.write_record([
         "id", "at", "site", "actor", "action", "subject", "address", "detail",
     ])?;
+    // Every column but `id` and `at` is text, and goes through the formula escape.
+    use crate::input::csv_cell::text;
     for r in rows {
         w.write_record([
             r.id.to_string().as_str(),
             r.at.to_string().as_str(),
-            r.site.as_str(),
-            r.actor.as_str(),
-            r.action.as_str(),
-            r.subject.as_str(),
-            r.address.as_str(),
-            r.detail.as_str(),
+            &text(&r.site),
+            &text(&r.actor),
+            &text(&r.action),
+            &text(&r.subject),
+            &text(&r.address),
+            &text(&r.detail),
         ])?;
     }
     w.into_inner()

@@ -17,6 +17,7 @@ use crate::http::access::{
     Access, ClientAddress, CounterDevice, CurrentUser, MaybeUser, RouteTable,
 };
 use crate::http::pages::{Me, VERSION, render};
+use crate::input::text::{self, Kind};
 use crate::master::SiteCode;
 use crate::time::Timestamp;
 use askama::Template;
@@ -28,8 +29,8 @@ use axum_extra::extract::cookie::CookieJar;
 use serde::{Deserialize, Serialize};
 use serde_json::json;
 
-/// Longest device name kept, in characters.
-pub const MAX_DEVICE_NAME_CHARS: usize = 80;
+/// Longest device name kept, in characters (the rule of names).
+pub const MAX_DEVICE_NAME_CHARS: usize = crate::input::text::MAX_NAME_CHARS;
 
 /// Adds the sign-in, sign-out and device routes.
 pub fn routes(t: &mut RouteTable) {
@@ -227,10 +228,8 @@ async fn enrol(
     ClientAddress(address): ClientAddress,
     body: axum::body::Bytes,
 ) -> Result<(StatusCode, Json<Enrolled>), ApiError> {
-    let de = &mut serde_json::Deserializer::from_slice(&body);
-    let req: EnrolRequest = serde_path_to_error::deserialize(de).map_err(|e| {
-        let path = e.path().to_string();
-        ApiError::BadRequest(format!("the enrolment body, at {path}: {}", e.into_inner()))
+    let req: EnrolRequest = crate::input::json::read(&body).map_err(|e| {
+        ApiError::BadRequest(format!("the enrolment body, at {}: {}", e.field, e.message))
     })?;
     let site_code = SiteCode::parse(&req.site).map_err(|e| ApiError::BadRequest(e.to_string()))?;
     let user = signin::check(
@@ -258,9 +257,11 @@ async fn enrol(
             user.name, site.code
         )));
     }
-    let name: String = match req.device_name.trim() {
-        "" => "phone".to_string(),
-        n => n.chars().take(MAX_DEVICE_NAME_CHARS).collect(),
+    let name = match text::field("device_name", Kind::Name, &req.device_name)
+        .map_err(ApiError::BadRequest)?
+    {
+        n if n.is_empty() => "phone".to_string(),
+        n => n,
     };
     let token = Token::generate(DEVICE_TOKEN_PREFIX);
     let audit = AuditEvent::now(

@@ -6,14 +6,15 @@
 
 use super::buffer::MAX_DAYS;
 use crate::batch::FieldError;
+use crate::input::text::Kind;
 use crate::master::codes::Sku;
 use crate::planning::abc::Class;
 use serde::{Deserialize, Serialize};
 
 /// Longest demand window, in calendar days (ten years).
 pub const MAX_WINDOW_DAYS: u32 = 3660;
-/// Longest item group name accepted.
-pub const MAX_GROUP_CHARS: usize = 64;
+/// Longest item group name accepted (the rule of names, `input::text`).
+pub const MAX_GROUP_CHARS: usize = crate::input::text::MAX_NAME_CHARS;
 
 /// A site's accuracy target, demand window and service levels.
 #[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize)]
@@ -150,17 +151,13 @@ impl PlannerInputRecord {
                     None
                 }
             },
-            (None, Some(g)) => {
-                if g.chars().count() > MAX_GROUP_CHARS || g.chars().any(char::is_control) {
-                    errs.push(FieldError::new(
-                        "group",
-                        format!("a group name is 1 to {MAX_GROUP_CHARS} printable characters"),
-                    ));
+            (None, Some(g)) => match crate::input::text::field("group", Kind::Name, g) {
+                Ok(g) => Some(InputTarget::Group(g)),
+                Err(e) => {
+                    errs.push(FieldError::new("group", e));
                     None
-                } else {
-                    Some(InputTarget::Group(g.to_string()))
                 }
-            }
+            },
             (Some(_), Some(_)) => {
                 errs.push(FieldError::new(
                     "group",

@@ -326,8 +326,12 @@ pub fn inputs_table(inputs: &[PlannerInput]) -> Table {
 pub fn to_csv(t: &Table) -> Result<String, csv::Error> {
     let mut w = csv::Writer::from_writer(Vec::new());
     w.write_record(&t.headers)?;
+    // A table's columns carry no types, so a cell is escaped unless it is a number.
     for row in &t.rows {
-        w.write_record(row)?;
+        w.write_record(
+            row.iter()
+                .map(|c| crate::input::csv_cell::cell(c).into_owned()),
+        )?;
     }
     let bytes = w
         .into_inner()

@@ -73,11 +73,7 @@ fn given(v: &Option<String>) -> Option<&str> {
 
 /// Parses a `YYYY-MM-DD` day, naming the parameter when it is not one.
 pub fn parse_day(name: &str, text: &str) -> Result<NaiveDate, ApiError> {
-    NaiveDate::parse_from_str(text.trim(), "%Y-%m-%d").map_err(|_| {
-        ApiError::BadRequest(format!(
-            "{name}: '{text}' is not a date: use YYYY-MM-DD, e.g. 2026-03-02"
-        ))
-    })
+    crate::input::bounds::day(text).map_err(|e| ApiError::BadRequest(format!("{name}: {e}")))
 }
 
 impl ReportParams {
@@ -245,11 +241,7 @@ async fn put_settings(
     CurrentSite(site): CurrentSite,
     bytes: axum::body::Bytes,
 ) -> Result<Json<AccuracySettings>, ApiError> {
-    let de = &mut serde_json::Deserializer::from_slice(&bytes);
-    let s: AccuracySettings = serde_path_to_error::deserialize(de).map_err(|e| {
-        let path = e.path().to_string();
-        ApiError::BadRequest(format!("{path}: {}", e.into_inner()))
-    })?;
+    let s: AccuracySettings = crate::input::json::read(&bytes)?;
     s.check().map_err(ApiError::BadRequest)?;
     state.store.put_accuracy_settings(site.id, s).await?;
     Ok(Json(s))

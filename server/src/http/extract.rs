@@ -54,6 +54,7 @@ impl<T: DeserializeOwned + Send, S: Send + Sync> FromRequestParts<S> for Params<
 
 /// A JSON array body whose rows are decoded together when they are all well
 /// formed, and one by one when one is not, so an error names its row and field.
+/// The body is read as strictly as any other (`input::json`): one value, no key twice.
 pub struct JsonRows(Bytes);
 
 impl<S: Send + Sync> FromRequest<S> for JsonRows {
@@ -79,10 +80,12 @@ impl<S: Send + Sync> FromRequest<S> for JsonRows {
 
 impl JsonRows {
     /// Decodes and validates every row, or answers with every error of every row.
+    /// Trailing data or a key given twice refuses the whole body first.
     pub fn validated<R: DeserializeOwned, T>(
         self,
         validate: impl Fn(R) -> Result<T, Vec<FieldError>>,
     ) -> Result<Vec<T>, ApiError> {
+        crate::input::json::check_shape(&self.0)?;
         let mut c = Collector::default();
         match serde_json::from_slice::<Vec<R>>(&self.0) {
             Ok(rows) => {

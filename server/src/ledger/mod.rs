@@ -5,6 +5,7 @@
 pub mod routes;
 
 use crate::batch::FieldError;
+use crate::input::{bounds, text};
 use crate::master::codes::{BinCode, LotCode, MovementUid, Sku};
 use crate::time::Timestamp;
 use chrono::NaiveDate;
@@ -15,7 +16,7 @@ pub const MAX_EVENT_AHEAD_MS: i64 = 5 * 60 * 1000;
 /// Largest absolute quantity one movement may carry (base units).
 pub const MAX_ABS_QTY: i64 = 1_000_000_000;
 /// Longest free-text reference (document, actor, source) kept.
-pub const MAX_REF_CHARS: usize = 64;
+pub const MAX_REF_CHARS: usize = crate::input::text::MAX_REF_CHARS;
 
 /// What kind of physical event a movement records.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Hash, Serialize, Deserialize)]
@@ -118,15 +119,16 @@ fn non_empty(v: Option<String>) -> Option<String> {
     v.map(|s| s.trim().to_string()).filter(|s| !s.is_empty())
 }
 
-fn short_text(field: &'static str, v: Option<String>, errs: &mut Vec<FieldError>) -> String {
-    let v = non_empty(v).unwrap_or_default();
-    if v.chars().count() > MAX_REF_CHARS || v.chars().any(char::is_control) {
-        errs.push(FieldError::new(
-            field,
-            format!("{field} must be at most {MAX_REF_CHARS} printable characters"),
-        ));
-    }
-    v
+fn short_text(
+    field: &'static str,
+    kind: text::Kind,
+    v: Option<String>,
+    errs: &mut Vec<FieldError>,
+) -> String {
+    text::check(kind, v.as_deref().unwrap_or("")).unwrap_or_else(|e| {
+        errs.push(FieldError::new(field, format!("{field}: {e}")));
+        String::new()
+    })
 }
 
 impl MovementRecord {
@@ -154,13 +156,8 @@ impl MovementRecord {
             },
         };
         let expiry = non_empty(self.expiry).and_then(|t| {
-            NaiveDate::parse_from_str(&t, "%Y-%m-%d")
-                .map_err(|_| {
-                    errs.push(FieldError::new(
-                        "expiry",
-                        format!("expiry '{t}' is not a date like 2027-06-30"),
-                    ))
-                })
+            bounds::day(&t)
+                .map_err(|e| errs.push(FieldError::new("expiry", format!("expiry: {e}"))))
                 .ok()
         });
         if expiry.is_some() && lot.is_empty() {
@@ -202,7 +199,7 @@ impl MovementRecord {
                 ),
             ));
         }
-        let event_at = Timestamp::parse_rfc3339(&self.event_at)
+        let event_at = bounds::instant(&self.event_at)
             .map_err(|e| errs.push(FieldError::new("event_at", e)))
             .and_then(|t| {
                 if t.0 > now.0 + MAX_EVENT_AHEAD_MS {
@@ -215,9 +212,9 @@ impl MovementRecord {
                     Ok(t)
                 }
             });
-        let source = short_text("source", self.source, &mut errs);
-        let doc_ref = short_text("doc_ref", self.doc_ref, &mut errs);
-        let actor = short_text("actor", self.actor, &mut errs);
+        let source = short_text("source", text::Kind::Name, self.source, &mut errs);
+        let doc_ref = short_text("doc_ref", text::Kind::Ref, self.doc_ref, &mut errs);
+        let actor = short_text("actor", text::Kind::Ref, self.actor, &mut errs);
         match (uid, bin, sku, kind, event_at) {
             (Ok(uid), Ok(bin), Ok(sku), Some(kind), Ok(event_at)) if errs.is_empty() => {
                 Ok(NewMovement {

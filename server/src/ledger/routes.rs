@@ -64,7 +64,7 @@ fn bad(field: &str) -> impl Fn(String) -> ApiError + '_ {
 }
 
 fn instant(field: &str, v: Option<String>) -> Result<Option<Timestamp>, ApiError> {
-    v.map(|t| Timestamp::parse_rfc3339(&t).map_err(bad(field)))
+    v.map(|t| crate::input::bounds::instant(&t).map_err(bad(field)))
         .transpose()
 }
 

@@ -6,6 +6,8 @@ pub mod codes;
 pub mod routes;
 
 use crate::batch::FieldError;
+use crate::input::bounds;
+use crate::input::text::{self, Kind};
 use codes::{BinCode, Sku, ZoneCode};
 use serde::{Deserialize, Deserializer, Serialize};
 
@@ -252,44 +254,41 @@ pub struct NewItem {
     pub group: String,
 }
 
-/// Longest description kept; longer text is refused rather than cut.
-const MAX_DESCRIPTION_CHARS: usize = 200;
-/// Longest base-unit name (`each`, `kg`, `m`, …).
-const MAX_UNIT_CHARS: usize = 12;
-
 impl ItemRecord {
     /// Validates the row.
     pub fn validate(self) -> Result<NewItem, Vec<FieldError>> {
         let mut errs = Vec::new();
         let sku =
             Sku::parse(&self.sku).map_err(|e| errs.push(FieldError::new("sku", e.to_string())));
-        let description = self.description.trim().to_string();
-        if description.is_empty() {
-            errs.push(FieldError::new(
-                "description",
-                "description must not be empty",
-            ));
-        } else if description.chars().count() > MAX_DESCRIPTION_CHARS {
-            errs.push(FieldError::new(
-                "description",
-                format!("description longer than {MAX_DESCRIPTION_CHARS} characters"),
-            ));
-        }
-        let base_unit = self.base_unit.trim().to_string();
-        if base_unit.is_empty() || base_unit.chars().count() > MAX_UNIT_CHARS {
-            errs.push(FieldError::new(
-                "base_unit",
-                format!("base unit must be 1 to {MAX_UNIT_CHARS} characters"),
-            ));
-        }
-        if self.unit_cost_minor < 0 {
-            errs.push(FieldError::new(
-                "unit_cost_minor",
-                format!(
-                    "unit cost must not be negative, found {}",
-                    self.unit_cost_minor
-                ),
-            ));
+        let mut text =
+            |field: &'static str, kind: Kind, raw: &str, required: bool| match text::check(
+                kind, raw,
+            ) {
+                Ok(t) if t.is_empty() && required => {
+                    errs.push(FieldError::new(field, format!("{field} must not be empty")));
+                    t
+                }
+                Ok(t) => t,
+                Err(e) => {
+                    errs.push(FieldError::new(field, format!("{field}: {e}")));
+                    String::new()
+                }
+            };
+        let description = text("description", Kind::Description, &self.description, true);
+        let base_unit = text("base_unit", Kind::Unit, &self.base_unit, true);
+        let group = text(
+            "group",
+            Kind::Name,
+            self.group.as_deref().unwrap_or(""),
+            false,
+        );
+        if let Err(e) = bounds::check_at_most(
+            "unit cost",
+            self.unit_cost_minor,
+            bounds::MAX_UNIT_COST_MINOR,
+            "minor units",
+        ) {
+            errs.push(FieldError::new("unit_cost_minor", e));
         }
         match sku {
             Ok(sku) if errs.is_empty() => Ok(NewItem {
@@ -298,7 +297,7 @@ impl ItemRecord {
                 base_unit,
                 unit_cost_minor: self.unit_cost_minor,
                 lot_tracked: self.lot_tracked,
-                group: self.group.unwrap_or_default().trim().to_string(),
+                group,
             }),
             _ => Err(errs),
         }

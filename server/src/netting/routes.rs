@@ -56,11 +56,7 @@ pub fn routes(t: &mut RouteTable) {
 }
 
 fn body<T: serde::de::DeserializeOwned>(bytes: &[u8]) -> Result<T, ApiError> {
-    let de = &mut serde_json::Deserializer::from_slice(bytes);
-    serde_path_to_error::deserialize(de).map_err(|e| {
-        let path = e.path().to_string();
-        ApiError::BadRequest(format!("{path}: {}", e.into_inner()))
-    })
+    Ok(crate::input::json::read(bytes)?)
 }
 
 #[derive(Deserialize)]

@@ -7,6 +7,7 @@
 
 use super::rule::{self, CountTiming, KeyCount, KeyResult, NetMove, SourceTiming, Status, Window};
 use super::tolerance::{ClassTolerances, RecountOutcome, Tolerance, Verdict, judge};
+use crate::input::{bounds, text};
 use crate::planning::abc::Class;
 use crate::time::Timestamp;
 use serde::{Deserialize, Serialize};
@@ -61,9 +62,7 @@ impl NettingSettings {
             ("manager_value_minor", self.manager_value_minor),
             ("bulk_value_minor", self.bulk_value_minor),
         ] {
-            if v < 0 {
-                return Err(format!("{name} must not be negative, found {v}"));
-            }
+            bounds::check_at_most(name, v, bounds::MAX_MONEY_MINOR, "minor units")?;
         }
         Ok(())
     }
@@ -97,16 +96,23 @@ pub fn check_sources(rows: &[SourceTimingRow]) -> Result<(), String> {
     }
     let mut seen = std::collections::HashSet::new();
     for (i, r) in rows.iter().enumerate() {
-        if r.source.trim().is_empty() || r.source.chars().count() > 64 {
-            return Err(format!("[{i}].source must be 1 to 64 characters"));
+        let name =
+            text::check(text::Kind::Name, &r.source).map_err(|e| format!("[{i}].source: {e}"))?;
+        if name.is_empty() || name != r.source {
+            return Err(format!(
+                "[{i}].source must be 1 to {} characters without spaces around it",
+                text::MAX_NAME_CHARS
+            ));
         }
         if !seen.insert(r.source.as_str()) {
             return Err(format!("[{i}].source '{}' is given twice", r.source));
         }
-        if r.uncertainty_ms < 0 || r.posting_lag_ms < 0 {
-            return Err(format!(
-                "[{i}]: uncertainty_ms and posting_lag_ms must not be negative"
-            ));
+        for (field, v) in [
+            ("uncertainty_ms", r.uncertainty_ms),
+            ("posting_lag_ms", r.posting_lag_ms),
+        ] {
+            bounds::check_at_most(field, v, bounds::MAX_SOURCE_TIMING_MS, "ms")
+                .map_err(|e| format!("[{i}].{e}"))?;
         }
     }
     Ok(())
@@ -147,8 +153,13 @@ pub fn check_reason_codes(rows: &[ReasonCode]) -> Result<(), String> {
                 r.code
             ));
         }
-        if r.label.trim().is_empty() || r.label.chars().count() > 200 {
-            return Err(format!("[{i}].label must be 1 to 200 characters"));
+        let label =
+            text::check(text::Kind::Label, &r.label).map_err(|e| format!("[{i}].label: {e}"))?;
+        if label.is_empty() {
+            return Err(format!(
+                "[{i}].label must be 1 to {} characters",
+                text::MAX_LABEL_CHARS
+            ));
         }
         if !seen.insert(r.code.as_str()) {
             return Err(format!("[{i}].code '{}' is given twice", r.code));

@@ -95,6 +95,23 @@ impl Tolerance {
                 return Err(format!("tolerance {name} must not be negative, found {v}"));
             }
         }
+        // Upper limits keep |variance| compared with and multiplied against them in i64.
+        if let Some(u) = self.units {
+            crate::input::bounds::check_at_most(
+                "tolerance units",
+                u,
+                crate::ledger::MAX_ABS_QTY,
+                "base units",
+            )?;
+        }
+        if let Some(v) = self.value_minor {
+            crate::input::bounds::check_at_most(
+                "tolerance value_minor",
+                v,
+                crate::input::bounds::MAX_MONEY_MINOR,
+                "minor units",
+            )?;
+        }
         if let Some(bp) = self.percent_bp
             && bp > BASIS_POINTS_PER_WHOLE
         {

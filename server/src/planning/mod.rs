@@ -59,6 +59,15 @@ impl Settings {
     pub fn check(&self) -> Result<(), String> {
         self.abc.check()?;
         self.frequency.check()?;
+        let most = crate::input::bounds::MAX_TASK_SECONDS;
+        for (name, s) in [
+            ("task_time.base_s", self.task_time.base_s),
+            ("task_time.per_line_s", self.task_time.per_line_s),
+        ] {
+            if s > most {
+                return Err(format!("{name} must be 0 to {most} seconds, found {s}"));
+            }
+        }
         if self.level_slack_pct > 100 {
             return Err("level_slack_pct must be 0 to 100".into());
         }

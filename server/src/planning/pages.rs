@@ -569,20 +569,14 @@ async fn hold_run(
     Form(fields): Form<Fields>,
 ) -> Result<Response, PageError> {
     let day = parse_day(&day)?;
-    let holder = field(&fields, "holder").to_string();
-    if !holder.is_empty()
-        && !site_counters(&state, &site)
-            .await?
-            .iter()
-            .any(|c| c.name == holder)
-    {
-        let m = format!(
-            "{holder} is not a counter at {}: an admin gives the role on the users page",
-            site.code
-        );
-        let showing = Showing::refused(StatusCode::BAD_REQUEST, m);
-        return render_day(&state, &p, site, day, showing).await;
-    }
+    let holder =
+        match service::check_holder(state.store.as_ref(), &site, field(&fields, "holder")).await? {
+            Ok(h) => h,
+            Err(m) => {
+                let showing = Showing::refused(StatusCode::BAD_REQUEST, m);
+                return render_day(&state, &p, site, day, showing).await;
+            }
+        };
     match state.store.hold_run(site.id, day, run, holder).await {
         Ok(()) => Ok(Redirect::to(&day_url(&site, day)).into_response()),
         Err(e) => render_day(&state, &p, site, day, refusal(e)?).await,

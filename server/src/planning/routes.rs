@@ -95,23 +95,13 @@ pub fn routes(t: &mut RouteTable) {
 
 /// Source recorded for short-pick reports that name none.
 const API_SOURCE: &str = "api";
-/// Longest name a run's holder may have.
-const MAX_HOLDER_CHARS: usize = 64;
 
 pub(super) fn parse_day(text: &str) -> Result<NaiveDate, ApiError> {
-    NaiveDate::parse_from_str(text.trim(), "%Y-%m-%d").map_err(|_| {
-        ApiError::BadRequest(format!(
-            "'{text}' is not a date: use YYYY-MM-DD, e.g. 2026-03-02"
-        ))
-    })
+    crate::input::bounds::day(text).map_err(ApiError::BadRequest)
 }
 
 fn body<T: serde::de::DeserializeOwned>(bytes: &[u8]) -> Result<T, ApiError> {
-    let de = &mut serde_json::Deserializer::from_slice(bytes);
-    serde_path_to_error::deserialize(de).map_err(|e| {
-        let path = e.path().to_string();
-        ApiError::BadRequest(format!("{path}: {}", e.into_inner()))
-    })
+    Ok(crate::input::json::read(bytes)?)
 }
 
 async fn get_settings(
@@ -230,7 +220,8 @@ async fn post_short_picks(
     CurrentSite(site): CurrentSite,
     rows: JsonRows,
 ) -> Result<Json<ShortPickOutcome>, ApiError> {
-    let rows = rows.validated(|r: ShortPickRecord| r.validate(API_SOURCE))?;
+    let now = crate::time::Timestamp::now();
+    let rows = rows.validated(|r: ShortPickRecord| r.validate(now, API_SOURCE))?;
     Ok(Json(state.store.record_short_picks(site.id, rows).await?))
 }
 
@@ -400,12 +391,9 @@ async fn hold_run(
 ) -> Result<Json<ListView>, ApiError> {
     let day = parse_day(&day)?;
     let b: HoldBody = body(&bytes)?;
-    let holder = b.holder.trim().to_string();
-    if holder.chars().count() > MAX_HOLDER_CHARS || holder.chars().any(char::is_control) {
-        return Err(ApiError::BadRequest(format!(
-            "holder: at most {MAX_HOLDER_CHARS} printable characters"
-        )));
-    }
+    let holder = service::check_holder(state.store.as_ref(), &site, &b.holder)
+        .await?
+        .map_err(ApiError::BadRequest)?;
     state.store.hold_run(site.id, day, run, holder).await?;
     stored(&state, &site, day).await
 }

@@ -258,6 +258,8 @@ pub fn to_csv(v: &ListView) -> Result<String, csv::Error> {
         "day", "run", "holder", "seq", "bin", "zone", "aisle", "bay", "level", "reason", "class",
         "lines", "est_s", "est_min", "status", "detail",
     ])?;
+    // Text columns go through the formula escape; the numeric ones are numbers.
+    use crate::input::csv_cell::text;
     for t in &v.tasks {
         let holder = v
             .runs
@@ -267,24 +269,54 @@ pub fn to_csv(v: &ListView) -> Result<String, csv::Error> {
         w.write_record([
             v.day.to_string(),
             t.run.to_string(),
-            holder.to_string(),
+            text(holder).into_owned(),
             t.seq.to_string(),
-            t.bin.clone(),
-            t.zone.clone(),
+            text(&t.bin).into_owned(),
+            text(&t.zone).into_owned(),
             t.aisle.to_string(),
             t.bay.to_string(),
             t.level.to_string(),
-            t.reason.clone(),
+            text(&t.reason).into_owned(),
             t.class.map(|c| c.to_string()).unwrap_or_default(),
             t.lines.to_string(),
             t.est_s.to_string(),
             tenths_of_minutes(t.est_s),
-            t.status.clone(),
-            t.detail.clone(),
+            text(&t.status).into_owned(),
+            text(&t.detail).into_owned(),
         ])?;
     }
     let bytes = w.into_inner().map_err(|e| e.into_error())?;
     Ok(String::from_utf8(bytes).expect("the CSV writer writes the UTF-8 it was given"))
+}
+
+/// Checks who may hold a run: nobody (empty), or a user holding `counter` at the
+/// site, returned by their stored user name, which is what `my-tasks` matches.
+/// Any other text would give the run to no one who can see it. The outer error
+/// is the store's; the inner one says why the holder is refused.
+pub async fn check_holder(
+    store: &dyn Store,
+    site: &Site,
+    holder: &str,
+) -> Result<Result<String, String>, StoreError> {
+    let holder = holder.trim();
+    if holder.is_empty() {
+        return Ok(Ok(String::new()));
+    }
+    let not_a_counter = || {
+        format!(
+            "holder: {holder} is not a counter at {}: an admin gives the role on the users page",
+            site.code
+        )
+    };
+    let Ok(name) = crate::accounts::UserName::parse(holder) else {
+        return Ok(Err(not_a_counter()));
+    };
+    let users = store.site_users(site.id, Timestamp::now()).await?;
+    Ok(users
+        .into_iter()
+        .find(|u| u.user.name == name && u.roles.contains(&crate::accounts::Role::Counter))
+        .map(|u| u.user.name.as_str().to_string())
+        .ok_or_else(not_a_counter))
 }
 
 /// Hour (UTC) at which the nightly classification runs.

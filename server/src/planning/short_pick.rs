@@ -2,7 +2,8 @@
 //! bin is counted ahead of the plan.
 
 use crate::batch::FieldError;
-use crate::ledger::MAX_REF_CHARS;
+use crate::input::{bounds, text};
+use crate::ledger::MAX_EVENT_AHEAD_MS;
 use crate::master::codes::{BinCode, MovementUid, Sku};
 use crate::time::Timestamp;
 use serde::Deserialize;
@@ -44,8 +45,13 @@ pub struct NewShortPick {
 }
 
 impl ShortPickRecord {
-    /// Checks every field; `default_source` is used when the sender names none.
-    pub fn validate(self, default_source: &str) -> Result<NewShortPick, Vec<FieldError>> {
+    /// Checks every field; `now` bounds the report's time, and `default_source` is
+    /// used when the sender names none.
+    pub fn validate(
+        self,
+        now: Timestamp,
+        default_source: &str,
+    ) -> Result<NewShortPick, Vec<FieldError>> {
         let mut errors = Vec::new();
         let uid = MovementUid::parse(&self.id)
             .map_err(|e| errors.push(FieldError::new("id", e.to_string())));
@@ -69,20 +75,28 @@ impl ShortPickRecord {
                 format!("must be 0 to {MAX_SHORT_QTY} base units"),
             ));
         }
-        let reported_at = Timestamp::parse_rfc3339(&self.reported_at)
+        let reported_at = bounds::instant(&self.reported_at)
+            .and_then(|t| {
+                if t.0 > now.0.saturating_add(MAX_EVENT_AHEAD_MS) {
+                    Err(format!(
+                        "report time {t} is in the future (server time {now})"
+                    ))
+                } else {
+                    Ok(t)
+                }
+            })
             .map_err(|e| errors.push(FieldError::new("reported_at", e)));
-        let text = |field: &'static str, v: Option<String>, errors: &mut Vec<FieldError>| {
-            let v = v.unwrap_or_default().trim().to_string();
-            if v.chars().count() > MAX_REF_CHARS {
-                errors.push(FieldError::new(
-                    field,
-                    format!("must be at most {MAX_REF_CHARS} characters"),
-                ));
-            }
-            v
+        let text = |field: &'static str,
+                    kind: text::Kind,
+                    v: Option<String>,
+                    errors: &mut Vec<FieldError>| {
+            text::check(kind, v.as_deref().unwrap_or("")).unwrap_or_else(|e| {
+                errors.push(FieldError::new(field, format!("{field}: {e}")));
+                String::new()
+            })
         };
-        let source = text("source", self.source, &mut errors);
-        let doc_ref = text("doc_ref", self.doc_ref, &mut errors);
+        let source = text("source", text::Kind::Name, self.source, &mut errors);
+        let doc_ref = text("doc_ref", text::Kind::Ref, self.doc_ref, &mut errors);
         match (uid, bin, sku, reported_at) {
             (Ok(uid), Ok(bin), Ok(sku), Ok(reported_at)) if errors.is_empty() => Ok(NewShortPick {
                 uid,

@@ -27,7 +27,7 @@ pub const MAX_LIST_ROWS: usize = 500;
 /// Most differences one bulk approval may carry.
 pub const MAX_BULK_IDS: usize = 200;
 /// Longest investigation note, in characters.
-pub const MAX_NOTE_CHARS: usize = 2_000;
+pub const MAX_NOTE_CHARS: usize = crate::input::text::MAX_NOTE_CHARS;
 /// Most adjustments one feed page returns.
 pub const MAX_FEED_ROWS: usize = 1_000;
 
@@ -206,6 +206,8 @@ pub enum Refusal {
         "a rejection needs a note saying what to investigate (at most {MAX_NOTE_CHARS} characters)"
     )]
     NoteNeeded,
+    #[error("note: {0}")]
+    BadNote(String),
 }
 
 impl Refusal {
@@ -215,7 +217,9 @@ impl Refusal {
         match self {
             Refusal::NotFound(_) => RefusalKind::NotFound,
             Refusal::OwnCount(_) | Refusal::NeedsManager { .. } => RefusalKind::Forbidden,
-            Refusal::UnknownReason(_) | Refusal::NoteNeeded => RefusalKind::BadForm,
+            Refusal::UnknownReason(_) | Refusal::NoteNeeded | Refusal::BadNote(_) => {
+                RefusalKind::BadForm
+            }
             _ => RefusalKind::Conflict,
         }
     }
@@ -294,11 +298,11 @@ pub fn is_settled(settled: bool, settles_at: Timestamp, now: Timestamp) -> bool 
 
 /// Checks and trims an investigation note.
 pub fn investigation_note(text: &str) -> Result<String, Refusal> {
-    let t = text.trim();
-    if t.is_empty() || t.chars().count() > MAX_NOTE_CHARS {
-        return Err(Refusal::NoteNeeded);
+    match crate::input::text::check(crate::input::text::Kind::Note, text) {
+        Ok(t) if !t.is_empty() => Ok(t),
+        Ok(_) => Err(Refusal::NoteNeeded),
+        Err(e) => Err(Refusal::BadNote(e.to_string())),
     }
-    Ok(t.to_string())
 }
 
 #[cfg(test)]

@@ -67,19 +67,21 @@ pub const CSV_COLUMNS: [&str; 13] = [
 pub fn to_csv(rows: &[AdjustmentRow]) -> anyhow::Result<Vec<u8>> {
     let mut w = csv::Writer::from_writer(Vec::new());
     w.write_record(CSV_COLUMNS)?;
+    // Text columns go through the formula escape; `qty` and the ids are numbers.
+    use crate::input::csv_cell::text;
     for r in rows {
         w.write_record([
-            r.id.clone(),
+            text(&r.id).into_owned(),
             r.seq.to_string(),
-            r.bin.clone(),
-            r.sku.clone(),
-            r.lot.clone(),
+            text(&r.bin).into_owned(),
+            text(&r.sku).into_owned(),
+            text(&r.lot).into_owned(),
             r.qty.to_string(),
             r.event_at.to_string(),
             r.review.map(|v| v.to_string()).unwrap_or_default(),
             r.result.to_string(),
-            r.reason_code.clone(),
-            r.approver.clone(),
+            text(&r.reason_code).into_owned(),
+            text(&r.approver).into_owned(),
             r.approved_at.to_string(),
             r.automatic.to_string(),
         ])?;
@@ -138,5 +140,38 @@ async fn get_adjustments(
         Some(other) => Err(ApiError::BadRequest(format!(
             "format '{other}' is not json or csv"
         ))),
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::time::Timestamp;
+
+    #[test]
+    fn the_feed_csv_escapes_text_cells_and_keeps_negative_quantities_as_numbers() {
+        let row = AdjustmentRow {
+            id: "-m1".into(),
+            seq: 7,
+            bin: "A-01-01-1".into(),
+            sku: "-SKU".into(),
+            lot: "@L1".into(),
+            qty: -3,
+            event_at: Timestamp(1_772_438_400_000),
+            review: Some(2),
+            result: 5,
+            reason_code: "lost".into(),
+            approver: "-ivy".into(),
+            approved_at: Timestamp(1_772_438_400_000),
+            automatic: false,
+        };
+        let csv = String::from_utf8(to_csv(&[row]).unwrap()).unwrap();
+        let line = csv.lines().nth(1).unwrap();
+        // OWASP "CSV Injection": text cells starting with '-' or '@' get a leading quote.
+        assert!(
+            line.starts_with("'-m1,7,A-01-01-1,'-SKU,'@L1,-3,"),
+            "{line}"
+        );
+        assert!(line.contains(",lost,'-ivy,"), "{line}");
     }
 }

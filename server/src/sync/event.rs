@@ -109,13 +109,12 @@ pub fn read(raw: &serde_json::Value, index: usize) -> Result<Event, EventResult>
                 ),
                 None => None,
             };
-            let expiry =
-                match &l.expiry {
-                    Some(d) => Some(NaiveDate::parse_from_str(d, "%Y-%m-%d").map_err(|_| {
-                        refuse(format!("expiry '{d}' is not a date: use YYYY-MM-DD"))
-                    })?),
-                    None => None,
-                };
+            let expiry = match &l.expiry {
+                Some(d) => {
+                    Some(crate::input::bounds::day(d).map_err(|e| refuse(format!("expiry: {e}")))?)
+                }
+                None => None,
+            };
             Body::Line(Line {
                 sku,
                 gtin,

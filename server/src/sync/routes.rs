@@ -46,11 +46,7 @@ async fn sync(
     bytes: axum::body::Bytes,
 ) -> Result<Json<SyncResponse>, ApiError> {
     let received_at = Timestamp::now();
-    let de = &mut serde_json::Deserializer::from_slice(&bytes);
-    let request: SyncRequest = serde_path_to_error::deserialize(de).map_err(|e| {
-        let path = e.path().to_string();
-        ApiError::BadRequest(format!("{path}: {}", e.into_inner()))
-    })?;
+    let request: SyncRequest = crate::input::json::read(&bytes)?;
     if request.events.len() > MAX_SYNC_EVENTS {
         return Err(ApiError::BadRequest(format!(
             "{} events in one request; send at most {MAX_SYNC_EVENTS}",

@@ -861,6 +861,21 @@ pub fn hold_run(
             "the list for {day} has runs 1 to {counters}"
         )));
     }
+    // The route checked this already; checked again here because a role can be
+    // taken away between that read and this write.
+    if !holder.is_empty() {
+        let counter: bool = tx
+            .prepare_cached(
+                "select exists(select 1 from user_account u join user_role r on r.user_id = u.id
+                 where u.name = ?1 and r.site_id = ?2 and r.role = 'counter')",
+            )?
+            .query_row(params![holder, site.0], |r| r.get(0))?;
+        if !counter {
+            return Err(StoreError::Conflict(format!(
+                "{holder} is not a counter at this site (any more): pick one of its counters"
+            )));
+        }
+    }
     if let Some(bin) = recount_tasks::recount_counted_by(tx, list, run, holder)? {
         return Err(StoreError::Conflict(format!(
             "run {run} holds the recount of bin {bin}, which {holder} counted: a recount goes \
