@@ -255,7 +255,7 @@ fn base_bodies(stored: &Stored) -> BTreeMap<&'static str, Value> {
 
 /// Keys an event of the phone's sync may carry, for objects nested in `events`.
 const EVENT_FIELDS: &[&str] = &[
-    "id", "at", "count", "task", "bin", "type", "sku", "qty", "entry", "lot", "expiry",
+    "id", "at", "user", "count", "task", "bin", "type", "sku", "qty", "entry", "lot", "expiry",
 ];
 
 /// Text values: plausible ones (codes, days, instants of the test site) and hostile ones.
