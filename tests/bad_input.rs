@@ -738,7 +738,7 @@ async fn every_input_hygiene_breach_is_refused_naming_the_field_and_writes_nothi
     assert_eq!(s, 200, "{b}");
     let (_, planning) = app.get(&format!("{P}/planning/settings")).await;
     let (_, netting) = app.get(&format!("{P}/netting/settings")).await;
-    let before = content_digest(&app.db);
+    let before = common::table_contents(&app.db);
     let mut failures = Vec::new();
     for c in breaches(&planning, &netting) {
         let mut r = app
@@ -766,7 +766,7 @@ async fn every_input_hygiene_breach_is_refused_naming_the_field_and_writes_nothi
     }
     assert!(failures.is_empty(), "{}", failures.join("\n"));
     assert_eq!(
-        content_digest(&app.db),
+        common::table_contents(&app.db),
         before,
         "a refused request changes no row of any table"
     );
@@ -780,40 +780,6 @@ fn strings_of(v: &Value) -> Vec<String> {
         Value::Object(o) => o.values().flat_map(strings_of).collect(),
         _ => Vec::new(),
     }
-}
-
-/// Row counts and a digest of every row of every table, in a stable order.
-fn content_digest(db: &Path) -> BTreeMap<String, (i64, String)> {
-    use sha2::{Digest, Sha256};
-    let c = rusqlite::Connection::open(db).unwrap();
-    let names: Vec<String> = c
-        .prepare("select name from sqlite_master where type = 'table' and name not like 'sqlite_%'")
-        .unwrap()
-        .query_map([], |r| r.get(0))
-        .unwrap()
-        .collect::<Result<_, _>>()
-        .unwrap();
-    names
-        .into_iter()
-        .map(|n| {
-            let mut stmt = c
-                .prepare(&format!("select * from \"{n}\" order by 1"))
-                .unwrap();
-            let cols = stmt.column_count();
-            let mut h = Sha256::new();
-            let mut rows = stmt.query([]).unwrap();
-            let mut count = 0;
-            while let Some(row) = rows.next().unwrap() {
-                count += 1;
-                for i in 0..cols {
-                    let v: rusqlite::types::Value = row.get(i).unwrap();
-                    h.update(format!("{v:?}\u{1f}").as_bytes());
-                }
-                h.update(b"\x1e");
-            }
-            (n, (count, format!("{:x}", h.finalize())))
-        })
-        .collect()
 }
 
 #[tokio::test]

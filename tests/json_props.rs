@@ -10,7 +10,6 @@ use proptest::prelude::*;
 use proptest::test_runner::{Config, TestCaseError, TestRunner};
 use serde_json::{Map, Value, json};
 use std::collections::BTreeMap;
-use std::path::Path;
 
 /// Generated requests per route; with seventeen routes the suite stays well under a minute in debug.
 const CASES_PER_ROUTE: u32 = 48;
@@ -379,40 +378,6 @@ fn body(route: &Route) -> BoxedStrategy<Vec<u8>> {
         .boxed()
 }
 
-/// Row counts and a digest of every row of every table.
-fn content(db: &Path) -> BTreeMap<String, (i64, String)> {
-    use sha2::{Digest, Sha256};
-    let c = rusqlite::Connection::open(db).unwrap();
-    let names: Vec<String> = c
-        .prepare("select name from sqlite_master where type = 'table' and name not like 'sqlite_%'")
-        .unwrap()
-        .query_map([], |r| r.get(0))
-        .unwrap()
-        .collect::<Result<_, _>>()
-        .unwrap();
-    names
-        .into_iter()
-        .map(|n| {
-            let mut stmt = c
-                .prepare(&format!("select * from \"{n}\" order by 1"))
-                .unwrap();
-            let cols = stmt.column_count();
-            let mut h = Sha256::new();
-            let mut rows = stmt.query([]).unwrap();
-            let mut count = 0;
-            while let Some(row) = rows.next().unwrap() {
-                count += 1;
-                for i in 0..cols {
-                    let v: rusqlite::types::Value = row.get(i).unwrap();
-                    h.update(format!("{v:?}\u{1f}").as_bytes());
-                }
-                h.update(b"\x1e");
-            }
-            (n, (count, format!("{:x}", h.finalize())))
-        })
-        .collect()
-}
-
 /// Tables a refused enrolment writes on purpose: a wrong PIN is counted for
 /// throttling and audited (the rule of `accounts::signin`).
 const SIGN_IN_RECORDS: [&str; 2] = ["sign_in_failure", "audit_event"];
@@ -461,7 +426,7 @@ fn arbitrary_json_on_every_write_route_is_never_a_server_error_and_a_refusal_cha
         });
         let outcome = runner.run(&body(&route), |bytes| {
             rt.block_on(async {
-                let before = content(&app.db);
+                let before = common::table_contents(&app.db);
                 let url = if route.path.starts_with("/api/") {
                     format!("{}{}", app.base, route.path)
                 } else {
@@ -487,7 +452,7 @@ fn arbitrary_json_on_every_write_route_is_never_a_server_error_and_a_refusal_cha
                     .entry(format!("{} {}", route.method, route.path))
                     .or_default()[usize::from(status >= 400)] += 1;
                 if status >= 400 {
-                    let mut after = content(&app.db);
+                    let mut after = common::table_contents(&app.db);
                     let mut before = before;
                     if route.path == "/api/v1/devices" && matches!(status, 401 | 429) {
                         for t in SIGN_IN_RECORDS {

@@ -670,3 +670,38 @@ pub fn cairn_with_input(args: &[&str], input: &str) -> std::process::Output {
         .expect("the child reads its stdin");
     child.wait_with_output().expect("the child exits")
 }
+
+/// Returns each table's row count and a SHA-256 of its every row, in a stable order: what
+/// a refused request must leave unchanged.
+pub fn table_contents(db: &std::path::Path) -> std::collections::BTreeMap<String, (i64, String)> {
+    use sha2::{Digest, Sha256};
+    let c = rusqlite::Connection::open(db).unwrap();
+    let names: Vec<String> = c
+        .prepare("select name from sqlite_master where type = 'table' and name not like 'sqlite_%'")
+        .unwrap()
+        .query_map([], |r| r.get(0))
+        .unwrap()
+        .collect::<Result<_, _>>()
+        .unwrap();
+    names
+        .into_iter()
+        .map(|n| {
+            let mut stmt = c
+                .prepare(&format!("select * from \"{n}\" order by 1"))
+                .unwrap();
+            let cols = stmt.column_count();
+            let mut h = Sha256::new();
+            let mut rows = stmt.query([]).unwrap();
+            let mut count = 0;
+            while let Some(row) = rows.next().unwrap() {
+                count += 1;
+                for i in 0..cols {
+                    let v: rusqlite::types::Value = row.get(i).unwrap();
+                    h.update(format!("{v:?}\u{1f}").as_bytes());
+                }
+                h.update(b"\x1e");
+            }
+            (n, (count, format!("{:x}", h.finalize())))
+        })
+        .collect()
+}
