@@ -572,7 +572,7 @@ async fn dispatch(command: Command) -> anyhow::Result<()> {
             let state = open(db)?;
             let store = state.store.as_ref();
             let site = site_of(store, &site).await?;
-            let day = date.unwrap_or_else(|| chrono::Utc::now().date_naive());
+            let day = date.unwrap_or_else(|| site.time_zone.today());
             let capacity = Capacity { counters, minutes };
             planning::service::check_capacity(capacity).map_err(anyhow::Error::msg)?;
             let fill = if fill_capacity {

@@ -268,12 +268,17 @@ impl TestApp {
 
     /// Creates a site.
     pub async fn create_site(&self, code: &str) -> cairn::master::Site {
+        self.create_site_in(code, "UTC").await
+    }
+
+    /// Creates a site keeping the days of IANA zone `zone`.
+    pub async fn create_site_in(&self, code: &str, zone: &str) -> cairn::master::Site {
         self.state
             .store
             .create_site(cairn::master::NewSite {
                 code: SiteCode::parse(code).unwrap(),
                 name: format!("Test {code}"),
-                time_zone: cairn::time::day::SiteZone::UTC,
+                time_zone: cairn::time::day::SiteZone::parse(zone).unwrap(),
             })
             .await
             .unwrap()

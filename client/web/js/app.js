@@ -80,7 +80,22 @@ function note(text) {
 }
 
 const clock = (ms) => new Date(ms).toLocaleTimeString([], { hour: "2-digit", minute: "2-digit" });
-const utcToday = () => new Date().toISOString().slice(0, 10);
+/**
+ * Returns today's date (YYYY-MM-DD) at the site, from the zone the server gave with the list:
+ * the site's day, never the phone's own zone or UTC. Without a zone (a list from an older
+ * server), UTC.
+ */
+function siteToday(zone) {
+  try {
+    const parts = new Intl.DateTimeFormat("en-CA", {
+      timeZone: zone || "UTC", year: "numeric", month: "2-digit", day: "2-digit",
+    }).formatToParts(new Date());
+    const part = (type) => parts.find((p) => p.type === type).value;
+    return `${part("year")}-${part("month")}-${part("day")}`;
+  } catch {
+    return new Date().toISOString().slice(0, 10);
+  }
+}
 
 // ---------- status strip (always visible) ----------
 
@@ -121,7 +136,7 @@ function staleReason() {
   if (state.pendingList && state.pendingList.version > l.version) {
     return `The list changed on the server (version ${state.pendingList.version}, this phone holds ${l.version}): it is loaded when this bin is done.`;
   }
-  if (l.day !== utcToday()) return `This list is for ${l.day}, not today: refresh when you have a connection.`;
+  if (l.day !== siteToday(l.time_zone)) return `This list is for ${l.day}, not today at the site: refresh when you have a connection.`;
   if (Date.now() - l.fetched_at > STALE_AFTER_MS) {
     return `This list was fetched at ${new Date(l.fetched_at).toLocaleString()}: refresh when you have a connection.`;
   }

@@ -24,7 +24,8 @@ pub struct Site {
     pub id: SiteId,
     pub code: SiteCode,
     pub name: String,
-    pub time_zone: String,
+    /// The zone whose local days are the site's days (`time::day`).
+    pub time_zone: crate::time::day::SiteZone,
 }
 
 /// A site to create.

@@ -468,14 +468,15 @@ struct TodayParams {
     day: Option<String>,
 }
 
-/// Sends the browser to today's list (UTC), or to the day the date field names.
+/// Sends the browser to today's list (the site's local day), or to the day the date field
+/// names.
 async fn today(
     CurrentSite(site): CurrentSite,
     Params(q): Params<TodayParams>,
 ) -> Result<Response, PageError> {
     let day = match q.day.as_deref().map(str::trim) {
         Some(d) if !d.is_empty() => parse_day(d)?,
-        _ => chrono::Utc::now().date_naive(),
+        _ => site.time_zone.today(),
     };
     Ok(Redirect::to(&day_url(&site, day)).into_response())
 }

@@ -50,6 +50,11 @@ pub struct PhoneTask {
 #[derive(Debug, Clone, Serialize)]
 pub struct PhoneList {
     pub day: chrono::NaiveDate,
+    /// The site's IANA zone: the phone works out the site's "today" with it while offline,
+    /// never from its own zone or UTC.
+    pub time_zone: crate::time::day::SiteZone,
+    /// The site's local date when the server answered.
+    pub today: chrono::NaiveDate,
     pub version: i64,
     /// The run this counter holds, if any.
     pub run: Option<u32>,
@@ -68,6 +73,8 @@ pub fn for_counter(
     list: &ListView,
     holder: &str,
     site: &SiteCode,
+    zone: crate::time::day::SiteZone,
+    today: chrono::NaiveDate,
     contents: &HashMap<String, Vec<ItemBrief>>,
 ) -> PhoneList {
     let run = list.runs.iter().find(|r| r.holder == holder).map(|r| r.run);
@@ -102,6 +109,8 @@ pub fn for_counter(
         .collect();
     PhoneList {
         day: list.day,
+        time_zone: zone,
+        today,
         version: list.version,
         run,
         tasks,

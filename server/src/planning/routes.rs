@@ -185,7 +185,7 @@ async fn run_abc(
 ) -> Result<Json<AbcSummary>, ApiError> {
     let day = match p.day {
         Some(d) => parse_day(&d)?,
-        None => chrono::Utc::now().date_naive(),
+        None => site.time_zone.today(),
     };
     Ok(Json(
         service::classify(state.store.as_ref(), &site, day).await?,
@@ -284,7 +284,7 @@ async fn my_tasks(
 ) -> Result<Json<phone::PhoneList>, ApiError> {
     let day = match q.day {
         Some(d) => parse_day(&d)?,
-        None => chrono::Utc::now().date_naive(),
+        None => site.time_zone.today(),
     };
     let list = state.store.count_list(site.id, day).await?.ok_or_else(|| {
         ApiError::NotFound(format!("no count list for {day} yet: ask your supervisor"))
@@ -304,7 +304,12 @@ async fn my_tasks(
         .unwrap_or_default();
     let contents = state.store.bin_contents(site.id, bins).await?;
     Ok(Json(phone::for_counter(
-        &list, &holder, &site.code, &contents,
+        &list,
+        &holder,
+        &site.code,
+        site.time_zone,
+        site.time_zone.today(),
+        &contents,
     )))
 }
 

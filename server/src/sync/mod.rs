@@ -33,6 +33,8 @@ pub struct Sender {
 pub struct SyncBatch {
     pub site: SiteId,
     pub site_code: String,
+    /// The site's zone: a list's day starts at the site's local midnight.
+    pub zone: crate::time::day::SiteZone,
     pub sender: Sender,
     pub clock: ClockSample,
     pub received_at: Timestamp,

@@ -84,6 +84,7 @@ async fn sync(
         .apply_sync(SyncBatch {
             site: site.id,
             site_code: site.code.as_str().to_string(),
+            zone: site.time_zone,
             sender: Sender {
                 user: p.user.id,
                 user_name: p.user.name.as_str().to_string(),

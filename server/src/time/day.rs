@@ -114,6 +114,12 @@ impl SiteZone {
     }
 }
 
+impl serde::Serialize for SiteZone {
+    fn serialize<S: serde::Serializer>(&self, s: S) -> Result<S::Ok, S::Error> {
+        s.serialize_str(self.name())
+    }
+}
+
 impl fmt::Display for SiteZone {
     fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
         f.write_str(self.name())

@@ -8,6 +8,7 @@ use crate::master::{
 use crate::planning::phone::{ItemBrief, PackBrief};
 use crate::store::{Progress, ShelfRow, StoreError};
 use crate::time::Timestamp;
+use crate::time::day::SiteZone;
 use rusqlite::{Connection, OptionalExtension, Transaction, params};
 use std::collections::HashMap;
 
@@ -18,6 +19,12 @@ fn site_from_row(r: &rusqlite::Row<'_>) -> rusqlite::Result<(i64, String, String
 fn to_site((id, code, name, time_zone): (i64, String, String, String)) -> Result<Site, StoreError> {
     let code =
         SiteCode::parse(&code).map_err(|e| anyhow::anyhow!("stored site code is invalid: {e}"))?;
+    // Sites made before zones were checked may hold any text: they keep UTC days, as they
+    // always had, and the log says so.
+    let time_zone = SiteZone::parse(&time_zone).unwrap_or_else(|e| {
+        tracing::warn!(site = %code, "{e}; the site keeps UTC days");
+        SiteZone::UTC
+    });
     Ok(Site {
         id: SiteId(id),
         code,
@@ -50,7 +57,7 @@ pub fn create_site(tx: &Transaction, site: &NewSite) -> Result<Site, StoreError>
         id: SiteId(tx.last_insert_rowid()),
         code: site.code.clone(),
         name: site.name.clone(),
-        time_zone: site.time_zone.name().to_string(),
+        time_zone: site.time_zone,
     })
 }
 

@@ -6,13 +6,14 @@ use crate::accounts::DeviceId;
 use crate::master::SiteId;
 use crate::planning::phone::{ItemBrief, PackBrief};
 use crate::store::StoreError;
-use crate::store::sqlite::planning::{day_start_ms, finish_task};
+use crate::store::sqlite::planning::finish_task;
 use crate::store::sqlite::recount_tasks::would_recount_own_count;
 use crate::sync::SyncBatch;
 use crate::sync::clock::ClockSample;
 use crate::sync::event::{Body, Event, Line};
 use crate::sync::plausible::{self, Sampled, TaskFloor};
 use crate::time::Timestamp;
+use crate::time::day::SiteZone;
 use cairn_scan::wire::{EventFlag, EventResult};
 use chrono::NaiveDate;
 use rusqlite::{Connection, OptionalExtension, Transaction, params};
@@ -234,14 +235,14 @@ struct TaskRow {
 
 impl TaskRow {
     /// Returns the earliest moment the task could have been known to a phone.
-    fn floor(&self) -> Result<TaskFloor, StoreError> {
+    fn floor(&self, zone: SiteZone) -> Result<TaskFloor, StoreError> {
         if let Some(done) = self.recheck_done_at {
             return Ok(TaskFloor::Recount(Timestamp(done)));
         }
         let day = NaiveDate::parse_from_str(&self.day, "%Y-%m-%d")
             .map_err(|e| anyhow::anyhow!("a count list has the day '{}': {e}", self.day))?;
         Ok(TaskFloor::Listed(Timestamp(
-            day_start_ms(day).min(self.built_at),
+            zone.start_of(day).0.min(self.built_at),
         )))
     }
 }
@@ -336,7 +337,7 @@ fn apply_event(
         if row.holder != batch.sender.user_name {
             flags.push(EventFlag::Reassigned);
         }
-        floor = Some(row.floor()?);
+        floor = Some(row.floor(batch.zone)?);
         withdrawn = row.withdrawn;
     }
     if let Err(why) = plausible::check_event(
