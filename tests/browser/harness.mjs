@@ -29,10 +29,10 @@ export function cairn(args, input = "") {
  *   (`token`, used by `api(method, path, body)`), made through the CLI;
  * - `webDir` serves the phone app from another folder (through a config file's `web_dir`).
  */
-export async function startServer({ prepare, env, site = false, webDir = null } = {}) {
+export async function startServer({ prepare, env, site = false, webDir = null, zone = "UTC" } = {}) {
   const dir = mkdtempSync(join(tmpdir(), "cairn-browser-"));
   const db = join(dir, "t.db");
-  cairn(["site", "add", "--db", db, "--code", "T", "--name", "Browser test"]);
+  cairn(["site", "add", "--db", db, "--code", "T", "--name", "Browser test", "--time-zone", zone]);
   let token = null;
   if (site) {
     cairn(["user", "add", "--db", db, "--site", "T", "--name", ADMIN.user,
@@ -99,11 +99,19 @@ export const ITEMS = [
 /** Today's date (UTC), as the server's my-tasks default uses it. */
 export const today = () => new Date().toISOString().slice(0, 10);
 
+/** Returns today's date (YYYY-MM-DD) in IANA zone `zone`, by the JavaScript engine's own tz data. */
+export function dayIn(zone) {
+  const parts = new Intl.DateTimeFormat("en-CA", { timeZone: zone, year: "numeric", month: "2-digit", day: "2-digit" })
+    .formatToParts(new Date());
+  const part = (type) => parts.find((p) => p.type === type).value;
+  return `${part("year")}-${part("month")}-${part("day")}`;
+}
+
 /**
- * Gives the site bins, items with each and case packs, stock in three bins, and today's
- * count list with its one run held by the counter; returns the list.
+ * Gives the site bins, items with each and case packs, stock in three bins, and `day`'s
+ * count list (default: today in UTC) with its one run held by the counter; returns the list.
  */
-export async function seedSite(server) {
+export async function seedSite(server, day = today()) {
   const { api } = server;
   await api("PUT", "/api/v1/sites/T/planning/calendar",
     { working_weekdays: ["mon", "tue", "wed", "thu", "fri", "sat", "sun"], holidays: [] });
@@ -121,10 +129,10 @@ export async function seedSite(server) {
   await api("POST", "/api/v1/sites/T/movements", ITEMS.filter((i) => i.bin).map((i, n) => ({
     id: `seed-${n}`, bin: i.bin, sku: i.sku, qty: 40 + n, kind: "receipt", event_at: at,
   })));
-  await api("POST", `/api/v1/sites/T/planning/abc?day=${today()}`, {});
+  await api("POST", `/api/v1/sites/T/planning/abc?day=${day}`, {});
   const list = await api("POST", "/api/v1/sites/T/count-lists",
-    { day: today(), counters: 1, minutes: 480, fill: "capacity" });
-  await api("PUT", `/api/v1/sites/T/count-lists/${today()}/runs/1`, { holder: COUNTER.user });
+    { day, counters: 1, minutes: 480, fill: "capacity" });
+  await api("PUT", `/api/v1/sites/T/count-lists/${day}/runs/1`, { holder: COUNTER.user });
   return list;
 }
 
@@ -138,7 +146,7 @@ const FLAGS = [
  * Launches headless Chromium with the flags that work on this machine, on a fresh
  * user-data dir (or `userDataDir` to test persistence across a browser restart).
  */
-export async function launch(extraArgs = [], { userDataDir, viewport, offline = false } = {}) {
+export async function launch(extraArgs = [], { userDataDir, viewport, offline = false, timezoneId } = {}) {
   const fresh = !userDataDir;
   const dir = userDataDir ?? mkdtempSync(join(tmpdir(), "cairn-chromium-"));
   const context = await chromium.launchPersistentContext(dir, {
@@ -146,6 +154,7 @@ export async function launch(extraArgs = [], { userDataDir, viewport, offline = 
     headless: true,
     viewport: viewport ?? undefined,
     offline,
+    timezoneId,
     args: [...FLAGS, ...extraArgs],
   });
   // The server's content security policy and the pages it serves must agree: a
