@@ -9,7 +9,7 @@ use super::{
 use crate::master::Site;
 use crate::store::{Store, StoreError};
 use crate::time::Timestamp;
-use chrono::{Days, NaiveDate, Utc};
+use chrono::NaiveDate;
 use std::fmt::Write as _;
 use std::sync::Arc;
 
@@ -319,41 +319,48 @@ pub async fn check_holder(
         .ok_or_else(not_a_counter))
 }
 
-/// Hour (UTC) at which the nightly classification runs.
-pub const NIGHTLY_HOUR_UTC: u32 = 2;
+/// Local hour at which each site's nightly classification runs.
+pub const NIGHTLY_HOUR_LOCAL: u32 = 2;
+/// Longest the nightly loop sleeps before it looks at the sites again (new sites, a zone
+/// changed), in seconds.
+const NIGHTLY_RECHECK_S: u64 = 3_600;
 
-/// Re-classifies every site once a night, logging failures; runs until the process ends.
+/// Re-classifies every site once per local day at [`NIGHTLY_HOUR_LOCAL`] in its own zone
+/// (`time::day::Daily`: once on a night whose clocks skip or repeat that hour too),
+/// logging failures; runs until the process ends.
 pub async fn nightly_classification(store: Arc<dyn Store>) {
+    use crate::time::day::Daily;
+    let mut jobs: std::collections::HashMap<String, Daily> = Default::default();
     loop {
-        let now = Utc::now();
-        let today = now.date_naive();
-        let at = today
-            .and_hms_opt(NIGHTLY_HOUR_UTC, 0, 0)
-            .expect("the hour is a valid constant")
-            .and_utc();
-        let next = if at > now {
-            at
-        } else {
-            at.checked_add_days(Days::new(1)).unwrap_or(at)
+        let now = Timestamp::now();
+        let sites = match store.sites().await {
+            Ok(sites) => sites,
+            Err(e) => {
+                tracing::error!(error = ?e, "nightly ABC classification cannot list sites");
+                Vec::new()
+            }
         };
-        let wait = (next - now).to_std().unwrap_or_default();
-        tokio::time::sleep(wait).await;
-        let day = Utc::now().date_naive();
-        match store.sites().await {
-            Ok(sites) => {
-                for site in sites {
-                    match classify(store.as_ref(), &site, day).await {
-                        Ok(s) => {
-                            tracing::info!(site = %site.code, changed = s.changed, "nightly ABC classification")
-                        }
-                        Err(e) => {
-                            tracing::error!(site = %site.code, error = ?e, "nightly ABC classification failed")
-                        }
+        let mut wake = now.plus_ms(NIGHTLY_RECHECK_S as i64 * 1_000);
+        for site in &sites {
+            let job = jobs
+                .entry(site.code.as_str().to_string())
+                .and_modify(|j| j.zone = site.time_zone)
+                .or_insert_with(|| Daily::starting(site.time_zone, NIGHTLY_HOUR_LOCAL, now));
+            if let Some(day) = job.due(now) {
+                job.done = Some(day);
+                match classify(store.as_ref(), site, day).await {
+                    Ok(s) => {
+                        tracing::info!(site = %site.code, %day, changed = s.changed, "nightly ABC classification")
+                    }
+                    Err(e) => {
+                        tracing::error!(site = %site.code, %day, error = ?e, "nightly ABC classification failed")
                     }
                 }
             }
-            Err(e) => tracing::error!(error = ?e, "nightly ABC classification cannot list sites"),
+            wake = wake.min(job.next_at(Timestamp::now()));
         }
+        let wait = (wake.0 - Timestamp::now().0).max(0) as u64;
+        tokio::time::sleep(std::time::Duration::from_millis(wait)).await;
     }
 }
 

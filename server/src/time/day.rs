@@ -94,6 +94,22 @@ impl SiteZone {
         unreachable!("no zone skips more than MAX_GAP_MINUTES of local time")
     }
 
+    /// Returns the first instant at or after `hour`:00 local time on `day` (on a night
+    /// whose clocks skip that hour, the end of the gap; on one that repeats it, the first).
+    pub fn at_local(&self, day: NaiveDate, hour: u32) -> Timestamp {
+        let Some(time) = NaiveTime::from_hms_opt(hour.min(23), 0, 0) else {
+            return self.start_of(day);
+        };
+        let local = NaiveDateTime::new(day, time);
+        for minute in 0..=MAX_GAP_MINUTES {
+            let t = local + chrono::Duration::minutes(minute);
+            if let Some(at) = self.0.from_local_datetime(&t).earliest() {
+                return Timestamp(at.with_timezone(&Utc).timestamp_millis());
+            }
+        }
+        unreachable!("no zone skips more than MAX_GAP_MINUTES of local time")
+    }
+
     /// Returns the instants `[start, end)` of local day `day` at this site.
     pub fn range(&self, day: NaiveDate) -> (Timestamp, Timestamp) {
         let next = day.succ_opt().unwrap_or(NaiveDate::MAX);
@@ -157,6 +173,53 @@ impl SiteDay {
     pub fn week_monday(&self) -> NaiveDate {
         let back = self.date.weekday().num_days_from_monday();
         self.date - chrono::Duration::days(i64::from(back))
+    }
+}
+
+/// A job that runs once per local day at a site, at a local hour (the nightly ABC run).
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub struct Daily {
+    pub zone: SiteZone,
+    pub hour: u32,
+    /// The last local day the job ran for, if it ran.
+    pub done: Option<NaiveDate>,
+}
+
+impl Daily {
+    /// Returns the job as a scheduler starting at `now` holds it: a day whose hour has
+    /// passed already counts as done (as if the process had been up then), so a restart
+    /// never runs a missed night's job in the middle of the working day.
+    pub fn starting(zone: SiteZone, hour: u32, now: Timestamp) -> Self {
+        let today = zone.day_of(now);
+        let done = if now >= zone.at_local(today, hour) {
+            Some(today)
+        } else {
+            today.pred_opt()
+        };
+        Self { zone, hour, done }
+    }
+
+    /// Returns the local day the job should run for at `now`: today's, once its hour has
+    /// come and it has not run for today. A job never runs twice for one local day, and
+    /// runs on a night whose clocks skip or repeat its hour too.
+    pub fn due(&self, now: Timestamp) -> Option<NaiveDate> {
+        let today = self.zone.day_of(now);
+        let not_yet = self.done.is_some_and(|d| d >= today);
+        (!not_yet && now >= self.zone.at_local(today, self.hour)).then_some(today)
+    }
+
+    /// Returns the next instant after `now` at which [`Daily::due`] may say yes.
+    pub fn next_at(&self, now: Timestamp) -> Timestamp {
+        let today = self.zone.day_of(now);
+        let at = self.zone.at_local(today, self.hour);
+        if self.due(now).is_some() {
+            return now;
+        }
+        if at > now && self.done.is_none_or(|d| d < today) {
+            return at;
+        }
+        let tomorrow = today.succ_opt().unwrap_or(NaiveDate::MAX);
+        self.zone.at_local(tomorrow, self.hour)
     }
 }
 
@@ -286,6 +349,72 @@ mod tests {
             23,
             "the skipped hour is missing"
         );
+    }
+
+    #[test]
+    fn a_two_oclock_job_runs_once_each_local_day_across_both_chicago_dst_nights() {
+        // 2026-03-08 has no 02:00 in Chicago (02:00 CST → 03:00 CDT, 08:00Z); 2026-11-01
+        // has 02:00 CST once, at 08:00Z, after 01:00–02:00 was lived twice (US rule; the
+        // instants checked with Python 3.11's zoneinfo).
+        let z = zone("America/Chicago");
+        assert_eq!(z.at_local(date(2026, 3, 8), 2), utc("2026-03-08T08:00:00Z"));
+        assert_eq!(
+            z.at_local(date(2026, 11, 1), 2),
+            utc("2026-11-01T08:00:00Z")
+        );
+        assert_eq!(z.at_local(date(2026, 6, 1), 2), utc("2026-06-01T07:00:00Z"));
+        for (from, to) in [
+            ("2026-03-06T00:00:00Z", "2026-03-11T00:00:00Z"),
+            ("2026-10-30T00:00:00Z", "2026-11-04T00:00:00Z"),
+        ] {
+            let mut now = utc(from);
+            let mut job = Daily::starting(z, 2, now);
+            let mut runs = Vec::new();
+            // Step a minute at a time, as a scheduler that wakes often would.
+            while now < utc(to) {
+                if let Some(day) = job.due(now) {
+                    runs.push((day, now));
+                    job.done = Some(day);
+                }
+                now = now.plus_ms(60_000);
+            }
+            let days: Vec<NaiveDate> = runs.iter().map(|r| r.0).collect();
+            let mut unique = days.clone();
+            unique.dedup();
+            assert_eq!(days, unique, "once per local day: {runs:?}");
+            assert_eq!(days.len(), 5, "{runs:?}");
+            for (day, at) in runs {
+                assert_eq!(at, z.at_local(day, 2), "{day} ran at its local 02:00");
+            }
+        }
+    }
+
+    #[test]
+    fn the_next_wake_is_the_local_hour_today_or_tomorrow() {
+        let z = zone("Asia/Kathmandu");
+        let job = Daily {
+            zone: z,
+            hour: 2,
+            done: None,
+        };
+        // 2026-12-04 01:00 local is 2026-12-03T19:15Z; 02:00 local is 20:15Z.
+        assert_eq!(
+            job.next_at(utc("2026-12-03T19:15:00Z")),
+            utc("2026-12-03T20:15:00Z")
+        );
+        let ran = Daily {
+            done: Some(date(2026, 12, 4)),
+            ..job
+        };
+        assert_eq!(
+            ran.next_at(utc("2026-12-03T21:00:00Z")),
+            utc("2026-12-04T20:15:00Z")
+        );
+        assert_eq!(
+            job.due(utc("2026-12-03T21:00:00Z")),
+            Some(date(2026, 12, 4))
+        );
+        assert_eq!(ran.due(utc("2026-12-03T21:00:00Z")), None);
     }
 
     const SOME_ZONES: &[&str] = &[
