@@ -189,7 +189,13 @@ async fn a_simulated_year_on_the_demo_site_keeps_frequencies_capacity_and_level(
         minutes: 150,
     };
     let mut input = store
-        .plan_input(site.id, start, capacity, Fill::Level)
+        .plan_input(
+            site.id,
+            start,
+            site.time_zone.range(start).1,
+            capacity,
+            Fill::Level,
+        )
         .await
         .unwrap();
     // Three years: every class completes its first interval and then at least one more.

@@ -135,3 +135,135 @@ async fn two_sites_a_day_apart_each_count_on_their_own_day() {
     let gap = (day - before.1).num_days();
     assert!((1..=2).contains(&gap), "{day} vs {}", before.1);
 }
+
+/// Chicago's offset from UTC in hours at `at`, by the US rule (Energy Policy Act of 2005):
+/// daylight time (−5) from 02:00 local on the second Sunday of March to 02:00 local on the
+/// first Sunday of November, standard time (−6) otherwise. Written out here so the test
+/// does not lean on the tz library the server uses.
+fn chicago_offset_h(at: chrono::DateTime<Utc>) -> i64 {
+    use chrono::{Datelike, TimeZone, Weekday};
+    let nth_sunday = |month: u32, n: u32| {
+        let first = NaiveDate::from_ymd_opt(at.year(), month, 1).unwrap();
+        let to_sunday = (7 - first.weekday().num_days_from_sunday()) % 7;
+        let d = first + Duration::days(i64::from(to_sunday + 7 * (n - 1)));
+        assert_eq!(d.weekday(), Weekday::Sun);
+        d
+    };
+    let start = Utc.from_utc_datetime(&nth_sunday(3, 2).and_hms_opt(8, 0, 0).unwrap());
+    let end = Utc.from_utc_datetime(&nth_sunday(11, 1).and_hms_opt(7, 0, 0).unwrap());
+    if start <= at && at < end { -5 } else { -6 }
+}
+
+#[tokio::test]
+async fn a_count_at_half_past_eleven_at_night_is_recounted_on_that_local_days_list() {
+    let app = spawn_app().await;
+    let token = site(&app, "CHI", "America/Chicago", "rosa", None).await;
+    let admin = Auth::Bearer(app.issue_token("CHI", "chi-admin", Role::Admin).await);
+    let at = (Utc::now() - Duration::hours(30)).to_rfc3339();
+    let a = app
+        .send(
+            Method::POST,
+            "/api/v1/sites/CHI/movements",
+            &admin,
+            Body::Json(json!([common::movement(
+                "r1",
+                "A-01-01-1",
+                "S1",
+                30,
+                "receipt",
+                &at
+            )])),
+        )
+        .await;
+    assert_eq!(a.status, 200, "{}", a.text);
+
+    // The last 23:30 in Chicago before now, as an instant.
+    let now = Utc::now();
+    let local_now = now + Duration::hours(chicago_offset_h(now));
+    let mut local_day = local_now.date_naive();
+    if local_now.time() < chrono::NaiveTime::from_hms_opt(23, 30, 0).unwrap() {
+        local_day = local_day.pred_opt().unwrap();
+    }
+    let local = local_day.and_hms_opt(23, 30, 0).unwrap().and_utc();
+    let x = local - Duration::hours(chicago_offset_h(local));
+    let x_ms = x.timestamp_millis();
+    assert_ne!(
+        x.date_naive(),
+        local_day,
+        "23:30 in Chicago is already tomorrow in UTC"
+    );
+
+    // Rosa counts 25 of the 30 between 23:28 and 23:30 local: out of tolerance (S1 is
+    // new, so held to class A), and a recount goes on a list.
+    let pass = uuid::Uuid::now_v7().to_string();
+    let ev = |t: i64, kind: &str, extra: Value| {
+        let mut e = json!({"id": uuid::Uuid::now_v7().to_string(), "at": t, "user": "rosa",
+                           "count": pass, "task": null, "bin": "A-01-01-1", "type": kind});
+        e.as_object_mut()
+            .unwrap()
+            .extend(extra.as_object().unwrap().clone());
+        e
+    };
+    let mut opened = ev(x_ms - 120_000, "bin_opened", json!({"label": ""}));
+    opened["id"] = json!(pass);
+    let events = vec![
+        opened,
+        ev(
+            x_ms - 60_000,
+            "line",
+            json!({"sku": "S1", "gtin": null, "packs": 1, "qty": 25, "lot": "", "entry": "keypad"}),
+        ),
+        ev(x_ms, "bin_done", json!({})),
+    ];
+    let a = app
+        .send(
+            Method::POST,
+            "/api/v1/sites/CHI/sync",
+            &Auth::Bearer(token),
+            Body::Json(json!({"device_clock": Utc::now().timestamp_millis(), "rtt_ms": 20, "events": events})),
+        )
+        .await;
+    assert_eq!(a.status, 200, "{}", a.text);
+    assert!(
+        a.json()["results"]
+            .as_array()
+            .unwrap()
+            .iter()
+            .all(|r| r["status"] == "accepted"),
+        "{}",
+        a.text
+    );
+    let list = app
+        .send(
+            Method::GET,
+            &format!("/api/v1/sites/CHI/count-lists/{local_day}"),
+            &admin,
+            Body::Empty,
+        )
+        .await;
+    assert_eq!(
+        list.status, 200,
+        "the recount is on {local_day}'s list: {}",
+        list.text
+    );
+    let tasks = list.json()["tasks"].as_array().unwrap().clone();
+    assert!(
+        tasks.iter().any(|t| t["reason"] == "recount"),
+        "{}",
+        list.text
+    );
+    let next = local_day.succ_opt().unwrap();
+    let other = app
+        .send(
+            Method::GET,
+            &format!("/api/v1/sites/CHI/count-lists/{next}"),
+            &admin,
+            Body::Empty,
+        )
+        .await;
+    assert_eq!(
+        other.status, 404,
+        "nothing on the UTC day's list: {}",
+        other.text
+    );
+}

@@ -243,7 +243,13 @@ fn main() {
         );
         let t = Instant::now();
         let input = store
-            .plan_input(site.id, day, capacity, Fill::Level)
+            .plan_input(
+                site.id,
+                day,
+                site.time_zone.range(day).1,
+                capacity,
+                Fill::Level,
+            )
             .await
             .unwrap();
         let read_ms = t.elapsed().as_secs_f64() * 1e3;

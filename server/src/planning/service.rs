@@ -13,9 +13,6 @@ use chrono::NaiveDate;
 use std::fmt::Write as _;
 use std::sync::Arc;
 
-/// Milliseconds in a day.
-const DAY_MS: i64 = 86_400_000;
-
 /// Classifies a site's items from issues in the window ending with `day`.
 pub async fn classify(
     store: &dyn Store,
@@ -23,8 +20,10 @@ pub async fn classify(
     day: NaiveDate,
 ) -> Result<AbcSummary, StoreError> {
     let settings = store.planning_settings(site.id).await?;
-    let to = crate::store::sqlite::planning::day_start_ms(day) + DAY_MS;
-    let from = to - i64::from(settings.abc.window_days) * DAY_MS;
+    // The window: the site's local days up to and including `day`.
+    let to = site.time_zone.range(day).1.0;
+    let first = day - chrono::Duration::days(i64::from(settings.abc.window_days.max(1)) - 1);
+    let from = site.time_zone.start_of(first).0;
     let usage = store
         .abc_usage(site.id, Timestamp(from), Timestamp(to))
         .await?;
@@ -56,7 +55,10 @@ pub async fn preview(
     if store.latest_abc(site.id).await?.is_none() {
         classify(store, site, day).await?;
     }
-    let input = store.plan_input(site.id, day, capacity, fill).await?;
+    let day_end = site.time_zone.range(day).1;
+    let input = store
+        .plan_input(site.id, day, day_end, capacity, fill)
+        .await?;
     let plan = plan::build(&input);
     Ok((input, plan))
 }

@@ -226,11 +226,13 @@ pub trait Store: AccountStore + AccuracyStore + ReviewStore + Send + Sync + 'sta
         site: SiteId,
         rows: Vec<NewShortPick>,
     ) -> Result<ShortPickOutcome, StoreError>;
-    /// Gathers the facts a day's plan is built from.
+    /// Gathers the facts a day's plan is built from; `day_end` is the first instant after
+    /// the site's local day `day` (`time::day`).
     async fn plan_input(
         &self,
         site: SiteId,
         day: NaiveDate,
+        day_end: Timestamp,
         capacity: Capacity,
         fill: Fill,
     ) -> Result<PlanInput, StoreError>;

@@ -33,6 +33,14 @@ fn to_site((id, code, name, time_zone): (i64, String, String, String)) -> Result
     })
 }
 
+/// Reads a site's zone (UTC for a stored name the tz database does not know).
+pub fn site_zone(conn: &Connection, site: SiteId) -> Result<SiteZone, StoreError> {
+    let name: String = conn
+        .prepare_cached("select time_zone from site where id = ?1")?
+        .query_row([site.0], |r| r.get(0))?;
+    Ok(SiteZone::parse(&name).unwrap_or(SiteZone::UTC))
+}
+
 /// Creates a site, refusing a code already taken.
 pub fn create_site(tx: &Transaction, site: &NewSite) -> Result<Site, StoreError> {
     let taken: bool = tx

@@ -390,11 +390,12 @@ impl Store for SqliteStore {
         &self,
         site: SiteId,
         day: NaiveDate,
+        day_end: Timestamp,
         capacity: Capacity,
         fill: Fill,
     ) -> Result<PlanInput, StoreError> {
         self.readers
-            .run(move |c| planning::plan_input(c, site, day, capacity, fill))
+            .run(move |c| planning::plan_input(c, site, day, day_end, capacity, fill))
             .await
     }
 

@@ -416,12 +416,13 @@ pub fn plan_input(
     conn: &Connection,
     site: SiteId,
     day: NaiveDate,
+    day_end: Timestamp,
     capacity: Capacity,
     fill: Fill,
 ) -> Result<PlanInput, StoreError> {
     let settings = settings(conn, site)?;
     let calendar = calendar(conn, site)?;
-    let day_end = day_start_ms(day) + DAY_MS;
+    let day_end = day_end.0;
 
     // Bins, with the instant each was last counted (to tell old triggers from new).
     let mut bins = Vec::new();

@@ -259,7 +259,10 @@ fn add_task(
     sent: &Sent,
 ) -> Result<i64, StoreError> {
     let done = pass.timing.done.unwrap_or(pass.timing.first_scan);
-    let day = done.to_utc().date_naive().format("%Y-%m-%d").to_string();
+    // The site's local day of the count, not the UTC one (a count at 23:30 in Chicago is
+    // recounted on that day's list).
+    let zone = crate::store::sqlite::master::site_zone(tx, pass.site)?;
+    let day = zone.day_of(done).format("%Y-%m-%d").to_string();
     let list = tx
         .prepare_cached(
             "select id, counters, warnings from count_list where site_id = ?1 and day = ?2",
