@@ -267,3 +267,101 @@ async fn a_count_at_half_past_eleven_at_night_is_recounted_on_that_local_days_li
         other.text
     );
 }
+
+#[tokio::test]
+async fn a_count_just_after_local_midnight_is_in_that_local_days_accuracy() {
+    // Asia/Kathmandu keeps UTC+05:45 all year (tz database; no daylight saving since 1986,
+    // from memory; checked with Python 3.11's zoneinfo): 00:01 there is 18:16 UTC the day
+    // before.
+    let app = spawn_app().await;
+    let token = site(&app, "KTM", "Asia/Kathmandu", "bina", None).await;
+    let admin = Auth::Bearer(app.issue_token("KTM", "ktm-admin", Role::Admin).await);
+    let at = (Utc::now() - Duration::hours(30)).to_rfc3339();
+    let a = app
+        .send(
+            Method::POST,
+            "/api/v1/sites/KTM/movements",
+            &admin,
+            Body::Json(json!([common::movement(
+                "r1",
+                "A-01-01-1",
+                "S1",
+                30,
+                "receipt",
+                &at
+            )])),
+        )
+        .await;
+    assert_eq!(a.status, 200, "{}", a.text);
+
+    let offset = Duration::minutes(5 * 60 + 45);
+    let now = Utc::now();
+    let mut day = (now + offset).date_naive();
+    let mut x = day.and_hms_opt(0, 1, 0).unwrap().and_utc() - offset;
+    if x + Duration::minutes(3) > now {
+        day = day.pred_opt().unwrap();
+        x = day.and_hms_opt(0, 1, 0).unwrap().and_utc() - offset;
+    }
+    assert_ne!(
+        x.date_naive(),
+        day,
+        "00:01 in Kathmandu is still the day before in UTC"
+    );
+    let x_ms = x.timestamp_millis();
+    let pass = uuid::Uuid::now_v7().to_string();
+    let ev = |t: i64, kind: &str, extra: Value| {
+        let mut e = json!({"id": uuid::Uuid::now_v7().to_string(), "at": t, "user": "bina",
+                           "count": pass, "task": null, "bin": "A-01-01-1", "type": kind});
+        e.as_object_mut()
+            .unwrap()
+            .extend(extra.as_object().unwrap().clone());
+        e
+    };
+    let mut opened = ev(x_ms - 40_000, "bin_opened", json!({"label": ""}));
+    opened["id"] = json!(pass);
+    let events = vec![
+        opened,
+        ev(
+            x_ms - 20_000,
+            "line",
+            json!({"sku": "S1", "gtin": null, "packs": 1, "qty": 30, "lot": "", "entry": "keypad"}),
+        ),
+        ev(x_ms, "bin_done", json!({})),
+    ];
+    let a = app
+        .send(
+            Method::POST,
+            "/api/v1/sites/KTM/sync",
+            &Auth::Bearer(token),
+            Body::Json(json!({"device_clock": Utc::now().timestamp_millis(), "rtt_ms": 20, "events": events})),
+        )
+        .await;
+    assert_eq!(a.status, 200, "{}", a.text);
+
+    let counted = |d: NaiveDate| {
+        let admin = admin.clone();
+        let app = &app;
+        async move {
+            let r = app
+                .send(
+                    Method::GET,
+                    &format!("/api/v1/sites/KTM/accuracy?since={d}&until={d}"),
+                    &admin,
+                    Body::Empty,
+                )
+                .await;
+            assert_eq!(r.status, 200, "{}", r.text);
+            r.json()["counted"].as_u64().unwrap()
+        }
+    };
+    assert_eq!(
+        counted(day).await,
+        1,
+        "the count is in {day}, its local day"
+    );
+    assert_eq!(
+        counted(day.pred_opt().unwrap()).await,
+        0,
+        "not in the UTC day before"
+    );
+}

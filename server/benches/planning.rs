@@ -116,7 +116,7 @@ fn make_db(path: &Path, items: usize, bins: usize, moves: usize) {
     // Pick faces spread over the site; reserves at the far end.
     let face = |i: usize| (i * 2) % bins;
     let reserve = |i: usize| (i < items / 4).then(|| bins - 1 - 2 * i % bins);
-    let end = cairn::store::sqlite::planning::day_start_ms(plan_day());
+    let end = cairn::time::day::SiteZone::UTC.start_of(plan_day()).0;
     let start = end - 365 * DAY_MS;
     let mut balance: std::collections::HashMap<(usize, usize), (i64, i64)> = Default::default();
     let tx = conn.transaction().unwrap();

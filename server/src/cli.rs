@@ -744,8 +744,9 @@ async fn report(
     let public = |e: crate::error::ApiError| anyhow::anyhow!("{}", e.public_text());
     let tables = match what {
         ReportKind::Accuracy => {
-            let period = service::Period::new(since, until, service::DEFAULT_PERIOD_DAYS)
-                .map_err(anyhow::Error::msg)?;
+            let period =
+                service::Period::new(since, until, service::DEFAULT_PERIOD_DAYS, site.time_zone)
+                    .map_err(anyhow::Error::msg)?;
             let r = service::accuracy_report(store, &site, period, service::Filter::default())
                 .await
                 .map_err(public)?;
@@ -765,8 +766,8 @@ async fn report(
                 );
             }
             let settings = store.accuracy_settings(site.id).await?;
-            let window =
-                service::DemandWindow::new(until, None, &settings).map_err(anyhow::Error::msg)?;
+            let window = service::DemandWindow::new(until, None, &settings, site.time_zone)
+                .map_err(anyhow::Error::msg)?;
             let r = service::buffer_reports(store, &site, window, None)
                 .await
                 .map_err(public)?;

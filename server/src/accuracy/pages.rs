@@ -318,6 +318,7 @@ async fn item_page(
         Some(chrono::NaiveDate::from_ymd_opt(1970, 1, 1).expect("1970-01-01 is a date")),
         None,
         1,
+        site.time_zone,
     )
     .map_err(ApiError::BadRequest)?;
     let r = service::item_reports(state.store.as_ref(), &site, period, Some(sku(&code)?))

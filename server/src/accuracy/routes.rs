@@ -18,6 +18,7 @@ use crate::http::extract::{CurrentSite, JsonRows, Params};
 use crate::master::Site;
 use crate::master::codes::Sku;
 use crate::planning::abc::Class;
+use crate::time::day::SiteZone;
 use axum::Json;
 use axum::extract::{Path, State};
 use axum::http::header;
@@ -82,11 +83,12 @@ impl ReportParams {
     }
 
     /// Returns the period asked for, `default_days` up to today when not given.
-    pub fn period(&self, default_days: u64) -> Result<Period, ApiError> {
+    pub fn period(&self, default_days: u64, zone: SiteZone) -> Result<Period, ApiError> {
         Period::new(
             self.day("since", &self.since)?,
             self.day("until", &self.until)?,
             default_days,
+            zone,
         )
         .map_err(ApiError::BadRequest)
     }
@@ -106,7 +108,11 @@ impl ReportParams {
     }
 
     /// Returns the demand window asked for (the site's by default).
-    pub fn window(&self, settings: &AccuracySettings) -> Result<DemandWindow, ApiError> {
+    pub fn window(
+        &self,
+        settings: &AccuracySettings,
+        zone: SiteZone,
+    ) -> Result<DemandWindow, ApiError> {
         let days = given(&self.window_days)
             .map(|d| {
                 d.parse::<u32>().map_err(|_| {
@@ -114,7 +120,7 @@ impl ReportParams {
                 })
             })
             .transpose()?;
-        DemandWindow::new(self.day("until", &self.until)?, days, settings)
+        DemandWindow::new(self.day("until", &self.until)?, days, settings, zone)
             .map_err(ApiError::BadRequest)
     }
 
@@ -156,7 +162,7 @@ pub async fn report_for(
     service::accuracy_report(
         state.store.as_ref(),
         site,
-        p.period(DEFAULT_PERIOD_DAYS)?,
+        p.period(DEFAULT_PERIOD_DAYS, site.time_zone)?,
         p.filter()?,
     )
     .await
@@ -183,11 +189,11 @@ async fn get_accuracy(
 }
 
 /// Per-item figures cover all history unless a start is given.
-fn item_period(p: &ReportParams) -> Result<Period, ApiError> {
+fn item_period(p: &ReportParams, zone: SiteZone) -> Result<Period, ApiError> {
     let since = p
         .day("since", &p.since)?
         .unwrap_or(NaiveDate::from_ymd_opt(1970, 1, 1).expect("1970-01-01 is a date"));
-    Period::new(Some(since), p.day("until", &p.until)?, 1).map_err(ApiError::BadRequest)
+    Period::new(Some(since), p.day("until", &p.until)?, 1, zone).map_err(ApiError::BadRequest)
 }
 
 async fn get_items(
@@ -196,8 +202,13 @@ async fn get_items(
     Params(p): Params<ReportParams>,
 ) -> Result<Response, ApiError> {
     let csv = p.csv()?;
-    let items: Vec<ItemReport> =
-        service::item_reports(state.store.as_ref(), &site, item_period(&p)?, None).await?;
+    let items: Vec<ItemReport> = service::item_reports(
+        state.store.as_ref(),
+        &site,
+        item_period(&p, site.time_zone)?,
+        None,
+    )
+    .await?;
     if csv {
         csv_response(&site, &report::items_table(&items))
     } else {
@@ -215,7 +226,7 @@ async fn get_item(
     let items = service::item_reports(
         state.store.as_ref(),
         &site,
-        item_period(&p)?,
+        item_period(&p, site.time_zone)?,
         Some(sku(&code)?),
     )
     .await?;
@@ -290,7 +301,7 @@ pub async fn buffers_for(
     sku: Option<Sku>,
 ) -> Result<Vec<BufferReport>, ApiError> {
     let settings = state.store.accuracy_settings(site.id).await?;
-    let window = p.window(&settings)?;
+    let window = p.window(&settings, site.time_zone)?;
     service::buffer_reports(state.store.as_ref(), site, window, sku).await
 }
 

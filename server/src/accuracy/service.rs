@@ -17,6 +17,7 @@ use crate::master::codes::Sku;
 use crate::planning::abc::Class;
 use crate::store::Store;
 use crate::time::Timestamp;
+use crate::time::day::SiteZone;
 use chrono::{Days, NaiveDate};
 use serde::Serialize;
 use std::collections::{BTreeMap, HashMap};
@@ -28,21 +29,25 @@ pub const DEFAULT_PERIOD_DAYS: u64 = 90;
 /// Verdicts that judge a result; others (a recount pending) wait.
 const JUDGED: [&str; 2] = ["hit", "out_of_tolerance"];
 
-/// A span of days, both ends included (UTC days, as the planner uses).
+/// A span of the site's local days, both ends included.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
 pub struct Period {
     pub since: NaiveDate,
     pub until: NaiveDate,
+    /// The site's zone: its days are the period's days.
+    #[serde(skip)]
+    pub zone: SiteZone,
 }
 
 impl Period {
-    /// Builds a period, defaulting to the `default_days` days up to today.
+    /// Builds a period, defaulting to the `default_days` days up to today at the site.
     pub fn new(
         since: Option<NaiveDate>,
         until: Option<NaiveDate>,
         default_days: u64,
+        zone: SiteZone,
     ) -> Result<Self, String> {
-        let until = until.unwrap_or_else(|| chrono::Utc::now().date_naive());
+        let until = until.unwrap_or_else(|| zone.today());
         let since = match since {
             Some(s) => s,
             None => until
@@ -52,7 +57,7 @@ impl Period {
         if since > until {
             return Err(format!("since ({since}) is after until ({until})"));
         }
-        Ok(Self { since, until })
+        Ok(Self { since, until, zone })
     }
 
     /// Checks the period is short enough for a week-by-week report.
@@ -64,11 +69,11 @@ impl Period {
     }
 
     fn from(&self) -> Timestamp {
-        Timestamp(day_start(self.since))
+        self.zone.start_of(self.since)
     }
 
     fn to(&self) -> Timestamp {
-        Timestamp(day_start(self.until) + DAY_MS)
+        self.zone.range(self.until).1
     }
 
     /// Lists the ISO weeks the period touches, in order.
@@ -87,21 +92,6 @@ impl Period {
         }
         out
     }
-}
-
-const DAY_MS: i64 = 86_400_000;
-
-fn day_start(d: NaiveDate) -> i64 {
-    d.and_hms_opt(0, 0, 0)
-        .expect("midnight exists")
-        .and_utc()
-        .timestamp_millis()
-}
-
-fn day_of(t: Timestamp) -> NaiveDate {
-    chrono::DateTime::from_timestamp_millis(t.0)
-        .map(|d| d.date_naive())
-        .unwrap_or(NaiveDate::MIN)
 }
 
 /// Which results a report takes.
@@ -208,14 +198,14 @@ fn internal(e: impl std::fmt::Display) -> ApiError {
     ApiError::Internal(anyhow::anyhow!("stored count results do not add up: {e}"))
 }
 
-fn to_metric(r: &StoredResult) -> CountResult {
+fn to_metric(r: &StoredResult, zone: SiteZone) -> CountResult {
     CountResult {
         item: r.sku.clone(),
         class: r.class.unwrap_or(Class::C),
         zone: r.zone.clone(),
         counter: r.counter.clone(),
         counted_at: r.counted_at,
-        day: day_of(r.counted_at),
+        day: zone.day_of(r.counted_at),
         counted_qty: r.counted,
         book_qty: r.f_star,
         variance: r.variance,
@@ -253,7 +243,7 @@ pub async fn accuracy_report(
         count_days
             .entry(r.sku.clone())
             .or_default()
-            .push(day_of(r.counted_at));
+            .push(period.zone.day_of(r.counted_at));
     }
     let mut pending = 0u64;
     let results: Vec<CountResult> = stored
@@ -269,7 +259,7 @@ pub async fn accuracy_report(
             pending += u64::from(!judged);
             judged
         })
-        .map(to_metric)
+        .map(|r| to_metric(r, period.zone))
         .collect();
     let acc = metrics::record_accuracy(&results).map_err(internal)?;
 
@@ -377,7 +367,7 @@ async fn coverage_rows(
             &calendar,
             &item.sku,
             interval,
-            item.last_counted_before.map(day_of),
+            item.last_counted_before.map(|t| period.zone.day_of(t)),
             days,
             period.since,
             period.until,
@@ -513,17 +503,20 @@ pub struct BufferReport {
 pub struct DemandWindow {
     pub until: NaiveDate,
     pub days: u32,
+    /// The site's zone: demand is counted per local day.
+    pub zone: SiteZone,
 }
 
 impl DemandWindow {
-    /// Builds the window: by default the site's window up to yesterday (UTC).
+    /// Builds the window: by default the site's window up to yesterday at the site.
     pub fn new(
         until: Option<NaiveDate>,
         days: Option<u32>,
         settings: &AccuracySettings,
+        zone: SiteZone,
     ) -> Result<Self, String> {
         let until = until.unwrap_or_else(|| {
-            let today = chrono::Utc::now().date_naive();
+            let today = zone.today();
             today.pred_opt().unwrap_or(today)
         });
         let days = days.unwrap_or(settings.demand_window_days);
@@ -533,7 +526,7 @@ impl DemandWindow {
                 super::inputs::MAX_WINDOW_DAYS
             ));
         }
-        Ok(Self { until, days })
+        Ok(Self { until, days, zone })
     }
 
     fn from(&self) -> NaiveDate {
@@ -557,12 +550,20 @@ pub async fn buffer_reports(
         return Err(ApiError::NotFound("no such item at this site".into()));
     }
     let from = window.from();
-    let end = Timestamp(day_start(window.until) + DAY_MS);
+    let end = window.zone.range(window.until).1;
+    // Each local day of the window, by its first instant: the store sums picks per day
+    // between these bounds and computes no dates itself.
+    let mut days = Vec::new();
+    let mut d = from;
+    while d <= window.until {
+        days.push((d, window.zone.start_of(d)));
+        d = d.succ_opt().unwrap_or(NaiveDate::MAX);
+        if d == NaiveDate::MAX {
+            break;
+        }
+    }
     let mut issues: HashMap<String, Vec<(NaiveDate, i64)>> = HashMap::new();
-    for i in store
-        .daily_issues(site.id, Timestamp(day_start(from)), end, sku.clone())
-        .await?
-    {
+    for i in store.daily_issues(site.id, days, end, sku.clone()).await? {
         issues.entry(i.sku).or_default().push((i.day, i.issued));
     }
     // The error history runs up to the end of the window, from the start.

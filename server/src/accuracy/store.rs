@@ -111,11 +111,13 @@ pub trait AccuracyStore: Send + Sync {
         site: SiteId,
         sku: Option<Sku>,
     ) -> Result<Vec<ItemRow>, StoreError>;
-    /// Sums picks per item and UTC day with event time in `[from, to)`.
+    /// Sums picks per item and day, the days given by their first instants (ascending,
+    /// each running until the next, the last until `to`), so the site's local days come
+    /// from `time::day` and the store computes no dates.
     async fn daily_issues(
         &self,
         site: SiteId,
-        from: Timestamp,
+        days: Vec<(NaiveDate, Timestamp)>,
         to: Timestamp,
         sku: Option<Sku>,
     ) -> Result<Vec<DailyIssue>, StoreError>;

@@ -197,32 +197,45 @@ pub fn items(
     Ok(rows.collect::<rusqlite::Result<Vec<_>>>()?)
 }
 
-/// Sums each item's picks (negative quantities, as positive units) per UTC day in `[from, to)`.
+/// Sums each item's picks (negative quantities, as positive units) per day, the days given
+/// by their first instants in ascending order (the last runs until `to`). Walks the picks
+/// in item and time order and adds each to the day whose range holds it.
 pub fn daily_issues(
     conn: &Connection,
     site: SiteId,
-    from: i64,
+    days: &[(NaiveDate, Timestamp)],
     to: i64,
     sku: Option<&Sku>,
 ) -> Result<Vec<DailyIssue>, StoreError> {
+    let Some(&(_, from)) = days.first() else {
+        return Ok(Vec::new());
+    };
     let mut stmt = conn.prepare_cached(
-        "select i.sku, date(m.event_at / 1000, 'unixepoch'), sum(-m.qty)
+        "select i.sku, m.event_at, -m.qty
          from movement m join item i on i.id = m.item_id
          where m.site_id = ?1 and m.kind = 'pick' and m.qty < 0
            and m.event_at >= ?2 and m.event_at < ?3
            and (?4 is null or i.sku = ?4)
-         group by i.sku, date(m.event_at / 1000, 'unixepoch')
-         order by i.sku, 2",
+         order by i.sku, m.event_at",
     )?;
-    let rows = stmt.query_map(params![site.0, from, to, sku.map(|s| s.as_str())], |r| {
-        let day: String = r.get(1)?;
-        Ok(DailyIssue {
-            sku: r.get(0)?,
-            day: parse_day(&day)?,
-            issued: r.get(2)?,
-        })
-    })?;
-    Ok(rows.collect::<rusqlite::Result<Vec<_>>>()?)
+    let mut rows = stmt.query(params![site.0, from.0, to, sku.map(|s| s.as_str())])?;
+    let mut out: Vec<DailyIssue> = Vec::new();
+    while let Some(r) = rows.next()? {
+        let (sku, at, qty): (String, i64, i64) = (r.get(0)?, r.get(1)?, r.get(2)?);
+        let i = days.partition_point(|(_, start)| start.0 <= at);
+        let Some(&(day, _)) = i.checked_sub(1).and_then(|i| days.get(i)) else {
+            continue;
+        };
+        match out.last_mut() {
+            Some(last) if last.sku == sku && last.day == day => last.issued += qty,
+            _ => out.push(DailyIssue {
+                sku,
+                day,
+                issued: qty,
+            }),
+        }
+    }
+    Ok(out)
 }
 
 /// Reads a site's planner inputs: items' own rows (by SKU), then group defaults (by group).
@@ -394,12 +407,12 @@ impl AccuracyStore for SqliteStore {
     async fn daily_issues(
         &self,
         site: SiteId,
-        from: Timestamp,
+        days: Vec<(NaiveDate, Timestamp)>,
         to: Timestamp,
         sku: Option<Sku>,
     ) -> Result<Vec<DailyIssue>, StoreError> {
         self.readers
-            .run(move |c| daily_issues(c, site, from.0, to.0, sku.as_ref()))
+            .run(move |c| daily_issues(c, site, &days, to.0, sku.as_ref()))
             .await
     }
 

@@ -34,14 +34,6 @@ fn parse_day(text: &str) -> rusqlite::Result<NaiveDate> {
     })
 }
 
-/// Returns the instant a UTC day starts.
-pub fn day_start_ms(d: NaiveDate) -> i64 {
-    d.and_hms_opt(0, 0, 0)
-        .expect("midnight exists")
-        .and_utc()
-        .timestamp_millis()
-}
-
 /// Reads a site's planning settings, or the defaults when none were stored.
 pub fn settings(conn: &Connection, site: SiteId) -> Result<Settings, StoreError> {
     let row = conn
