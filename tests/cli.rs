@@ -173,4 +173,45 @@ fn a_site_is_made_only_with_a_zone_the_tz_database_knows() {
         .collect::<Result<_, _>>()
         .unwrap();
     assert_eq!(zones, ["Asia/Kathmandu"], "no refused site was written");
+
+    // An admin moves the site to another zone: audited with what it was and is.
+    let zone = |z: &str| {
+        cairn(&[
+            "site",
+            "zone",
+            "--db",
+            db,
+            "--code",
+            "KTM",
+            "--time-zone",
+            z,
+        ])
+    };
+    let out = zone("Mars/Olympus_Mons");
+    assert!(!out.status.success());
+    let out = zone("America/Chicago");
+    assert!(
+        out.status.success(),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    assert!(
+        String::from_utf8_lossy(&out.stdout).contains("Asia/Kathmandu -> America/Chicago"),
+        "{}",
+        String::from_utf8_lossy(&out.stdout)
+    );
+    let (now, detail): (String, String) = conn
+        .query_row(
+            "select s.time_zone, a.detail from site s, audit_event a
+             where a.action = 'site_zone_changed' and a.site_id = s.id",
+            [],
+            |r| Ok((r.get(0)?, r.get(1)?)),
+        )
+        .unwrap();
+    assert_eq!(now, "America/Chicago");
+    let detail: serde_json::Value = serde_json::from_str(&detail).unwrap();
+    assert_eq!(
+        detail,
+        serde_json::json!({"was": "Asia/Kathmandu", "now": "America/Chicago"})
+    );
 }

@@ -268,6 +268,17 @@ enum SiteCommand {
         #[arg(long, default_value = "UTC")]
         time_zone: String,
     },
+    /// Change a site's time zone (audited). Stored lists keep their dates; from now on a
+    /// day at the site is a local day of the new zone.
+    Zone {
+        #[arg(long, env = "CAIRN_DB")]
+        db: PathBuf,
+        #[arg(long)]
+        code: String,
+        /// The new IANA time zone (e.g. America/Chicago).
+        #[arg(long)]
+        time_zone: String,
+    },
 }
 
 #[derive(Subcommand)]
@@ -638,6 +649,30 @@ async fn dispatch(command: Command) -> anyhow::Result<()> {
                 })
                 .await?;
             println!("site {} created ({})", site.code, site.time_zone);
+            Ok(())
+        }
+        Command::Site {
+            command:
+                SiteCommand::Zone {
+                    db,
+                    code,
+                    time_zone,
+                },
+        } => {
+            let zone = crate::time::day::SiteZone::parse(&time_zone)?;
+            if !db.exists() {
+                anyhow::bail!("database {} does not exist", db.display());
+            }
+            let state = open(db)?;
+            let site = site_of(state.store.as_ref(), &code).await?;
+            let audit = AuditEvent::now(Actor::Cli, Action::SiteZoneChanged, site.code.as_str())
+                .at_site(site.id);
+            let was = state.store.set_site_zone(site.id, zone, audit).await?;
+            println!(
+                "site {}: time zone {was} -> {zone}; today there is {}",
+                site.code,
+                zone.today()
+            );
             Ok(())
         }
         Command::User { command } => user_command(command).await,

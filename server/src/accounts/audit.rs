@@ -75,6 +75,8 @@ pub enum Action {
     /// A change to a site's count policy: tolerances, review limits, automatic
     /// adjustment, source timings or reason codes.
     CountPolicyChanged,
+    /// A change to a site's time zone (and so to which instants its days span).
+    SiteZoneChanged,
 }
 
 impl Action {
@@ -99,6 +101,7 @@ impl Action {
             Action::Approval => "approval",
             Action::Adjustment => "adjustment",
             Action::CountPolicyChanged => "count_policy_changed",
+            Action::SiteZoneChanged => "site_zone_changed",
         }
     }
 }

@@ -138,6 +138,14 @@ pub trait Store: AccountStore + AccuracyStore + ReviewStore + Send + Sync + 'sta
     async fn ping_writer(&self) -> Result<(), StoreError>;
     /// Creates a site; its code must be new.
     async fn create_site(&self, site: NewSite) -> Result<Site, StoreError>;
+    /// Sets a site's time zone and writes `audit` in the same transaction; returns the
+    /// zone it had.
+    async fn set_site_zone(
+        &self,
+        site: SiteId,
+        zone: crate::time::day::SiteZone,
+        audit: crate::accounts::audit::AuditEvent,
+    ) -> Result<String, StoreError>;
     /// Finds a site by code.
     async fn site(&self, code: &SiteCode) -> Result<Option<Site>, StoreError>;
     /// Lists every site.

@@ -41,6 +41,18 @@ pub fn site_zone(conn: &Connection, site: SiteId) -> Result<SiteZone, StoreError
     Ok(SiteZone::parse(&name).unwrap_or(SiteZone::UTC))
 }
 
+/// Sets a site's time zone; returns the name it had.
+pub fn set_site_zone(tx: &Transaction, site: SiteId, zone: SiteZone) -> Result<String, StoreError> {
+    let was: String = tx
+        .prepare_cached("select time_zone from site where id = ?1")?
+        .query_row([site.0], |r| r.get(0))
+        .optional()?
+        .ok_or_else(|| StoreError::NotFound(format!("no site {}", site.0)))?;
+    tx.prepare_cached("update site set time_zone = ?2 where id = ?1")?
+        .execute(params![site.0, zone.name()])?;
+    Ok(was)
+}
+
 /// Creates a site, refusing a code already taken.
 pub fn create_site(tx: &Transaction, site: &NewSite) -> Result<Site, StoreError> {
     let taken: bool = tx

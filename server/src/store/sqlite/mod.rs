@@ -202,6 +202,22 @@ impl Store for SqliteStore {
             .await
     }
 
+    async fn set_site_zone(
+        &self,
+        site: SiteId,
+        zone: crate::time::day::SiteZone,
+        audit: crate::accounts::audit::AuditEvent,
+    ) -> Result<String, StoreError> {
+        self.write_tx(move |tx| {
+            let was = master::set_site_zone(tx, site, zone)?;
+            let mut audit = audit;
+            audit.detail = serde_json::json!({"was": was, "now": zone.name()});
+            accounts::insert_audit(tx, &audit)?;
+            Ok(was)
+        })
+        .await
+    }
+
     async fn site(&self, code: &SiteCode) -> Result<Option<Site>, StoreError> {
         let code = code.clone();
         self.readers.run(move |c| master::site(c, &code)).await
