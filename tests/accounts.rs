@@ -514,3 +514,69 @@ async fn parallel_guesses_cannot_slip_under_the_limit() {
     );
     assert_eq!(app.try_sign_in(ROOT_USER, ROOT_PASSWORD).await.status, 429);
 }
+
+#[tokio::test]
+async fn an_admin_changes_the_sites_time_zone_on_the_users_page_and_it_is_audited() {
+    let app = spawn_app().await;
+    app.small_site().await;
+    app.add_user("ada", "T", &[Role::Admin], PASSWORD, None)
+        .await;
+    let ada = app.sign_in("ada", PASSWORD).await;
+    let page = app
+        .send(
+            Method::GET,
+            "/sites/T/admin/users",
+            &Auth::Session(ada.clone()),
+            Body::Empty,
+        )
+        .await;
+    assert_eq!(page.status, 200);
+    assert!(
+        page.text.contains("action=\"/sites/T/admin/zone\""),
+        "{}",
+        page.text
+    );
+    let send = |zone: &'static str| {
+        let ada = ada.clone();
+        let app = &app;
+        async move {
+            app.send(
+                Method::POST,
+                "/sites/T/admin/zone",
+                &Auth::Session(ada.clone()),
+                form(&[("csrf", &ada.csrf), ("time_zone", zone)]),
+            )
+            .await
+        }
+    };
+    let refused = send("+05:30").await;
+    assert_eq!(refused.status, 400, "{}", refused.text);
+    assert!(
+        refused
+            .text
+            .contains("IANA zone name such as Europe/Berlin"),
+        "{}",
+        refused.text
+    );
+    assert_eq!(
+        count(&app, "select count(*) from site where time_zone = 'UTC'"),
+        1
+    );
+    let saved = send("Asia/Kathmandu").await;
+    assert_eq!(saved.status, 303, "{}", saved.text);
+    assert_eq!(
+        count(
+            &app,
+            "select count(*) from site where time_zone = 'Asia/Kathmandu'"
+        ),
+        1
+    );
+    assert_eq!(
+        count(
+            &app,
+            "select count(*) from audit_event where action = 'site_zone_changed'
+             and detail = '{\"now\":\"Asia/Kathmandu\",\"was\":\"UTC\"}'"
+        ),
+        1
+    );
+}

@@ -32,6 +32,7 @@ pub fn routes(t: &mut RouteTable) {
         .post("/sites/{site}/admin/users", admin, create_user)
         .post("/sites/{site}/admin/roles", admin, set_roles)
         .post("/sites/{site}/admin/unlock", admin, unlock)
+        .post("/sites/{site}/admin/zone", admin, set_zone)
         .post("/sites/{site}/admin/unlock-address", admin, unlock_address)
         .get("/sites/{site}/admin/devices", admin, devices_page)
         .post(
@@ -269,6 +270,27 @@ async fn unlock(
     };
     let key = throttle::account_key(name.as_str());
     lift_lock(&state, &p, &site, &address, key, name.as_str()).await
+}
+
+/// Changes the site's time zone (audited with the zone it was and is).
+async fn set_zone(
+    State(state): State<AppState>,
+    CurrentUser(p): CurrentUser,
+    CurrentSite(site): CurrentSite,
+    ClientAddress(address): ClientAddress,
+    Form(fields): Form<Fields>,
+) -> Result<Response, ApiError> {
+    let zone = match crate::time::day::SiteZone::parse(field(&fields, "time_zone")) {
+        Ok(z) => z,
+        Err(e) => {
+            return render_users(&state, &p, site, StatusCode::BAD_REQUEST, e.to_string()).await;
+        }
+    };
+    let audit = AuditEvent::now(p.actor(), Action::SiteZoneChanged, site.code.as_str())
+        .at_site(site.id)
+        .from_address(&address);
+    state.store.set_site_zone(site.id, zone, audit).await?;
+    Ok(back_to(&site, "users"))
 }
 
 /// Clears the sign-in failures behind one throttling key and audits who did it.
