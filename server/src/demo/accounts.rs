@@ -132,7 +132,7 @@ const DEMO_MINUTES: u32 = 120;
 /// number of tasks of today's list.
 pub async fn todays_list(store: &dyn Store, site: &Site) -> anyhow::Result<usize> {
     use crate::planning::plan::{Capacity, Fill};
-    let day = chrono::Utc::now().date_naive();
+    let day = site.time_zone.today();
     if let Some(list) = store.count_list(site.id, day).await? {
         return Ok(list.tasks.len());
     }

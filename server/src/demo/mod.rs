@@ -14,7 +14,7 @@ use crate::master::{
     BinRecord, ItemRecord, NewBin, NewItem, NewPack, NewSite, PackLevel, Side, SiteCode,
 };
 use crate::store::{Progress, Store};
-use chrono::{NaiveDate, Utc};
+use chrono::NaiveDate;
 use indicatif::{ProgressBar, ProgressStyle};
 use rand::{Rng, SeedableRng};
 use rand_chacha::ChaCha8Rng;
@@ -52,7 +52,11 @@ impl DemoSpec {
             bins: 1_500,
             days: 365,
             seed,
-            end: Utc::now().date_naive().pred_opt().unwrap_or(NaiveDate::MIN),
+            // The demo site keeps UTC days (it is created in UTC).
+            end: crate::time::day::SiteZone::UTC
+                .today()
+                .pred_opt()
+                .unwrap_or(NaiveDate::MIN),
         }
     }
 }

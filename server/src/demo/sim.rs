@@ -100,10 +100,10 @@ impl<'a> World<'a> {
     fn at(&mut self, date: NaiveDate, from_min: u32, to_min: u32) -> i64 {
         let minute = self.rng.random_range(from_min..to_min);
         let second = self.rng.random_range(0..60);
-        date.and_hms_opt(minute / 60, minute % 60, second)
-            .expect("minutes below 24 h make a valid time")
-            .and_utc()
-            .timestamp_millis()
+        // The demo site keeps UTC days.
+        crate::time::day::SiteZone::UTC.start_of(date).0
+            + i64::from(minute) * 60_000
+            + i64::from(second) * 1_000
     }
 
     #[allow(clippy::too_many_arguments)]
