@@ -91,6 +91,77 @@ async fn my_tasks(app: &common::TestApp, code: &str, token: &str) -> (u16, Value
     (a.status, a.json())
 }
 
+/// Posts a receipt of 30 of S1 into A-01-01-1 of site `code`, 30 hours ago.
+async fn stock(app: &common::TestApp, code: &str, admin: &Auth) {
+    let at = (Utc::now() - Duration::hours(30)).to_rfc3339();
+    let a = app
+        .send(
+            Method::POST,
+            &format!("/api/v1/sites/{code}/movements"),
+            admin,
+            Body::Json(json!([common::movement(
+                "r1",
+                "A-01-01-1",
+                "S1",
+                30,
+                "receipt",
+                &at
+            )])),
+        )
+        .await;
+    assert_eq!(a.status, 200, "{}", a.text);
+}
+
+/// Counts `qty` of S1 in A-01-01-1 of site `code` as `user`'s phone, the bin done at
+/// instant `done_ms` (opened two minutes before); every event must be accepted.
+async fn count_at(
+    app: &common::TestApp,
+    code: &str,
+    token: &str,
+    user: &str,
+    done_ms: i64,
+    qty: i64,
+) {
+    let pass = uuid::Uuid::now_v7().to_string();
+    let ev = |t: i64, kind: &str, extra: Value| {
+        let mut e = json!({"id": uuid::Uuid::now_v7().to_string(), "at": t, "user": user,
+                           "count": pass, "task": null, "bin": "A-01-01-1", "type": kind});
+        e.as_object_mut()
+            .unwrap()
+            .extend(extra.as_object().unwrap().clone());
+        e
+    };
+    let mut opened = ev(done_ms - 120_000, "bin_opened", json!({"label": ""}));
+    opened["id"] = json!(pass);
+    let events = vec![
+        opened,
+        ev(
+            done_ms - 60_000,
+            "line",
+            json!({"sku": "S1", "gtin": null, "packs": 1, "qty": qty, "lot": "", "entry": "keypad"}),
+        ),
+        ev(done_ms, "bin_done", json!({})),
+    ];
+    let a = app
+        .send(
+            Method::POST,
+            &format!("/api/v1/sites/{code}/sync"),
+            &Auth::Bearer(token.to_string()),
+            Body::Json(json!({"device_clock": Utc::now().timestamp_millis(), "rtt_ms": 20, "events": events})),
+        )
+        .await;
+    assert_eq!(a.status, 200, "{}", a.text);
+    let v = a.json();
+    assert!(
+        v["results"]
+            .as_array()
+            .unwrap()
+            .iter()
+            .all(|r| r["status"] == "accepted"),
+        "{v}"
+    );
+}
+
 #[tokio::test]
 async fn two_sites_a_day_apart_each_count_on_their_own_day() {
     // Pacific/Kiritimati keeps UTC+14 and Pacific/Pago_Pago UTC−11 all year, with no
@@ -159,23 +230,7 @@ async fn a_count_at_half_past_eleven_at_night_is_recounted_on_that_local_days_li
     let app = spawn_app().await;
     let token = site(&app, "CHI", "America/Chicago", "rosa", None).await;
     let admin = Auth::Bearer(app.issue_token("CHI", "chi-admin", Role::Admin).await);
-    let at = (Utc::now() - Duration::hours(30)).to_rfc3339();
-    let a = app
-        .send(
-            Method::POST,
-            "/api/v1/sites/CHI/movements",
-            &admin,
-            Body::Json(json!([common::movement(
-                "r1",
-                "A-01-01-1",
-                "S1",
-                30,
-                "receipt",
-                &at
-            )])),
-        )
-        .await;
-    assert_eq!(a.status, 200, "{}", a.text);
+    stock(&app, "CHI", &admin).await;
 
     // The last 23:30 in Chicago before now, as an instant.
     let now = Utc::now();
@@ -195,44 +250,7 @@ async fn a_count_at_half_past_eleven_at_night_is_recounted_on_that_local_days_li
 
     // Rosa counts 25 of the 30 between 23:28 and 23:30 local: out of tolerance (S1 is
     // new, so held to class A), and a recount goes on a list.
-    let pass = uuid::Uuid::now_v7().to_string();
-    let ev = |t: i64, kind: &str, extra: Value| {
-        let mut e = json!({"id": uuid::Uuid::now_v7().to_string(), "at": t, "user": "rosa",
-                           "count": pass, "task": null, "bin": "A-01-01-1", "type": kind});
-        e.as_object_mut()
-            .unwrap()
-            .extend(extra.as_object().unwrap().clone());
-        e
-    };
-    let mut opened = ev(x_ms - 120_000, "bin_opened", json!({"label": ""}));
-    opened["id"] = json!(pass);
-    let events = vec![
-        opened,
-        ev(
-            x_ms - 60_000,
-            "line",
-            json!({"sku": "S1", "gtin": null, "packs": 1, "qty": 25, "lot": "", "entry": "keypad"}),
-        ),
-        ev(x_ms, "bin_done", json!({})),
-    ];
-    let a = app
-        .send(
-            Method::POST,
-            "/api/v1/sites/CHI/sync",
-            &Auth::Bearer(token),
-            Body::Json(json!({"device_clock": Utc::now().timestamp_millis(), "rtt_ms": 20, "events": events})),
-        )
-        .await;
-    assert_eq!(a.status, 200, "{}", a.text);
-    assert!(
-        a.json()["results"]
-            .as_array()
-            .unwrap()
-            .iter()
-            .all(|r| r["status"] == "accepted"),
-        "{}",
-        a.text
-    );
+    count_at(&app, "CHI", &token, "rosa", x_ms, 25).await;
     let list = app
         .send(
             Method::GET,
@@ -271,72 +289,28 @@ async fn a_count_at_half_past_eleven_at_night_is_recounted_on_that_local_days_li
 #[tokio::test]
 async fn a_count_just_after_local_midnight_is_in_that_local_days_accuracy() {
     // Asia/Kathmandu keeps UTC+05:45 all year (tz database; no daylight saving since 1986,
-    // from memory; checked with Python 3.11's zoneinfo): 00:01 there is 18:16 UTC the day
-    // before.
+    // from memory; checked with Python 3.11's zoneinfo): 00:03 there is 18:18 UTC the day
+    // before. The pass runs 00:01–00:03 local, wholly inside the local day.
     let app = spawn_app().await;
     let token = site(&app, "KTM", "Asia/Kathmandu", "bina", None).await;
     let admin = Auth::Bearer(app.issue_token("KTM", "ktm-admin", Role::Admin).await);
-    let at = (Utc::now() - Duration::hours(30)).to_rfc3339();
-    let a = app
-        .send(
-            Method::POST,
-            "/api/v1/sites/KTM/movements",
-            &admin,
-            Body::Json(json!([common::movement(
-                "r1",
-                "A-01-01-1",
-                "S1",
-                30,
-                "receipt",
-                &at
-            )])),
-        )
-        .await;
-    assert_eq!(a.status, 200, "{}", a.text);
+    stock(&app, "KTM", &admin).await;
 
     let offset = Duration::minutes(5 * 60 + 45);
     let now = Utc::now();
     let mut day = (now + offset).date_naive();
-    let mut x = day.and_hms_opt(0, 1, 0).unwrap().and_utc() - offset;
-    if x + Duration::minutes(3) > now {
+    let mut x = day.and_hms_opt(0, 3, 0).unwrap().and_utc() - offset;
+    if x + Duration::minutes(1) > now {
         day = day.pred_opt().unwrap();
-        x = day.and_hms_opt(0, 1, 0).unwrap().and_utc() - offset;
+        x = day.and_hms_opt(0, 3, 0).unwrap().and_utc() - offset;
     }
     assert_ne!(
         x.date_naive(),
         day,
-        "00:01 in Kathmandu is still the day before in UTC"
+        "00:03 in Kathmandu is still the day before in UTC"
     );
     let x_ms = x.timestamp_millis();
-    let pass = uuid::Uuid::now_v7().to_string();
-    let ev = |t: i64, kind: &str, extra: Value| {
-        let mut e = json!({"id": uuid::Uuid::now_v7().to_string(), "at": t, "user": "bina",
-                           "count": pass, "task": null, "bin": "A-01-01-1", "type": kind});
-        e.as_object_mut()
-            .unwrap()
-            .extend(extra.as_object().unwrap().clone());
-        e
-    };
-    let mut opened = ev(x_ms - 40_000, "bin_opened", json!({"label": ""}));
-    opened["id"] = json!(pass);
-    let events = vec![
-        opened,
-        ev(
-            x_ms - 20_000,
-            "line",
-            json!({"sku": "S1", "gtin": null, "packs": 1, "qty": 30, "lot": "", "entry": "keypad"}),
-        ),
-        ev(x_ms, "bin_done", json!({})),
-    ];
-    let a = app
-        .send(
-            Method::POST,
-            "/api/v1/sites/KTM/sync",
-            &Auth::Bearer(token),
-            Body::Json(json!({"device_clock": Utc::now().timestamp_millis(), "rtt_ms": 20, "events": events})),
-        )
-        .await;
-    assert_eq!(a.status, 200, "{}", a.text);
+    count_at(&app, "KTM", &token, "bina", x_ms, 30).await;
 
     let counted = |d: NaiveDate| {
         let admin = admin.clone();
