@@ -80,8 +80,12 @@ pub struct WireEvent {
     pub at: i64,
     /// The name of the person who made the event (the one signed in on the phone then):
     /// the server refuses an event whose person is not the one the token belongs to, so
-    /// counts waiting on a shared phone are never credited to the next person.
-    pub user: String,
+    /// counts waiting on a shared phone are never credited to the next person. Absent only
+    /// on events an app made before events named their maker; those are the token's
+    /// person's, as they always were (and their canonical text is unchanged, so a resend
+    /// of one already taken is still a repeat).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub user: Option<String>,
     pub count: String,
     #[serde(default)]
     pub task: Option<i64>,

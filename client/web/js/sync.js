@@ -57,14 +57,15 @@ export async function syncOutbox(progress = () => {}) {
     for (;;) {
       // Only the signed-in person's events: anyone else's wait for them (the sign-in page
       // lets nobody else in while they do). An event from before events named their maker
-      // is the signed-in person's.
+      // goes as it was recorded (the server takes it as the signed-in person's, and a
+      // resend of it stays a repeat).
       const batch = (await db.outboxBatch(MAX_SYNC_EVENTS))
         .filter((e) => (e.user ?? device.user) === device.user);
       if (batch.length === 0) break;
       const body = {
         device_clock: Date.now(),
         rtt_ms: usableRtt(await db.get("rtt_ms")),
-        events: batch.map(({ site: _site, ...e }) => ({ ...e, user: e.user ?? device.user })),
+        events: batch.map(({ site: _site, ...e }) => e),
       };
       let r;
       try {

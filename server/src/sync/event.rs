@@ -34,8 +34,9 @@ pub enum Body {
 pub struct Event {
     pub id: Uuid,
     pub device_at: i64,
-    /// The name of the person the phone says made the event.
-    pub user: String,
+    /// The name of the person the phone says made the event; `None` on an event from an
+    /// app that did not name makers yet (the token's person's).
+    pub user: Option<String>,
     pub pass: Uuid,
     pub task: Option<i64>,
     pub bin: BinCode,
@@ -82,12 +83,15 @@ pub fn read(raw: &serde_json::Value, index: usize) -> Result<Event, EventResult>
     if wire.at <= 0 {
         return Err(refuse(format!("at {} is not a time", wire.at)));
     }
-    let user = wire.user.trim();
-    if user.is_empty() || user.len() > MAX_USER_NAME_BYTES {
-        return Err(refuse(format!(
-            "user: name the person who made the event (1 to {MAX_USER_NAME_BYTES} bytes)"
-        )));
-    }
+    let user = match wire.user.as_deref().map(str::trim) {
+        None => None,
+        Some(u) if !u.is_empty() && u.len() <= MAX_USER_NAME_BYTES => Some(u.to_string()),
+        Some(_) => {
+            return Err(refuse(format!(
+                "user: name the person who made the event (1 to {MAX_USER_NAME_BYTES} bytes)"
+            )));
+        }
+    };
     let body = match wire.body().map_err(refuse)? {
         EventBody::BinOpened { label } => Body::BinOpened { label },
         EventBody::Line(l) => {
@@ -134,7 +138,7 @@ pub fn read(raw: &serde_json::Value, index: usize) -> Result<Event, EventResult>
     Ok(Event {
         id,
         device_at: wire.at,
-        user: user.to_string(),
+        user,
         pass,
         task: wire.task,
         bin,

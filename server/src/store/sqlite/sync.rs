@@ -281,10 +281,13 @@ fn apply_event(
     let Some(bin) = bin else {
         return refuse(format!("no bin {} at this site", event.bin));
     };
-    if event.user != batch.sender.user_name {
+    if let Some(maker) = &event.user
+        && *maker != batch.sender.user_name
+    {
         return refuse(format!(
-            "made by {} on this phone, but {} is signed in now: sign in as {} to send it",
-            event.user, batch.sender.user_name, event.user
+            "made by {maker} on this phone, but {} is signed in now: sign in as {maker} to \
+             send it",
+            batch.sender.user_name
         ));
     }
     let mut flags = Vec::new();
@@ -539,7 +542,7 @@ fn apply_event(
         uncertainty,
         flag_text(&flags),
         batch.received_at.0,
-        event.user
+        event.user.as_deref().unwrap_or(&batch.sender.user_name)
     ])?;
     Ok((flags, pass_id))
 }
