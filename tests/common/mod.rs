@@ -443,16 +443,6 @@ impl TestApp {
         a
     }
 
-    /// Returns the sign-in name of the person a phone enrolled through `enrol` belongs to.
-    pub fn phone_user(&self, token: &str) -> String {
-        self.phones
-            .lock()
-            .expect("the phone map is never poisoned")
-            .get(token)
-            .cloned()
-            .unwrap_or_else(|| panic!("no phone was enrolled with token {token}"))
-    }
-
     /// Says on each event that `token`'s person made it, where the event does not say
     /// (events sent with a token `enrol` did not give are left as they are).
     pub fn made_by(&self, token: &str, events: Vec<Value>) -> Vec<Value> {

@@ -39,13 +39,19 @@ impl ClockSample {
     /// Converts a device reading to server time with its uncertainty: the sample's own,
     /// plus the drift allowed for the time between the reading and the sample.
     pub fn correct(&self, device_at: i64) -> (Timestamp, i64) {
-        let apart = device_at.abs_diff(self.device_clock).min(i64::MAX as u64) as i64;
-        let drift = apart.saturating_mul(DRIFT_PPM).saturating_add(999_999) / 1_000_000;
         (
             Timestamp(device_at.saturating_add(self.offset_ms)),
-            self.uncertainty_ms.saturating_add(drift),
+            self.uncertainty_ms
+                .saturating_add(drift_ms(device_at, self.device_clock)),
         )
     }
+}
+
+/// Returns the drift allowed between two readings of a clock `a` and `b` ms apart: DRIFT_PPM
+/// of the time between them, rounded up.
+pub fn drift_ms(a: i64, b: i64) -> i64 {
+    let apart = a.abs_diff(b).min(i64::MAX as u64) as i64;
+    apart.saturating_mul(DRIFT_PPM).saturating_add(999_999) / 1_000_000
 }
 
 #[cfg(test)]

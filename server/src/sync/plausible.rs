@@ -18,7 +18,7 @@
 //!   and drift allow ([`clock_step`]), or when its first scan and its bin-done lie more
 //!   than [`MAX_PASS_SPAN_MS`] apart.
 
-use super::clock::{ClockSample, DRIFT_PPM};
+use super::clock::{ClockSample, drift_ms};
 use crate::time::Timestamp;
 
 /// Largest distance between a request's `device_clock` and the server's clock, in ms: a
@@ -147,8 +147,7 @@ impl Sampled {
 /// in ms) when that is more than both uncertainties, the drift allowed between them and
 /// [`CLOCK_STEP_SLACK_MS`]; `None` when the two agree.
 pub fn clock_step(earlier: Sampled, later: Sampled) -> Option<i64> {
-    let apart = later.at.0.abs_diff(earlier.at.0).min(i64::MAX as u64) as i64;
-    let drift = apart.saturating_mul(DRIFT_PPM).saturating_add(999_999) / 1_000_000;
+    let drift = drift_ms(later.at.0, earlier.at.0);
     let allowed = earlier
         .uncertainty_ms
         .max(0)

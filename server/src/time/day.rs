@@ -9,7 +9,7 @@
 //! the few zones whose clocks skip midnight itself, that is the end of the gap).
 
 use super::Timestamp;
-use chrono::{Datelike, NaiveDate, NaiveDateTime, NaiveTime, Offset, TimeZone, Utc};
+use chrono::{NaiveDate, NaiveDateTime, NaiveTime, TimeZone, Utc};
 use chrono_tz::Tz;
 use std::fmt;
 use std::str::FromStr;
@@ -82,25 +82,19 @@ impl SiteZone {
 
     /// Returns the first instant whose local date at this site is `day`.
     pub fn start_of(&self, day: NaiveDate) -> Timestamp {
-        let midnight = NaiveDateTime::new(day, NaiveTime::MIN);
-        // Ambiguous midnights take the earlier instant; a midnight in a gap takes the
-        // first local minute after the gap.
-        for minute in 0..=MAX_GAP_MINUTES {
-            let local = midnight + chrono::Duration::minutes(minute);
-            if let Some(at) = self.0.from_local_datetime(&local).earliest() {
-                return Timestamp(at.with_timezone(&Utc).timestamp_millis());
-            }
-        }
-        unreachable!("no zone skips more than MAX_GAP_MINUTES of local time")
+        self.first_at(NaiveDateTime::new(day, NaiveTime::MIN))
     }
 
     /// Returns the first instant at or after `hour`:00 local time on `day` (on a night
     /// whose clocks skip that hour, the end of the gap; on one that repeats it, the first).
     pub fn at_local(&self, day: NaiveDate, hour: u32) -> Timestamp {
-        let Some(time) = NaiveTime::from_hms_opt(hour.min(23), 0, 0) else {
-            return self.start_of(day);
-        };
-        let local = NaiveDateTime::new(day, time);
+        let time = NaiveTime::from_hms_opt(hour.min(23), 0, 0).unwrap_or(NaiveTime::MIN);
+        self.first_at(NaiveDateTime::new(day, time))
+    }
+
+    /// Returns the first instant at or after local time `local`: an ambiguous time takes
+    /// the earlier instant, a time in a gap the first local minute after the gap.
+    fn first_at(&self, local: NaiveDateTime) -> Timestamp {
         for minute in 0..=MAX_GAP_MINUTES {
             let t = local + chrono::Duration::minutes(minute);
             if let Some(at) = self.0.from_local_datetime(&t).earliest() {
@@ -120,14 +114,6 @@ impl SiteZone {
     pub fn abbreviation(&self, at: Timestamp) -> String {
         at.to_utc().with_timezone(&self.0).format("%Z").to_string()
     }
-
-    /// Returns the zone's offset from UTC at `at`, in seconds east.
-    pub fn offset_s(&self, at: Timestamp) -> i32 {
-        self.0
-            .offset_from_utc_datetime(&at.to_utc().naive_utc())
-            .fix()
-            .local_minus_utc()
-    }
 }
 
 impl serde::Serialize for SiteZone {
@@ -139,40 +125,6 @@ impl serde::Serialize for SiteZone {
 impl fmt::Display for SiteZone {
     fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
         f.write_str(self.name())
-    }
-}
-
-/// A local date at a site.
-#[derive(Debug, Clone, Copy, PartialEq, Eq)]
-pub struct SiteDay {
-    pub zone: SiteZone,
-    pub date: NaiveDate,
-}
-
-impl SiteDay {
-    /// Returns the site's local day at instant `at`.
-    pub fn of(zone: SiteZone, at: Timestamp) -> Self {
-        Self {
-            zone,
-            date: zone.day_of(at),
-        }
-    }
-
-    /// Returns the instants `[start, end)` the day spans.
-    pub fn range(&self) -> (Timestamp, Timestamp) {
-        self.zone.range(self.date)
-    }
-
-    /// Returns the length of the day in hours (23, 24 or 25 on most zones' DST days).
-    pub fn hours(&self) -> f64 {
-        let (start, end) = self.range();
-        (end.0 - start.0) as f64 / 3_600_000.0
-    }
-
-    /// Returns the Monday that starts the day's ISO week, a local date.
-    pub fn week_monday(&self) -> NaiveDate {
-        let back = self.date.weekday().num_days_from_monday();
-        self.date - chrono::Duration::days(i64::from(back))
     }
 }
 
@@ -226,6 +178,7 @@ impl Daily {
 #[cfg(test)]
 mod tests {
     use super::*;
+    use chrono::Datelike;
     use proptest::prelude::*;
 
     fn zone(name: &str) -> SiteZone {
@@ -276,28 +229,17 @@ mod tests {
         // Every boundary below was checked against Python 3.11's zoneinfo (an independent
         // reader of the system's tz database) on 2026-12-04.
         let z = zone("America/Chicago");
-        let spring = SiteDay {
-            zone: z,
-            date: date(2026, 3, 8),
+        let hours = |d: NaiveDate| {
+            let (start, end) = z.range(d);
+            (end.0 - start.0) as f64 / 3_600_000.0
         };
-        assert_eq!(spring.hours(), 23.0);
-        assert_eq!(spring.range().0, utc("2026-03-08T06:00:00Z"));
-        assert_eq!(spring.range().1, utc("2026-03-09T05:00:00Z"));
-        let fall = SiteDay {
-            zone: z,
-            date: date(2026, 11, 1),
-        };
-        assert_eq!(fall.hours(), 25.0);
-        assert_eq!(fall.range().0, utc("2026-11-01T05:00:00Z"));
-        assert_eq!(fall.range().1, utc("2026-11-02T06:00:00Z"));
-        assert_eq!(
-            SiteDay {
-                zone: z,
-                date: date(2026, 6, 1)
-            }
-            .hours(),
-            24.0
-        );
+        assert_eq!(hours(date(2026, 3, 8)), 23.0);
+        assert_eq!(z.range(date(2026, 3, 8)).0, utc("2026-03-08T06:00:00Z"));
+        assert_eq!(z.range(date(2026, 3, 8)).1, utc("2026-03-09T05:00:00Z"));
+        assert_eq!(hours(date(2026, 11, 1)), 25.0);
+        assert_eq!(z.range(date(2026, 11, 1)).0, utc("2026-11-01T05:00:00Z"));
+        assert_eq!(z.range(date(2026, 11, 1)).1, utc("2026-11-02T06:00:00Z"));
+        assert_eq!(hours(date(2026, 6, 1)), 24.0);
         // A count at 23:30 local on the fall-back day is on that day, not the next UTC one.
         let late = utc("2026-11-02T05:30:00Z");
         assert_eq!(z.day_of(late), date(2026, 11, 1));
@@ -310,16 +252,21 @@ mod tests {
         // Asia/Kathmandu is UTC+05:45 and Asia/Kolkata UTC+05:30 all year (tz database;
         // the day starts checked against Python 3.11's zoneinfo).
         let k = zone("Asia/Kathmandu");
-        assert_eq!(k.offset_s(utc("2026-12-04T00:00:00Z")), 5 * 3_600 + 45 * 60);
+        // 18:14:59Z is 23:59:59 local, 18:15Z midnight: an offset of 05:45.
+        assert_eq!(k.day_of(utc("2026-12-06T18:14:59Z")), date(2026, 12, 6));
         assert_eq!(k.range(date(2026, 12, 7)).0, utc("2026-12-06T18:15:00Z"));
         let i = zone("Asia/Kolkata");
         assert_eq!(i.range(date(2026, 12, 7)).0, utc("2026-12-06T18:30:00Z"));
         // A Monday at 03:00 local in Kathmandu is still Sunday in UTC; its week starts
         // on that local Monday.
         let monday_early = utc("2026-12-06T21:15:00Z");
-        let d = SiteDay::of(k, monday_early);
-        assert_eq!(d.date, date(2026, 12, 7));
-        assert_eq!(d.week_monday(), date(2026, 12, 7));
+        let d = k.day_of(monday_early);
+        assert_eq!(d, date(2026, 12, 7));
+        assert_eq!(
+            d.weekday(),
+            chrono::Weekday::Mon,
+            "the local day starts an ISO week"
+        );
     }
 
     #[test]
