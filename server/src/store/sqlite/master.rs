@@ -19,18 +19,19 @@ fn site_from_row(r: &rusqlite::Row<'_>) -> rusqlite::Result<(i64, String, String
 fn to_site((id, code, name, time_zone): (i64, String, String, String)) -> Result<Site, StoreError> {
     let code =
         SiteCode::parse(&code).map_err(|e| anyhow::anyhow!("stored site code is invalid: {e}"))?;
-    // Sites made before zones were checked may hold any text: they keep UTC days, as they
-    // always had, and the log says so.
-    let time_zone = SiteZone::parse(&time_zone).unwrap_or_else(|e| {
-        tracing::warn!(site = %code, "{e}; the site keeps UTC days");
-        SiteZone::UTC
-    });
     Ok(Site {
         id: SiteId(id),
         code,
         name,
-        time_zone,
+        time_zone: stored_zone(&time_zone),
     })
+}
+
+/// Reads a stored zone name. Sites made before zones were checked may hold any text: they
+/// keep UTC days, as they always had, until `cairn site zone` sets a real zone. (Read on
+/// every request, so it does not log.)
+fn stored_zone(name: &str) -> SiteZone {
+    SiteZone::parse(name).unwrap_or(SiteZone::UTC)
 }
 
 /// Reads a site's zone (UTC for a stored name the tz database does not know).
@@ -38,7 +39,7 @@ pub fn site_zone(conn: &Connection, site: SiteId) -> Result<SiteZone, StoreError
     let name: String = conn
         .prepare_cached("select time_zone from site where id = ?1")?
         .query_row([site.0], |r| r.get(0))?;
-    Ok(SiteZone::parse(&name).unwrap_or(SiteZone::UTC))
+    Ok(stored_zone(&name))
 }
 
 /// Sets a site's time zone; returns the name it had.
