@@ -553,15 +553,11 @@ pub async fn buffer_reports(
     let end = window.zone.range(window.until).1;
     // Each local day of the window, by its first instant: the store sums picks per day
     // between these bounds and computes no dates itself.
-    let mut days = Vec::new();
-    let mut d = from;
-    while d <= window.until {
-        days.push((d, window.zone.start_of(d)));
-        d = d.succ_opt().unwrap_or(NaiveDate::MAX);
-        if d == NaiveDate::MAX {
-            break;
-        }
-    }
+    let days = from
+        .iter_days()
+        .take_while(|d| *d <= window.until)
+        .map(|d| (d, window.zone.start_of(d)))
+        .collect();
     let mut issues: HashMap<String, Vec<(NaiveDate, i64)>> = HashMap::new();
     for i in store.daily_issues(site.id, days, end, sku.clone()).await? {
         issues.entry(i.sku).or_default().push((i.day, i.issued));
