@@ -720,22 +720,8 @@ fn breaches(planning: &Value, netting: &Value) -> Vec<Breach> {
 async fn every_input_hygiene_breach_is_refused_naming_the_field_and_writes_nothing() {
     let app = spawn_app().await;
     app.small_site().await;
-    app.add_user(
-        "cora",
-        "T",
-        &[Role::Counter],
-        "test-only-password",
-        Some("4821"),
-    )
-    .await;
     // A stored list, so the run routes reach their checks.
-    let (s, b) = app
-        .post(
-            &format!("{P}/count-lists"),
-            &json!({"day": "2026-03-03", "counters": 1, "minutes": 60}),
-        )
-        .await;
-    assert_eq!(s, 200, "{b}");
+    app.cora_and_a_list(1).await;
     let (_, planning) = app.get(&format!("{P}/planning/settings")).await;
     let (_, netting) = app.get(&format!("{P}/netting/settings")).await;
     let before = common::table_contents(&app.db);
@@ -786,21 +772,7 @@ fn strings_of(v: &Value) -> Vec<String> {
 async fn a_run_goes_only_to_a_counter_of_the_site_and_keeps_their_tasks_visible() {
     let app = spawn_app().await;
     app.site_with_triggers().await;
-    app.add_user(
-        "cora",
-        "T",
-        &[Role::Counter],
-        "test-only-password",
-        Some("4821"),
-    )
-    .await;
-    let (s, b) = app
-        .post(
-            &format!("{P}/count-lists"),
-            &json!({"day": "2026-03-03", "counters": 1, "minutes": 60}),
-        )
-        .await;
-    assert_eq!(s, 200, "{b}");
+    app.cora_and_a_list(1).await;
     let run = format!("{P}/count-lists/2026-03-03/runs/1");
     let (s, b) = app.put(&run, &json!({"holder": "CORA"})).await;
     assert_eq!(s, 200, "{b}");

@@ -4,7 +4,6 @@
 
 mod common;
 
-use cairn::accounts::Role;
 use common::spawn_app;
 use proptest::prelude::*;
 use proptest::test_runner::{Config, TestCaseError, TestRunner};
@@ -391,21 +390,7 @@ fn arbitrary_json_on_every_write_route_is_never_a_server_error_and_a_refusal_cha
     let (app, phone, stored) = rt.block_on(async {
         let app = spawn_app().await;
         app.site_with_triggers().await;
-        app.add_user(
-            "cora",
-            "T",
-            &[Role::Counter],
-            "test-only-password",
-            Some("4821"),
-        )
-        .await;
-        let (s, b) = app
-            .post(
-                &format!("{P}/count-lists"),
-                &json!({"day": "2026-03-03", "counters": 2, "minutes": 60}),
-            )
-            .await;
-        assert_eq!(s, 200, "{b}");
+        app.cora_and_a_list(2).await;
         let phone = app.phone("cora", "4821").await;
         let (_, planning) = app.get(&format!("{P}/planning/settings")).await;
         let (_, netting) = app.get(&format!("{P}/netting/settings")).await;

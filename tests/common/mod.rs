@@ -539,6 +539,20 @@ impl TestApp {
         assert_eq!(s, 200, "{b}");
     }
 
+    /// Adds counter cora (PIN 4821) to site T and stores the list of 2026-03-03 with
+    /// `counters` runs, so run and phone routes reach their checks.
+    pub async fn cora_and_a_list(&self, counters: u32) {
+        self.add_user("cora", "T", &[Role::Counter], PASSWORD, Some("4821"))
+            .await;
+        let (s, b) = self
+            .post(
+                "/api/v1/sites/T/count-lists",
+                &json!({"day": "2026-03-03", "counters": counters, "minutes": 60}),
+            )
+            .await;
+        assert_eq!(s, 200, "{b}");
+    }
+
     /// Creates site T (as `small_site`) with a negative balance on A-01-01-1 and a short pick reported on A-01-02-1.
     pub async fn site_with_triggers(&self) {
         self.small_site().await;
