@@ -91,7 +91,7 @@ enum Command {
         db: PathBuf,
         #[arg(long)]
         site: String,
-        /// The day, YYYY-MM-DD (default: today, UTC).
+        /// The day, YYYY-MM-DD (default: today at the site, in its time zone).
         #[arg(long)]
         date: Option<chrono::NaiveDate>,
         #[arg(long, default_value_t = 2)]
@@ -120,8 +120,8 @@ enum Command {
         /// First day, YYYY-MM-DD (accuracy: default 90 days before --until).
         #[arg(long)]
         since: Option<chrono::NaiveDate>,
-        /// Last day, YYYY-MM-DD (accuracy: default today; buffer: the last day of demand,
-        /// default yesterday, UTC).
+        /// Last day, YYYY-MM-DD, a local day at the site (accuracy: default today; buffer:
+        /// the last day of demand, default yesterday).
         #[arg(long)]
         until: Option<chrono::NaiveDate>,
         #[arg(long, value_enum, default_value_t = PlanFormat::Text)]

@@ -57,9 +57,9 @@ fn field<'a>(fields: &'a Fields, name: &str) -> &'a str {
         .map_or("", |(_, v)| v.trim())
 }
 
-/// Writes an instant for people: `2026-03-03 09:00:05 UTC`.
-fn when(t: Timestamp) -> String {
-    t.to_utc().format("%Y-%m-%d %H:%M:%S UTC").to_string()
+/// Writes an instant for people in the site's local time: `2026-03-03 03:00:05 CST`.
+fn when(site: &Site, t: Timestamp) -> String {
+    site.time_zone.local_time(&t)
 }
 
 /// Writes an age as hours or days.
@@ -125,7 +125,7 @@ struct ListRow {
     recount_pending: bool,
 }
 
-fn list_row(r: &DifferenceRow, policy: &ReviewPolicy, now: Timestamp) -> ListRow {
+fn list_row(site: &Site, r: &DifferenceRow, policy: &ReviewPolicy, now: Timestamp) -> ListRow {
     let settled = is_settled(r.settled, r.settles_at, now);
     ListRow {
         id: r.id,
@@ -142,7 +142,7 @@ fn list_row(r: &DifferenceRow, policy: &ReviewPolicy, now: Timestamp) -> ListRow
         age: age(r.counted_at, now),
         counter: r.counter.clone(),
         settled,
-        settles_at: when(r.settles_at),
+        settles_at: when(site, r.settles_at),
         bulk: settled && r.recount != "pending" && r.value_minor < policy.bulk_value_minor,
         needs_manager: r.value_minor > policy.manager_value_minor,
         recount: match r.recount.as_str() {
@@ -298,7 +298,10 @@ async fn render_list(
         outcomes: showing.outcomes,
         form: FilterForm::of(params),
         full: rows.len() >= MAX_LIST_ROWS,
-        rows: rows.iter().map(|r| list_row(r, &policy, now)).collect(),
+        rows: rows
+            .iter()
+            .map(|r| list_row(&site, r, &policy, now))
+            .collect(),
         zones,
         reasons: state.store.review_reasons(site.id).await?,
         bulk_limit: money(policy.bulk_value_minor),
@@ -547,7 +550,7 @@ async fn render_detail(
                     qty: s.qty,
                     at: s
                         .at
-                        .map_or_else(|| "opening, before the window".into(), when),
+                        .map_or_else(|| "opening, before the window".into(), |t| when(&site, t)),
                     moves: s
                         .moves
                         .iter()
@@ -583,6 +586,7 @@ async fn render_detail(
                 qty: s.qty,
             })
             .collect(),
+        zone: site.time_zone,
     }
     .svg();
     let me = Me::of(p);
@@ -597,18 +601,22 @@ async fn render_detail(
         me: Some(me),
         message: showing.message,
         done: showing.done,
-        row: list_row(&d.row, &policy, now),
+        row: list_row(&site, &d.row, &policy, now),
         status: status_words(&d.row.status),
         verdict: status_words(&d.verdict),
         superseded_by: d.superseded_by,
-        window: format!("{} to {}", when(d.window_start), when(d.window_end)),
+        window: format!(
+            "{} to {}",
+            when(&site, d.window_start),
+            when(&site, d.window_end)
+        ),
         counter_name: d.counter_name.clone(),
-        counted_from: when(d.pass_first_at),
+        counted_from: when(&site, d.pass_first_at),
         counted_to: d
             .pass_done_at
-            .map_or_else(|| "not marked done".into(), when),
+            .map_or_else(|| "not marked done".into(), |t| when(&site, t)),
         uncertainty_ms: d.pass_uncertainty_ms,
-        computed_at: when(d.computed_at),
+        computed_at: when(&site, d.computed_at),
         watermark: d.watermark,
         states,
         evidence_error,
@@ -622,8 +630,8 @@ async fn render_detail(
                 kind: status_words(&m.kind),
                 source: m.source.clone(),
                 qty: signed(m.qty),
-                event_at: when(m.event_at),
-                recorded_at: when(m.recorded_at),
+                event_at: when(&site, m.event_at),
+                recorded_at: when(&site, m.recorded_at),
                 uncertainty_ms: m.uncertainty_ms,
                 place: place_word(place(m)),
             })
@@ -631,7 +639,7 @@ async fn render_detail(
         scans: d
             .scans
             .iter()
-            .map(|s| (when(s.at), s.qty, s.packs, s.entry.clone()))
+            .map(|s| (when(&site, s.at), s.qty, s.packs, s.entry.clone()))
             .collect(),
         history: d
             .history
@@ -654,7 +662,7 @@ async fn render_detail(
                 variance: signed(h.variance),
                 verdict: status_words(&h.verdict),
                 renet_reason: h.renet_reason.clone(),
-                computed_at: when(h.computed_at),
+                computed_at: when(&site, h.computed_at),
                 watermark: h.watermark,
                 current: h.id == d.row.id,
             })
@@ -665,14 +673,14 @@ async fn render_detail(
             reason: r.reason_code.clone(),
             note: r.note.clone(),
             by: r.decided_by.clone(),
-            at: when(r.decided_at),
+            at: when(&site, r.decided_at),
             movement: r.movement.clone().unwrap_or_default(),
         }),
         automatic: d.automatic.as_ref().map(|a| AutoShown {
             id: a.id,
             qty: signed(a.qty),
-            event_at: when(a.event_at),
-            posted_at: when(a.posted_at),
+            event_at: when(&site, a.event_at),
+            posted_at: when(&site, a.posted_at),
             movement: a.movement.clone(),
             reason: super::AUTO_REASON,
         }),

@@ -4,6 +4,7 @@
 //! as dots with their quantities. Pure text building, no I/O.
 
 use crate::time::Timestamp;
+use crate::time::day::SiteZone;
 use std::fmt::Write as _;
 
 /// Width and height of the drawing, in SVG units.
@@ -42,6 +43,8 @@ pub struct Timeline {
     pub window_end: Timestamp,
     pub moves: Vec<Move>,
     pub scans: Vec<Scan>,
+    /// The site's zone: labels and tooltips read in its local time.
+    pub zone: SiteZone,
 }
 
 fn escape(text: &str) -> String {
@@ -57,11 +60,6 @@ fn escape(text: &str) -> String {
         }
     }
     out
-}
-
-/// Writes an instant as the axis labels show it: `HH:MM:SS` UTC.
-fn clock(t: Timestamp) -> String {
-    t.to_utc().format("%H:%M:%S").to_string()
 }
 
 fn signed(n: i64) -> String {
@@ -92,25 +90,28 @@ impl Timeline {
 
     /// Draws the timeline as an SVG element.
     pub fn svg(&self) -> String {
+        let clock = |t: Timestamp| self.zone.clock(&t);
+        let when = |t: Timestamp| self.zone.local_time(&t);
         let (lo, hi) = self.range();
         let span = (hi - lo).max(1) as f64;
         let x = |t: i64| MARGIN + (t.saturating_sub(lo)) as f64 / span * (WIDTH - 2.0 * MARGIN);
         let mut s = String::new();
         let _ = write!(
             s,
-            r#"<svg class="timeline" xmlns="http://www.w3.org/2000/svg" viewBox="0 0 {WIDTH} {HEIGHT}" role="img" aria-label="Count window from {} to {} UTC with {} movement(s) and {} scan(s)">"#,
+            r#"<svg class="timeline" xmlns="http://www.w3.org/2000/svg" viewBox="0 0 {WIDTH} {HEIGHT}" role="img" aria-label="Count window from {} to {} {} with {} movement(s) and {} scan(s)">"#,
             clock(self.window_start),
             clock(self.window_end),
+            self.zone.abbreviation(self.window_end),
             self.moves.len().min(MAX_MARKS),
             self.scans.len()
         );
         let (ws, we) = (x(self.window_start.0), x(self.window_end.0));
         let _ = write!(
             s,
-            r#"<rect class="window" x="{ws:.1}" y="24" width="{:.1}" height="120"><title>count window {} – {} UTC</title></rect>"#,
+            r#"<rect class="window" x="{ws:.1}" y="24" width="{:.1}" height="120"><title>count window {} – {}</title></rect>"#,
             (we - ws).max(1.0),
-            self.window_start,
-            self.window_end
+            when(self.window_start),
+            when(self.window_end)
         );
         let _ = write!(
             s,
@@ -131,7 +132,7 @@ impl Timeline {
                 m.delta,
                 escape(&m.what),
                 signed(m.delta),
-                m.at,
+                when(m.at),
                 if u > 0 {
                     format!(" ± {u} ms")
                 } else {
@@ -161,7 +162,7 @@ impl Timeline {
                 r#"<g class="scan" data-qty="{}"><title>scan of {} at {}</title><circle cx="{sx:.1}" cy="{}" r="5"/><text x="{sx:.1}" y="{}" text-anchor="middle">{}</text></g>"#,
                 sc.qty,
                 sc.qty,
-                sc.at,
+                when(sc.at),
                 AXIS_Y + 18.0,
                 AXIS_Y + 38.0,
                 sc.qty
@@ -207,6 +208,7 @@ mod tests {
                 at: Timestamp(100_000),
                 qty: 12,
             }],
+            zone: SiteZone::UTC,
         }
     }
 
@@ -256,5 +258,22 @@ mod tests {
         assert!(svg.starts_with("<svg") && svg.ends_with("</svg>"));
         assert!(svg.contains("class=\"window\""));
         assert_eq!(svg.matches("class=\"move").count(), 0);
+    }
+
+    #[test]
+    fn labels_read_in_the_site_local_time() {
+        // 1970-01-01 00:01 UTC was 18:01 the day before in Chicago (CST, UTC-6; tz database).
+        let t = Timeline {
+            zone: SiteZone::parse("America/Chicago").unwrap(),
+            ..timeline()
+        };
+        let svg = t.svg();
+        assert!(svg.contains(">18:01:00</text>"), "{svg}");
+        assert!(svg.contains("18:02:00 CST with"), "{svg}");
+        assert!(
+            svg.contains("scan of 12 at 1969-12-31 18:01:40 CST"),
+            "{svg}"
+        );
+        assert!(!svg.contains("UTC"), "{svg}");
     }
 }

@@ -114,6 +114,24 @@ impl SiteZone {
     pub fn abbreviation(&self, at: Timestamp) -> String {
         at.to_utc().with_timezone(&self.0).format("%Z").to_string()
     }
+
+    /// Writes instant `at` for people as the site's clocks showed it, with the zone's
+    /// abbreviation: `2026-03-08 01:59:59 CST`. Pages use this; the API keeps UTC.
+    pub fn local_time(&self, at: &Timestamp) -> String {
+        at.to_utc()
+            .with_timezone(&self.0)
+            .format("%Y-%m-%d %H:%M:%S %Z")
+            .to_string()
+    }
+
+    /// Writes the local time of day at `at`, `HH:MM:SS`, for axis labels whose zone is
+    /// named once beside them.
+    pub fn clock(&self, at: &Timestamp) -> String {
+        at.to_utc()
+            .with_timezone(&self.0)
+            .format("%H:%M:%S")
+            .to_string()
+    }
 }
 
 impl serde::Serialize for SiteZone {
@@ -245,6 +263,26 @@ mod tests {
         assert_eq!(z.day_of(late), date(2026, 11, 1));
         assert_eq!(z.abbreviation(utc("2026-07-01T12:00:00Z")), "CDT");
         assert_eq!(z.abbreviation(utc("2026-12-01T12:00:00Z")), "CST");
+        // The last second before the spring-forward jump and the first after it
+        // (tz database: 2026-03-08 02:00 CST becomes 03:00 CDT).
+        assert_eq!(
+            z.local_time(&utc("2026-03-08T07:59:59Z")),
+            "2026-03-08 01:59:59 CST"
+        );
+        assert_eq!(
+            z.local_time(&utc("2026-03-08T08:00:00Z")),
+            "2026-03-08 03:00:00 CDT"
+        );
+        // The repeated hour on the fall-back night reads twice, told apart by its zone.
+        assert_eq!(
+            z.local_time(&utc("2026-11-01T06:30:00Z")),
+            "2026-11-01 01:30:00 CDT"
+        );
+        assert_eq!(
+            z.local_time(&utc("2026-11-01T07:30:00Z")),
+            "2026-11-01 01:30:00 CST"
+        );
+        assert_eq!(z.clock(&utc("2026-11-01T07:30:00Z")), "01:30:00");
     }
 
     #[test]
