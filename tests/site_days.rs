@@ -284,6 +284,57 @@ async fn a_count_at_half_past_eleven_at_night_is_recounted_on_that_local_days_li
         "nothing on the UTC day's list: {}",
         other.text
     );
+
+    // The difference's page reads in Chicago's clock with its zone: the bin was done at
+    // 23:30 local (the phone's times corrected by its clock, so a second either way), and
+    // no time on the page is in UTC.
+    app.add_user(
+        "chi-boss",
+        "CHI",
+        &[Role::InventoryManager],
+        common::PASSWORD,
+        None,
+    )
+    .await;
+    let boss = Auth::Session(app.sign_in("chi-boss", common::PASSWORD).await);
+    let r = app
+        .send(
+            Method::GET,
+            "/api/v1/sites/CHI/count-results?state=current",
+            &admin,
+            Body::Empty,
+        )
+        .await;
+    assert_eq!(r.status, 200, "{}", r.text);
+    let v = r.json();
+    let id = v["results"][0]["id"]
+        .as_i64()
+        .unwrap_or_else(|| panic!("{v}"));
+    let page = app
+        .send(
+            Method::GET,
+            &format!("/sites/CHI/differences/{id}"),
+            &boss,
+            Body::Empty,
+        )
+        .await;
+    assert_eq!(page.status, 200, "{}", page.text);
+    let abbreviation = if chicago_offset_h(x) == -5 {
+        "CDT"
+    } else {
+        "CST"
+    };
+    let done = [
+        format!("{local_day} 23:29:59 {abbreviation}"),
+        format!("{local_day} 23:30:00 {abbreviation}"),
+        format!("{local_day} 23:30:01 {abbreviation}"),
+    ];
+    assert!(
+        done.iter().any(|t| page.text.contains(t)),
+        "one of {done:?} in {}",
+        page.text
+    );
+    assert!(!page.text.contains(" UTC"), "{}", page.text);
 }
 
 #[tokio::test]
@@ -338,4 +389,234 @@ async fn a_count_just_after_local_midnight_is_in_that_local_days_accuracy() {
         0,
         "not in the UTC day before"
     );
+}
+
+/// Applies one pass of `qty` of S1 in A-01-01-1 at site `code` as `user`, the bin done at
+/// `done`, through the store's sync path as it would have run on a server whose clock
+/// read `done` plus five seconds (a past week cannot be counted over HTTP today: the
+/// server refuses counts more than 72 hours old).
+async fn count_back_then(
+    app: &common::TestApp,
+    code: &str,
+    user: &str,
+    done: chrono::DateTime<Utc>,
+    qty: i64,
+) {
+    use cairn::master::SiteCode;
+    use cairn::sync::{Sender, SyncBatch, clock::ClockSample, event};
+    use cairn::time::Timestamp;
+    let site = app
+        .state
+        .store
+        .site(&SiteCode::parse(code).unwrap())
+        .await
+        .unwrap()
+        .unwrap();
+    let who = app
+        .state
+        .store
+        .user(&cairn::accounts::UserName::parse(user).unwrap())
+        .await
+        .unwrap()
+        .unwrap();
+    let done_ms = done.timestamp_millis();
+    let pass = uuid::Uuid::now_v7().to_string();
+    let ev = |t: i64, kind: &str, extra: Value| {
+        let mut e = json!({"id": uuid::Uuid::now_v7().to_string(), "at": t, "user": user,
+                           "count": pass, "task": null, "bin": "A-01-01-1", "type": kind});
+        e.as_object_mut()
+            .unwrap()
+            .extend(extra.as_object().unwrap().clone());
+        e
+    };
+    let mut opened = ev(done_ms - 120_000, "bin_opened", json!({"label": ""}));
+    opened["id"] = json!(pass);
+    let raw = [
+        opened,
+        ev(
+            done_ms - 60_000,
+            "line",
+            json!({"sku": "S1", "gtin": null, "packs": 1, "qty": qty, "lot": "", "entry": "keypad"}),
+        ),
+        ev(done_ms, "bin_done", json!({})),
+    ];
+    let received_at = Timestamp(done_ms + 5_000);
+    let results = app
+        .state
+        .store
+        .apply_sync(SyncBatch {
+            site: site.id,
+            site_code: code.to_string(),
+            zone: site.time_zone,
+            sender: Sender {
+                user: who.id,
+                user_name: user.to_string(),
+                device: None,
+            },
+            clock: ClockSample::measure(received_at, received_at.0, Some(20)),
+            received_at,
+            events: raw
+                .iter()
+                .enumerate()
+                .map(|(i, e)| event::read(e, i))
+                .collect(),
+        })
+        .await
+        .unwrap();
+    assert!(
+        results
+            .iter()
+            .all(|r| format!("{:?}", r.status).to_lowercase() == "accepted"),
+        "{results:?}"
+    );
+}
+
+#[tokio::test]
+async fn accuracy_weeks_start_on_the_local_monday_in_kathmandu() {
+    // Asia/Kathmandu is UTC+05:45 (tz database; checked with Python 3.11's zoneinfo):
+    // Monday 2026-11-30 00:03 there is Sunday 2026-11-29 18:18 UTC, and Sunday 23:50 there
+    // is 18:05 UTC the same Sunday. ISO 8601 weeks start on Monday: 2026-11-23..29 is week
+    // 48 and 2026-11-30..12-06 week 49 (1 January 2026 is a Thursday).
+    let app = spawn_app().await;
+    site(&app, "KTM", "Asia/Kathmandu", "bina", None).await;
+    let admin = Auth::Bearer(app.issue_token("KTM", "ktm-admin", Role::Admin).await);
+    let a = app
+        .send(
+            Method::POST,
+            "/api/v1/sites/KTM/movements",
+            &admin,
+            Body::Json(json!([common::movement(
+                "r1",
+                "A-01-01-1",
+                "S1",
+                30,
+                "receipt",
+                "2026-11-20T04:00:00Z"
+            )])),
+        )
+        .await;
+    assert_eq!(a.status, 200, "{}", a.text);
+    let utc = |s: &str| s.parse::<chrono::DateTime<Utc>>().unwrap();
+    count_back_then(&app, "KTM", "bina", utc("2026-11-29T18:05:00Z"), 30).await;
+    count_back_then(&app, "KTM", "bina", utc("2026-11-29T18:18:00Z"), 30).await;
+
+    let r = app
+        .send(
+            Method::GET,
+            "/api/v1/sites/KTM/accuracy?since=2026-11-23&until=2026-12-06",
+            &admin,
+            Body::Empty,
+        )
+        .await;
+    assert_eq!(r.status, 200, "{}", r.text);
+    let v = r.json();
+    assert_eq!(v["counted"], 2, "{v}");
+    let weeks: Vec<(String, u64)> = v["weeks"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .map(|w| {
+            (
+                w["week"].as_str().unwrap().to_string(),
+                w["counted"].as_u64().unwrap(),
+            )
+        })
+        .collect();
+    assert_eq!(
+        weeks,
+        vec![("2026-W48".to_string(), 1), ("2026-W49".to_string(), 1)],
+        "the Monday count is in the week that starts that local Monday: {v}"
+    );
+}
+
+#[tokio::test]
+async fn demand_per_day_in_chicago_takes_each_local_day_once_across_both_dst_nights() {
+    // One pick at 00:30 and one at 23:30 local every day, so each local day issues exactly
+    // 2 whatever its length. The local times are turned into instants by the US rule
+    // written out in `chicago_offset_h`, not by the server's tz library. 2026-03-08 (23
+    // hours) and 2026-11-01 (25 hours) are the DST days.
+    let app = spawn_app().await;
+    site(&app, "CHI", "America/Chicago", "rosa", None).await;
+    let admin = Auth::Bearer(app.issue_token("CHI", "chi-admin", Role::Admin).await);
+    let instant = |day: NaiveDate, h: u32, m: u32| {
+        // The offset is read at the local time taken as UTC and checked again at the
+        // instant, so the hour after a change is placed right.
+        let local = day.and_hms_opt(h, m, 0).unwrap().and_utc();
+        let mut at = local - Duration::hours(chicago_offset_h(local));
+        at = local - Duration::hours(chicago_offset_h(at));
+        assert_eq!(at + Duration::hours(chicago_offset_h(at)), local);
+        at
+    };
+    let d = |y, m, day| NaiveDate::from_ymd_opt(y, m, day).unwrap();
+    let windows = [
+        (d(2026, 3, 4), d(2026, 3, 11)),
+        (d(2026, 10, 28), d(2026, 11, 4)),
+    ];
+    let mut moves = vec![common::movement(
+        "r1",
+        "A-01-01-1",
+        "S1",
+        1000,
+        "receipt",
+        "2026-02-01T12:00:00Z",
+    )];
+    for (from, to) in windows {
+        let mut day = from;
+        while day <= to {
+            for (h, m) in [(0, 30), (23, 30)] {
+                moves.push(common::movement(
+                    &format!("p-{day}-{h}"),
+                    "A-01-01-1",
+                    "S1",
+                    -1,
+                    "pick",
+                    &instant(day, h, m).to_rfc3339(),
+                ));
+            }
+            day = day.succ_opt().unwrap();
+        }
+    }
+    let a = app
+        .send(
+            Method::POST,
+            "/api/v1/sites/CHI/movements",
+            &admin,
+            Body::Json(Value::Array(moves)),
+        )
+        .await;
+    assert_eq!(a.status, 200, "{}", a.text);
+
+    for (from, to) in windows {
+        let r = app
+            .send(
+                Method::GET,
+                &format!("/api/v1/sites/CHI/buffer/S1?until={to}&window_days=8"),
+                &admin,
+                Body::Empty,
+            )
+            .await;
+        assert_eq!(r.status, 200, "{}", r.text);
+        let demand = &r.json()["demand"];
+        assert_eq!(demand["from"], from.to_string(), "{demand}");
+        assert_eq!(demand["calendar_days"], 8, "{demand}");
+        // Wednesday to the next Wednesday: six weekdays (Monday to Friday calendar) and a
+        // weekend whose picks are taken as two extra days.
+        assert_eq!(demand["working_days"], 6, "{demand}");
+        assert_eq!(demand["extra_days"], 2, "{demand}");
+        assert_eq!(demand["issued"], 16, "{demand}");
+        let daily: Vec<(String, i64)> = demand["daily"]
+            .as_array()
+            .unwrap()
+            .iter()
+            .map(|p| (p[0].as_str().unwrap().to_string(), p[1].as_i64().unwrap()))
+            .collect();
+        let mut want = Vec::new();
+        let mut day = from;
+        while day <= to {
+            want.push((day.to_string(), 2));
+            day = day.succ_opt().unwrap();
+        }
+        assert_eq!(daily, want, "every local day issues its two picks once");
+        assert_eq!(demand["sd"], 0.0, "{demand}");
+    }
 }
