@@ -320,7 +320,7 @@ async fn a_route_added_outside_the_table_is_refused_by_the_guard() {
     use axum::routing::get;
     let dir = tempfile::tempdir().unwrap();
     let state = cairn::AppState::open(cairn::config::Config {
-        db: dir.path().join("stray.db"),
+        db: dir.path().join("stray.db").into(),
         ..cairn::config::Config::default()
     })
     .unwrap();

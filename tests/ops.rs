@@ -122,7 +122,7 @@ async fn a_backup_taken_while_movements_stream_in_restores_to_a_sound_balanced_c
         "{said}"
     );
     let state = cairn::AppState::open(cairn::config::Config {
-        db: restored.clone(),
+        db: restored.clone().into(),
         ..cairn::config::Config::default()
     })
     .expect("the restored copy opens as a Cairn database");

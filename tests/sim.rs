@@ -19,7 +19,7 @@ mod common;
 use cairn::AppState;
 use cairn::accounts::Role;
 use cairn::config::Config;
-use cairn::store::sqlite::Synchronous;
+use cairn::store::Synchronous;
 use rand::seq::SliceRandom;
 use rand::{Rng, SeedableRng};
 use rand_chacha::ChaCha8Rng;
@@ -111,7 +111,7 @@ impl Server {
 
     async fn boot(&mut self) {
         let state = AppState::open(Config {
-            db: self.db.clone(),
+            db: self.db.clone().into(),
             // The simulation checks logic, not power cuts (tests/crash.rs does those).
             synchronous: Synchronous::Normal,
             readers: 2,

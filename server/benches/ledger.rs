@@ -17,7 +17,8 @@ use cairn::master::codes::{BinCode, MovementUid, Sku};
 use cairn::master::{BinRecord, ItemRecord, NewSite, SiteCode, SiteId};
 use cairn::store::Progress;
 use cairn::store::sqlite::ledger::{Key, balance_as_of, insert_movements};
-use cairn::store::sqlite::{OpenOptions, SqliteStore, Synchronous, master, migrate};
+use cairn::store::sqlite::{SqliteStore, master, migrate};
+use cairn::store::{StoreOptions as OpenOptions, Synchronous};
 use cairn::time::Timestamp;
 use rand::{Rng, SeedableRng};
 use rand_chacha::ChaCha8Rng;
@@ -203,7 +204,7 @@ async fn through_api(dir: &Path, rows: &[Row], sync: Synchronous, clients: usize
     }
     let token = host_token(&path);
     let state = AppState::open(Config {
-        db: path,
+        db: path.into(),
         synchronous: sync,
         ..Config::default()
     })

@@ -15,7 +15,8 @@
 
 use cairn::master::{BinRecord, ItemRecord, NewSite, SiteCode};
 use cairn::store::Progress;
-use cairn::store::sqlite::{OpenOptions, master, migrate, netting, pool};
+use cairn::store::StoreOptions as OpenOptions;
+use cairn::store::sqlite::{master, migrate, pool};
 use cairn::time::Timestamp;
 use rand::{Rng, SeedableRng};
 use rand_chacha::ChaCha8Rng;
@@ -305,7 +306,7 @@ fn main() {
     let mut tasks = 0;
     let now = Timestamp(COUNT_AT + DAY_MS);
     for p in &passes {
-        let out = netting::net_pass(&tx, *p, None, "", now).unwrap();
+        let out = cairn::netting::pass::net(&tx, *p, None, "", now).unwrap();
         written += out.written.len();
         tasks += out.tasks.len();
     }

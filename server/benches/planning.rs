@@ -12,7 +12,8 @@
 use cairn::master::{BinRecord, ItemRecord, NewSite, SiteCode};
 use cairn::planning::plan::{self, Capacity, Fill};
 use cairn::planning::service;
-use cairn::store::sqlite::{OpenOptions, SqliteStore, master, migrate};
+use cairn::store::StoreOptions as OpenOptions;
+use cairn::store::sqlite::{SqliteStore, master, migrate};
 use cairn::store::{Progress, Store};
 use chrono::NaiveDate;
 use rand::{Rng, SeedableRng};

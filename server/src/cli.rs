@@ -12,7 +12,7 @@ use crate::master::{NewSite, SiteCode};
 use crate::planning;
 use crate::planning::plan::{Capacity, Fill};
 use crate::store::Store;
-use crate::store::sqlite::Synchronous;
+use crate::store::{DbLocation, Synchronous};
 use clap::{Args, Parser, Subcommand};
 use std::net::SocketAddr;
 use std::path::PathBuf;
@@ -34,7 +34,7 @@ enum Command {
     /// Create the demo site in FILE if it is new, then serve it.
     Demo {
         #[arg(long, default_value = "cairn-demo.db", env = "CAIRN_DB")]
-        db: PathBuf,
+        db: DbLocation,
         #[arg(long, default_value = "127.0.0.1:8080", env = "CAIRN_LISTEN")]
         listen: SocketAddr,
         /// Seed of the demo history (the same seed gives the same site).
@@ -47,7 +47,7 @@ enum Command {
     Import {
         kind: ImportKind,
         #[arg(long, env = "CAIRN_DB")]
-        db: PathBuf,
+        db: DbLocation,
         #[arg(long)]
         site: String,
         path: PathBuf,
@@ -55,7 +55,7 @@ enum Command {
     /// Generate a demo site of a chosen size (for benchmarks).
     DemoData {
         #[arg(long, env = "CAIRN_DB")]
-        db: PathBuf,
+        db: DbLocation,
         #[arg(long, default_value_t = 600)]
         items: u32,
         #[arg(long, default_value_t = 1500)]
@@ -75,7 +75,7 @@ enum Command {
     /// Write a printable SVG sheet of bin labels for a zone.
     Labels {
         #[arg(long, env = "CAIRN_DB")]
-        db: PathBuf,
+        db: DbLocation,
         /// The site; may be left out when the database holds one site.
         #[arg(long)]
         site: Option<String>,
@@ -88,7 +88,7 @@ enum Command {
     /// Build a day's count list and print it (text, CSV or JSON).
     Plan {
         #[arg(long, env = "CAIRN_DB")]
-        db: PathBuf,
+        db: DbLocation,
         #[arg(long)]
         site: String,
         /// The day, YYYY-MM-DD (default: today at the site, in its time zone).
@@ -114,7 +114,7 @@ enum Command {
         /// buffer: safety stock and order point with every term.
         what: ReportKind,
         #[arg(long, env = "CAIRN_DB")]
-        db: PathBuf,
+        db: DbLocation,
         #[arg(long)]
         site: String,
         /// First day, YYYY-MM-DD (accuracy: default 90 days before --until).
@@ -131,7 +131,7 @@ enum Command {
     /// moves, feasible states, f*, variance, tolerance, verdict and settling.
     Net {
         #[arg(long, env = "CAIRN_DB")]
-        db: PathBuf,
+        db: DbLocation,
         /// The count pass: its id or its uid.
         #[arg(long)]
         count: String,
@@ -221,7 +221,7 @@ enum PlanFormat {
 #[derive(Args)]
 struct ServeArgs {
     #[arg(long, env = "CAIRN_DB")]
-    db: Option<PathBuf>,
+    db: Option<DbLocation>,
     #[arg(long, env = "CAIRN_LISTEN")]
     listen: Option<SocketAddr>,
     /// A TOML file of settings; flags and CAIRN_* variables override it.
@@ -259,7 +259,7 @@ enum SiteCommand {
     /// Create a site.
     Add {
         #[arg(long, env = "CAIRN_DB")]
-        db: PathBuf,
+        db: DbLocation,
         #[arg(long)]
         code: String,
         #[arg(long)]
@@ -272,7 +272,7 @@ enum SiteCommand {
     /// day at the site is a local day of the new zone.
     Zone {
         #[arg(long, env = "CAIRN_DB")]
-        db: PathBuf,
+        db: DbLocation,
         #[arg(long)]
         code: String,
         /// The new IANA time zone (e.g. America/Chicago).
@@ -287,7 +287,7 @@ enum UserCommand {
     /// from standard input with --password-stdin), never taken from the command line.
     Add {
         #[arg(long, env = "CAIRN_DB")]
-        db: PathBuf,
+        db: DbLocation,
         #[arg(long)]
         site: String,
         #[arg(long)]
@@ -308,7 +308,7 @@ enum UserCommand {
     /// Set a user's password (ending their web sessions), or with --pin their phone PIN.
     Passwd {
         #[arg(long, env = "CAIRN_DB")]
-        db: PathBuf,
+        db: DbLocation,
         #[arg(long)]
         name: String,
         /// Set the phone PIN instead of the password.
@@ -322,7 +322,7 @@ enum UserCommand {
     /// role at a site. The token is printed once; only its digest is kept.
     Token {
         #[arg(long, env = "CAIRN_DB")]
-        db: PathBuf,
+        db: DbLocation,
         #[arg(long)]
         site: String,
         #[arg(long)]
@@ -336,7 +336,7 @@ enum UserCommand {
     /// Replace a user's roles at a site (an empty list removes them from it).
     Roles {
         #[arg(long, env = "CAIRN_DB")]
-        db: PathBuf,
+        db: DbLocation,
         #[arg(long)]
         site: String,
         #[arg(long)]
@@ -386,7 +386,7 @@ fn init_logs() {
     }
 }
 
-fn open(db: PathBuf) -> anyhow::Result<AppState> {
+fn open(db: DbLocation) -> anyhow::Result<AppState> {
     AppState::open(Config {
         db,
         ..Config::default()
@@ -403,7 +403,7 @@ async fn site_of(store: &dyn Store, code: &str) -> anyhow::Result<crate::master:
 async fn dispatch(command: Command) -> anyhow::Result<()> {
     match command {
         Command::Demo { db, listen, seed } => {
-            let fresh = !db.exists();
+            let fresh = db.is_new();
             let state = AppState::open(Config {
                 db: db.clone(),
                 listen,
@@ -412,10 +412,7 @@ async fn dispatch(command: Command) -> anyhow::Result<()> {
                 ..Config::default()
             })?;
             if fresh || state.store.sites().await?.is_empty() {
-                eprintln!(
-                    "Creating the demo site in {} (seed {seed}) ...",
-                    db.display()
-                );
+                eprintln!("Creating the demo site in {db} (seed {seed}) ...");
                 let summary =
                     demo::generate(state.store.as_ref(), &DemoSpec::standard(seed), true).await?;
                 eprintln!("{summary}");
@@ -461,12 +458,9 @@ async fn dispatch(command: Command) -> anyhow::Result<()> {
                 config.request_body_timeout_ms = ms;
             }
             config.check()?;
-            if !config.db.exists() {
-                anyhow::bail!(
-                    "database {} does not exist (create one with `cairn demo` or `cairn site add`)",
-                    config.db.display()
-                );
-            }
+            config
+                .db
+                .must_exist("create one with `cairn demo` or `cairn site add`")?;
             let listen = config.listen;
             serve(AppState::open(config)?, listen, false).await
         }
@@ -577,9 +571,7 @@ async fn dispatch(command: Command) -> anyhow::Result<()> {
             fill_capacity,
             save,
         } => {
-            if !db.exists() {
-                anyhow::bail!("database {} does not exist", db.display());
-            }
+            db.must_exist("")?;
             let state = open(db)?;
             let store = state.store.as_ref();
             let site = site_of(store, &site).await?;
@@ -606,9 +598,7 @@ async fn dispatch(command: Command) -> anyhow::Result<()> {
             Ok(())
         }
         Command::Net { db, count, json } => {
-            if !db.exists() {
-                anyhow::bail!("database {} does not exist", db.display());
-            }
+            db.must_exist("")?;
             let state = open(db)?;
             let report = state
                 .store
@@ -660,9 +650,7 @@ async fn dispatch(command: Command) -> anyhow::Result<()> {
                 },
         } => {
             let zone = crate::time::day::SiteZone::parse(&time_zone)?;
-            if !db.exists() {
-                anyhow::bail!("database {} does not exist", db.display());
-            }
+            db.must_exist("")?;
             let state = open(db)?;
             let site = site_of(state.store.as_ref(), &code).await?;
             let audit = AuditEvent::now(Actor::Cli, Action::SiteZoneChanged, site.code.as_str())
@@ -762,7 +750,7 @@ async fn probe(url: &str) -> anyhow::Result<()> {
 
 async fn report(
     what: ReportKind,
-    db: PathBuf,
+    db: DbLocation,
     site: String,
     since: Option<chrono::NaiveDate>,
     until: Option<chrono::NaiveDate>,
@@ -770,9 +758,7 @@ async fn report(
 ) -> anyhow::Result<()> {
     use crate::accuracy::report as table;
     use crate::accuracy::service;
-    if !db.exists() {
-        anyhow::bail!("database {} does not exist", db.display());
-    }
+    db.must_exist("")?;
     let state = open(db)?;
     let store = state.store.as_ref();
     let site = site_of(store, &site).await?;
@@ -838,10 +824,7 @@ async fn serve(state: AppState, listen: SocketAddr, demo: bool) -> anyhow::Resul
         .await
         .map_err(|e| anyhow::anyhow!("cannot listen on {listen}: {e}"))?;
     let addr = listener.local_addr()?;
-    println!(
-        "Cairn is serving {} at http://{addr}/",
-        state.config.db.display()
-    );
+    println!("Cairn is serving {} at http://{addr}/", state.config.db);
     if demo {
         println!("{}", demo::login_note());
     }

@@ -1,7 +1,7 @@
 //! Cairn's settings: one typed struct, from defaults, then an optional TOML
 //! file, then `CAIRN_*` environment variables and command-line flags.
 
-use crate::store::sqlite::{OpenOptions, Synchronous};
+use crate::store::{DbLocation, StoreOptions, Synchronous};
 use serde::Deserialize;
 use std::net::SocketAddr;
 use std::path::{Path, PathBuf};
@@ -10,13 +10,14 @@ use std::path::{Path, PathBuf};
 #[derive(Debug, Clone, Deserialize)]
 #[serde(default, deny_unknown_fields)]
 pub struct Config {
-    /// The SQLite database file.
-    pub db: PathBuf,
+    /// The database: a SQLite file path (a `postgres://` URL is read, and refused
+    /// by this build).
+    pub db: DbLocation,
     /// Address to listen on.
     pub listen: SocketAddr,
     /// Largest request body accepted, in bytes.
     pub max_body_bytes: usize,
-    /// SQLite durability at commit.
+    /// Durability at commit.
     pub synchronous: Synchronous,
     /// Read connections in the pool.
     pub readers: usize,
@@ -53,9 +54,9 @@ pub const DEFAULT_REQUEST_BODY_TIMEOUT_MS: u64 = 60_000;
 
 impl Default for Config {
     fn default() -> Self {
-        let store = OpenOptions::default();
+        let store = StoreOptions::default();
         Self {
-            db: PathBuf::from("cairn.db"),
+            db: DbLocation::File(PathBuf::from("cairn.db")),
             listen: SocketAddr::from(([127, 0, 0, 1], 8080)),
             max_body_bytes: 4 * 1024 * 1024,
             synchronous: store.synchronous,
@@ -105,12 +106,12 @@ impl Config {
     }
 
     /// Returns the store settings this config implies.
-    pub fn store_options(&self) -> OpenOptions {
-        OpenOptions {
+    pub fn store_options(&self) -> StoreOptions {
+        StoreOptions {
             synchronous: self.synchronous,
             readers: self.readers.max(1),
             snapshot_every: self.snapshot_every.max(2),
-            ..OpenOptions::default()
+            ..StoreOptions::default()
         }
     }
 }

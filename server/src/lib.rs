@@ -6,7 +6,7 @@
 
 pub mod accounts;
 pub mod accuracy;
-pub mod backup;
+pub use store::backup;
 pub mod batch;
 pub mod cli;
 pub mod config;
@@ -30,7 +30,6 @@ use config::Config;
 use std::sync::Arc;
 use std::sync::atomic::{AtomicBool, Ordering};
 use store::Store;
-use store::sqlite::SqliteStore;
 
 /// What every request handler can reach.
 #[derive(Clone)]
@@ -44,11 +43,11 @@ pub struct AppState {
 }
 
 impl AppState {
-    /// Opens the SQLite store named by `config` and builds the state over it.
+    /// Opens the store named by `config` and builds the state over it.
     pub fn open(config: Config) -> anyhow::Result<Self> {
-        let store = SqliteStore::open(&config.db, config.store_options())?;
+        let store = store::open(&config.db, config.store_options())?;
         Ok(Self {
-            store: Arc::new(store),
+            store,
             hashing: config.hash_gate(),
             config: Arc::new(config),
             draining: Arc::new(AtomicBool::new(false)),

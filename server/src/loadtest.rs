@@ -12,14 +12,12 @@ use crate::accounts::store::{NewApiToken, NewDevice, NewUser};
 use crate::accounts::{Role, UserName, throttle};
 use crate::config::Config;
 use crate::master::{NewSite, SiteCode};
-use crate::store::sqlite::Synchronous;
+use crate::store::Synchronous;
 use crate::time::Timestamp;
 use crate::{AppState, backup};
 use anyhow::{Context, ensure};
 use cairn_scan::wire::MAX_SYNC_EVENTS;
-use rusqlite::types::Value as SqlValue;
 use serde_json::{Value, json};
-use std::path::Path;
 use std::time::{Duration, Instant};
 
 /// The load's shape.
@@ -76,7 +74,7 @@ pub async fn run(spec: Spec) -> anyhow::Result<Outcome> {
     let dir = tempfile_dir()?;
     let db = dir.join("load.db");
     let state = AppState::open(Config {
-        db: db.clone(),
+        db: db.clone().into(),
         synchronous: spec.synchronous,
         ..Config::default()
     })?;
@@ -132,9 +130,10 @@ pub async fn run(spec: Spec) -> anyhow::Result<Outcome> {
     };
     let (p50_ms, p99_ms, max_ms) = (pick(0.5), pick(0.99), pick(1.0));
     let requests = latencies.len() as u64;
-    let ceiling =
-        tokio::task::spawn_blocking(move || ceiling(&db, &empty, spec.batch, spec.synchronous))
-            .await??;
+    let ceiling = tokio::task::spawn_blocking(move || {
+        crate::store::write_ceiling(&db, &empty, spec.batch, spec.synchronous)
+    })
+    .await??;
     let _ = std::fs::remove_dir_all(&dir);
     Ok(Outcome {
         requests,
@@ -315,82 +314,4 @@ async fn phone(
         }) as u64;
     }
     Ok((latencies, accepted))
-}
-
-/// Inserts the rows the load stored (passes, lines, events) into a copy of the schema
-/// without them, `batch` events per transaction, and returns events per second.
-fn ceiling(loaded: &Path, empty: &Path, batch: usize, sync: Synchronous) -> anyhow::Result<f64> {
-    let src = rusqlite::Connection::open(loaded)?;
-    let read = |table: &str| -> anyhow::Result<(Vec<String>, Vec<Vec<SqlValue>>)> {
-        let mut stmt = src.prepare(&format!("select * from {table} order by id"))?;
-        let cols: Vec<String> = stmt.column_names().iter().map(|c| c.to_string()).collect();
-        let n = cols.len();
-        let rows = stmt
-            .query_map([], |r| (0..n).map(|i| r.get::<_, SqlValue>(i)).collect())?
-            .collect::<Result<Vec<Vec<SqlValue>>, _>>()?;
-        Ok((cols, rows))
-    };
-    let passes = read("count_pass")?;
-    let lines = read("count_line")?;
-    let events = read("sync_event")?;
-    let n_events = events.1.len();
-    ensure!(n_events > 0, "the load stored no events");
-    let mut dst = rusqlite::Connection::open(empty)?;
-    let mode: String = dst.query_row("pragma journal_mode = wal", [], |r| r.get(0))?;
-    ensure!(mode == "wal", "the ceiling copy cannot use WAL");
-    dst.pragma_update(
-        None,
-        "synchronous",
-        match sync {
-            Synchronous::Full => "FULL",
-            Synchronous::Normal => "NORMAL",
-        },
-    )?;
-    dst.pragma_update(None, "foreign_keys", true)?;
-    // Events per request: one pass and batch - 1 lines, so a transaction holds the rows
-    // of one request, as the server's does.
-    let requests = passes.1.len().max(1);
-    let started = Instant::now();
-    let (mut li, mut ei) = (0, 0);
-    for (pi, pass) in passes.1.iter().enumerate() {
-        let tx = dst.transaction()?;
-        insert(&tx, "count_pass", &passes.0, std::slice::from_ref(pass))?;
-        let lines_here = (lines.1.len() - li).min(batch - 1);
-        insert(&tx, "count_line", &lines.0, &lines.1[li..li + lines_here])?;
-        li += lines_here;
-        let events_here = if pi + 1 == requests {
-            n_events - ei
-        } else {
-            (n_events - ei).min(batch)
-        };
-        insert(
-            &tx,
-            "sync_event",
-            &events.0,
-            &events.1[ei..ei + events_here],
-        )?;
-        ei += events_here;
-        tx.commit()?;
-    }
-    Ok(n_events as f64 / started.elapsed().as_secs_f64())
-}
-
-fn insert(
-    tx: &rusqlite::Transaction,
-    table: &str,
-    cols: &[String],
-    rows: &[Vec<SqlValue>],
-) -> anyhow::Result<()> {
-    let marks = (1..=cols.len())
-        .map(|i| format!("?{i}"))
-        .collect::<Vec<_>>()
-        .join(", ");
-    let mut stmt = tx.prepare_cached(&format!(
-        "insert into {table} ({}) values ({marks})",
-        cols.join(", ")
-    ))?;
-    for r in rows {
-        stmt.execute(rusqlite::params_from_iter(r.iter()))?;
-    }
-    Ok(())
 }

@@ -161,7 +161,7 @@ pub async fn spawn_app_with(tweak: impl FnOnce(&mut Config)) -> TestApp {
     let dir = tempfile::tempdir().expect("a temporary directory can be made");
     let db = dir.path().join("cairn.db");
     let mut config = Config {
-        db: db.clone(),
+        db: db.clone().into(),
         max_body_bytes: 256 * 1024,
         ..Config::default()
     };

@@ -39,7 +39,7 @@ pub const MAX_DAYS: f64 = 3660.0;
 /// Largest record error accepted, in base units.
 pub const MAX_ERROR: f64 = 1e12;
 
-const MS_PER_DAY: f64 = 86_400_000.0;
+const MS_PER_DAY: f64 = crate::time::DAY_MS as f64;
 
 /// One count of the item: when, the signed record error found
 /// (`counted − f*`, base units) and whether it was a hit.

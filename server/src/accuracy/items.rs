@@ -11,7 +11,7 @@ use super::item_error::{
 use serde::Serialize;
 use std::collections::BTreeMap;
 
-const MS_PER_DAY: f64 = 86_400_000.0;
+const MS_PER_DAY: f64 = crate::time::DAY_MS as f64;
 
 /// One count of one key of the item.
 #[derive(Debug, Clone, PartialEq, Eq)]

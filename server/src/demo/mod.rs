@@ -371,7 +371,7 @@ pub(crate) fn key_codes(
 #[cfg(test)]
 mod tests {
     use super::*;
-    use crate::store::sqlite::{OpenOptions, SqliteStore};
+    use crate::store::{DbLocation, StoreOptions};
 
     fn small(seed: u64) -> DemoSpec {
         DemoSpec {
@@ -386,8 +386,9 @@ mod tests {
     async fn generated(seed: u64) -> (tempfile::TempDir, rusqlite::Connection) {
         let dir = tempfile::tempdir().unwrap();
         let path = dir.path().join("demo.db");
-        let store = SqliteStore::open(&path, OpenOptions::default()).unwrap();
-        generate(&store, &small(seed), false).await.unwrap();
+        let store =
+            crate::store::open(&DbLocation::File(path.clone()), StoreOptions::default()).unwrap();
+        generate(store.as_ref(), &small(seed), false).await.unwrap();
         (dir, rusqlite::Connection::open(&path).unwrap())
     }
 

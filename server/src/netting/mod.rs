@@ -5,13 +5,15 @@
 //! Pure arithmetic with no I/O: `rule` (windows, feasible book states, the
 //! nearest state, settling), `tolerance` (hits, recount outcomes) and `service`
 //! (a pass's facts to the rows to write, recount placement and effects). The
-//! store (`store::sqlite::netting`) gathers the facts and writes inside the sync
+//! store (`store/sqlite/netting`) gathers the facts and writes inside the sync
 //! and movement transactions; `routes` serves results and policy, and `pages`
 //! the count-policy page, whose forms `policy_form` reads (no I/O).
 
 pub mod pages;
+pub mod pass;
 pub mod policy_form;
 pub mod report;
+pub mod results;
 pub mod routes;
 pub mod rule;
 pub mod service;

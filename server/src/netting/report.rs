@@ -3,7 +3,7 @@
 
 use super::rule::Status;
 use super::tolerance::{Limit, Tolerance, Verdict};
-use crate::store::sqlite::netting::{PassReport, ResultDetail};
+use crate::netting::results::{PassReport, ResultDetail};
 use crate::time::Timestamp;
 use std::fmt::Write as _;
 

@@ -11,7 +11,7 @@ use crate::http::access::{
     Access, BOOK_READERS, COUNT_POLICY, ClientAddress, CurrentUser, RouteTable,
 };
 use crate::http::extract::{CurrentSite, Params};
-use crate::store::sqlite::netting::{
+use crate::netting::results::{
     MAX_RESULTS_PAGE, ResultDetail, ResultPage, ResultQuery, ResultState,
 };
 use axum::Json;

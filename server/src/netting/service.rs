@@ -1,7 +1,7 @@
 //! The netting service's decisions, without I/O: from one pass's facts (its timing,
 //! each key's lines, the key's movements around the window, the site's tolerances and
 //! source timings) to the rows the store writes, and from a first result and its
-//! recount to what happens next. The store (`store::sqlite::netting`) gathers the facts
+//! recount to what happens next. The store (`store/sqlite/netting`) gathers the facts
 //! and writes the rows inside the write transaction that brought the news (a bin marked
 //! done, a late line, a late movement); see DEVELOPERS.md ("The netting service").
 

@@ -2,6 +2,7 @@
 //! window (usage value or pick hits) and cut the cumulative share into classes.
 //! Pure arithmetic in integers; no I/O.
 
+use crate::time::DAY_MS;
 use serde::{Deserialize, Serialize};
 use std::collections::HashMap;
 use std::fmt;
@@ -137,9 +138,6 @@ pub struct Usage {
 /// so is counted and held to tolerance as class A, instead of looking like a slow C
 /// because it has had no time to issue anything.
 pub const MIN_HISTORY_DAYS: i64 = 30;
-
-/// Milliseconds in a day.
-const DAY_MS: i64 = 86_400_000;
 
 /// Leaves out of `classes` (in `usage`'s order, as `classify` returns them) every item never
 /// classified whose first movement is less than `MIN_HISTORY_DAYS` before `run_end_ms`

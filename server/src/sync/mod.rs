@@ -10,6 +10,7 @@
 pub mod clock;
 pub mod event;
 pub mod plausible;
+pub mod results;
 pub mod routes;
 
 use crate::accounts::{DeviceId, UserId};
@@ -39,4 +40,27 @@ pub struct SyncBatch {
     pub clock: ClockSample,
     pub received_at: Timestamp,
     pub events: Vec<Result<Event, EventResult>>,
+}
+
+impl SyncBatch {
+    /// The events of this batch that `results` accepted as new, for the netting that
+    /// follows in the same transaction (a repeat changes nothing).
+    pub fn applied(&self, results: &[EventResult]) -> Vec<crate::netting::pass::AppliedEvent> {
+        self.events
+            .iter()
+            .zip(results)
+            .filter_map(|(event, result)| match event {
+                Ok(e)
+                    if result.status == cairn_scan::wire::EventStatus::Accepted
+                        && !result.repeat =>
+                {
+                    Some(crate::netting::pass::AppliedEvent {
+                        pass_uid: e.pass.to_string(),
+                        event_uid: e.id.to_string(),
+                    })
+                }
+                _ => None,
+            })
+            .collect()
+    }
 }

@@ -23,7 +23,7 @@ use crate::time::Timestamp;
 
 /// Largest distance between a request's `device_clock` and the server's clock, in ms: a
 /// day. Phones take their time from the network; a clock a day off is a wrong date.
-pub const MAX_CLOCK_SKEW_MS: i64 = 86_400_000;
+pub const MAX_CLOCK_SKEW_MS: i64 = crate::time::DAY_MS;
 /// Oldest an event may be when it reaches the server, in ms: 72 hours, a weekend offline.
 pub const MAX_OFFLINE_MS: i64 = 72 * 3_600_000;
 /// Longest a pass over one bin may take from first scan to bin-done before its results
@@ -62,7 +62,7 @@ pub fn check_device_clock(received: Timestamp, device_clock: i64) -> Result<(), 
         .to_utc()
         .format("%Y-%m-%d %H:%M UTC")
         .to_string();
-    let days = apart / 86_400_000;
+    let days = apart / crate::time::DAY_MS.unsigned_abs();
     let far = if days >= 1 {
         format!("{days} day{} away from", if days == 1 { "" } else { "s" })
     } else {

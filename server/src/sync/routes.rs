@@ -9,7 +9,7 @@ use crate::accounts::{Credential, Role};
 use crate::error::ApiError;
 use crate::http::access::{Access, BOOK_READERS, CurrentUser, RouteTable};
 use crate::http::extract::{CurrentSite, Params};
-use crate::store::sqlite::sync::StoredLine;
+use crate::sync::results::StoredLine;
 use crate::time::Timestamp;
 use axum::Json;
 use axum::extract::State;

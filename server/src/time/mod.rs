@@ -7,6 +7,10 @@ use chrono::{DateTime, SecondsFormat, TimeZone, Utc};
 use serde::{Deserialize, Deserializer, Serialize, Serializer};
 use std::fmt;
 
+/// Milliseconds in 24 hours: a span, not a day at a site (a local day can be 23 or 25
+/// hours long; `day::SiteZone` turns days into instants).
+pub const DAY_MS: i64 = 86_400_000;
+
 /// One instant, in milliseconds since 1970-01-01T00:00:00Z.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, PartialOrd, Ord, Hash)]
 pub struct Timestamp(pub i64);

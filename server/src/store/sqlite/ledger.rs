@@ -253,10 +253,11 @@ pub fn insert_movements(
             lot_q.execute(params![item_id, m.lot, m.expiry.map(|d| d.to_string())])?;
         }
         apply_to_balance(tx, &key, m.qty, m.event_at.0, snapshot_every)?;
-        written_moves.push(super::netting::NewMove {
+        written_moves.push(crate::netting::pass::WrittenMove {
             uid: m.uid.as_str().to_string(),
-            key,
-            event_at: m.event_at.0,
+            bin_id: key.bin_id,
+            key: (key.item_id, key.lot),
+            event_at: m.event_at,
             source: m.source.clone(),
         });
         outcome.recorded += 1;
@@ -270,7 +271,7 @@ pub fn insert_movements(
     progress.tick((rows.len() % PROGRESS_EVERY) as u64);
     // Results of counts these movements reach are re-netted in this same transaction.
     drop((insert, lot_q, reversed_q));
-    super::netting::renet_after_movements(tx, site, &written_moves, now)?;
+    crate::netting::pass::after_movements(tx, site, &written_moves, now)?;
     outcome.watermark = watermark(tx)?;
     Ok(outcome)
 }

@@ -4,6 +4,8 @@
 pub mod accounts;
 pub mod accuracy;
 pub mod auto_adjust;
+pub mod backup;
+pub mod ceiling;
 pub mod ledger;
 pub mod master;
 pub mod migrate;
@@ -16,6 +18,7 @@ pub mod sync;
 
 use super::{
     BalancePage, BalanceQuery, HistoryPage, HistoryQuery, Progress, ShelfRow, Store, StoreError,
+    StoreOptions as OpenOptions, Synchronous,
 };
 use crate::accounts::audit::AuditEvent;
 use crate::ledger::{NewMovement, RecordOutcome};
@@ -33,46 +36,12 @@ use chrono::NaiveDate;
 use pool::{Readers, Writer, connect};
 use rusqlite::Connection;
 use std::path::{Path, PathBuf};
-use std::time::Duration;
-
-/// How hard SQLite works to keep a commit through a power cut.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, serde::Deserialize, clap::ValueEnum)]
-#[serde(rename_all = "lowercase")]
-pub enum Synchronous {
-    /// fsync at every commit: an acknowledged write survives power loss.
-    Full,
-    /// fsync at checkpoints only: survives a killed process, may lose the last commits on power loss.
-    Normal,
-}
 
 impl Synchronous {
     fn as_str(self) -> &'static str {
         match self {
             Synchronous::Full => "FULL",
             Synchronous::Normal => "NORMAL",
-        }
-    }
-}
-
-/// Settings for opening the store.
-#[derive(Debug, Clone)]
-pub struct OpenOptions {
-    pub synchronous: Synchronous,
-    pub readers: usize,
-    pub busy_timeout: Duration,
-    pub cache_kib: u32,
-    /// Movements of one key between balance snapshots.
-    pub snapshot_every: i64,
-}
-
-impl Default for OpenOptions {
-    fn default() -> Self {
-        Self {
-            synchronous: Synchronous::Full,
-            readers: 4,
-            busy_timeout: Duration::from_secs(5),
-            cache_kib: 16 * 1024,
-            snapshot_every: 256,
         }
     }
 }
@@ -467,7 +436,8 @@ impl Store for SqliteStore {
         let (results, netted) = self
             .write_shared(move |tx| {
                 let results = sync::apply_sync(tx, &batch)?;
-                let netted = netting::after_sync(tx, &batch, &results, Timestamp::now())?;
+                let applied = batch.applied(&results);
+                let netted = crate::netting::pass::after_sync(tx, &applied, Timestamp::now())?;
                 Ok((results, netted.written.len() as u64))
             })
             .await?;
@@ -490,7 +460,7 @@ impl Store for SqliteStore {
         site: SiteId,
         after: i64,
         limit: usize,
-    ) -> Result<Vec<sync::StoredLine>, StoreError> {
+    ) -> Result<Vec<crate::sync::results::StoredLine>, StoreError> {
         self.readers
             .run(move |c| sync::count_lines(c, site, after, limit))
             .await
@@ -635,7 +605,7 @@ impl Store for SqliteStore {
         reason: String,
     ) -> Result<netting::NetOutcome, StoreError> {
         self.write_tx(move |tx| {
-            netting::renet_passes(tx, site, pass.as_deref(), &reason, Timestamp::now())
+            crate::netting::pass::renet_passes(tx, site, pass.as_deref(), &reason, Timestamp::now())
         })
         .await
     }

@@ -16,13 +16,11 @@ use crate::planning::{ListView, Settings, Summary, TaskView, TriggerKind};
 use crate::store::StoreError;
 use crate::store::sqlite::ledger::watermark;
 use crate::store::sqlite::recount_tasks::{self, Placing};
+use crate::time::DAY_MS;
 use crate::time::Timestamp;
 use chrono::NaiveDate;
 use rusqlite::{Connection, OptionalExtension, Transaction, params};
 use std::collections::{HashMap, HashSet};
-
-/// Milliseconds in a day.
-const DAY_MS: i64 = 86_400_000;
 
 fn day_text(d: NaiveDate) -> String {
     d.format("%Y-%m-%d").to_string()

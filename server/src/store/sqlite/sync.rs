@@ -12,6 +12,7 @@ use crate::sync::SyncBatch;
 use crate::sync::clock::ClockSample;
 use crate::sync::event::{Body, Event, Line};
 use crate::sync::plausible::{self, Sampled, TaskFloor};
+use crate::sync::results::StoredLine;
 use crate::time::Timestamp;
 use crate::time::day::SiteZone;
 use cairn_scan::wire::{EventFlag, EventResult};
@@ -632,22 +633,6 @@ pub fn catalog(conn: &Connection, site: SiteId) -> Result<Vec<ItemBrief>, StoreE
         })
         .collect::<rusqlite::Result<Vec<_>>>()?;
     Ok(items)
-}
-
-/// A stored count line as support and the tests read it back.
-#[derive(Debug, Clone, PartialEq, Eq, serde::Serialize)]
-pub struct StoredLine {
-    /// The line's place in arrival order, the cursor of the next page.
-    pub seq: i64,
-    pub uid: String,
-    pub pass: String,
-    pub bin: String,
-    pub sku: String,
-    pub lot: String,
-    pub qty: i64,
-    pub at: Timestamp,
-    pub found: bool,
-    pub undone: bool,
 }
 
 /// Lists a site's count lines in arrival order, `limit` of them after line `after`.

@@ -3,96 +3,6 @@
 
 use super::*;
 
-/// Which results a listing shows.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, serde::Deserialize)]
-#[serde(rename_all = "snake_case")]
-pub enum ResultState {
-    /// Current results out of tolerance with no review yet.
-    Open,
-    /// Every current (not superseded) result.
-    Current,
-    /// Every row, superseded ones included.
-    All,
-}
-
-/// A query over a site's results, paged by id.
-#[derive(Debug, Clone)]
-pub struct ResultQuery {
-    pub state: ResultState,
-    pub bin: Option<String>,
-    pub sku: Option<String>,
-    /// A count pass by id or uid.
-    pub pass: Option<String>,
-    pub limit: usize,
-    /// Results with an id greater than this.
-    pub after: i64,
-}
-
-/// One result as the API lists it.
-#[derive(Debug, Clone, PartialEq, Eq, Serialize)]
-pub struct ResultRow {
-    pub id: i64,
-    pub pass_id: i64,
-    pub pass: String,
-    pub counter: String,
-    pub bin: String,
-    pub sku: String,
-    pub lot: String,
-    pub class: Option<String>,
-    pub counted: i64,
-    pub f_star: i64,
-    pub variance: i64,
-    pub variance_value_minor: i64,
-    pub status: String,
-    pub verdict: String,
-    pub unit_cost_minor: i64,
-    pub counted_at: Timestamp,
-    pub window_start: Timestamp,
-    pub window_end: Timestamp,
-    pub watermark: i64,
-    pub settles_at: Timestamp,
-    pub settled: bool,
-    pub superseded_by: Option<i64>,
-    pub renet_reason: String,
-    pub recount_outcome: Option<String>,
-    pub first_count_wrong: bool,
-    pub reviewed: bool,
-    /// A count adjustment was posted for it automatically (within tolerance, no review).
-    pub auto_adjusted: bool,
-    pub computed_at: Timestamp,
-}
-
-/// A page of results.
-#[derive(Debug, Clone, Serialize)]
-pub struct ResultPage {
-    pub results: Vec<ResultRow>,
-    pub next: Option<i64>,
-}
-
-/// One result with its evidence, the rows it replaced and its recount tasks.
-#[derive(Debug, Clone, Serialize)]
-pub struct ResultDetail {
-    #[serde(flatten)]
-    pub row: ResultRow,
-    pub evidence: Evidence,
-    /// Earlier rows of the same key of the same pass, newest first.
-    pub replaces: Vec<i64>,
-    /// Recount and supervisor-count tasks of this key of this pass, not withdrawn.
-    pub recount_tasks: Vec<i64>,
-    /// Tasks of this key of this pass that were withdrawn, oldest first.
-    pub withdrawn_recounts: Vec<WithdrawnRecount>,
-    /// The count adjustment posted for it automatically, if one was.
-    pub automatic_adjustment: Option<crate::review::store::AutoAdjustment>,
-}
-
-/// A recount task withdrawn before anyone counted against it.
-#[derive(Debug, Clone, Serialize)]
-pub struct WithdrawnRecount {
-    pub task: i64,
-    pub at: Timestamp,
-    pub reason: String,
-}
-
 const ROW_SELECT: &str = "select r.id, r.pass_id, p.uid, u.name, b.code, i.sku, r.lot, r.class,
         r.counted, r.f_star, r.variance, r.status, r.verdict, r.unit_cost_minor, r.counted_at,
         r.window_start, r.window_end, r.watermark, r.settles_at, r.settled, r.superseded_by,
@@ -249,22 +159,6 @@ pub fn count_result(
         withdrawn_recounts,
         automatic_adjustment,
     }))
-}
-
-/// A pass and every current result of it, for `cairn net`.
-#[derive(Debug, Clone, Serialize)]
-pub struct PassReport {
-    pub pass_id: i64,
-    pub pass: String,
-    pub site: String,
-    pub bin: String,
-    pub counter: String,
-    pub first_at: Timestamp,
-    pub done_at: Option<Timestamp>,
-    pub uncertainty_ms: i64,
-    /// The first results this pass re-checks (its task's), if it is a recount.
-    pub rechecks: Vec<i64>,
-    pub results: Vec<ResultDetail>,
 }
 
 /// Reads a pass (by id or uid) and its current results.

@@ -5,8 +5,9 @@
 //! whose keys all stopped needing it (a re-net made them hits, or a recount decided them)
 //! before anyone counted against it is withdrawn: kept with its reason, off every list.
 
-use super::{ItemLot, PassFacts, RECOUNT_EST_S, current_result, json, pass_facts};
-use crate::netting::service::{self, Placement, VERDICT_OUT};
+use super::{ItemLot, PassFacts, RECOUNT_EST_S, json};
+use crate::netting::pass::{OpenTask, Sent};
+use crate::netting::service::{self, Placement};
 use crate::planning::abc::Class;
 use crate::store::StoreError;
 use crate::time::Timestamp;
@@ -14,12 +15,6 @@ use rusqlite::{Connection, OptionalExtension, Transaction, params};
 
 /// Most keys a task's detail names before it says "and N more".
 const MAX_DETAIL_KEYS: usize = 10;
-
-/// When and against which ledger state netting sends a task.
-pub(super) struct Sent {
-    pub watermark: i64,
-    pub now: Timestamp,
-}
 
 /// Reads the keys a recount task re-checks, each with the pass of its first count.
 pub(super) fn rechecked_keys(
@@ -74,78 +69,6 @@ pub(super) fn latest_recount_pass(
         )?
         .query_row(params![pass_id, key.0, key.1], |r| r.get(0))
         .optional()?)
-}
-
-/// Decides keys of the first count `first_pass` from recount passes (`(key, recount pass)`),
-/// then sends the keys the recounts agreed on with neither side to one supervisor count
-/// (a key gets at most one). Returns the tasks added.
-pub(super) fn decide(
-    tx: &Transaction,
-    first_pass: i64,
-    decide: &[(ItemLot, i64)],
-    sent: &Sent,
-) -> Result<Vec<i64>, StoreError> {
-    let mut supervise = Vec::new();
-    for (key, recount_pass) in decide {
-        if let Some(first) = apply_recount(tx, first_pass, key, *recount_pass)?
-            && live_tasks_of(tx, first_pass, key)? < 2
-        {
-            supervise.push(first);
-        }
-    }
-    if supervise.is_empty() {
-        return Ok(Vec::new());
-    }
-    let pass = pass_facts(tx, first_pass)?
-        .ok_or_else(|| anyhow::anyhow!("count pass {first_pass} vanished"))?;
-    send(tx, &pass, &supervise, true, sent)
-}
-
-/// Applies the recount rule to a first result from the recount pass's result of the
-/// same key: the first result's verdict, outcome and first-count-wrong mark are set in
-/// place (its evidence keeps the original judgement). Returns the first result's id when
-/// the recount agreed with neither side (a supervisor count is due).
-fn apply_recount(
-    tx: &Transaction,
-    first_pass: i64,
-    key: &ItemLot,
-    recount_pass: i64,
-) -> Result<Option<i64>, StoreError> {
-    let (Some(first), Some(recount)) = (
-        current_result(tx, first_pass, key)?,
-        current_result(tx, recount_pass, key)?,
-    ) else {
-        return Ok(None);
-    };
-    if first.evidence.judged.is_hit() {
-        // The first result became a hit by itself (a late movement): nothing to decide.
-        tx.prepare_cached(
-            "update count_result set verdict = 'hit', recount_outcome = null,
-                 first_count_wrong = 0 where id = ?1",
-        )?
-        .execute([first.id])?;
-        return Ok(None);
-    }
-    let cost: i64 = tx
-        .prepare_cached("select unit_cost_minor from count_result where id = ?1")?
-        .query_row([first.id], |r| r.get(0))?;
-    let effect = service::recount_effect(
-        &first.evidence.netting,
-        &recount.evidence.netting,
-        cost,
-        &first.evidence.tolerance,
-    );
-    tx.prepare_cached(
-        "update count_result set verdict = ?2, recount_outcome = ?3, first_count_wrong = ?4
-         where id = ?1",
-    )?
-    .execute(params![
-        first.id,
-        effect.verdict,
-        effect.outcome_text,
-        effect.first_count_wrong
-    ])?;
-    Ok(effect.supervisor_count.then_some(first.id))
 }
 
 /// Sends first results of one pass to a recount (or a supervisor count) of its bin: into
@@ -406,17 +329,13 @@ fn add_task(
     Ok(task)
 }
 
-/// Withdraws every task of the first count `first_pass` that nobody has counted against yet
-/// and that no key needs any more: a recount whose keys are all hits now, a supervisor count
-/// whose keys no recount leaves undecided. A task with one key still out stays for it. The
-/// task is kept (with `reason`) and leaves its list, whose version goes up.
-pub(super) fn withdraw_unneeded(
-    tx: &Transaction,
+/// Reads the tasks of the first count `first_pass` that are not done, not withdrawn and
+/// not counted against.
+pub(super) fn open_tasks_of(
+    conn: &Connection,
     first_pass: i64,
-    reason: &str,
-    now: Timestamp,
-) -> Result<(), StoreError> {
-    let tasks = tx
+) -> Result<Vec<OpenTask>, StoreError> {
+    Ok(conn
         .prepare_cached(
             "select distinct t.id, t.list_id, t.supervisor
              from count_result r cross join count_task_recheck k cross join count_task t
@@ -426,51 +345,27 @@ pub(super) fn withdraw_unneeded(
                                where p.task_id = t.id and p.done_at is not null)",
         )?
         .query_map([first_pass], |r| {
-            Ok((
-                r.get::<_, i64>(0)?,
-                r.get::<_, i64>(1)?,
-                r.get::<_, bool>(2)?,
-            ))
+            Ok(OpenTask {
+                id: r.get(0)?,
+                list: r.get(1)?,
+                supervisor: r.get(2)?,
+            })
         })?
-        .collect::<rusqlite::Result<Vec<_>>>()?;
-    for (task, list, supervisor) in tasks {
-        let mut needed = false;
-        for (key, pass) in rechecked_keys(tx, task)? {
-            if pass != first_pass {
-                continue;
-            }
-            let state: Option<(String, Option<String>)> = tx
-                .prepare_cached(
-                    "select verdict, recount_outcome from count_result
-                     where pass_id = ?1 and item_id = ?2 and lot = ?3 and superseded_by is null",
-                )?
-                .query_row(params![pass, key.0, key.1], |r| Ok((r.get(0)?, r.get(1)?)))
-                .optional()?;
-            needed |= state.is_some_and(|(verdict, outcome)| {
-                verdict == VERDICT_OUT
-                    && (!supervisor || outcome.as_deref() == Some("supervisor_count"))
-            });
-        }
-        if needed {
-            continue;
-        }
-        let why = if supervisor {
-            "no key it re-checks waits for a supervisor count any more"
-        } else {
-            "no key it re-checks is out of tolerance any more"
-        };
-        let why = if reason.is_empty() {
-            why.to_string()
-        } else {
-            format!("{why}: {reason}")
-        };
-        tx.prepare_cached(
-            "update count_task set withdrawn_at = ?2, withdrawn_reason = ?3 where id = ?1",
-        )?
-        .execute(params![task, now.0, why])?;
-        bump_list(tx, list)?;
-    }
-    Ok(())
+        .collect::<rusqlite::Result<Vec<_>>>()?)
+}
+
+/// Withdraws a task: kept with its reason, it leaves its list, whose version goes up.
+pub(super) fn withdraw(
+    tx: &Transaction,
+    task: OpenTask,
+    at: Timestamp,
+    why: &str,
+) -> Result<(), StoreError> {
+    tx.prepare_cached(
+        "update count_task set withdrawn_at = ?2, withdrawn_reason = ?3 where id = ?1",
+    )?
+    .execute(params![task.id, at.0, why])?;
+    bump_list(tx, task.list)
 }
 
 fn bump_list(tx: &Transaction, list: i64) -> Result<(), StoreError> {

@@ -6,7 +6,7 @@
 //! made the lighter `quick_check` (the pages are the ones just checked). Each stage
 //! names itself on the progress line it is given.
 
-use crate::store::sqlite::migrate;
+use super::migrate;
 use anyhow::{Context, bail, ensure};
 use indicatif::{ProgressBar, ProgressStyle};
 use rusqlite::backup::{Backup, StepResult};
