@@ -20,4 +20,6 @@ pub mod service;
 pub mod tolerance;
 
 #[cfg(test)]
+mod memory;
+#[cfg(test)]
 mod tests;

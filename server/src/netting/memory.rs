@@ -1,0 +1,679 @@
+//! A test-only [`NettingTx`] over plain maps, so the netting workflow runs without a
+//! database; the same cases run end to end against SQLite in `tests/netting.rs`.
+
+use super::pass::{
+    self, AppliedEvent, CurrentResult, ItemFacts, ItemLot, NettingTx, NewResult, OpenTask,
+    PassFacts, Sent, WrittenMove,
+};
+use super::results::NetOutcome;
+use super::rule::CountTiming;
+use super::service::{Evidence, LedgerMove, NettingSettings, SourceTimingRow, VERDICT_OUT};
+use super::tolerance::Verdict;
+use crate::master::SiteId;
+use crate::planning::abc::Class;
+use crate::store::StoreError;
+use crate::time::Timestamp;
+use std::cell::RefCell;
+use std::collections::{BTreeMap, BTreeSet, HashMap};
+
+const SITE: SiteId = SiteId(1);
+const BIN: i64 = 1;
+
+#[derive(Debug, Clone)]
+struct Row {
+    id: i64,
+    pass: i64,
+    key: ItemLot,
+    status: String,
+    verdict: String,
+    recount_outcome: Option<String>,
+    first_count_wrong: bool,
+    unit_cost_minor: i64,
+    counted: i64,
+    f_star: i64,
+    evidence: Evidence,
+    superseded_by: Option<i64>,
+    reason: String,
+}
+
+#[derive(Debug, Clone)]
+struct Task {
+    id: i64,
+    supervisor: bool,
+    results: Vec<i64>,
+    withdrawn: Option<String>,
+}
+
+/// One site, one bin; items, a ledger, passes and their lines, results and tasks.
+#[derive(Default)]
+struct Memory {
+    items: HashMap<i64, ItemFacts>,
+    sources: Vec<SourceTimingRow>,
+    moves: RefCell<Vec<(ItemLot, LedgerMove)>>,
+    passes: RefCell<BTreeMap<i64, PassFacts>>,
+    lines: RefCell<Vec<(i64, ItemLot, i64, Timestamp)>>,
+    results: RefCell<Vec<Row>>,
+    tasks: RefCell<Vec<Task>>,
+}
+
+fn key(item: i64) -> ItemLot {
+    (item, String::new())
+}
+
+impl Memory {
+    /// Items 1 (class A) and 2 (class A), 4.50 each; a host source stamping exactly.
+    fn new() -> Self {
+        let item = |sku: &str| ItemFacts {
+            sku: sku.into(),
+            unit_cost_minor: 450,
+            class: Some(Class::A),
+        };
+        Self {
+            items: [(1, item("S1")), (2, item("S2"))].into_iter().collect(),
+            sources: vec![SourceTimingRow {
+                source: "host".into(),
+                uncertainty_ms: 0,
+                posting_lag_ms: 60_000,
+            }],
+            ..Self::default()
+        }
+    }
+
+    /// Records a movement of `delta` of `item` at `at` ms; returns what the re-net needs.
+    fn movement(&self, uid: &str, item: i64, delta: i64, at: i64) -> WrittenMove {
+        let mut moves = self.moves.borrow_mut();
+        let id = moves.len() as i64 + 1;
+        moves.push((
+            key(item),
+            LedgerMove {
+                id,
+                uid: uid.into(),
+                event_at: Timestamp(at),
+                delta,
+                kind: if delta < 0 { "pick" } else { "receipt" }.into(),
+                source: "host".into(),
+            },
+        ));
+        WrittenMove {
+            uid: uid.into(),
+            bin_id: BIN,
+            key: key(item),
+            event_at: Timestamp(at),
+            source: "host".into(),
+        }
+    }
+
+    /// Adds pass `id` by `user`, scanned from `first` to `done` ms (±500 ms), against a
+    /// recount task or none, with its lines `(item, qty, at)`.
+    fn pass(&self, id: i64, user: &str, task: Option<i64>, lines: &[(i64, i64, i64)]) {
+        let first = lines.iter().map(|l| l.2).min().unwrap_or(0);
+        let last = lines.iter().map(|l| l.2).max().unwrap_or(0);
+        self.passes.borrow_mut().insert(
+            id,
+            PassFacts {
+                id,
+                uid: format!("pass-{id}"),
+                site: SITE,
+                bin_id: BIN,
+                bin_code: "A-01-01-1".into(),
+                task_est_s: None,
+                user_name: user.into(),
+                timing: CountTiming {
+                    first_scan: Timestamp(first),
+                    done: Some(Timestamp(last + 1_000)),
+                    clock_uncertainty_ms: 500,
+                },
+                recount_task: task,
+                withdrawn: false,
+                held: None,
+            },
+        );
+        for &(item, qty, at) in lines {
+            self.lines
+                .borrow_mut()
+                .push((id, key(item), qty, Timestamp(at)));
+        }
+    }
+
+    fn current(&self, pass: i64, item: i64) -> Row {
+        self.results
+            .borrow()
+            .iter()
+            .find(|r| r.pass == pass && r.key == key(item) && r.superseded_by.is_none())
+            .cloned()
+            .unwrap_or_else(|| panic!("no current result of item {item} of pass {pass}"))
+    }
+
+    fn live_tasks(&self) -> Vec<Task> {
+        self.tasks
+            .borrow()
+            .iter()
+            .filter(|t| t.withdrawn.is_none())
+            .cloned()
+            .collect()
+    }
+
+    fn row_ids_of(&self, pass: i64, key: &ItemLot) -> BTreeSet<i64> {
+        self.results
+            .borrow()
+            .iter()
+            .filter(|r| r.pass == pass && &r.key == key)
+            .map(|r| r.id)
+            .collect()
+    }
+
+    fn counted_against(&self, task: i64) -> Vec<PassFacts> {
+        self.passes
+            .borrow()
+            .values()
+            .filter(|p| p.recount_task == Some(task) && p.timing.done.is_some())
+            .cloned()
+            .collect()
+    }
+
+    fn net_all(&self, pass: i64) -> NetOutcome {
+        pass::after_sync(
+            self,
+            &[AppliedEvent {
+                pass_uid: format!("pass-{pass}"),
+                event_uid: format!("done-{pass}"),
+            }],
+            Timestamp(10_000_000),
+        )
+        .unwrap()
+    }
+}
+
+impl NettingTx for Memory {
+    fn pass_facts(&self, pass: i64) -> Result<Option<PassFacts>, StoreError> {
+        Ok(self.passes.borrow().get(&pass).cloned())
+    }
+
+    fn netting_settings(&self, _: SiteId) -> Result<NettingSettings, StoreError> {
+        Ok(NettingSettings::default())
+    }
+
+    fn source_timings(&self, _: SiteId) -> Result<Vec<SourceTimingRow>, StoreError> {
+        Ok(self.sources.clone())
+    }
+
+    fn watermark(&self) -> Result<i64, StoreError> {
+        Ok(self.moves.borrow().len() as i64)
+    }
+
+    fn counted_keys(&self, pass: i64) -> Result<BTreeMap<ItemLot, (i64, Timestamp)>, StoreError> {
+        let mut out: BTreeMap<ItemLot, (i64, Timestamp)> = BTreeMap::new();
+        for (p, k, qty, at) in self.lines.borrow().iter() {
+            if *p == pass {
+                let e = out.entry(k.clone()).or_insert((0, *at));
+                e.0 += qty;
+                e.1 = e.1.max(*at);
+            }
+        }
+        Ok(out)
+    }
+
+    fn bin_keys(&self, _: i64) -> Result<Vec<ItemLot>, StoreError> {
+        let keys: BTreeSet<ItemLot> = self.moves.borrow().iter().map(|m| m.0.clone()).collect();
+        Ok(keys.into_iter().collect())
+    }
+
+    fn netted_keys(&self, pass: i64) -> Result<Vec<ItemLot>, StoreError> {
+        Ok(self
+            .results
+            .borrow()
+            .iter()
+            .filter(|r| r.pass == pass && r.superseded_by.is_none())
+            .map(|r| r.key.clone())
+            .collect())
+    }
+
+    fn current_result(
+        &self,
+        pass: i64,
+        key: &ItemLot,
+    ) -> Result<Option<CurrentResult>, StoreError> {
+        Ok(self
+            .results
+            .borrow()
+            .iter()
+            .find(|r| r.pass == pass && &r.key == key && r.superseded_by.is_none())
+            .map(|r| CurrentResult {
+                id: r.id,
+                status: r.status.clone(),
+                verdict: r.verdict.clone(),
+                recount_outcome: r.recount_outcome.clone(),
+                unit_cost_minor: r.unit_cost_minor,
+                evidence: r.evidence.clone(),
+            }))
+    }
+
+    fn item_facts(&self, item: i64) -> Result<ItemFacts, StoreError> {
+        Ok(self.items[&item].clone())
+    }
+
+    fn balance_as_of(&self, _: i64, key: &ItemLot, at: Timestamp) -> Result<i64, StoreError> {
+        Ok(self
+            .moves
+            .borrow()
+            .iter()
+            .filter(|(k, m)| k == key && m.event_at <= at)
+            .map(|(_, m)| m.delta)
+            .sum())
+    }
+
+    fn key_moves(
+        &self,
+        _: i64,
+        key: &ItemLot,
+        from: Timestamp,
+        to: Timestamp,
+    ) -> Result<Vec<LedgerMove>, StoreError> {
+        let mut out: Vec<LedgerMove> = self
+            .moves
+            .borrow()
+            .iter()
+            .filter(|(k, m)| k == key && from <= m.event_at && m.event_at <= to)
+            .map(|(_, m)| m.clone())
+            .collect();
+        out.sort_by_key(|m| (m.event_at, m.id));
+        Ok(out)
+    }
+
+    fn insert_result(&self, r: &NewResult<'_>) -> Result<i64, StoreError> {
+        let mut rows = self.results.borrow_mut();
+        let id = rows.len() as i64 + 1;
+        rows.push(Row {
+            id,
+            pass: r.pass.id,
+            key: (r.netted.item_id, r.netted.lot.clone()),
+            status: r.status.into(),
+            verdict: r.netted.verdict.into(),
+            recount_outcome: None,
+            first_count_wrong: false,
+            unit_cost_minor: r.netted.unit_cost_minor,
+            counted: r.netted.counted,
+            f_star: r.netted.f_star,
+            evidence: r.netted.evidence.clone(),
+            superseded_by: None,
+            reason: r.reason.into(),
+        });
+        Ok(id)
+    }
+
+    fn supersede(&self, old: i64, new: i64) -> Result<(), StoreError> {
+        self.results.borrow_mut()[old as usize - 1].superseded_by = Some(new);
+        Ok(())
+    }
+
+    fn done_pass_by_uid(&self, uid: &str) -> Result<Option<(i64, bool)>, StoreError> {
+        let passes = self.passes.borrow();
+        let Some(p) = passes
+            .values()
+            .find(|p| p.uid == uid && p.timing.done.is_some())
+        else {
+            return Ok(None);
+        };
+        let netted = self.results.borrow().iter().any(|r| r.pass == p.id);
+        Ok(Some((p.id, netted)))
+    }
+
+    fn widest_done_uncertainty(&self, _: SiteId) -> Result<Option<i64>, StoreError> {
+        Ok(self
+            .passes
+            .borrow()
+            .values()
+            .filter(|p| p.timing.done.is_some())
+            .map(|p| p.timing.clock_uncertainty_ms)
+            .max())
+    }
+
+    fn done_passes_of_bin(
+        &self,
+        _: i64,
+        done_from: Timestamp,
+    ) -> Result<Vec<(i64, CountTiming)>, StoreError> {
+        Ok(self
+            .passes
+            .borrow()
+            .values()
+            .filter(|p| p.timing.done.is_some_and(|d| d >= done_from))
+            .map(|p| (p.id, p.timing))
+            .collect())
+    }
+
+    fn done_passes(&self, _: SiteId, pass: Option<&str>) -> Result<Vec<i64>, StoreError> {
+        let mut done: Vec<(Timestamp, i64)> = self
+            .passes
+            .borrow()
+            .values()
+            .filter(|p| pass.is_none_or(|u| u == p.uid || u == p.id.to_string()))
+            .filter_map(|p| p.timing.done.map(|d| (d, p.id)))
+            .collect();
+        done.sort();
+        Ok(done.into_iter().map(|(_, id)| id).collect())
+    }
+
+    fn rechecked_keys(&self, task: i64) -> Result<Vec<(ItemLot, i64)>, StoreError> {
+        let tasks = self.tasks.borrow();
+        let rows = self.results.borrow();
+        let t = tasks
+            .iter()
+            .find(|t| t.id == task)
+            .expect("the task exists");
+        let keys: BTreeSet<(i64, ItemLot)> = t
+            .results
+            .iter()
+            .map(|id| {
+                let r = &rows[*id as usize - 1];
+                (r.pass, r.key.clone())
+            })
+            .collect();
+        Ok(keys.into_iter().map(|(p, k)| (k, p)).collect())
+    }
+
+    fn live_tasks_of(&self, pass: i64, key: &ItemLot) -> Result<i64, StoreError> {
+        let ids = self.row_ids_of(pass, key);
+        Ok(self
+            .live_tasks()
+            .iter()
+            .filter(|t| t.results.iter().any(|r| ids.contains(r)))
+            .count() as i64)
+    }
+
+    fn latest_recount_pass(&self, pass: i64, key: &ItemLot) -> Result<Option<i64>, StoreError> {
+        let ids = self.row_ids_of(pass, key);
+        Ok(self
+            .live_tasks()
+            .iter()
+            .filter(|t| t.results.iter().any(|r| ids.contains(r)))
+            .flat_map(|t| self.counted_against(t.id))
+            .max_by_key(|p| (p.timing.done, p.id))
+            .map(|p| p.id))
+    }
+
+    fn set_recount_outcome(
+        &self,
+        result: i64,
+        verdict: &str,
+        outcome: Option<&str>,
+        first_count_wrong: bool,
+    ) -> Result<(), StoreError> {
+        let mut rows = self.results.borrow_mut();
+        let r = &mut rows[result as usize - 1];
+        r.verdict = verdict.into();
+        r.recount_outcome = outcome.map(str::to_string);
+        r.first_count_wrong = first_count_wrong;
+        Ok(())
+    }
+
+    fn send_recount(
+        &self,
+        pass: &PassFacts,
+        results: &[i64],
+        supervisor: bool,
+        _: &Sent,
+    ) -> Result<Vec<i64>, StoreError> {
+        if results.is_empty() {
+            return Ok(Vec::new());
+        }
+        let of_pass: BTreeSet<i64> = self
+            .results
+            .borrow()
+            .iter()
+            .filter(|r| r.pass == pass.id)
+            .map(|r| r.id)
+            .collect();
+        let open = self
+            .live_tasks()
+            .into_iter()
+            .find(|t| {
+                t.supervisor == supervisor
+                    && t.results.iter().any(|r| of_pass.contains(r))
+                    && self.counted_against(t.id).is_empty()
+            })
+            .map(|t| t.id);
+        let mut tasks = self.tasks.borrow_mut();
+        if let Some(id) = open {
+            let t = tasks.iter_mut().find(|t| t.id == id).unwrap();
+            for r in results {
+                if !t.results.contains(r) {
+                    t.results.push(*r);
+                }
+            }
+            return Ok(Vec::new());
+        }
+        let id = tasks.len() as i64 + 1;
+        tasks.push(Task {
+            id,
+            supervisor,
+            results: results.to_vec(),
+            withdrawn: None,
+        });
+        Ok(vec![id])
+    }
+
+    fn open_tasks_of(&self, first_pass: i64) -> Result<Vec<OpenTask>, StoreError> {
+        let of_pass: BTreeSet<i64> = self
+            .results
+            .borrow()
+            .iter()
+            .filter(|r| r.pass == first_pass)
+            .map(|r| r.id)
+            .collect();
+        Ok(self
+            .live_tasks()
+            .iter()
+            .filter(|t| t.results.iter().any(|r| of_pass.contains(r)))
+            .filter(|t| self.counted_against(t.id).is_empty())
+            .map(|t| OpenTask {
+                id: t.id,
+                list: 1,
+                supervisor: t.supervisor,
+            })
+            .collect())
+    }
+
+    fn withdraw_task(&self, task: OpenTask, _: Timestamp, why: &str) -> Result<(), StoreError> {
+        let mut tasks = self.tasks.borrow_mut();
+        tasks
+            .iter_mut()
+            .find(|t| t.id == task.id)
+            .unwrap()
+            .withdrawn = Some(why.into());
+        Ok(())
+    }
+}
+
+/// Forty of S1 and twenty of S2 received at 1 s.
+fn stocked() -> Memory {
+    let m = Memory::new();
+    m.movement("r1", 1, 40, 1_000);
+    m.movement("r2", 2, 20, 1_000);
+    m
+}
+
+#[test]
+fn a_pick_during_the_count_is_netted_not_flagged() {
+    // DESIGN §4: the count of 37 matches the book after the pick of 3 inside its window.
+    let m = stocked();
+    m.movement("p1", 1, -3, 15_000);
+    m.pass(1, "cora", None, &[(1, 37, 18_000), (2, 20, 18_500)]);
+    let out = m.net_all(1);
+    assert_eq!(out.written.len(), 2);
+    assert!(out.tasks.is_empty(), "{out:?}");
+    let r = m.current(1, 1);
+    assert_eq!((r.counted, r.f_star, r.verdict.as_str()), (37, 37, "hit"));
+}
+
+#[test]
+fn out_of_tolerance_keys_of_one_count_go_to_one_recount_of_the_bin() {
+    let m = stocked();
+    m.pass(1, "cora", None, &[(1, 30, 18_000), (2, 19, 18_500)]);
+    let out = m.net_all(1);
+    // Class A is judged exact (common practice, no source): both keys are out.
+    assert_eq!(m.current(1, 1).verdict, VERDICT_OUT);
+    assert_eq!(m.current(1, 2).verdict, VERDICT_OUT);
+    assert_eq!(out.tasks.len(), 1, "one recount for the bin: {out:?}");
+    let tasks = m.live_tasks();
+    assert_eq!(tasks.len(), 1);
+    assert_eq!(tasks[0].results.len(), 2, "it re-checks both keys");
+    // Netting the same pass again writes nothing and sends nothing.
+    let again = pass::net(&m, 1, None, "again", Timestamp(10_000_000)).unwrap();
+    assert_eq!(again, NetOutcome::default());
+}
+
+#[test]
+fn a_late_pick_re_nets_keeps_the_old_row_and_withdraws_the_recount() {
+    // Only S1 in the bin: S2 (not scanned, book 20) would keep the recount for itself.
+    let m = Memory::new();
+    m.movement("r1", 1, 40, 1_000);
+    m.pass(1, "cora", None, &[(1, 30, 18_000)]);
+    m.net_all(1);
+    let first = m.current(1, 1);
+    assert_eq!(first.verdict, VERDICT_OUT);
+    // The host posts a pick of 10 stamped inside the count, after the count arrived.
+    let late = m.movement("p-late", 1, -10, 17_000);
+    let out = pass::after_movements(&m, SITE, &[late], Timestamp(11_000_000)).unwrap();
+    assert_eq!(out.written.len(), 1);
+    let now = m.current(1, 1);
+    assert_eq!((now.f_star, now.verdict.as_str()), (30, "hit"));
+    assert!(now.reason.contains("p-late"), "{}", now.reason);
+    let old = &m.results.borrow()[first.id as usize - 1];
+    assert_eq!(
+        old.superseded_by,
+        Some(now.id),
+        "the old row stays, superseded"
+    );
+    assert!(m.live_tasks().is_empty(), "the recount is withdrawn");
+    let why = m.tasks.borrow()[0].withdrawn.clone().unwrap();
+    assert!(
+        why.contains("no key it re-checks is out of tolerance"),
+        "{why}"
+    );
+}
+
+#[test]
+fn a_recount_stays_while_one_key_it_re_checks_is_still_out() {
+    // S2 is in the bin and not scanned: netted as a count of 0 against a book of 20.
+    let m = stocked();
+    m.pass(1, "cora", None, &[(1, 30, 18_000)]);
+    m.net_all(1);
+    assert_eq!(m.current(1, 2).counted, 0);
+    assert_eq!(m.live_tasks()[0].results.len(), 2);
+    let late = m.movement("p-late", 1, -10, 17_000);
+    pass::after_movements(&m, SITE, &[late], Timestamp(11_000_000)).unwrap();
+    assert_eq!(m.current(1, 1).verdict, "hit");
+    assert_eq!(m.live_tasks().len(), 1, "S2 still needs the recount");
+}
+
+#[test]
+fn a_movement_outside_every_count_window_re_nets_nothing() {
+    let m = stocked();
+    m.pass(1, "cora", None, &[(1, 40, 18_000)]);
+    m.net_all(1);
+    let later = m.movement("p-after", 1, -5, 60_000);
+    let out = pass::after_movements(&m, SITE, &[later], Timestamp(11_000_000)).unwrap();
+    assert_eq!(out, NetOutcome::default());
+}
+
+/// What a result says, without ids: item, counted, book, verdict.
+fn essence(m: &Memory) -> Vec<(i64, i64, i64, String)> {
+    let mut out: Vec<_> = m
+        .results
+        .borrow()
+        .iter()
+        .filter(|r| r.superseded_by.is_none())
+        .map(|r| (r.key.0, r.counted, r.f_star, r.verdict.clone()))
+        .collect();
+    out.sort();
+    out
+}
+
+#[test]
+fn results_do_not_depend_on_whether_movements_arrive_before_or_after_the_count() {
+    let moves = [
+        ("p1", 1, -3, 15_000),
+        ("p2", 2, -4, 16_000),
+        ("p3", 1, -2, 19_000),
+    ];
+    let lines = [(1, 37, 17_000), (2, 16, 18_000)];
+
+    let before = stocked();
+    for (uid, item, d, at) in moves {
+        before.movement(uid, item, d, at);
+    }
+    before.pass(1, "cora", None, &lines);
+    before.net_all(1);
+
+    let after = stocked();
+    after.pass(1, "cora", None, &lines);
+    after.net_all(1);
+    let written: Vec<WrittenMove> = moves
+        .iter()
+        .map(|&(uid, item, d, at)| after.movement(uid, item, d, at))
+        .collect();
+    pass::after_movements(&after, SITE, &written, Timestamp(11_000_000)).unwrap();
+
+    assert_eq!(essence(&before), essence(&after));
+    assert!(
+        essence(&before).iter().all(|e| e.3 == "hit"),
+        "{:?}",
+        essence(&before)
+    );
+}
+
+#[test]
+fn a_recount_confirms_clears_or_calls_a_supervisor() {
+    // DESIGN §5: a recount that finds the first count's figure confirms the difference; one
+    // that finds the book clears it (the first count was wrong); one that agrees with
+    // neither calls a supervisor count.
+    for (recounted, verdict, outcome, supervisor) in [
+        (30, VERDICT_OUT, "confirmed", false),
+        (40, "hit", "book_right", false),
+        (35, VERDICT_OUT, "supervisor_count", true),
+    ] {
+        let m = stocked();
+        m.pass(1, "cora", None, &[(1, 30, 18_000)]);
+        m.net_all(1);
+        let task = m.live_tasks()[0].id;
+        m.pass(2, "dev", Some(task), &[(1, recounted, 30_000)]);
+        let out = m.net_all(2);
+        let first = m.current(1, 1);
+        assert_eq!(first.verdict, verdict, "recount of {recounted}");
+        assert_eq!(first.recount_outcome.as_deref(), Some(outcome));
+        assert_eq!(first.first_count_wrong, outcome == "book_right");
+        let supervisor_tasks = m.live_tasks().iter().filter(|t| t.supervisor).count();
+        assert_eq!(supervisor_tasks, usize::from(supervisor), "{out:?}");
+    }
+}
+
+#[test]
+fn a_held_pass_is_out_of_tolerance_whatever_its_variance() {
+    let m = stocked();
+    m.pass(1, "cora", None, &[(1, 40, 18_000)]);
+    m.passes.borrow_mut().get_mut(&1).unwrap().held = Some("the phone's clock moved".into());
+    m.net_all(1);
+    let r = m.current(1, 1);
+    assert_eq!(
+        (r.counted, r.f_star, r.verdict.as_str()),
+        (40, 40, VERDICT_OUT)
+    );
+    assert!(
+        matches!(r.evidence.judged, Verdict::Held { .. }),
+        "{:?}",
+        r.evidence.judged
+    );
+}
+
+#[test]
+fn an_open_pass_is_not_netted() {
+    let m = stocked();
+    m.pass(1, "cora", None, &[(1, 30, 18_000)]);
+    m.passes.borrow_mut().get_mut(&1).unwrap().timing.done = None;
+    assert_eq!(m.net_all(1), NetOutcome::default());
+    assert_eq!(
+        pass::net(&m, 1, None, "", Timestamp(1)).unwrap(),
+        NetOutcome::default()
+    );
+}
