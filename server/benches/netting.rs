@@ -306,7 +306,14 @@ fn main() {
     let mut tasks = 0;
     let now = Timestamp(COUNT_AT + DAY_MS);
     for p in &passes {
-        let out = cairn::netting::pass::net(&tx, *p, None, "", now).unwrap();
+        let out = cairn::netting::pass::net(
+            &cairn::store::sqlite::Tx::new(&tx, opts.snapshot_every),
+            *p,
+            None,
+            "",
+            now,
+        )
+        .unwrap();
         written += out.written.len();
         tasks += out.tasks.len();
     }

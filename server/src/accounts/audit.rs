@@ -154,6 +154,11 @@ impl AuditEvent {
     }
 }
 
+/// Writing an audit event inside a workflow's transaction.
+pub trait AuditTx {
+    fn insert_audit(&self, event: &AuditEvent) -> Result<(), crate::store::StoreError>;
+}
+
 /// Builds the audit event of an API batch that was written.
 pub fn api_batch(by: &super::Principal, site: SiteId, what: &str, detail: Value) -> AuditEvent {
     AuditEvent::now(by.actor(), Action::ApiBatch, what)

@@ -280,6 +280,36 @@ pub struct BalanceRow {
     pub qty: i64,
 }
 
+/// The ledger's write inside one transaction: the store checks a batch against what it
+/// holds (bins, items, lots, reversals, resends) and writes all rows or none.
+pub trait LedgerTx {
+    /// Appends a batch; returns the outcome and the movements actually written (a
+    /// resend writes none), in batch order.
+    fn append_movements(
+        &self,
+        site: crate::master::SiteId,
+        rows: &[NewMovement],
+        now: Timestamp,
+        progress: &crate::store::Progress,
+    ) -> Result<(RecordOutcome, Vec<crate::netting::pass::WrittenMove>), crate::store::StoreError>;
+}
+
+/// Records a movement batch and re-nets, in the same transaction, every count its
+/// movements reach (DESIGN §4), so a result and the ledger never disagree. Every write
+/// path that adds movements (a host batch, an import, an approval, an automatic
+/// adjustment) goes through here.
+pub fn append<T: LedgerTx + crate::netting::pass::NettingTx>(
+    tx: &T,
+    site: crate::master::SiteId,
+    rows: &[NewMovement],
+    now: Timestamp,
+    progress: &crate::store::Progress,
+) -> Result<(RecordOutcome, Vec<crate::netting::pass::WrittenMove>), crate::store::StoreError> {
+    let (outcome, written) = tx.append_movements(site, rows, now, progress)?;
+    crate::netting::pass::after_movements(tx, site, &written, now)?;
+    Ok((outcome, written))
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;

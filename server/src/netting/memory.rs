@@ -95,6 +95,7 @@ impl Memory {
             },
         ));
         WrittenMove {
+            id,
             uid: uid.into(),
             bin_id: BIN,
             key: key(item),

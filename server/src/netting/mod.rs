@@ -17,6 +17,7 @@ pub mod results;
 pub mod routes;
 pub mod rule;
 pub mod service;
+pub mod settle;
 pub mod tolerance;
 
 #[cfg(test)]

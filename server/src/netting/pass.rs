@@ -529,6 +529,8 @@ pub fn after_sync(
 /// A movement just written, as the re-net needs it.
 #[derive(Debug, Clone, PartialEq, Eq)]
 pub struct WrittenMove {
+    /// The ledger's id (its sequence number).
+    pub id: i64,
     pub uid: String,
     pub bin_id: i64,
     pub key: ItemLot,

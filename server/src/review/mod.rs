@@ -8,6 +8,7 @@
 //! draws it, `store` names what the review needs from storage, `pages` and
 //! `routes` are the HTTP side.
 
+pub mod decide;
 pub mod evidence;
 pub mod pages;
 pub mod routes;

@@ -1,41 +1,15 @@
-//! SQL of automatic count adjustments (DESIGN §5): where a site allows it, a current,
-//! settled hit with a non-zero variance is posted without a review, once, by the same
-//! posting path an approval takes, and recorded in `count_auto_adjustment` (one row per
-//! result and per movement, so running twice posts nothing new). It runs inside the
-//! settling transaction (`netting::settle_due`); which results qualify is decided by
-//! `netting::service::adjusts_automatically` over the candidates the query below finds.
+//! SQL of settling and automatic count adjustments: the queries and writes of
+//! [`SettleTx`] (the workflow is `netting::settle`'s) and the automatic adjustment of a
+//! result, for its page.
 
-use super::review::{Posting, post_count_adjustment};
-use crate::accounts::audit::Actor;
+use super::Tx;
 use crate::master::SiteId;
-use crate::netting::service::{self, Evidence};
+use crate::netting::settle::{AutoCandidate, SettleTx};
 use crate::planning::abc::Class;
 use crate::review::store::AutoAdjustment;
-use crate::review::{AUTO_REASON, AUTO_REASON_CODE};
 use crate::store::StoreError;
-use crate::store::sqlite::netting::netting_settings;
 use crate::time::Timestamp;
-use rusqlite::{Connection, OptionalExtension, Transaction, params};
-use serde_json::json;
-
-/// Most automatic adjustments one settling pass posts; the rest wait for the next pass
-/// (a minute later under `cairn serve`), so one pass never holds the writer for long.
-pub const MAX_AUTO_PER_PASS: usize = 1_000;
-/// Most candidates one settling pass looks at, posted or passed over.
-const MAX_CANDIDATES_PER_PASS: usize = 10_000;
-
-/// A result that may be adjusted automatically, as the query finds it.
-struct Candidate {
-    id: i64,
-    site: SiteId,
-    bin: String,
-    sku: String,
-    lot: String,
-    variance: i64,
-    class: Option<String>,
-    unit_cost_minor: i64,
-    evidence: String,
-}
+use rusqlite::{Connection, OptionalExtension, params};
 
 /// Finds the next candidate after result `after`: current, a hit with a variance,
 /// settled, not decided by a person, not adjusted yet (nor any row of the same key of
@@ -49,7 +23,7 @@ fn next_candidate(
     conn: &Connection,
     after: i64,
     now: Timestamp,
-) -> Result<Option<Candidate>, StoreError> {
+) -> Result<Option<AutoCandidate>, StoreError> {
     Ok(conn
         .prepare_cached(
             "select r.id, r.site_id, b.code, i.sku, r.lot, r.variance, r.class,
@@ -81,93 +55,22 @@ fn next_candidate(
              order by r.id limit 1",
         )?
         .query_row(params![after, now.0], |r| {
-            Ok(Candidate {
+            Ok(AutoCandidate {
                 id: r.get(0)?,
                 site: SiteId(r.get(1)?),
                 bin: r.get(2)?,
                 sku: r.get(3)?,
                 lot: r.get(4)?,
                 variance: r.get(5)?,
-                class: r.get(6)?,
+                class: r
+                    .get::<_, Option<String>>(6)?
+                    .as_deref()
+                    .and_then(Class::parse),
                 unit_cost_minor: r.get(7)?,
                 evidence: r.get(8)?,
             })
         })
         .optional()?)
-}
-
-/// Posts the automatic adjustments due, inside the settling transaction: each one a
-/// `count_adjustment` movement of `c − f*` at the result's posting instant (its
-/// evidence's `post_at`, where an approval posts too), source `count`, actor `system`,
-/// with its `adjustment` audit event and its `count_auto_adjustment` row. Returns what
-/// was posted, oldest result first.
-pub fn post_due(
-    tx: &Transaction,
-    now: Timestamp,
-    snapshot_every: i64,
-) -> Result<Vec<AutoAdjustment>, StoreError> {
-    let mut posted = Vec::new();
-    let mut after = 0;
-    for _ in 0..MAX_CANDIDATES_PER_PASS {
-        if posted.len() >= MAX_AUTO_PER_PASS {
-            break;
-        }
-        let Some(c) = next_candidate(tx, after, now)? else {
-            break;
-        };
-        after = c.id;
-        let evidence: Evidence = match serde_json::from_str(&c.evidence) {
-            Ok(e) => e,
-            Err(e) => {
-                tracing::warn!(
-                    "result {} is not adjusted automatically: its evidence does not parse: {e}",
-                    c.id
-                );
-                continue;
-            }
-        };
-        let settings = netting_settings(tx, c.site)?;
-        let class = c.class.as_deref().and_then(Class::parse);
-        if !service::adjusts_automatically(&settings, class, c.unit_cost_minor, &evidence)
-            || evidence.netting.variance != c.variance
-        {
-            continue;
-        }
-        let event_at = evidence.netting.post_at;
-        let out = post_count_adjustment(
-            tx,
-            c.site,
-            &Posting {
-                result: c.id,
-                bin: &c.bin,
-                sku: &c.sku,
-                lot: &c.lot,
-                qty: c.variance,
-                event_at,
-                doc_ref: format!("auto-{}", c.id),
-                actor: &Actor::System,
-                address: "",
-                at: now,
-                detail: json!({"result": c.id, "automatic": true,
-                               "reason_code": AUTO_REASON_CODE, "reason": AUTO_REASON}),
-            },
-            snapshot_every,
-        )?;
-        tx.prepare_cached(
-            "insert into count_auto_adjustment (result_id, movement_id, posted_at)
-             values (?1, ?2, ?3)",
-        )?
-        .execute(params![c.id, out.movement_id, now.0])?;
-        posted.push(AutoAdjustment {
-            id: tx.last_insert_rowid(),
-            result: c.id,
-            movement: out.uid,
-            qty: c.variance,
-            event_at,
-            posted_at: now,
-        });
-    }
-    Ok(posted)
 }
 
 /// Reads the automatic adjustment of a result, if it has one.
@@ -189,4 +92,37 @@ pub fn of_result(conn: &Connection, result: i64) -> Result<Option<AutoAdjustment
             })
         })
         .optional()?)
+}
+
+impl SettleTx for Tx<'_> {
+    fn mark_settled(&self, now: Timestamp) -> Result<usize, StoreError> {
+        Ok(self
+            .prepare_cached(
+                "update count_result set settled = 1
+                 where settled = 0 and superseded_by is null and settles_at < ?1",
+            )?
+            .execute([now.0])?)
+    }
+
+    fn next_auto_candidate(
+        &self,
+        after: i64,
+        now: Timestamp,
+    ) -> Result<Option<AutoCandidate>, StoreError> {
+        next_candidate(self, after, now)
+    }
+
+    fn insert_auto_adjustment(
+        &self,
+        result: i64,
+        movement: i64,
+        at: Timestamp,
+    ) -> Result<i64, StoreError> {
+        self.prepare_cached(
+            "insert into count_auto_adjustment (result_id, movement_id, posted_at)
+             values (?1, ?2, ?3)",
+        )?
+        .execute(params![result, movement, at.0])?;
+        Ok(self.last_insert_rowid())
+    }
 }

@@ -4,6 +4,7 @@
 use crate::batch::RowError;
 use crate::ledger::{BalanceRow, Movement, MovementKind, NewMovement, RecordOutcome};
 use crate::master::SiteId;
+use crate::netting::pass::WrittenMove;
 use crate::store::{
     BalancePage, BalanceQuery, HistoryPage, HistoryQuery, HistorySubject, Progress, StoreError,
 };
@@ -109,7 +110,7 @@ pub fn insert_movements(
     now: Timestamp,
     snapshot_every: i64,
     progress: &Progress,
-) -> Result<RecordOutcome, StoreError> {
+) -> Result<(RecordOutcome, Vec<WrittenMove>), StoreError> {
     let mut codes = Codes {
         bins: HashMap::new(),
         items: HashMap::new(),
@@ -253,7 +254,8 @@ pub fn insert_movements(
             lot_q.execute(params![item_id, m.lot, m.expiry.map(|d| d.to_string())])?;
         }
         apply_to_balance(tx, &key, m.qty, m.event_at.0, snapshot_every)?;
-        written_moves.push(crate::netting::pass::WrittenMove {
+        written_moves.push(WrittenMove {
+            id: ids[i].unwrap_or_default(),
             uid: m.uid.as_str().to_string(),
             bin_id: key.bin_id,
             key: (key.item_id, key.lot),
@@ -269,11 +271,9 @@ pub fn insert_movements(
         return Err(StoreError::Rejected(errors));
     }
     progress.tick((rows.len() % PROGRESS_EVERY) as u64);
-    // Results of counts these movements reach are re-netted in this same transaction.
     drop((insert, lot_q, reversed_q));
-    crate::netting::pass::after_movements(tx, site, &written_moves, now)?;
     outcome.watermark = watermark(tx)?;
-    Ok(outcome)
+    Ok((outcome, written_moves))
 }
 
 /// Adds one delta to the current balance and to every snapshot it falls under,

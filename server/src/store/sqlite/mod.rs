@@ -117,6 +117,49 @@ impl SqliteStore {
     }
 }
 
+/// One write transaction as the domain's transaction traits see it (`NettingTx`,
+/// `LedgerTx`, `ReviewTx`, `SettleTx`, `AuditTx`): the SQLite transaction and the
+/// settings its writes need. It derefs to the transaction for the SQL helpers.
+pub struct Tx<'a> {
+    sql: &'a rusqlite::Transaction<'a>,
+    snapshot_every: i64,
+}
+
+impl<'a> Tx<'a> {
+    /// Wraps a transaction; `snapshot_every` is the ledger's snapshot spacing.
+    pub fn new(sql: &'a rusqlite::Transaction<'a>, snapshot_every: i64) -> Self {
+        Self {
+            sql,
+            snapshot_every,
+        }
+    }
+}
+
+impl<'a> std::ops::Deref for Tx<'a> {
+    type Target = rusqlite::Transaction<'a>;
+    fn deref(&self) -> &Self::Target {
+        self.sql
+    }
+}
+
+impl crate::ledger::LedgerTx for Tx<'_> {
+    fn append_movements(
+        &self,
+        site: SiteId,
+        rows: &[NewMovement],
+        now: Timestamp,
+        progress: &Progress,
+    ) -> Result<(RecordOutcome, Vec<crate::netting::pass::WrittenMove>), StoreError> {
+        ledger::insert_movements(self, site, rows, now, self.snapshot_every, progress)
+    }
+}
+
+impl crate::accounts::audit::AuditTx for Tx<'_> {
+    fn insert_audit(&self, event: &AuditEvent) -> Result<(), StoreError> {
+        accounts::insert_audit(self, event)
+    }
+}
+
 /// Writes a batch's audit event in the batch's own transaction, with the counts
 /// it wrote added to the event's detail, so the two commit or vanish together.
 fn audit_in(
@@ -273,13 +316,14 @@ impl Store for SqliteStore {
     ) -> Result<RecordOutcome, StoreError> {
         let every = self.opts.snapshot_every;
         self.write_tx(move |tx| {
-            let outcome =
-                ledger::insert_movements(tx, site, &rows, Timestamp::now(), every, &progress)?;
+            let tx = Tx::new(tx, every);
+            let (outcome, _) =
+                crate::ledger::append(&tx, site, &rows, Timestamp::now(), &progress)?;
             let counts = serde_json::json!({
                 "recorded": outcome.recorded,
                 "already_recorded": outcome.already_recorded,
             });
-            audit_in(tx, audit, counts)?;
+            audit_in(&tx, audit, counts)?;
             Ok(outcome)
         })
         .await
@@ -433,11 +477,16 @@ impl Store for SqliteStore {
         // Netting runs in the request's own transaction (a savepoint of a group commit
         // when several phones sync at once): the acknowledgement the phone deletes its
         // copy on and the results of the passes it finished commit together.
+        let every = self.opts.snapshot_every;
         let (results, netted) = self
             .write_shared(move |tx| {
                 let results = sync::apply_sync(tx, &batch)?;
                 let applied = batch.applied(&results);
-                let netted = crate::netting::pass::after_sync(tx, &applied, Timestamp::now())?;
+                let netted = crate::netting::pass::after_sync(
+                    &Tx::new(tx, every),
+                    &applied,
+                    Timestamp::now(),
+                )?;
                 Ok((results, netted.written.len() as u64))
             })
             .await?;
@@ -604,15 +653,22 @@ impl Store for SqliteStore {
         pass: Option<String>,
         reason: String,
     ) -> Result<netting::NetOutcome, StoreError> {
+        let every = self.opts.snapshot_every;
         self.write_tx(move |tx| {
-            crate::netting::pass::renet_passes(tx, site, pass.as_deref(), &reason, Timestamp::now())
+            crate::netting::pass::renet_passes(
+                &Tx::new(tx, every),
+                site,
+                pass.as_deref(),
+                &reason,
+                Timestamp::now(),
+            )
         })
         .await
     }
 
     async fn settle_results(&self, now: Timestamp) -> Result<netting::SettleOutcome, StoreError> {
         let every = self.opts.snapshot_every;
-        self.write_tx(move |tx| netting::settle_due(tx, now, every))
+        self.write_tx(move |tx| crate::netting::settle::settle_due(&Tx::new(tx, every), now))
             .await
     }
 }

@@ -3,32 +3,25 @@
 //! movement through the ledger's own insert path, in the same transaction as
 //! its review row) and the feed of posted adjustments.
 
-use super::SqliteStore;
-use super::accounts::insert_audit;
-use super::ledger::insert_movements;
+use super::{SqliteStore, Tx};
 use crate::accounts::UserId;
-use crate::accounts::audit::{Action, Actor, AuditEvent};
-use crate::ledger::{MovementKind, NewMovement};
 use crate::master::SiteId;
-use crate::master::codes::{BinCode, MovementUid, Sku};
-use crate::review::evidence::Evidence;
+use crate::review::decide::{DecisionFacts, ReviewTx};
 use crate::review::store::{
     AdjustmentRow, Decided, DifferenceDetail, DifferenceFilter, DifferenceRow, NewDecision,
     OtherRow, RecountRow, ReviewRow, ReviewStore, ScanLine, WindowMove,
 };
 use crate::review::{
-    AUTO_REASON_CODE, Candidate, Decision, MAX_FEED_ROWS, MAX_LIST_ROWS, ReasonCode, Refusal,
-    ReviewPolicy, check_decision, default_reasons, value_minor,
+    AUTO_REASON_CODE, Candidate, MAX_FEED_ROWS, MAX_LIST_ROWS, ReasonCode, Refusal, ReviewPolicy,
+    default_reasons, value_minor,
 };
-use crate::store::{Progress, StoreError};
+use crate::store::StoreError;
 use crate::time::Timestamp;
 use async_trait::async_trait;
 use rusqlite::{Connection, OptionalExtension, Row, Transaction, params};
-use serde_json::json;
 use std::collections::BTreeSet;
 
-/// The source every count adjustment is recorded with.
-pub const COUNT_SOURCE: &str = "count";
+pub use crate::review::decide::COUNT_SOURCE;
 /// Most movements the detail page lists around a window.
 const MAX_WINDOW_MOVES: i64 = 200;
 /// Least time shown on each side of a window on the detail page, ms.
@@ -447,16 +440,11 @@ fn recounts(conn: &Connection, f: &ResultFacts) -> Result<Vec<RecountRow>, Store
     Ok(out)
 }
 
-/// The candidate of a decision, read inside the writer's transaction.
-struct Stored {
-    candidate: Candidate,
-    facts: ResultFacts,
-    variance: i64,
-    bin: String,
-    sku: String,
-}
-
-fn stored_candidate(tx: &Transaction, site: SiteId, id: i64) -> Result<Option<Stored>, StoreError> {
+fn decision_facts(
+    tx: &Transaction,
+    site: SiteId,
+    id: i64,
+) -> Result<Option<DecisionFacts>, StoreError> {
     let Some(facts) = result_facts(tx, site, id)? else {
         return Ok(None);
     };
@@ -468,7 +456,7 @@ fn stored_candidate(tx: &Transaction, site: SiteId, id: i64) -> Result<Option<St
         .query_row([id], |r| r.get(0))
         .optional()?;
     let counters = counters(tx, facts.pass_id, facts.bin_id)?;
-    Ok(Some(Stored {
+    Ok(Some(DecisionFacts {
         candidate: Candidate {
             id,
             verdict: facts.verdict.clone(),
@@ -480,10 +468,11 @@ fn stored_candidate(tx: &Transaction, site: SiteId, id: i64) -> Result<Option<St
             recount_pending: row.recount == "pending",
             counters,
         },
-        facts,
+        evidence: facts.evidence,
         variance: row.variance,
         bin: row.bin,
         sku: row.sku,
+        lot: facts.lot,
     }))
 }
 
@@ -501,213 +490,6 @@ fn insert_review(tx: &Transaction, d: &NewDecision, decision: &str) -> Result<i6
         d.at.0
     ])?;
     Ok(tx.last_insert_rowid())
-}
-
-/// One count adjustment to post: what, where, when, and who it is recorded for.
-pub(super) struct Posting<'a> {
-    /// The result the adjustment settles.
-    pub result: i64,
-    pub bin: &'a str,
-    pub sku: &'a str,
-    pub lot: &'a str,
-    /// `c − f*` of the result.
-    pub qty: i64,
-    /// The result's posting instant, from its evidence.
-    pub event_at: Timestamp,
-    pub doc_ref: String,
-    pub actor: &'a Actor,
-    pub address: &'a str,
-    /// When it is recorded (the movement's `recorded_at`, the audit event's time).
-    pub at: Timestamp,
-    /// What the audit event says besides the movement: the review, or that it was automatic.
-    pub detail: serde_json::Value,
-}
-
-/// The movement a posting wrote.
-pub(super) struct Posted {
-    pub uid: String,
-    pub movement_id: i64,
-}
-
-/// Posts one count adjustment inside the caller's transaction, as approvals and automatic
-/// adjustments both do: one `count_adjustment` movement through the ledger's insert path
-/// (balances, snapshots and the re-net of the key stay right) and its `adjustment` audit
-/// event. A refusal by the ledger is a programming error here: the result's bin, item and
-/// lot were stored by the netting itself.
-pub(super) fn post_count_adjustment(
-    tx: &Transaction,
-    site: SiteId,
-    p: &Posting,
-    snapshot_every: i64,
-) -> Result<Posted, StoreError> {
-    let stored_code = |what: &str, e: String| {
-        StoreError::Internal(anyhow::anyhow!(
-            "stored {what} of result {} is invalid: {e}",
-            p.result
-        ))
-    };
-    let uid = uuid::Uuid::now_v7().to_string();
-    let movement = NewMovement {
-        uid: MovementUid::parse(&uid).map_err(|e| stored_code("uid", e.to_string()))?,
-        bin: BinCode::parse(p.bin).map_err(|e| stored_code("bin", e.to_string()))?,
-        sku: Sku::parse(p.sku).map_err(|e| stored_code("sku", e.to_string()))?,
-        lot: p.lot.to_string(),
-        expiry: None,
-        qty: p.qty,
-        kind: MovementKind::CountAdjustment,
-        event_at: p.event_at,
-        source: COUNT_SOURCE.into(),
-        doc_ref: p.doc_ref.clone(),
-        actor: p.actor.name().to_string(),
-        reverses: None,
-        recorded_at: None,
-    };
-    insert_movements(
-        tx,
-        site,
-        std::slice::from_ref(&movement),
-        p.at,
-        snapshot_every,
-        &Progress::default(),
-    )
-    .map_err(|e| match e {
-        StoreError::Rejected(rows) => StoreError::Internal(anyhow::anyhow!(
-            "the count adjustment of result {} was refused by the ledger: {rows:?}",
-            p.result
-        )),
-        other => other,
-    })?;
-    let movement_id: i64 = tx
-        .prepare_cached("select id from movement where uid = ?1")?
-        .query_row([&uid], |r| r.get(0))?;
-    let mut detail = json!({"bin": p.bin, "sku": p.sku, "lot": p.lot, "qty": p.qty,
-                            "event_at": p.event_at.to_string()});
-    if let (Some(d), Some(extra)) = (detail.as_object_mut(), p.detail.as_object()) {
-        d.extend(extra.clone());
-    }
-    let mut event = AuditEvent::now(p.actor.clone(), Action::Adjustment, uid.clone())
-        .at_site(site)
-        .from_address(p.address)
-        .detail(detail);
-    event.at = p.at;
-    insert_audit(tx, &event)?;
-    Ok(Posted { uid, movement_id })
-}
-
-/// Takes one approval inside the caller's transaction.
-fn approve_one(
-    tx: &Transaction,
-    site: SiteId,
-    d: &NewDecision,
-    policy: &ReviewPolicy,
-    reasons: &[ReasonCode],
-    bulk: bool,
-    snapshot_every: i64,
-) -> Result<Result<Decided, Refusal>, StoreError> {
-    let Some(s) = stored_candidate(tx, site, d.result)? else {
-        return Ok(Err(Refusal::NotFound(d.result)));
-    };
-    if let Err(r) = check_decision(
-        &s.candidate,
-        &d.decider,
-        policy,
-        Decision::Approve { bulk },
-        d.at,
-    ) {
-        return Ok(Err(r));
-    }
-    if !reasons.iter().any(|r| r.code == d.reason) {
-        return Ok(Err(Refusal::UnknownReason(d.reason.clone())));
-    }
-    let Ok(post_at) = Evidence::parse(&s.facts.evidence).and_then(|e| e.posting_instant()) else {
-        return Ok(Err(Refusal::NoPostingInstant(d.result)));
-    };
-    if s.variance == 0 {
-        return Ok(Err(Refusal::NotADifference {
-            id: d.result,
-            verdict: "no variance".into(),
-        }));
-    }
-    let review = insert_review(tx, d, "approved")?;
-    insert_audit(
-        tx,
-        &AuditEvent::now(
-            d.actor.clone(),
-            Action::Approval,
-            format!("difference {}", d.result),
-        )
-        .at_site(site)
-        .from_address(&d.address)
-        .detail(
-            json!({"review": review, "result": d.result, "decision": "approved",
-                   "reason_code": d.reason, "value_minor": s.candidate.value_minor,
-                   "bulk": bulk}),
-        ),
-    )?;
-    let posted = post_count_adjustment(
-        tx,
-        site,
-        &Posting {
-            result: d.result,
-            bin: &s.bin,
-            sku: &s.sku,
-            lot: &s.facts.lot,
-            qty: s.variance,
-            event_at: post_at,
-            doc_ref: review.to_string(),
-            actor: &d.actor,
-            address: &d.address,
-            at: d.at,
-            detail: json!({"review": review}),
-        },
-        snapshot_every,
-    )?;
-    tx.prepare_cached("update count_review set movement_id = ?1 where id = ?2")?
-        .execute(params![posted.movement_id, review])?;
-    let uid = posted.uid;
-    Ok(Ok(Decided {
-        result: d.result,
-        review,
-        movement: Some(uid),
-    }))
-}
-
-fn reject_one(
-    tx: &Transaction,
-    site: SiteId,
-    d: &NewDecision,
-    policy: &ReviewPolicy,
-    reasons: &[ReasonCode],
-) -> Result<Result<Decided, Refusal>, StoreError> {
-    let Some(s) = stored_candidate(tx, site, d.result)? else {
-        return Ok(Err(Refusal::NotFound(d.result)));
-    };
-    if let Err(r) = check_decision(&s.candidate, &d.decider, policy, Decision::Reject, d.at) {
-        return Ok(Err(r));
-    }
-    if !d.reason.is_empty() && !reasons.iter().any(|r| r.code == d.reason) {
-        return Ok(Err(Refusal::UnknownReason(d.reason.clone())));
-    }
-    let review = insert_review(tx, d, "rejected")?;
-    insert_audit(
-        tx,
-        &AuditEvent::now(
-            d.actor.clone(),
-            Action::Approval,
-            format!("difference {}", d.result),
-        )
-        .at_site(site)
-        .from_address(&d.address)
-        .detail(
-            json!({"review": review, "result": d.result, "decision": "rejected",
-                           "reason_code": d.reason, "value_minor": s.candidate.value_minor}),
-        ),
-    )?;
-    Ok(Ok(Decided {
-        result: d.result,
-        review,
-        movement: None,
-    }))
 }
 
 /// Lists posted count adjustments after ledger sequence `after`: approved ones and those
@@ -793,13 +575,7 @@ impl ReviewStore for SqliteStore {
     ) -> Result<Vec<Result<Decided, Refusal>>, StoreError> {
         let every = self.opts.snapshot_every;
         self.write_tx(move |tx| {
-            seed_reason_codes(tx, site)?;
-            let policy = review_policy(tx, site)?;
-            let reasons = reason_codes(tx, site)?;
-            decisions
-                .iter()
-                .map(|d| approve_one(tx, site, d, &policy, &reasons, bulk, every))
-                .collect()
+            crate::review::decide::approve(&Tx::new(tx, every), site, &decisions, bulk)
         })
         .await
     }
@@ -809,13 +585,9 @@ impl ReviewStore for SqliteStore {
         site: SiteId,
         decision: NewDecision,
     ) -> Result<Result<Decided, Refusal>, StoreError> {
-        self.write_tx(move |tx| {
-            seed_reason_codes(tx, site)?;
-            let policy = review_policy(tx, site)?;
-            let reasons = reason_codes(tx, site)?;
-            reject_one(tx, site, &decision, &policy, &reasons)
-        })
-        .await
+        let every = self.opts.snapshot_every;
+        self.write_tx(move |tx| crate::review::decide::reject(&Tx::new(tx, every), site, &decision))
+            .await
     }
 
     async fn adjustments(
@@ -827,5 +599,37 @@ impl ReviewStore for SqliteStore {
         self.readers
             .run(move |c| adjustments(c, site, after, limit))
             .await
+    }
+}
+
+impl ReviewTx for Tx<'_> {
+    fn seed_reason_codes(&self, site: SiteId) -> Result<(), StoreError> {
+        seed_reason_codes(self, site)
+    }
+
+    fn review_policy(&self, site: SiteId) -> Result<ReviewPolicy, StoreError> {
+        review_policy(self, site)
+    }
+
+    fn reason_codes(&self, site: SiteId) -> Result<Vec<ReasonCode>, StoreError> {
+        reason_codes(self, site)
+    }
+
+    fn decision_facts(
+        &self,
+        site: SiteId,
+        result: i64,
+    ) -> Result<Option<DecisionFacts>, StoreError> {
+        decision_facts(self, site, result)
+    }
+
+    fn insert_review(&self, d: &NewDecision, decision: &str) -> Result<i64, StoreError> {
+        insert_review(self, d, decision)
+    }
+
+    fn set_review_movement(&self, review: i64, movement: i64) -> Result<(), StoreError> {
+        self.prepare_cached("update count_review set movement_id = ?1 where id = ?2")?
+            .execute(params![movement, review])?;
+        Ok(())
     }
 }

@@ -87,12 +87,11 @@ fn write(
     every: i64,
 ) -> Result<crate::ledger::RecordOutcome, StoreError> {
     let tx = conn.transaction().unwrap();
-    let out = ledger::insert_movements(
-        &tx,
+    let (out, _) = crate::ledger::append(
+        &super::Tx::new(&tx, every),
         site,
         rows,
         Timestamp(10_000_000),
-        every,
         &Progress::default(),
     )?;
     tx.commit().unwrap();

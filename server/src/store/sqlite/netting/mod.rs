@@ -187,25 +187,6 @@ fn insert_result(tx: &Transaction, r: &NewResult<'_>) -> Result<i64, StoreError>
     Ok(tx.last_insert_rowid())
 }
 
-/// Marks every current result whose settling instant has passed as settled, then posts
-/// the automatic adjustments now due (`auto_adjust::post_due`) in the same transaction.
-/// A result already settled when it was netted (its settling instant had passed) is
-/// picked up by the next pass, like any other settled result.
-pub fn settle_due(
-    tx: &Transaction,
-    now: Timestamp,
-    snapshot_every: i64,
-) -> Result<SettleOutcome, StoreError> {
-    let settled = tx
-        .prepare_cached(
-            "update count_result set settled = 1
-             where settled = 0 and superseded_by is null and settles_at < ?1",
-        )?
-        .execute([now.0])?;
-    let adjusted = super::auto_adjust::post_due(tx, now, snapshot_every)?;
-    Ok(SettleOutcome { settled, adjusted })
-}
-
 fn ledger_key(bin: i64, key: &ItemLot) -> Key {
     Key {
         bin_id: bin,
@@ -214,7 +195,7 @@ fn ledger_key(bin: i64, key: &ItemLot) -> Key {
     }
 }
 
-impl NettingTx for Transaction<'_> {
+impl NettingTx for super::Tx<'_> {
     fn pass_facts(&self, pass: i64) -> Result<Option<PassFacts>, StoreError> {
         pass_facts(self, pass)
     }
