@@ -231,7 +231,7 @@ async fn accuracy_page(
         urlencode(&zone)
     );
     let page = AccuracyPage {
-        me: Some(Me::of(&p)),
+        me: Some(Me::at(&p, &site)),
         since: r.period.since.to_string(),
         until: r.period.until.to_string(),
         class,
@@ -349,7 +349,7 @@ async fn item_page(
         .ok_or_else(|| ApiError::NotFound(format!("no item '{code}' at this site")))?;
     let f = &r.figures;
     let page = ItemPage {
-        me: Some(Me::of(&p)),
+        me: Some(Me::at(&p, &site)),
         class: r
             .item
             .class
@@ -408,7 +408,7 @@ async fn buffers_page(
         (r.demand.to.to_string(), r.demand.calendar_days.to_string())
     });
     let page = BuffersPage {
-        me: Some(Me::of(&p)),
+        me: Some(Me::at(&p, &site)),
         until,
         window_days,
         rows: reports
@@ -608,7 +608,7 @@ async fn buffer_page(
         r.demand.to, r.demand.calendar_days
     );
     let page = BufferPage {
-        me: Some(Me::of(&p)),
+        me: Some(Me::at(&p, &site)),
         class: r
             .item
             .class
