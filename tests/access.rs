@@ -150,7 +150,7 @@ async fn enrolled(app: &TestApp, user: &str) -> String {
 /// forgetting itself), so the table goes on with a live one.
 async fn renew_if_spent(app: &TestApp, who: &mut Who) {
     let probe = match who.kind {
-        Kind::Session => "/",
+        Kind::Session => "/sites/T/phone",
         Kind::Device => "/api/v1/device",
         _ => return,
     };

@@ -95,6 +95,9 @@ async fn sign_out_without_the_token_is_refused_and_with_it_ends_the_session_on_t
     assert_eq!(a.status, 303);
     assert_eq!(count(&app, "select count(*) from web_session"), 0);
     let a = app.send(Method::GET, "/", &auth, Body::Empty).await;
+    assert_eq!(a.status, 303, "the old cookie opens nothing");
+    assert_eq!(a.headers["location"], "/sign-in");
+    let a = app.send(Method::GET, "/sites/T", &auth, Body::Empty).await;
     assert_eq!(a.status, 401, "the old cookie opens nothing");
 }
 

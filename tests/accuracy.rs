@@ -998,7 +998,17 @@ async fn the_accuracy_page_draws_its_charts_and_defines_its_figures() {
         .await;
     assert_eq!(page.status, 200, "{}", page.text);
     let t = &page.text;
-    assert_eq!(t.matches("<svg").count(), 3, "three charts");
+    // Three charts, each drawn for a narrow and a wide screen.
+    assert_eq!(
+        t.matches(r#"class="chart narrow""#).count(),
+        3,
+        "three charts"
+    );
+    assert_eq!(
+        t.matches(r#"class="chart wide""#).count(),
+        3,
+        "three charts"
+    );
     assert!(t.contains("target 95 %"));
     assert!(t.contains("50.0 %"), "the IRA of the period");
     assert!(t.contains("below target"));
@@ -1011,6 +1021,25 @@ async fn the_accuracy_page_draws_its_charts_and_defines_its_figures() {
         "IRA is defined beside it"
     );
     assert!(t.contains("format=csv&amp;table=by_zone"));
+    // A period without counts says so where its charts would be.
+    let quiet = app
+        .send(
+            Method::GET,
+            "/sites/T/accuracy?since=2025-01-05&until=2025-02-01",
+            &root,
+            Body::Empty,
+        )
+        .await;
+    assert_eq!(quiet.status, 200, "{}", quiet.text);
+    assert_eq!(
+        quiet
+            .text
+            .matches(">No counts in this period</text>")
+            .count(),
+        4,
+        "the IRA and adjustment charts, narrow and wide"
+    );
+    assert!(!quiet.text.contains("<path d="), "no empty lines drawn");
     assert!(t.contains("@media print") || t.contains("/static/cairn.css"));
     // An item's page shows its figures.
     let item = app

@@ -215,3 +215,152 @@ fn a_site_is_made_only_with_a_zone_the_tz_database_knows() {
         serde_json::json!({"was": "Asia/Kathmandu", "now": "America/Chicago"})
     );
 }
+
+/// A site big enough that `cairn plan --format json` writes more than a pipe holds
+/// (64 KiB on Linux, pipe(7)), so the command is still writing when its reader leaves.
+fn site_with_a_long_plan(dir: &std::path::Path) -> String {
+    let db = dir.join("plan.db").display().to_string();
+    let out = cairn(&[
+        "demo-data",
+        "--db",
+        &db,
+        "--items",
+        "300",
+        "--bins",
+        "1000",
+        "--days",
+        "30",
+    ]);
+    assert!(
+        out.status.success(),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    db
+}
+
+const LONG_PLAN: [&str; 10] = [
+    "--site",
+    "KLN",
+    "--format",
+    "json",
+    "--fill-capacity",
+    "--counters",
+    "20",
+    "--minutes",
+    "480",
+    "--date",
+];
+
+#[test]
+fn plan_piped_into_a_reader_that_stops_after_one_line_ends_quietly() {
+    use std::io::{BufRead, BufReader, Read};
+    use std::process::Stdio;
+    let dir = tempfile::tempdir().unwrap();
+    let db = site_with_a_long_plan(dir.path());
+    let mut args = vec!["plan", "--db", &db];
+    args.extend(LONG_PLAN);
+    args.push("2026-12-07");
+
+    // The whole plan, read to the end, is longer than the pipe holds.
+    let whole = cairn(&args);
+    assert!(whole.status.success());
+    assert!(
+        whole.stdout.len() > 64 * 1024,
+        "the plan is {} bytes, too short to fill a pipe",
+        whole.stdout.len()
+    );
+
+    // `cairn plan … | head -1`: one line read, then the pipe closed.
+    let mut child = Command::new(env!("CARGO_BIN_EXE_cairn"))
+        .args(&args)
+        .stdout(Stdio::piped())
+        .stderr(Stdio::piped())
+        .spawn()
+        .expect("the cairn binary runs");
+    let mut first = String::new();
+    BufReader::new(child.stdout.take().unwrap())
+        .read_line(&mut first)
+        .unwrap();
+    assert_eq!(first, "{\n");
+    let mut stderr = String::new();
+    child
+        .stderr
+        .take()
+        .unwrap()
+        .read_to_string(&mut stderr)
+        .unwrap();
+    let status = child.wait().unwrap();
+    assert!(!stderr.contains("panicked"), "{stderr}");
+    assert_eq!(stderr, "", "nothing is said about the closed pipe");
+    assert!(status.success(), "{status}");
+}
+
+#[test]
+fn a_command_whose_output_nobody_reads_ends_quietly() {
+    use std::io::Read;
+    use std::process::Stdio;
+    let dir = tempfile::tempdir().unwrap();
+    let db = dir.path().join("quiet.db").display().to_string();
+    // Standard output closed before the command writes anything.
+    let mut child = Command::new(env!("CARGO_BIN_EXE_cairn"))
+        .args([
+            "site",
+            "add",
+            "--db",
+            &db,
+            "--code",
+            "KLN",
+            "--name",
+            "Northgate",
+        ])
+        .stdout(Stdio::piped())
+        .stderr(Stdio::piped())
+        .spawn()
+        .expect("the cairn binary runs");
+    drop(child.stdout.take());
+    let mut stderr = String::new();
+    child
+        .stderr
+        .take()
+        .unwrap()
+        .read_to_string(&mut stderr)
+        .unwrap();
+    let status = child.wait().unwrap();
+    assert!(!stderr.contains("panicked"), "{stderr}");
+    assert!(status.success(), "{status}: {stderr}");
+}
+
+#[test]
+fn loadtest_prints_its_result_and_not_a_line_per_request() {
+    let out = Command::new(env!("CARGO_BIN_EXE_cairn"))
+        .args([
+            "loadtest",
+            "--phones",
+            "2",
+            "--seconds",
+            "1",
+            "--batch",
+            "10",
+            "--synchronous",
+            "normal",
+        ])
+        .env_remove("RUST_LOG")
+        .output()
+        .expect("the cairn binary runs");
+    let stdout = String::from_utf8_lossy(&out.stdout);
+    let stderr = String::from_utf8_lossy(&out.stderr);
+    assert!(out.status.success(), "{stderr}");
+    let requests: u64 = stdout
+        .lines()
+        .find_map(|l| l.split_once(" requests, ").map(|(n, _)| n.parse().ok()))
+        .flatten()
+        .unwrap_or_else(|| panic!("no request count in {stdout}"));
+    assert!(requests > 2, "the phones sent {requests} requests");
+    assert_eq!(
+        stdout.lines().count(),
+        3,
+        "the load, the figures and the ceiling: {stdout}"
+    );
+    assert_eq!(stderr, "", "no log line at the default level");
+}

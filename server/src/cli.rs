@@ -18,6 +18,9 @@ use std::net::SocketAddr;
 use std::path::PathBuf;
 use std::process::ExitCode;
 
+mod out;
+use out::{StdoutClosed, errln, out, outln};
+
 #[derive(Parser)]
 #[command(
     name = "cairn",
@@ -350,31 +353,44 @@ enum UserCommand {
 /// Runs the command line and returns the process exit code.
 pub fn main() -> ExitCode {
     let cli = Cli::parse();
-    init_logs();
+    init_logs(default_log_filter(&cli.command));
     let rt = match tokio::runtime::Builder::new_multi_thread()
         .enable_all()
         .build()
     {
         Ok(rt) => rt,
         Err(e) => {
-            eprintln!("cairn: cannot start the async runtime: {e}");
+            errln!("cairn: cannot start the async runtime: {e}");
             return ExitCode::FAILURE;
         }
     };
     match rt.block_on(dispatch(cli.command)) {
         Ok(()) => ExitCode::SUCCESS,
+        // The reader took what it wanted (`cairn plan | head -1`): nothing to report.
+        Err(e) if e.is::<StdoutClosed>() => ExitCode::SUCCESS,
         Err(e) => {
-            eprintln!("cairn: {e:#}");
+            errln!("cairn: {e:#}");
             ExitCode::FAILURE
         }
     }
 }
 
+/// Returns the log levels a command starts with when `RUST_LOG` does not set them.
+/// `loadtest` serves thousands of requests in its own process, and a line for each
+/// would bury its result, so it logs warnings and errors only.
+fn default_log_filter(command: &Command) -> &'static str {
+    match command {
+        Command::Loadtest { .. } => "warn",
+        _ => "info,tower_http=warn",
+    }
+}
+
 /// Logs go to standard error: plain text, or one JSON object a line when
-/// `CAIRN_LOG_FORMAT=json` (for journald or a log shipper). `RUST_LOG` sets the levels.
-fn init_logs() {
+/// `CAIRN_LOG_FORMAT=json` (for journald or a log shipper). `RUST_LOG` sets the levels,
+/// else `default_filter`.
+fn init_logs(default_filter: &str) {
     let filter = tracing_subscriber::EnvFilter::try_from_default_env()
-        .unwrap_or_else(|_| "info,tower_http=warn".into());
+        .unwrap_or_else(|_| default_filter.into());
     let json = std::env::var("CAIRN_LOG_FORMAT").is_ok_and(|v| v.eq_ignore_ascii_case("json"));
     let builder = tracing_subscriber::fmt()
         .with_env_filter(filter)
@@ -412,19 +428,19 @@ async fn dispatch(command: Command) -> anyhow::Result<()> {
                 ..Config::default()
             })?;
             if fresh || state.store.sites().await?.is_empty() {
-                eprintln!("Creating the demo site in {db} (seed {seed}) ...");
+                errln!("Creating the demo site in {db} (seed {seed}) ...");
                 let summary =
                     demo::generate(state.store.as_ref(), &DemoSpec::standard(seed), true).await?;
-                eprintln!("{summary}");
+                errln!("{summary}");
             }
             let site = site_of(state.store.as_ref(), demo::DEMO_SITE).await?;
             demo::create_demo_users(state.store.as_ref(), &site).await?;
             match demo::accounts::todays_list(state.store.as_ref(), &site).await {
-                Ok(tasks) => eprintln!(
+                Ok(tasks) => errln!(
                     "Today's count list: {tasks} bins, runs held by {}",
                     demo::accounts::DEMO_COUNTERS.join(" and ")
                 ),
-                Err(e) => eprintln!("Today's count list was not built: {e:#}"),
+                Err(e) => errln!("Today's count list was not built: {e:#}"),
             }
             serve(state, listen, true).await
         }
@@ -476,21 +492,21 @@ async fn dispatch(command: Command) -> anyhow::Result<()> {
                 .at_site(site.id);
             match import_csv(state.store.as_ref(), &site, kind, &path, true, Some(audit)).await {
                 Ok(s) => {
-                    println!(
+                    outln!(
                         "{}: {} rows read, {} written, {} already recorded",
                         path.display(),
                         s.rows,
                         s.written,
                         s.already_recorded
-                    );
+                    )?;
                     Ok(())
                 }
                 Err(ImportError::Lines(lines)) => {
                     for l in lines.iter().take(MAX_ERRORS_SHOWN) {
-                        eprintln!("{}: {l}", path.display());
+                        errln!("{}: {l}", path.display());
                     }
                     if lines.len() > MAX_ERRORS_SHOWN {
-                        eprintln!("... and {} more", lines.len() - MAX_ERRORS_SHOWN);
+                        errln!("... and {} more", lines.len() - MAX_ERRORS_SHOWN);
                     }
                     anyhow::bail!("{} line(s) refused; nothing was written", lines.len())
                 }
@@ -515,7 +531,7 @@ async fn dispatch(command: Command) -> anyhow::Result<()> {
                 ..DemoSpec::standard(seed)
             };
             let summary = demo::generate(state.store.as_ref(), &spec, true).await?;
-            println!("{summary}");
+            outln!("{summary}")?;
             Ok(())
         }
         Command::Code {
@@ -524,7 +540,7 @@ async fn dispatch(command: Command) -> anyhow::Result<()> {
             let text = text.replace("\\x1d", "\u{1d}").replace("\\x1D", "\u{1d}");
             let year = u16::try_from(chrono::Datelike::year(&chrono::Utc::now())).unwrap_or(2000);
             let scanned = cairn_scan::parse(&text, year).map_err(|e| anyhow::anyhow!("{e}"))?;
-            println!("{}", serde_json::to_string_pretty(&scanned)?);
+            outln!("{}", serde_json::to_string_pretty(&scanned)?)?;
             Ok(())
         }
         Command::Labels {
@@ -558,7 +574,7 @@ async fn dispatch(command: Command) -> anyhow::Result<()> {
                 out.unwrap_or_else(|| PathBuf::from(format!("labels-{}-{zone}.svg", site.code)));
             std::fs::write(&out, svg)
                 .map_err(|e| anyhow::anyhow!("cannot write {}: {e}", out.display()))?;
-            println!("{} labels written to {}", labels.len(), out.display());
+            outln!("{} labels written to {}", labels.len(), out.display())?;
             Ok(())
         }
         Command::Plan {
@@ -591,9 +607,9 @@ async fn dispatch(command: Command) -> anyhow::Result<()> {
                 planning::service::view(&input, &plan)
             };
             match format {
-                PlanFormat::Text => print!("{}", planning::service::to_text(&view)),
-                PlanFormat::Csv => print!("{}", planning::service::to_csv(&view)?),
-                PlanFormat::Json => println!("{}", serde_json::to_string_pretty(&view)?),
+                PlanFormat::Text => out!("{}", planning::service::to_text(&view))?,
+                PlanFormat::Csv => out!("{}", planning::service::to_csv(&view)?)?,
+                PlanFormat::Json => outln!("{}", serde_json::to_string_pretty(&view)?)?,
             }
             Ok(())
         }
@@ -606,12 +622,12 @@ async fn dispatch(command: Command) -> anyhow::Result<()> {
                 .await?
                 .ok_or_else(|| anyhow::anyhow!("no count pass with id or uid '{count}'"))?;
             if json {
-                println!("{}", serde_json::to_string_pretty(&report)?);
+                outln!("{}", serde_json::to_string_pretty(&report)?)?;
             } else {
-                print!(
+                out!(
                     "{}",
                     crate::netting::report::to_text(&report, crate::time::Timestamp::now())
-                );
+                )?;
             }
             Ok(())
         }
@@ -638,7 +654,7 @@ async fn dispatch(command: Command) -> anyhow::Result<()> {
                     time_zone: crate::time::day::SiteZone::parse(&time_zone)?,
                 })
                 .await?;
-            println!("site {} created ({})", site.code, site.time_zone);
+            outln!("site {} created ({})", site.code, site.time_zone)?;
             Ok(())
         }
         Command::Site {
@@ -656,11 +672,11 @@ async fn dispatch(command: Command) -> anyhow::Result<()> {
             let audit = AuditEvent::now(Actor::Cli, Action::SiteZoneChanged, site.code.as_str())
                 .at_site(site.id);
             let was = state.store.set_site_zone(site.id, zone, audit).await?;
-            println!(
+            outln!(
                 "site {}: time zone {was} -> {zone}; today there is {}",
                 site.code,
                 zone.today()
-            );
+            )?;
             Ok(())
         }
         Command::User { command } => user_command(command).await,
@@ -669,7 +685,7 @@ async fn dispatch(command: Command) -> anyhow::Result<()> {
                 crate::backup::with_spinner(|p| crate::backup::backup(&db, &to, keep, p))
             })
             .await??;
-            println!("backup {report}");
+            outln!("backup {report}")?;
             Ok(())
         }
         Command::Restore { from, db, force } => {
@@ -677,7 +693,7 @@ async fn dispatch(command: Command) -> anyhow::Result<()> {
                 crate::backup::with_spinner(|p| crate::backup::restore(&from, &db, force, p))
             })
             .await??;
-            println!("restored {report}");
+            outln!("restored {report}")?;
             Ok(())
         }
         Command::Probe { url } => probe(&url).await,
@@ -696,17 +712,17 @@ async fn dispatch(command: Command) -> anyhow::Result<()> {
                 interval: std::time::Duration::from_millis(interval_ms),
             })
             .await?;
-            println!(
+            outln!(
                 "{phones} phones, {batch} events a request, interval {interval_ms} ms, synchronous={synchronous:?}"
-            );
-            println!("{outcome}");
+            )?;
+            outln!("{outcome}")?;
             Ok(())
         }
         Command::Config {
             command: ConfigCommand::Check { path },
         } => {
             let config = Config::from_file(&path)?;
-            println!("{config:#?}");
+            outln!("{config:#?}")?;
             Ok(())
         }
         Command::Report {
@@ -744,7 +760,7 @@ async fn probe(url: &str) -> anyhow::Result<()> {
         .map_err(|e| anyhow::anyhow!("{url}: {e}"))?;
     let status = head.split_whitespace().nth(1).unwrap_or("");
     anyhow::ensure!(status.starts_with('2'), "{url} answered {status}");
-    println!("{url}: {status}");
+    outln!("{url}: {status}")?;
     Ok(())
 }
 
@@ -772,7 +788,7 @@ async fn report(
                 .await
                 .map_err(public)?;
             if let PlanFormat::Json = format {
-                println!("{}", serde_json::to_string_pretty(&r)?);
+                outln!("{}", serde_json::to_string_pretty(&r)?)?;
                 return Ok(());
             }
             table::ACCURACY_TABLES
@@ -793,7 +809,7 @@ async fn report(
                 .await
                 .map_err(public)?;
             if let PlanFormat::Json = format {
-                println!("{}", serde_json::to_string_pretty(&r)?);
+                outln!("{}", serde_json::to_string_pretty(&r)?)?;
                 return Ok(());
             }
             vec![table::buffer_table(&r)]
@@ -804,15 +820,15 @@ async fn report(
             PlanFormat::Csv => {
                 // Several tables in one CSV stream are separated by a blank line.
                 if i > 0 {
-                    println!();
+                    outln!()?;
                 }
-                print!("{}", table::to_csv(t)?);
+                out!("{}", table::to_csv(t)?)?;
             }
             _ => {
                 if i > 0 {
-                    println!();
+                    outln!()?;
                 }
-                print!("{}", table::to_text(t));
+                out!("{}", table::to_text(t))?;
             }
         }
     }
@@ -824,9 +840,10 @@ async fn serve(state: AppState, listen: SocketAddr, demo: bool) -> anyhow::Resul
         .await
         .map_err(|e| anyhow::anyhow!("cannot listen on {listen}: {e}"))?;
     let addr = listener.local_addr()?;
-    println!("Cairn is serving {} at http://{addr}/", state.config.db);
-    if demo {
-        println!("{}", demo::login_note());
+    // A server keeps serving when nobody reads its banner (`cairn demo | head -1`).
+    let banner = outln!("Cairn is serving {} at http://{addr}/", state.config.db);
+    if demo && banner.is_ok() {
+        let _ = outln!("{}", demo::login_note());
     }
     tokio::spawn(planning::service::nightly_classification(
         state.store.clone(),
@@ -958,12 +975,12 @@ async fn user_command(command: UserCommand) -> anyhow::Result<()> {
                 )
                 .await?;
             let labels: Vec<&str> = roles.iter().map(|r| r.label()).collect();
-            println!(
+            outln!(
                 "user {} created at site {} ({})",
                 user.name,
                 site.code,
                 labels.join(", ")
-            );
+            )?;
             Ok(())
         }
         UserCommand::Passwd {
@@ -997,7 +1014,7 @@ async fn user_command(command: UserCommand) -> anyhow::Result<()> {
                     AuditEvent::now(Actor::Cli, action, name.as_str()),
                 )
                 .await?;
-            println!("{what} of {name} changed");
+            outln!("{what} of {name} changed")?;
             Ok(())
         }
         UserCommand::Token {
@@ -1033,7 +1050,7 @@ async fn user_command(command: UserCommand) -> anyhow::Result<()> {
                 )
                 .await?;
             // The token goes to standard output alone, so a script can capture it.
-            println!("{}", token.expose());
+            outln!("{}", token.expose())?;
             Ok(())
         }
         UserCommand::Roles {
@@ -1053,7 +1070,7 @@ async fn user_command(command: UserCommand) -> anyhow::Result<()> {
                 .set_roles(&name, site.id, roles.clone(), audit)
                 .await?;
             let labels: Vec<&str> = roles.iter().map(|r| r.label()).collect();
-            println!(
+            outln!(
                 "{name} at site {}: {}",
                 site.code,
                 if labels.is_empty() {
@@ -1061,8 +1078,26 @@ async fn user_command(command: UserCommand) -> anyhow::Result<()> {
                 } else {
                     labels.join(", ")
                 }
-            );
+            )?;
             Ok(())
         }
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn loadtest_logs_warnings_only_unless_told_and_other_commands_log_requests() {
+        let filter = |args: &[&str]| {
+            let cli = Cli::try_parse_from(args).expect("the arguments parse");
+            default_log_filter(&cli.command)
+        };
+        assert_eq!(filter(&["cairn", "loadtest", "--phones", "2"]), "warn");
+        assert_eq!(
+            filter(&["cairn", "serve", "--db", "x.db"]),
+            "info,tower_http=warn"
+        );
     }
 }

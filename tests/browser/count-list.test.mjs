@@ -65,7 +65,8 @@ async function signedInPage(width, height) {
     await page.goto(`${server.url}/sign-in`);
     await page.fill("input[name=user]", "sam");
     await page.fill("input[name=password]", PASSWORD);
-    await Promise.all([page.waitForURL(`${server.url}/`), page.click("button[type=submit]")]);
+    // A supervisor starts on today's count list.
+    await Promise.all([page.waitForURL(/\/sites\/T\/count-lists\/\d{4}-\d{2}-\d{2}$/), page.click("button[type=submit]")]);
     signedIn = true;
   }
   return page;

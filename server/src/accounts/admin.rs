@@ -130,7 +130,7 @@ async fn render_users(
             locked: u.recent_failures >= throttle::MAX_ACCOUNT_FAILURES,
         })
         .collect();
-    let me = Me::of(p);
+    let me = Me::at(p, &site);
     let page = render(&UsersPage {
         csrf: me.csrf.clone(),
         me: Some(me),
@@ -356,7 +356,7 @@ async fn devices_page(
     CurrentSite(site): CurrentSite,
 ) -> Result<Response, ApiError> {
     let devices = state.store.devices(site.id).await?;
-    let me = Me::of(&p);
+    let me = Me::at(&p, &site);
     Ok(render(&DevicesPage {
         csrf: me.csrf.clone(),
         me: Some(me),
@@ -406,7 +406,7 @@ async fn render_tokens(
     message: String,
 ) -> Result<Response, ApiError> {
     let tokens = state.store.api_tokens(site.id).await?;
-    let me = Me::of(p);
+    let me = Me::at(p, &site);
     let page = render(&TokensPage {
         csrf: me.csrf.clone(),
         me: Some(me),
@@ -531,7 +531,7 @@ async fn audit_page(
         .audit_events(site.id, MAX_AUDIT_PAGE_ROWS)
         .await?;
     Ok(render(&AuditPage {
-        me: Some(Me::of(&p)),
+        me: Some(Me::at(&p, &site)),
         site,
         rows,
         limit: MAX_AUDIT_PAGE_ROWS,

@@ -162,11 +162,12 @@ async fn sign_in(
     )
     .from_address(&address)
     .detail(json!({"by": "password"}));
+    let id_digest = secret::token_digest(&id);
     state
         .store
         .start_session(
             NewSession {
-                id_digest: secret::token_digest(&id),
+                id_digest: id_digest.clone(),
                 user: user.clone(),
                 csrf: CsrfToken::generate(),
                 at,
@@ -178,7 +179,27 @@ async fn sign_in(
     let jar = jar
         .remove(session::removal(FORM_COOKIE, secure))
         .add(session::cookie(SESSION_COOKIE, id, secure));
-    Ok((jar, Redirect::to("/")).into_response())
+    Ok((jar, Redirect::to(&landing(&state, id_digest).await?)).into_response())
+}
+
+/// Where a new session starts: the person's start page at their one site (what they
+/// do there), or the list of their sites.
+async fn landing(state: &AppState, session: String) -> Result<String, ApiError> {
+    let Some(started) = state.store.session(session).await? else {
+        return Ok("/".into());
+    };
+    let p = started.principal;
+    let held: Vec<_> = state
+        .store
+        .sites()
+        .await?
+        .into_iter()
+        .map(|site| {
+            let roles: Vec<Role> = p.roles_at(site.id).collect();
+            (site, roles)
+        })
+        .collect();
+    Ok(crate::http::nav::landing(&held))
 }
 
 async fn sign_out(

@@ -27,6 +27,9 @@ pub fn routes(t: &mut RouteTable) {
         .get("/sites/{site}/buffer/{sku}", read, buffer_page);
 }
 
+/// What a chart says when the period has no counts to draw.
+const NO_COUNTS: &str = "No counts in this period";
+
 /// Writes a share as a percentage with one decimal, or a dash.
 pub fn pct(v: Option<f64>) -> String {
     v.map_or("–".into(), |v| format!("{:.1} %", v * 100.0))
@@ -151,55 +154,73 @@ async fn accuracy_page(
         label: label.to_string(),
         values: r.weeks.iter().map(f).collect(),
     };
-    let ira_chart = chart::share_lines(
-        "chart-ira",
-        "Record accuracy per week by class, against the site's target",
-        &weeks,
-        &[
-            class_line("A", &|w| w.ira_a),
-            class_line("B", &|w| w.ira_b),
-            class_line("C", &|w| w.ira_c),
-        ],
-        Some(r.ira_target),
-    );
-    let adjustment_chart = chart::bars(
-        "chart-adj",
-        "Net and gross adjustment value per week (minor units)",
-        &weeks,
-        &[
-            Bars {
-                label: "net".into(),
-                values: r
-                    .weeks
-                    .iter()
-                    .map(|w| w.net_adjustment_minor as f64)
-                    .collect(),
-            },
-            Bars {
-                label: "gross".into(),
-                values: r
-                    .weeks
-                    .iter()
-                    .map(|w| w.gross_adjustment_minor as f64)
-                    .collect(),
-            },
-        ],
-        &|v| money(v.round() as i64),
-    );
-    let compliance_chart = chart::bars(
-        "chart-comp",
-        "Count compliance per week: planned tasks done",
-        &weeks,
-        &[Bars {
-            label: "done / planned".into(),
-            values: r
-                .weeks
-                .iter()
-                .map(|w| w.compliance.unwrap_or(0.0))
-                .collect(),
-        }],
-        &|v| format!("{:.0} %", v * 100.0),
-    );
+    let class_lines = [
+        class_line("A", &|w| w.ira_a),
+        class_line("B", &|w| w.ira_b),
+        class_line("C", &|w| w.ira_c),
+    ];
+    let ira_chart = chart::per_frame("chart-ira", |frame, id| {
+        chart::share_lines(
+            frame,
+            id,
+            "Record accuracy per week by class, against the site's target",
+            &weeks,
+            &class_lines,
+            Some(r.ira_target),
+            NO_COUNTS,
+        )
+    });
+    // A week with no counts has no adjustment bar, rather than a zero one.
+    let adjusted = |f: &dyn Fn(&service::WeekRow) -> i64| -> Vec<Option<f64>> {
+        r.weeks
+            .iter()
+            .map(|w| (w.counted > 0).then(|| f(w) as f64))
+            .collect()
+    };
+    let adjustments = [
+        Bars {
+            label: "net".into(),
+            values: adjusted(&|w| w.net_adjustment_minor),
+        },
+        Bars {
+            label: "gross".into(),
+            values: adjusted(&|w| w.gross_adjustment_minor),
+        },
+    ];
+    let money_axis = chart::BarAxis {
+        fmt: &|v| money(v.round() as i64),
+        min_step: 1.0,
+    };
+    let adjustment_chart = chart::per_frame("chart-adj", |frame, id| {
+        chart::bars(
+            frame,
+            id,
+            "Net and gross adjustment value per week (minor units)",
+            &weeks,
+            &adjustments,
+            &money_axis,
+            NO_COUNTS,
+        )
+    });
+    let done = [Bars {
+        label: "done / planned".into(),
+        values: r.weeks.iter().map(|w| w.compliance).collect(),
+    }];
+    let share_axis = chart::BarAxis {
+        fmt: &|v| format!("{:.0} %", v * 100.0),
+        min_step: 0.01,
+    };
+    let compliance_chart = chart::per_frame("chart-comp", |frame, id| {
+        chart::bars(
+            frame,
+            id,
+            "Count compliance per week: planned tasks done",
+            &weeks,
+            &done,
+            &share_axis,
+            "No planned tasks in this period",
+        )
+    });
     let class = r.filter.class.map(|c| c.to_string()).unwrap_or_default();
     let zone = r.filter.zone.clone().unwrap_or_default();
     let query = format!(
@@ -210,7 +231,7 @@ async fn accuracy_page(
         urlencode(&zone)
     );
     let page = AccuracyPage {
-        me: Some(Me::of(&p)),
+        me: Some(Me::at(&p, &site)),
         since: r.period.since.to_string(),
         until: r.period.until.to_string(),
         class,
@@ -328,7 +349,7 @@ async fn item_page(
         .ok_or_else(|| ApiError::NotFound(format!("no item '{code}' at this site")))?;
     let f = &r.figures;
     let page = ItemPage {
-        me: Some(Me::of(&p)),
+        me: Some(Me::at(&p, &site)),
         class: r
             .item
             .class
@@ -387,7 +408,7 @@ async fn buffers_page(
         (r.demand.to.to_string(), r.demand.calendar_days.to_string())
     });
     let page = BuffersPage {
-        me: Some(Me::of(&p)),
+        me: Some(Me::at(&p, &site)),
         until,
         window_days,
         rows: reports
@@ -587,7 +608,7 @@ async fn buffer_page(
         r.demand.to, r.demand.calendar_days
     );
     let page = BufferPage {
-        me: Some(Me::of(&p)),
+        me: Some(Me::at(&p, &site)),
         class: r
             .item
             .class

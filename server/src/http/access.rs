@@ -49,6 +49,8 @@ pub const COUNT_POLICY: &[Role] = &[Role::InventoryManager, Role::Admin];
 pub const PLANNERS: &[Role] = &[Role::Planner, Role::InventoryManager, Role::Admin];
 /// Roles that administer a site's users, devices, tokens and audit trail.
 pub const ADMINS: &[Role] = &[Role::Admin];
+/// Everyone with a role at the site (how to open the phone app).
+pub const SITE_MEMBERS: &[Role] = &Role::ALL;
 
 /// The name of the header that carries a session's form token for scripts.
 pub const CSRF_HEADER: &str = "x-csrf-token";

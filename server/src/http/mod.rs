@@ -5,6 +5,7 @@ pub mod access;
 pub mod body_deadline;
 pub mod extract;
 pub mod headers;
+pub mod nav;
 pub mod observe;
 pub mod pages;
 pub mod serve;

@@ -130,7 +130,7 @@ async fn render_policy(
             Errors::default(),
         ),
     };
-    let me = Me::of(p);
+    let me = Me::at(p, &site);
     let page = render(&PolicyPage {
         csrf: me.csrf.clone(),
         me: Some(me),

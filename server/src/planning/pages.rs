@@ -425,7 +425,7 @@ async fn render_day(
         (Some(v), _) | (None, Some(v)) => Some(shown(v, &counters, keeper)),
         (None, None) => None,
     };
-    let me = Me::of(p);
+    let me = Me::at(p, &site);
     let page = render(&DayPage {
         csrf: me.csrf.clone(),
         me: Some(me),
@@ -669,7 +669,7 @@ async fn labels_page(
         });
     }
     Ok(render(&LabelsPage {
-        me: Some(Me::of(&p)),
+        me: Some(Me::at(&p, &site)),
         site,
         day,
         sheets,

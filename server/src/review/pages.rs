@@ -289,7 +289,7 @@ async fn render_list(
         .map(|b| b.zone.as_str().to_string())
         .collect();
     zones.dedup();
-    let me = Me::of(p);
+    let me = Me::at(p, &site);
     let page = render(&ListPage {
         csrf: me.csrf.clone(),
         me: Some(me),
@@ -589,7 +589,7 @@ async fn render_detail(
         zone: site.time_zone,
     }
     .svg();
-    let me = Me::of(p);
+    let me = Me::at(p, &site);
     let own_count = d.row.counter == p.user.name.as_str()
         || d.recounts.iter().any(|r| r.counter == p.user.name.as_str());
     let can_decide = p.holds_any(site.id, DECIDERS)
