@@ -7,6 +7,7 @@
 //! pass for a task whose run moved to another counter while the phone was offline is kept
 //! and flagged, never dropped.
 
+pub mod apply;
 pub mod clock;
 pub mod event;
 pub mod plausible;

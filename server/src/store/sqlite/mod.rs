@@ -480,13 +480,10 @@ impl Store for SqliteStore {
         let every = self.opts.snapshot_every;
         let (results, netted) = self
             .write_shared(move |tx| {
-                let results = sync::apply_sync(tx, &batch)?;
+                let tx = Tx::new(tx, every);
+                let results = crate::sync::apply::apply_batch(&tx, &batch)?;
                 let applied = batch.applied(&results);
-                let netted = crate::netting::pass::after_sync(
-                    &Tx::new(tx, every),
-                    &applied,
-                    Timestamp::now(),
-                )?;
+                let netted = crate::netting::pass::after_sync(&tx, &applied, Timestamp::now())?;
                 Ok((results, netted.written.len() as u64))
             })
             .await?;
