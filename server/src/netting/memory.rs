@@ -5,6 +5,7 @@ use super::pass::{
     self, AppliedEvent, CurrentResult, ItemFacts, ItemLot, NettingTx, NewResult, OpenTask,
     PassFacts, Sent, WrittenMove,
 };
+use super::recount::{DayList, NewRecountTask, Rechecked, RecountTx, RunLoad};
 use super::results::NetOutcome;
 use super::rule::CountTiming;
 use super::service::{Evidence, LedgerMove, NettingSettings, SourceTimingRow, VERDICT_OUT};
@@ -13,6 +14,7 @@ use crate::master::SiteId;
 use crate::planning::abc::Class;
 use crate::store::StoreError;
 use crate::time::Timestamp;
+use crate::time::day::SiteZone;
 use std::cell::RefCell;
 use std::collections::{BTreeMap, BTreeSet, HashMap};
 
@@ -39,8 +41,11 @@ struct Row {
 #[derive(Debug, Clone)]
 struct Task {
     id: i64,
+    list: i64,
+    run: u32,
     supervisor: bool,
     results: Vec<i64>,
+    detail: String,
     withdrawn: Option<String>,
 }
 
@@ -54,6 +59,9 @@ struct Memory {
     lines: RefCell<Vec<(i64, ItemLot, i64, Timestamp)>>,
     results: RefCell<Vec<Row>>,
     tasks: RefCell<Vec<Task>>,
+    lists: RefCell<Vec<(String, DayList)>>,
+    /// (list, run, holder)
+    runs: RefCell<Vec<(i64, u32, String)>>,
 }
 
 fn key(item: i64) -> ItemLot {
@@ -172,6 +180,24 @@ impl Memory {
             .collect()
     }
 
+    /// Makes the list of 1970-01-01 (the day these tests count on) with runs held by
+    /// `holders` in order.
+    fn list(&self, holders: &[&str]) {
+        self.lists.borrow_mut().push((
+            "1970-01-01".into(),
+            DayList {
+                id: 1,
+                counters: holders.len() as u32,
+                warnings: Vec::new(),
+            },
+        ));
+        for (i, h) in holders.iter().enumerate() {
+            self.runs
+                .borrow_mut()
+                .push((1, i as u32 + 1, h.to_string()));
+        }
+    }
+
     fn net_all(&self, pass: i64) -> NetOutcome {
         pass::after_sync(
             self,
@@ -182,6 +208,161 @@ impl Memory {
             Timestamp(10_000_000),
         )
         .unwrap()
+    }
+}
+
+impl RecountTx for Memory {
+    fn site_zone(&self, _: SiteId) -> Result<SiteZone, StoreError> {
+        Ok(SiteZone::UTC)
+    }
+
+    fn open_task_of(&self, pass: i64, supervisor: bool) -> Result<Option<(i64, i64)>, StoreError> {
+        let of_pass: BTreeSet<i64> = self
+            .results
+            .borrow()
+            .iter()
+            .filter(|r| r.pass == pass)
+            .map(|r| r.id)
+            .collect();
+        Ok(self
+            .live_tasks()
+            .into_iter()
+            .find(|t| {
+                t.supervisor == supervisor
+                    && t.results.iter().any(|r| of_pass.contains(r))
+                    && self.counted_against(t.id).is_empty()
+            })
+            .map(|t| (t.id, t.list)))
+    }
+
+    fn link_rechecks(&self, task: i64, results: &[i64]) -> Result<(), StoreError> {
+        let mut tasks = self.tasks.borrow_mut();
+        let t = tasks.iter_mut().find(|t| t.id == task).unwrap();
+        for r in results {
+            if !t.results.contains(r) {
+                t.results.push(*r);
+            }
+        }
+        Ok(())
+    }
+
+    fn rechecked(&self, task: i64) -> Result<Vec<Rechecked>, StoreError> {
+        let tasks = self.tasks.borrow();
+        let rows = self.results.borrow();
+        let mut ids = tasks.iter().find(|t| t.id == task).unwrap().results.clone();
+        ids.sort();
+        Ok(ids
+            .into_iter()
+            .map(|id| {
+                let r = &rows[id as usize - 1];
+                Rechecked {
+                    result: id,
+                    sku: self.items[&r.key.0].sku.clone(),
+                    lot: r.key.1.clone(),
+                }
+            })
+            .collect())
+    }
+
+    fn set_task_detail(&self, task: i64, detail: &str) -> Result<(), StoreError> {
+        let mut tasks = self.tasks.borrow_mut();
+        tasks.iter_mut().find(|t| t.id == task).unwrap().detail = detail.into();
+        Ok(())
+    }
+
+    fn bump_list(&self, _: i64) -> Result<(), StoreError> {
+        Ok(())
+    }
+
+    fn day_list(&self, _: SiteId, day: &str) -> Result<Option<DayList>, StoreError> {
+        Ok(self
+            .lists
+            .borrow()
+            .iter()
+            .find(|(d, _)| d == day)
+            .map(|(_, l)| l.clone()))
+    }
+
+    fn create_day_list(
+        &self,
+        _: SiteId,
+        day: &str,
+        _: i64,
+        _: &Sent,
+    ) -> Result<DayList, StoreError> {
+        let id = self.lists.borrow().len() as i64 + 1;
+        let list = DayList {
+            id,
+            counters: 1,
+            warnings: Vec::new(),
+        };
+        self.lists.borrow_mut().push((day.into(), list.clone()));
+        self.runs.borrow_mut().push((id, 1, String::new()));
+        Ok(list)
+    }
+
+    fn runs(&self, list: i64) -> Result<Vec<RunLoad>, StoreError> {
+        let live = self.live_tasks();
+        Ok(self
+            .runs
+            .borrow()
+            .iter()
+            .filter(|r| r.0 == list)
+            .map(|(l, run, holder)| {
+                let load = live
+                    .iter()
+                    .filter(|t| t.list == *l && t.run == *run)
+                    .count();
+                (*run, holder.clone(), load as u32)
+            })
+            .collect())
+    }
+
+    fn add_run(&self, list: i64, run: u32) -> Result<(), StoreError> {
+        self.runs.borrow_mut().push((list, run, String::new()));
+        for (_, l) in self.lists.borrow_mut().iter_mut() {
+            if l.id == list {
+                l.counters = run;
+            }
+        }
+        Ok(())
+    }
+
+    fn result_class(&self, result: i64) -> Result<Option<Class>, StoreError> {
+        let item = self.results.borrow()[result as usize - 1].key.0;
+        Ok(self.items[&item].class)
+    }
+
+    fn bin_lines(&self, _: i64) -> Result<i64, StoreError> {
+        let mut sums: BTreeMap<ItemLot, i64> = BTreeMap::new();
+        for (k, m) in self.moves.borrow().iter() {
+            *sums.entry(k.clone()).or_default() += m.delta;
+        }
+        Ok(sums.values().filter(|q| **q != 0).count() as i64)
+    }
+
+    fn insert_recount_task(&self, t: &NewRecountTask) -> Result<i64, StoreError> {
+        let mut tasks = self.tasks.borrow_mut();
+        let id = tasks.len() as i64 + 1;
+        tasks.push(Task {
+            id,
+            list: t.list,
+            run: t.run,
+            supervisor: t.supervisor,
+            results: Vec::new(),
+            detail: String::new(),
+            withdrawn: None,
+        });
+        Ok(id)
+    }
+
+    fn set_list_warnings(&self, list: i64, warnings: &[String]) -> Result<(), StoreError> {
+        for (_, l) in self.lists.borrow_mut().iter_mut() {
+            if l.id == list {
+                l.warnings = warnings.to_vec();
+            }
+        }
+        Ok(())
     }
 }
 
@@ -408,52 +589,6 @@ impl NettingTx for Memory {
         Ok(())
     }
 
-    fn send_recount(
-        &self,
-        pass: &PassFacts,
-        results: &[i64],
-        supervisor: bool,
-        _: &Sent,
-    ) -> Result<Vec<i64>, StoreError> {
-        if results.is_empty() {
-            return Ok(Vec::new());
-        }
-        let of_pass: BTreeSet<i64> = self
-            .results
-            .borrow()
-            .iter()
-            .filter(|r| r.pass == pass.id)
-            .map(|r| r.id)
-            .collect();
-        let open = self
-            .live_tasks()
-            .into_iter()
-            .find(|t| {
-                t.supervisor == supervisor
-                    && t.results.iter().any(|r| of_pass.contains(r))
-                    && self.counted_against(t.id).is_empty()
-            })
-            .map(|t| t.id);
-        let mut tasks = self.tasks.borrow_mut();
-        if let Some(id) = open {
-            let t = tasks.iter_mut().find(|t| t.id == id).unwrap();
-            for r in results {
-                if !t.results.contains(r) {
-                    t.results.push(*r);
-                }
-            }
-            return Ok(Vec::new());
-        }
-        let id = tasks.len() as i64 + 1;
-        tasks.push(Task {
-            id,
-            supervisor,
-            results: results.to_vec(),
-            withdrawn: None,
-        });
-        Ok(vec![id])
-    }
-
     fn open_tasks_of(&self, first_pass: i64) -> Result<Vec<OpenTask>, StoreError> {
         let of_pass: BTreeSet<i64> = self
             .results
@@ -522,6 +657,48 @@ fn out_of_tolerance_keys_of_one_count_go_to_one_recount_of_the_bin() {
     // Netting the same pass again writes nothing and sends nothing.
     let again = pass::net(&m, 1, None, "again", Timestamp(10_000_000)).unwrap();
     assert_eq!(again, NetOutcome::default());
+}
+
+#[test]
+fn a_recount_goes_to_another_counters_run_else_waits_unassigned_with_a_warning() {
+    // DESIGN §5: the recount is blind and by someone else.
+    let m = stocked();
+    m.list(&["cora", "dev", "ines"]);
+    m.pass(1, "cora", None, &[(1, 30, 18_000), (2, 20, 18_500)]);
+    m.net_all(1);
+    let tasks = m.live_tasks();
+    assert_eq!(tasks.len(), 1);
+    assert_eq!(
+        (tasks[0].list, tasks[0].run),
+        (1, 2),
+        "dev's run: the first other"
+    );
+    assert_eq!(tasks[0].detail, "recount of S1 (result 1)");
+
+    // Only cora holds a run: the recount waits in a run held by no one, with a warning.
+    let alone = stocked();
+    alone.list(&["cora"]);
+    alone.pass(1, "cora", None, &[(1, 30, 18_000), (2, 20, 18_500)]);
+    alone.net_all(1);
+    let t = &alone.live_tasks()[0];
+    assert_eq!(t.run, 2, "a new run");
+    let lists = alone.lists.borrow();
+    assert_eq!(lists[0].1.counters, 2);
+    assert!(
+        lists[0].1.warnings[0].contains("have no counter other than cora"),
+        "{:?}",
+        lists[0].1.warnings
+    );
+}
+
+#[test]
+fn a_recount_without_a_list_makes_the_days_list() {
+    let m = stocked();
+    m.pass(1, "cora", None, &[(1, 30, 18_000), (2, 20, 18_500)]);
+    m.net_all(1);
+    let lists = m.lists.borrow();
+    assert_eq!(lists.len(), 1);
+    assert_eq!(lists[0].0, "1970-01-01", "the count's local day");
 }
 
 #[test]

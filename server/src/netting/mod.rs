@@ -12,6 +12,7 @@
 pub mod pages;
 pub mod pass;
 pub mod policy_form;
+pub mod recount;
 pub mod report;
 pub mod results;
 pub mod routes;

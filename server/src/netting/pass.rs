@@ -10,6 +10,7 @@
 //! - Out-of-tolerance first counts go to one recount of the bin; a recount pass decides the
 //!   keys it re-checks ([`decide_recounts`]); a task no key needs any more is withdrawn.
 
+use super::recount::{self, RecountTx};
 use super::results::{NetOutcome, STATUS_NOTHING_TO_NET};
 use super::rule::{BookState, CountTiming, KeyCount, KeyResult, Status};
 use super::service::{
@@ -96,8 +97,9 @@ pub struct OpenTask {
 }
 
 /// The queries and writes netting makes inside one transaction. Each method is one
-/// query or one write; the store implements it with its own SQL.
-pub trait NettingTx {
+/// query or one write; the store implements it with its own SQL. Placing a recount is
+/// part of netting ([`RecountTx`]).
+pub trait NettingTx: RecountTx {
     /// Reads a pass; `None` when there is no such pass.
     fn pass_facts(&self, pass: i64) -> Result<Option<PassFacts>, StoreError>;
     fn netting_settings(&self, site: SiteId) -> Result<NettingSettings, StoreError>;
@@ -155,16 +157,6 @@ pub trait NettingTx {
         outcome: Option<&str>,
         first_count_wrong: bool,
     ) -> Result<(), StoreError>;
-    /// Sends first results of one pass to a recount (or supervisor count) of its bin: into
-    /// the open task of that kind no phone has begun, else a new task on the list of the
-    /// count's local day. Returns the task added, if one was.
-    fn send_recount(
-        &self,
-        pass: &PassFacts,
-        results: &[i64],
-        supervisor: bool,
-        sent: &Sent,
-    ) -> Result<Vec<i64>, StoreError>;
     /// The tasks of a first count not done, not withdrawn and not counted against.
     fn open_tasks_of(&self, first_pass: i64) -> Result<Vec<OpenTask>, StoreError>;
     /// Withdraws a task (kept, with its reason, off its list).
@@ -354,7 +346,7 @@ pub fn net(
             }
         }
         out.tasks
-            .extend(tx.send_recount(&pass, &out_keys, false, &sent)?);
+            .extend(recount::send(tx, &pass, &out_keys, false, &sent)?);
         // Re-checked keys of this pass changed under their recounts: re-apply them.
         let mut decide = Vec::new();
         for (key, _, _, renetted) in &changed {
@@ -407,7 +399,7 @@ pub fn decide_recounts(
     let pass = tx
         .pass_facts(first_pass)?
         .ok_or_else(|| anyhow::anyhow!("count pass {first_pass} vanished"))?;
-    tx.send_recount(&pass, &supervise, true, sent)
+    recount::send(tx, &pass, &supervise, true, sent)
 }
 
 /// Applies the recount rule to a first result from the recount pass's result of the same

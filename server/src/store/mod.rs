@@ -185,12 +185,6 @@ pub enum StoreError {
     Internal(#[from] anyhow::Error),
 }
 
-impl From<rusqlite::Error> for StoreError {
-    fn from(e: rusqlite::Error) -> Self {
-        StoreError::Internal(e.into())
-    }
-}
-
 /// A counter a long write advances, so a CLI can draw a progress bar.
 #[derive(Debug, Clone, Default)]
 pub struct Progress(Option<Arc<AtomicU64>>);

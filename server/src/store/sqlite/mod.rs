@@ -117,6 +117,13 @@ impl SqliteStore {
     }
 }
 
+/// A SQLite failure is an internal error: logged once, shown as a fixed text.
+impl From<rusqlite::Error> for StoreError {
+    fn from(e: rusqlite::Error) -> Self {
+        StoreError::Internal(e.into())
+    }
+}
+
 /// One write transaction as the domain's transaction traits see it (`NettingTx`,
 /// `LedgerTx`, `ReviewTx`, `SettleTx`, `AuditTx`): the SQLite transaction and the
 /// settings its writes need. It derefs to the transaction for the SQL helpers.

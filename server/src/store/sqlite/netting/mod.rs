@@ -6,7 +6,7 @@
 
 use crate::master::SiteId;
 use crate::netting::pass::{
-    CurrentResult, ItemFacts, ItemLot, NettingTx, NewResult, OpenTask, PassFacts, Sent,
+    CurrentResult, ItemFacts, ItemLot, NettingTx, NewResult, OpenTask, PassFacts,
 };
 use crate::netting::rule::CountTiming;
 use crate::netting::service::{Evidence, LedgerMove, NettingSettings, ReasonCode, SourceTimingRow};
@@ -25,9 +25,6 @@ mod recounts;
 pub use crate::netting::results::*;
 pub use policy::*;
 pub use reads::*;
-
-/// Estimated seconds of a recount task when the first task's estimate is unknown.
-const RECOUNT_EST_S: i64 = 120;
 
 fn json<T: Serialize>(v: &T) -> Result<String, StoreError> {
     Ok(serde_json::to_string(v).map_err(anyhow::Error::from)?)
@@ -361,16 +358,6 @@ impl NettingTx for super::Tx<'_> {
         )?
         .execute(params![result, verdict, outcome, first_count_wrong])?;
         Ok(())
-    }
-
-    fn send_recount(
-        &self,
-        pass: &PassFacts,
-        results: &[i64],
-        supervisor: bool,
-        sent: &Sent,
-    ) -> Result<Vec<i64>, StoreError> {
-        recounts::send(self, pass, results, supervisor, sent)
     }
 
     fn open_tasks_of(&self, first_pass: i64) -> Result<Vec<OpenTask>, StoreError> {
