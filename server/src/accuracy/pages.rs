@@ -97,6 +97,8 @@ struct CoverageLine {
 struct AccuracyPage {
     me: Option<Me>,
     site: Site,
+    /// The demo site: its counting history is simulated.
+    simulated: bool,
     since: String,
     until: String,
     class: String,
@@ -210,6 +212,7 @@ async fn accuracy_page(
         urlencode(&zone)
     );
     let page = AccuracyPage {
+        simulated: crate::demo::is_demo_site(&site),
         me: Some(Me::of(&p)),
         since: r.period.since.to_string(),
         until: r.period.until.to_string(),
