@@ -43,6 +43,9 @@ enum Command {
         /// Seed of the demo history (the same seed gives the same site).
         #[arg(long, default_value_t = 7)]
         seed: u64,
+        /// Only the movements: no simulated weeks of counting (a quicker start).
+        #[arg(long)]
+        no_history: bool,
     },
     /// Serve an existing database.
     Serve(ServeArgs),
@@ -418,7 +421,12 @@ async fn site_of(store: &dyn Store, code: &str) -> anyhow::Result<crate::master:
 
 async fn dispatch(command: Command) -> anyhow::Result<()> {
     match command {
-        Command::Demo { db, listen, seed } => {
+        Command::Demo {
+            db,
+            listen,
+            seed,
+            no_history,
+        } => {
             let fresh = db.is_new();
             let state = AppState::open(Config {
                 db: db.clone(),
@@ -429,8 +437,13 @@ async fn dispatch(command: Command) -> anyhow::Result<()> {
             })?;
             if fresh || state.store.sites().await?.is_empty() {
                 errln!("Creating the demo site in {db} (seed {seed}) ...");
-                let summary =
-                    demo::generate(state.store.as_ref(), &DemoSpec::standard(seed), true).await?;
+                let spec = DemoSpec::standard(seed);
+                let spec = if no_history {
+                    spec
+                } else {
+                    spec.with_history()
+                };
+                let summary = demo::generate(state.store.as_ref(), &spec, true).await?;
                 errln!("{summary}");
             }
             let site = site_of(state.store.as_ref(), demo::DEMO_SITE).await?;

@@ -100,6 +100,8 @@ struct CoverageLine {
 struct AccuracyPage {
     me: Option<Me>,
     site: Site,
+    /// The demo site: its counting history is simulated.
+    simulated: bool,
     since: String,
     until: String,
     class: String,
@@ -231,6 +233,7 @@ async fn accuracy_page(
         urlencode(&zone)
     );
     let page = AccuracyPage {
+        simulated: crate::demo::is_demo_site(&site),
         me: Some(Me::at(&p, &site)),
         since: r.period.since.to_string(),
         until: r.period.until.to_string(),

@@ -7,6 +7,7 @@
 pub mod accounts;
 mod catalog;
 pub mod count_day;
+pub mod history;
 mod sim;
 
 use crate::master::codes::{BinCode, Sku, ZoneCode};
@@ -26,8 +27,19 @@ pub use catalog::PEOPLE;
 
 /// The demo site's code.
 pub const DEMO_SITE: &str = "KLN";
+/// The manager leaves the differences of the history's last days for review.
+const REVIEW_LAG_DAYS: u32 = 7;
 /// Movements written per store transaction while generating.
 const FLUSH_ROWS: usize = 20_000;
+
+/// The demo site's name.
+const DEMO_SITE_NAME: &str = "Kestrel Lane Supply — Northgate";
+
+/// Tells whether `site` is the generated demo site (its code and name), whose counting
+/// history is simulated: pages say so.
+pub fn is_demo_site(site: &crate::master::Site) -> bool {
+    site.code.as_str() == DEMO_SITE && site.name == DEMO_SITE_NAME
+}
 
 /// The size and seed of a generated site.
 #[derive(Debug, Clone)]
@@ -40,6 +52,9 @@ pub struct DemoSpec {
     pub seed: u64,
     /// The last day of history (the day before "today" in the demo).
     pub end: NaiveDate,
+    /// Weeks of counting simulated at the end of the history (0: none), then today's
+    /// list half counted.
+    pub history_weeks: u32,
 }
 
 impl DemoSpec {
@@ -47,7 +62,7 @@ impl DemoSpec {
     pub fn standard(seed: u64) -> Self {
         Self {
             site_code: SiteCode::parse(DEMO_SITE).expect("the demo site code is a valid constant"),
-            site_name: "Kestrel Lane Supply — Northgate".into(),
+            site_name: DEMO_SITE_NAME.into(),
             items: 600,
             bins: 1_500,
             days: 365,
@@ -57,7 +72,19 @@ impl DemoSpec {
                 .today()
                 .pred_opt()
                 .unwrap_or(NaiveDate::MIN),
+            history_weeks: 0,
         }
+    }
+
+    /// Returns this site with [`history::HISTORY_WEEKS`] of counting at its end.
+    pub fn with_history(mut self) -> Self {
+        self.history_weeks = history::HISTORY_WEEKS;
+        self
+    }
+
+    /// Returns how many of the last days of history have counting.
+    pub fn counting_days(&self) -> u32 {
+        (self.history_weeks * 7).min(self.days)
     }
 }
 
@@ -71,6 +98,8 @@ pub struct DemoSummary {
     pub unrecorded_picks: usize,
     pub miskeyed_picks: usize,
     pub misputaways: usize,
+    /// The counting history, when one was simulated.
+    pub history: Option<history::HistorySummary>,
     pub seconds: f64,
 }
 
@@ -87,7 +116,15 @@ impl fmt::Display for DemoSummary {
             self.miskeyed_picks,
             self.misputaways,
             self.seconds
-        )
+        )?;
+        if let Some(h) = &self.history {
+            write!(
+                f,
+                "\nsimulated counting: {} working days, {} counts and {} recounts through the phones' sync, {} adjustments approved, {} rejected, {} adjusted automatically",
+                h.working_days, h.passes, h.recount_passes, h.approved, h.rejected, h.auto_adjusted
+            )?;
+        }
+        Ok(())
     }
 }
 
@@ -331,20 +368,61 @@ pub async fn generate(
         ..DemoSummary::default()
     };
     let mut world = sim::World::new(spec, &items, &bins, rng);
+    let counting_from = spec.days - spec.counting_days();
+    let mut counting = if spec.counting_days() > 0 {
+        Some(
+            history::Counting::start(store, &site, spec, &items, &bins, world.date(counting_from))
+                .await?,
+        )
+    } else {
+        None
+    };
     let mut buffer = Vec::new();
     for day in 0..spec.days {
-        world.day(day, &mut buffer);
-        if buffer.len() >= FLUSH_ROWS || day + 1 == spec.days {
+        if let Some(c) = counting.as_mut().filter(|_| day >= counting_from) {
+            if !buffer.is_empty() {
+                store
+                    .record_movements(
+                        site.id,
+                        std::mem::take(&mut buffer),
+                        Progress::default(),
+                        None,
+                    )
+                    .await?;
+            }
+            let start = world.stock_by_key();
+            world.log_truth(true);
+            world.day(day, &mut buffer);
+            let log = world.log_truth(false);
             summary.movements += buffer.len();
-            store
-                .record_movements(
-                    site.id,
-                    std::mem::take(&mut buffer),
-                    Progress::default(),
-                    None,
-                )
-                .await?;
-            pb.set_message(format!("{} movements", summary.movements));
+            let date = world.date(day);
+            c.day(
+                &mut world,
+                date,
+                std::mem::take(&mut buffer),
+                start,
+                log,
+                day + REVIEW_LAG_DAYS < spec.days,
+            )
+            .await?;
+            pb.set_message(format!(
+                "{} movements, {} counts",
+                summary.movements, c.summary.passes
+            ));
+        } else {
+            world.day(day, &mut buffer);
+            if buffer.len() >= FLUSH_ROWS || day + 1 == spec.days {
+                summary.movements += buffer.len();
+                store
+                    .record_movements(
+                        site.id,
+                        std::mem::take(&mut buffer),
+                        Progress::default(),
+                        None,
+                    )
+                    .await?;
+                pb.set_message(format!("{} movements", summary.movements));
+            }
         }
         pb.set_position(u64::from(day + 1));
     }
@@ -354,6 +432,12 @@ pub async fn generate(
     summary.misputaways = world.misputaways;
     let shelf = world.shelf(&bins, &items);
     store.put_demo_shelf(site.id, shelf).await?;
+    if let Some(mut c) = counting {
+        let today = spec.end.succ_opt().unwrap_or(spec.end);
+        c.today(&world, today, crate::time::Timestamp::now())
+            .await?;
+        summary.history = Some(c.summary);
+    }
     summary.seconds = started.elapsed().as_secs_f64();
     Ok(summary)
 }

@@ -47,6 +47,18 @@ pub(crate) struct World<'a> {
     pub unrecorded_picks: usize,
     pub miskeyed_picks: usize,
     pub misputaways: usize,
+    /// Every change of the shelf while set (the counting history reads it).
+    truth_log: Option<Vec<TruthMove>>,
+}
+
+/// One change of a key's true shelf quantity, at an instant (ms).
+#[derive(Debug, Clone, PartialEq, Eq)]
+pub(crate) struct TruthMove {
+    pub bin: usize,
+    pub item: usize,
+    pub lot: String,
+    pub at: i64,
+    pub delta: i64,
 }
 
 impl<'a> World<'a> {
@@ -72,6 +84,52 @@ impl<'a> World<'a> {
             unrecorded_picks: 0,
             miskeyed_picks: 0,
             misputaways: 0,
+            truth_log: None,
+        }
+    }
+
+    /// Returns the date of history day `day`.
+    pub fn date(&self, day: u32) -> NaiveDate {
+        self.start
+            .checked_add_days(Days::new(u64::from(day)))
+            .unwrap_or(self.start)
+    }
+
+    /// Returns the book and the true quantity of every key with either, by (bin, item, lot).
+    pub fn stock_by_key(&self) -> std::collections::BTreeMap<(usize, usize, String), (i64, i64)> {
+        self.stock
+            .iter()
+            .flat_map(|(&(b, i), lots)| {
+                lots.iter()
+                    .filter(|l| l.truth != 0 || l.book != 0)
+                    .map(move |l| ((b, i, l.lot.clone()), (l.book, l.truth)))
+            })
+            .collect()
+    }
+
+    /// Starts (or stops) keeping every change of the shelf; returns what was kept.
+    pub fn log_truth(&mut self, on: bool) -> Vec<TruthMove> {
+        let kept = self.truth_log.take().unwrap_or_default();
+        self.truth_log = on.then(Vec::new);
+        kept
+    }
+
+    /// Changes the book of a key by `delta` (a posted count adjustment).
+    pub fn adjust_book(&mut self, bin: usize, item: usize, lot: &str, delta: i64) {
+        self.book_delta(bin, item, lot, delta);
+    }
+
+    fn note_truth(&mut self, bin: usize, item: usize, lot: &str, at: i64, delta: i64) {
+        if delta != 0
+            && let Some(log) = &mut self.truth_log
+        {
+            log.push(TruthMove {
+                bin,
+                item,
+                lot: lot.to_string(),
+                at,
+                delta,
+            });
         }
     }
 
@@ -156,10 +214,7 @@ impl<'a> World<'a> {
 
     /// Simulates one calendar day, appending the movements it records.
     pub fn day(&mut self, day: u32, out: &mut Vec<NewMovement>) {
-        let date = self
-            .start
-            .checked_add_days(Days::new(u64::from(day)))
-            .unwrap_or(self.start);
+        let date = self.date(day);
         if matches!(date.weekday(), Weekday::Sat | Weekday::Sun) {
             return;
         }
@@ -199,6 +254,7 @@ impl<'a> World<'a> {
         if self.rng.random::<f64>() < P_DAMAGE && self.book(pick_bin, i) > 0 {
             let t = self.at(date, 6 * 60, 21 * 60);
             if let Some(view) = self.take_truth(pick_bin, i, 1) {
+                self.note_truth(pick_bin, i, &view.lot, t, -1);
                 self.emit(
                     out,
                     pick_bin,
@@ -222,6 +278,7 @@ impl<'a> World<'a> {
             if let Some(lot) = lot.or_else(|| (!self.items[i].item.lot_tracked).then(String::new)) {
                 let doc = self.next_doc("RET");
                 self.put(pick_bin, i, &lot, None, 1, 1);
+                self.note_truth(pick_bin, i, &lot, t, 1);
                 self.emit(
                     out,
                     pick_bin,
@@ -271,6 +328,7 @@ impl<'a> World<'a> {
             }
         };
         self.put(bin, i, &view.lot, view.expiry, qty, qty);
+        self.note_truth(bin, i, &view.lot, t, qty);
         self.emit(out, bin, i, &view, qty, MovementKind::Receipt, t, &doc);
     }
 
@@ -333,6 +391,7 @@ impl<'a> World<'a> {
                 lot: l.lot.clone(),
                 expiry: l.expiry,
             };
+            self.note_truth(bin, i, &view.lot, t, -take);
             let roll: f64 = self.rng.random();
             let recorded = if roll < P_UNRECORDED_PICK {
                 self.unrecorded_picks += 1;
@@ -394,6 +453,8 @@ impl<'a> World<'a> {
             };
             self.put(to, i, &view.lot, view.expiry, q, 0);
             self.put(land, i, &view.lot, view.expiry, 0, q);
+            self.note_truth(from, i, &view.lot, t, -q);
+            self.note_truth(land, i, &view.lot, t, q);
             self.emit(out, from, i, &view, -q, MovementKind::Transfer, t, &doc);
             self.emit(out, to, i, &view, q, MovementKind::Transfer, t, &doc);
         }

@@ -536,7 +536,8 @@ impl Store for SqliteStore {
     ) -> Result<(), StoreError> {
         self.write_tx(move |tx| {
             accounts::insert_audit(tx, &audit)?;
-            netting::put_netting_settings(tx, site, &settings, Timestamp::now())
+            // The change happens when its audit event says (now, for pages and the API).
+            netting::put_netting_settings(tx, site, &settings, audit.at)
         })
         .await
     }
