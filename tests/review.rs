@@ -325,6 +325,24 @@ async fn an_approved_difference_posts_one_adjustment_at_the_book_states_instant(
         .get(&format!("/api/v1/sites/T/count-results/{id}"))
         .await;
     assert_eq!(s, 200, "{result}");
+    // Record accuracy judges the first count only (the recount checks it) and keeps its
+    // miss after the approval: the adjustment re-nets the key to no variance, which says
+    // nothing of the record as it was counted.
+    let accuracy = || async {
+        let (s, v) = app.get("/api/v1/sites/T/accuracy").await;
+        assert_eq!(s, 200, "{v}");
+        (
+            v["counted"].clone(),
+            v["ira"]["part"].clone(),
+            v["ira"]["whole"].clone(),
+        )
+    };
+    let judged = accuracy().await;
+    assert_eq!(judged.0, judged.2, "{judged:?}");
+    assert!(
+        judged.1.as_u64() < judged.2.as_u64(),
+        "the difference is a miss: {judged:?}"
+    );
 
     let approved = post(
         &app,
@@ -380,6 +398,11 @@ async fn an_approved_difference_posts_one_adjustment_at_the_book_states_instant(
         .find(|r| r["bin"] == BIN_1 && r["sku"] == "S1")
         .unwrap_or_else(|| panic!("a current result of {BIN_1}: {current}"));
     assert_eq!(now_row["variance"], 0, "{now_row}");
+    assert_eq!(
+        accuracy().await,
+        judged,
+        "the approval does not turn the miss into a hit"
+    );
 }
 
 #[tokio::test]

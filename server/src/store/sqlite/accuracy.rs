@@ -79,7 +79,8 @@ pub fn put_settings(
     Ok(())
 }
 
-/// Reads the current (not superseded) count results counted in `[from, to)`.
+/// Reads the count results counted in `[from, to)` that judge the record: per key of a
+/// first count, the row a decision was taken on, else the current one (recounts left out).
 pub fn count_results(
     conn: &Connection,
     site: SiteId,
@@ -94,9 +95,24 @@ pub fn count_results(
          join zone z on z.id = b.zone_id
          join count_pass p on p.id = cr.pass_id
          join user_account u on u.id = p.user_id
-         where cr.site_id = ?1 and cr.superseded_by is null
+         where cr.site_id = ?1
            and cr.counted_at >= ?2 and cr.counted_at < ?3
            and (?4 is null or i.sku = ?4)
+           -- A recount checks a first count; it is not a second sample of the record.
+           and not exists (select 1 from count_task t
+                           where t.id = p.task_id and t.recount_of is not null)
+           -- A key is judged by the row a decision was taken on (the adjustment it posted
+           -- re-nets the key to no variance, which says nothing of the record as counted),
+           -- else by its current row.
+           and cr.id = coalesce(
+                 (select max(d.id) from count_result d
+                  where d.pass_id = cr.pass_id and d.item_id = cr.item_id and d.lot = cr.lot
+                    and (exists (select 1 from count_review v where v.result_id = d.id)
+                         or exists (select 1 from count_auto_adjustment a
+                                    where a.result_id = d.id))),
+                 (select d.id from count_result d
+                  where d.pass_id = cr.pass_id and d.item_id = cr.item_id and d.lot = cr.lot
+                    and d.superseded_by is null))
          order by cr.counted_at, cr.id",
     )?;
     let sku = q.sku.as_ref().map(|s| s.as_str().to_string());
