@@ -138,6 +138,9 @@ enum Command {
     Net {
         #[arg(long, env = "CAIRN_DB")]
         db: DbLocation,
+        /// The site; may be left out when the database holds one site.
+        #[arg(long)]
+        site: Option<String>,
         /// The count pass: its id or its uid.
         #[arg(long)]
         count: String,
@@ -412,6 +415,20 @@ fn open(db: DbLocation) -> anyhow::Result<AppState> {
     })
 }
 
+/// Returns the site named by `--site`, or the only site when the database holds one.
+async fn named_or_only_site(
+    store: &dyn Store,
+    code: Option<String>,
+) -> anyhow::Result<crate::master::Site> {
+    match code {
+        Some(code) => site_of(store, &code).await,
+        None => match store.sites().await?.as_slice() {
+            [only] => Ok(only.clone()),
+            _ => anyhow::bail!("this database holds several sites: name one with --site"),
+        },
+    }
+}
+
 async fn site_of(store: &dyn Store, code: &str) -> anyhow::Result<crate::master::Site> {
     let code = SiteCode::parse(code)?;
     store.site(&code).await?.ok_or_else(|| {
@@ -563,13 +580,7 @@ async fn dispatch(command: Command) -> anyhow::Result<()> {
             out,
         } => {
             let state = open(db)?;
-            let site = match site {
-                Some(code) => site_of(state.store.as_ref(), &code).await?,
-                None => match state.store.sites().await?.as_slice() {
-                    [only] => only.clone(),
-                    _ => anyhow::bail!("this database holds several sites: name one with --site"),
-                },
-            };
+            let site = named_or_only_site(state.store.as_ref(), site).await?;
             let zone = crate::master::codes::ZoneCode::parse(&zone)?;
             let bins = state.store.bins(site.id, Some(zone.clone())).await?;
             anyhow::ensure!(
@@ -626,14 +637,24 @@ async fn dispatch(command: Command) -> anyhow::Result<()> {
             }
             Ok(())
         }
-        Command::Net { db, count, json } => {
+        Command::Net {
+            db,
+            site,
+            count,
+            json,
+        } => {
             db.must_exist("")?;
+            let pass =
+                crate::netting::results::PassRef::parse(&count).map_err(|e| anyhow::anyhow!(e))?;
             let state = open(db)?;
+            let site = named_or_only_site(state.store.as_ref(), site).await?;
             let report = state
                 .store
-                .count_pass_report(count.clone())
+                .count_pass_report(site.id, pass)
                 .await?
-                .ok_or_else(|| anyhow::anyhow!("no count pass with id or uid '{count}'"))?;
+                .ok_or_else(|| {
+                    anyhow::anyhow!("no count pass with id or uid '{count}' at {}", site.code)
+                })?;
             if json {
                 outln!("{}", serde_json::to_string_pretty(&report)?)?;
             } else {

@@ -145,7 +145,12 @@ pub async fn todays_list(store: &dyn Store, site: &Site) -> anyhow::Result<usize
     for run in &list.runs {
         if let Some(who) = DEMO_COUNTERS.get(run.run as usize - 1) {
             store
-                .hold_run(site.id, day, run.run, (*who).to_string())
+                .hold_run(
+                    site.id,
+                    day,
+                    run.run,
+                    Some(crate::accounts::UserName::parse(who).map_err(anyhow::Error::msg)?),
+                )
                 .await?;
         }
     }

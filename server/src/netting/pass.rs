@@ -573,22 +573,6 @@ pub fn after_movements(
     Ok(out)
 }
 
-/// Re-nets every pass marked done of a site, or one pass; for support after a policy
-/// change.
-pub fn renet_passes(
-    tx: &dyn NettingTx,
-    site: SiteId,
-    pass: Option<&str>,
-    reason: &str,
-    now: Timestamp,
-) -> Result<NetOutcome, StoreError> {
-    let mut out = NetOutcome::default();
-    for id in tx.done_passes(site, pass)? {
-        out.add(net(tx, id, None, reason, now)?);
-    }
-    Ok(out)
-}
-
 fn name_ids(what: &str, ids: &[String]) -> String {
     let shown: Vec<&str> = ids.iter().take(REASON_IDS).map(String::as_str).collect();
     let more = ids.len().saturating_sub(REASON_IDS);

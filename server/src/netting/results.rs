@@ -143,3 +143,43 @@ pub struct SettleOutcome {
     /// Count adjustments posted automatically (sites that allow it), oldest result first.
     pub adjusted: Vec<crate::review::store::AutoAdjustment>,
 }
+
+/// A count pass named by its number or its uid (what `cairn net --count` takes).
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum PassRef {
+    Id(i64),
+    Uid(uuid::Uuid),
+}
+
+impl PassRef {
+    /// Reads a pass's number (digits) or uid (a UUID).
+    pub fn parse(text: &str) -> Result<Self, String> {
+        let t = text.trim();
+        if let Ok(id) = t.parse::<i64>() {
+            return Ok(Self::Id(id));
+        }
+        uuid::Uuid::parse_str(t).map(Self::Uid).map_err(|_| {
+            format!("no count pass '{t}': name a pass by its number or its uid (a UUID)")
+        })
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn a_pass_is_named_by_number_or_uid_and_anything_else_is_refused() {
+        assert_eq!(PassRef::parse(" 42 "), Ok(PassRef::Id(42)));
+        let uid = "0192d6c1-7a7e-7c3e-9b1a-2f6f0a1b2c3d";
+        assert_eq!(
+            PassRef::parse(uid),
+            Ok(PassRef::Uid(uuid::Uuid::parse_str(uid).unwrap()))
+        );
+        let e = PassRef::parse("pass-7").unwrap_err();
+        assert!(
+            e.contains("no count pass 'pass-7'") && e.contains("UUID"),
+            "{e}"
+        );
+    }
+}

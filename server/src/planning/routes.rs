@@ -15,6 +15,7 @@ use crate::http::access::{
     Access, BOOK_READERS, BOOK_WRITERS, COUNT_POLICY, CurrentUser, LIST_KEEPERS, RouteTable,
 };
 use crate::http::extract::{CurrentSite, JsonRows, Params};
+use crate::master::codes::BinCode;
 use crate::master::codes::Sku;
 use axum::Json;
 use axum::extract::{Path, State};
@@ -298,9 +299,11 @@ async fn my_tasks(
             list.tasks
                 .iter()
                 .filter(|t| t.run == r.run)
-                .map(|t| t.bin.clone())
-                .collect()
+                .map(|t| BinCode::parse(&t.bin))
+                .collect::<Result<Vec<_>, _>>()
         })
+        .transpose()
+        .map_err(|e| ApiError::Internal(anyhow::anyhow!("a stored task names a bad bin: {e}")))?
         .unwrap_or_default();
     let contents = state.store.bin_contents(site.id, bins).await?;
     Ok(Json(phone::for_counter(

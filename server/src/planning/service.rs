@@ -299,10 +299,10 @@ pub async fn check_holder(
     store: &dyn Store,
     site: &Site,
     holder: &str,
-) -> Result<Result<String, String>, StoreError> {
+) -> Result<Result<Option<crate::accounts::UserName>, String>, StoreError> {
     let holder = holder.trim();
     if holder.is_empty() {
-        return Ok(Ok(String::new()));
+        return Ok(Ok(None));
     }
     let not_a_counter = || {
         format!(
@@ -317,7 +317,7 @@ pub async fn check_holder(
     Ok(users
         .into_iter()
         .find(|u| u.user.name == name && u.roles.contains(&crate::accounts::Role::Counter))
-        .map(|u| u.user.name.as_str().to_string())
+        .map(|u| Some(u.user.name))
         .ok_or_else(not_a_counter))
 }
 

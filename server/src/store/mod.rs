@@ -399,14 +399,14 @@ pub trait Store: AccountStore + AccuracyStore + ReviewStore + Send + Sync + 'sta
         site: SiteId,
         day: NaiveDate,
         run: u32,
-        holder: String,
+        holder: Option<crate::accounts::UserName>,
     ) -> Result<(), StoreError>;
     /// Lists what each named bin should hold (items with a non-zero balance and
     /// their packs), without quantities: what a counter may be told.
     async fn bin_contents(
         &self,
         site: SiteId,
-        bins: Vec<String>,
+        bins: Vec<BinCode>,
     ) -> Result<std::collections::HashMap<String, Vec<crate::planning::phone::ItemBrief>>, StoreError>;
     /// Marks a task done and its bin counted whole.
     async fn finish_task(&self, site: SiteId, task: i64, at: Timestamp) -> Result<(), StoreError>;
@@ -505,18 +505,12 @@ pub trait Store: AccountStore + AccuracyStore + ReviewStore + Send + Sync + 'sta
         site: SiteId,
         id: i64,
     ) -> Result<Option<crate::netting::results::ResultDetail>, StoreError>;
-    /// Reads a count pass (by id or uid) with its current results.
+    /// Reads a count pass of a site with its current results.
     async fn count_pass_report(
         &self,
-        pass: String,
-    ) -> Result<Option<crate::netting::results::PassReport>, StoreError>;
-    /// Nets again every pass marked done at a site (or one pass), superseding what changed.
-    async fn renet(
-        &self,
         site: SiteId,
-        pass: Option<String>,
-        reason: String,
-    ) -> Result<crate::netting::results::NetOutcome, StoreError>;
+        pass: crate::netting::results::PassRef,
+    ) -> Result<Option<crate::netting::results::PassReport>, StoreError>;
     /// Marks results whose settling instant has passed as settled and posts the automatic
     /// count adjustments then due, in one transaction.
     async fn settle_results(

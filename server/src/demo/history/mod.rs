@@ -342,7 +342,12 @@ impl<'a> Counting<'a> {
             let who = &self.counters[(run.run as usize - 1) % self.counters.len()];
             if let Err(e) = self
                 .store
-                .hold_run(self.site.id, date, run.run, who.name.clone())
+                .hold_run(
+                    self.site.id,
+                    date,
+                    run.run,
+                    Some(crate::accounts::UserName::parse(&who.name).map_err(anyhow::Error::msg)?),
+                )
                 .await
             {
                 tracing::warn!("demo history: run {} of {date} not held: {e}", run.run);

@@ -160,7 +160,7 @@ pub fn bins(
 pub fn bin_contents(
     conn: &Connection,
     site: SiteId,
-    bins: &[String],
+    bins: &[crate::master::codes::BinCode],
 ) -> Result<HashMap<String, Vec<ItemBrief>>, StoreError> {
     let mut items = conn.prepare_cached(
         "select distinct i.id, i.sku, i.description, i.base_unit, i.lot_tracked
@@ -173,7 +173,7 @@ pub fn bin_contents(
     let mut out = HashMap::new();
     for bin in bins {
         let rows = items
-            .query_map(params![site.0, bin], |r| {
+            .query_map(params![site.0, bin.as_str()], |r| {
                 Ok((
                     r.get::<_, i64>(0)?,
                     r.get(1)?,
@@ -202,7 +202,7 @@ pub fn bin_contents(
                 packs,
             });
         }
-        out.insert(bin.clone(), briefs);
+        out.insert(bin.as_str().to_string(), briefs);
     }
     Ok(out)
 }

@@ -255,7 +255,7 @@ impl Store for SqliteStore {
     async fn bin_contents(
         &self,
         site: SiteId,
-        bins: Vec<String>,
+        bins: Vec<crate::master::codes::BinCode>,
     ) -> Result<std::collections::HashMap<String, Vec<crate::planning::phone::ItemBrief>>, StoreError>
     {
         self.readers
@@ -466,8 +466,9 @@ impl Store for SqliteStore {
         site: SiteId,
         day: NaiveDate,
         run: u32,
-        holder: String,
+        holder: Option<crate::accounts::UserName>,
     ) -> Result<(), StoreError> {
+        let holder = holder.map(|h| h.as_str().to_string()).unwrap_or_default();
         self.write_tx(move |tx| planning::hold_run(tx, site, day, run, &holder))
             .await
     }
@@ -645,30 +646,12 @@ impl Store for SqliteStore {
 
     async fn count_pass_report(
         &self,
-        pass: String,
+        site: SiteId,
+        pass: crate::netting::results::PassRef,
     ) -> Result<Option<netting::PassReport>, StoreError> {
         self.readers
-            .run(move |c| netting::pass_report(c, &pass, Timestamp::now()))
+            .run(move |c| netting::pass_report(c, site, pass, Timestamp::now()))
             .await
-    }
-
-    async fn renet(
-        &self,
-        site: SiteId,
-        pass: Option<String>,
-        reason: String,
-    ) -> Result<netting::NetOutcome, StoreError> {
-        let every = self.opts.snapshot_every;
-        self.write_tx(move |tx| {
-            crate::netting::pass::renet_passes(
-                &Tx::new(tx, every),
-                site,
-                pass.as_deref(),
-                &reason,
-                Timestamp::now(),
-            )
-        })
-        .await
     }
 
     async fn settle_results(&self, now: Timestamp) -> Result<netting::SettleOutcome, StoreError> {

@@ -164,18 +164,23 @@ pub fn count_result(
 /// Reads a pass (by id or uid) and its current results.
 pub fn pass_report(
     conn: &Connection,
-    pass: &str,
+    site: SiteId,
+    pass: PassRef,
     now: Timestamp,
 ) -> Result<Option<PassReport>, StoreError> {
+    let (id, uid) = match pass {
+        PassRef::Id(id) => (Some(id), None),
+        PassRef::Uid(u) => (None, Some(u.to_string())),
+    };
     let head = conn
         .prepare_cached(
             "select p.id, p.uid, s.code, b.code, u.name, p.first_at, p.done_at, p.uncertainty_ms,
                     p.task_id, p.site_id
              from count_pass p join site s on s.id = p.site_id join bin b on b.id = p.bin_id
              join user_account u on u.id = p.user_id left join count_task t on t.id = p.task_id
-             where p.uid = ?1 or cast(p.id as text) = ?1",
+             where p.site_id = ?1 and (p.id = ?2 or p.uid = ?3)",
         )?
-        .query_row([pass], |r| {
+        .query_row(params![site.0, id, uid], |r| {
             Ok((
                 PassReport {
                     pass_id: r.get(0)?,
