@@ -1,5 +1,7 @@
-//! A test-only [`NettingTx`] over plain maps, so the netting workflow runs without a
-//! database; the same cases run end to end against SQLite in `tests/netting.rs`.
+//! A test-only implementation of the workflows' transaction traits over plain maps
+//! (`NettingTx`, `RecountTx`, `LedgerTx`, `ReviewTx`, `SettleTx`, `AuditTx`), so netting,
+//! recounts, decisions and settling run without a database; the same cases run end to
+//! end against SQLite in `tests/netting.rs`, `tests/review.rs` and `tests/auto_adjust.rs`.
 
 use super::pass::{
     self, AppliedEvent, CurrentResult, ItemFacts, ItemLot, NettingTx, NewResult, OpenTask,
@@ -10,8 +12,15 @@ use super::results::NetOutcome;
 use super::rule::CountTiming;
 use super::service::{Evidence, LedgerMove, NettingSettings, SourceTimingRow, VERDICT_OUT};
 use super::tolerance::Verdict;
+use crate::accounts::UserId;
+use crate::accounts::audit::{AuditEvent, AuditTx};
+use crate::ledger::{LedgerTx, NewMovement, RecordOutcome};
 use crate::master::SiteId;
+use crate::netting::settle::{AutoCandidate, SettleTx};
 use crate::planning::abc::Class;
+use crate::review::decide::{DecisionFacts, ReviewTx};
+use crate::review::store::NewDecision;
+use crate::review::{Candidate, Decider, ReasonCode, ReviewPolicy};
 use crate::store::StoreError;
 use crate::time::Timestamp;
 use crate::time::day::SiteZone;
@@ -62,6 +71,12 @@ struct Memory {
     lists: RefCell<Vec<(String, DayList)>>,
     /// (list, run, holder)
     runs: RefCell<Vec<(i64, u32, String)>>,
+    settings: NettingSettings,
+    audit: RefCell<Vec<AuditEvent>>,
+    /// (result, decision, movement)
+    reviews: RefCell<Vec<(i64, String, Option<i64>)>>,
+    /// (result, movement) adjusted automatically
+    auto: RefCell<Vec<(i64, i64)>>,
 }
 
 fn key(item: i64) -> ItemLot {
@@ -372,7 +387,7 @@ impl NettingTx for Memory {
     }
 
     fn netting_settings(&self, _: SiteId) -> Result<NettingSettings, StoreError> {
-        Ok(NettingSettings::default())
+        Ok(self.settings)
     }
 
     fn source_timings(&self, _: SiteId) -> Result<Vec<SourceTimingRow>, StoreError> {
@@ -854,4 +869,262 @@ fn an_open_pass_is_not_netted() {
         pass::net(&m, 1, None, "", Timestamp(1)).unwrap(),
         NetOutcome::default()
     );
+}
+
+// ---------------------------------------------------------------------------
+// The ledger, the audit trail, decisions and settling, for the review and settle
+// workflows.
+
+impl LedgerTx for Memory {
+    fn append_movements(
+        &self,
+        _: SiteId,
+        rows: &[NewMovement],
+        _: Timestamp,
+        _: &crate::store::Progress,
+    ) -> Result<(RecordOutcome, Vec<WrittenMove>), StoreError> {
+        let mut outcome = RecordOutcome::default();
+        let mut written = Vec::new();
+        for m in rows {
+            let item = self
+                .items
+                .iter()
+                .find(|(_, f)| f.sku == m.sku.as_str())
+                .map(|(id, _)| *id)
+                .ok_or_else(|| StoreError::NotFound(format!("no item {}", m.sku)))?;
+            let mut w = self.movement(m.uid.as_str(), item, m.qty, m.event_at.0);
+            w.source = m.source.clone();
+            if let Some(last) = self.moves.borrow_mut().last_mut() {
+                last.1.source = m.source.clone();
+                last.1.kind = m.kind.as_str().into();
+            }
+            written.push(w);
+            outcome.recorded += 1;
+        }
+        Ok((outcome, written))
+    }
+}
+
+impl AuditTx for Memory {
+    fn insert_audit(&self, event: &AuditEvent) -> Result<(), StoreError> {
+        self.audit.borrow_mut().push(event.clone());
+        Ok(())
+    }
+}
+
+/// The user id the tests give a counter's name.
+fn user_id(name: &str) -> UserId {
+    UserId(match name {
+        "cora" => 1,
+        "dev" => 2,
+        _ => 3,
+    })
+}
+
+impl ReviewTx for Memory {
+    fn seed_reason_codes(&self, _: SiteId) -> Result<(), StoreError> {
+        Ok(())
+    }
+
+    fn review_policy(&self, _: SiteId) -> Result<ReviewPolicy, StoreError> {
+        Ok(ReviewPolicy::default())
+    }
+
+    fn reason_codes(&self, _: SiteId) -> Result<Vec<ReasonCode>, StoreError> {
+        Ok(crate::review::default_reasons())
+    }
+
+    fn decision_facts(&self, _: SiteId, result: i64) -> Result<Option<DecisionFacts>, StoreError> {
+        let rows = self.results.borrow();
+        let Some(r) = rows.get(result as usize - 1) else {
+            return Ok(None);
+        };
+        let counter = self.passes.borrow()[&r.pass].user_name.clone();
+        Ok(Some(DecisionFacts {
+            candidate: Candidate {
+                id: r.id,
+                verdict: r.verdict.clone(),
+                superseded_by: r.superseded_by,
+                decided: self
+                    .reviews
+                    .borrow()
+                    .iter()
+                    .find(|v| v.0 == r.id)
+                    .map(|v| v.1.clone()),
+                settled: true,
+                settles_at: r.evidence.settles_at,
+                value_minor: ((r.counted - r.f_star) * r.unit_cost_minor).abs(),
+                recount_pending: false,
+                counters: vec![user_id(&counter)],
+            },
+            evidence: serde_json::to_string(&r.evidence).unwrap(),
+            variance: r.counted - r.f_star,
+            bin: "A-01-01-1".into(),
+            sku: self.items[&r.key.0].sku.clone(),
+            lot: r.key.1.clone(),
+        }))
+    }
+
+    fn insert_review(&self, d: &NewDecision, decision: &str) -> Result<i64, StoreError> {
+        let mut reviews = self.reviews.borrow_mut();
+        reviews.push((d.result, decision.into(), None));
+        Ok(reviews.len() as i64)
+    }
+
+    fn set_review_movement(&self, review: i64, movement: i64) -> Result<(), StoreError> {
+        self.reviews.borrow_mut()[review as usize - 1].2 = Some(movement);
+        Ok(())
+    }
+}
+
+impl SettleTx for Memory {
+    fn mark_settled(&self, _: Timestamp) -> Result<usize, StoreError> {
+        Ok(0)
+    }
+
+    fn next_auto_candidate(
+        &self,
+        after: i64,
+        _: Timestamp,
+    ) -> Result<Option<AutoCandidate>, StoreError> {
+        let adjusted = self.auto.borrow();
+        Ok(self
+            .results
+            .borrow()
+            .iter()
+            .filter(|r| r.id > after && r.superseded_by.is_none() && r.verdict == "hit")
+            .filter(|r| r.counted != r.f_star)
+            .filter(|r| {
+                // One automatic adjustment per counted key of a count.
+                !adjusted.iter().any(|(id, _)| {
+                    let a = &self.results.borrow()[*id as usize - 1];
+                    a.pass == r.pass && a.key == r.key
+                })
+            })
+            .map(|r| AutoCandidate {
+                id: r.id,
+                site: SITE,
+                bin: "A-01-01-1".into(),
+                sku: self.items[&r.key.0].sku.clone(),
+                lot: r.key.1.clone(),
+                variance: r.counted - r.f_star,
+                class: self.items[&r.key.0].class,
+                unit_cost_minor: r.unit_cost_minor,
+                evidence: serde_json::to_string(&r.evidence).unwrap(),
+            })
+            .next())
+    }
+
+    fn insert_auto_adjustment(
+        &self,
+        result: i64,
+        movement: i64,
+        _: Timestamp,
+    ) -> Result<i64, StoreError> {
+        let mut auto = self.auto.borrow_mut();
+        auto.push((result, movement));
+        Ok(auto.len() as i64)
+    }
+}
+
+fn decision(result: i64, by: &str) -> NewDecision {
+    NewDecision {
+        result,
+        decider: Decider {
+            user: user_id(by),
+            inventory_manager: true,
+        },
+        actor: crate::accounts::audit::Actor::System,
+        reason: "damaged".into(),
+        note: String::new(),
+        at: Timestamp(20_000_000),
+        address: String::new(),
+    }
+}
+
+#[test]
+fn an_approval_posts_the_variance_at_the_book_states_instant_and_re_nets_the_key() {
+    // DESIGN §5: the adjustment of c − f* joins f*'s instant, so the re-net finds the
+    // count among the book states.
+    let m = Memory::new();
+    m.movement("r1", 1, 40, 1_000);
+    m.pass(1, "cora", None, &[(1, 36, 18_000)]);
+    m.net_all(1);
+    let first = m.current(1, 1);
+    assert_eq!((first.counted, first.f_star), (36, 40));
+    let decided =
+        crate::review::decide::approve(&m, SITE, &[decision(first.id, "ines")], false).unwrap();
+    let d = decided[0].as_ref().expect("approved");
+    assert!(d.movement.is_some());
+    let moves = m.moves.borrow();
+    let (_, adj) = moves.last().unwrap();
+    assert_eq!(
+        (adj.delta, adj.event_at),
+        (-4, first.evidence.netting.post_at)
+    );
+    assert_eq!(adj.source, crate::review::decide::COUNT_SOURCE);
+    drop(moves);
+    let now = m.current(1, 1);
+    assert_eq!((now.f_star, now.verdict.as_str()), (36, "hit"), "re-netted");
+    assert_eq!(
+        m.reviews.borrow()[0].2,
+        Some(2),
+        "the review names its movement"
+    );
+    let actions: Vec<_> = m.audit.borrow().iter().map(|e| e.action).collect();
+    assert_eq!(
+        actions,
+        vec![
+            crate::accounts::audit::Action::Approval,
+            crate::accounts::audit::Action::Adjustment
+        ]
+    );
+    // A second decision on the same result is refused and posts nothing.
+    let again =
+        crate::review::decide::approve(&m, SITE, &[decision(first.id, "ines")], false).unwrap();
+    assert!(again[0].is_err(), "{again:?}");
+    assert_eq!(m.moves.borrow().len(), 2);
+}
+
+#[test]
+fn nobody_decides_a_difference_they_counted_and_a_rejection_posts_nothing() {
+    let m = Memory::new();
+    m.movement("r1", 1, 40, 1_000);
+    m.pass(1, "cora", None, &[(1, 36, 18_000)]);
+    m.net_all(1);
+    let id = m.current(1, 1).id;
+    let own = crate::review::decide::approve(&m, SITE, &[decision(id, "cora")], false).unwrap();
+    assert!(own[0].is_err(), "{own:?}");
+    let rejected = crate::review::decide::reject(&m, SITE, &decision(id, "ines")).unwrap();
+    assert_eq!(rejected.unwrap().movement, None);
+    assert_eq!(m.moves.borrow().len(), 1, "the book stands");
+    assert_eq!(m.reviews.borrow()[0].1, "rejected");
+}
+
+#[test]
+fn settling_adjusts_a_within_tolerance_variance_once_where_the_site_allows_it() {
+    // A class C item (5 % tolerance, common practice, no source): 39 of 40 is a hit with a
+    // variance of −1.
+    let mut m = Memory::new();
+    m.items.get_mut(&1).unwrap().class = Some(Class::C);
+    m.settings.auto_adjust = true;
+    m.movement("r1", 1, 40, 1_000);
+    m.pass(1, "cora", None, &[(1, 39, 18_000)]);
+    m.net_all(1);
+    let r = m.current(1, 1);
+    assert_eq!((r.verdict.as_str(), r.counted - r.f_star), ("hit", -1));
+    let out = crate::netting::settle::settle_due(&m, Timestamp(30_000_000)).unwrap();
+    assert_eq!(out.adjusted.len(), 1, "{out:?}");
+    assert_eq!(out.adjusted[0].qty, -1);
+    assert_eq!(m.moves.borrow().last().unwrap().1.delta, -1);
+    let again = crate::netting::settle::settle_due(&m, Timestamp(31_000_000)).unwrap();
+    assert!(again.adjusted.is_empty(), "once: {again:?}");
+    // Where the site does not allow it, nothing is posted.
+    let mut off = Memory::new();
+    off.items.get_mut(&1).unwrap().class = Some(Class::C);
+    off.movement("r1", 1, 40, 1_000);
+    off.pass(1, "cora", None, &[(1, 39, 18_000)]);
+    off.net_all(1);
+    let none = crate::netting::settle::settle_due(&off, Timestamp(30_000_000)).unwrap();
+    assert!(none.adjusted.is_empty());
 }
