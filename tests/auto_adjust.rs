@@ -180,9 +180,7 @@ async fn balance(app: &TestApp, bin: &str) -> i64 {
 }
 
 async fn settle(app: &TestApp, at: i64) -> usize {
-    app.state
-        .store
-        .settle_results(Timestamp(at))
+    cairn::netting::settle::run(app.state.store.as_ref(), Timestamp(at))
         .await
         .expect("settling runs")
         .adjusted
@@ -241,10 +239,7 @@ async fn a_settled_variance_within_tolerance_is_adjusted_once_at_its_posting_ins
     assert!(adjustments_in(&app, BIN_1).await.is_empty());
 
     // Settled: exactly one count adjustment of c − f* at the posting instant.
-    let outcome = app
-        .state
-        .store
-        .settle_results(Timestamp(settles_at + 1))
+    let outcome = cairn::netting::settle::run(app.state.store.as_ref(), Timestamp(settles_at + 1))
         .await
         .unwrap();
     assert_eq!(outcome.adjusted.len(), 1, "{outcome:?}");

@@ -441,10 +441,9 @@ async fn count_back_then(
         ev(done_ms, "bin_done", json!({})),
     ];
     let received_at = Timestamp(done_ms + 5_000);
-    let results = app
-        .state
-        .store
-        .apply_sync(SyncBatch {
+    let results = cairn::sync::apply::run(
+        app.state.store.as_ref(),
+        SyncBatch {
             site: site.id,
             site_code: code.to_string(),
             zone: site.time_zone,
@@ -460,9 +459,10 @@ async fn count_back_then(
                 .enumerate()
                 .map(|(i, e)| event::read(e, i))
                 .collect(),
-        })
-        .await
-        .unwrap();
+        },
+    )
+    .await
+    .unwrap();
     assert!(
         results
             .iter()

@@ -320,7 +320,7 @@ pub async fn import_csv(
             })?;
             let n = p.rows.len();
             let o = write(show, n, &p.lines, |pr| {
-                store.record_movements(id, p.rows, pr, audit(n))
+                crate::ledger::record(store, id, p.rows, pr, audit(n))
             })
             .await?;
             Ok(done(n, o.recorded, o.already_recorded))

@@ -381,14 +381,14 @@ pub async fn generate(
     for day in 0..spec.days {
         if let Some(c) = counting.as_mut().filter(|_| day >= counting_from) {
             if !buffer.is_empty() {
-                store
-                    .record_movements(
-                        site.id,
-                        std::mem::take(&mut buffer),
-                        Progress::default(),
-                        None,
-                    )
-                    .await?;
+                crate::ledger::record(
+                    store,
+                    site.id,
+                    std::mem::take(&mut buffer),
+                    Progress::default(),
+                    None,
+                )
+                .await?;
             }
             let start = world.stock_by_key();
             world.log_truth(true);
@@ -413,14 +413,14 @@ pub async fn generate(
             world.day(day, &mut buffer);
             if buffer.len() >= FLUSH_ROWS || day + 1 == spec.days {
                 summary.movements += buffer.len();
-                store
-                    .record_movements(
-                        site.id,
-                        std::mem::take(&mut buffer),
-                        Progress::default(),
-                        None,
-                    )
-                    .await?;
+                crate::ledger::record(
+                    store,
+                    site.id,
+                    std::mem::take(&mut buffer),
+                    Progress::default(),
+                    None,
+                )
+                .await?;
                 pb.set_message(format!("{} movements", summary.movements));
             }
         }

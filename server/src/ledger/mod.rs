@@ -298,7 +298,7 @@ pub trait LedgerTx {
 /// movements reach (DESIGN §4), so a result and the ledger never disagree. Every write
 /// path that adds movements (a host batch, an import, an approval, an automatic
 /// adjustment) goes through here.
-pub fn append<T: LedgerTx + crate::netting::pass::NettingTx>(
+pub fn append<T: LedgerTx + crate::netting::pass::NettingTx + ?Sized>(
     tx: &T,
     site: crate::master::SiteId,
     rows: &[NewMovement],
@@ -308,6 +308,33 @@ pub fn append<T: LedgerTx + crate::netting::pass::NettingTx>(
     let (outcome, written) = tx.append_movements(site, rows, now, progress)?;
     crate::netting::pass::after_movements(tx, site, &written, now)?;
     Ok((outcome, written))
+}
+
+/// Records a movement batch in one transaction through [`append`], with its audit event
+/// (if any) carrying the counts it wrote, so the two commit or vanish together.
+pub async fn record(
+    store: &dyn crate::store::Store,
+    site: crate::master::SiteId,
+    rows: Vec<NewMovement>,
+    progress: crate::store::Progress,
+    audit: Option<crate::accounts::audit::AuditEvent>,
+) -> Result<RecordOutcome, crate::store::StoreError> {
+    crate::store::write(store, move |tx| {
+        let (outcome, _) = append(tx, site, &rows, Timestamp::now(), &progress)?;
+        if let Some(mut event) = audit {
+            let counts = serde_json::json!({
+                "recorded": outcome.recorded,
+                "already_recorded": outcome.already_recorded,
+            });
+            match (&mut event.detail, counts) {
+                (serde_json::Value::Object(d), serde_json::Value::Object(c)) => d.extend(c),
+                (d, c) => *d = c,
+            }
+            tx.insert_audit(&event)?;
+        }
+        Ok(outcome)
+    })
+    .await
 }
 
 #[cfg(test)]

@@ -52,10 +52,14 @@ async fn post_movements(
     let now = Timestamp::now();
     let rows = rows.validated(|r: MovementRecord| r.validate(now, API_SOURCE))?;
     let audit = audit::api_batch(&p, site.id, "movements", json!({}));
-    let outcome = state
-        .store
-        .record_movements(site.id, rows, Progress::default(), Some(audit))
-        .await?;
+    let outcome = super::record(
+        state.store.as_ref(),
+        site.id,
+        rows,
+        Progress::default(),
+        Some(audit),
+    )
+    .await?;
     Ok(Json(outcome))
 }
 

@@ -221,8 +221,8 @@ fn vanished(
 /// Nets pass `pass_id` if it is marked done: every key (or only those in `only`). A new
 /// row supersedes a key's current result with `reason`; out-of-tolerance first counts go
 /// to a recount; a recount pass decides the keys it re-checks. Nothing for an open pass.
-pub fn net(
-    tx: &dyn NettingTx,
+pub fn net<T: NettingTx + ?Sized>(
+    tx: &T,
     pass_id: i64,
     only: Option<&HashSet<ItemLot>>,
     reason: &str,
@@ -379,8 +379,8 @@ pub fn net(
 /// Decides keys of the first count `first_pass` from recount passes (`(key, recount
 /// pass)`), then sends the keys the recounts agreed on with neither side to one
 /// supervisor count (a key gets at most one). Returns the tasks added.
-pub fn decide_recounts(
-    tx: &dyn NettingTx,
+pub fn decide_recounts<T: NettingTx + ?Sized>(
+    tx: &T,
     first_pass: i64,
     decide: &[(ItemLot, i64)],
     sent: &Sent,
@@ -406,8 +406,8 @@ pub fn decide_recounts(
 /// key: the first result's verdict, outcome and first-count-wrong mark are set in place
 /// (its evidence keeps the original judgement). Returns the first result's id when the
 /// recount agreed with neither side (a supervisor count is due).
-fn apply_recount(
-    tx: &dyn NettingTx,
+fn apply_recount<T: NettingTx + ?Sized>(
+    tx: &T,
     first_pass: i64,
     key: &ItemLot,
     recount_pass: i64,
@@ -442,8 +442,8 @@ fn apply_recount(
 /// yet and that no key needs any more: a recount whose keys are all hits now, a
 /// supervisor count whose keys no recount leaves undecided. A task with one key still out
 /// stays for it.
-pub fn withdraw_unneeded(
-    tx: &dyn NettingTx,
+pub fn withdraw_unneeded<T: NettingTx + ?Sized>(
+    tx: &T,
     first_pass: i64,
     reason: &str,
     now: Timestamp,
@@ -488,8 +488,8 @@ pub struct AppliedEvent {
 /// Nets the passes a sync request touched (each accepted new event's pass, if it is
 /// marked done). A pass netted before gets superseding rows only for keys that changed,
 /// with a reason naming the late events.
-pub fn after_sync(
-    tx: &dyn NettingTx,
+pub fn after_sync<T: NettingTx + ?Sized>(
+    tx: &T,
     applied: &[AppliedEvent],
     now: Timestamp,
 ) -> Result<NetOutcome, StoreError> {
@@ -533,8 +533,8 @@ pub struct WrittenMove {
 /// Re-nets every key of a pass marked done that a newly written movement may change: same
 /// bin and key, and `event_at − source uncertainty ≤ e + u` (`rule::must_renet`). Runs in
 /// the movement batch's transaction, so a result and the ledger never disagree.
-pub fn after_movements(
-    tx: &dyn NettingTx,
+pub fn after_movements<T: NettingTx + ?Sized>(
+    tx: &T,
     site: SiteId,
     moves: &[WrittenMove],
     now: Timestamp,

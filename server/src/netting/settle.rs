@@ -66,7 +66,7 @@ pub trait SettleTx {
 /// Settles what is due at `now` and posts the automatic adjustments now due, oldest
 /// result first. One at a time: each posting re-nets its key (and later counts of the
 /// bin), which may supersede other candidates.
-pub fn settle_due<T: SettleTx + LedgerTx + NettingTx + AuditTx>(
+pub fn settle_due<T: SettleTx + LedgerTx + NettingTx + AuditTx + ?Sized>(
     tx: &T,
     now: Timestamp,
 ) -> Result<SettleOutcome, StoreError> {
@@ -127,4 +127,12 @@ pub fn settle_due<T: SettleTx + LedgerTx + NettingTx + AuditTx>(
         });
     }
     Ok(SettleOutcome { settled, adjusted })
+}
+
+/// Settles what is due at `now` in one transaction of `store` (see [`settle_due`]).
+pub async fn run(
+    store: &dyn crate::store::Store,
+    now: Timestamp,
+) -> Result<SettleOutcome, StoreError> {
+    crate::store::write(store, move |tx| settle_due(tx, now)).await
 }

@@ -81,7 +81,7 @@ pub struct Posted {
 /// the re-net of the key stay right) and its `adjustment` audit event. A refusal by the
 /// ledger is a programming error here: the result's bin, item and lot were stored by the
 /// netting itself.
-pub fn post_count_adjustment<T: LedgerTx + NettingTx + AuditTx>(
+pub fn post_count_adjustment<T: LedgerTx + NettingTx + AuditTx + ?Sized>(
     tx: &T,
     site: SiteId,
     p: &Posting,
@@ -141,7 +141,7 @@ pub fn post_count_adjustment<T: LedgerTx + NettingTx + AuditTx>(
 }
 
 /// Writes a decision's review row and its `approval` audit event.
-fn record_decision<T: ReviewTx + AuditTx>(
+fn record_decision<T: ReviewTx + AuditTx + ?Sized>(
     tx: &T,
     site: SiteId,
     d: &NewDecision,
@@ -171,7 +171,7 @@ fn record_decision<T: ReviewTx + AuditTx>(
 
 /// Takes approvals (one each, in order); each is refused on its own or posts its count
 /// adjustment. `bulk` marks approvals made from the list, held to the bulk limit.
-pub fn approve<T: ReviewTx + LedgerTx + NettingTx + AuditTx>(
+pub fn approve<T: ReviewTx + LedgerTx + NettingTx + AuditTx + ?Sized>(
     tx: &T,
     site: SiteId,
     decisions: &[NewDecision],
@@ -186,7 +186,7 @@ pub fn approve<T: ReviewTx + LedgerTx + NettingTx + AuditTx>(
         .collect()
 }
 
-fn approve_one<T: ReviewTx + LedgerTx + NettingTx + AuditTx>(
+fn approve_one<T: ReviewTx + LedgerTx + NettingTx + AuditTx + ?Sized>(
     tx: &T,
     site: SiteId,
     d: &NewDecision,
@@ -245,7 +245,7 @@ fn approve_one<T: ReviewTx + LedgerTx + NettingTx + AuditTx>(
 }
 
 /// Takes one rejection: the book stands, nothing is posted.
-pub fn reject<T: ReviewTx + AuditTx>(
+pub fn reject<T: ReviewTx + AuditTx + ?Sized>(
     tx: &T,
     site: SiteId,
     d: &NewDecision,
@@ -268,4 +268,23 @@ pub fn reject<T: ReviewTx + AuditTx>(
         review,
         movement: None,
     }))
+}
+
+/// Takes approvals in one transaction of `store` (see [`approve`]).
+pub async fn run_approvals(
+    store: &dyn crate::store::Store,
+    site: SiteId,
+    decisions: Vec<NewDecision>,
+    bulk: bool,
+) -> Result<Vec<Result<Decided, Refusal>>, StoreError> {
+    crate::store::write(store, move |tx| approve(tx, site, &decisions, bulk)).await
+}
+
+/// Takes one rejection in one transaction of `store` (see [`reject`]).
+pub async fn run_rejection(
+    store: &dyn crate::store::Store,
+    site: SiteId,
+    decision: NewDecision,
+) -> Result<Result<Decided, Refusal>, StoreError> {
+    crate::store::write(store, move |tx| reject(tx, site, &decision)).await
 }

@@ -377,7 +377,8 @@ async fn bulk_approve(
             address: address.clone(),
         })
         .collect();
-    let outcomes = state.store.approve(site.id, decisions, true).await?;
+    let outcomes =
+        super::decide::run_approvals(state.store.as_ref(), site.id, decisions, true).await?;
     let approved = outcomes.iter().filter(|o| o.is_ok()).count();
     let lines = outcomes
         .iter()
@@ -779,7 +780,8 @@ async fn approve(
         at: Timestamp::now(),
         address,
     };
-    let mut outcomes = state.store.approve(site.id, vec![decision], false).await?;
+    let mut outcomes =
+        super::decide::run_approvals(state.store.as_ref(), site.id, vec![decision], false).await?;
     match outcomes.pop() {
         Some(Ok(_)) => Ok(Redirect::to(&detail_url(&site, id, "approved")).into_response()),
         Some(Err(r)) => refused(&state, &p, site, id, r).await,
@@ -813,7 +815,7 @@ async fn reject(
         at: Timestamp::now(),
         address,
     };
-    match state.store.reject(site.id, decision).await? {
+    match super::decide::run_rejection(state.store.as_ref(), site.id, decision).await? {
         Ok(_) => Ok(Redirect::to(&detail_url(&site, id, "rejected")).into_response()),
         Err(r) => refused(&state, &p, site, id, r).await,
     }

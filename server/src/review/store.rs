@@ -3,7 +3,7 @@
 //! [`super::check_decision`] inside the writer's transaction, so the result it
 //! judges is the one it writes against.
 
-use super::{Decider, ReasonCode, Refusal, ReviewPolicy};
+use super::{Decider, ReasonCode, ReviewPolicy};
 use crate::accounts::audit::Actor;
 use crate::master::SiteId;
 use crate::store::StoreError;
@@ -218,21 +218,6 @@ pub trait ReviewStore: Send + Sync {
         site: SiteId,
         id: i64,
     ) -> Result<Option<DifferenceDetail>, StoreError>;
-    /// Approves results in one transaction: each passing the checks gets a
-    /// review and one count-adjustment movement; the others are refused.
-    /// `bulk` applies the bulk limit.
-    async fn approve(
-        &self,
-        site: SiteId,
-        decisions: Vec<NewDecision>,
-        bulk: bool,
-    ) -> Result<Vec<Result<Decided, Refusal>>, StoreError>;
-    /// Rejects a result: a review with the investigation note, no movement.
-    async fn reject(
-        &self,
-        site: SiteId,
-        decision: NewDecision,
-    ) -> Result<Result<Decided, Refusal>, StoreError>;
     /// Lists posted count adjustments (approved and automatic) after ledger sequence `after`.
     async fn adjustments(
         &self,

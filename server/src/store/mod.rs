@@ -11,7 +11,7 @@ use crate::accounts::audit::AuditEvent;
 use crate::accounts::store::AccountStore;
 use crate::accuracy::store::AccuracyStore;
 use crate::batch::RowError;
-use crate::ledger::{BalanceRow, Movement, NewMovement, RecordOutcome};
+use crate::ledger::{BalanceRow, Movement};
 use crate::master::codes::{BinCode, Sku, ZoneCode};
 use crate::master::{Bin, NewBin, NewItem, NewPack, NewSite, Site, SiteCode, SiteCounts, SiteId};
 use crate::planning::abc::{AbcRule, Class, Usage};
@@ -160,6 +160,62 @@ impl<'de> serde::Deserialize<'de> for DbLocation {
 pub fn open(location: &DbLocation, options: StoreOptions) -> anyhow::Result<Arc<dyn Store>> {
     let path = location.file()?;
     Ok(Arc::new(sqlite::SqliteStore::open(path, options)?))
+}
+
+/// Every transaction trait a workflow may use, on one write transaction.
+pub trait WriteTx:
+    crate::netting::pass::NettingTx
+    + crate::ledger::LedgerTx
+    + crate::review::decide::ReviewTx
+    + crate::netting::settle::SettleTx
+    + crate::sync::apply::SyncTx
+    + crate::accounts::audit::AuditTx
+{
+}
+
+impl<T> WriteTx for T where
+    T: crate::netting::pass::NettingTx
+        + crate::ledger::LedgerTx
+        + crate::review::decide::ReviewTx
+        + crate::netting::settle::SettleTx
+        + crate::sync::apply::SyncTx
+        + crate::accounts::audit::AuditTx
+{
+}
+
+/// What a unit of work answers, its type erased so one trait method carries any workflow.
+pub type Answer = Box<dyn std::any::Any + Send>;
+/// A workflow's work in one transaction, its answer's type erased.
+pub type Work = Box<dyn FnOnce(&dyn WriteTx) -> Result<Answer, StoreError> + Send>;
+
+fn erase<R: Send + 'static>(
+    work: impl FnOnce(&dyn WriteTx) -> Result<R, StoreError> + Send + 'static,
+) -> Work {
+    Box::new(move |tx| work(tx).map(|r| Box::new(r) as Answer))
+}
+
+fn answer<R: 'static>(a: Answer) -> Result<R, StoreError> {
+    a.downcast::<R>().map(|r| *r).map_err(|_| {
+        StoreError::Internal(anyhow::anyhow!(
+            "a write answered another type than its work"
+        ))
+    })
+}
+
+/// Runs a workflow in one write transaction of `store`.
+pub async fn write<R: Send + 'static>(
+    store: &dyn Store,
+    work: impl FnOnce(&dyn WriteTx) -> Result<R, StoreError> + Send + 'static,
+) -> Result<R, StoreError> {
+    answer(store.write_work(erase(work)).await?)
+}
+
+/// Runs a workflow in a write transaction `store` may share with other callers' work.
+pub async fn write_shared<R: Send + 'static>(
+    store: &dyn Store,
+    work: impl FnOnce(&dyn WriteTx) -> Result<R, StoreError> + Send + 'static,
+) -> Result<R, StoreError> {
+    answer(store.write_shared_work(erase(work)).await?)
 }
 
 /// Most balance rows or movements one page returns.
@@ -312,14 +368,6 @@ pub trait Store: AccountStore + AccuracyStore + ReviewStore + Send + Sync + 'sta
         progress: Progress,
         audit: Option<AuditEvent>,
     ) -> Result<usize, StoreError>;
-    /// Appends movements, idempotent by sender id. All or nothing.
-    async fn record_movements(
-        &self,
-        site: SiteId,
-        rows: Vec<NewMovement>,
-        progress: Progress,
-        audit: Option<AuditEvent>,
-    ) -> Result<RecordOutcome, StoreError>;
     /// Reads balances now or as of an instant.
     async fn balances(&self, site: SiteId, query: BalanceQuery) -> Result<BalancePage, StoreError>;
     /// Reads a bin's or an item's movements in an event-time range.
@@ -413,11 +461,6 @@ pub trait Store: AccountStore + AccuracyStore + ReviewStore + Send + Sync + 'sta
 
     // Phones' counts.
 
-    /// Applies a sync request in one transaction; one result per event, in order.
-    async fn apply_sync(
-        &self,
-        batch: crate::sync::SyncBatch,
-    ) -> Result<Vec<cairn_scan::wire::EventResult>, StoreError>;
     /// Lists every item of a site with its packs (no quantities), for phones.
     async fn catalog(
         &self,
@@ -511,12 +554,13 @@ pub trait Store: AccountStore + AccuracyStore + ReviewStore + Send + Sync + 'sta
         site: SiteId,
         pass: crate::netting::results::PassRef,
     ) -> Result<Option<crate::netting::results::PassReport>, StoreError>;
-    /// Marks results whose settling instant has passed as settled and posts the automatic
-    /// count adjustments then due, in one transaction.
-    async fn settle_results(
-        &self,
-        now: Timestamp,
-    ) -> Result<crate::netting::results::SettleOutcome, StoreError>;
+    /// Runs `work` in one write transaction: committed when it returns `Ok`, rolled back
+    /// otherwise. Workflows call it through [`write`].
+    async fn write_work(&self, work: Work) -> Result<Answer, StoreError>;
+    /// Runs `work` as [`Store::write_work`] does, possibly in one commit with other
+    /// callers' work (each in its own savepoint, answered after the commit): for the many
+    /// small writes of phones' syncs.
+    async fn write_shared_work(&self, work: Work) -> Result<Answer, StoreError>;
 }
 
 #[cfg(test)]

@@ -246,6 +246,27 @@ pub fn apply_batch(tx: &dyn SyncTx, batch: &SyncBatch) -> Result<Vec<EventResult
     Ok(results)
 }
 
+/// Applies a sync request and nets the passes it finished, in one transaction of `store`
+/// (a savepoint of a group commit when several phones sync at once): the acknowledgement
+/// the phone deletes its copy on and the results of its passes commit together.
+pub async fn run(
+    store: &dyn crate::store::Store,
+    batch: SyncBatch,
+) -> Result<Vec<EventResult>, StoreError> {
+    let (results, netted) = crate::store::write_shared(store, move |tx| {
+        let results = apply_batch(tx, &batch)?;
+        let applied = batch.applied(&results);
+        let netted = crate::netting::pass::after_sync(tx, &applied, Timestamp::now())?;
+        Ok((results, netted.written.len() as u64))
+    })
+    .await?;
+    // Counted only once committed: a rolled-back netting never happened.
+    crate::telemetry::metrics()
+        .netting_runs
+        .fetch_add(netted, std::sync::atomic::Ordering::Relaxed);
+    Ok(results)
+}
+
 /// Marks pass `pass` held when its times cannot be trusted: the phone's clock stepped
 /// since its previous sync (`device_step`) or since the sync that first carried the pass,
 /// or the pass spans too long. Says whether the pass is held (now or before).

@@ -79,9 +79,9 @@ async fn sync(
         .enumerate()
         .map(|(i, raw)| event::read(raw, i))
         .collect();
-    let results = state
-        .store
-        .apply_sync(SyncBatch {
+    let results = super::apply::run(
+        state.store.as_ref(),
+        SyncBatch {
             site: site.id,
             site_code: site.code.as_str().to_string(),
             zone: site.time_zone,
@@ -93,8 +93,9 @@ async fn sync(
             clock,
             received_at,
             events,
-        })
-        .await?;
+        },
+    )
+    .await?;
     let (mut accepted, mut repeats, mut rejected, mut conflicts) = (0, 0, 0, 0);
     for r in &results {
         match r.status {

@@ -164,14 +164,14 @@ impl Feed {
                 .take_while(|m| m.recorded_at.map_or(m.event_at.0, |r| r.0) <= t)
                 .count();
         if end > self.next {
-            store
-                .record_movements(
-                    site.id,
-                    self.moves[self.next..end].to_vec(),
-                    Progress::default(),
-                    None,
-                )
-                .await?;
+            crate::ledger::record(
+                store,
+                site.id,
+                self.moves[self.next..end].to_vec(),
+                Progress::default(),
+                None,
+            )
+            .await?;
             self.next = end;
         }
         Ok(())
@@ -481,7 +481,7 @@ impl<'a> Counting<'a> {
                 who,
                 &mut self.rng,
             );
-            let results = self.store.apply_sync(batch).await?;
+            let results = crate::sync::apply::run(self.store, batch).await?;
             let refused = results
                 .iter()
                 .filter(|r| r.status != cairn_scan::wire::EventStatus::Accepted)
@@ -602,7 +602,7 @@ impl<'a> Counting<'a> {
 
     /// Settles results due at `now` and mirrors the automatic adjustments in the book.
     async fn settle(&mut self, world: &mut World<'_>, now: Timestamp) -> anyhow::Result<()> {
-        let outcome = self.store.settle_results(now).await?;
+        let outcome = crate::netting::settle::run(self.store, now).await?;
         for a in &outcome.adjusted {
             if let Some(r) = self.store.count_result(self.site.id, a.result).await? {
                 let row = r.row;

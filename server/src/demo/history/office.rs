@@ -147,12 +147,15 @@ pub async fn review(
             address: String::new(),
         };
         if approve {
-            match store.approve(site.id, vec![decision], false).await?.pop() {
+            match crate::review::decide::run_approvals(store, site.id, vec![decision], false)
+                .await?
+                .pop()
+            {
                 Some(Ok(_)) => sitting.approved.push(row),
                 _ => sitting.refused += 1,
             }
         } else {
-            match store.reject(site.id, decision).await? {
+            match crate::review::decide::run_rejection(store, site.id, decision).await? {
                 Ok(_) => sitting.rejected += 1,
                 Err(_) => sitting.refused += 1,
             }

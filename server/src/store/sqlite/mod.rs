@@ -314,28 +314,6 @@ impl Store for SqliteStore {
         .await
     }
 
-    async fn record_movements(
-        &self,
-        site: SiteId,
-        rows: Vec<NewMovement>,
-        progress: Progress,
-        audit: Option<AuditEvent>,
-    ) -> Result<RecordOutcome, StoreError> {
-        let every = self.opts.snapshot_every;
-        self.write_tx(move |tx| {
-            let tx = Tx::new(tx, every);
-            let (outcome, _) =
-                crate::ledger::append(&tx, site, &rows, Timestamp::now(), &progress)?;
-            let counts = serde_json::json!({
-                "recorded": outcome.recorded,
-                "already_recorded": outcome.already_recorded,
-            });
-            audit_in(&tx, audit, counts)?;
-            Ok(outcome)
-        })
-        .await
-    }
-
     async fn balances(&self, site: SiteId, query: BalanceQuery) -> Result<BalancePage, StoreError> {
         self.readers
             .run(move |c| ledger::balances(c, site, &query))
@@ -476,30 +454,6 @@ impl Store for SqliteStore {
     async fn finish_task(&self, site: SiteId, task: i64, at: Timestamp) -> Result<(), StoreError> {
         self.write_tx(move |tx| planning::finish_task(tx, site, task, at))
             .await
-    }
-
-    async fn apply_sync(
-        &self,
-        batch: crate::sync::SyncBatch,
-    ) -> Result<Vec<cairn_scan::wire::EventResult>, StoreError> {
-        // Netting runs in the request's own transaction (a savepoint of a group commit
-        // when several phones sync at once): the acknowledgement the phone deletes its
-        // copy on and the results of the passes it finished commit together.
-        let every = self.opts.snapshot_every;
-        let (results, netted) = self
-            .write_shared(move |tx| {
-                let tx = Tx::new(tx, every);
-                let results = crate::sync::apply::apply_batch(&tx, &batch)?;
-                let applied = batch.applied(&results);
-                let netted = crate::netting::pass::after_sync(&tx, &applied, Timestamp::now())?;
-                Ok((results, netted.written.len() as u64))
-            })
-            .await?;
-        // Counted only once committed: a rolled-back netting never happened.
-        crate::telemetry::metrics()
-            .netting_runs
-            .fetch_add(netted, std::sync::atomic::Ordering::Relaxed);
-        Ok(results)
     }
 
     async fn catalog(
@@ -654,10 +608,14 @@ impl Store for SqliteStore {
             .await
     }
 
-    async fn settle_results(&self, now: Timestamp) -> Result<netting::SettleOutcome, StoreError> {
+    async fn write_work(&self, work: super::Work) -> Result<super::Answer, StoreError> {
         let every = self.opts.snapshot_every;
-        self.write_tx(move |tx| crate::netting::settle::settle_due(&Tx::new(tx, every), now))
-            .await
+        self.write_tx(move |tx| work(&Tx::new(tx, every))).await
+    }
+
+    async fn write_shared_work(&self, work: super::Work) -> Result<super::Answer, StoreError> {
+        let every = self.opts.snapshot_every;
+        self.write_shared(move |tx| work(&Tx::new(tx, every))).await
     }
 }
 

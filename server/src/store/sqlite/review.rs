@@ -8,11 +8,11 @@ use crate::accounts::UserId;
 use crate::master::SiteId;
 use crate::review::decide::{DecisionFacts, ReviewTx};
 use crate::review::store::{
-    AdjustmentRow, Decided, DifferenceDetail, DifferenceFilter, DifferenceRow, NewDecision,
-    OtherRow, RecountRow, ReviewRow, ReviewStore, ScanLine, WindowMove,
+    AdjustmentRow, DifferenceDetail, DifferenceFilter, DifferenceRow, NewDecision, OtherRow,
+    RecountRow, ReviewRow, ReviewStore, ScanLine, WindowMove,
 };
 use crate::review::{
-    AUTO_REASON_CODE, Candidate, MAX_FEED_ROWS, MAX_LIST_ROWS, ReasonCode, Refusal, ReviewPolicy,
+    AUTO_REASON_CODE, Candidate, MAX_FEED_ROWS, MAX_LIST_ROWS, ReasonCode, ReviewPolicy,
     default_reasons, value_minor,
 };
 use crate::store::StoreError;
@@ -565,29 +565,6 @@ impl ReviewStore for SqliteStore {
         id: i64,
     ) -> Result<Option<DifferenceDetail>, StoreError> {
         self.readers.run(move |c| difference(c, site, id)).await
-    }
-
-    async fn approve(
-        &self,
-        site: SiteId,
-        decisions: Vec<NewDecision>,
-        bulk: bool,
-    ) -> Result<Vec<Result<Decided, Refusal>>, StoreError> {
-        let every = self.opts.snapshot_every;
-        self.write_tx(move |tx| {
-            crate::review::decide::approve(&Tx::new(tx, every), site, &decisions, bulk)
-        })
-        .await
-    }
-
-    async fn reject(
-        &self,
-        site: SiteId,
-        decision: NewDecision,
-    ) -> Result<Result<Decided, Refusal>, StoreError> {
-        let every = self.opts.snapshot_every;
-        self.write_tx(move |tx| crate::review::decide::reject(&Tx::new(tx, every), site, &decision))
-            .await
     }
 
     async fn adjustments(
