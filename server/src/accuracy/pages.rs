@@ -1,7 +1,9 @@
 //! The accuracy pages: the site's trend page (charts drawn as SVG on the
 //! server, filters, each figure's definition beside it, CSV links for every
-//! table), an item's record error, the buffer of every item, and one item's
-//! buffer with every term of its derivation. Book readers only; reading
+//! table), the record error of every counted item and of one, the buffer of
+//! every item, and one item's buffer with every term of its derivation. The
+//! two lists of every item are long tables: sorted, filtered and paged on the
+//! server (`table`), the view in the URL. Book readers only; reading
 //! changes nothing, so there are no forms to protect beyond the filter.
 
 use super::chart::{self, Bars, Line};
