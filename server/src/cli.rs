@@ -46,6 +46,10 @@ enum Command {
         /// Only the movements: no simulated weeks of counting (a quicker start).
         #[arg(long)]
         no_history: bool,
+        /// A small site (60 items, 150 bins, 120 days, the last 4 weeks counted) that
+        /// is made in a few seconds, for tests and a quick look.
+        #[arg(long)]
+        small: bool,
     },
     /// Serve an existing database.
     Serve(ServeArgs),
@@ -443,6 +447,7 @@ async fn dispatch(command: Command) -> anyhow::Result<()> {
             listen,
             seed,
             no_history,
+            small,
         } => {
             let fresh = db.is_new();
             let state = AppState::open(Config {
@@ -454,11 +459,13 @@ async fn dispatch(command: Command) -> anyhow::Result<()> {
             })?;
             if fresh || state.store.sites().await?.is_empty() {
                 errln!("Creating the demo site in {db} (seed {seed}) ...");
-                let spec = DemoSpec::standard(seed);
-                let spec = if no_history {
-                    spec
-                } else {
-                    spec.with_history()
+                let spec = match (small, no_history) {
+                    (true, no_history) => DemoSpec {
+                        history_weeks: if no_history { 0 } else { 4 },
+                        ..DemoSpec::small(seed)
+                    },
+                    (false, true) => DemoSpec::standard(seed),
+                    (false, false) => DemoSpec::standard(seed).with_history(),
                 };
                 let summary = demo::generate(state.store.as_ref(), &spec, true).await?;
                 errln!("{summary}");

@@ -81,6 +81,32 @@ export async function startServer({ prepare, env, site = false, webDir = null, z
   };
 }
 
+/**
+ * Starts `cairn demo --small` on 127.0.0.1:0 over a new database: the fictional demo
+ * site (60 items, the last 4 weeks counted) and its demo people; returns {url, stop}.
+ */
+export async function startDemo() {
+  const dir = mkdtempSync(join(tmpdir(), "cairn-demo-"));
+  const child = spawn(BIN, ["demo", "--small", "--db", join(dir, "demo.db"), "--listen", "127.0.0.1:0"], {
+    stdio: ["ignore", "pipe", "inherit"],
+    env: { RUST_LOG: "warn", ...process.env },
+  });
+  const line = await new Promise((resolve, reject) => {
+    const rl = createInterface({ input: child.stdout });
+    rl.once("line", resolve);
+    child.once("exit", (code) => reject(new Error(`cairn demo exited with ${code}`)));
+  });
+  // Later lines (the demo's sign-ins) are read and dropped so the pipe never fills.
+  child.stdout.resume();
+  return {
+    url: line.split(" at ")[1].trim().replace(/\/$/, ""),
+    stop() {
+      child.kill("SIGTERM");
+      rmSync(dir, { recursive: true, force: true });
+    },
+  };
+}
+
 /** Adds the GS1 mod-10 check digit to a GTIN body (GS1 General Specifications §7.9.1). */
 export function gtin(body) {
   const digits = [...body].map(Number).reverse();

@@ -84,8 +84,10 @@ pub fn unescape(s: &str) -> String {
     s.replace("&quot;", "\"")
         .replace("&#x27;", "'")
         .replace("&#39;", "'")
+        .replace("&#34;", "\"")
         .replace("&lt;", "<")
         .replace("&gt;", ">")
+        .replace("&#38;", "&")
         .replace("&amp;", "&")
 }
 

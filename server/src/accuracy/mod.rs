@@ -4,7 +4,7 @@
 //! record error with its growth over time (`item_error`, pooled over an
 //! item's bins in `items`), daily demand (`demand`), due days for coverage
 //! (`coverage`), planner inputs and settings (`inputs`) and the trend charts
-//! (`chart`). `service` joins them to the store (`store`), `report` writes
+//! (`chart`); the long tables' filter, order and pages (`table`, the columns in `lists`). `service` joins them to the store (`store`), `report` writes
 //! tables as text and CSV, `routes` and `pages` are the HTTP side.
 
 pub mod buffer;
@@ -14,6 +14,7 @@ pub mod demand;
 pub mod inputs;
 pub mod item_error;
 pub mod items;
+pub mod lists;
 pub mod metrics;
 pub mod pages;
 pub mod report;
@@ -21,3 +22,4 @@ pub mod routes;
 pub mod service;
 pub mod stats;
 pub mod store;
+pub mod table;

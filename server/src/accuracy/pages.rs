@@ -1,12 +1,16 @@
 //! The accuracy pages: the site's trend page (charts drawn as SVG on the
 //! server, filters, each figure's definition beside it, CSV links for every
-//! table), an item's record error, the buffer of every item, and one item's
-//! buffer with every term of its derivation. Book readers only; reading
+//! table), the record error of every counted item and of one, the buffer of
+//! every item, and one item's buffer with every term of its derivation. The
+//! two lists of every item are long tables: sorted, filtered and paged on the
+//! server (`table`), the view in the URL. Book readers only; reading
 //! changes nothing, so there are no forms to protect beyond the filter.
 
 use super::chart::{self, Bars, Line};
-use super::routes::{ReportParams, buffers_for, report_for};
+use super::lists::{BUFFER_COLUMNS, ITEM_COLUMNS};
+use super::routes::{ListParams, ReportParams, buffers_for, item_period, report_for};
 use super::service::{self, BufferReport, GroupRow, ItemReport};
+use super::table::{self, Shown};
 use crate::AppState;
 use crate::error::ApiError;
 use crate::http::access::{Access, BOOK_READERS, CurrentUser, RouteTable};
@@ -22,6 +26,7 @@ use axum::response::Html;
 pub fn routes(t: &mut RouteTable) {
     let read = Access::Site(BOOK_READERS);
     t.get("/sites/{site}/accuracy", read, accuracy_page)
+        .get("/sites/{site}/accuracy/items", read, items_page)
         .get("/sites/{site}/accuracy/items/{sku}", read, item_page)
         .get("/sites/{site}/buffer", read, buffers_page)
         .get("/sites/{site}/buffer/{sku}", read, buffer_page);
@@ -380,6 +385,7 @@ async fn item_page(
 struct BufferLine {
     sku: String,
     description: String,
+    group: String,
     class: String,
     d: String,
     lead: String,
@@ -396,29 +402,48 @@ struct BuffersPage {
     site: Site,
     until: String,
     window_days: String,
+    t: Shown,
     rows: Vec<BufferLine>,
     version: &'static str,
+}
+
+/// Refuses a view the rows cannot show (a page past the last), naming the parameter.
+fn bad(e: String) -> PageError {
+    PageError(ApiError::BadRequest(e))
 }
 
 async fn buffers_page(
     State(state): State<AppState>,
     CurrentUser(p): CurrentUser,
     CurrentSite(site): CurrentSite,
-    Params(q): Params<ReportParams>,
+    Params(l): Params<ListParams>,
 ) -> Result<Html<String>, PageError> {
-    let reports = buffers_for(&state, &site, &q, None).await?;
+    l.refuse(&["since", "format"])?;
+    let view = l.view(&BUFFER_COLUMNS)?;
+    let reports = buffers_for(&state, &site, &l.report(), None).await?;
     let (until, window_days) = reports.first().map_or((String::new(), String::new()), |r| {
         (r.demand.to.to_string(), r.demand.calendar_days.to_string())
     });
+    let groups = table::groups(&reports);
+    let page = view.page(&BUFFER_COLUMNS, reports).map_err(bad)?;
+    let fixed = [
+        ("until", l.until.clone().unwrap_or_default()),
+        ("window_days", l.window_days.clone().unwrap_or_default()),
+    ];
+    let path = format!("/sites/{}/buffer", site.code);
+    let t = table::shown(&view, &BUFFER_COLUMNS, &page, &path, &fixed, groups);
     let page = BuffersPage {
         me: Some(Me::at(&p, &site)),
         until,
         window_days,
-        rows: reports
+        t,
+        rows: page
+            .rows
             .iter()
             .map(|r| BufferLine {
                 sku: r.item.sku.clone(),
                 description: r.item.description.clone(),
+                group: r.item.group.clone(),
                 class: r.item.class.map(|c| c.to_string()).unwrap_or_default(),
                 d: num(r.demand.mean, 2),
                 lead: r
@@ -431,6 +456,77 @@ async fn buffers_page(
                     .buffer
                     .map_or("–".into(), |b| b.order_point_units.to_string()),
                 note: !r.notes.is_empty(),
+            })
+            .collect(),
+        site,
+        version: VERSION,
+    };
+    Ok(render(&page)?)
+}
+
+struct ItemLine {
+    sku: String,
+    description: String,
+    group: String,
+    class: String,
+    counts: usize,
+    hits: usize,
+    hit_rate: String,
+    bias: String,
+    error_sd: String,
+    repeat_counts: usize,
+}
+
+#[derive(Template)]
+#[template(path = "accuracy_items.html")]
+struct ItemsPage {
+    me: Option<Me>,
+    site: Site,
+    since: String,
+    until: String,
+    t: Shown,
+    rows: Vec<ItemLine>,
+    version: &'static str,
+}
+
+async fn items_page(
+    State(state): State<AppState>,
+    CurrentUser(p): CurrentUser,
+    CurrentSite(site): CurrentSite,
+    Params(l): Params<ListParams>,
+) -> Result<Html<String>, PageError> {
+    let view = l.view(&ITEM_COLUMNS)?;
+    l.refuse(&["window_days", "format"])?;
+    let report = l.report();
+    let period = item_period(&report, site.time_zone)?;
+    let items = service::item_reports(state.store.as_ref(), &site, period, None).await?;
+    let groups = table::groups(&items);
+    let page = view.page(&ITEM_COLUMNS, items).map_err(bad)?;
+    let fixed = [
+        ("since", l.since.clone().unwrap_or_default()),
+        ("until", l.until.clone().unwrap_or_default()),
+    ];
+    let path = format!("/sites/{}/accuracy/items", site.code);
+    let t = table::shown(&view, &ITEM_COLUMNS, &page, &path, &fixed, groups);
+    let page = ItemsPage {
+        me: Some(Me::at(&p, &site)),
+        since: period.since.to_string(),
+        until: period.until.to_string(),
+        t,
+        rows: page
+            .rows
+            .iter()
+            .map(|r| ItemLine {
+                sku: r.item.sku.clone(),
+                description: r.item.description.clone(),
+                group: r.item.group.clone(),
+                class: r.item.class.map(|c| c.to_string()).unwrap_or_default(),
+                counts: r.figures.counts,
+                hits: r.figures.hits,
+                hit_rate: pct(r.figures.hit_rate),
+                bias: num(r.figures.bias, 3),
+                error_sd: num(r.figures.error_sd, 3),
+                repeat_counts: r.figures.growth.points,
             })
             .collect(),
         site,

@@ -5,11 +5,13 @@
 //! read; planners (and inventory managers) set inputs and settings.
 
 use super::inputs::{AccuracySettings, PlannerInputRecord};
+use super::lists::{BUFFER_COLUMNS, ITEM_COLUMNS};
 use super::report::{self, ACCURACY_TABLES, Table};
 use super::service::{
     self, AccuracyReport, BufferReport, DEFAULT_PERIOD_DAYS, DemandWindow, Filter, ItemReport,
     Period,
 };
+use super::table::{Column, RawView, View};
 use crate::AppState;
 use crate::accounts::audit;
 use crate::error::ApiError;
@@ -66,6 +68,87 @@ pub struct ReportParams {
     pub format: Option<String>,
     pub table: Option<String>,
     pub window_days: Option<String>,
+}
+
+/// Query parameters of the long tables (the buffer, record error per item),
+/// pages and API alike: the report's own (period or demand window, format)
+/// and the table's view (filter, order, page). Empty is the same as none.
+#[derive(Debug, Default, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct ListParams {
+    pub since: Option<String>,
+    pub until: Option<String>,
+    pub window_days: Option<String>,
+    pub format: Option<String>,
+    pub class: Option<String>,
+    pub group: Option<String>,
+    pub q: Option<String>,
+    pub sort: Option<String>,
+    pub dir: Option<String>,
+    pub page: Option<String>,
+    pub per: Option<String>,
+}
+
+impl ListParams {
+    /// Returns the report's parameters (the period or demand window, the format).
+    pub fn report(&self) -> ReportParams {
+        ReportParams {
+            since: self.since.clone(),
+            until: self.until.clone(),
+            window_days: self.window_days.clone(),
+            format: self.format.clone(),
+            ..ReportParams::default()
+        }
+    }
+
+    /// Checks the view against a table's columns.
+    pub fn view<R>(&self, columns: &[Column<R>]) -> Result<View, ApiError> {
+        View::parse(
+            columns,
+            RawView {
+                sort: self.sort.as_deref(),
+                dir: self.dir.as_deref(),
+                class: self.class.as_deref(),
+                group: self.group.as_deref(),
+                q: self.q.as_deref(),
+                page: self.page.as_deref(),
+                per: self.per.as_deref(),
+            },
+        )
+        .map_err(ApiError::BadRequest)
+    }
+
+    /// Refuses the parameters named, which the route does not read (the
+    /// buffer has no `since`, per-item figures no `window_days`, pages no `format`).
+    pub fn refuse(&self, names: &[&str]) -> Result<(), ApiError> {
+        for name in names {
+            let v = match *name {
+                "since" => &self.since,
+                "window_days" => &self.window_days,
+                "format" => &self.format,
+                other => unreachable!("refuse is called with a report parameter, not {other}"),
+            };
+            if v.is_some() {
+                return Err(ApiError::BadRequest(format!(
+                    "{name}: not a parameter of this table"
+                )));
+            }
+        }
+        Ok(())
+    }
+
+    /// Checks the view of an API answer, which has every row the filter
+    /// keeps: paging is for the pages.
+    fn unpaged_view<R>(&self, columns: &[Column<R>]) -> Result<View, ApiError> {
+        for (name, v) in [("page", &self.page), ("per", &self.per)] {
+            if given(v).is_some() {
+                return Err(ApiError::BadRequest(format!(
+                    "{name}: the API and its CSV answer every row the filter keeps; leave {name} out"
+                )));
+            }
+        }
+        self.view(columns)
+    }
 }
 
 fn given(v: &Option<String>) -> Option<&str> {
@@ -189,7 +272,7 @@ async fn get_accuracy(
 }
 
 /// Per-item figures cover all history unless a start is given.
-fn item_period(p: &ReportParams, zone: SiteZone) -> Result<Period, ApiError> {
+pub fn item_period(p: &ReportParams, zone: SiteZone) -> Result<Period, ApiError> {
     let since = p
         .day("since", &p.since)?
         .unwrap_or(NaiveDate::from_ymd_opt(1970, 1, 1).expect("1970-01-01 is a date"));
@@ -199,8 +282,11 @@ fn item_period(p: &ReportParams, zone: SiteZone) -> Result<Period, ApiError> {
 async fn get_items(
     State(state): State<AppState>,
     CurrentSite(site): CurrentSite,
-    Params(p): Params<ReportParams>,
+    Params(l): Params<ListParams>,
 ) -> Result<Response, ApiError> {
+    l.refuse(&["window_days"])?;
+    let view = l.unpaged_view(&ITEM_COLUMNS)?;
+    let p = l.report();
     let csv = p.csv()?;
     let items: Vec<ItemReport> = service::item_reports(
         state.store.as_ref(),
@@ -209,6 +295,7 @@ async fn get_items(
         None,
     )
     .await?;
+    let items = view.select(&ITEM_COLUMNS, items);
     if csv {
         csv_response(&site, &report::items_table(&items))
     } else {
@@ -308,10 +395,13 @@ pub async fn buffers_for(
 async fn get_buffers(
     State(state): State<AppState>,
     CurrentSite(site): CurrentSite,
-    Params(p): Params<ReportParams>,
+    Params(l): Params<ListParams>,
 ) -> Result<Response, ApiError> {
+    l.refuse(&["since"])?;
+    let view = l.unpaged_view(&BUFFER_COLUMNS)?;
+    let p = l.report();
     let csv = p.csv()?;
-    let reports = buffers_for(&state, &site, &p, None).await?;
+    let reports = view.select(&BUFFER_COLUMNS, buffers_for(&state, &site, &p, None).await?);
     if csv {
         csv_response(&site, &report::buffer_table(&reports))
     } else {

@@ -76,6 +76,18 @@ impl DemoSpec {
         }
     }
 
+    /// Returns a small site made in seconds (`cairn demo --small`, browser tests):
+    /// 60 items, 150 bins, 120 days up to yesterday, the last 4 weeks counted.
+    pub fn small(seed: u64) -> Self {
+        Self {
+            items: 60,
+            bins: 150,
+            days: 120,
+            history_weeks: 4,
+            ..Self::standard(seed)
+        }
+    }
+
     /// Returns this site with [`history::HISTORY_WEEKS`] of counting at its end.
     pub fn with_history(mut self) -> Self {
         self.history_weeks = history::HISTORY_WEEKS;
