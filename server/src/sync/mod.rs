@@ -14,6 +14,9 @@ pub mod plausible;
 pub mod results;
 pub mod routes;
 
+#[cfg(test)]
+mod memory;
+
 use crate::accounts::{DeviceId, UserId};
 use crate::master::SiteId;
 use crate::time::Timestamp;
