@@ -271,6 +271,23 @@ pub struct Evidence {
     pub settles_at: Timestamp,
 }
 
+impl Evidence {
+    /// Reads a result's stored evidence (`count_result.evidence`); the one reader of it.
+    pub fn parse(json: &str) -> Result<Self, String> {
+        serde_json::from_str(json).map_err(|e| format!("the stored evidence does not parse: {e}"))
+    }
+
+    /// Returns the index of `f*` in the book states: the stored one when it points at a
+    /// state equal to `f_star`, else the last state equal to `f_star`.
+    pub fn f_star_index(&self, f_star: i64) -> Option<usize> {
+        let states = &self.netting.states;
+        match states.get(self.netting.nearest) {
+            Some(s) if s.qty == f_star => Some(self.netting.nearest),
+            _ => states.iter().rposition(|s| s.qty == f_star),
+        }
+    }
+}
+
 /// Holds a netted key for review: out of tolerance whatever its variance, because its
 /// pass's times cannot be trusted (`reason`, in plain words). A stretched window must
 /// never make a hit (DESIGN §6).

@@ -81,13 +81,10 @@ pub fn settle_due<T: SettleTx + LedgerTx + NettingTx + AuditTx + ?Sized>(
             break;
         };
         after = c.id;
-        let evidence: Evidence = match serde_json::from_str(&c.evidence) {
+        let evidence = match Evidence::parse(&c.evidence) {
             Ok(e) => e,
             Err(e) => {
-                tracing::warn!(
-                    "result {} is not adjusted automatically: its evidence does not parse: {e}",
-                    c.id
-                );
+                tracing::warn!("result {} is not adjusted automatically: {e}", c.id);
                 continue;
             }
         };

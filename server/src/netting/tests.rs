@@ -563,3 +563,58 @@ proptest! {
         }
     }
 }
+
+/// The stored evidence of a netted key reads back through its one parser, with the
+/// feasible states, f* and the posting instant the review shows and posts from.
+#[test]
+fn a_keys_stored_evidence_reads_back_with_f_star_and_its_posting_instant() {
+    use super::service::{self, Evidence, KeyFacts, LedgerMove, NettingSettings, Sources};
+    // A count of 6 while a pick of 3 happened: F = {10, 7}, f* = 7, variance −1, posted
+    // at the pick's instant.
+    let timing = CountTiming {
+        first_scan: Timestamp(10_000),
+        done: Some(Timestamp(20_000)),
+        clock_uncertainty_ms: 500,
+    };
+    let facts = KeyFacts {
+        item_id: 1,
+        sku: "S1".into(),
+        lot: String::new(),
+        class: None,
+        unit_cost_minor: 450,
+        count: KeyCount::Scanned {
+            qty: 6,
+            last: Timestamp(15_000),
+        },
+        balance_before: 10,
+        moves: vec![LedgerMove {
+            id: 41,
+            uid: "p-41".into(),
+            event_at: Timestamp(12_000),
+            delta: -3,
+            kind: "pick".into(),
+            source: "host".into(),
+        }],
+    };
+    let n = service::net_one(
+        &timing,
+        &facts,
+        &Sources::new(&[]),
+        &NettingSettings::default(),
+    )
+    .expect("a scanned key in a done bin nets");
+    let stored = serde_json::to_string(&n.evidence).unwrap();
+    let e = Evidence::parse(&stored).unwrap();
+    assert_eq!(e, n.evidence);
+    assert_eq!(e.netting.opening, 10);
+    assert_eq!(qtys(&e.netting), [10, 7]);
+    assert_eq!(e.netting.states[1].moves, [MoveId(41)]);
+    assert_eq!(e.f_star_index(7), Some(1));
+    assert_eq!(e.f_star_index(5), None);
+    assert_eq!(
+        e.netting.post_at,
+        e.netting.adjustment().expect("a variance").event_at
+    );
+    let bad = Evidence::parse("[").unwrap_err();
+    assert!(bad.contains("does not parse"), "{bad}");
+}

@@ -4,7 +4,6 @@
 //! append path, which re-nets the key. Automatic adjustments post the same way
 //! ([`post_count_adjustment`]). The store answers the queries of [`ReviewTx`].
 
-use super::evidence::Evidence;
 use super::store::{Decided, NewDecision};
 use super::{Candidate, Decision, ReasonCode, Refusal, ReviewPolicy, check_decision};
 use crate::accounts::audit::{Action, Actor, AuditEvent, AuditTx};
@@ -209,7 +208,9 @@ fn approve_one<T: ReviewTx + LedgerTx + NettingTx + AuditTx + ?Sized>(
     if !reasons.iter().any(|r| r.code == d.reason) {
         return Ok(Err(Refusal::UnknownReason(d.reason.clone())));
     }
-    let Ok(post_at) = Evidence::parse(&s.evidence).and_then(|e| e.posting_instant()) else {
+    let Ok(post_at) =
+        crate::netting::service::Evidence::parse(&s.evidence).map(|e| e.netting.post_at)
+    else {
         return Ok(Err(Refusal::NoPostingInstant(d.result)));
     };
     if s.variance == 0 {

@@ -9,7 +9,6 @@
 //! `routes` are the HTTP side.
 
 pub mod decide;
-pub mod evidence;
 pub mod pages;
 pub mod routes;
 pub mod store;

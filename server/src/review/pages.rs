@@ -8,7 +8,6 @@
 //! [`super::check_decision`] inside the store's transaction, so a page that
 //! hides a button is never the only guard.
 
-use super::evidence::Evidence;
 use super::store::{DifferenceDetail, DifferenceFilter, DifferenceRow, NewDecision};
 use super::timeline::{self, Timeline};
 use super::{
@@ -23,6 +22,7 @@ use crate::http::extract::{CurrentSite, Params};
 use crate::http::pages::{Me, PageError, VERSION, render};
 use crate::master::Site;
 use crate::netting::rule::{MoveId, NetMove, Place, Window};
+use crate::netting::service::Evidence;
 use crate::time::Timestamp;
 use askama::Template;
 use axum::Form;
@@ -544,6 +544,7 @@ async fn render_detail(
         Ok(e) => {
             let star = e.f_star_index(d.row.f_star);
             let rows = e
+                .netting
                 .states
                 .iter()
                 .enumerate()
@@ -555,7 +556,7 @@ async fn render_detail(
                     moves: s
                         .moves
                         .iter()
-                        .map(|&m| uid_of(m))
+                        .map(|m| uid_of(m.0))
                         .collect::<Vec<_>>()
                         .join(", "),
                     f_star: Some(i) == star,

@@ -91,8 +91,8 @@ fn current_result(
         .optional()?;
     row.map(
         |(id, status, verdict, recount_outcome, unit_cost_minor, ev)| {
-            let evidence: Evidence = serde_json::from_str(&ev)
-                .map_err(|e| anyhow::anyhow!("count_result {id} has unreadable evidence: {e}"))?;
+            let evidence =
+                Evidence::parse(&ev).map_err(|e| anyhow::anyhow!("count_result {id}: {e}"))?;
             Ok(CurrentResult {
                 id,
                 status,

@@ -109,8 +109,8 @@ pub fn count_result(
     else {
         return Ok(None);
     };
-    let evidence: Evidence = serde_json::from_str(&evidence)
-        .map_err(|e| anyhow::anyhow!("count_result {id} has unreadable evidence: {e}"))?;
+    let evidence =
+        Evidence::parse(&evidence).map_err(|e| anyhow::anyhow!("count_result {id}: {e}"))?;
     let mut replaces = Vec::new();
     let mut at = row.id;
     while let Some(prev) = conn
