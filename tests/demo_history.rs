@@ -166,6 +166,16 @@ async fn the_history_finds_the_errors_it_injected_and_its_accuracy_agrees_with_t
         "out-of-tolerance counts are recounted"
     );
     assert!(h.approved > 0 && h.rejected > 0, "{h:?}");
+    // The summary counts every simulated movement: the ledger holds those and the count
+    // adjustments the approvals and automatic adjustments posted.
+    let counts = g.store.site_counts(g.site.id).await.unwrap();
+    assert_eq!(
+        counts.movements as usize,
+        g.summary.movements + h.approved + h.auto_adjusted,
+        "{} approved, {} adjusted automatically",
+        h.approved,
+        h.auto_adjusted
+    );
 
     // Score each first count against what the simulation knows: the shelf minus the
     // book at each key's scan. A first count a recount proved wrong raised nothing.

@@ -321,6 +321,28 @@ fn items(spec: &DemoSpec, rng: &mut ChaCha8Rng, bins: &[NewBin]) -> (Vec<DemoIte
     (out, packs)
 }
 
+/// Writes the movements waiting in `buffer` (if any) and counts them in the summary.
+async fn record(
+    store: &dyn Store,
+    site: &crate::master::Site,
+    buffer: &mut Vec<crate::ledger::NewMovement>,
+    summary: &mut DemoSummary,
+) -> anyhow::Result<()> {
+    if buffer.is_empty() {
+        return Ok(());
+    }
+    summary.movements += buffer.len();
+    crate::ledger::record(
+        store,
+        site.id,
+        std::mem::take(buffer),
+        Progress::default(),
+        None,
+    )
+    .await?;
+    Ok(())
+}
+
 /// Generates the demo site into `store`; `show` draws progress on the terminal.
 pub async fn generate(
     store: &dyn Store,
@@ -392,16 +414,8 @@ pub async fn generate(
     let mut buffer = Vec::new();
     for day in 0..spec.days {
         if let Some(c) = counting.as_mut().filter(|_| day >= counting_from) {
-            if !buffer.is_empty() {
-                crate::ledger::record(
-                    store,
-                    site.id,
-                    std::mem::take(&mut buffer),
-                    Progress::default(),
-                    None,
-                )
-                .await?;
-            }
+            // The last days before counting began, not yet written.
+            record(store, &site, &mut buffer, &mut summary).await?;
             let start = world.stock_by_key();
             world.log_truth(true);
             world.day(day, &mut buffer);
@@ -424,15 +438,7 @@ pub async fn generate(
         } else {
             world.day(day, &mut buffer);
             if buffer.len() >= FLUSH_ROWS || day + 1 == spec.days {
-                summary.movements += buffer.len();
-                crate::ledger::record(
-                    store,
-                    site.id,
-                    std::mem::take(&mut buffer),
-                    Progress::default(),
-                    None,
-                )
-                .await?;
+                record(store, &site, &mut buffer, &mut summary).await?;
                 pb.set_message(format!("{} movements", summary.movements));
             }
         }
