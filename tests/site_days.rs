@@ -112,16 +112,9 @@ async fn stock(app: &common::TestApp, code: &str, admin: &Auth) {
     assert_eq!(a.status, 200, "{}", a.text);
 }
 
-/// Counts `qty` of S1 in A-01-01-1 of site `code` as `user`'s phone, the bin done at
-/// instant `done_ms` (opened two minutes before); every event must be accepted.
-async fn count_at(
-    app: &common::TestApp,
-    code: &str,
-    token: &str,
-    user: &str,
-    done_ms: i64,
-    qty: i64,
-) {
+/// The events of one pass of `user` over A-01-01-1: opened two minutes before `done_ms`,
+/// `qty` of S1 keyed a minute before, marked done at `done_ms` (phone clock, ms).
+fn pass_events(user: &str, done_ms: i64, qty: i64) -> Vec<Value> {
     let pass = uuid::Uuid::now_v7().to_string();
     let ev = |t: i64, kind: &str, extra: Value| {
         let mut e = json!({"id": uuid::Uuid::now_v7().to_string(), "at": t, "user": user,
@@ -133,7 +126,7 @@ async fn count_at(
     };
     let mut opened = ev(done_ms - 120_000, "bin_opened", json!({"label": ""}));
     opened["id"] = json!(pass);
-    let events = vec![
+    vec![
         opened,
         ev(
             done_ms - 60_000,
@@ -141,7 +134,20 @@ async fn count_at(
             json!({"sku": "S1", "gtin": null, "packs": 1, "qty": qty, "lot": "", "entry": "keypad"}),
         ),
         ev(done_ms, "bin_done", json!({})),
-    ];
+    ]
+}
+
+/// Counts `qty` of S1 in A-01-01-1 of site `code` as `user`'s phone, the bin done at
+/// instant `done_ms` (opened two minutes before); every event must be accepted.
+async fn count_at(
+    app: &common::TestApp,
+    code: &str,
+    token: &str,
+    user: &str,
+    done_ms: i64,
+    qty: i64,
+) {
+    let events = pass_events(user, done_ms, qty);
     let a = app
         .send(
             Method::POST,
@@ -420,26 +426,7 @@ async fn count_back_then(
         .unwrap()
         .unwrap();
     let done_ms = done.timestamp_millis();
-    let pass = uuid::Uuid::now_v7().to_string();
-    let ev = |t: i64, kind: &str, extra: Value| {
-        let mut e = json!({"id": uuid::Uuid::now_v7().to_string(), "at": t, "user": user,
-                           "count": pass, "task": null, "bin": "A-01-01-1", "type": kind});
-        e.as_object_mut()
-            .unwrap()
-            .extend(extra.as_object().unwrap().clone());
-        e
-    };
-    let mut opened = ev(done_ms - 120_000, "bin_opened", json!({"label": ""}));
-    opened["id"] = json!(pass);
-    let raw = [
-        opened,
-        ev(
-            done_ms - 60_000,
-            "line",
-            json!({"sku": "S1", "gtin": null, "packs": 1, "qty": qty, "lot": "", "entry": "keypad"}),
-        ),
-        ev(done_ms, "bin_done", json!({})),
-    ];
+    let raw = pass_events(user, done_ms, qty);
     let received_at = Timestamp(done_ms + 5_000);
     let results = cairn::sync::apply::run(
         app.state.store.as_ref(),

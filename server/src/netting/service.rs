@@ -597,6 +597,18 @@ mod tests {
 
     /// Nets a count of `counted` against a book of `book` with no moves, class `class`.
     fn netted(counted: i64, book: i64, class: Option<Class>, settings: &NettingSettings) -> Netted {
+        netted_over(counted, book, Vec::new(), class, settings)
+    }
+
+    /// Nets a count of `counted` (first scan at 10 s, last at 15 s, done at 20 s, ±0.5 s)
+    /// against a book of `book` before 10 s and the movements `moves`.
+    fn netted_over(
+        counted: i64,
+        book: i64,
+        moves: Vec<LedgerMove>,
+        class: Option<Class>,
+        settings: &NettingSettings,
+    ) -> Netted {
         let timing = CountTiming {
             first_scan: Timestamp(10_000),
             done: Some(Timestamp(20_000)),
@@ -613,9 +625,43 @@ mod tests {
                 last: Timestamp(15_000),
             },
             balance_before: book,
-            moves: Vec::new(),
+            moves,
         };
         net_one(&timing, &facts, &Sources::default(), settings).expect("a scanned key nets")
+    }
+
+    /// The stored evidence of a netted key reads back through its one parser, with the
+    /// feasible states, f* and the posting instant the review shows and posts from.
+    #[test]
+    fn a_keys_stored_evidence_reads_back_with_f_star_and_its_posting_instant() {
+        // A count of 6 while a pick of 3 happened: F = {10, 7}, f* = 7, variance −1,
+        // posted at the pick's instant.
+        let pick = LedgerMove {
+            id: 41,
+            uid: "p-41".into(),
+            event_at: Timestamp(12_000),
+            delta: -3,
+            kind: "pick".into(),
+            source: "host".into(),
+        };
+        let n = netted_over(6, 10, vec![pick], None, &NettingSettings::default());
+        let e = Evidence::parse(&serde_json::to_string(&n.evidence).unwrap()).unwrap();
+        assert_eq!(e, n.evidence);
+        assert_eq!(e.netting.opening, 10);
+        let qtys: Vec<i64> = e.netting.states.iter().map(|s| s.qty).collect();
+        assert_eq!(qtys, [10, 7]);
+        assert_eq!(
+            e.netting.states[1].moves,
+            [crate::netting::rule::MoveId(41)]
+        );
+        assert_eq!(e.f_star_index(7), Some(1));
+        assert_eq!(e.f_star_index(5), None);
+        assert_eq!(
+            e.netting.post_at,
+            e.netting.adjustment().expect("a variance").event_at
+        );
+        let bad = Evidence::parse("[").unwrap_err();
+        assert!(bad.contains("does not parse"), "{bad}");
     }
 
     #[test]
