@@ -152,6 +152,15 @@ impl AuditEvent {
         self.detail = detail;
         self
     }
+
+    /// Adds what a batch wrote (`counts`, a JSON object) to the event's detail.
+    pub fn with_counts(mut self, counts: Value) -> Self {
+        match (&mut self.detail, counts) {
+            (Value::Object(d), Value::Object(c)) => d.extend(c),
+            (d, c) => *d = c,
+        }
+        self
+    }
 }
 
 /// Writing an audit event inside a workflow's transaction.

@@ -321,16 +321,11 @@ pub async fn record(
 ) -> Result<RecordOutcome, crate::store::StoreError> {
     crate::store::write(store, move |tx| {
         let (outcome, _) = append(tx, site, &rows, Timestamp::now(), &progress)?;
-        if let Some(mut event) = audit {
-            let counts = serde_json::json!({
+        if let Some(event) = audit {
+            tx.insert_audit(&event.with_counts(serde_json::json!({
                 "recorded": outcome.recorded,
                 "already_recorded": outcome.already_recorded,
-            });
-            match (&mut event.detail, counts) {
-                (serde_json::Value::Object(d), serde_json::Value::Object(c)) => d.extend(c),
-                (d, c) => *d = c,
-            }
-            tx.insert_audit(&event)?;
+            })))?;
         }
         Ok(outcome)
     })

@@ -174,14 +174,10 @@ fn audit_in(
     audit: Option<AuditEvent>,
     counts: serde_json::Value,
 ) -> Result<(), StoreError> {
-    let Some(mut event) = audit else {
+    let Some(event) = audit else {
         return Ok(());
     };
-    match (&mut event.detail, counts) {
-        (serde_json::Value::Object(d), serde_json::Value::Object(c)) => d.extend(c),
-        (d, c) => *d = c,
-    }
-    accounts::insert_audit(tx, &event)
+    accounts::insert_audit(tx, &event.with_counts(counts))
 }
 
 #[async_trait]
