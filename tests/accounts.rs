@@ -35,7 +35,7 @@ async fn user_exists(app: &TestApp, name: &str) -> bool {
 }
 
 fn count(app: &TestApp, sql: &str) -> i64 {
-    let conn = rusqlite::Connection::open(&app.db).unwrap();
+    let conn = common::sqlite_file(&app.db);
     conn.query_row(sql, [], |r| r.get(0)).unwrap()
 }
 
@@ -404,7 +404,7 @@ async fn the_audit_trail_records_who_did_what_and_refuses_update_and_delete() {
         .await;
     assert!(page.text.contains("api_batch"));
 
-    let conn = rusqlite::Connection::open(&app.db).unwrap();
+    let conn = common::sqlite_file(&app.db);
     let update = conn
         .execute("update audit_event set actor = 'someone else'", [])
         .unwrap_err()

@@ -174,7 +174,7 @@ fn classify_a(c: &Connection, skus: &[&str]) {
 /// waiting for its recount (pending), an I2 count on 20 Feb (before the
 /// period, but the last count coverage starts from) and one on 20 March (after).
 async fn history(app: &TestApp) {
-    let c = Connection::open(&app.db).unwrap();
+    let c = common::sqlite_file(&app.db);
     let r = |sku, class, bin, counter, day, counted, f_star, verdict, cost| R {
         sku,
         class,

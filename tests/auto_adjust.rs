@@ -180,7 +180,7 @@ async fn balance(app: &TestApp, bin: &str) -> i64 {
 }
 
 async fn settle(app: &TestApp, at: i64) -> usize {
-    cairn::netting::settle::run(app.state.store.as_ref(), Timestamp(at))
+    cairn::writes::settle(app.state.store.as_ref(), Timestamp(at))
         .await
         .expect("settling runs")
         .adjusted
@@ -239,7 +239,7 @@ async fn a_settled_variance_within_tolerance_is_adjusted_once_at_its_posting_ins
     assert!(adjustments_in(&app, BIN_1).await.is_empty());
 
     // Settled: exactly one count adjustment of c − f* at the posting instant.
-    let outcome = cairn::netting::settle::run(app.state.store.as_ref(), Timestamp(settles_at + 1))
+    let outcome = cairn::writes::settle(app.state.store.as_ref(), Timestamp(settles_at + 1))
         .await
         .unwrap();
     assert_eq!(outcome.adjusted.len(), 1, "{outcome:?}");
@@ -274,7 +274,7 @@ async fn a_settled_variance_within_tolerance_is_adjusted_once_at_its_posting_ins
     assert_eq!(balance(&app, BIN_2).await, 10);
 
     // The audit trail names it as automatic, with no approval.
-    let conn = rusqlite::Connection::open(&app.db).unwrap();
+    let conn = common::sqlite_file(&app.db);
     let actions: Vec<(String, String, String)> = conn
         .prepare("select action, actor, detail from audit_event where action in ('approval', 'adjustment')")
         .unwrap()

@@ -12,7 +12,7 @@ use std::path::Path;
 
 /// Row counts of every table (sign-in throttling and sessions included).
 fn table_counts(db: &Path) -> BTreeMap<String, i64> {
-    let c = rusqlite::Connection::open(db).unwrap();
+    let c = common::sqlite_file(db);
     let names: Vec<String> = c
         .prepare("select name from sqlite_master where type = 'table' and name not like 'sqlite_%'")
         .unwrap()
@@ -320,7 +320,7 @@ async fn sql_looking_free_text_is_stored_literally_and_harms_nothing() {
         .post(ITEMS, &json!([item(json!({"description": text}))]))
         .await;
     assert_eq!(s, 200, "{b}");
-    let c = rusqlite::Connection::open(&app.db).unwrap();
+    let c = common::sqlite_file(&app.db);
     let stored: String = c
         .query_row("select description from item where sku = 'N1'", [], |r| {
             r.get(0)

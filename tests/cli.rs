@@ -1,5 +1,7 @@
 //! The `cairn code parse` and `cairn labels` commands, through the real binary.
 
+mod common;
+
 use std::process::Command;
 
 fn cairn(args: &[&str]) -> std::process::Output {
@@ -164,7 +166,7 @@ fn a_site_is_made_only_with_a_zone_the_tz_database_knows() {
         String::from_utf8_lossy(&out.stderr)
     );
     assert!(String::from_utf8_lossy(&out.stdout).contains("(Asia/Kathmandu)"));
-    let conn = rusqlite::Connection::open(db).unwrap();
+    let conn = common::sqlite_file(db);
     let zones: Vec<String> = conn
         .prepare("select time_zone from site order by code")
         .unwrap()

@@ -295,7 +295,7 @@ async fn a_killed_server_loses_no_acknowledged_movement() {
     let (mut child, _) = serve(&db);
     child.kill().unwrap();
     child.wait().unwrap();
-    let conn = rusqlite::Connection::open(&db).unwrap();
+    let conn = common::sqlite_file(&db);
     let ok: String = conn
         .query_row("pragma integrity_check", [], |r| r.get(0))
         .unwrap();

@@ -18,7 +18,7 @@ fn write(path: &Path, text: &str) {
 }
 
 fn movement_count(db: &Path) -> i64 {
-    let conn = rusqlite::Connection::open(db).unwrap();
+    let conn = common::sqlite_file(db);
     conn.query_row("select count(*) from movement", [], |r| r.get(0))
         .unwrap()
 }
@@ -154,7 +154,7 @@ fn a_good_file_imports_and_a_second_import_is_acknowledged_not_applied() {
     );
     assert_eq!(movement_count(Path::new(&db)), 10_000);
     // Each import (two of bins and items, two of movements) is in the audit trail.
-    let conn = rusqlite::Connection::open(&db).unwrap();
+    let conn = common::sqlite_file(&db);
     let imports: i64 = conn
         .query_row(
             "select count(*) from audit_event where action = 'import' and actor = 'cli'",

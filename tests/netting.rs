@@ -1117,7 +1117,7 @@ async fn a_simulated_day_flags_every_clear_record_error_and_nothing_moves_alone_
         .to_string();
 
     // Book and shelf of every key, straight from the file (the shelf is demo-only).
-    let conn = rusqlite::Connection::open(&app.db).unwrap();
+    let conn = common::sqlite_file(&app.db);
     let mut keys: Vec<KeyStock> = conn
         .prepare(
             "select b.code, i.sku, k.lot, coalesce(bal.qty, 0), coalesce(sh.qty, 0)

@@ -45,7 +45,7 @@ fn batch(tag: &str, n: usize) -> (Vec<String>, Value) {
 }
 
 fn count_of(db: &Path, sql: &str) -> i64 {
-    let c = rusqlite::Connection::open(db).unwrap();
+    let c = common::sqlite_file(db);
     c.query_row(sql, [], |r| r.get(0)).unwrap()
 }
 
@@ -132,7 +132,7 @@ async fn a_backup_taken_while_movements_stream_in_restores_to_a_sound_balanced_c
         .await
         .expect("the restored copy is migrated");
     drop(state);
-    let conn = rusqlite::Connection::open(&restored).unwrap();
+    let conn = common::sqlite_file(&restored);
     let ok: String = conn
         .query_row("pragma integrity_check", [], |r| r.get(0))
         .unwrap();

@@ -98,7 +98,7 @@ async fn policy(app: &TestApp) -> Value {
 
 /// The audit trail's count-policy changes, oldest first: actor, subject, detail.
 fn policy_audit(app: &TestApp) -> Vec<(String, String, Value)> {
-    let conn = rusqlite::Connection::open(&app.db).unwrap();
+    let conn = common::sqlite_file(&app.db);
     let mut stmt = conn
         .prepare(
             "select actor, subject, detail from audit_event

@@ -491,7 +491,7 @@ async fn play(t: &Template, s: &Script, seed: u64, mode: Mode, db: &Path) -> Ack
 
 /// What the counts come to, independent of clocks and arrival order.
 fn counts_summary(db: &Path) -> BTreeMap<String, String> {
-    let c = rusqlite::Connection::open(db).unwrap();
+    let c = common::sqlite_file(db);
     let mut out = BTreeMap::new();
     let mut q = c
         .prepare(
@@ -575,7 +575,7 @@ fn counts_summary(db: &Path) -> BTreeMap<String, String> {
 }
 
 fn check(db: &Path, s: &Script, acks: &Acks, seed: u64) {
-    let c = rusqlite::Connection::open(db).unwrap();
+    let c = common::sqlite_file(db);
     let ok: String = c
         .query_row("pragma integrity_check", [], |r| r.get(0))
         .unwrap();

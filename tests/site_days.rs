@@ -428,7 +428,7 @@ async fn count_back_then(
     let done_ms = done.timestamp_millis();
     let raw = pass_events(user, done_ms, qty);
     let received_at = Timestamp(done_ms + 5_000);
-    let results = cairn::sync::apply::run(
+    let results = cairn::writes::apply_sync(
         app.state.store.as_ref(),
         SyncBatch {
             site: site.id,

@@ -97,7 +97,7 @@ async fn result(s: &PhoneSite, pass: &str) -> Value {
 
 /// Reads one number from the test's SQLite file.
 fn scalar(s: &PhoneSite, sql: &str) -> i64 {
-    let conn = rusqlite::Connection::open(&s.app.db).unwrap();
+    let conn = common::sqlite_file(&s.app.db);
     conn.query_row(sql, [], |r| r.get::<_, Option<i64>>(0))
         .unwrap()
         .unwrap_or(0)

@@ -16,8 +16,8 @@ use cairn::ledger::{MovementKind, NewMovement};
 use cairn::master::codes::{BinCode, MovementUid, Sku};
 use cairn::master::{BinRecord, ItemRecord, NewSite, SiteCode, SiteId};
 use cairn::store::Progress;
-use cairn::store::sqlite::ledger::{Key, balance_as_of, insert_movements};
-use cairn::store::sqlite::{SqliteStore, master, migrate};
+use cairn::store::sqlite::ledger::{Key, balance_as_of};
+use cairn::store::sqlite::{SqliteStore, Tx, master, migrate};
 use cairn::store::{StoreOptions as OpenOptions, Synchronous};
 use cairn::time::Timestamp;
 use rand::{Rng, SeedableRng};
@@ -282,12 +282,11 @@ fn build_ledger(path: &Path, n: usize) -> (Vec<Key>, Key, i64) {
     let mut chunk = Vec::with_capacity(50_000);
     let flush = |conn: &mut rusqlite::Connection, chunk: &mut Vec<NewMovement>| {
         let tx = conn.transaction().unwrap();
-        insert_movements(
-            &tx,
+        cairn::ledger::write_batch(
+            &Tx::new(&tx, 256),
             site,
             chunk,
             Timestamp(T0 + 2 * span),
-            256,
             &Progress::default(),
         )
         .unwrap();

@@ -905,7 +905,7 @@ async fn settle_results(store: std::sync::Arc<dyn Store>) {
     let mut tick = tokio::time::interval(SETTLE_EVERY);
     loop {
         tick.tick().await;
-        match crate::netting::settle::run(store.as_ref(), crate::time::Timestamp::now()).await {
+        match crate::writes::settle(store.as_ref(), crate::time::Timestamp::now()).await {
             Ok(o) if !o.adjusted.is_empty() => {
                 tracing::info!(
                     "posted {} automatic count adjustments within tolerance",

@@ -2,7 +2,7 @@
 //! fixed text, while the cause is logged once, here.
 
 use crate::batch::RowError;
-use crate::store::StoreError;
+use crate::store::error::StoreError;
 use axum::Json;
 use axum::http::StatusCode;
 use axum::response::{IntoResponse, Response};

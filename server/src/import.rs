@@ -7,7 +7,8 @@ use crate::accuracy::inputs::PlannerInputRecord;
 use crate::batch::{Collector, FieldError, RowError};
 use crate::ledger::MovementRecord;
 use crate::master::{BinRecord, ItemRecord, PackRecord, Site};
-use crate::store::{Progress, Store, StoreError};
+use crate::store::Store;
+use crate::store::error::{Progress, StoreError};
 use crate::time::Timestamp;
 use indicatif::{ProgressBar, ProgressStyle};
 use serde::de::DeserializeOwned;
@@ -320,7 +321,7 @@ pub async fn import_csv(
             })?;
             let n = p.rows.len();
             let o = write(show, n, &p.lines, |pr| {
-                crate::ledger::record(store, id, p.rows, pr, audit(n))
+                crate::writes::record_movements(store, id, p.rows, pr, audit(n))
             })
             .await?;
             Ok(done(n, o.recorded, o.already_recorded))

@@ -25,6 +25,7 @@ pub mod store;
 pub mod sync;
 pub mod telemetry;
 pub mod time;
+pub mod writes;
 
 use config::Config;
 use std::sync::Arc;

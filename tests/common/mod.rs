@@ -682,11 +682,21 @@ pub fn cairn_with_input(args: &[&str], input: &str) -> std::process::Output {
     child.wait_with_output().expect("the child exits")
 }
 
+/// Opens the test's SQLite file itself. **SQLite-specific**: every test that reads or writes
+/// the database beside the API (append-only triggers, integrity checks, rows a check needs
+/// and no route shows, hand-built history) comes through here, so a run on another store
+/// knows which checks to port or skip.
+pub fn sqlite_file(db: impl AsRef<std::path::Path>) -> rusqlite::Connection {
+    let db = db.as_ref();
+    rusqlite::Connection::open(db)
+        .unwrap_or_else(|e| panic!("the test's database {} opens: {e}", db.display()))
+}
+
 /// Returns each table's row count and a SHA-256 of its every row, in a stable order: what
 /// a refused request must leave unchanged.
 pub fn table_contents(db: &std::path::Path) -> std::collections::BTreeMap<String, (i64, String)> {
     use sha2::{Digest, Sha256};
-    let c = rusqlite::Connection::open(db).unwrap();
+    let c = sqlite_file(db);
     let names: Vec<String> = c
         .prepare("select name from sqlite_master where type = 'table' and name not like 'sqlite_%'")
         .unwrap()

@@ -226,7 +226,7 @@ async fn create_user(
         .await;
     match made {
         Ok(_) => Ok(back_to(&site, "users")),
-        Err(crate::store::StoreError::Conflict(m)) => {
+        Err(crate::store::error::StoreError::Conflict(m)) => {
             render_users(&state, &p, site, StatusCode::CONFLICT, m).await
         }
         Err(e) => Err(e.into()),
@@ -250,7 +250,7 @@ async fn set_roles(
         .from_address(&address);
     match state.store.set_roles(&name, site.id, roles, audit).await {
         Ok(()) => Ok(back_to(&site, "users")),
-        Err(crate::store::StoreError::NotFound(m)) => {
+        Err(crate::store::error::StoreError::NotFound(m)) => {
             render_users(&state, &p, site, StatusCode::NOT_FOUND, m).await
         }
         Err(e) => Err(e.into()),
@@ -490,9 +490,10 @@ async fn issue_token(
             )
             .await
         }
-        Err(crate::store::StoreError::Conflict(m) | crate::store::StoreError::NotFound(m)) => {
-            render_tokens(&state, &p, site, StatusCode::BAD_REQUEST, String::new(), m).await
-        }
+        Err(
+            crate::store::error::StoreError::Conflict(m)
+            | crate::store::error::StoreError::NotFound(m),
+        ) => render_tokens(&state, &p, site, StatusCode::BAD_REQUEST, String::new(), m).await,
         Err(e) => Err(e.into()),
     }
 }

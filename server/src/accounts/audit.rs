@@ -165,7 +165,7 @@ impl AuditEvent {
 
 /// Writing an audit event inside a workflow's transaction.
 pub trait AuditTx {
-    fn insert_audit(&self, event: &AuditEvent) -> Result<(), crate::store::StoreError>;
+    fn insert_audit(&self, event: &AuditEvent) -> Result<(), crate::store::error::StoreError>;
 }
 
 /// Builds the audit event of an API batch that was written.

@@ -43,8 +43,8 @@ pub enum SignInError {
     Internal(#[from] anyhow::Error),
 }
 
-impl From<crate::store::StoreError> for SignInError {
-    fn from(e: crate::store::StoreError) -> Self {
+impl From<crate::store::error::StoreError> for SignInError {
+    fn from(e: crate::store::error::StoreError) -> Self {
         SignInError::Internal(e.into())
     }
 }

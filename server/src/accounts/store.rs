@@ -8,7 +8,7 @@ use super::secret::{CsrfToken, SecretHash};
 use super::throttle::Failures;
 use super::{DeviceId, Principal, Role, User, UserId, UserName};
 use crate::master::SiteId;
-use crate::store::StoreError;
+use crate::store::error::StoreError;
 use crate::time::Timestamp;
 use async_trait::async_trait;
 

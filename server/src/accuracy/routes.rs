@@ -53,7 +53,6 @@ pub fn routes(t: &mut RouteTable) {
         )
         .get(path!("/buffer"), read, get_buffers)
         .get(path!("/buffer/{sku}"), read, get_buffer);
-    super::pages::routes(t);
 }
 
 /// Query parameters the accuracy and buffer routes and pages share; an empty

@@ -7,7 +7,7 @@ use crate::accounts::audit::AuditEvent;
 use crate::master::SiteId;
 use crate::master::codes::Sku;
 use crate::planning::abc::Class;
-use crate::store::StoreError;
+use crate::store::error::StoreError;
 use crate::time::Timestamp;
 use async_trait::async_trait;
 use chrono::NaiveDate;

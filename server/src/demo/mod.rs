@@ -14,7 +14,8 @@ use crate::master::codes::{BinCode, Sku, ZoneCode};
 use crate::master::{
     BinRecord, ItemRecord, NewBin, NewItem, NewPack, NewSite, PackLevel, Side, SiteCode,
 };
-use crate::store::{Progress, Store};
+use crate::store::Store;
+use crate::store::error::Progress;
 use chrono::NaiveDate;
 use indicatif::{ProgressBar, ProgressStyle};
 use rand::{Rng, SeedableRng};
@@ -332,7 +333,7 @@ async fn record(
         return Ok(());
     }
     summary.movements += buffer.len();
-    crate::ledger::record(
+    crate::writes::record_movements(
         store,
         site.id,
         std::mem::take(buffer),

@@ -31,7 +31,9 @@ pub fn route_table() -> RouteTable {
     crate::master::routes::routes(&mut t);
     crate::ledger::routes::routes(&mut t);
     crate::planning::routes::routes(&mut t);
+    crate::planning::pages::routes(&mut t);
     crate::accuracy::routes::routes(&mut t);
+    crate::accuracy::pages::routes(&mut t);
     crate::sync::routes::routes(&mut t);
     crate::netting::routes::routes(&mut t);
     crate::netting::pages::routes(&mut t);

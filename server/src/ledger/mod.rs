@@ -2,6 +2,7 @@
 //! happened (`event_at`) and the time the server learnt of it (`recorded_at`).
 //! On-hand for a key at an instant is the sum of its deltas up to that instant.
 
+pub mod append;
 pub mod routes;
 
 use crate::batch::FieldError;
@@ -280,57 +281,9 @@ pub struct BalanceRow {
     pub qty: i64,
 }
 
-/// The ledger's write inside one transaction: the store checks a batch against what it
-/// holds (bins, items, lots, reversals, resends) and writes all rows or none.
-pub trait LedgerTx {
-    /// Appends a batch; returns the outcome and the movements actually written (a
-    /// resend writes none), in batch order.
-    fn append_movements(
-        &self,
-        site: crate::master::SiteId,
-        rows: &[NewMovement],
-        now: Timestamp,
-        progress: &crate::store::Progress,
-    ) -> Result<(RecordOutcome, Vec<crate::netting::pass::WrittenMove>), crate::store::StoreError>;
-}
-
-/// Records a movement batch and re-nets, in the same transaction, every count its
-/// movements reach (DESIGN §4), so a result and the ledger never disagree. Every write
-/// path that adds movements (a host batch, an import, an approval, an automatic
-/// adjustment) goes through here.
-pub fn append<T: LedgerTx + crate::netting::pass::NettingTx + ?Sized>(
-    tx: &T,
-    site: crate::master::SiteId,
-    rows: &[NewMovement],
-    now: Timestamp,
-    progress: &crate::store::Progress,
-) -> Result<(RecordOutcome, Vec<crate::netting::pass::WrittenMove>), crate::store::StoreError> {
-    let (outcome, written) = tx.append_movements(site, rows, now, progress)?;
-    crate::netting::pass::after_movements(tx, site, &written, now)?;
-    Ok((outcome, written))
-}
-
-/// Records a movement batch in one transaction through [`append`], with its audit event
-/// (if any) carrying the counts it wrote, so the two commit or vanish together.
-pub async fn record(
-    store: &dyn crate::store::Store,
-    site: crate::master::SiteId,
-    rows: Vec<NewMovement>,
-    progress: crate::store::Progress,
-    audit: Option<crate::accounts::audit::AuditEvent>,
-) -> Result<RecordOutcome, crate::store::StoreError> {
-    crate::store::write(store, move |tx| {
-        let (outcome, _) = append(tx, site, &rows, Timestamp::now(), &progress)?;
-        if let Some(event) = audit {
-            tx.insert_audit(&event.with_counts(serde_json::json!({
-                "recorded": outcome.recorded,
-                "already_recorded": outcome.already_recorded,
-            })))?;
-        }
-        Ok(outcome)
-    })
-    .await
-}
+pub use append::{
+    Inserted, ItemRef, LedgerKey, LedgerTx, StoredMovement, WatermarkTx, append, write_batch,
+};
 
 #[cfg(test)]
 mod tests {

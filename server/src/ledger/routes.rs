@@ -7,9 +7,8 @@ use crate::error::ApiError;
 use crate::http::access::{Access, BOOK_READERS, BOOK_WRITERS, CurrentUser, RouteTable};
 use crate::http::extract::{CurrentSite, JsonRows, Params};
 use crate::master::codes::{BinCode, Sku};
-use crate::store::{
-    BalancePage, BalanceQuery, HistoryPage, HistoryQuery, HistorySubject, Progress,
-};
+use crate::store::error::Progress;
+use crate::store::{BalancePage, BalanceQuery, HistoryPage, HistoryQuery, HistorySubject};
 use crate::time::Timestamp;
 use axum::Json;
 use axum::extract::{Path, State};
@@ -52,7 +51,7 @@ async fn post_movements(
     let now = Timestamp::now();
     let rows = rows.validated(|r: MovementRecord| r.validate(now, API_SOURCE))?;
     let audit = audit::api_batch(&p, site.id, "movements", json!({}));
-    let outcome = super::record(
+    let outcome = crate::writes::record_movements(
         state.store.as_ref(),
         site.id,
         rows,

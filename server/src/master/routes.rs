@@ -6,7 +6,7 @@ use crate::accounts::audit;
 use crate::error::ApiError;
 use crate::http::access::{Access, BOOK_READERS, BOOK_WRITERS, CurrentUser, RouteTable};
 use crate::http::extract::{CurrentSite, JsonRows};
-use crate::store::Progress;
+use crate::store::error::Progress;
 use axum::Json;
 use axum::extract::State;
 use serde::Serialize;

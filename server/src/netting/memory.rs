@@ -14,14 +14,17 @@ use super::service::{Evidence, LedgerMove, NettingSettings, SourceTimingRow, VER
 use super::tolerance::Verdict;
 use crate::accounts::UserId;
 use crate::accounts::audit::{AuditEvent, AuditTx};
-use crate::ledger::{LedgerTx, NewMovement, RecordOutcome};
+use crate::ledger::{
+    Inserted, ItemRef, LedgerKey, LedgerTx, MovementKind, NewMovement, StoredMovement, WatermarkTx,
+};
 use crate::master::SiteId;
+use crate::master::codes::{BinCode, MovementUid, Sku};
 use crate::netting::settle::{AutoCandidate, SettleTx};
 use crate::planning::abc::Class;
 use crate::review::decide::{DecisionFacts, ReviewTx};
 use crate::review::store::NewDecision;
 use crate::review::{Candidate, Decider, ReasonCode, ReviewPolicy};
-use crate::store::StoreError;
+use crate::store::error::StoreError;
 use crate::time::Timestamp;
 use crate::time::day::SiteZone;
 use std::cell::RefCell;
@@ -77,6 +80,10 @@ struct Memory {
     reviews: RefCell<Vec<(i64, String, Option<i64>)>>,
     /// (result, movement) adjusted automatically
     auto: RefCell<Vec<(i64, i64)>>,
+    /// Items that need a lot on every movement.
+    lot_tracked: BTreeSet<i64>,
+    /// Movements that have a reversal.
+    reversed: RefCell<BTreeSet<i64>>,
 }
 
 fn key(item: i64) -> ItemLot {
@@ -392,10 +399,6 @@ impl NettingTx for Memory {
 
     fn source_timings(&self, _: SiteId) -> Result<Vec<SourceTimingRow>, StoreError> {
         Ok(self.sources.clone())
-    }
-
-    fn watermark(&self) -> Result<i64, StoreError> {
-        Ok(self.moves.borrow().len() as i64)
     }
 
     fn counted_keys(&self, pass: i64) -> Result<BTreeMap<ItemLot, (i64, Timestamp)>, StoreError> {
@@ -875,33 +878,82 @@ fn an_open_pass_is_not_netted() {
 // The ledger, the audit trail, decisions and settling, for the review and settle
 // workflows.
 
+impl WatermarkTx for Memory {
+    fn watermark(&self) -> Result<i64, StoreError> {
+        Ok(self.moves.borrow().len() as i64)
+    }
+}
+
+/// The one bin's code.
+const BIN_CODE: &str = "A-01-01-1";
+
 impl LedgerTx for Memory {
-    fn append_movements(
+    fn bin_id(&self, _: SiteId, bin: &BinCode) -> Result<Option<i64>, StoreError> {
+        Ok((bin.as_str() == BIN_CODE).then_some(BIN))
+    }
+
+    fn item_ref(&self, _: SiteId, sku: &Sku) -> Result<Option<ItemRef>, StoreError> {
+        Ok(self
+            .items
+            .iter()
+            .find(|(_, f)| f.sku == sku.as_str())
+            .map(|(&id, _)| ItemRef {
+                id,
+                lot_tracked: self.lot_tracked.contains(&id),
+            }))
+    }
+
+    fn movement_by_uid(&self, uid: &MovementUid) -> Result<Option<StoredMovement>, StoreError> {
+        Ok(self
+            .moves
+            .borrow()
+            .iter()
+            .find(|(_, m)| m.uid == uid.as_str())
+            .map(|((item, lot), m)| StoredMovement {
+                id: m.id,
+                site: SITE,
+                key: LedgerKey {
+                    bin_id: BIN,
+                    item_id: *item,
+                    lot: lot.clone(),
+                },
+                qty: m.delta,
+                kind: MovementKind::parse(&m.kind).expect("a kind this memory wrote"),
+                event_at: m.event_at,
+            }))
+    }
+
+    fn is_reversed(&self, movement: i64) -> Result<bool, StoreError> {
+        Ok(self.reversed.borrow().contains(&movement))
+    }
+
+    fn insert_movement(
         &self,
         _: SiteId,
-        rows: &[NewMovement],
+        m: &NewMovement,
+        key: &LedgerKey,
         _: Timestamp,
-        _: &crate::store::Progress,
-    ) -> Result<(RecordOutcome, Vec<WrittenMove>), StoreError> {
-        let mut outcome = RecordOutcome::default();
-        let mut written = Vec::new();
-        for m in rows {
-            let item = self
-                .items
-                .iter()
-                .find(|(_, f)| f.sku == m.sku.as_str())
-                .map(|(id, _)| *id)
-                .ok_or_else(|| StoreError::NotFound(format!("no item {}", m.sku)))?;
-            let mut w = self.movement(m.uid.as_str(), item, m.qty, m.event_at.0);
-            w.source = m.source.clone();
-            if let Some(last) = self.moves.borrow_mut().last_mut() {
-                last.1.source = m.source.clone();
-                last.1.kind = m.kind.as_str().into();
-            }
-            written.push(w);
-            outcome.recorded += 1;
+        reverses: Option<i64>,
+    ) -> Result<Inserted, StoreError> {
+        if self.movement_by_uid(&m.uid)?.is_some() {
+            return Ok(Inserted::Existing);
         }
-        Ok((outcome, written))
+        let id = self.moves.borrow().len() as i64 + 1;
+        self.moves.borrow_mut().push((
+            (key.item_id, key.lot.clone()),
+            LedgerMove {
+                id,
+                uid: m.uid.as_str().into(),
+                event_at: m.event_at,
+                delta: m.qty,
+                kind: m.kind.as_str().into(),
+                source: m.source.clone(),
+            },
+        ));
+        if let Some(r) = reverses {
+            self.reversed.borrow_mut().insert(r);
+        }
+        Ok(Inserted::New(id))
     }
 }
 
@@ -1127,4 +1179,117 @@ fn settling_adjusts_a_within_tolerance_variance_once_where_the_site_allows_it() 
     off.net_all(1);
     let none = crate::netting::settle::settle_due(&off, Timestamp(30_000_000)).unwrap();
     assert!(none.adjusted.is_empty());
+}
+
+// The ledger's batch rules (`ledger::write_batch`), end to end in `tests/ledger.rs`.
+
+/// A movement of `qty` of `sku` in `bin` with id `uid`, reversing `reverses` if given.
+fn moved(uid: &str, bin: &str, sku: &str, qty: i64, reverses: Option<&str>) -> NewMovement {
+    NewMovement {
+        uid: MovementUid::parse(uid).unwrap(),
+        bin: BinCode::parse(bin).unwrap(),
+        sku: Sku::parse(sku).unwrap(),
+        lot: String::new(),
+        expiry: None,
+        qty,
+        kind: if qty < 0 {
+            MovementKind::Pick
+        } else {
+            MovementKind::Receipt
+        },
+        event_at: Timestamp(1_000),
+        source: "host".into(),
+        doc_ref: String::new(),
+        actor: String::new(),
+        reverses: reverses.map(|r| MovementUid::parse(r).unwrap()),
+        recorded_at: None,
+    }
+}
+
+fn refused(m: &Memory, rows: &[NewMovement]) -> Vec<(usize, String, String)> {
+    match crate::ledger::write_batch(m, SITE, rows, Timestamp(2_000), &Default::default()) {
+        Err(StoreError::Rejected(errs)) => errs
+            .into_iter()
+            .map(|e| (e.row, e.field, e.message))
+            .collect(),
+        other => panic!("expected a refusal, got {other:?}"),
+    }
+}
+
+#[test]
+fn a_batch_is_refused_with_every_rows_reason() {
+    let mut m = Memory::new();
+    m.lot_tracked.insert(2);
+    let mut lotted = moved("m-5", BIN_CODE, "S1", 1, None);
+    lotted.lot = "L1".into();
+    let errs = refused(
+        &m,
+        &[
+            moved("m-1", BIN_CODE, "S1", 4, None),
+            moved("m-1", BIN_CODE, "S1", 4, None),
+            moved("m-2", "Z-09-09-9", "S1", 4, None),
+            moved("m-3", BIN_CODE, "NOPE", 4, None),
+            moved("m-4", BIN_CODE, "S2", 4, None),
+            lotted,
+        ],
+    );
+    let fields: Vec<_> = errs.iter().map(|e| (e.0, e.1.as_str())).collect();
+    assert_eq!(
+        fields,
+        [(1, "id"), (2, "bin"), (3, "sku"), (4, "lot"), (5, "lot")]
+    );
+    assert!(errs[0].2.contains("first at row 0"), "{}", errs[0].2);
+    assert!(errs[3].2.contains("lot is required"), "{}", errs[3].2);
+    assert!(errs[4].2.contains("leave lot empty"), "{}", errs[4].2);
+}
+
+#[test]
+fn a_resend_is_acknowledged_once_and_other_content_under_its_id_refused() {
+    let m = Memory::new();
+    let first = [moved("m-1", BIN_CODE, "S1", 4, None)];
+    let (out, written) =
+        crate::ledger::write_batch(&m, SITE, &first, Timestamp(2_000), &Default::default())
+            .unwrap();
+    assert_eq!(
+        (out.recorded, out.already_recorded, written.len()),
+        (1, 0, 1)
+    );
+    let (out, written) =
+        crate::ledger::write_batch(&m, SITE, &first, Timestamp(3_000), &Default::default())
+            .unwrap();
+    assert_eq!(
+        (out.recorded, out.already_recorded, written.len()),
+        (0, 1, 0)
+    );
+    assert_eq!(out.watermark, 1);
+    let errs = refused(&m, &[moved("m-1", BIN_CODE, "S1", 5, None)]);
+    assert_eq!(errs.len(), 1);
+    assert!(errs[0].2.contains("different content"), "{}", errs[0].2);
+}
+
+#[test]
+fn a_reversal_mirrors_its_movement_and_happens_once() {
+    let m = Memory::new();
+    let batch = [
+        moved("m-1", BIN_CODE, "S1", 4, None),
+        moved("r-1", BIN_CODE, "S1", -4, Some("m-1")),
+    ];
+    let (out, _) =
+        crate::ledger::write_batch(&m, SITE, &batch, Timestamp(2_000), &Default::default())
+            .unwrap();
+    assert_eq!(out.recorded, 2, "a reversal of a row earlier in its batch");
+    let again = refused(&m, &[moved("r-2", BIN_CODE, "S1", -4, Some("m-1"))]);
+    assert!(again[0].2.contains("already been reversed"), "{again:?}");
+    crate::ledger::write_batch(
+        &m,
+        SITE,
+        &[moved("m-2", BIN_CODE, "S2", 3, None)],
+        Timestamp(2_000),
+        &Default::default(),
+    )
+    .unwrap();
+    let wrong = refused(&m, &[moved("r-3", BIN_CODE, "S2", -2, Some("m-2"))]);
+    assert!(wrong[0].2.contains("quantity -3"), "{wrong:?}");
+    let missing = refused(&m, &[moved("r-4", BIN_CODE, "S2", -3, Some("m-9"))]);
+    assert!(missing[0].2.contains("not in the ledger"), "{missing:?}");
 }

@@ -16,7 +16,7 @@ use crate::http::access::{Access, ClientAddress, CurrentUser, RouteTable};
 use crate::http::extract::{CurrentSite, Params};
 use crate::http::pages::{Me, PageError, VERSION, render};
 use crate::master::Site;
-use crate::store::StoreError;
+use crate::store::error::StoreError;
 use askama::Template;
 use axum::Form;
 use axum::extract::State;

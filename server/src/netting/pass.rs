@@ -12,6 +12,7 @@
 
 use super::recount::{self, RecountTx};
 use super::results::{NetOutcome, STATUS_NOTHING_TO_NET};
+pub use super::results::{PassFacts, Sent};
 use super::rule::{BookState, CountTiming, KeyCount, KeyResult, Status};
 use super::service::{
     self, Evidence, KeyFacts, LedgerMove, Netted, NettingSettings, SourceTimingRow, Sources,
@@ -20,7 +21,7 @@ use super::service::{
 use super::tolerance::Verdict;
 use crate::master::SiteId;
 use crate::planning::abc::Class;
-use crate::store::StoreError;
+use crate::store::error::StoreError;
 use crate::time::Timestamp;
 use std::collections::{BTreeMap, BTreeSet, HashSet};
 
@@ -29,25 +30,6 @@ const REASON_IDS: usize = 5;
 
 /// A key of a bin: item id and lot (empty when not lot-tracked).
 pub type ItemLot = (i64, String);
-
-/// A pass as the netting needs it.
-#[derive(Debug, Clone, PartialEq, Eq)]
-pub struct PassFacts {
-    pub id: i64,
-    pub uid: String,
-    pub site: SiteId,
-    pub bin_id: i64,
-    pub bin_code: String,
-    pub task_est_s: Option<i64>,
-    pub user_name: String,
-    pub timing: CountTiming,
-    /// The recount or supervisor-count task this pass was made against, if any.
-    pub recount_task: Option<i64>,
-    /// That task was withdrawn: the pass is netted as evidence and decides nothing.
-    pub withdrawn: bool,
-    /// Why the pass's times cannot be trusted, when they cannot.
-    pub held: Option<String>,
-}
 
 /// The current (not superseded) result of one key of a pass.
 #[derive(Debug, Clone, PartialEq, Eq)]
@@ -81,13 +63,6 @@ pub struct NewResult<'a> {
     pub reason: &'a str,
 }
 
-/// When and against which ledger state netting sends a recount task.
-#[derive(Debug, Clone, Copy, PartialEq, Eq)]
-pub struct Sent {
-    pub watermark: i64,
-    pub now: Timestamp,
-}
-
 /// A task of a first count that no one has counted against yet.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
 pub struct OpenTask {
@@ -99,13 +74,11 @@ pub struct OpenTask {
 /// The queries and writes netting makes inside one transaction. Each method is one
 /// query or one write; the store implements it with its own SQL. Placing a recount is
 /// part of netting ([`RecountTx`]).
-pub trait NettingTx: RecountTx {
+pub trait NettingTx: RecountTx + crate::ledger::WatermarkTx {
     /// Reads a pass; `None` when there is no such pass.
     fn pass_facts(&self, pass: i64) -> Result<Option<PassFacts>, StoreError>;
     fn netting_settings(&self, site: SiteId) -> Result<NettingSettings, StoreError>;
     fn source_timings(&self, site: SiteId) -> Result<Vec<SourceTimingRow>, StoreError>;
-    /// The ledger's last movement sequence number.
-    fn watermark(&self) -> Result<i64, StoreError>;
     /// The counted keys of a pass: the sum of its lines not undone, and the last scan.
     fn counted_keys(&self, pass: i64) -> Result<BTreeMap<ItemLot, (i64, Timestamp)>, StoreError>;
     /// Every key the bin has ever held.

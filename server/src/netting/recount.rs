@@ -5,11 +5,11 @@
 //! key sent again while the bin's task is still open joins that task. The store answers
 //! the queries of [`RecountTx`].
 
-use super::pass::{PassFacts, Sent};
+use super::results::{PassFacts, Sent};
 use super::service::{self, Placement};
 use crate::master::SiteId;
 use crate::planning::abc::Class;
-use crate::store::StoreError;
+use crate::store::error::StoreError;
 use crate::time::day::SiteZone;
 
 /// Estimated seconds of a recount task when the first task's estimate is unknown.

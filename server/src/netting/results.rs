@@ -2,7 +2,9 @@
 //! evidence, a pass's reasoning for `cairn net`, and what netting, settling and a re-net
 //! wrote. Engine-free: every store returns these.
 
+use super::rule::CountTiming;
 use super::service::Evidence;
+use crate::master::SiteId;
 use crate::time::Timestamp;
 use serde::Serialize;
 
@@ -182,4 +184,30 @@ mod tests {
             "{e}"
         );
     }
+}
+
+/// A pass as the netting needs it.
+#[derive(Debug, Clone, PartialEq, Eq)]
+pub struct PassFacts {
+    pub id: i64,
+    pub uid: String,
+    pub site: SiteId,
+    pub bin_id: i64,
+    pub bin_code: String,
+    pub task_est_s: Option<i64>,
+    pub user_name: String,
+    pub timing: CountTiming,
+    /// The recount or supervisor-count task this pass was made against, if any.
+    pub recount_task: Option<i64>,
+    /// That task was withdrawn: the pass is netted as evidence and decides nothing.
+    pub withdrawn: bool,
+    /// Why the pass's times cannot be trusted, when they cannot.
+    pub held: Option<String>,
+}
+
+/// When and against which ledger state netting sends a recount task.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub struct Sent {
+    pub watermark: i64,
+    pub now: Timestamp,
 }

@@ -13,6 +13,13 @@ use crate::time::Timestamp;
 use serde::{Deserialize, Serialize};
 use std::collections::HashMap;
 
+/// The reason code the adjustments feed gives an automatic adjustment (DESIGN §5: a small
+/// variance within tolerance, posted without a review where the site allows it). It is
+/// not one a reviewer picks; the feed's `automatic` says which rows are.
+pub const AUTO_REASON_CODE: &str = "auto_within_tolerance";
+/// What an automatic adjustment's reason says on the pages.
+pub const AUTO_REASON: &str = "within tolerance, automatic";
+
 /// Most keys one pass may net: a bin holds a few dozen keys at most, so more means bad data.
 pub const MAX_KEYS_PER_PASS: usize = 10_000;
 
@@ -147,7 +154,7 @@ pub fn check_reason_codes(rows: &[ReasonCode]) -> Result<(), String> {
                 r.code
             ));
         }
-        if r.code == crate::review::AUTO_REASON_CODE {
+        if r.code == AUTO_REASON_CODE {
             return Err(format!(
                 "[{i}].code '{}' is reserved for automatic adjustments; pick another",
                 r.code
@@ -727,7 +734,7 @@ mod tests {
         assert!(check_reason_codes(&codes).is_err());
         // The feed tells automatic rows by this code too: a reviewer's code may not take it.
         let codes = vec![ReasonCode {
-            code: crate::review::AUTO_REASON_CODE.into(),
+            code: AUTO_REASON_CODE.into(),
             label: "Small and fine".into(),
         }];
         assert!(

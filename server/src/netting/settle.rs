@@ -14,7 +14,7 @@ use crate::planning::abc::Class;
 use crate::review::decide::{Posting, post_count_adjustment};
 use crate::review::store::AutoAdjustment;
 use crate::review::{AUTO_REASON, AUTO_REASON_CODE};
-use crate::store::StoreError;
+use crate::store::error::StoreError;
 use crate::time::Timestamp;
 use serde_json::json;
 
@@ -124,12 +124,4 @@ pub fn settle_due<T: SettleTx + LedgerTx + NettingTx + AuditTx + ?Sized>(
         });
     }
     Ok(SettleOutcome { settled, adjusted })
-}
-
-/// Settles what is due at `now` in one transaction of `store` (see [`settle_due`]).
-pub async fn run(
-    store: &dyn crate::store::Store,
-    now: Timestamp,
-) -> Result<SettleOutcome, StoreError> {
-    crate::store::write(store, move |tx| settle_due(tx, now)).await
 }

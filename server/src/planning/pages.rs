@@ -18,7 +18,7 @@ use crate::http::access::{Access, BOOK_READERS, CurrentUser, LIST_KEEPERS, Route
 use crate::http::extract::{CurrentSite, Params};
 use crate::http::pages::{Me, PageError, VERSION, render};
 use crate::master::Site;
-use crate::store::StoreError;
+use crate::store::error::StoreError;
 use crate::time::Timestamp;
 use askama::Template;
 use axum::Form;

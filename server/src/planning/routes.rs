@@ -90,8 +90,6 @@ pub fn routes(t: &mut RouteTable) {
         get_progress,
     )
     .get(path!("/my-tasks"), Access::Site(&[Role::Counter]), my_tasks);
-    // The supervisor's pages of the list sit with the list's API.
-    super::pages::routes(t);
 }
 
 /// Source recorded for short-pick reports that name none.

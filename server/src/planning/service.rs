@@ -7,7 +7,8 @@ use super::{
     AbcSummary, ListView, MAX_COUNTERS, MAX_MINUTES, NewCountList, NewTask, Summary, TaskView,
 };
 use crate::master::Site;
-use crate::store::{Store, StoreError};
+use crate::store::Store;
+use crate::store::error::StoreError;
 use crate::time::Timestamp;
 use chrono::NaiveDate;
 use std::fmt::Write as _;

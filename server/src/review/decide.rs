@@ -11,7 +11,7 @@ use crate::ledger::{LedgerTx, MovementKind, NewMovement};
 use crate::master::SiteId;
 use crate::master::codes::{BinCode, MovementUid, Sku};
 use crate::netting::pass::NettingTx;
-use crate::store::{Progress, StoreError};
+use crate::store::error::{Progress, StoreError};
 use crate::time::Timestamp;
 use serde_json::json;
 
@@ -269,23 +269,4 @@ pub fn reject<T: ReviewTx + AuditTx + ?Sized>(
         review,
         movement: None,
     }))
-}
-
-/// Takes approvals in one transaction of `store` (see [`approve`]).
-pub async fn run_approvals(
-    store: &dyn crate::store::Store,
-    site: SiteId,
-    decisions: Vec<NewDecision>,
-    bulk: bool,
-) -> Result<Vec<Result<Decided, Refusal>>, StoreError> {
-    crate::store::write(store, move |tx| approve(tx, site, &decisions, bulk)).await
-}
-
-/// Takes one rejection in one transaction of `store` (see [`reject`]).
-pub async fn run_rejection(
-    store: &dyn crate::store::Store,
-    site: SiteId,
-    decision: NewDecision,
-) -> Result<Result<Decided, Refusal>, StoreError> {
-    crate::store::write(store, move |tx| reject(tx, site, &decision)).await
 }

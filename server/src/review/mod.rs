@@ -31,12 +31,7 @@ pub const MAX_NOTE_CHARS: usize = crate::input::text::MAX_NOTE_CHARS;
 /// Most adjustments one feed page returns.
 pub const MAX_FEED_ROWS: usize = 1_000;
 
-/// The reason code the adjustments feed gives an automatic adjustment (DESIGN §5: a small
-/// variance within tolerance, posted without a review where the site allows it). It is
-/// not one a reviewer picks; the feed's `automatic` says which rows are.
-pub const AUTO_REASON_CODE: &str = "auto_within_tolerance";
-/// What an automatic adjustment's reason says on the pages.
-pub const AUTO_REASON: &str = "within tolerance, automatic";
+pub use crate::netting::service::{AUTO_REASON, AUTO_REASON_CODE};
 
 /// Reason codes a site starts with when it has none of its own: our own wording.
 pub const DEFAULT_REASONS: &[(&str, &str)] = &[

@@ -377,8 +377,7 @@ async fn bulk_approve(
             address: address.clone(),
         })
         .collect();
-    let outcomes =
-        super::decide::run_approvals(state.store.as_ref(), site.id, decisions, true).await?;
+    let outcomes = crate::writes::approve(state.store.as_ref(), site.id, decisions, true).await?;
     let approved = outcomes.iter().filter(|o| o.is_ok()).count();
     let lines = outcomes
         .iter()
@@ -782,7 +781,7 @@ async fn approve(
         address,
     };
     let mut outcomes =
-        super::decide::run_approvals(state.store.as_ref(), site.id, vec![decision], false).await?;
+        crate::writes::approve(state.store.as_ref(), site.id, vec![decision], false).await?;
     match outcomes.pop() {
         Some(Ok(_)) => Ok(Redirect::to(&detail_url(&site, id, "approved")).into_response()),
         Some(Err(r)) => refused(&state, &p, site, id, r).await,
@@ -816,7 +815,7 @@ async fn reject(
         at: Timestamp::now(),
         address,
     };
-    match super::decide::run_rejection(state.store.as_ref(), site.id, decision).await? {
+    match crate::writes::reject(state.store.as_ref(), site.id, decision).await? {
         Ok(_) => Ok(Redirect::to(&detail_url(&site, id, "rejected")).into_response()),
         Err(r) => refused(&state, &p, site, id, r).await,
     }

@@ -6,7 +6,7 @@
 use super::{Decider, ReasonCode, ReviewPolicy};
 use crate::accounts::audit::Actor;
 use crate::master::SiteId;
-use crate::store::StoreError;
+use crate::store::error::StoreError;
 use crate::time::Timestamp;
 use async_trait::async_trait;
 use serde::Serialize;

@@ -2,7 +2,10 @@
 //! today (`sqlite`); another engine can be added behind the same trait without
 //! touching the ledger, planning or netting code.
 
+pub mod error;
 pub mod sqlite;
+
+pub use error::{Progress, StoreError};
 
 pub use sqlite::backup;
 pub use sqlite::ceiling::ceiling as write_ceiling;
@@ -10,7 +13,6 @@ pub use sqlite::ceiling::ceiling as write_ceiling;
 use crate::accounts::audit::AuditEvent;
 use crate::accounts::store::AccountStore;
 use crate::accuracy::store::AccuracyStore;
-use crate::batch::RowError;
 use crate::ledger::{BalanceRow, Movement};
 use crate::master::codes::{BinCode, Sku, ZoneCode};
 use crate::master::{Bin, NewBin, NewItem, NewPack, NewSite, Site, SiteCode, SiteCounts, SiteId};
@@ -25,7 +27,6 @@ use async_trait::async_trait;
 use chrono::NaiveDate;
 use std::path::PathBuf;
 use std::sync::Arc;
-use std::sync::atomic::{AtomicU64, Ordering};
 use std::time::Duration;
 
 /// How hard the store works to keep a commit through a power cut (SQLite's
@@ -220,45 +221,6 @@ pub async fn write_shared<R: Send + 'static>(
 
 /// Most balance rows or movements one page returns.
 pub const MAX_PAGE_ROWS: usize = 1_000;
-
-/// Why a store operation did not happen.
-#[derive(Debug, thiserror::Error)]
-pub enum StoreError {
-    /// The batch broke rules that need the stored data to check; nothing was written.
-    #[error("{} row(s) refused", .0.len())]
-    Rejected(Vec<RowError>),
-    /// A named thing does not exist.
-    #[error("{0}")]
-    NotFound(String),
-    /// The write conflicts with what is stored (e.g. a site code already taken).
-    #[error("{0}")]
-    Conflict(String),
-    /// The database file belongs to a newer Cairn, or is not a Cairn database.
-    #[error("{0}")]
-    Incompatible(String),
-    /// Anything else: logged once, shown to users as a fixed text.
-    #[error(transparent)]
-    Internal(#[from] anyhow::Error),
-}
-
-/// A counter a long write advances, so a CLI can draw a progress bar.
-#[derive(Debug, Clone, Default)]
-pub struct Progress(Option<Arc<AtomicU64>>);
-
-impl Progress {
-    /// Creates a progress counter and the handle to read it.
-    pub fn new() -> (Self, Arc<AtomicU64>) {
-        let c = Arc::new(AtomicU64::new(0));
-        (Self(Some(c.clone())), c)
-    }
-
-    /// Advances the counter by `n` rows.
-    pub fn tick(&self, n: u64) {
-        if let Some(c) = &self.0 {
-            c.fetch_add(n, Ordering::Relaxed);
-        }
-    }
-}
 
 /// Which balances to read.
 #[derive(Debug, Clone, Default)]

@@ -13,7 +13,7 @@ use super::event::{Body, Event, Line};
 use super::plausible::{self, Sampled, TaskFloor};
 use crate::accounts::DeviceId;
 use crate::master::SiteId;
-use crate::store::StoreError;
+use crate::store::error::StoreError;
 use crate::time::Timestamp;
 use crate::time::day::SiteZone;
 use cairn_scan::wire::{EventFlag, EventResult};
@@ -243,27 +243,6 @@ pub fn apply_batch(tx: &dyn SyncTx, batch: &SyncBatch) -> Result<Vec<EventResult
             }
         }
     }
-    Ok(results)
-}
-
-/// Applies a sync request and nets the passes it finished, in one transaction of `store`
-/// (a savepoint of a group commit when several phones sync at once): the acknowledgement
-/// the phone deletes its copy on and the results of its passes commit together.
-pub async fn run(
-    store: &dyn crate::store::Store,
-    batch: SyncBatch,
-) -> Result<Vec<EventResult>, StoreError> {
-    let (results, netted) = crate::store::write_shared(store, move |tx| {
-        let results = apply_batch(tx, &batch)?;
-        let applied = batch.applied(&results);
-        let netted = crate::netting::pass::after_sync(tx, &applied, Timestamp::now())?;
-        Ok((results, netted.written.len() as u64))
-    })
-    .await?;
-    // Counted only once committed: a rolled-back netting never happened.
-    crate::telemetry::metrics()
-        .netting_runs
-        .fetch_add(netted, std::sync::atomic::Ordering::Relaxed);
     Ok(results)
 }
 

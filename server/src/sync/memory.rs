@@ -10,7 +10,7 @@ use super::plausible::Sampled;
 use super::{Sender, SyncBatch, event};
 use crate::accounts::{DeviceId, UserId};
 use crate::master::SiteId;
-use crate::store::StoreError;
+use crate::store::error::StoreError;
 use crate::time::Timestamp;
 use crate::time::day::SiteZone;
 use cairn_scan::wire::{EventFlag, EventResult, EventStatus};

@@ -79,7 +79,7 @@ async fn sync(
         .enumerate()
         .map(|(i, raw)| event::read(raw, i))
         .collect();
-    let results = super::apply::run(
+    let results = crate::writes::apply_sync(
         state.store.as_ref(),
         SyncBatch {
             site: site.id,

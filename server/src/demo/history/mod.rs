@@ -19,7 +19,8 @@ use crate::ledger::NewMovement;
 use crate::master::{NewBin, Site};
 use crate::planning::plan::{Capacity, Fill};
 use crate::planning::{ListView, service};
-use crate::store::{Progress, Store};
+use crate::store::Store;
+use crate::store::error::Progress;
 use crate::time::Timestamp;
 use chrono::{Datelike, NaiveDate, Weekday};
 use phone::{Counter, Found, Pass};
@@ -164,7 +165,7 @@ impl Feed {
                 .take_while(|m| m.recorded_at.map_or(m.event_at.0, |r| r.0) <= t)
                 .count();
         if end > self.next {
-            crate::ledger::record(
+            crate::writes::record_movements(
                 store,
                 site.id,
                 self.moves[self.next..end].to_vec(),
@@ -481,7 +482,7 @@ impl<'a> Counting<'a> {
                 who,
                 &mut self.rng,
             );
-            let results = crate::sync::apply::run(self.store, batch).await?;
+            let results = crate::writes::apply_sync(self.store, batch).await?;
             let refused = results
                 .iter()
                 .filter(|r| r.status != cairn_scan::wire::EventStatus::Accepted)
@@ -602,7 +603,7 @@ impl<'a> Counting<'a> {
 
     /// Settles results due at `now` and mirrors the automatic adjustments in the book.
     async fn settle(&mut self, world: &mut World<'_>, now: Timestamp) -> anyhow::Result<()> {
-        let outcome = crate::netting::settle::run(self.store, now).await?;
+        let outcome = crate::writes::settle(self.store, now).await?;
         for a in &outcome.adjusted {
             if let Some(r) = self.store.count_result(self.site.id, a.result).await? {
                 let row = r.row;

@@ -147,7 +147,7 @@ pub async fn review(
             address: String::new(),
         };
         if approve {
-            match crate::review::decide::run_approvals(store, site.id, vec![decision], false)
+            match crate::writes::approve(store, site.id, vec![decision], false)
                 .await?
                 .pop()
             {
@@ -155,7 +155,7 @@ pub async fn review(
                 _ => sitting.refused += 1,
             }
         } else {
-            match crate::review::decide::run_rejection(store, site.id, decision).await? {
+            match crate::writes::reject(store, site.id, decision).await? {
                 Ok(_) => sitting.rejected += 1,
                 Err(_) => sitting.refused += 1,
             }

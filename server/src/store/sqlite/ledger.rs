@@ -1,230 +1,98 @@
-//! SQL for the movement ledger: appending batches, keeping balances and
+//! SQL for the movement ledger: writing a checked movement, keeping balances and
 //! snapshots in the same transaction, and reading balances at an instant.
 
-use crate::batch::RowError;
-use crate::ledger::{BalanceRow, Movement, MovementKind, NewMovement, RecordOutcome};
+use crate::ledger::{
+    BalanceRow, Inserted, ItemRef, LedgerKey, Movement, MovementKind, NewMovement, StoredMovement,
+};
 use crate::master::SiteId;
-use crate::netting::pass::WrittenMove;
+use crate::master::codes::{BinCode, MovementUid, Sku};
 use crate::store::{
-    BalancePage, BalanceQuery, HistoryPage, HistoryQuery, HistorySubject, Progress, StoreError,
+    BalancePage, BalanceQuery, HistoryPage, HistoryQuery, HistorySubject, StoreError,
 };
 use crate::time::Timestamp;
 use rusqlite::{Connection, OptionalExtension, Transaction, params};
-use std::collections::HashMap;
-
-/// Rows between progress ticks during a long batch.
-const PROGRESS_EVERY: usize = 1_000;
 
 /// One balance key: a bin, an item and a lot (empty when not lot-tracked).
-#[derive(Debug, Clone, PartialEq, Eq, Hash)]
-pub struct Key {
-    pub bin_id: i64,
-    pub item_id: i64,
-    pub lot: String,
+pub type Key = LedgerKey;
+
+fn kind_of(text: String) -> rusqlite::Result<MovementKind> {
+    MovementKind::parse(&text).ok_or_else(|| {
+        rusqlite::Error::FromSqlConversionFailure(
+            0,
+            rusqlite::types::Type::Text,
+            format!("unknown movement kind '{text}'").into(),
+        )
+    })
 }
 
-struct Stored {
-    id: i64,
-    site_id: i64,
-    key: Key,
-    qty: i64,
-    kind: String,
-    event_at: i64,
-}
-
-fn stored_by_uid(tx: &Transaction, uid: &str) -> rusqlite::Result<Option<Stored>> {
+/// Reads a stored movement by its sender's id.
+pub fn movement_by_uid(
+    tx: &Connection,
+    uid: &MovementUid,
+) -> rusqlite::Result<Option<StoredMovement>> {
     tx.prepare_cached(
         "select id, site_id, bin_id, item_id, lot, qty, kind, event_at from movement where uid = ?1",
     )?
-    .query_row([uid], |r| {
-        Ok(Stored {
+    .query_row([uid.as_str()], |r| {
+        Ok(StoredMovement {
             id: r.get(0)?,
-            site_id: r.get(1)?,
+            site: SiteId(r.get(1)?),
             key: Key { bin_id: r.get(2)?, item_id: r.get(3)?, lot: r.get(4)? },
             qty: r.get(5)?,
-            kind: r.get(6)?,
-            event_at: r.get(7)?,
+            kind: kind_of(r.get(6)?)?,
+            event_at: Timestamp(r.get(7)?),
         })
     })
     .optional()
 }
 
-fn same_content(prev: &Stored, site: SiteId, key: &Key, m: &NewMovement) -> bool {
-    prev.site_id == site.0
-        && prev.key == *key
-        && prev.qty == m.qty
-        && prev.kind == m.kind.as_str()
-        && prev.event_at == m.event_at.0
+/// Finds a bin of `site` by code.
+pub fn find_bin(tx: &Connection, site: SiteId, bin: &BinCode) -> rusqlite::Result<Option<i64>> {
+    tx.prepare_cached("select id from bin where site_id = ?1 and code = ?2")?
+        .query_row(params![site.0, bin.as_str()], |r| r.get(0))
+        .optional()
 }
 
-/// Looks codes up once per batch.
-struct Codes<'a> {
-    bins: HashMap<&'a str, Option<i64>>,
-    items: HashMap<&'a str, Option<(i64, bool)>>,
+/// Finds an item of `site` by SKU.
+pub fn find_item(tx: &Connection, site: SiteId, sku: &Sku) -> rusqlite::Result<Option<ItemRef>> {
+    tx.prepare_cached("select id, lot_tracked from item where site_id = ?1 and sku = ?2")?
+        .query_row(params![site.0, sku.as_str()], |r| {
+            Ok(ItemRef {
+                id: r.get(0)?,
+                lot_tracked: r.get(1)?,
+            })
+        })
+        .optional()
 }
 
-impl<'a> Codes<'a> {
-    fn bin(
-        &mut self,
-        tx: &Transaction,
-        site: SiteId,
-        code: &'a str,
-    ) -> rusqlite::Result<Option<i64>> {
-        if let Some(v) = self.bins.get(code) {
-            return Ok(*v);
-        }
-        let v = tx
-            .prepare_cached("select id from bin where site_id = ?1 and code = ?2")?
-            .query_row(params![site.0, code], |r| r.get(0))
-            .optional()?;
-        self.bins.insert(code, v);
-        Ok(v)
-    }
-
-    fn item(
-        &mut self,
-        tx: &Transaction,
-        site: SiteId,
-        sku: &'a str,
-    ) -> rusqlite::Result<Option<(i64, bool)>> {
-        if let Some(v) = self.items.get(sku) {
-            return Ok(*v);
-        }
-        let v = tx
-            .prepare_cached("select id, lot_tracked from item where site_id = ?1 and sku = ?2")?
-            .query_row(params![site.0, sku], |r| Ok((r.get(0)?, r.get(1)?)))
-            .optional()?;
-        self.items.insert(sku, v);
-        Ok(v)
-    }
+/// Tells whether a stored movement has a reversal.
+pub fn is_reversed(tx: &Connection, movement: i64) -> rusqlite::Result<bool> {
+    tx.prepare_cached("select 1 from movement where reverses = ?1 limit 1")?
+        .exists([movement])
 }
 
-/// Appends a validated batch in one pass: every row is checked against stored
-/// data and written; if any row breaks a rule, the caller's transaction is
-/// dropped uncommitted, so the batch writes all rows or none. A resend (same id,
-/// same content) is acknowledged and skipped.
-pub fn insert_movements(
+/// Writes one checked movement, its lot and its balance, unless its id is stored.
+pub fn insert_movement(
     tx: &Transaction,
     site: SiteId,
-    rows: &[NewMovement],
-    now: Timestamp,
+    m: &NewMovement,
+    key: &Key,
+    recorded_at: Timestamp,
+    reverses: Option<i64>,
     snapshot_every: i64,
-    progress: &Progress,
-) -> Result<(RecordOutcome, Vec<WrittenMove>), StoreError> {
-    let mut codes = Codes {
-        bins: HashMap::new(),
-        items: HashMap::new(),
-    };
-    let mut seen: HashMap<&str, usize> = HashMap::with_capacity(rows.len());
-    let mut ids: Vec<Option<i64>> = Vec::with_capacity(rows.len());
-    let mut errors = Vec::new();
-    let mut outcome = RecordOutcome::default();
-    let mut insert = tx.prepare_cached(
-        "insert into movement (uid, site_id, bin_id, item_id, lot, qty, kind, event_at, recorded_at,
-                               source, doc_ref, actor, reverses)
-         values (?1, ?2, ?3, ?4, ?5, ?6, ?7, ?8, ?9, ?10, ?11, ?12, ?13)
-         on conflict (uid) do nothing",
-    )?;
-    let mut lot_q = tx.prepare_cached(
-        "insert into lot (item_id, code, expiry) values (?1, ?2, ?3) on conflict do nothing",
-    )?;
-    let mut reversed_q = tx.prepare_cached("select 1 from movement where reverses = ?1 limit 1")?;
-    let mut written_moves = Vec::new();
-    for (i, m) in rows.iter().enumerate() {
-        ids.push(None);
-        let mut err = |field: &str, msg: String| errors.push(RowError::new(i, field, msg));
-        if let Some(first) = seen.insert(m.uid.as_str(), i) {
-            err(
-                "id",
-                format!(
-                    "id '{}' appears twice in this batch (first at row {first})",
-                    m.uid
-                ),
-            );
-            continue;
-        }
-        let bin_id = codes.bin(tx, site, m.bin.as_str())?;
-        let item = codes.item(tx, site, m.sku.as_str())?;
-        if bin_id.is_none() {
-            err("bin", format!("unknown bin '{}' in this site", m.bin));
-        }
-        match item {
-            None => err("sku", format!("unknown SKU '{}' in this site", m.sku)),
-            Some((_, true)) if m.lot.is_empty() => err(
-                "lot",
-                format!("SKU '{}' is lot-tracked: a lot is required", m.sku),
-            ),
-            Some((_, false)) if !m.lot.is_empty() => err(
-                "lot",
-                format!("SKU '{}' is not lot-tracked: leave lot empty", m.sku),
-            ),
-            _ => {}
-        }
-        let (Some(bin_id), Some((item_id, _))) = (bin_id, item) else {
-            continue;
-        };
-        let key = Key {
-            bin_id,
-            item_id,
-            lot: m.lot.clone(),
-        };
-        let reverses = match &m.reverses {
-            None => None,
-            Some(r) => {
-                let mirror = |o_qty: i64| {
-                    format!(
-                        "a reversal of '{r}' must name the same bin, SKU and lot with quantity {}",
-                        -o_qty
-                    )
-                };
-                if let Some(&j) = seen.get(r.as_str()).filter(|&&j| j < i) {
-                    let o = &rows[j];
-                    if o.bin != m.bin || o.sku != m.sku || o.lot != m.lot || o.qty != -m.qty {
-                        err("reverses", mirror(o.qty));
-                    }
-                    match ids[j] {
-                        Some(id) => Some(id),
-                        None => stored_by_uid(tx, r.as_str())?.map(|o| o.id),
-                    }
-                } else if let Some(o) = stored_by_uid(tx, r.as_str())? {
-                    if o.site_id != site.0 || o.key != key || o.qty != -m.qty {
-                        err("reverses", mirror(o.qty));
-                    }
-                    if reversed_q.exists([o.id])? {
-                        err(
-                            "reverses",
-                            format!("movement '{r}' has already been reversed"),
-                        );
-                    }
-                    Some(o.id)
-                } else {
-                    err(
-                        "reverses",
-                        format!("movement '{r}' to reverse is not in the ledger"),
-                    );
-                    None
-                }
-            }
-        };
-        if !errors.is_empty() {
-            // The batch will be refused: keep checking, stop writing.
-            if let Some(prev) = stored_by_uid(tx, m.uid.as_str())?
-                && !same_content(&prev, site, &key, m)
-            {
-                errors.push(RowError::new(
-                    i,
-                    "id",
-                    format!("id '{}' is already recorded with different content", m.uid),
-                ));
-            }
-            continue;
-        }
-        let recorded_at = m.recorded_at.unwrap_or(now);
-        let written = insert.execute(params![
+) -> rusqlite::Result<Inserted> {
+    let written = tx
+        .prepare_cached(
+            "insert into movement (uid, site_id, bin_id, item_id, lot, qty, kind, event_at, recorded_at,
+                                   source, doc_ref, actor, reverses)
+             values (?1, ?2, ?3, ?4, ?5, ?6, ?7, ?8, ?9, ?10, ?11, ?12, ?13)
+             on conflict (uid) do nothing",
+        )?
+        .execute(params![
             m.uid.as_str(),
             site.0,
-            bin_id,
-            item_id,
+            key.bin_id,
+            key.item_id,
             m.lot,
             m.qty,
             m.kind.as_str(),
@@ -235,45 +103,18 @@ pub fn insert_movements(
             m.actor,
             reverses
         ])?;
-        if written == 0 {
-            let prev = stored_by_uid(tx, m.uid.as_str())?.ok_or_else(|| {
-                anyhow::anyhow!("movement '{}' conflicted but cannot be read", m.uid)
-            })?;
-            if !same_content(&prev, site, &key, m) {
-                errors.push(RowError::new(
-                    i,
-                    "id",
-                    format!("id '{}' is already recorded with different content", m.uid),
-                ));
-            }
-            outcome.already_recorded += 1;
-            continue;
-        }
-        ids[i] = Some(tx.last_insert_rowid());
-        if !m.lot.is_empty() {
-            lot_q.execute(params![item_id, m.lot, m.expiry.map(|d| d.to_string())])?;
-        }
-        apply_to_balance(tx, &key, m.qty, m.event_at.0, snapshot_every)?;
-        written_moves.push(WrittenMove {
-            id: ids[i].unwrap_or_default(),
-            uid: m.uid.as_str().to_string(),
-            bin_id: key.bin_id,
-            key: (key.item_id, key.lot),
-            event_at: m.event_at,
-            source: m.source.clone(),
-        });
-        outcome.recorded += 1;
-        if (i + 1) % PROGRESS_EVERY == 0 {
-            progress.tick(PROGRESS_EVERY as u64);
-        }
+    if written == 0 {
+        return Ok(Inserted::Existing);
     }
-    if !errors.is_empty() {
-        return Err(StoreError::Rejected(errors));
+    let id = tx.last_insert_rowid();
+    if !m.lot.is_empty() {
+        tx.prepare_cached(
+            "insert into lot (item_id, code, expiry) values (?1, ?2, ?3) on conflict do nothing",
+        )?
+        .execute(params![key.item_id, m.lot, m.expiry.map(|d| d.to_string())])?;
     }
-    progress.tick((rows.len() % PROGRESS_EVERY) as u64);
-    drop((insert, lot_q, reversed_q));
-    outcome.watermark = watermark(tx)?;
-    Ok((outcome, written_moves))
+    apply_to_balance(tx, key, m.qty, m.event_at.0, snapshot_every)?;
+    Ok(Inserted::New(id))
 }
 
 /// Adds one delta to the current balance and to every snapshot it falls under,

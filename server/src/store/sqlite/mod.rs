@@ -21,9 +21,8 @@ use super::{
     StoreOptions as OpenOptions, Synchronous,
 };
 use crate::accounts::audit::AuditEvent;
-use crate::ledger::{NewMovement, RecordOutcome};
-use crate::master::codes::Sku;
-use crate::master::codes::ZoneCode;
+use crate::ledger::NewMovement;
+use crate::master::codes::{BinCode, MovementUid, Sku, ZoneCode};
 use crate::master::{Bin, NewBin, NewItem, NewPack, NewSite, Site, SiteCode, SiteCounts, SiteId};
 use crate::planning::abc::{AbcRule, Class, Usage};
 use crate::planning::calendar::Calendar;
@@ -150,14 +149,52 @@ impl<'a> std::ops::Deref for Tx<'a> {
 }
 
 impl crate::ledger::LedgerTx for Tx<'_> {
-    fn append_movements(
+    fn bin_id(&self, site: SiteId, bin: &BinCode) -> Result<Option<i64>, StoreError> {
+        Ok(ledger::find_bin(self, site, bin)?)
+    }
+
+    fn item_ref(
         &self,
         site: SiteId,
-        rows: &[NewMovement],
-        now: Timestamp,
-        progress: &Progress,
-    ) -> Result<(RecordOutcome, Vec<crate::netting::pass::WrittenMove>), StoreError> {
-        ledger::insert_movements(self, site, rows, now, self.snapshot_every, progress)
+        sku: &Sku,
+    ) -> Result<Option<crate::ledger::ItemRef>, StoreError> {
+        Ok(ledger::find_item(self, site, sku)?)
+    }
+
+    fn movement_by_uid(
+        &self,
+        uid: &MovementUid,
+    ) -> Result<Option<crate::ledger::StoredMovement>, StoreError> {
+        Ok(ledger::movement_by_uid(self, uid)?)
+    }
+
+    fn is_reversed(&self, movement: i64) -> Result<bool, StoreError> {
+        Ok(ledger::is_reversed(self, movement)?)
+    }
+
+    fn insert_movement(
+        &self,
+        site: SiteId,
+        m: &NewMovement,
+        key: &crate::ledger::LedgerKey,
+        recorded_at: Timestamp,
+        reverses: Option<i64>,
+    ) -> Result<crate::ledger::Inserted, StoreError> {
+        Ok(ledger::insert_movement(
+            self,
+            site,
+            m,
+            key,
+            recorded_at,
+            reverses,
+            self.snapshot_every,
+        )?)
+    }
+}
+
+impl crate::ledger::WatermarkTx for Tx<'_> {
+    fn watermark(&self) -> Result<i64, StoreError> {
+        Ok(ledger::watermark(self)?)
     }
 }
 
@@ -577,8 +614,8 @@ impl Store for SqliteStore {
     async fn count_results(
         &self,
         site: SiteId,
-        query: netting::ResultQuery,
-    ) -> Result<netting::ResultPage, StoreError> {
+        query: crate::netting::results::ResultQuery,
+    ) -> Result<crate::netting::results::ResultPage, StoreError> {
         self.readers
             .run(move |c| netting::count_results(c, site, &query, Timestamp::now()))
             .await
@@ -588,7 +625,7 @@ impl Store for SqliteStore {
         &self,
         site: SiteId,
         id: i64,
-    ) -> Result<Option<netting::ResultDetail>, StoreError> {
+    ) -> Result<Option<crate::netting::results::ResultDetail>, StoreError> {
         self.readers
             .run(move |c| netting::count_result(c, site, id, Timestamp::now()))
             .await
@@ -598,7 +635,7 @@ impl Store for SqliteStore {
         &self,
         site: SiteId,
         pass: crate::netting::results::PassRef,
-    ) -> Result<Option<netting::PassReport>, StoreError> {
+    ) -> Result<Option<crate::netting::results::PassReport>, StoreError> {
         self.readers
             .run(move |c| netting::pass_report(c, site, pass, Timestamp::now()))
             .await

@@ -5,9 +5,7 @@
 //! the news.
 
 use crate::master::SiteId;
-use crate::netting::pass::{
-    CurrentResult, ItemFacts, ItemLot, NettingTx, NewResult, OpenTask, PassFacts,
-};
+use crate::netting::pass::{CurrentResult, ItemFacts, ItemLot, NettingTx, NewResult, OpenTask};
 use crate::netting::rule::CountTiming;
 use crate::netting::service::{Evidence, LedgerMove, NettingSettings, ReasonCode, SourceTimingRow};
 use crate::netting::tolerance::Tolerance;
@@ -22,7 +20,7 @@ use std::collections::{BTreeMap, BTreeSet};
 mod policy;
 mod reads;
 mod recounts;
-pub use crate::netting::results::*;
+use crate::netting::results::*;
 pub use policy::*;
 pub use reads::*;
 
@@ -203,10 +201,6 @@ impl NettingTx for super::Tx<'_> {
 
     fn source_timings(&self, site: SiteId) -> Result<Vec<SourceTimingRow>, StoreError> {
         source_timings(self, site)
-    }
-
-    fn watermark(&self) -> Result<i64, StoreError> {
-        Ok(ledger::watermark(self)?)
     }
 
     fn counted_keys(&self, pass: i64) -> Result<BTreeMap<ItemLot, (i64, Timestamp)>, StoreError> {

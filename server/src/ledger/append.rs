@@ -1,0 +1,270 @@
+//! The ledger's batch rules: what a batch of movements must satisfy against what is
+//! stored (known bins and SKUs, the lot rule, reversals, resent ids), checked and
+//! written in one transaction over [`LedgerTx`]; all rows or none.
+
+use super::{MovementKind, NewMovement, RecordOutcome};
+use crate::batch::RowError;
+use crate::master::SiteId;
+use crate::master::codes::{BinCode, MovementUid, Sku};
+use crate::netting::pass::{NettingTx, WrittenMove};
+use crate::store::error::{Progress, StoreError};
+use crate::time::Timestamp;
+use std::collections::HashMap;
+
+/// Rows between progress ticks during a long batch.
+const PROGRESS_EVERY: usize = 1_000;
+
+/// One balance key as stored: a bin, an item and a lot (empty when not lot-tracked).
+#[derive(Debug, Clone, PartialEq, Eq, Hash)]
+pub struct LedgerKey {
+    pub bin_id: i64,
+    pub item_id: i64,
+    pub lot: String,
+}
+
+/// An item as the batch rules need it.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub struct ItemRef {
+    pub id: i64,
+    pub lot_tracked: bool,
+}
+
+/// A stored movement as the batch rules compare it.
+#[derive(Debug, Clone, PartialEq, Eq)]
+pub struct StoredMovement {
+    pub id: i64,
+    pub site: SiteId,
+    pub key: LedgerKey,
+    pub qty: i64,
+    pub kind: MovementKind,
+    pub event_at: Timestamp,
+}
+
+impl StoredMovement {
+    /// Tells whether `m` at `key` is a resend of this movement (the same content).
+    fn same_content(&self, site: SiteId, key: &LedgerKey, m: &NewMovement) -> bool {
+        self.site == site
+            && self.key == *key
+            && self.qty == m.qty
+            && self.kind == m.kind
+            && self.event_at == m.event_at
+    }
+}
+
+/// What writing one movement did.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum Inserted {
+    /// Written, with the ledger's sequence number.
+    New(i64),
+    /// Its id is already in the ledger; nothing was written.
+    Existing,
+}
+
+/// The ledger's high-water mark inside one transaction (netting reads it too).
+pub trait WatermarkTx {
+    /// Returns the newest movement's sequence number (0 for an empty ledger).
+    fn watermark(&self) -> Result<i64, StoreError>;
+}
+
+/// The ledger's queries and writes inside one transaction.
+pub trait LedgerTx: WatermarkTx {
+    /// Finds a bin of `site` by code.
+    fn bin_id(&self, site: SiteId, bin: &BinCode) -> Result<Option<i64>, StoreError>;
+    /// Finds an item of `site` by SKU.
+    fn item_ref(&self, site: SiteId, sku: &Sku) -> Result<Option<ItemRef>, StoreError>;
+    /// Reads a stored movement by its sender's id (ids are unique across sites).
+    fn movement_by_uid(&self, uid: &MovementUid) -> Result<Option<StoredMovement>, StoreError>;
+    /// Tells whether a stored movement has a reversal.
+    fn is_reversed(&self, movement: i64) -> Result<bool, StoreError>;
+    /// Writes one checked movement at `key` with its lot (if any) and its balance and
+    /// snapshots, unless its id is already stored.
+    fn insert_movement(
+        &self,
+        site: SiteId,
+        m: &NewMovement,
+        key: &LedgerKey,
+        recorded_at: Timestamp,
+        reverses: Option<i64>,
+    ) -> Result<Inserted, StoreError>;
+}
+
+/// Looks a code up once per batch.
+fn cached<'a, V: Copy>(
+    seen: &mut HashMap<&'a str, Option<V>>,
+    code: &'a str,
+    look: impl FnOnce() -> Result<Option<V>, StoreError>,
+) -> Result<Option<V>, StoreError> {
+    if let Some(v) = seen.get(code) {
+        return Ok(*v);
+    }
+    let v = look()?;
+    seen.insert(code, v);
+    Ok(v)
+}
+
+/// Checks a batch against what is stored and writes it in one pass; if any row breaks a
+/// rule the batch is refused with every row's errors (`StoreError::Rejected`) and the
+/// caller's transaction must be dropped, so the batch writes all rows or none. A resend
+/// (same id, same content) is acknowledged and skipped; the same id with other content
+/// is refused. Returns the outcome and the movements written, in batch order.
+pub fn write_batch<T: LedgerTx + ?Sized>(
+    tx: &T,
+    site: SiteId,
+    rows: &[NewMovement],
+    now: Timestamp,
+    progress: &Progress,
+) -> Result<(RecordOutcome, Vec<WrittenMove>), StoreError> {
+    let mut bins = HashMap::new();
+    let mut items = HashMap::new();
+    let mut seen: HashMap<&str, usize> = HashMap::with_capacity(rows.len());
+    let mut ids: Vec<Option<i64>> = Vec::with_capacity(rows.len());
+    let mut errors = Vec::new();
+    let mut outcome = RecordOutcome::default();
+    let mut written = Vec::new();
+    let resent_differently = |i: usize, m: &NewMovement| {
+        RowError::new(
+            i,
+            "id",
+            format!("id '{}' is already recorded with different content", m.uid),
+        )
+    };
+    for (i, m) in rows.iter().enumerate() {
+        ids.push(None);
+        let mut err = |field: &str, msg: String| errors.push(RowError::new(i, field, msg));
+        if let Some(first) = seen.insert(m.uid.as_str(), i) {
+            err(
+                "id",
+                format!(
+                    "id '{}' appears twice in this batch (first at row {first})",
+                    m.uid
+                ),
+            );
+            continue;
+        }
+        let bin_id = cached(&mut bins, m.bin.as_str(), || tx.bin_id(site, &m.bin))?;
+        let item = cached(&mut items, m.sku.as_str(), || tx.item_ref(site, &m.sku))?;
+        if bin_id.is_none() {
+            err("bin", format!("unknown bin '{}' in this site", m.bin));
+        }
+        match item {
+            None => err("sku", format!("unknown SKU '{}' in this site", m.sku)),
+            Some(ItemRef {
+                lot_tracked: true, ..
+            }) if m.lot.is_empty() => err(
+                "lot",
+                format!("SKU '{}' is lot-tracked: a lot is required", m.sku),
+            ),
+            Some(ItemRef {
+                lot_tracked: false, ..
+            }) if !m.lot.is_empty() => err(
+                "lot",
+                format!("SKU '{}' is not lot-tracked: leave lot empty", m.sku),
+            ),
+            _ => {}
+        }
+        let (Some(bin_id), Some(item)) = (bin_id, item) else {
+            continue;
+        };
+        let key = LedgerKey {
+            bin_id,
+            item_id: item.id,
+            lot: m.lot.clone(),
+        };
+        let reverses = match &m.reverses {
+            None => None,
+            Some(r) => {
+                let mirror = |o_qty: i64| {
+                    format!(
+                        "a reversal of '{r}' must name the same bin, SKU and lot with quantity {}",
+                        -o_qty
+                    )
+                };
+                if let Some(&j) = seen.get(r.as_str()).filter(|&&j| j < i) {
+                    let o = &rows[j];
+                    if o.bin != m.bin || o.sku != m.sku || o.lot != m.lot || o.qty != -m.qty {
+                        err("reverses", mirror(o.qty));
+                    }
+                    match ids[j] {
+                        Some(id) => Some(id),
+                        None => tx.movement_by_uid(r)?.map(|o| o.id),
+                    }
+                } else if let Some(o) = tx.movement_by_uid(r)? {
+                    if o.site != site || o.key != key || o.qty != -m.qty {
+                        err("reverses", mirror(o.qty));
+                    }
+                    if tx.is_reversed(o.id)? {
+                        err(
+                            "reverses",
+                            format!("movement '{r}' has already been reversed"),
+                        );
+                    }
+                    Some(o.id)
+                } else {
+                    err(
+                        "reverses",
+                        format!("movement '{r}' to reverse is not in the ledger"),
+                    );
+                    None
+                }
+            }
+        };
+        if !errors.is_empty() {
+            // The batch will be refused: keep checking, stop writing.
+            if let Some(prev) = tx.movement_by_uid(&m.uid)?
+                && !prev.same_content(site, &key, m)
+            {
+                errors.push(resent_differently(i, m));
+            }
+            continue;
+        }
+        let recorded_at = m.recorded_at.unwrap_or(now);
+        match tx.insert_movement(site, m, &key, recorded_at, reverses)? {
+            Inserted::Existing => {
+                let prev = tx.movement_by_uid(&m.uid)?.ok_or_else(|| {
+                    anyhow::anyhow!("movement '{}' conflicted but cannot be read", m.uid)
+                })?;
+                if !prev.same_content(site, &key, m) {
+                    errors.push(resent_differently(i, m));
+                }
+                outcome.already_recorded += 1;
+            }
+            Inserted::New(id) => {
+                ids[i] = Some(id);
+                written.push(WrittenMove {
+                    id,
+                    uid: m.uid.as_str().to_string(),
+                    bin_id: key.bin_id,
+                    key: (key.item_id, key.lot),
+                    event_at: m.event_at,
+                    source: m.source.clone(),
+                });
+                outcome.recorded += 1;
+                if (i + 1) % PROGRESS_EVERY == 0 {
+                    progress.tick(PROGRESS_EVERY as u64);
+                }
+            }
+        }
+    }
+    if !errors.is_empty() {
+        return Err(StoreError::Rejected(errors));
+    }
+    progress.tick((rows.len() % PROGRESS_EVERY) as u64);
+    outcome.watermark = tx.watermark()?;
+    Ok((outcome, written))
+}
+
+/// Records a movement batch ([`write_batch`]) and re-nets, in the same transaction,
+/// every count its movements reach (DESIGN §4), so a result and the ledger never
+/// disagree. Every write path that adds movements (a host batch, an import, an approval,
+/// an automatic adjustment) goes through here.
+pub fn append<T: LedgerTx + NettingTx + ?Sized>(
+    tx: &T,
+    site: SiteId,
+    rows: &[NewMovement],
+    now: Timestamp,
+    progress: &Progress,
+) -> Result<(RecordOutcome, Vec<WrittenMove>), StoreError> {
+    let (outcome, written) = write_batch(tx, site, rows, now, progress)?;
+    crate::netting::pass::after_movements(tx, site, &written, now)?;
+    Ok((outcome, written))
+}
