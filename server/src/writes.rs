@@ -12,7 +12,7 @@ use crate::netting::results::SettleOutcome;
 use crate::review::Refusal;
 use crate::review::store::{Decided, NewDecision};
 use crate::store::error::{Progress, StoreError};
-use crate::store::{Store, write, write_shared};
+use crate::store::{Store, WriteScope, write, write_shared};
 use crate::sync::SyncBatch;
 use crate::time::Timestamp;
 use cairn_scan::wire::EventResult;
@@ -27,7 +27,7 @@ pub async fn record_movements(
     progress: Progress,
     audit: Option<AuditEvent>,
 ) -> Result<RecordOutcome, StoreError> {
-    write(store, move |tx| {
+    write(store, WriteScope::Site(site), move |tx| {
         let (outcome, _) = crate::ledger::append(tx, site, &rows, Timestamp::now(), &progress)?;
         if let Some(event) = audit {
             tx.insert_audit(&event.with_counts(serde_json::json!({
@@ -47,7 +47,7 @@ pub async fn apply_sync(
     store: &dyn Store,
     batch: SyncBatch,
 ) -> Result<Vec<EventResult>, StoreError> {
-    let (results, netted) = write_shared(store, move |tx| {
+    let (results, netted) = write_shared(store, WriteScope::Site(batch.site), move |tx| {
         let results = crate::sync::apply::apply_batch(tx, &batch)?;
         let applied = batch.applied(&results);
         let netted = crate::netting::pass::after_sync(tx, &applied, Timestamp::now())?;
@@ -68,7 +68,7 @@ pub async fn approve(
     decisions: Vec<NewDecision>,
     bulk: bool,
 ) -> Result<Vec<Result<Decided, Refusal>>, StoreError> {
-    write(store, move |tx| {
+    write(store, WriteScope::Site(site), move |tx| {
         crate::review::decide::approve(tx, site, &decisions, bulk)
     })
     .await
@@ -80,7 +80,7 @@ pub async fn reject(
     site: SiteId,
     decision: NewDecision,
 ) -> Result<Result<Decided, Refusal>, StoreError> {
-    write(store, move |tx| {
+    write(store, WriteScope::Site(site), move |tx| {
         crate::review::decide::reject(tx, site, &decision)
     })
     .await
@@ -88,5 +88,8 @@ pub async fn reject(
 
 /// Settles what is due at `now` in one transaction (see `netting::settle::settle_due`).
 pub async fn settle(store: &dyn Store, now: Timestamp) -> Result<SettleOutcome, StoreError> {
-    write(store, move |tx| crate::netting::settle::settle_due(tx, now)).await
+    write(store, WriteScope::AllSites, move |tx| {
+        crate::netting::settle::settle_due(tx, now)
+    })
+    .await
 }

@@ -151,6 +151,91 @@ pub struct TestApp {
     phones: std::sync::Mutex<std::collections::HashMap<String, String>>,
     _dir: tempfile::TempDir,
     shutdown: Option<tokio::sync::oneshot::Sender<()>>,
+    /// The PostgreSQL database made for this test, dropped with it.
+    pg: Option<PgTestDb>,
+}
+
+/// The switch that runs the suites on PostgreSQL: a URL of a server and a database to
+/// connect to for creating others (e.g. `postgres://postgres@127.0.0.1:5432/postgres`).
+pub const STORE_SWITCH: &str = "CAIRN_TEST_STORE";
+
+/// A database of its own for one test on the PostgreSQL server the switch names.
+pub struct PgTestDb {
+    admin: String,
+    pub name: String,
+    pub url: String,
+}
+
+impl PgTestDb {
+    /// Creates a new, empty database, or `None` when the suites run on SQLite.
+    pub fn create() -> Option<Self> {
+        let admin = std::env::var(STORE_SWITCH)
+            .ok()
+            .filter(|v| !v.trim().is_empty())?;
+        static N: std::sync::atomic::AtomicU32 = std::sync::atomic::AtomicU32::new(0);
+        let name = format!(
+            "cairn_test_{}_{}_{}",
+            std::process::id(),
+            N.fetch_add(1, std::sync::atomic::Ordering::Relaxed),
+            &uuid::Uuid::now_v7().simple().to_string()[24..]
+        );
+        admin_sql(&admin, &format!("create database {name}"));
+        let url = pg_url(&admin, &name);
+        Some(Self { admin, name, url })
+    }
+}
+
+impl Drop for PgTestDb {
+    fn drop(&mut self) {
+        admin_sql(
+            &self.admin,
+            &format!("drop database if exists {} with (force)", self.name),
+        );
+    }
+}
+
+/// The switch's URL with its database name replaced by `name`.
+fn pg_url(admin: &str, name: &str) -> String {
+    let (base, query) = match admin.split_once('?') {
+        Some((b, q)) => (b, format!("?{q}")),
+        None => (admin, String::new()),
+    };
+    let scheme_end = base.find("://").map_or(0, |i| i + 3);
+    let host_end = base[scheme_end..]
+        .find('/')
+        .map_or(base.len(), |i| scheme_end + i);
+    format!("{}/{name}{query}", &base[..host_end])
+}
+
+/// Runs one statement on the switch's database, on a thread of its own (callers may be
+/// inside a runtime or in a `Drop`).
+fn admin_sql(admin: &str, sql: &str) {
+    let (admin, sql) = (admin.to_string(), sql.to_string());
+    std::thread::spawn(move || {
+        let rt = tokio::runtime::Builder::new_current_thread()
+            .enable_all()
+            .build()
+            .expect("a runtime for the test database");
+        rt.block_on(async {
+            let (client, conn) = tokio_postgres::connect(&admin, tokio_postgres::NoTls)
+                .await
+                .unwrap_or_else(|e| panic!("{STORE_SWITCH} names a server that answers: {e}"));
+            let driver = tokio::spawn(conn);
+            client
+                .batch_execute(&sql)
+                .await
+                .unwrap_or_else(|e| panic!("{sql}: {e}"));
+            drop(client);
+            let _ = driver.await;
+        });
+    })
+    .join()
+    .expect("the test database statement runs");
+}
+
+/// Tells whether the suites run on PostgreSQL (the switch is set).
+pub fn on_postgres() -> bool {
+    std::env::var(STORE_SWITCH).is_ok_and(|v| !v.trim().is_empty())
 }
 
 /// Starts the real application on 127.0.0.1 with port 0 and a new database.
@@ -162,8 +247,12 @@ pub async fn spawn_app() -> TestApp {
 pub async fn spawn_app_with(tweak: impl FnOnce(&mut Config)) -> TestApp {
     let dir = tempfile::tempdir().expect("a temporary directory can be made");
     let db = dir.path().join("cairn.db");
+    let pg = PgTestDb::create();
     let mut config = Config {
-        db: db.clone().into(),
+        db: match &pg {
+            Some(p) => cairn::store::DbLocation::Postgres(p.url.clone()),
+            None => db.clone().into(),
+        },
         max_body_bytes: 256 * 1024,
         ..Config::default()
     };
@@ -194,6 +283,7 @@ pub async fn spawn_app_with(tweak: impl FnOnce(&mut Config)) -> TestApp {
         phones: Default::default(),
         _dir: dir,
         shutdown: Some(tx),
+        pg,
     }
 }
 

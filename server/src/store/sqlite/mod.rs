@@ -641,12 +641,20 @@ impl Store for SqliteStore {
             .await
     }
 
-    async fn write_work(&self, work: super::Work) -> Result<super::Answer, StoreError> {
+    async fn write_work(
+        &self,
+        _: super::WriteScope,
+        work: super::Work,
+    ) -> Result<super::Answer, StoreError> {
         let every = self.opts.snapshot_every;
         self.write_tx(move |tx| work(&Tx::new(tx, every))).await
     }
 
-    async fn write_shared_work(&self, work: super::Work) -> Result<super::Answer, StoreError> {
+    async fn write_shared_work(
+        &self,
+        _: super::WriteScope,
+        work: super::Work,
+    ) -> Result<super::Answer, StoreError> {
         let every = self.opts.snapshot_every;
         self.write_shared(move |tx| work(&Tx::new(tx, every))).await
     }

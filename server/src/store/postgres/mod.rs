@@ -1,0 +1,161 @@
+//! The PostgreSQL store, for a company with many sites and several app servers on one
+//! database its IT already runs. Reads are plain async queries on a pooled connection;
+//! a write runs the domain's workflow (a synchronous closure over the transaction traits)
+//! on a blocking thread, each trait method one statement awaited on the server's own
+//! runtime. Writes of one site are serialized across every server by a transaction-scoped
+//! advisory lock on the site (`lock_scope`), so the single-writer reasoning of the
+//! workflows holds, while different sites write in parallel.
+
+pub mod accounts;
+pub mod accuracy;
+pub mod ledger;
+pub mod master;
+pub mod migrate;
+pub mod netting;
+pub mod planning;
+pub mod review;
+pub mod store_impl;
+pub mod sync;
+pub mod tx;
+
+use super::{StoreError, StoreOptions, WriteScope};
+use deadpool_postgres::{Manager, ManagerConfig, Pool, RecyclingMethod};
+use tokio_postgres::NoTls;
+pub use tx::PgTx;
+
+/// The first key of every advisory lock Cairn takes (the second is the site's id), so a
+/// database shared with other programs does not meet their locks by chance.
+pub const LOCK_SPACE: i32 = 0x4361_6972; // "Cair"
+/// The advisory lock key a migration holds (in `LOCK_SPACE`), so two servers starting
+/// together migrate once.
+pub const MIGRATION_LOCK: i32 = -1;
+
+/// The PostgreSQL implementation of [`super::Store`].
+pub struct PgStore {
+    pool: Pool,
+    options: StoreOptions,
+}
+
+/// A PostgreSQL failure is an internal error, unless it is one a rule of the schema raised
+/// on purpose (an append-only table refusing a change), which keeps its words.
+impl From<tokio_postgres::Error> for StoreError {
+    fn from(e: tokio_postgres::Error) -> Self {
+        StoreError::Internal(anyhow::anyhow!(describe(&e)))
+    }
+}
+
+impl From<deadpool_postgres::PoolError> for StoreError {
+    fn from(e: deadpool_postgres::PoolError) -> Self {
+        StoreError::Internal(anyhow::anyhow!("no database connection: {e}"))
+    }
+}
+
+/// Says what went wrong with the server's own words where it gave some.
+pub fn describe(e: &tokio_postgres::Error) -> String {
+    match e.as_db_error() {
+        Some(db) => format!("{}: {}", db.code().code(), db.message()),
+        None => e.to_string(),
+    }
+}
+
+impl PgStore {
+    /// Connects to `url`, migrates the database (once, whatever other servers start with
+    /// it) and keeps a pool of connections. Runs the migration on a thread of its own, so
+    /// it may be called from inside or outside the server's runtime.
+    pub fn open(url: &str, options: StoreOptions) -> Result<Self, StoreError> {
+        let config: tokio_postgres::Config = url
+            .parse()
+            .map_err(|e| anyhow::anyhow!("the database URL cannot be read: {e}"))?;
+        let migrating = config.clone();
+        std::thread::spawn(move || -> Result<i64, StoreError> {
+            let rt = tokio::runtime::Builder::new_current_thread()
+                .enable_all()
+                .build()
+                .map_err(|e| anyhow::anyhow!("cannot start the migration's runtime: {e}"))?;
+            rt.block_on(async move {
+                let (mut client, conn) = migrating.connect(NoTls).await.map_err(|e| {
+                    anyhow::anyhow!("cannot connect to the database: {}", describe(&e))
+                })?;
+                let driver = tokio::spawn(conn);
+                let v = migrate::migrate(&mut client).await;
+                drop(client);
+                let _ = driver.await;
+                v
+            })
+        })
+        .join()
+        .map_err(|_| anyhow::anyhow!("the migration thread panicked"))??;
+        let manager = Manager::from_config(
+            config,
+            NoTls,
+            ManagerConfig {
+                recycling_method: RecyclingMethod::Fast,
+            },
+        );
+        let pool = Pool::builder(manager)
+            .max_size(options.readers.max(1) + 4)
+            .wait_timeout(Some(options.busy_timeout))
+            .runtime(deadpool_postgres::Runtime::Tokio1)
+            .build()
+            .map_err(|e| anyhow::anyhow!("cannot build the connection pool: {e}"))?;
+        Ok(Self { pool, options })
+    }
+
+    /// Takes a pooled connection for a read.
+    pub async fn client(&self) -> Result<deadpool_postgres::Object, StoreError> {
+        Ok(self.pool.get().await?)
+    }
+
+    /// Runs `work` in one transaction holding the advisory locks of `scope`: committed
+    /// when it returns `Ok`, rolled back otherwise. The work is synchronous (the domain's
+    /// workflows are), so it runs on a blocking thread and awaits each statement on the
+    /// server's runtime.
+    pub async fn write_tx<R, F>(&self, scope: WriteScope, work: F) -> Result<R, StoreError>
+    where
+        R: Send + 'static,
+        F: FnOnce(&PgTx<'_>) -> Result<R, StoreError> + Send + 'static,
+    {
+        let mut client = self.pool.get().await?;
+        let rt = tokio::runtime::Handle::current();
+        let every = self.options.snapshot_every;
+        tokio::task::spawn_blocking(move || {
+            let tx = rt.block_on(client.transaction())?;
+            rt.block_on(lock_scope(&tx, scope))?;
+            let out = work(&PgTx::new(&tx, &rt, every))?;
+            rt.block_on(tx.commit())?;
+            Ok(out)
+        })
+        .await
+        .map_err(|e| anyhow::anyhow!("a write's thread failed: {e}"))?
+    }
+}
+
+/// Takes the transaction-scoped advisory locks of `scope`: the one site's, or every
+/// site's in id order (so two writers never wait on each other in a circle).
+async fn lock_scope(
+    tx: &tokio_postgres::Transaction<'_>,
+    scope: WriteScope,
+) -> Result<(), StoreError> {
+    match scope {
+        WriteScope::Site(site) => {
+            tx.execute(
+                "select pg_advisory_xact_lock($1, $2)",
+                &[&LOCK_SPACE, &site_key(site.0)?],
+            )
+            .await?;
+        }
+        WriteScope::AllSites => {
+            tx.execute(
+                "select pg_advisory_xact_lock($1, id::int4) from site order by id",
+                &[&LOCK_SPACE],
+            )
+            .await?;
+        }
+    }
+    Ok(())
+}
+
+/// A site's id as the advisory lock's second key.
+fn site_key(id: i64) -> Result<i32, StoreError> {
+    i32::try_from(id).map_err(|_| anyhow::anyhow!("site id {id} is beyond the lock keys").into())
+}
