@@ -16,12 +16,13 @@ pub mod planning;
 pub mod review;
 pub mod store_impl;
 pub mod sync;
+pub mod tasks;
 pub mod tx;
 
 use super::{StoreError, StoreOptions, WriteScope};
 use deadpool_postgres::{Manager, ManagerConfig, Pool, RecyclingMethod};
 use tokio_postgres::NoTls;
-pub use tx::PgTx;
+pub use tx::{PgRead, PgTx};
 
 /// The first key of every advisory lock Cairn takes (the second is the site's id), so a
 /// database shared with other programs does not meet their locks by chance.
@@ -104,6 +105,22 @@ impl PgStore {
     /// Takes a pooled connection for a read.
     pub async fn client(&self) -> Result<deadpool_postgres::Object, StoreError> {
         Ok(self.pool.get().await?)
+    }
+
+    /// Runs `read` on a pooled connection as synchronous code (on a blocking thread, each
+    /// statement awaited on the server's runtime): for reads that share their SQL with a
+    /// workflow's transaction or need many dependent statements.
+    pub async fn read<R, F>(&self, read: F) -> Result<R, StoreError>
+    where
+        R: Send + 'static,
+        F: FnOnce(&PgRead<'_>) -> Result<R, StoreError> + Send + 'static,
+    {
+        let client = self.pool.get().await?;
+        let rt = tokio::runtime::Handle::current();
+        let every = self.options.snapshot_every;
+        tokio::task::spawn_blocking(move || read(&PgTx::new(&client, &rt, every)))
+            .await
+            .map_err(|e| anyhow::anyhow!("a read's thread failed: {e}"))?
     }
 
     /// Runs `work` in one transaction holding the advisory locks of `scope`: committed

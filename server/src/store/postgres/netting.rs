@@ -1,121 +1,164 @@
-//! Netting over PostgreSQL: `NettingTx`, `RecountTx` (recount placement) and `SettleTx`.
-#![allow(unused_imports, unused_variables)]
+//! Netting over PostgreSQL: the queries and writes of `NettingTx`, `RecountTx` (recount
+//! placement) and `SettleTx` (the workflows are `netting::pass`, `netting::recount` and
+//! `netting::settle`), and the netting reads and policy of the `Store` trait. The SQL
+//! follows `store/sqlite/netting/` statement for statement.
 
 use super::PgStore;
-use super::tx::{PgTx, not_yet};
-use crate::accounts::audit::Actor;
-use crate::accounts::audit::AuditEvent;
-use crate::accounts::audit::AuditTx;
-use crate::accounts::store::AccountStore;
-use crate::accuracy::store::AccuracyStore;
-use crate::ledger::BalanceRow;
-use crate::ledger::LedgerTx;
-use crate::ledger::Movement;
-use crate::master::Bin;
-use crate::master::NewBin;
-use crate::master::NewItem;
-use crate::master::NewPack;
-use crate::master::NewSite;
-use crate::master::Site;
-use crate::master::SiteCode;
-use crate::master::SiteCounts;
+use super::tx::PgTx;
+use crate::accounts::audit::{AuditEvent, AuditTx};
 use crate::master::SiteId;
-use crate::master::codes::BinCode;
-use crate::master::codes::Sku;
-use crate::master::codes::ZoneCode;
-use crate::netting::pass::AppliedEvent;
-use crate::netting::pass::CurrentResult;
-use crate::netting::pass::ItemFacts;
-use crate::netting::pass::ItemLot;
-use crate::netting::pass::NettingTx;
-use crate::netting::pass::NewResult;
-use crate::netting::pass::OpenTask;
-use crate::netting::pass::WrittenMove;
-use crate::netting::recount;
-use crate::netting::recount::DayList;
-use crate::netting::recount::NewRecountTask;
-use crate::netting::recount::Rechecked;
-use crate::netting::recount::RecountTx;
-use crate::netting::recount::RunLoad;
-use crate::netting::results::NetOutcome;
-use crate::netting::results::PassFacts;
-use crate::netting::results::STATUS_NOTHING_TO_NET;
-use crate::netting::results::Sent;
-use crate::netting::results::SettleOutcome;
-use crate::netting::rule::BookState;
+use crate::netting::pass::{CurrentResult, ItemFacts, ItemLot, NettingTx, NewResult, OpenTask};
+use crate::netting::recount::{DayList, NewRecountTask, Rechecked, RecountTx, RunLoad};
+use crate::netting::results::*;
 use crate::netting::rule::CountTiming;
-use crate::netting::rule::KeyCount;
-use crate::netting::rule::KeyResult;
-use crate::netting::rule::Status;
-use crate::netting::service;
-use crate::netting::service::Evidence;
-use crate::netting::service::KeyFacts;
-use crate::netting::service::LedgerMove;
-use crate::netting::service::Netted;
-use crate::netting::service::NettingSettings;
-use crate::netting::service::Placement;
-use crate::netting::service::SourceTimingRow;
-use crate::netting::service::Sources;
-use crate::netting::service::VERDICT_HIT;
-use crate::netting::service::VERDICT_OUT;
-use crate::netting::settle::AutoCandidate;
-use crate::netting::settle::SettleTx;
-use crate::netting::tolerance::Verdict;
-use crate::planning::AbcSummary;
-use crate::planning::ClassChange;
-use crate::planning::ListView;
-use crate::planning::NewCountList;
-use crate::planning::Settings;
-use crate::planning::abc::AbcRule;
+use crate::netting::service::{Evidence, LedgerMove, NettingSettings, ReasonCode, SourceTimingRow};
+use crate::netting::settle::{AutoCandidate, SettleTx};
+use crate::netting::tolerance::Tolerance;
 use crate::planning::abc::Class;
-use crate::planning::abc::Usage;
-use crate::planning::calendar::Calendar;
-use crate::planning::plan::Capacity;
-use crate::planning::plan::Fill;
-use crate::planning::plan::PlanInput;
-use crate::planning::short_pick::NewShortPick;
-use crate::planning::short_pick::ShortPickOutcome;
-use crate::review::AUTO_REASON;
-use crate::review::AUTO_REASON_CODE;
-use crate::review::decide::Posting;
-use crate::review::decide::post_count_adjustment;
-use crate::review::store::AutoAdjustment;
-use crate::review::store::ReviewStore;
-use crate::store::error::StoreError;
-use crate::store::{
-    BalancePage, BalanceQuery, HistoryPage, HistoryQuery, Progress, ShelfRow, Store,
-};
+use crate::store::{StoreError, WriteScope};
 use crate::time::Timestamp;
 use crate::time::day::SiteZone;
-use chrono::NaiveDate;
-use serde_json::json;
-use std::collections::BTreeMap;
-use std::collections::BTreeSet;
-use std::collections::HashSet;
+use deadpool_postgres::GenericClient;
+use std::collections::{BTreeMap, BTreeSet};
+use tokio_postgres::Row;
 
-impl crate::netting::pass::NettingTx for PgTx<'_> {
+fn json<T: serde::Serialize>(v: &T) -> Result<String, StoreError> {
+    Ok(serde_json::to_string(v).map_err(anyhow::Error::from)?)
+}
+
+/// A u32 as the bigint PostgreSQL stores it.
+fn big(n: u32) -> i64 {
+    i64::from(n)
+}
+
+/// A stored bigint that must fit a u32.
+fn small(r: &Row, i: usize) -> Result<u32, StoreError> {
+    let v: i64 = r.try_get(i)?;
+    u32::try_from(v).map_err(|_| anyhow::anyhow!("stored count {v} is out of range").into())
+}
+
+fn item_lots(rows: Vec<Row>) -> Result<Vec<ItemLot>, StoreError> {
+    rows.iter()
+        .map(|r| Ok((r.try_get(0)?, r.try_get(1)?)))
+        .collect()
+}
+
+/// Reads a site's tolerances and review limits (the defaults until some are stored).
+pub(super) fn settings_row(r: Option<Row>) -> Result<NettingSettings, StoreError> {
+    let Some(r) = r else {
+        return Ok(NettingSettings::default());
+    };
+    let t = |i: usize| -> Result<Tolerance, StoreError> {
+        Ok(Tolerance {
+            units: r.try_get(i)?,
+            percent_bp: r.try_get(i + 1)?,
+            value_minor: r.try_get(i + 2)?,
+        })
+    };
+    let mut s = NettingSettings::default();
+    s.tolerances.a = t(0)?;
+    s.tolerances.b = t(3)?;
+    s.tolerances.c = t(6)?;
+    s.auto_adjust = r.try_get(9)?;
+    s.manager_value_minor = r.try_get(10)?;
+    s.bulk_value_minor = r.try_get(11)?;
+    Ok(s)
+}
+
+pub(super) const SETTINGS_SQL: &str =
+    "select tol_a_units, tol_a_bp, tol_a_value_minor, tol_b_units, tol_b_bp,
+            tol_b_value_minor, tol_c_units, tol_c_bp, tol_c_value_minor,
+            auto_adjust, manager_value_minor, bulk_value_minor
+     from netting_settings where site_id = $1";
+
+pub(super) const SOURCES_SQL: &str =
+    "select source, uncertainty_ms, posting_lag_ms from source_timing
+     where site_id = $1 order by source";
+
+pub(super) fn source_rows(rows: Vec<Row>) -> Result<Vec<SourceTimingRow>, StoreError> {
+    rows.iter()
+        .map(|r| {
+            Ok(SourceTimingRow {
+                source: r.try_get(0)?,
+                uncertainty_ms: r.try_get(1)?,
+                posting_lag_ms: r.try_get(2)?,
+            })
+        })
+        .collect()
+}
+
+impl NettingTx for PgTx<'_> {
     fn pass_facts(&self, pass: i64) -> Result<Option<PassFacts>, StoreError> {
-        Err(not_yet("NettingTx::pass_facts"))
+        let Some(r) = self.query_opt(
+            "select p.id, p.uid, p.site_id, p.bin_id, b.code, p.task_id, t.est_s, u.name,
+                    p.first_at, p.done_at, p.uncertainty_ms,
+                    case when t.recount_of is not null then t.id end,
+                    coalesce(t.withdrawn_at is not null, false), p.held
+             from count_pass p join bin b on b.id = p.bin_id
+             join user_account u on u.id = p.user_id
+             left join count_task t on t.id = p.task_id
+             where p.id = $1",
+            &[&pass],
+        )?
+        else {
+            return Ok(None);
+        };
+        Ok(Some(PassFacts {
+            id: r.try_get(0)?,
+            uid: r.try_get(1)?,
+            site: SiteId(r.try_get(2)?),
+            bin_id: r.try_get(3)?,
+            bin_code: r.try_get(4)?,
+            task_est_s: r.try_get(6)?,
+            user_name: r.try_get(7)?,
+            timing: CountTiming {
+                first_scan: Timestamp(r.try_get(8)?),
+                done: r.try_get::<_, Option<i64>>(9)?.map(Timestamp),
+                clock_uncertainty_ms: r.try_get(10)?,
+            },
+            recount_task: r.try_get(11)?,
+            withdrawn: r.try_get(12)?,
+            held: r.try_get(13)?,
+        }))
     }
 
     fn netting_settings(&self, site: SiteId) -> Result<NettingSettings, StoreError> {
-        Err(not_yet("NettingTx::netting_settings"))
+        settings_row(self.query_opt(SETTINGS_SQL, &[&site.0])?)
     }
 
     fn source_timings(&self, site: SiteId) -> Result<Vec<SourceTimingRow>, StoreError> {
-        Err(not_yet("NettingTx::source_timings"))
+        source_rows(self.query(SOURCES_SQL, &[&site.0])?)
     }
 
     fn counted_keys(&self, pass: i64) -> Result<BTreeMap<ItemLot, (i64, Timestamp)>, StoreError> {
-        Err(not_yet("NettingTx::counted_keys"))
+        let mut counted = BTreeMap::new();
+        for r in self.query(
+            "select l.item_id, l.lot, sum(l.qty)::bigint, max(l.at) from count_line l
+             where l.pass_id = $1
+               and not exists (select 1 from count_line_undo u where u.line_uid = l.uid)
+             group by l.item_id, l.lot",
+            &[&pass],
+        )? {
+            counted.insert(
+                (r.try_get(0)?, r.try_get(1)?),
+                (r.try_get(2)?, Timestamp(r.try_get(3)?)),
+            );
+        }
+        Ok(counted)
     }
 
     fn bin_keys(&self, bin: i64) -> Result<Vec<ItemLot>, StoreError> {
-        Err(not_yet("NettingTx::bin_keys"))
+        item_lots(self.query(
+            "select item_id, lot from balance where bin_id = $1",
+            &[&bin],
+        )?)
     }
 
     fn netted_keys(&self, pass: i64) -> Result<Vec<ItemLot>, StoreError> {
-        Err(not_yet("NettingTx::netted_keys"))
+        item_lots(self.query(
+            "select item_id, lot from count_result where pass_id = $1 and superseded_by is null",
+            &[&pass],
+        )?)
     }
 
     fn current_result(
@@ -123,15 +166,60 @@ impl crate::netting::pass::NettingTx for PgTx<'_> {
         pass: i64,
         key: &ItemLot,
     ) -> Result<Option<CurrentResult>, StoreError> {
-        Err(not_yet("NettingTx::current_result"))
+        let Some(r) = self.query_opt(
+            "select id, status, verdict, recount_outcome, unit_cost_minor, evidence
+             from count_result
+             where pass_id = $1 and item_id = $2 and lot = $3 and superseded_by is null",
+            &[&pass, &key.0, &key.1],
+        )?
+        else {
+            return Ok(None);
+        };
+        let id: i64 = r.try_get(0)?;
+        let ev: String = r.try_get(5)?;
+        let evidence =
+            Evidence::parse(&ev).map_err(|e| anyhow::anyhow!("count_result {id}: {e}"))?;
+        Ok(Some(CurrentResult {
+            id,
+            status: r.try_get(1)?,
+            verdict: r.try_get(2)?,
+            recount_outcome: r.try_get(3)?,
+            unit_cost_minor: r.try_get(4)?,
+            evidence,
+        }))
     }
 
     fn item_facts(&self, item: i64) -> Result<ItemFacts, StoreError> {
-        Err(not_yet("NettingTx::item_facts"))
+        let r = self.query_one(
+            "select i.sku, i.unit_cost_minor,
+                    (select c.class from item_class c where c.item_id = i.id
+                     order by c.run_id desc limit 1)
+             from item i where i.id = $1",
+            &[&item],
+        )?;
+        let class: Option<String> = r.try_get(2)?;
+        Ok(ItemFacts {
+            sku: r.try_get(0)?,
+            unit_cost_minor: r.try_get(1)?,
+            class: class.as_deref().and_then(Class::parse),
+        })
     }
 
     fn balance_as_of(&self, bin: i64, key: &ItemLot, at: Timestamp) -> Result<i64, StoreError> {
-        Err(not_yet("NettingTx::balance_as_of"))
+        // The newest snapshot at or before `at`, plus one index range of moves after it.
+        Ok(self
+            .query_one(
+                "with s as (select at, qty from balance_snapshot
+                            where bin_id = $1 and item_id = $2 and lot = $3 and at <= $4
+                            order by at desc limit 1)
+                 select (coalesce((select qty from s), 0)
+                       + coalesce((select sum(qty) from movement
+                                   where bin_id = $1 and item_id = $2 and lot = $3
+                                     and event_at > coalesce((select at from s), -9223372036854775808)
+                                     and event_at <= $4), 0))::bigint",
+                &[&bin, &key.0, &key.1, &at.0],
+            )?
+            .try_get(0)?)
     }
 
     fn key_moves(
@@ -141,23 +229,90 @@ impl crate::netting::pass::NettingTx for PgTx<'_> {
         from: Timestamp,
         to: Timestamp,
     ) -> Result<Vec<LedgerMove>, StoreError> {
-        Err(not_yet("NettingTx::key_moves"))
+        self.query(
+            "select id, uid, event_at, qty, kind, source from movement
+             where bin_id = $1 and item_id = $2 and lot = $3 and event_at >= $4 and event_at <= $5
+             order by event_at, id",
+            &[&bin, &key.0, &key.1, &from.0, &to.0],
+        )?
+        .iter()
+        .map(|r| {
+            Ok(LedgerMove {
+                id: r.try_get(0)?,
+                uid: r.try_get(1)?,
+                event_at: Timestamp(r.try_get(2)?),
+                delta: r.try_get(3)?,
+                kind: r.try_get(4)?,
+                source: r.try_get(5)?,
+            })
+        })
+        .collect()
     }
 
     fn insert_result(&self, r: &NewResult<'_>) -> Result<i64, StoreError> {
-        Err(not_yet("NettingTx::insert_result"))
+        let n = r.netted;
+        let settled = r.now > n.settles_at;
+        Ok(self
+            .query_one(
+                "insert into count_result (pass_id, site_id, bin_id, item_id, lot, class, counted,
+                     f_star, variance, status, verdict, unit_cost_minor, counted_at, window_start,
+                     window_end, evidence, watermark, settles_at, settled, renet_reason, computed_at)
+                 values ($1, $2, $3, $4, $5, $6, $7, $8, $9, $10, $11, $12, $13, $14, $15, $16, $17,
+                         $18, $19, $20, $21)
+                 returning id",
+                &[
+                    &r.pass.id,
+                    &r.pass.site.0,
+                    &r.pass.bin_id,
+                    &n.item_id,
+                    &n.lot,
+                    &n.class.map(Class::as_str),
+                    &n.counted,
+                    &n.f_star,
+                    &n.variance,
+                    &r.status,
+                    &n.verdict,
+                    &n.unit_cost_minor,
+                    &n.counted_at.0,
+                    &n.window.start.0,
+                    &n.window.end.0,
+                    &json(&n.evidence)?,
+                    &r.watermark,
+                    &n.settles_at.0,
+                    &settled,
+                    &r.reason,
+                    &r.now.0,
+                ],
+            )?
+            .try_get(0)?)
     }
 
     fn supersede(&self, old: i64, new: i64) -> Result<(), StoreError> {
-        Err(not_yet("NettingTx::supersede"))
+        self.execute(
+            "update count_result set superseded_by = $1 where id = $2",
+            &[&new, &old],
+        )?;
+        Ok(())
     }
 
     fn done_pass_by_uid(&self, uid: &str) -> Result<Option<(i64, bool)>, StoreError> {
-        Err(not_yet("NettingTx::done_pass_by_uid"))
+        self.query_opt(
+            "select p.id, exists (select 1 from count_result r where r.pass_id = p.id)
+             from count_pass p where p.uid = $1 and p.done_at is not null",
+            &[&uid],
+        )?
+        .map(|r| Ok((r.try_get(0)?, r.try_get(1)?)))
+        .transpose()
     }
 
     fn widest_done_uncertainty(&self, site: SiteId) -> Result<Option<i64>, StoreError> {
-        Err(not_yet("NettingTx::widest_done_uncertainty"))
+        Ok(self
+            .query_one(
+                "select max(uncertainty_ms) from count_pass
+                 where site_id = $1 and done_at is not null",
+                &[&site.0],
+            )?
+            .try_get(0)?)
     }
 
     fn done_passes_of_bin(
@@ -165,23 +320,76 @@ impl crate::netting::pass::NettingTx for PgTx<'_> {
         bin: i64,
         done_from: Timestamp,
     ) -> Result<Vec<(i64, CountTiming)>, StoreError> {
-        Err(not_yet("NettingTx::done_passes_of_bin"))
+        self.query(
+            "select id, first_at, done_at, uncertainty_ms from count_pass
+             where bin_id = $1 and done_at is not null and done_at >= $2",
+            &[&bin, &done_from.0],
+        )?
+        .iter()
+        .map(|r| {
+            Ok((
+                r.try_get(0)?,
+                CountTiming {
+                    first_scan: Timestamp(r.try_get(1)?),
+                    done: Some(Timestamp(r.try_get(2)?)),
+                    clock_uncertainty_ms: r.try_get(3)?,
+                },
+            ))
+        })
+        .collect()
     }
 
     fn done_passes(&self, site: SiteId, pass: Option<&str>) -> Result<Vec<i64>, StoreError> {
-        Err(not_yet("NettingTx::done_passes"))
+        self.query(
+            "select id from count_pass where site_id = $1 and done_at is not null
+               and ($2::text is null or uid = $2 or id::text = $2)
+             order by done_at, id",
+            &[&site.0, &pass],
+        )?
+        .iter()
+        .map(|r| Ok(r.try_get(0)?))
+        .collect()
     }
 
     fn rechecked_keys(&self, task: i64) -> Result<Vec<(ItemLot, i64)>, StoreError> {
-        Err(not_yet("NettingTx::rechecked_keys"))
+        self.query(
+            "select distinct r.item_id, r.lot, r.pass_id
+             from count_task_recheck k join count_result r on r.id = k.result_id
+             where k.task_id = $1
+             order by r.pass_id, r.item_id, r.lot",
+            &[&task],
+        )?
+        .iter()
+        .map(|r| Ok(((r.try_get(0)?, r.try_get(1)?), r.try_get(2)?)))
+        .collect()
     }
 
     fn live_tasks_of(&self, pass: i64, key: &ItemLot) -> Result<i64, StoreError> {
-        Err(not_yet("NettingTx::live_tasks_of"))
+        Ok(self
+            .query_one(
+                "select count(distinct t.id) from count_result r
+                     join count_task_recheck k on k.result_id = r.id
+                     join count_task t on t.id = k.task_id
+                 where r.pass_id = $1 and r.item_id = $2 and r.lot = $3
+                   and t.withdrawn_at is null",
+                &[&pass, &key.0, &key.1],
+            )?
+            .try_get(0)?)
     }
 
     fn latest_recount_pass(&self, pass: i64, key: &ItemLot) -> Result<Option<i64>, StoreError> {
-        Err(not_yet("NettingTx::latest_recount_pass"))
+        self.query_opt(
+            "select p.id from count_result r
+                 join count_task_recheck k on k.result_id = r.id
+                 join count_task t on t.id = k.task_id
+                 join count_pass p on p.task_id = t.id
+             where r.pass_id = $1 and r.item_id = $2 and r.lot = $3
+               and t.withdrawn_at is null and p.done_at is not null
+             order by p.done_at desc, p.id desc limit 1",
+            &[&pass, &key.0, &key.1],
+        )?
+        .map(|r| Ok(r.try_get(0)?))
+        .transpose()
     }
 
     fn set_recount_outcome(
@@ -191,45 +399,129 @@ impl crate::netting::pass::NettingTx for PgTx<'_> {
         outcome: Option<&str>,
         first_count_wrong: bool,
     ) -> Result<(), StoreError> {
-        Err(not_yet("NettingTx::set_recount_outcome"))
+        self.execute(
+            "update count_result set verdict = $2, recount_outcome = $3, first_count_wrong = $4
+             where id = $1",
+            &[&result, &verdict, &outcome, &first_count_wrong],
+        )?;
+        Ok(())
     }
 
     fn open_tasks_of(&self, first_pass: i64) -> Result<Vec<OpenTask>, StoreError> {
-        Err(not_yet("NettingTx::open_tasks_of"))
+        self.query(
+            "select distinct t.id, t.list_id, t.supervisor
+             from count_result r join count_task_recheck k on k.result_id = r.id
+                 join count_task t on t.id = k.task_id
+             where r.pass_id = $1
+               and t.withdrawn_at is null and t.status <> 'done'
+               and not exists (select 1 from count_pass p
+                               where p.task_id = t.id and p.done_at is not null)",
+            &[&first_pass],
+        )?
+        .iter()
+        .map(|r| {
+            Ok(OpenTask {
+                id: r.try_get(0)?,
+                list: r.try_get(1)?,
+                supervisor: r.try_get(2)?,
+            })
+        })
+        .collect()
     }
 
     fn withdraw_task(&self, task: OpenTask, at: Timestamp, why: &str) -> Result<(), StoreError> {
-        Err(not_yet("NettingTx::withdraw_task"))
+        self.execute(
+            "update count_task set withdrawn_at = $2, withdrawn_reason = $3 where id = $1",
+            &[&task.id, &at.0, &why],
+        )?;
+        self.bump_list(task.list)
     }
 }
 
-impl crate::netting::recount::RecountTx for PgTx<'_> {
+impl RecountTx for PgTx<'_> {
     fn site_zone(&self, site: SiteId) -> Result<SiteZone, StoreError> {
-        Err(not_yet("RecountTx::site_zone"))
+        let zone: String = self
+            .query_one("select time_zone from site where id = $1", &[&site.0])?
+            .try_get(0)?;
+        SiteZone::parse(&zone)
+            .map_err(|e| anyhow::anyhow!("site {} has the zone '{zone}': {e}", site.0).into())
     }
 
     fn open_task_of(&self, pass: i64, supervisor: bool) -> Result<Option<(i64, i64)>, StoreError> {
-        Err(not_yet("RecountTx::open_task_of"))
+        self.query_opt(
+            "select t.id, t.list_id from count_result r
+                 join count_task_recheck k on k.result_id = r.id
+                 join count_task t on t.id = k.task_id
+             where r.pass_id = $1 and t.supervisor = $2 and t.withdrawn_at is null
+               and t.status = 'open'
+               and not exists (select 1 from count_pass p where p.task_id = t.id)
+             order by t.id limit 1",
+            &[&pass, &supervisor],
+        )?
+        .map(|r| Ok((r.try_get(0)?, r.try_get(1)?)))
+        .transpose()
     }
 
     fn link_rechecks(&self, task: i64, results: &[i64]) -> Result<(), StoreError> {
-        Err(not_yet("RecountTx::link_rechecks"))
+        for r in results {
+            self.execute(
+                "insert into count_task_recheck (task_id, result_id) values ($1, $2)
+                 on conflict do nothing",
+                &[&task, r],
+            )?;
+        }
+        Ok(())
     }
 
     fn rechecked(&self, task: i64) -> Result<Vec<Rechecked>, StoreError> {
-        Err(not_yet("RecountTx::rechecked"))
+        self.query(
+            "select r.id, i.sku, r.lot from count_task_recheck k
+                 join count_result r on r.id = k.result_id join item i on i.id = r.item_id
+             where k.task_id = $1
+             order by r.id",
+            &[&task],
+        )?
+        .iter()
+        .map(|r| {
+            Ok(Rechecked {
+                result: r.try_get(0)?,
+                sku: r.try_get(1)?,
+                lot: r.try_get(2)?,
+            })
+        })
+        .collect()
     }
 
     fn set_task_detail(&self, task: i64, detail: &str) -> Result<(), StoreError> {
-        Err(not_yet("RecountTx::set_task_detail"))
+        self.execute(
+            "update count_task set detail = $2 where id = $1",
+            &[&task, &detail],
+        )?;
+        Ok(())
     }
 
     fn bump_list(&self, list: i64) -> Result<(), StoreError> {
-        Err(not_yet("RecountTx::bump_list"))
+        self.execute(
+            "update count_list set version = version + 1 where id = $1",
+            &[&list],
+        )?;
+        Ok(())
     }
 
     fn day_list(&self, site: SiteId, day: &str) -> Result<Option<DayList>, StoreError> {
-        Err(not_yet("RecountTx::day_list"))
+        self.query_opt(
+            "select id, counters, warnings from count_list where site_id = $1 and day = $2",
+            &[&site.0, &day],
+        )?
+        .map(|r| {
+            let warnings: String = r.try_get(2)?;
+            Ok(DayList {
+                id: r.try_get(0)?,
+                counters: small(&r, 1)?,
+                warnings: serde_json::from_str(&warnings).unwrap_or_default(),
+            })
+        })
+        .transpose()
     }
 
     fn create_day_list(
@@ -239,37 +531,123 @@ impl crate::netting::recount::RecountTx for PgTx<'_> {
         minutes: i64,
         sent: &Sent,
     ) -> Result<DayList, StoreError> {
-        Err(not_yet("RecountTx::create_day_list"))
+        let id: i64 = self
+            .query_one(
+                "insert into count_list (site_id, day, counters, minutes, level_s, warnings,
+                     built_at, watermark)
+                 values ($1, $2, 1, $3, 0, '[]', $4, $5)
+                 returning id",
+                &[&site.0, &day, &minutes, &sent.now.0, &sent.watermark],
+            )?
+            .try_get(0)?;
+        self.execute(
+            "insert into count_run (list_id, run) values ($1, 1)",
+            &[&id],
+        )?;
+        Ok(DayList {
+            id,
+            counters: 1,
+            warnings: Vec::new(),
+        })
     }
 
     fn runs(&self, list: i64) -> Result<Vec<RunLoad>, StoreError> {
-        Err(not_yet("RecountTx::runs"))
+        self.query(
+            "select r.run, r.holder,
+                    (select count(*) from count_task t
+                     where t.list_id = r.list_id and t.run = r.run and t.status <> 'done'
+                       and t.withdrawn_at is null)
+             from count_run r where r.list_id = $1 order by r.run",
+            &[&list],
+        )?
+        .iter()
+        .map(|r| Ok((small(r, 0)?, r.try_get(1)?, small(r, 2)?)))
+        .collect()
     }
 
     fn add_run(&self, list: i64, run: u32) -> Result<(), StoreError> {
-        Err(not_yet("RecountTx::add_run"))
+        self.execute(
+            "insert into count_run (list_id, run) values ($1, $2)",
+            &[&list, &big(run)],
+        )?;
+        self.execute(
+            "update count_list set counters = $2 where id = $1",
+            &[&list, &big(run)],
+        )?;
+        Ok(())
     }
 
     fn result_class(&self, result: i64) -> Result<Option<Class>, StoreError> {
-        Err(not_yet("RecountTx::result_class"))
+        let c: Option<String> = self
+            .query_one("select class from count_result where id = $1", &[&result])?
+            .try_get(0)?;
+        Ok(c.as_deref().and_then(Class::parse))
     }
 
     fn bin_lines(&self, bin: i64) -> Result<i64, StoreError> {
-        Err(not_yet("RecountTx::bin_lines"))
+        Ok(self
+            .query_one(
+                "select count(*) from balance where bin_id = $1 and qty <> 0",
+                &[&bin],
+            )?
+            .try_get(0)?)
     }
 
     fn insert_recount_task(&self, t: &NewRecountTask) -> Result<i64, StoreError> {
-        Err(not_yet("RecountTx::insert_recount_task"))
+        // Recounts lead the run in the order they were sent (as in the SQLite store).
+        let run = big(t.run);
+        let seq: i64 = self
+            .query_one(
+                "select coalesce(
+                     (select max(seq) + 1 from count_task
+                      where list_id = $1 and run = $2 and recount_of is not null),
+                     (select min(seq) from count_task where list_id = $1 and run = $2),
+                     1)",
+                &[&t.list, &run],
+            )?
+            .try_get(0)?;
+        self.execute(
+            "update count_task set seq = seq + 1
+             where list_id = $1 and run = $2 and seq >= $3 and recount_of is null",
+            &[&t.list, &run, &seq],
+        )?;
+        Ok(self
+            .query_one(
+                "insert into count_task (list_id, bin_id, seq, run, reason, class, detail, lines,
+                     est_s, recount_of, supervisor)
+                 values ($1, $2, $3, $4, 'recount', $5, '', $6, $7, $8, $9)
+                 returning id",
+                &[
+                    &t.list,
+                    &t.bin,
+                    &seq,
+                    &run,
+                    &t.class.map(Class::as_str),
+                    &t.lines,
+                    &t.est_s,
+                    &t.recount_of,
+                    &t.supervisor,
+                ],
+            )?
+            .try_get(0)?)
     }
 
     fn set_list_warnings(&self, list: i64, warnings: &[String]) -> Result<(), StoreError> {
-        Err(not_yet("RecountTx::set_list_warnings"))
+        self.execute(
+            "update count_list set warnings = $2 where id = $1",
+            &[&list, &json(&warnings)?],
+        )?;
+        Ok(())
     }
 }
 
-impl crate::netting::settle::SettleTx for PgTx<'_> {
+impl SettleTx for PgTx<'_> {
     fn mark_settled(&self, now: Timestamp) -> Result<usize, StoreError> {
-        Err(not_yet("SettleTx::mark_settled"))
+        Ok(self.execute(
+            "update count_result set settled = true
+             where not settled and superseded_by is null and settles_at < $1",
+            &[&now.0],
+        )? as usize)
     }
 
     fn next_auto_candidate(
@@ -277,7 +655,53 @@ impl crate::netting::settle::SettleTx for PgTx<'_> {
         after: i64,
         now: Timestamp,
     ) -> Result<Option<AutoCandidate>, StoreError> {
-        Err(not_yet("SettleTx::next_auto_candidate"))
+        // The same candidate as the SQLite store's (see `store/sqlite/auto_adjust.rs`).
+        self.query_opt(
+            "select r.id, r.site_id, b.code, i.sku, r.lot, r.variance, r.class,
+                    r.unit_cost_minor, r.evidence
+             from netting_settings s
+             join count_result r on r.site_id = s.site_id
+             join count_pass p on p.id = r.pass_id
+             join bin b on b.id = r.bin_id
+             join item i on i.id = r.item_id
+             where s.auto_adjust and s.auto_adjust_from is not null
+               and r.superseded_by is null and r.verdict = 'hit' and r.variance <> 0
+               and r.id > $1
+               and (r.settled or r.settles_at < $2)
+               and not r.first_count_wrong
+               and coalesce(r.recount_outcome, '') <> 'book_right'
+               and p.received_at >= s.auto_adjust_from
+               and not exists (select 1 from count_review v where v.result_id = r.id)
+               and not exists (select 1 from count_task t
+                               where t.id = p.task_id and t.recount_of is not null)
+               and not exists (select 1 from count_result r0
+                                   join count_task_recheck k on k.result_id = r0.id
+                                   join count_task t on t.id = k.task_id
+                               where r0.pass_id = r.pass_id and r0.item_id = r.item_id
+                                 and r0.lot = r.lot and t.status <> 'done'
+                                 and t.withdrawn_at is null)
+               and not exists (select 1 from count_result r0
+                                   join count_auto_adjustment a on a.result_id = r0.id
+                               where r0.pass_id = r.pass_id and r0.item_id = r.item_id
+                                 and r0.lot = r.lot)
+             order by r.id limit 1",
+            &[&after, &now.0],
+        )?
+        .map(|r| {
+            let class: Option<String> = r.try_get(6)?;
+            Ok(AutoCandidate {
+                id: r.try_get(0)?,
+                site: SiteId(r.try_get(1)?),
+                bin: r.try_get(2)?,
+                sku: r.try_get(3)?,
+                lot: r.try_get(4)?,
+                variance: r.try_get(5)?,
+                class: class.as_deref().and_then(Class::parse),
+                unit_cost_minor: r.try_get(7)?,
+                evidence: r.try_get(8)?,
+            })
+        })
+        .transpose()
     }
 
     fn insert_auto_adjustment(
@@ -286,117 +710,504 @@ impl crate::netting::settle::SettleTx for PgTx<'_> {
         movement: i64,
         at: Timestamp,
     ) -> Result<i64, StoreError> {
-        Err(not_yet("SettleTx::insert_auto_adjustment"))
+        Ok(self
+            .query_one(
+                "insert into count_auto_adjustment (result_id, movement_id, posted_at)
+                 values ($1, $2, $3) returning id",
+                &[&result, &movement, &at.0],
+            )?
+            .try_get(0)?)
     }
 }
 
-/// See [`Store::netting_settings`].
+// The netting reads and policy of the `Store` trait (`store/sqlite/netting/policy.rs` and
+// `reads.rs`).
+
+/// Lists a site's reason codes, by code.
+pub(super) fn reason_code_rows<C: GenericClient>(
+    q: &PgTx<'_, C>,
+    site: SiteId,
+) -> Result<Vec<ReasonCode>, StoreError> {
+    q.query(
+        "select code, label from reason_code where site_id = $1 order by code",
+        &[&site.0],
+    )?
+    .iter()
+    .map(|r| {
+        Ok(ReasonCode {
+            code: r.try_get(0)?,
+            label: r.try_get(1)?,
+        })
+    })
+    .collect()
+}
+
+fn uses<C: GenericClient>(
+    q: &PgTx<'_, C>,
+    site: SiteId,
+) -> Result<BTreeMap<String, i64>, StoreError> {
+    q.query(
+        "select v.reason_code, count(*) from count_review v
+         join count_result r on r.id = v.result_id
+         where r.site_id = $1 and v.reason_code <> ''
+         group by v.reason_code",
+        &[&site.0],
+    )?
+    .iter()
+    .map(|r| Ok((r.try_get(0)?, r.try_get(1)?)))
+    .collect()
+}
+
+fn write_settings(
+    tx: &PgTx<'_>,
+    site: SiteId,
+    s: &NettingSettings,
+    now: Timestamp,
+) -> Result<(), StoreError> {
+    let (a, b, c) = (s.tolerances.a, s.tolerances.b, s.tolerances.c);
+    let was_from: Option<i64> = match tx.query_opt(
+        "select auto_adjust_from from netting_settings where site_id = $1 and auto_adjust",
+        &[&site.0],
+    )? {
+        Some(r) => r.try_get(0)?,
+        None => None,
+    };
+    let auto_from = s.auto_adjust.then(|| was_from.unwrap_or(now.0));
+    tx.execute(
+        "insert into netting_settings (site_id, tol_a_units, tol_a_bp,
+             tol_a_value_minor, tol_b_units, tol_b_bp, tol_b_value_minor, tol_c_units,
+             tol_c_bp, tol_c_value_minor, auto_adjust, manager_value_minor, bulk_value_minor,
+             auto_adjust_from)
+         values ($1, $2, $3, $4, $5, $6, $7, $8, $9, $10, $11, $12, $13, $14)
+         on conflict (site_id) do update set tol_a_units = excluded.tol_a_units,
+             tol_a_bp = excluded.tol_a_bp, tol_a_value_minor = excluded.tol_a_value_minor,
+             tol_b_units = excluded.tol_b_units, tol_b_bp = excluded.tol_b_bp,
+             tol_b_value_minor = excluded.tol_b_value_minor, tol_c_units = excluded.tol_c_units,
+             tol_c_bp = excluded.tol_c_bp, tol_c_value_minor = excluded.tol_c_value_minor,
+             auto_adjust = excluded.auto_adjust,
+             manager_value_minor = excluded.manager_value_minor,
+             bulk_value_minor = excluded.bulk_value_minor,
+             auto_adjust_from = excluded.auto_adjust_from",
+        &[
+            &site.0,
+            &a.units,
+            &a.percent_bp,
+            &a.value_minor,
+            &b.units,
+            &b.percent_bp,
+            &b.value_minor,
+            &c.units,
+            &c.percent_bp,
+            &c.value_minor,
+            &s.auto_adjust,
+            &s.manager_value_minor,
+            &s.bulk_value_minor,
+            &auto_from,
+        ],
+    )?;
+    Ok(())
+}
+
+fn write_sources(tx: &PgTx<'_>, site: SiteId, rows: &[SourceTimingRow]) -> Result<(), StoreError> {
+    tx.execute("delete from source_timing where site_id = $1", &[&site.0])?;
+    for r in rows {
+        tx.execute(
+            "insert into source_timing (site_id, source, uncertainty_ms, posting_lag_ms)
+             values ($1, $2, $3, $4)",
+            &[&site.0, &r.source, &r.uncertainty_ms, &r.posting_lag_ms],
+        )?;
+    }
+    Ok(())
+}
+
+fn write_reasons(tx: &PgTx<'_>, site: SiteId, rows: &[ReasonCode]) -> Result<(), StoreError> {
+    let dropped: Vec<String> = uses(tx, site)?
+        .into_iter()
+        .filter(|(code, _)| !rows.iter().any(|r| &r.code == code))
+        .map(|(code, n)| {
+            let taken = if n == 1 {
+                "decision names"
+            } else {
+                "decisions name"
+            };
+            format!(
+                "reason code '{code}' cannot be removed: {n} {taken} it; give it a new label \
+                 instead"
+            )
+        })
+        .collect();
+    if !dropped.is_empty() {
+        return Err(StoreError::Conflict(dropped.join("; ")));
+    }
+    tx.execute("delete from reason_code where site_id = $1", &[&site.0])?;
+    for r in rows {
+        tx.execute(
+            "insert into reason_code (site_id, code, label) values ($1, $2, $3)",
+            &[&site.0, &r.code, &r.label],
+        )?;
+    }
+    Ok(())
+}
+
+/// Refuses a page's save over a list that changed after the page showed it.
+fn still_as_shown(current: &[&str], shown: &[String], what: &str) -> Result<(), StoreError> {
+    let now: BTreeSet<&str> = current.iter().copied().collect();
+    let then: BTreeSet<&str> = shown.iter().map(String::as_str).collect();
+    if now == then {
+        return Ok(());
+    }
+    Err(StoreError::Conflict(format!(
+        "the {what} changed since this page was opened (someone else saved them): \
+         reload the page and make your change again"
+    )))
+}
+
+/// See [`crate::store::Store::netting_settings`].
 pub async fn netting_settings(
     store: &PgStore,
     site: SiteId,
-) -> Result<crate::netting::service::NettingSettings, StoreError> {
-    Err(not_yet("Store::netting_settings"))
+) -> Result<NettingSettings, StoreError> {
+    store
+        .read(move |q| settings_row(q.query_opt(SETTINGS_SQL, &[&site.0])?))
+        .await
 }
 
-/// See [`Store::put_netting_settings`].
+/// See [`crate::store::Store::put_netting_settings`].
 pub async fn put_netting_settings(
     store: &PgStore,
     site: SiteId,
-    settings: crate::netting::service::NettingSettings,
+    settings: NettingSettings,
     audit: AuditEvent,
 ) -> Result<(), StoreError> {
-    Err(not_yet("Store::put_netting_settings"))
+    store
+        .write_tx(WriteScope::Site(site), move |tx| {
+            tx.insert_audit(&audit)?;
+            // The change happens when its audit event says (now, for pages and the API).
+            write_settings(tx, site, &settings, audit.at)
+        })
+        .await
 }
 
-/// See [`Store::source_timings`].
+/// See [`crate::store::Store::source_timings`].
 pub async fn source_timings(
     store: &PgStore,
     site: SiteId,
-) -> Result<Vec<crate::netting::service::SourceTimingRow>, StoreError> {
-    Err(not_yet("Store::source_timings"))
+) -> Result<Vec<SourceTimingRow>, StoreError> {
+    store
+        .read(move |q| source_rows(q.query(SOURCES_SQL, &[&site.0])?))
+        .await
 }
 
-/// See [`Store::put_source_timings`].
+/// See [`crate::store::Store::put_source_timings`].
 pub async fn put_source_timings(
     store: &PgStore,
     site: SiteId,
-    rows: Vec<crate::netting::service::SourceTimingRow>,
+    rows: Vec<SourceTimingRow>,
     audit: AuditEvent,
 ) -> Result<(), StoreError> {
-    Err(not_yet("Store::put_source_timings"))
+    store
+        .write_tx(WriteScope::Site(site), move |tx| {
+            tx.insert_audit(&audit)?;
+            write_sources(tx, site, &rows)
+        })
+        .await
 }
 
-/// See [`Store::reason_codes`].
-pub async fn reason_codes(
-    store: &PgStore,
-    site: SiteId,
-) -> Result<Vec<crate::netting::service::ReasonCode>, StoreError> {
-    Err(not_yet("Store::reason_codes"))
+/// See [`crate::store::Store::reason_codes`].
+pub async fn reason_codes(store: &PgStore, site: SiteId) -> Result<Vec<ReasonCode>, StoreError> {
+    store.read(move |q| reason_code_rows(q, site)).await
 }
 
-/// See [`Store::put_reason_codes`].
+/// See [`crate::store::Store::put_reason_codes`].
 pub async fn put_reason_codes(
     store: &PgStore,
     site: SiteId,
-    rows: Vec<crate::netting::service::ReasonCode>,
+    rows: Vec<ReasonCode>,
     audit: AuditEvent,
 ) -> Result<(), StoreError> {
-    Err(not_yet("Store::put_reason_codes"))
+    store
+        .write_tx(WriteScope::Site(site), move |tx| {
+            tx.insert_audit(&audit)?;
+            write_reasons(tx, site, &rows)
+        })
+        .await
 }
 
-/// See [`Store::edit_source_timings`].
+/// See [`crate::store::Store::edit_source_timings`].
 pub async fn edit_source_timings(
     store: &PgStore,
     site: SiteId,
     shown: Vec<String>,
-    rows: Vec<crate::netting::service::SourceTimingRow>,
+    rows: Vec<SourceTimingRow>,
     audit: AuditEvent,
 ) -> Result<(), StoreError> {
-    Err(not_yet("Store::edit_source_timings"))
+    store
+        .write_tx(WriteScope::Site(site), move |tx| {
+            tx.insert_audit(&audit)?;
+            let current = source_rows(tx.query(SOURCES_SQL, &[&site.0])?)?;
+            let names: Vec<&str> = current.iter().map(|r| r.source.as_str()).collect();
+            still_as_shown(&names, &shown, "movement sources")?;
+            write_sources(tx, site, &rows)
+        })
+        .await
 }
 
-/// See [`Store::edit_reason_codes`].
+/// See [`crate::store::Store::edit_reason_codes`].
 pub async fn edit_reason_codes(
     store: &PgStore,
     site: SiteId,
     shown: Vec<String>,
-    rows: Vec<crate::netting::service::ReasonCode>,
+    rows: Vec<ReasonCode>,
     audit: AuditEvent,
 ) -> Result<(), StoreError> {
-    Err(not_yet("Store::edit_reason_codes"))
+    store
+        .write_tx(WriteScope::Site(site), move |tx| {
+            tx.insert_audit(&audit)?;
+            let current = crate::review::decide::ReviewTx::reason_codes(tx, site)?;
+            let codes: Vec<&str> = current.iter().map(|r| r.code.as_str()).collect();
+            still_as_shown(&codes, &shown, "reason codes")?;
+            write_reasons(tx, site, &rows)
+        })
+        .await
 }
 
-/// See [`Store::reason_code_uses`].
+/// See [`crate::store::Store::reason_code_uses`].
 pub async fn reason_code_uses(
     store: &PgStore,
     site: SiteId,
-) -> Result<std::collections::BTreeMap<String, i64>, StoreError> {
-    Err(not_yet("Store::reason_code_uses"))
+) -> Result<BTreeMap<String, i64>, StoreError> {
+    store.read(move |q| uses(q, site)).await
 }
 
-/// See [`Store::count_results`].
+const ROW_SELECT: &str = "select r.id, r.pass_id, p.uid, u.name, b.code, i.sku, r.lot, r.class,
+        r.counted, r.f_star, r.variance, r.status, r.verdict, r.unit_cost_minor, r.counted_at,
+        r.window_start, r.window_end, r.watermark, r.settles_at, r.settled, r.superseded_by,
+        r.renet_reason, r.recount_outcome, r.first_count_wrong,
+        exists (select 1 from count_review v where v.result_id = r.id), r.computed_at, r.evidence,
+        exists (select 1 from count_auto_adjustment a where a.result_id = r.id)
+     from count_result r join count_pass p on p.id = r.pass_id
+     join user_account u on u.id = p.user_id join bin b on b.id = r.bin_id
+     join item i on i.id = r.item_id";
+
+fn map_row(r: &Row, now: Timestamp) -> Result<(ResultRow, String), StoreError> {
+    let variance: i64 = r.try_get(10)?;
+    let cost: i64 = r.try_get(13)?;
+    let settles_at = Timestamp(r.try_get(18)?);
+    Ok((
+        ResultRow {
+            id: r.try_get(0)?,
+            pass_id: r.try_get(1)?,
+            pass: r.try_get(2)?,
+            counter: r.try_get(3)?,
+            bin: r.try_get(4)?,
+            sku: r.try_get(5)?,
+            lot: r.try_get(6)?,
+            class: r.try_get(7)?,
+            counted: r.try_get(8)?,
+            f_star: r.try_get(9)?,
+            variance,
+            variance_value_minor: variance.saturating_mul(cost),
+            status: r.try_get(11)?,
+            verdict: r.try_get(12)?,
+            unit_cost_minor: cost,
+            counted_at: Timestamp(r.try_get(14)?),
+            window_start: Timestamp(r.try_get(15)?),
+            window_end: Timestamp(r.try_get(16)?),
+            watermark: r.try_get(17)?,
+            settles_at,
+            settled: r.try_get::<_, bool>(19)? || now > settles_at,
+            superseded_by: r.try_get(20)?,
+            renet_reason: r.try_get(21)?,
+            recount_outcome: r.try_get(22)?,
+            first_count_wrong: r.try_get(23)?,
+            reviewed: r.try_get(24)?,
+            auto_adjusted: r.try_get(27)?,
+            computed_at: Timestamp(r.try_get(25)?),
+        },
+        r.try_get(26)?,
+    ))
+}
+
+/// See [`crate::store::Store::count_results`]: a site's results, by id.
 pub async fn count_results(
     store: &PgStore,
     site: SiteId,
-    query: crate::netting::results::ResultQuery,
-) -> Result<crate::netting::results::ResultPage, StoreError> {
-    Err(not_yet("Store::count_results"))
+    q: ResultQuery,
+) -> Result<ResultPage, StoreError> {
+    let now = Timestamp::now();
+    let state = match q.state {
+        ResultState::Open => {
+            " and r.superseded_by is null and r.verdict = 'out_of_tolerance'
+              and not exists (select 1 from count_review v where v.result_id = r.id)"
+        }
+        ResultState::Current => " and r.superseded_by is null",
+        ResultState::All => "",
+    };
+    let limit = q.limit.clamp(1, MAX_RESULTS_PAGE);
+    let sql = format!(
+        "{ROW_SELECT} where r.site_id = $1 and r.id > $2{state}
+           and ($3::text is null or b.code = $3)
+           and ($4::text is null or i.sku = $4)
+           and ($5::text is null or p.uid = $5 or p.id::text = $5)
+         order by r.id limit {limit}"
+    );
+    let c = store.client().await?;
+    let st = c.prepare_cached(&sql).await?;
+    let results = c
+        .query(&st, &[&site.0, &q.after, &q.bin, &q.sku, &q.pass])
+        .await?
+        .iter()
+        .map(|r| map_row(r, now).map(|(row, _)| row))
+        .collect::<Result<Vec<_>, _>>()?;
+    let next = (results.len() == limit)
+        .then(|| results.last().map(|r| r.id))
+        .flatten();
+    Ok(ResultPage { results, next })
 }
 
-/// See [`Store::count_result`].
+fn result_detail<C: GenericClient>(
+    q: &PgTx<'_, C>,
+    site: SiteId,
+    id: i64,
+    now: Timestamp,
+) -> Result<Option<ResultDetail>, StoreError> {
+    let Some(r) = q.query_opt(
+        &format!("{ROW_SELECT} where r.site_id = $1 and r.id = $2"),
+        &[&site.0, &id],
+    )?
+    else {
+        return Ok(None);
+    };
+    let (row, evidence) = map_row(&r, now)?;
+    let evidence =
+        Evidence::parse(&evidence).map_err(|e| anyhow::anyhow!("count_result {id}: {e}"))?;
+    let mut replaces = Vec::new();
+    let mut at = row.id;
+    while let Some(prev) = q.query_opt(
+        "select id from count_result where superseded_by = $1",
+        &[&at],
+    )? {
+        let prev: i64 = prev.try_get(0)?;
+        replaces.push(prev);
+        at = prev;
+    }
+    let mut recount_tasks = Vec::new();
+    let mut withdrawn_recounts = Vec::new();
+    for t in q.query(
+        "select distinct t.id, t.withdrawn_at, t.withdrawn_reason from count_result me
+         join count_result r on r.pass_id = me.pass_id and r.item_id = me.item_id
+              and r.lot = me.lot
+         join count_task_recheck k on k.result_id = r.id
+         join count_task t on t.id = k.task_id
+         where me.id = $1 order by t.id",
+        &[&row.id],
+    )? {
+        let task: i64 = t.try_get(0)?;
+        match t.try_get::<_, Option<i64>>(1)? {
+            None => recount_tasks.push(task),
+            Some(at) => withdrawn_recounts.push(WithdrawnRecount {
+                task,
+                at: Timestamp(at),
+                reason: t.try_get(2)?,
+            }),
+        }
+    }
+    let automatic_adjustment = q
+        .query_opt(
+            "select a.id, a.result_id, m.uid, m.qty, m.event_at, a.posted_at
+             from count_auto_adjustment a join movement m on m.id = a.movement_id
+             where a.result_id = $1",
+            &[&row.id],
+        )?
+        .map(|r| {
+            Ok::<_, StoreError>(crate::review::store::AutoAdjustment {
+                id: r.try_get(0)?,
+                result: r.try_get(1)?,
+                movement: r.try_get(2)?,
+                qty: r.try_get(3)?,
+                event_at: Timestamp(r.try_get(4)?),
+                posted_at: Timestamp(r.try_get(5)?),
+            })
+        })
+        .transpose()?;
+    Ok(Some(ResultDetail {
+        row,
+        evidence,
+        replaces,
+        recount_tasks,
+        withdrawn_recounts,
+        automatic_adjustment,
+    }))
+}
+
+/// See [`crate::store::Store::count_result`]: one result with its evidence.
 pub async fn count_result(
     store: &PgStore,
     site: SiteId,
     id: i64,
-) -> Result<Option<crate::netting::results::ResultDetail>, StoreError> {
-    Err(not_yet("Store::count_result"))
+) -> Result<Option<ResultDetail>, StoreError> {
+    store
+        .read(move |q| result_detail(q, site, id, Timestamp::now()))
+        .await
 }
 
-/// See [`Store::count_pass_report`].
+/// See [`crate::store::Store::count_pass_report`]: a pass (by id or uid) and its current
+/// results.
 pub async fn count_pass_report(
     store: &PgStore,
     site: SiteId,
-    pass: crate::netting::results::PassRef,
-) -> Result<Option<crate::netting::results::PassReport>, StoreError> {
-    Err(not_yet("Store::count_pass_report"))
+    pass: PassRef,
+) -> Result<Option<PassReport>, StoreError> {
+    let (id, uid) = match pass {
+        PassRef::Id(id) => (Some(id), None),
+        PassRef::Uid(u) => (None, Some(u.to_string())),
+    };
+    store
+        .read(move |q| {
+            let now = Timestamp::now();
+            let Some(h) = q.query_opt(
+                "select p.id, p.uid, s.code, b.code, u.name, p.first_at, p.done_at,
+                        p.uncertainty_ms, p.task_id
+                 from count_pass p join site s on s.id = p.site_id join bin b on b.id = p.bin_id
+                 join user_account u on u.id = p.user_id
+                 where p.site_id = $1 and (p.id = $2 or p.uid = $3)",
+                &[&site.0, &id, &uid],
+            )?
+            else {
+                return Ok(None);
+            };
+            let task: Option<i64> = h.try_get(8)?;
+            let mut report = PassReport {
+                pass_id: h.try_get(0)?,
+                pass: h.try_get(1)?,
+                site: h.try_get(2)?,
+                bin: h.try_get(3)?,
+                counter: h.try_get(4)?,
+                first_at: Timestamp(h.try_get(5)?),
+                done_at: h.try_get::<_, Option<i64>>(6)?.map(Timestamp),
+                uncertainty_ms: h.try_get(7)?,
+                rechecks: Vec::new(),
+                results: Vec::new(),
+            };
+            report.rechecks = q
+                .query(
+                    "select result_id from count_task_recheck where task_id = $1
+                     order by result_id",
+                    &[&task],
+                )?
+                .iter()
+                .map(|r| r.try_get(0))
+                .collect::<Result<_, _>>()?;
+            for r in q.query(
+                "select r.id from count_result r join item i on i.id = r.item_id
+                 where r.pass_id = $1 and r.superseded_by is null order by i.sku, r.lot",
+                &[&report.pass_id],
+            )? {
+                if let Some(d) = result_detail(q, site, r.try_get(0)?, now)? {
+                    report.results.push(d);
+                }
+            }
+            Ok(Some(report))
+        })
+        .await
 }

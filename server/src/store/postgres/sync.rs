@@ -1,87 +1,87 @@
-//! Phones' sync over PostgreSQL: `SyncTx`.
-#![allow(unused_imports, unused_variables)]
+//! Phones' sync over PostgreSQL: the queries and writes of `SyncTx` (the workflow is
+//! `sync::apply`'s; one savepoint per event), the phone's catalogue and the count lines
+//! support reads. The SQL follows `store/sqlite/sync.rs`.
 
 use super::PgStore;
-use super::tx::{PgTx, not_yet};
+use super::tx::PgTx;
 use crate::accounts::DeviceId;
-use crate::accounts::audit::AuditEvent;
-use crate::accounts::store::AccountStore;
-use crate::accuracy::store::AccuracyStore;
-use crate::ledger::BalanceRow;
-use crate::ledger::Movement;
-use crate::master::Bin;
-use crate::master::NewBin;
-use crate::master::NewItem;
-use crate::master::NewPack;
-use crate::master::NewSite;
-use crate::master::Site;
-use crate::master::SiteCode;
-use crate::master::SiteCounts;
 use crate::master::SiteId;
-use crate::master::codes::BinCode;
-use crate::master::codes::Sku;
-use crate::master::codes::ZoneCode;
-use crate::planning::AbcSummary;
-use crate::planning::ClassChange;
-use crate::planning::ListView;
-use crate::planning::NewCountList;
-use crate::planning::Settings;
-use crate::planning::abc::AbcRule;
-use crate::planning::abc::Class;
-use crate::planning::abc::Usage;
-use crate::planning::calendar::Calendar;
-use crate::planning::plan::Capacity;
-use crate::planning::plan::Fill;
-use crate::planning::plan::PlanInput;
-use crate::planning::short_pick::NewShortPick;
-use crate::planning::short_pick::ShortPickOutcome;
-use crate::review::store::ReviewStore;
-use crate::store::error::StoreError;
-use crate::store::{
-    BalancePage, BalanceQuery, HistoryPage, HistoryQuery, Progress, ShelfRow, Store,
+use crate::planning::phone::{ItemBrief, PackBrief};
+use crate::store::StoreError;
+use crate::sync::apply::{
+    EventBin, EventTask, NewEvent, NewLine, NewPass, PassTrust, StoredPass, SyncTx,
 };
-use crate::sync::SyncBatch;
-use crate::sync::apply::EventBin;
-use crate::sync::apply::EventTask;
-use crate::sync::apply::NewEvent;
-use crate::sync::apply::NewLine;
-use crate::sync::apply::NewPass;
-use crate::sync::apply::PassTrust;
-use crate::sync::apply::StoredPass;
-use crate::sync::apply::SyncTx;
 use crate::sync::clock::ClockSample;
-use crate::sync::event::Body;
-use crate::sync::event::Event;
-use crate::sync::event::Line;
-use crate::sync::plausible;
 use crate::sync::plausible::Sampled;
-use crate::sync::plausible::TaskFloor;
+use crate::sync::results::StoredLine;
 use crate::time::Timestamp;
-use crate::time::day::SiteZone;
 use cairn_scan::wire::EventFlag;
-use cairn_scan::wire::EventResult;
-use chrono::NaiveDate;
-use std::collections::BTreeMap;
+use tokio_postgres::Row;
 
-impl crate::sync::apply::SyncTx for PgTx<'_> {
+fn flag_text(flags: &[EventFlag]) -> String {
+    flags
+        .iter()
+        .map(|f| match f {
+            EventFlag::Reassigned => "reassigned",
+            EventFlag::FoundStock => "found_stock",
+            EventFlag::Held => "held",
+        })
+        .collect::<Vec<_>>()
+        .join(",")
+}
+
+fn flags_of(text: &str) -> Vec<EventFlag> {
+    text.split(',')
+        .filter_map(|f| match f {
+            "reassigned" => Some(EventFlag::Reassigned),
+            "found_stock" => Some(EventFlag::FoundStock),
+            "held" => Some(EventFlag::Held),
+            _ => None,
+        })
+        .collect()
+}
+
+/// A stored bigint as a narrower integer.
+fn narrow<T: TryFrom<i64>>(r: &Row, i: usize) -> Result<T, StoreError> {
+    let v: i64 = r.try_get(i)?;
+    T::try_from(v).map_err(|_| anyhow::anyhow!("stored value {v} is out of range").into())
+}
+
+impl SyncTx for PgTx<'_> {
     fn stored_event(&self, uid: &str) -> Result<Option<(String, Vec<EventFlag>)>, StoreError> {
-        Err(not_yet("SyncTx::stored_event"))
+        self.query_opt("select body, flags from sync_event where uid = $1", &[&uid])?
+            .map(|r| {
+                let flags: String = r.try_get(1)?;
+                Ok((r.try_get(0)?, flags_of(&flags)))
+            })
+            .transpose()
     }
 
     fn begin_event(&self) -> Result<(), StoreError> {
-        Err(not_yet("SyncTx::begin_event"))
+        Ok(self.batch("savepoint sync_event")?)
     }
 
     fn keep_event(&self) -> Result<(), StoreError> {
-        Err(not_yet("SyncTx::keep_event"))
+        Ok(self.batch("release savepoint sync_event")?)
     }
 
     fn drop_event(&self) -> Result<(), StoreError> {
-        Err(not_yet("SyncTx::drop_event"))
+        Ok(self.batch("rollback to savepoint sync_event; release savepoint sync_event")?)
     }
 
     fn previous_clock(&self, device: DeviceId) -> Result<Option<Sampled>, StoreError> {
-        Err(not_yet("SyncTx::previous_clock"))
+        self.query_opt(
+            "select offset_ms, uncertainty_ms, sampled_at from device_clock where device_id = $1",
+            &[&device.0],
+        )?
+        .map(|r| {
+            Ok(Sampled {
+                offset_ms: r.try_get(0)?,
+                uncertainty_ms: r.try_get(1)?,
+                at: Timestamp(r.try_get(2)?),
+            })
+        })
+        .transpose()
     }
 
     fn save_clock(
@@ -90,43 +90,142 @@ impl crate::sync::apply::SyncTx for PgTx<'_> {
         clock: &ClockSample,
         at: Timestamp,
     ) -> Result<(), StoreError> {
-        Err(not_yet("SyncTx::save_clock"))
+        self.execute(
+            "insert into device_clock (device_id, offset_ms, uncertainty_ms, sampled_at)
+             values ($1, $2, $3, $4)
+             on conflict (device_id) do update set offset_ms = excluded.offset_ms,
+                 uncertainty_ms = excluded.uncertainty_ms, sampled_at = excluded.sampled_at",
+            &[&device.0, &clock.offset_ms, &clock.uncertainty_ms, &at.0],
+        )?;
+        Ok(())
     }
 
     fn pass_trust(&self, pass: i64) -> Result<PassTrust, StoreError> {
-        Err(not_yet("SyncTx::pass_trust"))
+        let r = self.query_one(
+            "select held, first_at, done_at, clock_offset_ms, clock_uncertainty_ms,
+                    clock_sampled_at
+             from count_pass where id = $1",
+            &[&pass],
+        )?;
+        let (offset, uncertainty, sampled_at): (Option<i64>, Option<i64>, Option<i64>) =
+            (r.try_get(3)?, r.try_get(4)?, r.try_get(5)?);
+        let first_sample = match (offset, uncertainty, sampled_at) {
+            (Some(offset_ms), Some(uncertainty_ms), Some(at)) => Some(Sampled {
+                offset_ms,
+                uncertainty_ms,
+                at: Timestamp(at),
+            }),
+            _ => None,
+        };
+        Ok(PassTrust {
+            held: r.try_get(0)?,
+            first: Timestamp(r.try_get(1)?),
+            done: r.try_get::<_, Option<i64>>(2)?.map(Timestamp),
+            first_sample,
+        })
     }
 
     fn hold_pass(&self, pass: i64, reason: &str) -> Result<(), StoreError> {
-        Err(not_yet("SyncTx::hold_pass"))
+        self.execute(
+            "update count_pass set held = $2 where id = $1 and held is null",
+            &[&pass, &reason],
+        )?;
+        Ok(())
     }
 
     fn bin(&self, site: SiteId, code: &str) -> Result<Option<EventBin>, StoreError> {
-        Err(not_yet("SyncTx::bin"))
+        self.query_opt(
+            "select b.id, z.code, b.aisle, b.bay, b.level
+             from bin b join zone z on z.id = b.zone_id
+             where b.site_id = $1 and b.code = $2",
+            &[&site.0, &code],
+        )?
+        .map(|r| {
+            Ok(EventBin {
+                id: r.try_get(0)?,
+                zone: r.try_get(1)?,
+                aisle: narrow(&r, 2)?,
+                bay: narrow(&r, 3)?,
+                level: narrow(&r, 4)?,
+            })
+        })
+        .transpose()
     }
 
     fn task(&self, site: SiteId, task: i64) -> Result<Option<EventTask>, StoreError> {
-        Err(not_yet("SyncTx::task"))
+        self.query_opt(
+            "select t.bin_id, coalesce(r.holder, ''), b.code, l.day, l.built_at,
+                    (select p.done_at from count_result c join count_pass p on p.id = c.pass_id
+                     where c.id = t.recount_of),
+                    t.recount_of is not null,
+                    case when t.withdrawn_at is not null then t.withdrawn_reason end
+             from count_task t
+             join count_list l on l.id = t.list_id join bin b on b.id = t.bin_id
+             left join count_run r on r.list_id = t.list_id and r.run = t.run
+             where t.id = $1 and l.site_id = $2",
+            &[&task, &site.0],
+        )?
+        .map(|r| {
+            Ok(EventTask {
+                bin: r.try_get(0)?,
+                holder: r.try_get(1)?,
+                bin_code: r.try_get(2)?,
+                day: r.try_get(3)?,
+                built_at: Timestamp(r.try_get(4)?),
+                recheck_done_at: r.try_get::<_, Option<i64>>(5)?.map(Timestamp),
+                is_recount: r.try_get(6)?,
+                withdrawn: r.try_get(7)?,
+            })
+        })
+        .transpose()
     }
 
     fn would_recount_own_count(&self, task: i64, user: &str) -> Result<bool, StoreError> {
-        Err(not_yet("SyncTx::would_recount_own_count"))
+        super::tasks::would_recount_own_count(self, task, user)
     }
 
     fn pass_by_uid(&self, uid: &str) -> Result<Option<StoredPass>, StoreError> {
-        Err(not_yet("SyncTx::pass_by_uid"))
+        self.query_opt(
+            "select id, bin_id, task_id, user_id from count_pass where uid = $1",
+            &[&uid],
+        )?
+        .map(|r| {
+            Ok(StoredPass {
+                id: r.try_get(0)?,
+                bin: r.try_get(1)?,
+                task: r.try_get(2)?,
+                user: r.try_get(3)?,
+            })
+        })
+        .transpose()
     }
 
     fn item_id(&self, site: SiteId, sku: &str) -> Result<Option<i64>, StoreError> {
-        Err(not_yet("SyncTx::item_id"))
+        self.query_opt(
+            "select id from item where site_id = $1 and sku = $2",
+            &[&site.0, &sku],
+        )?
+        .map(|r| Ok(r.try_get(0)?))
+        .transpose()
     }
 
     fn pack(&self, site: SiteId, gtin: &str) -> Result<Option<(i64, i64)>, StoreError> {
-        Err(not_yet("SyncTx::pack"))
+        self.query_opt(
+            "select item_id, units from pack where site_id = $1 and gtin = $2",
+            &[&site.0, &gtin],
+        )?
+        .map(|r| Ok((r.try_get(0)?, r.try_get(1)?)))
+        .transpose()
     }
 
     fn bin_holds(&self, bin: i64, item: i64) -> Result<bool, StoreError> {
-        Err(not_yet("SyncTx::bin_holds"))
+        Ok(self
+            .query_one(
+                "select exists (select 1 from balance
+                                where bin_id = $1 and item_id = $2 and qty <> 0)",
+                &[&bin, &item],
+            )?
+            .try_get(0)?)
     }
 
     fn extend_pass(
@@ -136,23 +235,84 @@ impl crate::sync::apply::SyncTx for PgTx<'_> {
         uncertainty_ms: i64,
         reassigned: bool,
     ) -> Result<(), StoreError> {
-        Err(not_yet("SyncTx::extend_pass"))
+        self.execute(
+            "update count_pass set first_at = least(first_at, $2),
+                 uncertainty_ms = greatest(uncertainty_ms, $3),
+                 reassigned = reassigned or $4
+             where id = $1",
+            &[&pass, &at.0, &uncertainty_ms, &reassigned],
+        )?;
+        Ok(())
     }
 
     fn insert_pass(&self, p: &NewPass<'_>) -> Result<i64, StoreError> {
-        Err(not_yet("SyncTx::insert_pass"))
+        let b = p.batch;
+        Ok(self
+            .query_one(
+                "insert into count_pass (uid, site_id, bin_id, task_id, user_id, device_id,
+                     first_at, uncertainty_ms, reassigned, received_at, clock_offset_ms,
+                     clock_uncertainty_ms, clock_sampled_at)
+                 values ($1, $2, $3, $4, $5, $6, $7, $8, $9, $10, $11, $12, $13)
+                 returning id",
+                &[
+                    &p.uid,
+                    &p.site.0,
+                    &p.bin,
+                    &p.task,
+                    &b.sender.user.0,
+                    &b.sender.device.map(|d| d.0),
+                    &p.at.0,
+                    &p.uncertainty_ms,
+                    &p.reassigned,
+                    &b.received_at.0,
+                    &b.clock.offset_ms,
+                    &b.clock.uncertainty_ms,
+                    &b.received_at.0,
+                ],
+            )?
+            .try_get(0)?)
     }
 
     fn start_task(&self, task: i64) -> Result<(), StoreError> {
-        Err(not_yet("SyncTx::start_task"))
+        self.execute(
+            "update count_task set status = 'started' where id = $1 and status = 'open'",
+            &[&task],
+        )?;
+        Ok(())
     }
 
     fn insert_line(&self, l: &NewLine<'_>) -> Result<(), StoreError> {
-        Err(not_yet("SyncTx::insert_line"))
+        self.execute(
+            "insert into count_line (uid, pass_id, item_id, lot, expiry, qty, packs, gtin,
+                 entry, at, device_at, uncertainty_ms, found)
+             values ($1, $2, $3, $4, $5, $6, $7, $8, $9, $10, $11, $12, $13)",
+            &[
+                &l.uid,
+                &l.pass,
+                &l.item,
+                &l.line.lot,
+                &l.line.expiry.map(|d| d.format("%Y-%m-%d").to_string()),
+                &l.line.qty,
+                &l.line.packs,
+                &l.line.gtin,
+                &l.line.entry.as_str(),
+                &l.at.0,
+                &l.device_at,
+                &l.uncertainty_ms,
+                &l.found,
+            ],
+        )?;
+        Ok(())
     }
 
     fn line_pass(&self, line: &str) -> Result<Option<String>, StoreError> {
-        Err(not_yet("SyncTx::line_pass"))
+        self.query_opt(
+            "select p.uid from count_line l join count_pass p on p.id = l.pass_id
+             where l.uid = $1",
+            &[&line],
+        )?
+        .map(|r| Ok(r.try_get(0)?))
+        .transpose()
     }
 
     fn undo_line(
@@ -162,40 +322,129 @@ impl crate::sync::apply::SyncTx for PgTx<'_> {
         pass: &str,
         at: Timestamp,
     ) -> Result<bool, StoreError> {
-        Err(not_yet("SyncTx::undo_line"))
+        let undone = self.execute(
+            "insert into count_line_undo (line_uid, undo_uid, pass_uid, at)
+             values ($1, $2, $3, $4) on conflict (line_uid) do nothing",
+            &[&line, &undo, &pass, &at.0],
+        )?;
+        Ok(undone > 0)
     }
 
     fn mark_empty(&self, pass: i64) -> Result<(), StoreError> {
-        Err(not_yet("SyncTx::mark_empty"))
+        self.execute("update count_pass set empty = true where id = $1", &[&pass])?;
+        Ok(())
     }
 
     fn mark_done(&self, pass: i64, at: Timestamp) -> Result<(), StoreError> {
-        Err(not_yet("SyncTx::mark_done"))
+        self.execute(
+            "update count_pass set done_at = greatest(coalesce(done_at, $2), $2) where id = $1",
+            &[&pass, &at.0],
+        )?;
+        Ok(())
     }
 
     fn finish_task(&self, site: SiteId, task: i64, at: Timestamp) -> Result<(), StoreError> {
-        Err(not_yet("SyncTx::finish_task"))
+        super::tasks::finish_task(self, site, task, at)
     }
 
     fn insert_event(&self, e: &NewEvent<'_>) -> Result<(), StoreError> {
-        Err(not_yet("SyncTx::insert_event"))
+        let b = e.batch;
+        self.execute(
+            "insert into sync_event (uid, site_id, user_id, device_id, pass_uid, kind, body,
+                 device_at, at, uncertainty_ms, flags, received_at, made_by)
+             values ($1, $2, $3, $4, $5, $6, $7, $8, $9, $10, $11, $12, $13)",
+            &[
+                &e.event.id.to_string(),
+                &b.site.0,
+                &b.sender.user.0,
+                &b.sender.device.map(|d| d.0),
+                &e.event.pass.to_string(),
+                &e.event.kind.as_str(),
+                &e.event.canonical,
+                &e.event.device_at,
+                &e.at.0,
+                &e.uncertainty_ms,
+                &flag_text(e.flags),
+                &b.received_at.0,
+                &e.event.user.as_deref().unwrap_or(&b.sender.user_name),
+            ],
+        )?;
+        Ok(())
     }
 }
 
-/// See [`Store::catalog`].
-pub async fn catalog(
-    store: &PgStore,
-    site: SiteId,
-) -> Result<Vec<crate::planning::phone::ItemBrief>, StoreError> {
-    Err(not_yet("Store::catalog"))
+/// See [`crate::store::Store::catalog`]: every item of a site with its packs, no quantities.
+pub async fn catalog(store: &PgStore, site: SiteId) -> Result<Vec<ItemBrief>, StoreError> {
+    let c = store.client().await?;
+    let mut packs: std::collections::HashMap<i64, Vec<PackBrief>> = Default::default();
+    for r in c
+        .query(
+            "select item_id, gtin, level, units from pack where site_id = $1
+             order by item_id, units",
+            &[&site.0],
+        )
+        .await?
+    {
+        packs.entry(r.try_get(0)?).or_default().push(PackBrief {
+            gtin: r.try_get(1)?,
+            level: r.try_get(2)?,
+            units: narrow(&r, 3)?,
+        });
+    }
+    c.query(
+        "select id, sku, description, base_unit, lot_tracked from item where site_id = $1
+         order by sku",
+        &[&site.0],
+    )
+    .await?
+    .iter()
+    .map(|r| {
+        let id: i64 = r.try_get(0)?;
+        Ok(ItemBrief {
+            sku: r.try_get(1)?,
+            description: r.try_get(2)?,
+            base_unit: r.try_get(3)?,
+            lot_tracked: r.try_get(4)?,
+            packs: packs.remove(&id).unwrap_or_default(),
+        })
+    })
+    .collect()
 }
 
-/// See [`Store::count_lines`].
+/// See [`crate::store::Store::count_lines`]: a site's count lines in arrival order.
 pub async fn count_lines(
     store: &PgStore,
     site: SiteId,
     after: i64,
     limit: usize,
-) -> Result<Vec<crate::sync::results::StoredLine>, StoreError> {
-    Err(not_yet("Store::count_lines"))
+) -> Result<Vec<StoredLine>, StoreError> {
+    store
+        .client()
+        .await?
+        .query(
+            "select l.id, l.uid, p.uid, b.code, i.sku, l.lot, l.qty, l.at, l.found,
+                    exists (select 1 from count_line_undo u where u.line_uid = l.uid)
+             from count_line l join count_pass p on p.id = l.pass_id
+             join bin b on b.id = p.bin_id join item i on i.id = l.item_id
+             where p.site_id = $1 and l.id > $2
+             order by l.id limit $3",
+            &[&site.0, &after, &(limit as i64)],
+        )
+        .await?
+        .iter()
+        .map(|r| {
+            Ok(StoredLine {
+                seq: r.try_get(0)?,
+                uid: r.try_get(1)?,
+                pass: r.try_get(2)?,
+                bin: r.try_get(3)?,
+                sku: r.try_get(4)?,
+                lot: r.try_get(5)?,
+                qty: r.try_get(6)?,
+                at: Timestamp(r.try_get(7)?),
+                found: r.try_get(8)?,
+                undone: r.try_get(9)?,
+            })
+        })
+        .collect()
 }

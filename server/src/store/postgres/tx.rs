@@ -2,22 +2,26 @@
 //! transaction, the runtime its statements are awaited on, and the ledger's snapshot
 //! spacing. Each trait method is one statement (or one row-building step).
 
-use deadpool_postgres::Transaction;
+use deadpool_postgres::{GenericClient, Transaction};
 use tokio::runtime::Handle;
 use tokio_postgres::Row;
 use tokio_postgres::types::ToSql;
 
-/// A write transaction for the workflows (see the module's words).
-pub struct PgTx<'a> {
-    tx: &'a Transaction<'a>,
+/// A write transaction for the workflows (see the module's words); over a pooled client
+/// instead of a transaction ([`PgRead`]) the same helpers serve the synchronous reads.
+pub struct PgTx<'a, C: GenericClient = Transaction<'a>> {
+    tx: &'a C,
     rt: &'a Handle,
     /// Movements of one key between balance snapshots (the ledger's writes read it).
     #[allow(dead_code)]
     pub(crate) snapshot_every: i64,
 }
 
-impl<'a> PgTx<'a> {
-    pub fn new(tx: &'a Transaction<'a>, rt: &'a Handle, snapshot_every: i64) -> Self {
+/// A pooled connection outside any transaction, for reads written as synchronous code.
+pub type PgRead<'a> = PgTx<'a, deadpool_postgres::Client>;
+
+impl<'a, C: GenericClient> PgTx<'a, C> {
+    pub fn new(tx: &'a C, rt: &'a Handle, snapshot_every: i64) -> Self {
         Self {
             tx,
             rt,
@@ -59,6 +63,11 @@ impl<'a> PgTx<'a> {
             let st = self.tx.prepare_cached(sql).await?;
             self.tx.query_opt(&st, params).await
         })
+    }
+
+    /// Runs statements without parameters (savepoints).
+    pub fn batch(&self, sql: &str) -> Result<(), tokio_postgres::Error> {
+        self.rt.block_on(self.tx.batch_execute(sql))
     }
 
     /// Runs a query that returns exactly one row.
