@@ -105,6 +105,11 @@ pub struct Metrics {
     pub db_write_wait_seconds: Histogram,
     pub db_write_group_size: Histogram,
     pub db_read_seconds: Histogram,
+    /// PostgreSQL: time a write waits for its sites' advisory locks.
+    pub db_lock_wait_seconds: Histogram,
+    /// PostgreSQL: the connection pool (size, idle, callers waiting); -1 until a PostgreSQL
+    /// store reports it, and not shown then.
+    pub db_pool: [std::sync::atomic::AtomicI64; 3],
 }
 
 static METRICS: std::sync::LazyLock<Metrics> = std::sync::LazyLock::new(|| Metrics {
@@ -120,6 +125,8 @@ static METRICS: std::sync::LazyLock<Metrics> = std::sync::LazyLock::new(|| Metri
     db_write_wait_seconds: Histogram::new(&LATENCY_BUCKETS_S),
     db_write_group_size: Histogram::new(&GROUP_BUCKETS),
     db_read_seconds: Histogram::new(&LATENCY_BUCKETS_S),
+    db_lock_wait_seconds: Histogram::new(&LATENCY_BUCKETS_S),
+    db_pool: std::array::from_fn(|_| std::sync::atomic::AtomicI64::new(-1)),
 });
 
 /// Returns the process's figures.
@@ -239,6 +246,34 @@ impl Metrics {
             "Time one read takes on a reader connection.",
             &self.db_read_seconds,
         );
+        if self.db_pool[0].load(Relaxed) >= 0 {
+            histogram(
+                &mut out,
+                "cairn_db_lock_wait_seconds",
+                "Time a write waits for its site's lock (writes of one site take turns across servers).",
+                &self.db_lock_wait_seconds,
+            );
+            for (i, (name, help)) in [
+                (
+                    "cairn_db_pool_connections",
+                    "Connections the pool holds open.",
+                ),
+                ("cairn_db_pool_idle", "Connections in the pool not in use."),
+                (
+                    "cairn_db_pool_waiting",
+                    "Requests waiting for a connection.",
+                ),
+            ]
+            .into_iter()
+            .enumerate()
+            {
+                let _ = writeln!(
+                    out,
+                    "# HELP {name} {help}\n# TYPE {name} gauge\n{name} {}",
+                    self.db_pool[i].load(Relaxed)
+                );
+            }
+        }
         out
     }
 }

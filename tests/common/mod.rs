@@ -152,7 +152,7 @@ pub struct TestApp {
     _dir: tempfile::TempDir,
     shutdown: Option<tokio::sync::oneshot::Sender<()>>,
     /// The PostgreSQL database made for this test, dropped with it.
-    pg: Option<PgTestDb>,
+    pub pg: Option<PgTestDb>,
 }
 
 /// The switch that runs the suites on PostgreSQL: a URL of a server and a database to

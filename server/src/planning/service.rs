@@ -328,9 +328,22 @@ pub const NIGHTLY_HOUR_LOCAL: u32 = 2;
 /// changed), in seconds.
 const NIGHTLY_RECHECK_S: u64 = 3_600;
 
+/// Names this server in job claims: its host name and process id.
+fn server_name() -> String {
+    let host = std::fs::read_to_string("/proc/sys/kernel/hostname")
+        .map(|h| h.trim().to_string())
+        .unwrap_or_default();
+    format!(
+        "{}:{}",
+        if host.is_empty() { "cairn" } else { &host },
+        std::process::id()
+    )
+}
+
 /// Re-classifies every site once per local day at [`NIGHTLY_HOUR_LOCAL`] in its own zone
 /// (`time::day::Daily`: once on a night whose clocks skip or repeat that hour too),
 /// logging failures; runs until the process ends.
+/// Of several servers on one database, the one that claims a site's day runs it.
 pub async fn nightly_classification(store: Arc<dyn Store>) {
     use crate::time::day::Daily;
     let mut jobs: std::collections::HashMap<String, Daily> = Default::default();
@@ -351,6 +364,20 @@ pub async fn nightly_classification(store: Arc<dyn Store>) {
                 .or_insert_with(|| Daily::starting(site.time_zone, NIGHTLY_HOUR_LOCAL, now));
             if let Some(day) = job.due(now) {
                 job.done = Some(day);
+                // Several servers may share the database: the first to claim the day runs it.
+                match store.claim_job(site.id, "abc", day, &server_name()).await {
+                    Ok(true) => {}
+                    Ok(false) => {
+                        tracing::info!(site = %site.code, %day, "nightly ABC classification already run by another server");
+                        wake = wake.min(job.next_at(Timestamp::now()));
+                        continue;
+                    }
+                    Err(e) => {
+                        tracing::error!(site = %site.code, %day, error = ?e, "nightly ABC classification cannot be claimed");
+                        wake = wake.min(job.next_at(Timestamp::now()));
+                        continue;
+                    }
+                }
                 match classify(store.as_ref(), site, day).await {
                     Ok(s) => {
                         tracing::info!(site = %site.code, %day, changed = s.changed, "nightly ABC classification")

@@ -521,6 +521,16 @@ pub trait Store: AccountStore + AccuracyStore + ReviewStore + Send + Sync + 'sta
         site: SiteId,
         pass: crate::netting::results::PassRef,
     ) -> Result<Option<crate::netting::results::PassReport>, StoreError>;
+    /// Claims scheduled job `job` of `site` for local day `day` on behalf of `by` (a server):
+    /// true for the first claim, false when any server claimed it already, so a job runs
+    /// once per site and day however many servers share the database.
+    async fn claim_job(
+        &self,
+        site: SiteId,
+        job: &str,
+        day: NaiveDate,
+        by: &str,
+    ) -> Result<bool, StoreError>;
     /// Runs `work` in one write transaction: committed when it returns `Ok`, rolled back
     /// otherwise. Workflows call it through [`write`].
     async fn write_work(&self, scope: WriteScope, work: Work) -> Result<Answer, StoreError>;

@@ -12,11 +12,18 @@ struct Migration {
     sql: &'static str,
 }
 
-const MIGRATIONS: &[Migration] = &[Migration {
-    version: 9,
-    name: "schema",
-    sql: include_str!("../../../../migrations/postgres/0009_schema.sql"),
-}];
+const MIGRATIONS: &[Migration] = &[
+    Migration {
+        version: 9,
+        name: "schema",
+        sql: include_str!("../../../../migrations/postgres/0009_schema.sql"),
+    },
+    Migration {
+        version: 10,
+        name: "job_claim",
+        sql: include_str!("../../../../migrations/postgres/0010_job_claim.sql"),
+    },
+];
 
 /// The newest version this build knows.
 pub fn latest_version() -> i64 {

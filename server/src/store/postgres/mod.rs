@@ -104,7 +104,19 @@ impl PgStore {
 
     /// Takes a pooled connection for a read.
     pub async fn client(&self) -> Result<deadpool_postgres::Object, StoreError> {
-        Ok(self.pool.get().await?)
+        let c = self.pool.get().await?;
+        self.report_pool();
+        Ok(c)
+    }
+
+    /// Shows the pool's figures on `/metrics`.
+    fn report_pool(&self) {
+        use std::sync::atomic::Ordering::Relaxed;
+        let s = self.pool.status();
+        let m = &crate::telemetry::metrics().db_pool;
+        m[0].store(s.size as i64, Relaxed);
+        m[1].store(s.available as i64, Relaxed);
+        m[2].store(s.waiting as i64, Relaxed);
     }
 
     /// Runs `read` on a pooled connection as synchronous code (on a blocking thread, each
@@ -115,7 +127,7 @@ impl PgStore {
         R: Send + 'static,
         F: FnOnce(&PgRead<'_>) -> Result<R, StoreError> + Send + 'static,
     {
-        let client = self.pool.get().await?;
+        let client = self.client().await?;
         let rt = tokio::runtime::Handle::current();
         let every = self.options.snapshot_every;
         tokio::task::spawn_blocking(move || read(&PgTx::new(&client, &rt, every)))
@@ -132,14 +144,19 @@ impl PgStore {
         R: Send + 'static,
         F: FnOnce(&PgTx<'_>) -> Result<R, StoreError> + Send + 'static,
     {
-        let mut client = self.pool.get().await?;
+        let mut client = self.client().await?;
         let rt = tokio::runtime::Handle::current();
         let every = self.options.snapshot_every;
         tokio::task::spawn_blocking(move || {
+            let m = crate::telemetry::metrics();
             let tx = rt.block_on(client.transaction())?;
+            let asked = std::time::Instant::now();
             rt.block_on(lock_scope(&tx, scope))?;
+            m.db_lock_wait_seconds.observe_duration(asked.elapsed());
+            let started = std::time::Instant::now();
             let out = work(&PgTx::new(&tx, &rt, every))?;
             rt.block_on(tx.commit())?;
+            m.db_write_seconds.observe_duration(started.elapsed());
             Ok(out)
         })
         .await

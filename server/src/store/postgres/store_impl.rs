@@ -65,6 +65,24 @@ impl Store for PgStore {
         }
     }
 
+    async fn claim_job(
+        &self,
+        site: SiteId,
+        job: &str,
+        day: NaiveDate,
+        by: &str,
+    ) -> Result<bool, StoreError> {
+        let c = self.client().await?;
+        let n = c
+            .execute(
+                "insert into job_claim (site_id, job, day, claimed_by, claimed_at)
+                 values ($1, $2, $3, $4, $5) on conflict do nothing",
+                &[&site.0, &job, &day.to_string(), &by, &Timestamp::now().0],
+            )
+            .await?;
+        Ok(n == 1)
+    }
+
     async fn write_work(&self, scope: WriteScope, work: Work) -> Result<Answer, StoreError> {
         self.write_tx(scope, move |tx| work(tx)).await
     }

@@ -59,6 +59,11 @@ pub const MIGRATIONS: &[Migration] = &[
         name: "0009_recount_per_bin.sql",
         sql: include_str!("../../../../migrations/0009_recount_per_bin.sql"),
     },
+    Migration {
+        version: 10,
+        name: "0010_job_claim.sql",
+        sql: include_str!("../../../../migrations/0010_job_claim.sql"),
+    },
 ];
 
 /// Returns the newest schema version this binary knows.

@@ -641,6 +641,24 @@ impl Store for SqliteStore {
             .await
     }
 
+    async fn claim_job(
+        &self,
+        site: SiteId,
+        job: &str,
+        day: NaiveDate,
+        by: &str,
+    ) -> Result<bool, StoreError> {
+        let (job, by) = (job.to_string(), by.to_string());
+        self.write_tx(move |tx| {
+            Ok(tx.execute(
+                "insert into job_claim (site_id, job, day, claimed_by, claimed_at)
+                 values (?1, ?2, ?3, ?4, ?5) on conflict do nothing",
+                rusqlite::params![site.0, job, day.to_string(), by, Timestamp::now().0],
+            )? == 1)
+        })
+        .await
+    }
+
     async fn write_work(
         &self,
         _: super::WriteScope,

@@ -249,3 +249,28 @@ fn a_reversal_must_mirror_the_original_and_happen_once() {
     );
     assert_eq!(current(&conn, &key(&conn, 0, 0)), 0);
 }
+
+#[tokio::test]
+async fn a_scheduled_job_is_claimed_once_per_site_and_day() {
+    let dir = tempfile::tempdir().unwrap();
+    use crate::store::Store;
+    let store = super::SqliteStore::open(&dir.path().join("t.db"), Default::default()).unwrap();
+    let site = store
+        .create_site(NewSite {
+            code: SiteCode::parse("J").unwrap(),
+            name: "J".into(),
+            time_zone: crate::time::day::SiteZone::parse("UTC").unwrap(),
+        })
+        .await
+        .unwrap();
+    let day = chrono::NaiveDate::from_ymd_opt(2026, 12, 4).unwrap();
+    assert!(store.claim_job(site.id, "abc", day, "a:1").await.unwrap());
+    assert!(!store.claim_job(site.id, "abc", day, "b:2").await.unwrap());
+    assert!(
+        store
+            .claim_job(site.id, "abc", day.succ_opt().unwrap(), "b:2")
+            .await
+            .unwrap()
+    );
+    assert!(store.claim_job(site.id, "other", day, "b:2").await.unwrap());
+}

@@ -1,0 +1,179 @@
+//! What only the PostgreSQL store has: its migrations recorded and a newer database
+//! refused, writes of one site taking turns on the site's advisory lock while another
+//! site writes on, a nightly job claimed once across servers, and the pool on `/metrics`.
+//! Runs when `CAIRN_TEST_STORE` names a PostgreSQL server (see tests/common); says it
+//! skipped otherwise.
+
+mod common;
+
+use cairn::master::{BinRecord, NewBin};
+use cairn::store::postgres::LOCK_SPACE;
+use common::{TestApp, spawn_app};
+use std::time::Duration;
+
+fn skipped() -> bool {
+    if common::on_postgres() {
+        return false;
+    }
+    eprintln!(
+        "skipped: set {}=postgres://… to run the PostgreSQL store's own tests",
+        common::STORE_SWITCH
+    );
+    true
+}
+
+/// A connection of the test's own to the app's database.
+async fn connect(app: &TestApp) -> tokio_postgres::Client {
+    let url = &app.pg.as_ref().expect("the app runs on PostgreSQL").url;
+    let (client, conn) = tokio_postgres::connect(url, tokio_postgres::NoTls)
+        .await
+        .expect("the test database answers");
+    tokio::spawn(conn);
+    client
+}
+
+fn bin(aisle: u16) -> NewBin {
+    BinRecord {
+        code: None,
+        zone: "A".into(),
+        aisle,
+        bay: 1,
+        level: 1,
+        side: Some("L".into()),
+        walk_seq: None,
+    }
+    .validate()
+    .expect("a valid bin")
+}
+
+#[tokio::test]
+async fn migrations_are_recorded_and_a_newer_database_is_refused() {
+    if skipped() {
+        return;
+    }
+    let app = spawn_app().await;
+    let db = connect(&app).await;
+    let versions: Vec<i64> = db
+        .query("select version from schema_migration order by version", &[])
+        .await
+        .unwrap()
+        .iter()
+        .map(|r| r.get(0))
+        .collect();
+    assert_eq!(versions, [9, 10]);
+    db.execute(
+        "insert into schema_migration (version, name, checksum, applied_at) values (99, 'future', 0, 0)",
+        &[],
+    )
+    .await
+    .unwrap();
+    let url = app.pg.as_ref().unwrap().url.clone();
+    let e = cairn::store::open(
+        &cairn::store::DbLocation::parse(&url).unwrap(),
+        Default::default(),
+    )
+    .err()
+    .expect("a newer schema is refused");
+    assert!(format!("{e:#}").contains("newer than this Cairn"), "{e:#}");
+}
+
+#[tokio::test(flavor = "multi_thread", worker_threads = 2)]
+async fn a_sites_writes_wait_for_its_lock_while_another_site_writes() {
+    if skipped() {
+        return;
+    }
+    let app = spawn_app().await;
+    let t = app.create_site("T").await;
+    let u = app.create_site("U").await;
+    // Another server holds site T's lock (a session lock here, so it outlives statements).
+    let other = connect(&app).await;
+    let key = i32::try_from(t.id.0).unwrap();
+    other
+        .execute("select pg_advisory_lock($1, $2)", &[&LOCK_SPACE, &key])
+        .await
+        .unwrap();
+    let store = app.state.store.clone();
+    let site = t.id;
+    let waiting = tokio::spawn(async move {
+        store
+            .put_bins(site, vec![bin(1)], Default::default(), None)
+            .await
+    });
+    tokio::time::sleep(Duration::from_millis(500)).await;
+    assert!(!waiting.is_finished(), "T's write went ahead of T's lock");
+    let written = tokio::time::timeout(
+        Duration::from_secs(10),
+        app.state
+            .store
+            .put_bins(u.id, vec![bin(2)], Default::default(), None),
+    )
+    .await
+    .expect("U writes while T's lock is held")
+    .unwrap();
+    assert_eq!(written, 1);
+    other
+        .execute("select pg_advisory_unlock($1, $2)", &[&LOCK_SPACE, &key])
+        .await
+        .unwrap();
+    let written = tokio::time::timeout(Duration::from_secs(10), waiting)
+        .await
+        .expect("T's write goes on once the lock is free")
+        .unwrap()
+        .unwrap();
+    assert_eq!(written, 1);
+}
+
+#[tokio::test]
+async fn a_nightly_job_is_claimed_once_across_servers() {
+    if skipped() {
+        return;
+    }
+    let app = spawn_app().await;
+    let t = app.create_site("T").await;
+    // A second server on the same database.
+    let url = app.pg.as_ref().unwrap().url.clone();
+    let second = cairn::store::open(
+        &cairn::store::DbLocation::parse(&url).unwrap(),
+        Default::default(),
+    )
+    .unwrap();
+    let day = chrono::NaiveDate::from_ymd_opt(2026, 12, 4).unwrap();
+    let (a, b) = tokio::join!(
+        app.state.store.claim_job(t.id, "abc", day, "one:1"),
+        second.claim_job(t.id, "abc", day, "two:2")
+    );
+    let (a, b) = (a.unwrap(), b.unwrap());
+    assert!(a ^ b, "exactly one server claims the night: {a} {b}");
+    assert!(
+        second
+            .claim_job(t.id, "abc", day.succ_opt().unwrap(), "two:2")
+            .await
+            .unwrap()
+    );
+}
+
+#[tokio::test]
+async fn metrics_show_the_pool_and_the_lock_wait() {
+    if skipped() {
+        return;
+    }
+    let app = spawn_app().await;
+    app.create_site("T").await;
+    let text = app
+        .client
+        .get(format!("{}/metrics", app.base))
+        .send()
+        .await
+        .unwrap()
+        .text()
+        .await
+        .unwrap();
+    for name in [
+        "cairn_db_pool_connections ",
+        "cairn_db_pool_idle ",
+        "cairn_db_pool_waiting ",
+        "cairn_db_lock_wait_seconds_count ",
+    ] {
+        assert!(text.contains(name), "{name} missing from /metrics:\n{text}");
+    }
+}
