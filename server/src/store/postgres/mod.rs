@@ -18,6 +18,9 @@ pub mod store_impl;
 pub mod sync;
 pub mod tx;
 
+#[cfg(test)]
+mod tests;
+
 use super::{StoreError, StoreOptions, WriteScope};
 use deadpool_postgres::{Manager, ManagerConfig, Pool, RecyclingMethod};
 use tokio_postgres::types::ToSql;

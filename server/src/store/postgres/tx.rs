@@ -12,7 +12,6 @@ pub struct PgTx<'a> {
     tx: &'a Transaction<'a>,
     rt: &'a Handle,
     /// Movements of one key between balance snapshots (the ledger's writes read it).
-    #[allow(dead_code)]
     pub(crate) snapshot_every: i64,
 }
 
