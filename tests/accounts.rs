@@ -35,8 +35,7 @@ async fn user_exists(app: &TestApp, name: &str) -> bool {
 }
 
 fn count(app: &TestApp, sql: &str) -> i64 {
-    let conn = common::sqlite_file(&app.db);
-    conn.query_row(sql, [], |r| r.get(0)).unwrap()
+    app.sql_i64(sql)
 }
 
 #[tokio::test]
@@ -404,16 +403,11 @@ async fn the_audit_trail_records_who_did_what_and_refuses_update_and_delete() {
         .await;
     assert!(page.text.contains("api_batch"));
 
-    let conn = common::sqlite_file(&app.db);
-    let update = conn
-        .execute("update audit_event set actor = 'someone else'", [])
-        .unwrap_err()
-        .to_string();
+    let update = app
+        .sql_exec("update audit_event set actor = 'someone else'")
+        .unwrap_err();
     assert!(update.contains("append-only"), "{update}");
-    let delete = conn
-        .execute("delete from audit_event", [])
-        .unwrap_err()
-        .to_string();
+    let delete = app.sql_exec("delete from audit_event").unwrap_err();
     assert!(delete.contains("append-only"), "{delete}");
     assert!(count(&app, "select count(*) from audit_event") >= 3);
 }
@@ -422,7 +416,7 @@ async fn the_audit_trail_records_who_did_what_and_refuses_update_and_delete() {
 async fn the_cli_makes_the_first_admin_of_a_new_site_who_can_then_sign_in() {
     let app = spawn_app().await;
     app.create_site("N").await;
-    let db = app.db.display().to_string();
+    let db = app.db_arg();
     let out = cairn_with_input(
         &[
             "user",

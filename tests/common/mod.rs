@@ -772,6 +772,81 @@ pub fn cairn_with_input(args: &[&str], input: &str) -> std::process::Output {
     child.wait_with_output().expect("the child exits")
 }
 
+impl TestApp {
+    /// Returns the test's `--db` value for a CLI run: the PostgreSQL URL when the suites
+    /// run there, else the SQLite file's path.
+    pub fn db_arg(&self) -> String {
+        match &self.pg {
+            Some(pg) => pg.url.clone(),
+            None => self.db.display().to_string(),
+        }
+    }
+
+    /// Reads one integer with a statement both stores understand (a count, a sum cast to
+    /// an integer), from the test's database beside the API.
+    pub fn sql_i64(&self, sql: &str) -> i64 {
+        match &self.pg {
+            Some(pg) => on_pg(&pg.url, sql, |c, sql| async move {
+                c.query_one(sql.as_str(), &[])
+                    .await
+                    .map(|r| r.get::<_, i64>(0))
+            })
+            .unwrap_or_else(|e| panic!("{sql}: {e}")),
+            None => sqlite_file(&self.db)
+                .query_row(sql, [], |r| r.get(0))
+                .unwrap_or_else(|e| panic!("{sql}: {e}")),
+        }
+    }
+
+    /// Runs one statement on the test's database beside the API; returns the rows it
+    /// changed, or the database's error text.
+    pub fn sql_exec(&self, sql: &str) -> Result<u64, String> {
+        match &self.pg {
+            Some(pg) => on_pg(&pg.url, sql, |c, sql| async move {
+                c.execute(sql.as_str(), &[]).await
+            }),
+            None => sqlite_file(&self.db)
+                .execute(sql, [])
+                .map(|n| n as u64)
+                .map_err(|e| e.to_string()),
+        }
+    }
+}
+
+/// Runs `f` with a connection to `url`, on a thread of its own (callers are inside a
+/// runtime); an error comes back as the server's own words.
+fn on_pg<T: Send + 'static, F, Fut>(url: &str, sql: &str, f: F) -> Result<T, String>
+where
+    F: FnOnce(std::sync::Arc<tokio_postgres::Client>, String) -> Fut + Send + 'static,
+    Fut: std::future::Future<Output = Result<T, tokio_postgres::Error>>,
+{
+    let (url, sql) = (url.to_string(), sql.to_string());
+    std::thread::spawn(move || {
+        let rt = tokio::runtime::Builder::new_current_thread()
+            .enable_all()
+            .build()
+            .expect("a runtime for the test's statement");
+        rt.block_on(async {
+            let (client, conn) = tokio_postgres::connect(&url, tokio_postgres::NoTls)
+                .await
+                .expect("the test's database answers");
+            let driver = tokio::spawn(conn);
+            let client = std::sync::Arc::new(client);
+            let out = f(client.clone(), sql)
+                .await
+                .map_err(|e| match e.as_db_error() {
+                    Some(db) => db.message().to_string(),
+                    None => e.to_string(),
+                });
+            drop(client);
+            let _ = driver.await;
+            out
+        })
+    })
+    .join()
+    .expect("the test's statement runs")
+}
+
 /// Opens the test's SQLite file itself. **SQLite-specific**: every test that reads or writes
 /// the database beside the API (append-only triggers, integrity checks, rows a check needs
 /// and no route shows, hand-built history) comes through here, so a run on another store

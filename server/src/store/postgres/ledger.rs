@@ -1,75 +1,78 @@
-//! The ledger over PostgreSQL: `LedgerTx` (one checked movement written with its balance and snapshots) and the balance and history reads.
-#![allow(unused_imports, unused_variables)]
+//! The ledger over PostgreSQL: `LedgerTx` (one checked movement written with its lot, its
+//! balance and snapshots, in the caller's transaction) and the balance and history reads,
+//! with the same cursors as the SQLite store.
 
-use super::PgStore;
-use super::tx::{PgTx, not_yet};
-use crate::accounts::audit::AuditEvent;
-use crate::accounts::store::AccountStore;
-use crate::accuracy::store::AccuracyStore;
-use crate::batch::RowError;
-use crate::ledger::BalanceRow;
-use crate::ledger::Movement;
-use crate::ledger::MovementKind;
-use crate::ledger::NewMovement;
-use crate::ledger::RecordOutcome;
-use crate::ledger::append::Inserted;
-use crate::ledger::append::ItemRef;
-use crate::ledger::append::LedgerKey;
-use crate::ledger::append::LedgerTx;
-use crate::ledger::append::StoredMovement;
-use crate::ledger::append::WatermarkTx;
-use crate::master::Bin;
-use crate::master::NewBin;
-use crate::master::NewItem;
-use crate::master::NewPack;
-use crate::master::NewSite;
-use crate::master::Site;
-use crate::master::SiteCode;
-use crate::master::SiteCounts;
+use super::tx::PgTx;
+use super::{PgStore, row_one, row_opt, rows};
+use crate::ledger::{
+    BalanceRow, Inserted, ItemRef, LedgerKey, LedgerTx, Movement, MovementKind, NewMovement,
+    StoredMovement,
+};
 use crate::master::SiteId;
-use crate::master::codes::BinCode;
-use crate::master::codes::MovementUid;
-use crate::master::codes::Sku;
-use crate::master::codes::ZoneCode;
-use crate::netting::pass::NettingTx;
-use crate::netting::pass::WrittenMove;
-use crate::planning::AbcSummary;
-use crate::planning::ClassChange;
-use crate::planning::ListView;
-use crate::planning::NewCountList;
-use crate::planning::Settings;
-use crate::planning::abc::AbcRule;
-use crate::planning::abc::Class;
-use crate::planning::abc::Usage;
-use crate::planning::calendar::Calendar;
-use crate::planning::plan::Capacity;
-use crate::planning::plan::Fill;
-use crate::planning::plan::PlanInput;
-use crate::planning::short_pick::NewShortPick;
-use crate::planning::short_pick::ShortPickOutcome;
-use crate::review::store::ReviewStore;
-use crate::store::error::Progress;
-use crate::store::error::StoreError;
-use crate::store::{BalancePage, BalanceQuery, HistoryPage, HistoryQuery, ShelfRow, Store};
+use crate::master::codes::{BinCode, MovementUid, Sku};
+use crate::store::{
+    BalancePage, BalanceQuery, HistoryPage, HistoryQuery, HistorySubject, MAX_PAGE_ROWS, StoreError,
+};
 use crate::time::Timestamp;
-use chrono::NaiveDate;
-use std::collections::HashMap;
+use deadpool_postgres::Client;
+use tokio_postgres::types::ToSql;
 
-impl crate::ledger::append::LedgerTx for PgTx<'_> {
+const WATERMARK: &str = "select coalesce(max(id), 0) from movement";
+
+impl LedgerTx for PgTx<'_> {
     fn bin_id(&self, site: SiteId, bin: &BinCode) -> Result<Option<i64>, StoreError> {
-        Err(not_yet("LedgerTx::bin_id"))
+        Ok(self
+            .query_opt(
+                "select id from bin where site_id = $1 and code = $2",
+                &[&site.0, &bin.as_str()],
+            )?
+            .map(|r| r.get(0)))
     }
 
     fn item_ref(&self, site: SiteId, sku: &Sku) -> Result<Option<ItemRef>, StoreError> {
-        Err(not_yet("LedgerTx::item_ref"))
+        Ok(self
+            .query_opt(
+                "select id, lot_tracked from item where site_id = $1 and sku = $2",
+                &[&site.0, &sku.as_str()],
+            )?
+            .map(|r| ItemRef {
+                id: r.get(0),
+                lot_tracked: r.get(1),
+            }))
     }
 
     fn movement_by_uid(&self, uid: &MovementUid) -> Result<Option<StoredMovement>, StoreError> {
-        Err(not_yet("LedgerTx::movement_by_uid"))
+        self.query_opt(
+            "select id, site_id, bin_id, item_id, lot, qty, kind, event_at from movement
+              where uid = $1",
+            &[&uid.as_str()],
+        )?
+        .map(|r| {
+            let kind: String = r.get(6);
+            Ok(StoredMovement {
+                id: r.get(0),
+                site: SiteId(r.get(1)),
+                key: LedgerKey {
+                    bin_id: r.get(2),
+                    item_id: r.get(3),
+                    lot: r.get(4),
+                },
+                qty: r.get(5),
+                kind: MovementKind::parse(&kind)
+                    .ok_or_else(|| anyhow::anyhow!("unknown movement kind '{kind}'"))?,
+                event_at: Timestamp(r.get(7)),
+            })
+        })
+        .transpose()
     }
 
     fn is_reversed(&self, movement: i64) -> Result<bool, StoreError> {
-        Err(not_yet("LedgerTx::is_reversed"))
+        Ok(self
+            .query_opt(
+                "select 1 from movement where reverses = $1 limit 1",
+                &[&movement],
+            )?
+            .is_some())
     }
 
     fn insert_movement(
@@ -80,24 +83,293 @@ impl crate::ledger::append::LedgerTx for PgTx<'_> {
         recorded_at: Timestamp,
         reverses: Option<i64>,
     ) -> Result<Inserted, StoreError> {
-        Err(not_yet("LedgerTx::insert_movement"))
+        let written = self.query_opt(
+            "insert into movement (uid, site_id, bin_id, item_id, lot, qty, kind, event_at,
+                                   recorded_at, source, doc_ref, actor, reverses)
+             values ($1, $2, $3, $4, $5, $6, $7, $8, $9, $10, $11, $12, $13)
+             on conflict (uid) do nothing
+             returning id",
+            &[
+                &m.uid.as_str(),
+                &site.0,
+                &key.bin_id,
+                &key.item_id,
+                &m.lot,
+                &m.qty,
+                &m.kind.as_str(),
+                &m.event_at.0,
+                &recorded_at.0,
+                &m.source,
+                &m.doc_ref,
+                &m.actor,
+                &reverses,
+            ],
+        )?;
+        let Some(row) = written else {
+            return Ok(Inserted::Existing);
+        };
+        if !m.lot.is_empty() {
+            self.execute(
+                "insert into lot (item_id, code, expiry) values ($1, $2, $3) on conflict do nothing",
+                &[&key.item_id, &m.lot, &m.expiry.map(|d| d.to_string())],
+            )?;
+        }
+        apply_to_balance(self, key, m.qty, m.event_at.0)?;
+        Ok(Inserted::New(row.get(0)))
     }
 }
 
-/// See [`Store::balances`].
+/// Adds one delta to the current balance and to every snapshot it falls under,
+/// and takes a new snapshot when the key has moved `snapshot_every` times.
+fn apply_to_balance(
+    tx: &PgTx<'_>,
+    key: &LedgerKey,
+    qty: i64,
+    event_at: i64,
+) -> Result<(), StoreError> {
+    let r = tx.query_one(
+        "insert into balance (bin_id, item_id, lot, qty, last_event_at, moves_since_snap)
+         values ($1, $2, $3, $4, $5, 1)
+         on conflict (bin_id, item_id, lot) do update set
+             qty = balance.qty + excluded.qty,
+             last_event_at = greatest(balance.last_event_at, excluded.last_event_at),
+             moves_since_snap = balance.moves_since_snap + 1
+         returning qty, last_event_at, moves_since_snap, snap_at",
+        &[&key.bin_id, &key.item_id, &key.lot, &qty, &event_at],
+    )?;
+    let (balance, last_event_at, moves, snap_at): (i64, i64, i64, Option<i64>) =
+        (r.get(0), r.get(1), r.get(2), r.get(3));
+    if snap_at.is_some_and(|s| event_at <= s) {
+        // A late movement: every snapshot at or after its event time includes it.
+        tx.execute(
+            "update balance_snapshot set qty = qty + $4
+             where bin_id = $1 and item_id = $2 and lot = $3 and at >= $5",
+            &[&key.bin_id, &key.item_id, &key.lot, &qty, &event_at],
+        )?;
+    }
+    if moves >= tx.snapshot_every {
+        // Every delta of this key has event_at <= last_event_at, so the balance is the snapshot.
+        tx.execute(
+            "insert into balance_snapshot (bin_id, item_id, lot, at, qty) values ($1, $2, $3, $4, $5)
+             on conflict (bin_id, item_id, lot, at) do update set qty = excluded.qty",
+            &[&key.bin_id, &key.item_id, &key.lot, &last_event_at, &balance],
+        )?;
+        tx.execute(
+            "update balance set moves_since_snap = 0, snap_at = $4
+              where bin_id = $1 and item_id = $2 and lot = $3",
+            &[&key.bin_id, &key.item_id, &key.lot, &last_event_at],
+        )?;
+    }
+    Ok(())
+}
+
+/// Returns the ledger's high-water mark on a read connection.
+pub async fn watermark(c: &Client) -> Result<i64, StoreError> {
+    Ok(row_one(c, WATERMARK, &[]).await?.get(0))
+}
+
+/// Returns the balance of `key` as of `at`: the sum of its deltas with `event_at <= at`,
+/// read from the newest snapshot at or before `at` plus one index range after it.
+pub async fn balance_as_of(c: &Client, key: &LedgerKey, at: i64) -> Result<i64, StoreError> {
+    Ok(row_one(
+        c,
+        "with s as (select at, qty from balance_snapshot
+                    where bin_id = $1 and item_id = $2 and lot = $3 and at <= $4
+                    order by at desc limit 1)
+         select coalesce((select qty from s), 0)
+              + coalesce((select sum(qty) from movement
+                          where bin_id = $1 and item_id = $2 and lot = $3
+                            and event_at > coalesce((select at from s), '-9223372036854775808'::bigint)
+                            and event_at <= $4), 0)::bigint",
+        &[&key.bin_id, &key.item_id, &key.lot, &at],
+    )
+    .await?
+    .get(0))
+}
+
+fn parse_cursor<const N: usize>(text: &str) -> Result<[String; N], StoreError> {
+    let parts: Vec<String> = text.splitn(N, '.').map(str::to_string).collect();
+    parts
+        .try_into()
+        .map_err(|_| StoreError::NotFound(format!("cursor '{text}' is not one this server gave")))
+}
+
+fn cursor_int(text: &str) -> Result<i64, StoreError> {
+    text.parse().map_err(|_| {
+        StoreError::NotFound(format!("cursor part '{text}' is not one this server gave"))
+    })
+}
+
+async fn id_of(
+    c: &Client,
+    sql: &str,
+    site: SiteId,
+    code: &str,
+    what: &str,
+) -> Result<i64, StoreError> {
+    Ok(row_opt(c, sql, &[&site.0, &code])
+        .await?
+        .ok_or_else(|| StoreError::NotFound(format!("unknown {what} '{code}' in this site")))?
+        .get(0))
+}
+
+async fn bin_id(c: &Client, site: SiteId, code: &str) -> Result<i64, StoreError> {
+    let sql = "select id from bin where site_id = $1 and code = $2";
+    id_of(c, sql, site, code, "bin").await
+}
+
+async fn item_id(c: &Client, site: SiteId, sku: &str) -> Result<i64, StoreError> {
+    let sql = "select id from item where site_id = $1 and sku = $2";
+    id_of(c, sql, site, sku, "SKU").await
+}
+
+/// See [`crate::store::Store::balances`]: a page of balances, now or as of `query.at`.
 pub async fn balances(
     store: &PgStore,
     site: SiteId,
     query: BalanceQuery,
 ) -> Result<BalancePage, StoreError> {
-    Err(not_yet("Store::balances"))
+    let c = store.client().await?;
+    let mut sql = String::from(
+        "select b.bin_id, b.item_id, b.lot, b.qty, bin.code, item.sku
+         from balance b join bin on bin.id = b.bin_id join item on item.id = b.item_id
+         where bin.site_id = $1",
+    );
+    let mut args: Vec<Box<dyn ToSql + Sync + Send>> = vec![Box::new(site.0)];
+    let mut arg = |sql: &mut String, cond: &str, v: Box<dyn ToSql + Sync + Send>| {
+        args.push(v);
+        sql.push_str(&cond.replace('?', &format!("${}", args.len())));
+    };
+    if let Some(b) = &query.bin {
+        let id = bin_id(&c, site, b.as_str()).await?;
+        arg(&mut sql, " and b.bin_id = ?", Box::new(id));
+    }
+    if let Some(s) = &query.sku {
+        let id = item_id(&c, site, s.as_str()).await?;
+        arg(&mut sql, " and b.item_id = ?", Box::new(id));
+    }
+    if let Some(l) = &query.lot {
+        arg(&mut sql, " and b.lot = ?", Box::new(l.clone()));
+    }
+    if let Some(cursor) = &query.after {
+        let [b, i, l] = parse_cursor::<3>(cursor)?;
+        let (b, i) = (cursor_int(&b)?, cursor_int(&i)?);
+        args.push(Box::new(b));
+        args.push(Box::new(i));
+        args.push(Box::new(l));
+        let n = args.len();
+        sql.push_str(&format!(
+            " and (b.bin_id, b.item_id, b.lot) > (${}, ${}, ${})",
+            n - 2,
+            n - 1,
+            n
+        ));
+    }
+    if query.at.is_none() && !query.include_zero {
+        sql.push_str(" and b.qty <> 0");
+    }
+    let limit = query.limit.clamp(1, MAX_PAGE_ROWS);
+    sql.push_str(&format!(
+        " order by b.bin_id, b.item_id, b.lot limit {limit}"
+    ));
+    let params: Vec<&(dyn ToSql + Sync)> = args
+        .iter()
+        .map(|a| a.as_ref() as &(dyn ToSql + Sync))
+        .collect();
+    let found = rows(&c, &sql, &params).await?;
+    let fetched = found.len();
+    let mut balances = Vec::new();
+    let mut last = None;
+    for r in found {
+        let key = LedgerKey {
+            bin_id: r.get(0),
+            item_id: r.get(1),
+            lot: r.get(2),
+        };
+        let qty = match query.at {
+            Some(at) => balance_as_of(&c, &key, at.0).await?,
+            None => r.get(3),
+        };
+        if qty != 0 || query.include_zero {
+            balances.push(BalanceRow {
+                bin: r.get(4),
+                sku: r.get(5),
+                lot: key.lot.clone(),
+                qty,
+            });
+        }
+        last = Some(key);
+    }
+    let next = last
+        .filter(|_| fetched == limit)
+        .map(|k| format!("{}.{}.{}", k.bin_id, k.item_id, k.lot));
+    Ok(BalancePage {
+        balances,
+        next,
+        watermark: watermark(&c).await?,
+    })
 }
 
-/// See [`Store::movements`].
+/// See [`crate::store::Store::movements`]: a page of a bin's or an item's movements in
+/// event order.
 pub async fn movements(
     store: &PgStore,
     site: SiteId,
     query: HistoryQuery,
 ) -> Result<HistoryPage, StoreError> {
-    Err(not_yet("Store::movements"))
+    let c = store.client().await?;
+    let (column, id) = match &query.subject {
+        HistorySubject::Bin(b) => ("m.bin_id", bin_id(&c, site, b.as_str()).await?),
+        HistorySubject::Item(s) => ("m.item_id", item_id(&c, site, s.as_str()).await?),
+    };
+    let (after_at, after_seq) = match &query.after {
+        None => (i64::MIN, i64::MIN),
+        Some(cursor) => {
+            let [a, s] = parse_cursor::<2>(cursor)?;
+            (cursor_int(&a)?, cursor_int(&s)?)
+        }
+    };
+    let limit = query.limit.clamp(1, MAX_PAGE_ROWS);
+    let sql = format!(
+        "select m.id, m.uid, bin.code, item.sku, m.lot, m.qty, m.kind, m.event_at, m.recorded_at,
+                m.source, m.doc_ref, m.actor, r.uid
+         from movement m join bin on bin.id = m.bin_id join item on item.id = m.item_id
+              left join movement r on r.id = m.reverses
+         where {column} = $1 and m.event_at >= $2 and m.event_at <= $3
+           and (m.event_at, m.id) > ($4, $5)
+         order by m.event_at, m.id limit $6"
+    );
+    let from = query.from.map_or(i64::MIN, |t| t.0);
+    let to = query.to.map_or(i64::MAX, |t| t.0);
+    let movements: Vec<Movement> = rows(
+        &c,
+        &sql,
+        &[&id, &from, &to, &after_at, &after_seq, &(limit as i64)],
+    )
+    .await?
+    .iter()
+    .map(|r| {
+        let kind: String = r.get(6);
+        Movement {
+            seq: r.get(0),
+            id: r.get(1),
+            bin: r.get(2),
+            sku: r.get(3),
+            lot: r.get(4),
+            qty: r.get(5),
+            kind: MovementKind::parse(&kind).unwrap_or(MovementKind::Adjustment),
+            event_at: Timestamp(r.get(7)),
+            recorded_at: Timestamp(r.get(8)),
+            source: r.get(9),
+            doc_ref: r.get(10),
+            actor: r.get(11),
+            reverses: r.get(12),
+        }
+    })
+    .collect();
+    let next = movements
+        .last()
+        .filter(|_| movements.len() == limit)
+        .map(|m| format!("{}.{}", m.event_at.0, m.seq));
+    Ok(HistoryPage { movements, next })
 }

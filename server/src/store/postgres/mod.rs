@@ -19,9 +19,13 @@ pub mod sync;
 pub mod tasks;
 pub mod tx;
 
+#[cfg(test)]
+mod tests;
+
 use super::{StoreError, StoreOptions, WriteScope};
 use deadpool_postgres::{Manager, ManagerConfig, Pool, RecyclingMethod};
-use tokio_postgres::NoTls;
+use tokio_postgres::types::ToSql;
+use tokio_postgres::{NoTls, Row};
 pub use tx::{PgRead, PgTx};
 
 /// The first key of every advisory lock Cairn takes (the second is the site's id), so a
@@ -144,15 +148,36 @@ impl PgStore {
         R: Send + 'static,
         F: FnOnce(&PgTx<'_>) -> Result<R, StoreError> + Send + 'static,
     {
+        self.run_tx(Some(scope), work).await
+    }
+
+    /// Runs `work` in one transaction as [`PgStore::write_tx`] does, but holding no site's
+    /// lock: for writes that touch no site's counted data (a new site, users, sessions,
+    /// sign-in throttling), so a sign-in never waits for a site's long write.
+    pub async fn write_tx_unlocked<R, F>(&self, work: F) -> Result<R, StoreError>
+    where
+        R: Send + 'static,
+        F: FnOnce(&PgTx<'_>) -> Result<R, StoreError> + Send + 'static,
+    {
+        self.run_tx(None, work).await
+    }
+
+    async fn run_tx<R, F>(&self, scope: Option<WriteScope>, work: F) -> Result<R, StoreError>
+    where
+        R: Send + 'static,
+        F: FnOnce(&PgTx<'_>) -> Result<R, StoreError> + Send + 'static,
+    {
         let mut client = self.client().await?;
         let rt = tokio::runtime::Handle::current();
         let every = self.options.snapshot_every;
         tokio::task::spawn_blocking(move || {
             let m = crate::telemetry::metrics();
             let tx = rt.block_on(client.transaction())?;
-            let asked = std::time::Instant::now();
-            rt.block_on(lock_scope(&tx, scope))?;
-            m.db_lock_wait_seconds.observe_duration(asked.elapsed());
+            if let Some(scope) = scope {
+                let asked = std::time::Instant::now();
+                rt.block_on(lock_scope(&tx, scope))?;
+                m.db_lock_wait_seconds.observe_duration(asked.elapsed());
+            }
             let started = std::time::Instant::now();
             let out = work(&PgTx::new(&tx, &rt, every))?;
             rt.block_on(tx.commit())?;
@@ -162,6 +187,46 @@ impl PgStore {
         .await
         .map_err(|e| anyhow::anyhow!("a write's thread failed: {e}"))?
     }
+}
+
+/// Tells whether `e` is a unique constraint refusing a row (SQLSTATE 23505).
+pub fn is_unique_violation(e: &tokio_postgres::Error) -> bool {
+    e.code() == Some(&tokio_postgres::error::SqlState::UNIQUE_VIOLATION)
+}
+
+/// Narrows a stored integer to the domain's type, or says which stored value is beyond it.
+pub fn narrow<T: TryFrom<i64>>(v: i64, what: &str) -> Result<T, StoreError> {
+    T::try_from(v).map_err(|_| anyhow::anyhow!("stored {what} {v} is out of range").into())
+}
+
+/// Runs a read (prepared once per connection) on a pooled connection; returns its rows.
+pub async fn rows(
+    c: &deadpool_postgres::Client,
+    sql: &str,
+    params: &[&(dyn ToSql + Sync)],
+) -> Result<Vec<Row>, StoreError> {
+    let st = c.prepare_cached(sql).await?;
+    Ok(c.query(&st, params).await?)
+}
+
+/// Runs a read that returns at most one row.
+pub async fn row_opt(
+    c: &deadpool_postgres::Client,
+    sql: &str,
+    params: &[&(dyn ToSql + Sync)],
+) -> Result<Option<Row>, StoreError> {
+    let st = c.prepare_cached(sql).await?;
+    Ok(c.query_opt(&st, params).await?)
+}
+
+/// Runs a read that returns exactly one row.
+pub async fn row_one(
+    c: &deadpool_postgres::Client,
+    sql: &str,
+    params: &[&(dyn ToSql + Sync)],
+) -> Result<Row, StoreError> {
+    let st = c.prepare_cached(sql).await?;
+    Ok(c.query_one(&st, params).await?)
 }
 
 /// Takes the transaction-scoped advisory locks of `scope`: the one site's, or every

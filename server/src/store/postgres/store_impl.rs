@@ -276,7 +276,7 @@ impl Store for PgStore {
         bins: Vec<BinCode>,
     ) -> Result<std::collections::HashMap<String, Vec<crate::planning::phone::ItemBrief>>, StoreError>
     {
-        super::planning::bin_contents(self, site, bins).await
+        super::master::bin_contents(self, site, bins).await
     }
 
     async fn finish_task(&self, site: SiteId, task: i64, at: Timestamp) -> Result<(), StoreError> {

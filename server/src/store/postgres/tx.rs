@@ -13,7 +13,6 @@ pub struct PgTx<'a, C: GenericClient = Transaction<'a>> {
     tx: &'a C,
     rt: &'a Handle,
     /// Movements of one key between balance snapshots (the ledger's writes read it).
-    #[allow(dead_code)]
     pub(crate) snapshot_every: i64,
 }
 

@@ -1,0 +1,362 @@
+//! Tests of the PostgreSQL ledger and master data against a plain model (the sum of
+//! deltas), on the real server the suites' switch names (`CAIRN_TEST_STORE`); each test
+//! makes a database of its own and drops it. Without the switch they say so and pass.
+//! The ledger is written through `ledger::write_batch` (no re-netting), so these hold the
+//! ledger's SQL on its own.
+
+use super::PgStore;
+use crate::ledger::{MovementKind, NewMovement, RecordOutcome};
+use crate::master::codes::{BinCode, MovementUid, Sku};
+use crate::master::{BinRecord, ItemRecord, NewSite, SiteCode, SiteId};
+use crate::store::{
+    BalanceQuery, HistoryQuery, HistorySubject, Progress, Store, StoreError, StoreOptions,
+    WriteScope,
+};
+use crate::time::Timestamp;
+use rand::{Rng, SeedableRng};
+
+const BINS: [&str; 2] = ["A-01-01-1", "A-01-02-1"];
+const SKUS: [&str; 2] = ["S1", "S2"];
+
+/// A database of one test's own, dropped with it.
+struct TestDb {
+    admin: String,
+    name: String,
+}
+
+impl TestDb {
+    fn create() -> Option<(Self, String)> {
+        let admin = std::env::var("CAIRN_TEST_STORE")
+            .ok()
+            .filter(|v| !v.trim().is_empty());
+        let Some(admin) = admin else {
+            eprintln!("skipped: CAIRN_TEST_STORE names no PostgreSQL server");
+            return None;
+        };
+        let name = format!(
+            "cairn_unit_{}_{}",
+            std::process::id(),
+            &uuid::Uuid::now_v7().simple().to_string()[20..]
+        );
+        admin_sql(&admin, &format!("create database {name}"));
+        let base = admin.rsplit_once('/').map_or(admin.as_str(), |(b, _)| b);
+        let url = format!("{base}/{name}");
+        Some((Self { admin, name }, url))
+    }
+}
+
+impl Drop for TestDb {
+    fn drop(&mut self) {
+        admin_sql(
+            &self.admin,
+            &format!("drop database if exists {} with (force)", self.name),
+        );
+    }
+}
+
+fn admin_sql(admin: &str, sql: &str) {
+    let (admin, sql) = (admin.to_string(), sql.to_string());
+    std::thread::spawn(move || {
+        let rt = tokio::runtime::Builder::new_current_thread()
+            .enable_all()
+            .build()
+            .expect("a runtime for the admin statement");
+        rt.block_on(async {
+            let (client, conn) = tokio_postgres::connect(&admin, tokio_postgres::NoTls)
+                .await
+                .expect("the switch's server answers");
+            let driver = tokio::spawn(conn);
+            client
+                .batch_execute(&sql)
+                .await
+                .expect("the admin statement runs");
+            drop(client);
+            let _ = driver.await;
+        });
+    })
+    .join()
+    .expect("the admin statement's thread ends");
+}
+
+/// Opens a fresh store with a snapshot every `every` movements of a key, with one site
+/// holding two bins and two items.
+async fn fresh(url: &str, every: i64) -> (PgStore, SiteId) {
+    let options = StoreOptions {
+        snapshot_every: every,
+        ..StoreOptions::default()
+    };
+    let url = url.to_string();
+    let store = tokio::task::spawn_blocking(move || PgStore::open(&url, options))
+        .await
+        .unwrap()
+        .unwrap();
+    let site = store
+        .create_site(NewSite {
+            code: SiteCode::parse("T").unwrap(),
+            name: "Test".into(),
+            time_zone: crate::time::day::SiteZone::UTC,
+        })
+        .await
+        .unwrap();
+    let bins: Vec<_> = (1..=2)
+        .map(|bay| {
+            BinRecord {
+                code: None,
+                zone: "A".into(),
+                aisle: 1,
+                bay,
+                level: 1,
+                side: None,
+                walk_seq: None,
+            }
+            .validate()
+            .unwrap()
+        })
+        .collect();
+    store
+        .put_bins(site.id, bins, Progress::default(), None)
+        .await
+        .unwrap();
+    let items: Vec<_> = SKUS
+        .iter()
+        .map(|s| {
+            ItemRecord {
+                sku: (*s).into(),
+                description: "Test item".into(),
+                base_unit: "each".into(),
+                unit_cost_minor: 100,
+                lot_tracked: false,
+                group: None,
+            }
+            .validate()
+            .unwrap()
+        })
+        .collect();
+    store
+        .put_items(site.id, items, Progress::default(), None)
+        .await
+        .unwrap();
+    (store, site.id)
+}
+
+fn mv(uid: &str, bin: usize, sku: usize, qty: i64, at: i64) -> NewMovement {
+    NewMovement {
+        uid: MovementUid::parse(uid).unwrap(),
+        bin: BinCode::parse(BINS[bin]).unwrap(),
+        sku: Sku::parse(SKUS[sku]).unwrap(),
+        lot: String::new(),
+        expiry: None,
+        qty,
+        kind: MovementKind::Adjustment,
+        event_at: Timestamp(at),
+        source: "test".into(),
+        doc_ref: String::new(),
+        actor: String::new(),
+        reverses: None,
+        recorded_at: None,
+    }
+}
+
+async fn write(
+    store: &PgStore,
+    site: SiteId,
+    rows: Vec<NewMovement>,
+) -> Result<RecordOutcome, StoreError> {
+    store
+        .write_tx(WriteScope::Site(site), move |tx| {
+            let (out, _) = crate::ledger::write_batch(
+                tx,
+                site,
+                &rows,
+                Timestamp(10_000_000),
+                &Progress::default(),
+            )?;
+            Ok(out)
+        })
+        .await
+}
+
+/// Reads the balance of one key now (`at` None) or as of an instant, through the store.
+async fn balance(store: &PgStore, site: SiteId, bin: usize, sku: usize, at: Option<i64>) -> i64 {
+    let page = store
+        .balances(
+            site,
+            BalanceQuery {
+                bin: Some(BinCode::parse(BINS[bin]).unwrap()),
+                sku: Some(Sku::parse(SKUS[sku]).unwrap()),
+                at: at.map(Timestamp),
+                include_zero: true,
+                limit: 10,
+                ..BalanceQuery::default()
+            },
+        )
+        .await
+        .unwrap();
+    page.balances.iter().map(|b| b.qty).sum()
+}
+
+#[tokio::test(flavor = "multi_thread", worker_threads = 2)]
+async fn balances_now_and_as_of_equal_the_sum_of_deltas_under_snapshots() {
+    let Some((_db, url)) = TestDb::create() else {
+        return;
+    };
+    // A snapshot every 3 movements of a key makes late arrivals fall under snapshots.
+    let (store, site) = fresh(&url, 3).await;
+    let mut rng = rand_chacha::ChaCha8Rng::seed_from_u64(20);
+    let mut model: Vec<(usize, usize, i64, i64)> = Vec::new();
+    for batch in 0..6 {
+        let rows: Vec<_> = (0..rng.random_range(1..25))
+            .map(|i| {
+                let q = if rng.random_bool(0.5) {
+                    rng.random_range(1..50)
+                } else {
+                    -rng.random_range(1..50)
+                };
+                let m = (
+                    rng.random_range(0..2),
+                    rng.random_range(0..2),
+                    q,
+                    rng.random_range(0..200),
+                );
+                model.push(m);
+                mv(&format!("m{batch}-{i}"), m.0, m.1, m.2, m.3)
+            })
+            .collect();
+        write(&store, site, rows).await.unwrap();
+    }
+    for b in 0..2 {
+        for s in 0..2 {
+            let sum: i64 = model
+                .iter()
+                .filter(|m| m.0 == b && m.1 == s)
+                .map(|m| m.2)
+                .sum();
+            assert_eq!(balance(&store, site, b, s, None).await, sum);
+            for t in [-5, 0, 37, 99, 100, 150, 199, 210] {
+                let want: i64 = model
+                    .iter()
+                    .filter(|m| m.0 == b && m.1 == s && m.3 <= t)
+                    .map(|m| m.2)
+                    .sum();
+                assert_eq!(
+                    balance(&store, site, b, s, Some(t)).await,
+                    want,
+                    "bin {b} sku {s} at {t}"
+                );
+            }
+        }
+    }
+    let c = store.client().await.unwrap();
+    let snapshots: i64 = c
+        .query_one("select count(*) from balance_snapshot", &[])
+        .await
+        .unwrap()
+        .get(0);
+    assert!(snapshots > 0, "the test reaches the snapshots");
+}
+
+#[tokio::test(flavor = "multi_thread", worker_threads = 2)]
+async fn a_resent_batch_changes_nothing_and_a_reversal_happens_once() {
+    let Some((_db, url)) = TestDb::create() else {
+        return;
+    };
+    let (store, site) = fresh(&url, 256).await;
+    let rows = vec![mv("r1", 0, 0, 7, 10), mv("r2", 1, 1, 4, 20)];
+    let first = write(&store, site, rows.clone()).await.unwrap();
+    let again = write(&store, site, rows).await.unwrap();
+    assert_eq!((first.recorded, again.recorded), (2, 0));
+    assert_eq!(again.already_recorded, 2);
+    assert_eq!(again.watermark, first.watermark);
+    assert_eq!(balance(&store, site, 0, 0, None).await, 7);
+
+    let err = write(&store, site, vec![mv("r1", 0, 0, 8, 10)])
+        .await
+        .unwrap_err();
+    assert!(
+        matches!(err, StoreError::Rejected(ref r) if r[0].message.contains("different content")),
+        "{err:?}"
+    );
+    let mut right = mv("rev", 0, 0, -7, 30);
+    right.reverses = Some(MovementUid::parse("r1").unwrap());
+    write(&store, site, vec![right]).await.unwrap();
+    let mut twice = mv("rev2", 0, 0, -7, 40);
+    twice.reverses = Some(MovementUid::parse("r1").unwrap());
+    let err = write(&store, site, vec![twice]).await.unwrap_err();
+    assert!(
+        matches!(err, StoreError::Rejected(ref r) if r[0].message.contains("already been reversed")),
+        "{err:?}"
+    );
+    assert_eq!(balance(&store, site, 0, 0, None).await, 0);
+
+    // A batch with one bad row writes nothing.
+    let mut bad = mv("b2", 0, 0, 3, 50);
+    bad.bin = BinCode::parse("Z-99-99-9").unwrap();
+    let before = store.site_counts(site).await.unwrap().movements;
+    let err = write(&store, site, vec![mv("b1", 0, 0, 3, 50), bad])
+        .await
+        .unwrap_err();
+    assert!(
+        matches!(err, StoreError::Rejected(ref r) if r.len() == 1 && r[0].row == 1),
+        "{err:?}"
+    );
+    assert_eq!(store.site_counts(site).await.unwrap().movements, before);
+
+    // The ledger is append-only.
+    let c = store.client().await.unwrap();
+    let up = c
+        .execute("update movement set qty = 6", &[])
+        .await
+        .unwrap_err();
+    assert!(super::describe(&up).contains("append-only"), "{up}");
+}
+
+#[tokio::test(flavor = "multi_thread", worker_threads = 2)]
+async fn history_pages_in_event_order_and_site_codes_stay_unique() {
+    let Some((_db, url)) = TestDb::create() else {
+        return;
+    };
+    let (store, site) = fresh(&url, 256).await;
+    let rows: Vec<_> = (0..7)
+        .map(|i| mv(&format!("h{i}"), 0, 0, 1, 100 - 10 * (i % 3)))
+        .collect();
+    write(&store, site, rows).await.unwrap();
+    let mut seen = Vec::new();
+    let mut after = None;
+    loop {
+        let page = store
+            .movements(
+                site,
+                HistoryQuery {
+                    subject: HistorySubject::Bin(BinCode::parse(BINS[0]).unwrap()),
+                    from: None,
+                    to: None,
+                    limit: 3,
+                    after: after.clone(),
+                },
+            )
+            .await
+            .unwrap();
+        seen.extend(page.movements.iter().map(|m| (m.event_at.0, m.seq)));
+        match page.next {
+            Some(n) => after = Some(n),
+            None => break,
+        }
+    }
+    let mut sorted = seen.clone();
+    sorted.sort();
+    assert_eq!(seen.len(), 7);
+    assert_eq!(seen, sorted, "event order, then sequence");
+
+    let again = store
+        .create_site(NewSite {
+            code: SiteCode::parse("T").unwrap(),
+            name: "Again".into(),
+            time_zone: crate::time::day::SiteZone::UTC,
+        })
+        .await
+        .unwrap_err();
+    assert!(matches!(again, StoreError::Conflict(_)), "{again:?}");
+    let counts = store.site_counts(site).await.unwrap();
+    assert_eq!((counts.zones, counts.bins, counts.items), (1, 2, 2));
+    assert_eq!(store.bins(site, None).await.unwrap().len(), 2);
+}
