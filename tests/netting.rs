@@ -262,7 +262,7 @@ async fn a_pick_during_the_count_is_netted_not_flagged() {
     assert_eq!(window_moves(&d), ["p1"]);
 
     // `cairn net` prints the same reasoning, by the pass's uid or id.
-    let db = s.app.db.to_str().unwrap().to_string();
+    let db = s.app.db_arg();
     for count in [p.count.clone(), r["pass_id"].to_string()] {
         let out = common::cairn_with_input(&["net", "--db", &db, "--count", &count], "");
         let text = String::from_utf8_lossy(&out.stdout);
