@@ -177,3 +177,59 @@ async fn metrics_show_the_pool_and_the_lock_wait() {
         assert!(text.contains(name), "{name} missing from /metrics:\n{text}");
     }
 }
+
+#[tokio::test(flavor = "multi_thread", worker_threads = 2)]
+async fn a_sqlite_file_copies_onto_an_empty_database_and_reads_the_same() {
+    if skipped() {
+        return;
+    }
+    use cairn::demo::{self, DemoSpec};
+    use cairn::master::SiteCode;
+    use cairn::store::{BalanceQuery, DbLocation, StoreOptions};
+    // The source: a small demo site with weeks of counting, on SQLite.
+    let dir = tempfile::tempdir().unwrap();
+    let file = dir.path().join("demo.db");
+    let sqlite =
+        cairn::store::open(&DbLocation::File(file.clone()), StoreOptions::default()).unwrap();
+    let spec = DemoSpec {
+        items: 40,
+        bins: 80,
+        days: 60,
+        end: chrono::NaiveDate::from_ymd_opt(2026, 6, 30).unwrap(),
+        history_weeks: 2,
+        ..DemoSpec::standard(11)
+    };
+    demo::generate(sqlite.as_ref(), &spec, false).await.unwrap();
+    // The target: the test's empty PostgreSQL database.
+    let target = common::PgTestDb::create().expect("the switch is set");
+    let report = cairn::store::copy::copy(&file, &target.url, &indicatif::ProgressBar::hidden())
+        .await
+        .expect("the copy succeeds and checks");
+    assert!(report.movements > 1_000, "{report}");
+    let pg = cairn::store::open(
+        &DbLocation::parse(&target.url).unwrap(),
+        StoreOptions::default(),
+    )
+    .unwrap();
+    let code = SiteCode::parse(demo::DEMO_SITE).unwrap();
+    let (a, b) = (
+        sqlite.site(&code).await.unwrap().unwrap(),
+        pg.site(&code).await.unwrap().unwrap(),
+    );
+    assert_eq!((a.id, a.time_zone), (b.id, b.time_zone));
+    let all = BalanceQuery {
+        include_zero: true,
+        limit: cairn::store::MAX_PAGE_ROWS,
+        ..Default::default()
+    };
+    assert_eq!(
+        sqlite.balances(a.id, all.clone()).await.unwrap().balances,
+        pg.balances(b.id, all).await.unwrap().balances,
+        "the same balances, key by key"
+    );
+    // A second copy onto the now full database is refused and changes nothing.
+    let again = cairn::store::copy::copy(&file, &target.url, &indicatif::ProgressBar::hidden())
+        .await
+        .expect_err("a non-empty target is refused");
+    assert!(again.to_string().contains("already holds"), "{again}");
+}

@@ -162,6 +162,11 @@ enum Command {
         #[command(subcommand)]
         command: UserCommand,
     },
+    /// Move a store onto another engine.
+    Store {
+        #[command(subcommand)]
+        command: StoreCommand,
+    },
     /// Copy the database while the server runs (SQLite's online backup), then check the copy.
     Backup {
         #[arg(long, env = "CAIRN_DB")]
@@ -265,6 +270,20 @@ enum CodeCommand {
     /// Parse the text a scanner sends: GS1 element strings (GS as \x1d or the bracketed
     /// form), Digital Link URIs, GTINs, SSCCs and bin labels, with an optional AIM prefix.
     Parse { text: String },
+}
+
+#[derive(Subcommand)]
+enum StoreCommand {
+    /// Copy every site of a SQLite file onto an empty PostgreSQL database, then read every
+    /// table back and check it (the file is only read; stop the server that writes it).
+    Copy {
+        /// The SQLite file.
+        #[arg(long)]
+        from: PathBuf,
+        /// The PostgreSQL database, `postgres://user@host/db` (must be empty).
+        #[arg(long)]
+        to: String,
+    },
 }
 
 #[derive(Subcommand)]
@@ -721,6 +740,31 @@ async fn dispatch(command: Command) -> anyhow::Result<()> {
             Ok(())
         }
         Command::User { command } => user_command(command).await,
+        Command::Store {
+            command: StoreCommand::Copy { from, to },
+        } => {
+            let target = DbLocation::parse(&to).map_err(anyhow::Error::msg)?;
+            let DbLocation::Postgres(url) = &target else {
+                anyhow::bail!("--to must be a postgres:// URL, not {target}");
+            };
+            let pb = if std::io::IsTerminal::is_terminal(&std::io::stderr()) {
+                let pb = indicatif::ProgressBar::new(0);
+                pb.set_style(
+                    indicatif::ProgressStyle::with_template(
+                        "{elapsed:>4} [{bar:30}] {pos}/{len} rows {msg}",
+                    )
+                    .expect("the template is a fixed, valid string"),
+                );
+                pb
+            } else {
+                indicatif::ProgressBar::hidden()
+            };
+            let report = crate::store::copy::copy(&from, url, &pb).await;
+            pb.finish_and_clear();
+            let report = report?;
+            outln!("copied {} to {target}: {report}", from.display())?;
+            Ok(())
+        }
         Command::Backup { db, to, keep } => {
             let report = tokio::task::spawn_blocking(move || {
                 crate::backup::with_spinner(|p| crate::backup::backup(&db, &to, keep, p))

@@ -2,6 +2,7 @@
 //! today (`sqlite`); another engine can be added behind the same trait without
 //! touching the ledger, planning or netting code.
 
+pub mod copy;
 pub mod error;
 pub mod postgres;
 pub mod sqlite;

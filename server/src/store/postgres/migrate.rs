@@ -50,15 +50,21 @@ pub async fn migrate(client: &mut tokio_postgres::Client) -> Result<i64, StoreEr
         &[&LOCK_SPACE, &MIGRATION_LOCK],
     )
     .await?;
-    tx.batch_execute(
-        "create table if not exists schema_migration (
-             version     bigint primary key,
-             name        text not null,
-             checksum    bigint not null,
-             applied_at  bigint not null
-         )",
-    )
-    .await?;
+    let known: bool = tx
+        .query_one("select to_regclass('schema_migration') is not null", &[])
+        .await?
+        .get(0);
+    if !known {
+        tx.batch_execute(
+            "create table schema_migration (
+                 version     bigint primary key,
+                 name        text not null,
+                 checksum    bigint not null,
+                 applied_at  bigint not null
+             )",
+        )
+        .await?;
+    }
     let applied: Vec<(i64, i64)> = tx
         .query(
             "select version, checksum from schema_migration order by version",
