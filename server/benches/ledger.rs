@@ -8,7 +8,9 @@
 //!
 //! Run: `cargo bench -p cairn-server --bench ledger`. Sizes can be lowered with
 //! CAIRN_BENCH_INGEST (movements, default 200000) and CAIRN_BENCH_LEDGER
-//! (default 2000000); CAIRN_BENCH_ONLY=ingest or =lookup runs one part.
+//! (default 2000000); CAIRN_BENCH_ONLY=ingest or =lookup runs one part. With
+//! CAIRN_BENCH_PG=postgres://… (a server and a database to connect to) the ingest also runs
+//! on PostgreSQL, against its own raw INSERT ceiling.
 
 use cairn::AppState;
 use cairn::config::Config;
@@ -18,7 +20,7 @@ use cairn::master::{BinRecord, ItemRecord, NewSite, SiteCode, SiteId};
 use cairn::store::Progress;
 use cairn::store::sqlite::ledger::{Key, balance_as_of};
 use cairn::store::sqlite::{SqliteStore, Tx, master, migrate};
-use cairn::store::{StoreOptions as OpenOptions, Synchronous};
+use cairn::store::{DbLocation, StoreOptions as OpenOptions, Synchronous};
 use cairn::time::Timestamp;
 use rand::{Rng, SeedableRng};
 use rand_chacha::ChaCha8Rng;
@@ -202,13 +204,20 @@ async fn through_api(dir: &Path, rows: &[Row], sync: Synchronous, clients: usize
         let mut conn = connect(&path, sync);
         master_data(&mut conn, BINS, ITEMS);
     }
-    let token = host_token(&path);
+    let token = host_token(&path.display().to_string());
     let state = AppState::open(Config {
         db: path.into(),
         synchronous: sync,
         ..Config::default()
     })
     .unwrap();
+    post_all(state, &token, rows, clients).await
+}
+
+/// Posts `rows` in batches through a server on `state` by `clients` concurrent senders;
+/// returns movements per second.
+async fn post_all(state: AppState, token: &str, rows: &[Row], clients: usize) -> f64 {
+    let token = token.to_string();
     let listener = tokio::net::TcpListener::bind("127.0.0.1:0").await.unwrap();
     let url = format!(
         "http://{}/api/v1/sites/T/movements",
@@ -352,16 +361,15 @@ fn build_ledger(path: &Path, n: usize) -> (Vec<Key>, Key, i64) {
 }
 
 /// Makes a host user with an integration token through the CLI and returns the token.
-fn host_token(db: &Path) -> String {
+fn host_token(db: &str) -> String {
     use std::io::Write;
-    let db = db.display().to_string();
     let cairn = env!("CARGO_BIN_EXE_cairn");
     let mut child = std::process::Command::new(cairn)
         .args([
             "user",
             "add",
             "--db",
-            &db,
+            db,
             "--site",
             "T",
             "--name",
@@ -386,7 +394,7 @@ fn host_token(db: &Path) -> String {
             "user",
             "token",
             "--db",
-            &db,
+            db,
             "--site",
             "T",
             "--name",
@@ -432,7 +440,7 @@ fn lookups_per_s(
 
 fn peak_rss_of_serve(db: &Path) -> (u64, u64) {
     use std::io::BufRead;
-    let token = host_token(db);
+    let token = host_token(&db.display().to_string());
     let mut child = std::process::Command::new(env!("CARGO_BIN_EXE_cairn"))
         .args([
             "serve",
@@ -505,6 +513,143 @@ fn main() {
     }
 }
 
+/// Makes an empty database `name` on the PostgreSQL server `admin` names; returns its URL.
+fn pg_database(admin: &str, name: &str) -> String {
+    let (admin_url, name2) = (admin.to_string(), name.to_string());
+    std::thread::spawn(move || {
+        let rt = tokio::runtime::Builder::new_current_thread()
+            .enable_all()
+            .build()
+            .unwrap();
+        rt.block_on(async {
+            let (c, conn) = tokio_postgres::connect(&admin_url, tokio_postgres::NoTls)
+                .await
+                .unwrap();
+            tokio::spawn(conn);
+            for sql in [
+                format!("drop database if exists {name2} with (force)"),
+                format!("create database {name2}"),
+            ] {
+                c.batch_execute(&sql).await.unwrap();
+            }
+        });
+    })
+    .join()
+    .unwrap();
+    let base = admin.split('?').next().unwrap();
+    let cut = base[base.find("://").unwrap() + 3..]
+        .find('/')
+        .map_or(base.len(), |i| base.find("://").unwrap() + 3 + i);
+    format!("{}/{name}", &base[..cut])
+}
+
+/// The same site, bins and items as `master_data`, through the store.
+async fn pg_master(url: &str) -> SiteId {
+    let store =
+        cairn::store::open(&DbLocation::parse(url).unwrap(), OpenOptions::default()).unwrap();
+    let site = store
+        .create_site(NewSite {
+            code: SiteCode::parse("T").unwrap(),
+            name: "Bench".into(),
+            time_zone: cairn::time::day::SiteZone::UTC,
+        })
+        .await
+        .unwrap();
+    let b: Vec<_> = (0..BINS)
+        .map(|i| {
+            BinRecord {
+                code: Some(bin_code(i)),
+                zone: "A".into(),
+                aisle: 1,
+                bay: 1,
+                level: 1,
+                side: None,
+                walk_seq: None,
+            }
+            .validate()
+            .unwrap()
+        })
+        .collect();
+    store
+        .put_bins(site.id, b, Progress::default(), None)
+        .await
+        .unwrap();
+    let it: Vec<_> = (0..ITEMS)
+        .map(|i| {
+            ItemRecord {
+                sku: format!("S{i}"),
+                description: "Bench item".into(),
+                base_unit: "each".into(),
+                unit_cost_minor: 100,
+                lot_tracked: false,
+                group: None,
+            }
+            .validate()
+            .unwrap()
+        })
+        .collect();
+    store
+        .put_items(site.id, it, Progress::default(), None)
+        .await
+        .unwrap();
+    site.id
+}
+
+/// Plain batched INSERTs into the movement table of the same PostgreSQL schema, one
+/// transaction per batch.
+async fn pg_raw_ceiling(admin: &str, rows: &[Row]) -> f64 {
+    let url = pg_database(admin, "cairn_bench_raw");
+    let site = pg_master(&url).await;
+    let (mut c, conn) = tokio_postgres::connect(&url, tokio_postgres::NoTls)
+        .await
+        .unwrap();
+    tokio::spawn(conn);
+    let mut bin_ids = std::collections::HashMap::new();
+    for r in c.query("select code, id from bin", &[]).await.unwrap() {
+        bin_ids.insert(r.get::<_, String>(0), r.get::<_, i64>(1));
+    }
+    let mut item_ids = std::collections::HashMap::new();
+    for r in c.query("select sku, id from item", &[]).await.unwrap() {
+        item_ids.insert(r.get::<_, String>(0), r.get::<_, i64>(1));
+    }
+    let bins: Vec<i64> = (0..BINS).map(|i| bin_ids[&bin_code(i)]).collect();
+    let items: Vec<i64> = (0..ITEMS).map(|i| item_ids[&format!("S{i}")]).collect();
+    let start = Instant::now();
+    for chunk in rows.chunks(BATCH) {
+        let tx = c.transaction().await.unwrap();
+        let ins = tx
+            .prepare(
+                "insert into movement (uid, site_id, bin_id, item_id, lot, qty, kind, event_at, recorded_at, source)
+                 values ($1, $2, $3, $4, '', $5, 'receipt', $6, $6, 'bench')",
+            )
+            .await
+            .unwrap();
+        for r in chunk {
+            tx.execute(
+                &ins,
+                &[&r.uid, &site.0, &bins[r.bin], &items[r.item], &r.qty, &r.at],
+            )
+            .await
+            .unwrap();
+        }
+        tx.commit().await.unwrap();
+    }
+    rows.len() as f64 / start.elapsed().as_secs_f64()
+}
+
+/// Movements through the HTTP API of a server on PostgreSQL, `clients` senders.
+async fn pg_through_api(admin: &str, rows: &[Row], clients: usize) -> f64 {
+    let url = pg_database(admin, &format!("cairn_bench_api{clients}"));
+    pg_master(&url).await;
+    let token = host_token(&url);
+    let state = AppState::open(Config {
+        db: DbLocation::parse(&url).unwrap(),
+        ..Config::default()
+    })
+    .unwrap();
+    post_all(state, &token, rows, clients).await
+}
+
 fn ingest_table(dir: &Path, ingest: usize) {
     let data = rows(ingest, 1);
     let rt = tokio::runtime::Builder::new_multi_thread()
@@ -522,6 +667,18 @@ fn ingest_table(dir: &Path, ingest: usize) {
         let api4 = rt.block_on(through_api(dir, &data, sync, 4));
         println!(
             "| {sync:?} | {raw:.0} | {api1:.0} | {:.2} | {api4:.0} | {:.2} |",
+            api1 / raw,
+            api4 / raw
+        );
+    }
+    if let Ok(admin) = std::env::var("CAIRN_BENCH_PG") {
+        // The same rows on PostgreSQL (its own durability: synchronous_commit as the
+        // server has it).
+        let raw = rt.block_on(pg_raw_ceiling(&admin, &data));
+        let api1 = rt.block_on(pg_through_api(&admin, &data, 1));
+        let api4 = rt.block_on(pg_through_api(&admin, &data, 4));
+        println!(
+            "| PostgreSQL | {raw:.0} | {api1:.0} | {:.2} | {api4:.0} | {:.2} |",
             api1 / raw,
             api4 / raw
         );
