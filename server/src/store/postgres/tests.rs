@@ -604,6 +604,107 @@ async fn planning_answers(
     out.push(serde_json::to_value(balances).unwrap());
     out.push(serde_json::to_value(store.bins(site.id, None).await.unwrap()).unwrap());
     out.push(serde_json::to_value(store.site_counts(site.id).await.unwrap()).unwrap());
+    out.extend(accuracy_answers(store, site, day).await);
+    out
+}
+
+/// Everything the accuracy area answers for a site, as JSON (or Debug text for the types
+/// that are not sent anywhere), the planner inputs' write time left out.
+async fn accuracy_answers(
+    store: &dyn Store,
+    site: &crate::master::Site,
+    day: chrono::NaiveDate,
+) -> Vec<serde_json::Value> {
+    use crate::accuracy::inputs::{InputTarget, LeadTimes, NewPlannerInput};
+    let mut out = Vec::new();
+    let mut settings = store.accuracy_settings(site.id).await.unwrap();
+    out.push(serde_json::to_value(settings).unwrap());
+    settings.ira_target = 0.97;
+    settings.service_level[1] = 0.9;
+    store
+        .put_accuracy_settings(site.id, settings)
+        .await
+        .unwrap();
+    out.push(serde_json::to_value(store.accuracy_settings(site.id).await.unwrap()).unwrap());
+    let times = LeadTimes {
+        lead_time_days: 4.5,
+        lead_time_sd_days: 1.25,
+        review_days: 7.0,
+        service_level: Some(0.95),
+    };
+    let inputs = vec![
+        NewPlannerInput {
+            target: InputTarget::Item(Sku::parse("SKU-003").unwrap()),
+            times,
+        },
+        NewPlannerInput {
+            target: InputTarget::Group("fasteners".into()),
+            times: LeadTimes {
+                service_level: None,
+                ..times
+            },
+        },
+    ];
+    let written = store
+        .put_planner_inputs(site.id, inputs, "pat".into(), None)
+        .await
+        .unwrap();
+    out.push(serde_json::json!(written));
+    let unknown = vec![NewPlannerInput {
+        target: InputTarget::Item(Sku::parse("NO-SUCH").unwrap()),
+        times,
+    }];
+    let refused = store
+        .put_planner_inputs(site.id, unknown, "pat".into(), None)
+        .await
+        .unwrap_err();
+    out.push(serde_json::json!(format!("{refused:?}")));
+    let mut inputs = serde_json::to_value(store.planner_inputs(site.id).await.unwrap()).unwrap();
+    for input in inputs.as_array_mut().unwrap() {
+        input["updated_at"] = serde_json::Value::Null;
+    }
+    out.push(inputs);
+    let (start, end) = site.time_zone.range(day);
+    let days: Vec<_> = (0..30)
+        .map(|back| {
+            let d = day - chrono::Duration::days(back);
+            (d, site.time_zone.start_of(d))
+        })
+        .rev()
+        .collect();
+    let debug = |v: &dyn std::fmt::Debug| serde_json::json!(format!("{v:?}"));
+    out.push(debug(
+        &store
+            .daily_issues(site.id, days.clone(), end, None)
+            .await
+            .unwrap(),
+    ));
+    out.push(debug(
+        &store
+            .daily_issues(site.id, days, end, Some(Sku::parse("SKU-004").unwrap()))
+            .await
+            .unwrap(),
+    ));
+    out.push(debug(
+        &store
+            .planned_tasks(site.id, day, day + chrono::Duration::days(1))
+            .await
+            .unwrap(),
+    ));
+    out.push(debug(&store.a_items(site.id, start).await.unwrap()));
+    out.push(serde_json::to_value(store.accuracy_items(site.id, None).await.unwrap()).unwrap());
+    let results = store
+        .accuracy_results(
+            site.id,
+            crate::accuracy::store::ResultQuery {
+                from: Timestamp(0),
+                to: end,
+                sku: None,
+            },
+        )
+        .await
+        .unwrap();
+    out.push(serde_json::to_value(results).unwrap());
     out
 }
 
