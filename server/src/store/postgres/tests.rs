@@ -246,6 +246,28 @@ async fn balances_now_and_as_of_equal_the_sum_of_deltas_under_snapshots() {
             }
         }
     }
+    // Inside a write the same balance is read as outside it.
+    let t = 120;
+    let want: i64 = model
+        .iter()
+        .filter(|m| m.0 == 1 && m.1 == 0 && m.3 <= t)
+        .map(|m| m.2)
+        .sum();
+    let got = store
+        .write_tx(WriteScope::Site(site), move |tx| {
+            use crate::ledger::LedgerTx;
+            let bin = tx.bin_id(site, &BinCode::parse(BINS[1]).unwrap())?.unwrap();
+            let item = tx.item_ref(site, &Sku::parse(SKUS[0]).unwrap())?.unwrap();
+            let key = crate::ledger::LedgerKey {
+                bin_id: bin,
+                item_id: item.id,
+                lot: String::new(),
+            };
+            super::ledger::tx_balance_as_of(tx, &key, t)
+        })
+        .await
+        .unwrap();
+    assert_eq!(got, want);
     let c = store.client().await.unwrap();
     let snapshots: i64 = c
         .query_one("select count(*) from balance_snapshot", &[])
@@ -359,6 +381,8 @@ async fn history_pages_in_event_order_and_site_codes_stay_unique() {
     let counts = store.site_counts(site).await.unwrap();
     assert_eq!((counts.zones, counts.bins, counts.items), (1, 2, 2));
     assert_eq!(store.bins(site, None).await.unwrap().len(), 2);
+    store.ping_writer().await.unwrap();
+    assert_eq!(store.site_counts(site).await.unwrap().movements, 7);
 }
 
 /// Opens a SQLite store in `dir` and a PostgreSQL one at `url`, each with the same site.
