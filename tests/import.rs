@@ -1,4 +1,5 @@
-//! CSV import end to end, through the real `cairn` binary and a real SQLite file.
+//! CSV import end to end, through the real `cairn` binary and a real database (a SQLite
+//! file, or PostgreSQL when the suites' switch is set).
 
 mod common;
 
@@ -17,15 +18,13 @@ fn write(path: &Path, text: &str) {
     std::fs::write(path, text).expect("the temporary file is writable");
 }
 
-fn movement_count(db: &Path) -> i64 {
-    let conn = common::sqlite_file(db);
-    conn.query_row("select count(*) from movement", [], |r| r.get(0))
-        .unwrap()
+fn movement_count(db: &common::CliDb) -> i64 {
+    db.sql_i64("select count(*) from movement")
 }
 
 /// Creates a site with 100 bins and 50 items through the CLI.
-fn site(dir: &Path) -> String {
-    let db = dir.join("t.db").display().to_string();
+fn site(dir: &Path) -> common::CliDb {
+    let db = common::CliDb::new(dir.join("t.db"));
     assert!(
         cairn(&["site", "add", "--db", &db, "--code", "T", "--name", "Test"])
             .status
@@ -109,7 +108,7 @@ fn a_bad_row_in_ten_thousand_writes_nothing_and_reports_its_line() {
     assert!(!ok);
     assert!(stderr.contains("line 7342, qty"), "{stderr}");
     assert!(stderr.contains("nothing was written"), "{stderr}");
-    assert_eq!(movement_count(Path::new(&db)), 0);
+    assert_eq!(movement_count(&db), 0);
 }
 
 #[test]
@@ -129,7 +128,7 @@ fn a_row_naming_an_unknown_bin_is_reported_by_line_after_the_shape_checks() {
         stderr.contains("line 1500, bin: unknown bin 'Z-09-09-9'"),
         "{stderr}"
     );
-    assert_eq!(movement_count(Path::new(&db)), 0);
+    assert_eq!(movement_count(&db), 0);
 }
 
 #[test]
@@ -145,23 +144,17 @@ fn a_good_file_imports_and_a_second_import_is_acknowledged_not_applied() {
         "{}",
         String::from_utf8_lossy(&out.stderr)
     );
-    assert_eq!(movement_count(Path::new(&db)), 10_000);
+    assert_eq!(movement_count(&db), 10_000);
     let out = cairn(&["import", "movements", "--db", &db, "--site", "T", &p]);
     let stdout = String::from_utf8_lossy(&out.stdout);
     assert!(
         stdout.contains("0 written, 10000 already recorded"),
         "{stdout}"
     );
-    assert_eq!(movement_count(Path::new(&db)), 10_000);
+    assert_eq!(movement_count(&db), 10_000);
     // Each import (two of bins and items, two of movements) is in the audit trail.
-    let conn = common::sqlite_file(&db);
-    let imports: i64 = conn
-        .query_row(
-            "select count(*) from audit_event where action = 'import' and actor = 'cli'",
-            [],
-            |r| r.get(0),
-        )
-        .unwrap();
+    let imports =
+        db.sql_i64("select count(*) from audit_event where action = 'import' and actor = 'cli'");
     assert_eq!(imports, 4);
 }
 
@@ -232,7 +225,7 @@ fn a_nul_byte_in_a_field_is_refused_with_its_line_and_column() {
         stderr.contains("line 9, event_at: holds a NUL byte"),
         "{stderr}"
     );
-    assert_eq!(movement_count(Path::new(&db)), 0);
+    assert_eq!(movement_count(&db), 0);
     let items = dir.path().join("nul-items.csv");
     write(
         &items,

@@ -785,17 +785,7 @@ impl TestApp {
     /// Reads one integer with a statement both stores understand (a count, a sum cast to
     /// an integer), from the test's database beside the API.
     pub fn sql_i64(&self, sql: &str) -> i64 {
-        match &self.pg {
-            Some(pg) => on_pg(&pg.url, sql, |c, sql| async move {
-                c.query_one(sql.as_str(), &[])
-                    .await
-                    .map(|r| r.get::<_, i64>(0))
-            })
-            .unwrap_or_else(|e| panic!("{sql}: {e}")),
-            None => sqlite_file(&self.db)
-                .query_row(sql, [], |r| r.get(0))
-                .unwrap_or_else(|e| panic!("{sql}: {e}")),
-        }
+        sql_i64_on(self.pg.as_ref().map(|p| p.url.as_str()), &self.db, sql)
     }
 
     /// Runs one statement on the test's database beside the API; returns the rows it
@@ -809,6 +799,54 @@ impl TestApp {
                 .execute(sql, [])
                 .map(|n| n as u64)
                 .map_err(|e| e.to_string()),
+        }
+    }
+}
+
+/// Reads one integer from the PostgreSQL database `pg` if given, else the SQLite `file`.
+fn sql_i64_on(pg: Option<&str>, file: &std::path::Path, sql: &str) -> i64 {
+    match pg {
+        Some(url) => on_pg(url, sql, |c, sql| async move {
+            c.query_one(sql.as_str(), &[])
+                .await
+                .map(|r| r.get::<_, i64>(0))
+        })
+        .unwrap_or_else(|e| panic!("{sql}: {e}")),
+        None => sqlite_file(file)
+            .query_row(sql, [], |r| r.get(0))
+            .unwrap_or_else(|e| panic!("{sql}: {e}")),
+    }
+}
+
+/// The database of a test that drives the `cairn` binary without a server: the SQLite
+/// `file`, or a new PostgreSQL database of its own when the suites run there (dropped
+/// with it). Reads as the `--db` value.
+pub struct CliDb {
+    file: PathBuf,
+    pg: Option<PgTestDb>,
+}
+
+impl CliDb {
+    /// Names the test's database (`file` is used on SQLite only).
+    pub fn new(file: PathBuf) -> Self {
+        Self {
+            file,
+            pg: PgTestDb::create(),
+        }
+    }
+
+    /// Reads one integer with a statement both stores understand.
+    pub fn sql_i64(&self, sql: &str) -> i64 {
+        sql_i64_on(self.pg.as_ref().map(|p| p.url.as_str()), &self.file, sql)
+    }
+}
+
+impl std::ops::Deref for CliDb {
+    type Target = str;
+    fn deref(&self) -> &str {
+        match &self.pg {
+            Some(pg) => &pg.url,
+            None => self.file.to_str().expect("the temporary path is UTF-8"),
         }
     }
 }

@@ -168,23 +168,34 @@ pub async fn watermark(c: &Client) -> Result<i64, StoreError> {
     Ok(row_one(c, WATERMARK, &[]).await?.get(0))
 }
 
-/// Returns the balance of `key` as of `at`: the sum of its deltas with `event_at <= at`,
-/// read from the newest snapshot at or before `at` plus one index range after it.
+/// The balance of a key (`$1` bin, `$2` item, `$3` lot) as of `$4`: the sum of its deltas
+/// with `event_at <= $4`, read from the newest snapshot at or before it plus one index
+/// range after it.
+const BALANCE_AS_OF: &str = "with s as (select at, qty from balance_snapshot
+                where bin_id = $1 and item_id = $2 and lot = $3 and at <= $4
+                order by at desc limit 1)
+     select coalesce((select qty from s), 0)
+          + coalesce((select sum(qty) from movement
+                      where bin_id = $1 and item_id = $2 and lot = $3
+                        and event_at > coalesce((select at from s), '-9223372036854775808'::bigint)
+                        and event_at <= $4), 0)::bigint";
+
+/// Returns the balance of `key` as of `at` on a read connection.
 pub async fn balance_as_of(c: &Client, key: &LedgerKey, at: i64) -> Result<i64, StoreError> {
     Ok(row_one(
         c,
-        "with s as (select at, qty from balance_snapshot
-                    where bin_id = $1 and item_id = $2 and lot = $3 and at <= $4
-                    order by at desc limit 1)
-         select coalesce((select qty from s), 0)
-              + coalesce((select sum(qty) from movement
-                          where bin_id = $1 and item_id = $2 and lot = $3
-                            and event_at > coalesce((select at from s), '-9223372036854775808'::bigint)
-                            and event_at <= $4), 0)::bigint",
+        BALANCE_AS_OF,
         &[&key.bin_id, &key.item_id, &key.lot, &at],
     )
     .await?
     .get(0))
+}
+
+/// Returns the balance of `key` as of `at` inside a write (what netting reads).
+pub fn tx_balance_as_of(tx: &PgTx<'_>, key: &LedgerKey, at: i64) -> Result<i64, StoreError> {
+    Ok(tx
+        .query_one(BALANCE_AS_OF, &[&key.bin_id, &key.item_id, &key.lot, &at])?
+        .get(0))
 }
 
 fn parse_cursor<const N: usize>(text: &str) -> Result<[String; N], StoreError> {

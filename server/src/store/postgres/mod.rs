@@ -13,6 +13,7 @@ pub mod master;
 pub mod migrate;
 pub mod netting;
 pub mod planning;
+pub mod recount_tasks;
 pub mod review;
 pub mod store_impl;
 pub mod sync;
@@ -197,6 +198,13 @@ pub fn is_unique_violation(e: &tokio_postgres::Error) -> bool {
 /// Narrows a stored integer to the domain's type, or says which stored value is beyond it.
 pub fn narrow<T: TryFrom<i64>>(v: i64, what: &str) -> Result<T, StoreError> {
     T::try_from(v).map_err(|_| anyhow::anyhow!("stored {what} {v} is out of range").into())
+}
+
+/// Reads integer column `i` of `r` narrowed to the domain's type, naming the column when
+/// a stored value is beyond it.
+pub fn col<T: TryFrom<i64>>(r: &Row, i: usize) -> Result<T, StoreError> {
+    let v: i64 = r.try_get(i)?;
+    narrow(v, r.columns()[i].name())
 }
 
 /// Runs a read (prepared once per connection) on a pooled connection; returns its rows.

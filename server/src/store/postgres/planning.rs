@@ -1,85 +1,247 @@
-//! The day's count list over PostgreSQL: settings and calendar, ABC runs and class history, short picks, the facts a plan is built from, stored lists with their tasks and runs.
-#![allow(unused_imports, unused_variables)]
+//! The day's count list over PostgreSQL: settings and calendar, ABC runs and class
+//! history, short picks, the facts a plan is built from, and stored lists with their
+//! tasks and runs. Every write holds its site's lock.
 
-use super::PgStore;
-use super::tx::{PgTx, not_yet};
-use crate::accounts::audit::AuditEvent;
-use crate::accounts::store::AccountStore;
-use crate::accuracy::store::AccuracyStore;
-use crate::ledger::BalanceRow;
-use crate::ledger::Movement;
-use crate::master::Bin;
-use crate::master::NewBin;
-use crate::master::NewItem;
-use crate::master::NewPack;
-use crate::master::NewSite;
-use crate::master::Site;
-use crate::master::SiteCode;
-use crate::master::SiteCounts;
+use super::recount_tasks::{self, Placing};
+use super::tx::PgTx;
+use super::{PgStore, col, is_unique_violation, row_one, row_opt, rows};
+use crate::accounts::UserName;
+use crate::batch::RowError;
+use crate::ledger::WatermarkTx;
 use crate::master::SiteId;
-use crate::master::codes::BinCode;
 use crate::master::codes::Sku;
-use crate::master::codes::ZoneCode;
-use crate::planning::AbcSummary;
-use crate::planning::ClassChange;
-use crate::planning::ListView;
-use crate::planning::NewCountList;
-use crate::planning::Settings;
-use crate::planning::abc::AbcRule;
-use crate::planning::abc::Class;
-use crate::planning::abc::Usage;
+use crate::planning::abc::{self, AbcRule, Basis, Class, Usage};
 use crate::planning::calendar::Calendar;
-use crate::planning::plan::Capacity;
-use crate::planning::plan::Fill;
-use crate::planning::plan::PlanInput;
-use crate::planning::short_pick::NewShortPick;
-use crate::planning::short_pick::ShortPickOutcome;
-use crate::review::store::ReviewStore;
-use crate::store::{
-    BalancePage, BalanceQuery, HistoryPage, HistoryQuery, Progress, ShelfRow, Store, StoreError,
+use crate::planning::due::Frequency;
+use crate::planning::estimate::TaskTime;
+use crate::planning::plan::{BinFacts, Capacity, Fill, ItemFacts, PlanInput, Trigger};
+use crate::planning::short_pick::{NewShortPick, ShortPickOutcome};
+use crate::planning::walk::Place;
+use crate::planning::{
+    AbcSummary, ClassChange, ListView, NewCountList, Settings, Summary, TaskView, TriggerKind,
 };
-use crate::time::Timestamp;
+use crate::store::{StoreError, WriteScope};
+use crate::time::{DAY_MS, Timestamp};
 use chrono::NaiveDate;
+use deadpool_postgres::Client;
+use std::collections::{HashMap, HashSet};
+use tokio_postgres::Row;
 
-/// See [`Store::planning_settings`].
-pub async fn planning_settings(store: &PgStore, site: SiteId) -> Result<Settings, StoreError> {
-    Err(not_yet("Store::planning_settings"))
+fn day_text(d: NaiveDate) -> String {
+    d.format("%Y-%m-%d").to_string()
 }
 
-/// See [`Store::put_planning_settings`].
+fn parse_day(text: &str) -> Result<NaiveDate, StoreError> {
+    NaiveDate::parse_from_str(text, "%Y-%m-%d")
+        .map_err(|e| anyhow::anyhow!("a stored day '{text}' cannot be read: {e}").into())
+}
+
+fn settings_of(r: &Row) -> Result<Settings, StoreError> {
+    let basis: String = r.get(0);
+    Ok(Settings {
+        abc: AbcRule {
+            basis: Basis::parse(&basis).unwrap_or(Basis::Value),
+            a_pct: col(r, 1)?,
+            b_pct: col(r, 2)?,
+            window_days: col(r, 3)?,
+        },
+        frequency: Frequency {
+            per_year: [col(r, 4)?, col(r, 5)?, col(r, 6)?],
+            dead_per_year: col(r, 7)?,
+        },
+        task_time: TaskTime {
+            base_s: col(r, 8)?,
+            per_line_s: col(r, 9)?,
+        },
+        zero_demand_days: col(r, 10)?,
+        level_slack_pct: col(r, 11)?,
+    })
+}
+
+/// Reads a site's planning settings, or the defaults when none were stored.
+async fn settings(c: &Client, site: SiteId) -> Result<Settings, StoreError> {
+    match row_opt(
+        c,
+        "select abc_basis, abc_a_pct, abc_b_pct, abc_window_days, per_year_a, per_year_b,
+                per_year_c, per_year_dead, task_base_s, task_line_s, zero_demand_days,
+                level_slack_pct
+         from planning_settings where site_id = $1",
+        &[&site.0],
+    )
+    .await?
+    {
+        Some(r) => settings_of(&r),
+        None => Ok(Settings::default()),
+    }
+}
+
+/// Reads a site's calendar, or Monday to Friday without holidays when none was stored.
+async fn read_calendar(c: &Client, site: SiteId) -> Result<Calendar, StoreError> {
+    let mut cal = Calendar::default();
+    if let Some(r) = row_opt(
+        c,
+        "select weekday_mask from site_calendar where site_id = $1",
+        &[&site.0],
+    )
+    .await?
+    {
+        let mask: i64 = r.get(0);
+        for (i, w) in cal.working_weekdays.iter_mut().enumerate() {
+            *w = mask & (1 << i) != 0;
+        }
+    }
+    for r in rows(
+        c,
+        "select day from site_holiday where site_id = $1",
+        &[&site.0],
+    )
+    .await?
+    {
+        cal.holidays.insert(parse_day(r.get(0))?);
+    }
+    Ok(cal)
+}
+
+/// Returns every item's current class.
+async fn current_classes(c: &Client, site: SiteId) -> Result<HashMap<i64, Class>, StoreError> {
+    Ok(rows(c, CURRENT_CLASSES, &[&site.0])
+        .await?
+        .iter()
+        .map(class_row)
+        .collect())
+}
+
+const CURRENT_CLASSES: &str =
+    "select ic.item_id, ic.class from item_class ic join item on item.id = ic.item_id
+     where item.site_id = $1
+       and ic.run_id = (select max(x.run_id) from item_class x where x.item_id = ic.item_id)";
+
+fn class_row(r: &Row) -> (i64, Class) {
+    let class: String = r.get(1);
+    (r.get(0), Class::parse(&class).unwrap_or(Class::C))
+}
+
+/// See [`crate::store::Store::planning_settings`].
+pub async fn planning_settings(store: &PgStore, site: SiteId) -> Result<Settings, StoreError> {
+    settings(&store.client().await?, site).await
+}
+
+/// See [`crate::store::Store::put_planning_settings`].
 pub async fn put_planning_settings(
     store: &PgStore,
     site: SiteId,
-    settings: Settings,
+    s: Settings,
 ) -> Result<(), StoreError> {
-    Err(not_yet("Store::put_planning_settings"))
+    store
+        .write_tx(WriteScope::Site(site), move |tx| {
+            tx.execute(
+                "insert into planning_settings (site_id, abc_basis, abc_a_pct, abc_b_pct,
+                     abc_window_days, per_year_a, per_year_b, per_year_c, per_year_dead,
+                     task_base_s, task_line_s, zero_demand_days, level_slack_pct)
+                 values ($1, $2, $3, $4, $5, $6, $7, $8, $9, $10, $11, $12, $13)
+                 on conflict (site_id) do update set abc_basis = excluded.abc_basis,
+                     abc_a_pct = excluded.abc_a_pct, abc_b_pct = excluded.abc_b_pct,
+                     abc_window_days = excluded.abc_window_days,
+                     per_year_a = excluded.per_year_a, per_year_b = excluded.per_year_b,
+                     per_year_c = excluded.per_year_c, per_year_dead = excluded.per_year_dead,
+                     task_base_s = excluded.task_base_s, task_line_s = excluded.task_line_s,
+                     zero_demand_days = excluded.zero_demand_days,
+                     level_slack_pct = excluded.level_slack_pct",
+                &[
+                    &site.0,
+                    &s.abc.basis.as_str(),
+                    &i64::from(s.abc.a_pct),
+                    &i64::from(s.abc.b_pct),
+                    &i64::from(s.abc.window_days),
+                    &i64::from(s.frequency.per_year[0]),
+                    &i64::from(s.frequency.per_year[1]),
+                    &i64::from(s.frequency.per_year[2]),
+                    &i64::from(s.frequency.dead_per_year),
+                    &i64::from(s.task_time.base_s),
+                    &i64::from(s.task_time.per_line_s),
+                    &i64::from(s.zero_demand_days),
+                    &i64::from(s.level_slack_pct),
+                ],
+            )?;
+            Ok(())
+        })
+        .await
 }
 
-/// See [`Store::calendar`].
+/// See [`crate::store::Store::calendar`].
 pub async fn calendar(store: &PgStore, site: SiteId) -> Result<Calendar, StoreError> {
-    Err(not_yet("Store::calendar"))
+    read_calendar(&store.client().await?, site).await
 }
 
-/// See [`Store::put_calendar`].
-pub async fn put_calendar(
-    store: &PgStore,
-    site: SiteId,
-    calendar: Calendar,
-) -> Result<(), StoreError> {
-    Err(not_yet("Store::put_calendar"))
+/// See [`crate::store::Store::put_calendar`].
+pub async fn put_calendar(store: &PgStore, site: SiteId, cal: Calendar) -> Result<(), StoreError> {
+    let mask: i64 = (0..7)
+        .filter(|&i| cal.working_weekdays[i])
+        .map(|i| 1 << i)
+        .sum();
+    store
+        .write_tx(WriteScope::Site(site), move |tx| {
+            tx.execute(
+                "insert into site_calendar (site_id, weekday_mask) values ($1, $2)
+                 on conflict (site_id) do update set weekday_mask = excluded.weekday_mask",
+                &[&site.0, &mask],
+            )?;
+            tx.execute("delete from site_holiday where site_id = $1", &[&site.0])?;
+            for d in &cal.holidays {
+                tx.execute(
+                    "insert into site_holiday (site_id, day) values ($1, $2)",
+                    &[&site.0, &day_text(*d)],
+                )?;
+            }
+            Ok(())
+        })
+        .await
 }
 
-/// See [`Store::abc_usage`].
+/// See [`crate::store::Store::abc_usage`]: every item's issues (picks, net of their
+/// reversals) with event time in `[from, to)`, the event time of its first movement and
+/// whether it has a class already.
 pub async fn abc_usage(
     store: &PgStore,
     site: SiteId,
     from: Timestamp,
     to: Timestamp,
 ) -> Result<Vec<Usage>, StoreError> {
-    Err(not_yet("Store::abc_usage"))
+    let c = store.client().await?;
+    Ok(rows(
+        &c,
+        "select i.id, i.unit_cost_minor, coalesce(u.issued, 0)::bigint, coalesce(u.hits, 0)::bigint,
+                (select min(m.event_at) from movement m where m.item_id = i.id),
+                exists (select 1 from item_class c where c.item_id = i.id)
+         from item i left join (
+             select item_id, sum(-qty) as issued,
+                    sum(case when qty < 0 then 1 else -1 end) as hits
+             from movement
+             where site_id = $1 and kind = 'pick' and event_at >= $2 and event_at < $3
+             group by item_id
+         ) u on u.item_id = i.id
+         where i.site_id = $1",
+        &[&site.0, &from.0, &to.0],
+    )
+    .await?
+    .iter()
+    .map(|r| {
+        let (item, cost, issued, hits): (i64, i64, i64, i64) =
+            (r.get(0), r.get(1), r.get(2), r.get(3));
+        let value = i128::from(issued.max(0)) * i128::from(cost);
+        Usage {
+            item,
+            value_minor: i64::try_from(value).unwrap_or(i64::MAX),
+            hits,
+            first_seen_ms: r.get(4),
+            classified: r.get(5),
+        }
+    })
+    .collect())
 }
 
-/// See [`Store::record_classes`].
+/// See [`crate::store::Store::record_classes`]: the run, and a history row for each item
+/// whose class changed.
 pub async fn record_classes(
     store: &PgStore,
     site: SiteId,
@@ -87,33 +249,262 @@ pub async fn record_classes(
     rule: AbcRule,
     classes: Vec<(i64, Class)>,
 ) -> Result<AbcSummary, StoreError> {
-    Err(not_yet("Store::record_classes"))
+    store
+        .write_tx(WriteScope::Site(site), move |tx| {
+            let current: HashMap<i64, Class> = tx
+                .query(CURRENT_CLASSES, &[&site.0])?
+                .iter()
+                .map(class_row)
+                .collect();
+            let changed = abc::changes(&current, &classes);
+            let wm = tx.watermark()?;
+            let run: i64 = tx
+                .query_one(
+                    "insert into abc_run (site_id, day, basis, a_pct, b_pct, window_days, items,
+                                          changed, watermark, ran_at)
+                     values ($1, $2, $3, $4, $5, $6, $7, $8, $9, $10)
+                     returning id",
+                    &[
+                        &site.0,
+                        &day_text(day),
+                        &rule.basis.as_str(),
+                        &i64::from(rule.a_pct),
+                        &i64::from(rule.b_pct),
+                        &i64::from(rule.window_days),
+                        &(classes.len() as i64),
+                        &(changed.len() as i64),
+                        &wm,
+                        &Timestamp::now().0,
+                    ],
+                )?
+                .get(0);
+            for (item, class) in &changed {
+                tx.execute(
+                    "insert into item_class (item_id, run_id, class, since) values ($1, $2, $3, $4)",
+                    &[item, &run, &class.as_str(), &day_text(day)],
+                )?;
+            }
+            let mut per_class = [0usize; 3];
+            for (_, c) in &classes {
+                per_class[c.index()] += 1;
+            }
+            Ok(AbcSummary {
+                run,
+                day,
+                rule,
+                items: classes.len(),
+                changed: changed.len(),
+                a: per_class[0],
+                b: per_class[1],
+                c: per_class[2],
+                watermark: wm,
+            })
+        })
+        .await
 }
 
-/// See [`Store::latest_abc`].
+/// See [`crate::store::Store::latest_abc`].
 pub async fn latest_abc(store: &PgStore, site: SiteId) -> Result<Option<AbcSummary>, StoreError> {
-    Err(not_yet("Store::latest_abc"))
+    let c = store.client().await?;
+    let Some(r) = row_opt(
+        &c,
+        "select id, day, basis, a_pct, b_pct, window_days, items, changed, watermark
+         from abc_run where site_id = $1 order by id desc limit 1",
+        &[&site.0],
+    )
+    .await?
+    else {
+        return Ok(None);
+    };
+    let basis: String = r.get(2);
+    let mut run = AbcSummary {
+        run: r.get(0),
+        day: parse_day(r.get(1))?,
+        rule: AbcRule {
+            basis: Basis::parse(&basis).unwrap_or(Basis::Value),
+            a_pct: col(&r, 3)?,
+            b_pct: col(&r, 4)?,
+            window_days: col(&r, 5)?,
+        },
+        items: col(&r, 6)?,
+        changed: col(&r, 7)?,
+        a: 0,
+        b: 0,
+        c: 0,
+        watermark: r.get(8),
+    };
+    for class in current_classes(&c, site).await?.values() {
+        match class {
+            Class::A => run.a += 1,
+            Class::B => run.b += 1,
+            Class::C => run.c += 1,
+        }
+    }
+    Ok(Some(run))
 }
 
-/// See [`Store::class_history`].
+/// See [`crate::store::Store::class_history`]: oldest first.
 pub async fn class_history(
     store: &PgStore,
     site: SiteId,
     sku: Sku,
 ) -> Result<Vec<ClassChange>, StoreError> {
-    Err(not_yet("Store::class_history"))
+    let c = store.client().await?;
+    let item: i64 = row_opt(
+        &c,
+        "select id from item where site_id = $1 and sku = $2",
+        &[&site.0, &sku.as_str()],
+    )
+    .await?
+    .ok_or_else(|| StoreError::NotFound(format!("unknown SKU '{sku}' in this site")))?
+    .get(0);
+    rows(
+        &c,
+        "select ic.class, ic.since, ic.run_id, r.basis
+           from item_class ic join abc_run r on r.id = ic.run_id
+          where ic.item_id = $1 order by ic.run_id",
+        &[&item],
+    )
+    .await?
+    .iter()
+    .map(|r| {
+        let class: String = r.get(0);
+        Ok(ClassChange {
+            class: Class::parse(&class).unwrap_or(Class::C),
+            since: parse_day(r.get(1))?,
+            run: r.get(2),
+            basis: r.get(3),
+        })
+    })
+    .collect()
 }
 
-/// See [`Store::record_short_picks`].
+/// See [`crate::store::Store::record_short_picks`]: idempotent by id, all or nothing.
 pub async fn record_short_picks(
     store: &PgStore,
     site: SiteId,
     rows: Vec<NewShortPick>,
 ) -> Result<ShortPickOutcome, StoreError> {
-    Err(not_yet("Store::record_short_picks"))
+    let now = Timestamp::now();
+    store
+        .write_tx(WriteScope::Site(site), move |tx| {
+            insert_short_picks(tx, site, &rows, now)
+        })
+        .await
 }
 
-/// See [`Store::plan_input`].
+fn insert_short_picks(
+    tx: &PgTx<'_>,
+    site: SiteId,
+    rows: &[NewShortPick],
+    now: Timestamp,
+) -> Result<ShortPickOutcome, StoreError> {
+    let mut errors = Vec::new();
+    let mut out = ShortPickOutcome::default();
+    for (i, p) in rows.iter().enumerate() {
+        let bin: Option<i64> = tx
+            .query_opt(
+                "select id from bin where site_id = $1 and code = $2",
+                &[&site.0, &p.bin.as_str()],
+            )?
+            .map(|r| r.get(0));
+        let item: Option<i64> = tx
+            .query_opt(
+                "select id from item where site_id = $1 and sku = $2",
+                &[&site.0, &p.sku.as_str()],
+            )?
+            .map(|r| r.get(0));
+        if bin.is_none() {
+            errors.push(RowError::new(
+                i,
+                "bin",
+                format!("unknown bin '{}' in this site", p.bin),
+            ));
+        }
+        if item.is_none() {
+            errors.push(RowError::new(
+                i,
+                "sku",
+                format!("unknown SKU '{}' in this site", p.sku),
+            ));
+        }
+        let (Some(bin), Some(item)) = (bin, item) else {
+            continue;
+        };
+        let prev = tx
+            .query_opt(
+                "select site_id, bin_id, item_id, lot, short_qty, reported_at
+                   from short_pick where uid = $1",
+                &[&p.uid.as_str()],
+            )?
+            .map(|r| {
+                let prev: (i64, i64, i64, String, i64, i64) =
+                    (r.get(0), r.get(1), r.get(2), r.get(3), r.get(4), r.get(5));
+                prev
+            });
+        match prev {
+            Some(prev)
+                if prev
+                    == (
+                        site.0,
+                        bin,
+                        item,
+                        p.lot.clone(),
+                        p.short_qty,
+                        p.reported_at.0,
+                    ) =>
+            {
+                out.already_recorded += 1;
+            }
+            Some(_) => errors.push(RowError::new(
+                i,
+                "id",
+                format!("id '{}' is already recorded with different content", p.uid),
+            )),
+            None if errors.is_empty() => {
+                tx.execute(
+                    "insert into short_pick (uid, site_id, bin_id, item_id, lot, short_qty,
+                                             reported_at, recorded_at, source, doc_ref)
+                     values ($1, $2, $3, $4, $5, $6, $7, $8, $9, $10)",
+                    &[
+                        &p.uid.as_str(),
+                        &site.0,
+                        &bin,
+                        &item,
+                        &p.lot,
+                        &p.short_qty,
+                        &p.reported_at.0,
+                        &now.0,
+                        &p.source,
+                        &p.doc_ref,
+                    ],
+                )
+                .map_err(|e| {
+                    if is_unique_violation(&e) {
+                        StoreError::Rejected(vec![RowError::new(
+                            i,
+                            "id",
+                            format!("id '{}' appears twice in this batch", p.uid),
+                        )])
+                    } else {
+                        e.into()
+                    }
+                })?;
+                out.recorded += 1;
+            }
+            None => {}
+        }
+    }
+    if errors.is_empty() {
+        Ok(out)
+    } else {
+        Err(StoreError::Rejected(errors))
+    }
+}
+
+/// See [`crate::store::Store::plan_input`]: the facts one day's plan is built from. Rows
+/// come in the order the SQLite store reads them (bins by code, balances by key, short
+/// picks as reported), so both stores plan the same day alike.
 pub async fn plan_input(
     store: &PgStore,
     site: SiteId,
@@ -122,28 +513,422 @@ pub async fn plan_input(
     capacity: Capacity,
     fill: Fill,
 ) -> Result<PlanInput, StoreError> {
-    Err(not_yet("Store::plan_input"))
+    let c = store.client().await?;
+    let settings = settings(&c, site).await?;
+    let calendar = read_calendar(&c, site).await?;
+    let day_end = day_end.0;
+
+    // Bins, with the instant each was last counted (to tell old triggers from new).
+    let mut bins = Vec::new();
+    let mut counted_at = Vec::new();
+    let mut index: HashMap<i64, u32> = HashMap::new();
+    for r in rows(
+        &c,
+        "select b.id, b.code, z.code, z.walk_seq, z.id, b.aisle, b.bay, b.level, b.side, b.walk_seq,
+                bc.counted_on, bc.counted_at
+         from bin b join zone z on z.id = b.zone_id left join bin_count bc on bc.bin_id = b.id
+         where b.site_id = $1
+         order by b.code",
+        &[&site.0],
+    )
+    .await?
+    {
+        let side: String = r.get(8);
+        let last: Option<String> = r.get(10);
+        index.insert(r.get(0), bins.len() as u32);
+        bins.push(BinFacts {
+            id: r.get(0),
+            code: r.get(1),
+            zone: r.get(2),
+            place: Place {
+                zone_seq: r.get(3),
+                zone: r.get(4),
+                aisle: col(&r, 5)?,
+                bay: col(&r, 6)?,
+                level: col(&r, 7)?,
+                side: match side.as_str() {
+                    "L" => 0,
+                    "R" => 1,
+                    _ => 2,
+                },
+                walk_seq: r.get(9),
+            },
+            lines: 0,
+            last_count: last.as_deref().map(parse_day).transpose()?,
+        });
+        counted_at.push(r.get::<_, Option<i64>>(11).unwrap_or(i64::MIN));
+    }
+
+    // Items and their classes (items classified after the last run are C).
+    let classes = current_classes(&c, site).await?;
+    let mut items: Vec<ItemFacts> = Vec::new();
+    let mut skus: Vec<String> = Vec::new();
+    let mut item_index: HashMap<i64, usize> = HashMap::new();
+    for r in rows(
+        &c,
+        "select id, sku from item where site_id = $1 order by id",
+        &[&site.0],
+    )
+    .await?
+    {
+        let id: i64 = r.get(0);
+        item_index.insert(id, items.len());
+        skus.push(r.get(1));
+        items.push(ItemFacts {
+            id,
+            class: classes.get(&id).copied().unwrap_or(Class::C),
+            dead: false,
+            bins: Vec::new(),
+        });
+    }
+
+    // Balances: lines per bin, where each item is, negative and zero keys.
+    let mut triggers = Vec::new();
+    let mut stocked = vec![false; items.len()];
+    let mut last_move = vec![i64::MIN; items.len()];
+    let mut empty_bins: Vec<Vec<u32>> = vec![Vec::new(); items.len()];
+    let mut zero_keys = Vec::new();
+    for r in rows(
+        &c,
+        "select k.bin_id, k.item_id, k.lot, k.qty, k.last_event_at
+           from balance k join bin b on b.id = k.bin_id
+          where b.site_id = $1
+          order by k.bin_id, k.item_id, k.lot",
+        &[&site.0],
+    )
+    .await?
+    {
+        let (Some(&b), Some(&it)) = (
+            index.get(&r.get::<_, i64>(0)),
+            item_index.get(&r.get::<_, i64>(1)),
+        ) else {
+            continue;
+        };
+        let (qty, last): (i64, i64) = (r.get(3), r.get(4));
+        last_move[it] = last_move[it].max(last);
+        let bins_of = &mut items[it].bins;
+        if qty != 0 {
+            bins[b as usize].lines += 1;
+            stocked[it] = true;
+            if !bins_of.contains(&b) {
+                bins_of.push(b);
+            }
+        } else if !empty_bins[it].contains(&b) {
+            empty_bins[it].push(b);
+        }
+        if last <= counted_at[b as usize] {
+            continue;
+        }
+        if qty < 0 {
+            triggers.push(Trigger {
+                bin: b,
+                kind: TriggerKind::NegativeBalance,
+                detail: format!("{} book {qty}", skus[it]),
+            });
+        } else if qty == 0 && last >= day_end - i64::from(settings.zero_demand_days) * DAY_MS {
+            zero_keys.push((b, it, r.get::<_, String>(2)));
+        }
+    }
+    let year_ago = day_end - 365 * DAY_MS;
+    for (i, it) in items.iter_mut().enumerate() {
+        if !stocked[i] {
+            it.bins = std::mem::take(&mut empty_bins[i]);
+            it.dead = last_move[i] < year_ago;
+        }
+    }
+    let since = day_end - i64::from(settings.zero_demand_days) * DAY_MS;
+    for (b, it, lot) in zero_keys {
+        let n: i64 = row_one(
+            &c,
+            "select count(*) from movement
+              where bin_id = $1 and item_id = $2 and lot = $3 and event_at >= $4
+                and event_at < $5 and kind = 'pick'",
+            &[&bins[b as usize].id, &items[it].id, &lot, &since, &day_end],
+        )
+        .await?
+        .get(0);
+        if n > 0 {
+            triggers.push(Trigger {
+                bin: b,
+                kind: TriggerKind::ZeroBalance,
+                detail: format!("{} book 0 after {n} pick(s)", skus[it]),
+            });
+        }
+    }
+
+    // Short picks reported since the bin was last counted.
+    for r in rows(
+        &c,
+        "select sp.bin_id, i.sku, sp.short_qty, sp.reported_at
+           from short_pick sp join item i on i.id = sp.item_id
+          where sp.site_id = $1 and sp.reported_at < $2
+            and sp.reported_at > coalesce((select counted_at from bin_count bc
+                                            where bc.bin_id = sp.bin_id),
+                                           '-9223372036854775808'::bigint)
+          order by sp.id",
+        &[&site.0, &day_end],
+    )
+    .await?
+    {
+        let Some(&b) = index.get(&r.get::<_, i64>(0)) else {
+            continue;
+        };
+        let (sku, short): (String, i64) = (r.get(1), r.get(2));
+        triggers.push(Trigger {
+            bin: b,
+            kind: TriggerKind::ShortPick,
+            detail: format!("{sku} pick short by {short} at {}", Timestamp(r.get(3))),
+        });
+    }
+    let counting_since: Option<String> = row_one(
+        &c,
+        "select min(day) from abc_run where site_id = $1",
+        &[&site.0],
+    )
+    .await?
+    .get(0);
+    Ok(PlanInput {
+        day,
+        calendar,
+        settings,
+        bins,
+        items,
+        triggers,
+        recounts: recount_tasks::open_recounts(&c, site, day, &index).await?,
+        zone_time: HashMap::new(),
+        capacity,
+        fill,
+        counting_since: counting_since.as_deref().map(parse_day).transpose()?,
+        watermark: super::ledger::watermark(&c).await?,
+    })
 }
 
-/// See [`Store::save_count_list`].
+/// See [`crate::store::Store::save_count_list`]: an existing list is replaced only when
+/// asked and not yet started. Its open recounts are not deleted: the plan placed each
+/// again, and recounts the plan carries from earlier lists move here, noted on the list
+/// they left.
 pub async fn save_count_list(
     store: &PgStore,
     site: SiteId,
     list: NewCountList,
 ) -> Result<i64, StoreError> {
-    Err(not_yet("Store::save_count_list"))
+    store
+        .write_tx(WriteScope::Site(site), move |tx| save_list(tx, site, &list))
+        .await
 }
 
-/// See [`Store::count_list`].
+fn save_list(tx: &PgTx<'_>, site: SiteId, list: &NewCountList) -> Result<i64, StoreError> {
+    let day = day_text(list.day);
+    let existing: Option<i64> = tx
+        .query_opt(
+            "select id from count_list where site_id = $1 and day = $2",
+            &[&site.0, &day],
+        )?
+        .map(|r| r.get(0));
+    let warnings = serde_json::to_string(&list.warnings).map_err(anyhow::Error::from)?;
+    let (counters, minutes) = (i64::from(list.counters), i64::from(list.minutes));
+    let id = match existing {
+        Some(id) => {
+            if !list.replace {
+                return Err(StoreError::Conflict(format!(
+                    "a count list for {day} already exists: ask to replace it"
+                )));
+            }
+            // A task is started once a count points at it, even while it still reads
+            // open (a line can reach the server before its bin-opened event).
+            let started = tx
+                .query_opt(
+                    "select 1 from count_task t
+                     where t.list_id = $1 and t.withdrawn_at is null
+                       and (t.status <> 'open'
+                            or exists (select 1 from count_pass p where p.task_id = t.id))
+                     limit 1",
+                    &[&id],
+                )?
+                .is_some();
+            if started {
+                return Err(StoreError::Conflict(format!(
+                    "the count list for {day} has started: move its tasks instead of rebuilding it"
+                )));
+            }
+            // The list keeps its row (and so its recounts): its version goes up.
+            tx.execute(
+                "delete from count_task where list_id = $1 and recount_of is null",
+                &[&id],
+            )?;
+            tx.execute("delete from count_run where list_id = $1", &[&id])?;
+            tx.execute(
+                "update count_list set counters = $2, minutes = $3, level_s = $4, warnings = $5,
+                     built_at = $6, watermark = $7, version = version + 1
+                 where id = $1",
+                &[
+                    &id,
+                    &counters,
+                    &minutes,
+                    &list.level_s,
+                    &warnings,
+                    &Timestamp::now().0,
+                    &list.watermark,
+                ],
+            )?;
+            id
+        }
+        None => tx
+            .query_one(
+                "insert into count_list (site_id, day, counters, minutes, level_s, warnings,
+                     built_at, watermark, version)
+                 values ($1, $2, $3, $4, $5, $6, $7, $8, 1)
+                 returning id",
+                &[
+                    &site.0,
+                    &day,
+                    &counters,
+                    &minutes,
+                    &list.level_s,
+                    &warnings,
+                    &Timestamp::now().0,
+                    &list.watermark,
+                ],
+            )?
+            .get(0),
+    };
+    for r in 1..=i64::from(list.counters) {
+        tx.execute(
+            "insert into count_run (list_id, run) values ($1, $2)",
+            &[&id, &r],
+        )?;
+    }
+    let mut kept = HashSet::new();
+    let mut carried = Vec::new();
+    for t in &list.tasks {
+        if let Some(task) = t.recount_task {
+            let placing = Placing {
+                task,
+                seq: t.seq,
+                run: t.run,
+                detail: &t.detail,
+            };
+            carried.extend(recount_tasks::keep_recount(
+                tx, site, id, list.day, &placing,
+            )?);
+            kept.insert(task);
+            continue;
+        }
+        tx.execute(
+            "insert into count_task (list_id, bin_id, seq, run, reason, class, detail, lines, est_s)
+             values ($1, $2, $3, $4, $5, $6, $7, $8, $9)",
+            &[
+                &id,
+                &t.bin_id,
+                &i64::from(t.seq),
+                &i64::from(t.run),
+                &t.reason.as_str(),
+                &t.class.map(Class::as_str),
+                &t.detail,
+                &i64::from(t.lines),
+                &t.est_s,
+            ],
+        )?;
+    }
+    recount_tasks::refuse_unplaced(tx, id, &kept)?;
+    recount_tasks::note_carried(tx, &carried, list.day)?;
+    Ok(id)
+}
+
+/// See [`crate::store::Store::count_list`]: a stored list with its runs and tasks.
 pub async fn count_list(
     store: &PgStore,
     site: SiteId,
     day: NaiveDate,
 ) -> Result<Option<ListView>, StoreError> {
-    Err(not_yet("Store::count_list"))
+    let c = store.client().await?;
+    let Some(head) = row_opt(
+        &c,
+        "select id, counters, minutes, level_s, warnings, watermark, version
+         from count_list where site_id = $1 and day = $2",
+        &[&site.0, &day_text(day)],
+    )
+    .await?
+    else {
+        return Ok(None);
+    };
+    let id: i64 = head.get(0);
+    let tasks = rows(
+        &c,
+        "select t.id, t.seq, t.run, b.code, z.code, b.aisle, b.bay, b.level, t.reason, t.class,
+                t.detail, t.lines, t.est_s, t.status
+         from count_task t join bin b on b.id = t.bin_id join zone z on z.id = b.zone_id
+         where t.list_id = $1 and t.withdrawn_at is null order by t.run, t.seq",
+        &[&id],
+    )
+    .await?
+    .iter()
+    .map(|r| {
+        let class: Option<String> = r.get(9);
+        Ok(TaskView {
+            id: Some(r.get(0)),
+            seq: col(r, 1)?,
+            run: col(r, 2)?,
+            bin: r.get(3),
+            zone: r.get(4),
+            aisle: col(r, 5)?,
+            bay: col(r, 6)?,
+            level: col(r, 7)?,
+            reason: r.get(8),
+            class: class.as_deref().and_then(Class::parse),
+            detail: r.get(10),
+            lines: col(r, 11)?,
+            est_s: r.get(12),
+            status: r.get(13),
+        })
+    })
+    .collect::<Result<Vec<_>, StoreError>>()?;
+    let holders: Vec<String> = rows(
+        &c,
+        "select holder from count_run where list_id = $1 order by run",
+        &[&id],
+    )
+    .await?
+    .iter()
+    .map(|r| r.get(0))
+    .collect();
+    let warnings: String = head.get(4);
+    let mut view = ListView {
+        day,
+        stored: true,
+        version: head.get(6),
+        counters: col(&head, 1)?,
+        minutes: col(&head, 2)?,
+        level_s: head.get(3),
+        watermark: head.get(5),
+        warnings: serde_json::from_str(&warnings).unwrap_or_default(),
+        runs: Vec::new(),
+        summary: Summary::default(),
+        tasks,
+    };
+    view.tally(&holders);
+    Ok(Some(view))
 }
 
-/// See [`Store::move_task`].
+fn list_id(tx: &PgTx<'_>, site: SiteId, day: NaiveDate) -> Result<(i64, u32), StoreError> {
+    let r = tx
+        .query_opt(
+            "select id, counters from count_list where site_id = $1 and day = $2",
+            &[&site.0, &day_text(day)],
+        )?
+        .ok_or_else(|| StoreError::NotFound(format!("no count list for {day}")))?;
+    Ok((r.get(0), col(&r, 1)?))
+}
+
+fn bump(tx: &PgTx<'_>, list: i64) -> Result<(), StoreError> {
+    tx.execute(
+        "update count_list set version = version + 1 where id = $1",
+        &[&list],
+    )?;
+    Ok(())
+}
+
+/// See [`crate::store::Store::move_task`]: the task is then held by that run's counter only.
 pub async fn move_task(
     store: &PgStore,
     site: SiteId,
@@ -151,35 +936,149 @@ pub async fn move_task(
     task: i64,
     run: u32,
 ) -> Result<(), StoreError> {
-    Err(not_yet("Store::move_task"))
+    store
+        .write_tx(WriteScope::Site(site), move |tx| {
+            let (list, counters) = list_id(tx, site, day)?;
+            if run == 0 || run > counters {
+                return Err(StoreError::Rejected(vec![RowError::new(
+                    0,
+                    "run",
+                    format!("the list for {day} has runs 1 to {counters}"),
+                )]));
+            }
+            let r = tx
+                .query_opt(
+                    "select status, withdrawn_at is not null from count_task
+                      where id = $1 and list_id = $2",
+                    &[&task, &list],
+                )?
+                .ok_or_else(|| {
+                    StoreError::NotFound(format!("no task {task} in the list for {day}"))
+                })?;
+            let (status, withdrawn): (String, bool) = (r.get(0), r.get(1));
+            if withdrawn {
+                return Err(StoreError::Conflict(format!(
+                    "task {task} is a withdrawn recount and cannot move"
+                )));
+            }
+            if status == "done" {
+                return Err(StoreError::Conflict(format!(
+                    "task {task} is done and cannot move"
+                )));
+            }
+            let run = i64::from(run);
+            let holder: String = tx
+                .query_opt(
+                    "select holder from count_run where list_id = $1 and run = $2",
+                    &[&list, &run],
+                )?
+                .map(|r| r.get(0))
+                .unwrap_or_default();
+            if recount_tasks::would_recount_own_count(tx, task, &holder)? {
+                return Err(StoreError::Conflict(format!(
+                    "task {task} is a recount of a bin {holder} counted, and run {run} is {holder}'s: \
+                     a recount goes to someone else"
+                )));
+            }
+            tx.execute(
+                "update count_task set run = $1 where id = $2",
+                &[&run, &task],
+            )?;
+            bump(tx, list)
+        })
+        .await
 }
 
-/// See [`Store::hold_run`].
+/// See [`crate::store::Store::hold_run`]: a counter holds one run a day; none releases it.
 pub async fn hold_run(
     store: &PgStore,
     site: SiteId,
     day: NaiveDate,
     run: u32,
-    holder: Option<crate::accounts::UserName>,
+    holder: Option<UserName>,
 ) -> Result<(), StoreError> {
-    Err(not_yet("Store::hold_run"))
+    let holder = holder.map(|h| h.as_str().to_string()).unwrap_or_default();
+    store
+        .write_tx(WriteScope::Site(site), move |tx| {
+            let (list, counters) = list_id(tx, site, day)?;
+            if run == 0 || run > counters {
+                return Err(StoreError::NotFound(format!(
+                    "the list for {day} has runs 1 to {counters}"
+                )));
+            }
+            // The route checked this already; checked again here because a role can be
+            // taken away between that read and this write.
+            if !holder.is_empty() {
+                let counter: bool = tx
+                    .query_one(
+                        "select exists(select 1 from user_account u
+                                         join user_role r on r.user_id = u.id
+                                        where lower(u.name) = lower($1) and r.site_id = $2
+                                          and r.role = 'counter')",
+                        &[&holder, &site.0],
+                    )?
+                    .get(0);
+                if !counter {
+                    return Err(StoreError::Conflict(format!(
+                        "{holder} is not a counter at this site (any more): pick one of its counters"
+                    )));
+                }
+            }
+            if let Some(bin) = recount_tasks::recount_counted_by(tx, list, run, &holder)? {
+                return Err(StoreError::Conflict(format!(
+                    "run {run} holds the recount of bin {bin}, which {holder} counted: a recount goes \
+                     to someone else, so give {holder} another run or move the recount first"
+                )));
+            }
+            tx.execute(
+                "update count_run set holder = $1 where list_id = $2 and run = $3",
+                &[&holder, &list, &i64::from(run)],
+            )
+            .map_err(|e| {
+                if is_unique_violation(&e) {
+                    StoreError::Conflict(format!(
+                        "{holder} already holds another run of the list for {day}"
+                    ))
+                } else {
+                    e.into()
+                }
+            })?;
+            bump(tx, list)
+        })
+        .await
 }
 
-/// See [`Store::bin_contents`].
-pub async fn bin_contents(
-    store: &PgStore,
-    site: SiteId,
-    bins: Vec<BinCode>,
-) -> Result<std::collections::HashMap<String, Vec<crate::planning::phone::ItemBrief>>, StoreError> {
-    Err(not_yet("Store::bin_contents"))
-}
-
-/// See [`Store::finish_task`].
+/// See [`crate::store::Store::finish_task`]: the task is done at `at` and its bin counted
+/// whole that day.
 pub async fn finish_task(
     store: &PgStore,
     site: SiteId,
     task: i64,
     at: Timestamp,
 ) -> Result<(), StoreError> {
-    Err(not_yet("Store::finish_task"))
+    store
+        .write_tx(WriteScope::Site(site), move |tx| {
+            let r = tx
+                .query_opt(
+                    "select l.id, t.bin_id, l.day from count_task t
+                       join count_list l on l.id = t.list_id
+                      where t.id = $1 and l.site_id = $2",
+                    &[&task, &site.0],
+                )?
+                .ok_or_else(|| StoreError::NotFound(format!("no task {task} in this site")))?;
+            let (list, bin, day): (i64, i64, String) = (r.get(0), r.get(1), r.get(2));
+            tx.execute(
+                "update count_task set status = 'done', done_at = $1 where id = $2",
+                &[&at.0, &task],
+            )?;
+            tx.execute(
+                "insert into bin_count (bin_id, counted_on, counted_at) values ($1, $2, $3)
+                 on conflict (bin_id) do update set counted_on = excluded.counted_on,
+                     counted_at = excluded.counted_at
+                 where excluded.counted_at > bin_count.counted_at",
+                &[&bin, &day, &at.0],
+            )?;
+            bump(tx, list)
+        })
+        .await
 }

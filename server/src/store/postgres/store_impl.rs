@@ -1,40 +1,15 @@
 //! The [`Store`] trait over PostgreSQL: reads on pooled connections, writes through
 //! [`PgStore::write_tx`].
-#![allow(unused_imports, unused_variables)]
 
 use super::PgStore;
 use crate::accounts::audit::AuditEvent;
-use crate::accounts::store::AccountStore;
-use crate::accuracy::store::AccuracyStore;
-use crate::ledger::BalanceRow;
-use crate::ledger::Movement;
-use crate::master::Bin;
-use crate::master::NewBin;
-use crate::master::NewItem;
-use crate::master::NewPack;
-use crate::master::NewSite;
-use crate::master::Site;
-use crate::master::SiteCode;
-use crate::master::SiteCounts;
-use crate::master::SiteId;
-use crate::master::codes::BinCode;
-use crate::master::codes::Sku;
-use crate::master::codes::ZoneCode;
-use crate::planning::AbcSummary;
-use crate::planning::ClassChange;
-use crate::planning::ListView;
-use crate::planning::NewCountList;
-use crate::planning::Settings;
-use crate::planning::abc::AbcRule;
-use crate::planning::abc::Class;
-use crate::planning::abc::Usage;
+use crate::master::codes::{BinCode, Sku, ZoneCode};
+use crate::master::{Bin, NewBin, NewItem, NewPack, NewSite, Site, SiteCode, SiteCounts, SiteId};
+use crate::planning::abc::{AbcRule, Class, Usage};
 use crate::planning::calendar::Calendar;
-use crate::planning::plan::Capacity;
-use crate::planning::plan::Fill;
-use crate::planning::plan::PlanInput;
-use crate::planning::short_pick::NewShortPick;
-use crate::planning::short_pick::ShortPickOutcome;
-use crate::review::store::ReviewStore;
+use crate::planning::plan::{Capacity, Fill, PlanInput};
+use crate::planning::short_pick::{NewShortPick, ShortPickOutcome};
+use crate::planning::{AbcSummary, ClassChange, ListView, NewCountList, Settings};
 use crate::store::{
     Answer, BalancePage, BalanceQuery, HistoryPage, HistoryQuery, Progress, ShelfRow, Store,
     StoreError, Work, WriteScope,

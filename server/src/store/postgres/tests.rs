@@ -246,6 +246,28 @@ async fn balances_now_and_as_of_equal_the_sum_of_deltas_under_snapshots() {
             }
         }
     }
+    // Inside a write the same balance is read as outside it.
+    let t = 120;
+    let want: i64 = model
+        .iter()
+        .filter(|m| m.0 == 1 && m.1 == 0 && m.3 <= t)
+        .map(|m| m.2)
+        .sum();
+    let got = store
+        .write_tx(WriteScope::Site(site), move |tx| {
+            use crate::ledger::LedgerTx;
+            let bin = tx.bin_id(site, &BinCode::parse(BINS[1]).unwrap())?.unwrap();
+            let item = tx.item_ref(site, &Sku::parse(SKUS[0]).unwrap())?.unwrap();
+            let key = crate::ledger::LedgerKey {
+                bin_id: bin,
+                item_id: item.id,
+                lot: String::new(),
+            };
+            super::ledger::tx_balance_as_of(tx, &key, t)
+        })
+        .await
+        .unwrap();
+    assert_eq!(got, want);
     let c = store.client().await.unwrap();
     let snapshots: i64 = c
         .query_one("select count(*) from balance_snapshot", &[])
@@ -359,4 +381,376 @@ async fn history_pages_in_event_order_and_site_codes_stay_unique() {
     let counts = store.site_counts(site).await.unwrap();
     assert_eq!((counts.zones, counts.bins, counts.items), (1, 2, 2));
     assert_eq!(store.bins(site, None).await.unwrap().len(), 2);
+    store.ping_writer().await.unwrap();
+    assert_eq!(store.site_counts(site).await.unwrap().movements, 7);
+}
+
+/// Opens a SQLite store in `dir` and a PostgreSQL one at `url`, each with the same site.
+async fn both(
+    dir: &std::path::Path,
+    url: &str,
+) -> Vec<(&'static str, std::sync::Arc<dyn Store>, crate::master::Site)> {
+    let mut out = Vec::new();
+    for (name, at) in [
+        (
+            "sqlite",
+            crate::store::DbLocation::File(dir.join("cairn.db")),
+        ),
+        (
+            "postgres",
+            crate::store::DbLocation::Postgres(url.to_string()),
+        ),
+    ] {
+        let store = tokio::task::spawn_blocking(move || {
+            crate::store::open(&at, StoreOptions::default()).unwrap()
+        })
+        .await
+        .unwrap();
+        let site = store
+            .create_site(NewSite {
+                code: SiteCode::parse("D").unwrap(),
+                name: "Differential".into(),
+                time_zone: crate::time::day::SiteZone::parse("Europe/Berlin").unwrap(),
+            })
+            .await
+            .unwrap();
+        out.push((name, store, site));
+    }
+    out
+}
+
+/// Makes the same master data, movements, short picks and counter on `store`.
+async fn same_history(store: &dyn Store, site: SiteId, day: chrono::NaiveDate) {
+    let zones = ["A", "B", "C"];
+    let bins: Vec<_> = zones
+        .iter()
+        .flat_map(|z| {
+            (1..=8u16).map(move |bay| {
+                BinRecord {
+                    code: None,
+                    zone: (*z).into(),
+                    aisle: 1,
+                    bay,
+                    level: (bay % 3) as u8 + 1,
+                    side: None,
+                    walk_seq: None,
+                }
+                .validate()
+                .unwrap()
+            })
+        })
+        .collect();
+    let codes: Vec<String> = bins.iter().map(|b| b.code.as_str().to_string()).collect();
+    store
+        .put_bins(site, bins, Progress::default(), None)
+        .await
+        .unwrap();
+    let items: Vec<_> = (0..30)
+        .map(|i| {
+            ItemRecord {
+                sku: format!("SKU-{i:03}"),
+                description: format!("Widget {i}"),
+                base_unit: "each".into(),
+                unit_cost_minor: 50 + 37 * i,
+                lot_tracked: false,
+                group: None,
+            }
+            .validate()
+            .unwrap()
+        })
+        .collect();
+    store
+        .put_items(site, items, Progress::default(), None)
+        .await
+        .unwrap();
+    let end = crate::time::day::SiteZone::UTC.start_of(day).0;
+    let mut rng = rand_chacha::ChaCha8Rng::seed_from_u64(9);
+    let mut rows = Vec::new();
+    for n in 0..600 {
+        // Each of 25 items lives in two bins; the last five never move.
+        let sku = rng.random_range(0..25);
+        let bin = (sku * 7 + 11 * rng.random_range(0..2)) % codes.len();
+        let receipt = n < 60 || rng.random_bool(0.4);
+        let qty = if receipt {
+            rng.random_range(20..120)
+        } else {
+            rng.random_range(1..25)
+        };
+        rows.push(NewMovement {
+            uid: MovementUid::parse(&format!("d{n}")).unwrap(),
+            bin: BinCode::parse(&codes[bin]).unwrap(),
+            sku: Sku::parse(&format!("SKU-{sku:03}")).unwrap(),
+            lot: String::new(),
+            expiry: None,
+            qty: if receipt { qty } else { -qty },
+            kind: if receipt {
+                MovementKind::Receipt
+            } else {
+                MovementKind::Pick
+            },
+            event_at: Timestamp(end - rng.random_range(1..90 * crate::time::DAY_MS)),
+            source: "test".into(),
+            doc_ref: String::new(),
+            actor: String::new(),
+            reverses: None,
+            recorded_at: None,
+        });
+    }
+    for chunk in rows.chunks(150) {
+        let chunk = chunk.to_vec();
+        crate::store::write(store, WriteScope::Site(site), move |tx| {
+            crate::ledger::write_batch(tx, site, &chunk, Timestamp(end), &Progress::default())
+        })
+        .await
+        .unwrap();
+    }
+    let picks = (0..5)
+        .map(|n| crate::planning::short_pick::NewShortPick {
+            uid: MovementUid::parse(&format!("sp{n}")).unwrap(),
+            bin: BinCode::parse(&codes[n * 4]).unwrap(),
+            sku: Sku::parse(&format!("SKU-{:03}", n * 5)).unwrap(),
+            lot: String::new(),
+            short_qty: n as i64,
+            reported_at: Timestamp(end - 3_600_000 * (n as i64 + 1)),
+            source: "test".into(),
+            doc_ref: String::new(),
+        })
+        .collect::<Vec<_>>();
+    let out = store.record_short_picks(site, picks.clone()).await.unwrap();
+    assert_eq!(out.recorded, 5);
+    let again = store.record_short_picks(site, picks).await.unwrap();
+    assert_eq!(again.already_recorded, 5);
+    let mut cal = crate::planning::calendar::Calendar::default();
+    cal.holidays.insert(day + chrono::Duration::days(3));
+    store.put_calendar(site, cal).await.unwrap();
+    store
+        .create_user(
+            crate::accounts::store::NewUser {
+                name: crate::accounts::UserName::parse("Cora").unwrap(),
+                display_name: "Cora".into(),
+                password: crate::accounts::secret::SecretHash("not-a-real-hash".into()),
+                pin: None,
+                roles: vec![(site, crate::accounts::Role::Counter)],
+            },
+            crate::accounts::audit::AuditEvent::now(
+                crate::accounts::audit::Actor::Cli,
+                crate::accounts::audit::Action::UserCreated,
+                "Cora",
+            ),
+        )
+        .await
+        .unwrap();
+}
+
+/// Everything the planning area answers for a site, as JSON, to compare two stores.
+async fn planning_answers(
+    store: &dyn Store,
+    site: &crate::master::Site,
+    day: chrono::NaiveDate,
+) -> Vec<serde_json::Value> {
+    use crate::planning::plan::{Capacity, Fill};
+    use crate::planning::service;
+    let mut out = Vec::new();
+    let summary = service::classify(store, site, day).await.unwrap();
+    out.push(serde_json::to_value(&summary).unwrap());
+    let capacity = Capacity {
+        counters: 2,
+        minutes: 60,
+    };
+    let list = service::build(store, site, day, capacity, Fill::Capacity, false)
+        .await
+        .unwrap();
+    out.push(serde_json::to_value(&list).unwrap());
+    let again = service::build(store, site, day, capacity, Fill::Level, false)
+        .await
+        .unwrap_err();
+    out.push(serde_json::json!(format!("{again}")));
+    let task = list.tasks[0].id.unwrap();
+    store.move_task(site.id, day, task, 2).await.unwrap();
+    let bad = store.move_task(site.id, day, task, 9).await.unwrap_err();
+    out.push(serde_json::json!(format!("{bad:?}")));
+    let cora = crate::accounts::UserName::parse("cora").unwrap();
+    store
+        .hold_run(site.id, day, 1, Some(cora.clone()))
+        .await
+        .unwrap();
+    let twice = store
+        .hold_run(site.id, day, 2, Some(cora))
+        .await
+        .unwrap_err();
+    out.push(serde_json::json!(format!("{twice}")));
+    store
+        .finish_task(
+            site.id,
+            task,
+            Timestamp(site.time_zone.start_of(day).0 + 3_600_000),
+        )
+        .await
+        .unwrap();
+    out.push(serde_json::to_value(store.count_list(site.id, day).await.unwrap()).unwrap());
+    let next = day + chrono::Duration::days(1);
+    let tomorrow = service::build(store, site, next, capacity, Fill::Level, false)
+        .await
+        .unwrap();
+    out.push(serde_json::to_value(&tomorrow).unwrap());
+    out.push(serde_json::to_value(store.latest_abc(site.id).await.unwrap()).unwrap());
+    out.push(
+        serde_json::to_value(
+            store
+                .class_history(site.id, Sku::parse("SKU-007").unwrap())
+                .await
+                .unwrap(),
+        )
+        .unwrap(),
+    );
+    let mut usage: Vec<_> = store
+        .abc_usage(site.id, Timestamp(0), Timestamp(i64::MAX))
+        .await
+        .unwrap()
+        .into_iter()
+        .map(|u| (u.item, u.value_minor, u.hits, u.first_seen_ms, u.classified))
+        .collect();
+    usage.sort();
+    out.push(serde_json::to_value(usage).unwrap());
+    let balances = store
+        .balances(
+            site.id,
+            BalanceQuery {
+                limit: 1000,
+                at: Some(Timestamp(
+                    site.time_zone.start_of(day).0 - 20 * crate::time::DAY_MS,
+                )),
+                ..BalanceQuery::default()
+            },
+        )
+        .await
+        .unwrap();
+    out.push(serde_json::to_value(balances).unwrap());
+    out.push(serde_json::to_value(store.bins(site.id, None).await.unwrap()).unwrap());
+    out.push(serde_json::to_value(store.site_counts(site.id).await.unwrap()).unwrap());
+    out.extend(accuracy_answers(store, site, day).await);
+    out
+}
+
+/// Everything the accuracy area answers for a site, as JSON (or Debug text for the types
+/// that are not sent anywhere), the planner inputs' write time left out.
+async fn accuracy_answers(
+    store: &dyn Store,
+    site: &crate::master::Site,
+    day: chrono::NaiveDate,
+) -> Vec<serde_json::Value> {
+    use crate::accuracy::inputs::{InputTarget, LeadTimes, NewPlannerInput};
+    let mut out = Vec::new();
+    let mut settings = store.accuracy_settings(site.id).await.unwrap();
+    out.push(serde_json::to_value(settings).unwrap());
+    settings.ira_target = 0.97;
+    settings.service_level[1] = 0.9;
+    store
+        .put_accuracy_settings(site.id, settings)
+        .await
+        .unwrap();
+    out.push(serde_json::to_value(store.accuracy_settings(site.id).await.unwrap()).unwrap());
+    let times = LeadTimes {
+        lead_time_days: 4.5,
+        lead_time_sd_days: 1.25,
+        review_days: 7.0,
+        service_level: Some(0.95),
+    };
+    let inputs = vec![
+        NewPlannerInput {
+            target: InputTarget::Item(Sku::parse("SKU-003").unwrap()),
+            times,
+        },
+        NewPlannerInput {
+            target: InputTarget::Group("fasteners".into()),
+            times: LeadTimes {
+                service_level: None,
+                ..times
+            },
+        },
+    ];
+    let written = store
+        .put_planner_inputs(site.id, inputs, "pat".into(), None)
+        .await
+        .unwrap();
+    out.push(serde_json::json!(written));
+    let unknown = vec![NewPlannerInput {
+        target: InputTarget::Item(Sku::parse("NO-SUCH").unwrap()),
+        times,
+    }];
+    let refused = store
+        .put_planner_inputs(site.id, unknown, "pat".into(), None)
+        .await
+        .unwrap_err();
+    out.push(serde_json::json!(format!("{refused:?}")));
+    let mut inputs = serde_json::to_value(store.planner_inputs(site.id).await.unwrap()).unwrap();
+    for input in inputs.as_array_mut().unwrap() {
+        input["updated_at"] = serde_json::Value::Null;
+    }
+    out.push(inputs);
+    let (start, end) = site.time_zone.range(day);
+    let days: Vec<_> = (0..30)
+        .map(|back| {
+            let d = day - chrono::Duration::days(back);
+            (d, site.time_zone.start_of(d))
+        })
+        .rev()
+        .collect();
+    let debug = |v: &dyn std::fmt::Debug| serde_json::json!(format!("{v:?}"));
+    out.push(debug(
+        &store
+            .daily_issues(site.id, days.clone(), end, None)
+            .await
+            .unwrap(),
+    ));
+    out.push(debug(
+        &store
+            .daily_issues(site.id, days, end, Some(Sku::parse("SKU-004").unwrap()))
+            .await
+            .unwrap(),
+    ));
+    out.push(debug(
+        &store
+            .planned_tasks(site.id, day, day + chrono::Duration::days(1))
+            .await
+            .unwrap(),
+    ));
+    out.push(debug(&store.a_items(site.id, start).await.unwrap()));
+    out.push(serde_json::to_value(store.accuracy_items(site.id, None).await.unwrap()).unwrap());
+    let results = store
+        .accuracy_results(
+            site.id,
+            crate::accuracy::store::ResultQuery {
+                from: Timestamp(0),
+                to: end,
+                sku: None,
+            },
+        )
+        .await
+        .unwrap();
+    out.push(serde_json::to_value(results).unwrap());
+    out
+}
+
+#[tokio::test(flavor = "multi_thread", worker_threads = 2)]
+async fn the_same_history_plans_the_same_lists_on_both_stores() {
+    let Some((_db, url)) = TestDb::create() else {
+        return;
+    };
+    let dir = tempfile::tempdir().unwrap();
+    let day = chrono::NaiveDate::from_ymd_opt(2026, 3, 10).unwrap();
+    let mut answers = Vec::new();
+    for (name, store, site) in both(dir.path(), &url).await {
+        same_history(store.as_ref(), site.id, day).await;
+        answers.push((name, planning_answers(store.as_ref(), &site, day).await));
+    }
+    let (sqlite, postgres) = (&answers[0].1, &answers[1].1);
+    // The day's list has due counts and every trigger the history makes.
+    let reasons = &sqlite[1]["summary"]["by_reason"];
+    for reason in ["due", "short_pick", "negative_balance"] {
+        assert!(reasons[reason].as_u64() > Some(0), "{reason} in {reasons}");
+    }
+    for (i, (a, b)) in sqlite.iter().zip(postgres).enumerate() {
+        assert_eq!(a, b, "answer {i} differs between SQLite and PostgreSQL");
+    }
 }
