@@ -274,20 +274,15 @@ async fn a_settled_variance_within_tolerance_is_adjusted_once_at_its_posting_ins
     assert_eq!(balance(&app, BIN_2).await, 10);
 
     // The audit trail names it as automatic, with no approval.
-    let conn = common::sqlite_file(&app.db);
-    let actions: Vec<(String, String, String)> = conn
-        .prepare("select action, actor, detail from audit_event where action in ('approval', 'adjustment')")
-        .unwrap()
-        .query_map([], |r| Ok((r.get(0)?, r.get(1)?, r.get(2)?)))
-        .unwrap()
-        .map(Result::unwrap)
-        .collect();
+    let actions = app.sql_rows(
+        "select action, actor, detail from audit_event where action in ('approval', 'adjustment')",
+    );
     assert_eq!(actions.len(), 1, "{actions:?}");
     assert_eq!(
-        (actions[0].0.as_str(), actions[0].1.as_str()),
+        (actions[0][0].as_str(), actions[0][1].as_str()),
         ("adjustment", "system")
     );
-    let d: Value = serde_json::from_str(&actions[0].2).unwrap();
+    let d: Value = serde_json::from_str(&actions[0][2]).unwrap();
     assert_eq!(
         (d["automatic"].as_bool(), d["qty"].as_i64()),
         (Some(true), Some(-1)),

@@ -1117,10 +1117,10 @@ async fn a_simulated_day_flags_every_clear_record_error_and_nothing_moves_alone_
         .to_string();
 
     // Book and shelf of every key, straight from the file (the shelf is demo-only).
-    let conn = common::sqlite_file(&app.db);
-    let mut keys: Vec<KeyStock> = conn
-        .prepare(
-            "select b.code, i.sku, k.lot, coalesce(bal.qty, 0), coalesce(sh.qty, 0)
+    let mut keys: Vec<KeyStock> = app
+        .sql_rows(
+            "select b.code, i.sku, k.lot, cast(coalesce(bal.qty, 0) as text),
+                    cast(coalesce(sh.qty, 0) as text)
              from (select bin_id, item_id, lot from balance
                    union select bin_id, item_id, lot from demo_shelf) k
              join bin b on b.id = k.bin_id join item i on i.id = k.item_id
@@ -1131,20 +1131,15 @@ async fn a_simulated_day_flags_every_clear_record_error_and_nothing_moves_alone_
              where coalesce(bal.qty, 0) <> 0 or coalesce(sh.qty, 0) <> 0
              order by b.walk_seq, b.code, i.sku, k.lot",
         )
-        .unwrap()
-        .query_map([], |r| {
-            Ok(KeyStock {
-                bin: r.get(0)?,
-                sku: r.get(1)?,
-                lot: r.get(2)?,
-                book: r.get(3)?,
-                truth: r.get(4)?,
-            })
+        .into_iter()
+        .map(|r| KeyStock {
+            bin: r[0].clone(),
+            sku: r[1].clone(),
+            lot: r[2].clone(),
+            book: r[3].parse().unwrap(),
+            truth: r[4].parse().unwrap(),
         })
-        .unwrap()
-        .map(Result::unwrap)
         .collect();
-    drop(conn);
     // Every bin with a record error, and as many without, up to 60 bins (3 hours).
     let wrong: std::collections::BTreeSet<String> = keys
         .iter()

@@ -95,12 +95,9 @@ async fn result(s: &PhoneSite, pass: &str) -> Value {
     rows[0].clone()
 }
 
-/// Reads one number from the test's SQLite file.
+/// Reads one number from the test's database (0 for none).
 fn scalar(s: &PhoneSite, sql: &str) -> i64 {
-    let conn = common::sqlite_file(&s.app.db);
-    conn.query_row(sql, [], |r| r.get::<_, Option<i64>>(0))
-        .unwrap()
-        .unwrap_or(0)
+    s.app.sql_i64(&format!("select coalesce(({sql}), 0)"))
 }
 
 /// Says whether every stored instant of counts lies within a day of now.

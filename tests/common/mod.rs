@@ -788,6 +788,39 @@ impl TestApp {
         sql_i64_on(self.pg.as_ref().map(|p| p.url.as_str()), &self.db, sql)
     }
 
+    /// Reads rows with a statement both stores understand, every column text (cast
+    /// numbers with `cast(x as text)`; an empty value reads as ""), from the test's
+    /// database beside the API.
+    pub fn sql_rows(&self, sql: &str) -> Vec<Vec<String>> {
+        match &self.pg {
+            Some(pg) => on_pg(&pg.url, sql, |c, sql| async move {
+                c.query(sql.as_str(), &[]).await.map(|rows| {
+                    rows.iter()
+                        .map(|r| {
+                            (0..r.len())
+                                .map(|i| r.get::<_, Option<String>>(i).unwrap_or_default())
+                                .collect()
+                        })
+                        .collect()
+                })
+            })
+            .unwrap_or_else(|e| panic!("{sql}: {e}")),
+            None => {
+                let c = sqlite_file(&self.db);
+                let mut q = c.prepare(sql).unwrap_or_else(|e| panic!("{sql}: {e}"));
+                let n = q.column_count();
+                q.query_map([], |r| {
+                    (0..n)
+                        .map(|i| r.get::<_, Option<String>>(i).map(Option::unwrap_or_default))
+                        .collect()
+                })
+                .unwrap()
+                .map(Result::unwrap)
+                .collect()
+            }
+        }
+    }
+
     /// Runs one statement on the test's database beside the API; returns the rows it
     /// changed, or the database's error text.
     pub fn sql_exec(&self, sql: &str) -> Result<u64, String> {
