@@ -58,10 +58,7 @@ pub fn router(state: AppState) -> Router {
         ))
         // The phone app's static files are public (the app signs in itself); added after the
         // guard so they sit outside the route table.
-        .nest_service(
-            "/app",
-            tower_http::services::ServeDir::new(&state.config.web_dir),
-        )
+        .merge(app_files(&state))
         .fallback(not_found)
         .layer(DefaultBodyLimit::max(state.config.max_body_bytes))
         // Phones on weak Wi-Fi: the app shell, wasm and JSON answers go gzip-compressed.
@@ -73,6 +70,18 @@ pub fn router(state: AppState) -> Router {
         .layer(axum::middleware::from_fn(observe::observe))
         .layer(axum::middleware::from_fn(headers::security_headers))
         .with_state(state)
+}
+
+/// Routes `/app/` to the phone app's files: compiled in, or `web_dir` when set.
+fn app_files(state: &AppState) -> Router<AppState> {
+    use axum::routing::get;
+    Router::new()
+        .route("/app", get(crate::web::app_root_redirect))
+        .route("/app/", get(crate::web::app_index))
+        .route("/app/{*path}", get(crate::web::app_file))
+        .with_state(crate::web::AppFiles::from_config(
+            state.config.web_dir.as_deref(),
+        ))
 }
 
 async fn stylesheet() -> impl IntoResponse {

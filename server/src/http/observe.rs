@@ -117,7 +117,9 @@ pub async fn readyz(State(state): State<AppState>) -> Response {
     match tokio::time::timeout(READY_TIMEOUT, state.store.ping_writer()).await {
         Ok(Ok(())) => (
             StatusCode::OK,
-            axum::Json(serde_json::json!({ "status": "ready" })),
+            axum::Json(
+                serde_json::json!({ "status": "ready", "build": crate::build_info::json() }),
+            ),
         )
             .into_response(),
         Ok(Err(e)) => {

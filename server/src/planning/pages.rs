@@ -16,7 +16,7 @@ use crate::accounts::{Principal, Role};
 use crate::error::ApiError;
 use crate::http::access::{Access, BOOK_READERS, CurrentUser, LIST_KEEPERS, RouteTable};
 use crate::http::extract::{CurrentSite, Params};
-use crate::http::pages::{Me, PageError, VERSION, render};
+use crate::http::pages::{Me, PageError, render};
 use crate::master::Site;
 use crate::store::error::StoreError;
 use crate::time::Timestamp;
@@ -440,7 +440,7 @@ async fn render_day(
         started,
         shown,
         refresh_ms: REFRESH_MS,
-        version: VERSION,
+        version: crate::build_info::describe(),
     })?;
     Ok((showing.status, page).into_response())
 }
@@ -673,7 +673,7 @@ async fn labels_page(
         site,
         day,
         sheets,
-        version: VERSION,
+        version: crate::build_info::describe(),
     })?
     .into_response())
 }
