@@ -146,11 +146,11 @@ fn git_commit(manifest: &Path) -> String {
     let Some(commit) = git(&["rev-parse", "--short=10", "HEAD"]) else {
         return "unknown".to_owned();
     };
-    // Rebuild when HEAD moves or the index changes (a commit, a checkout, an add).
-    for file in ["HEAD", "index"] {
-        if let Some(p) = git(&["rev-parse", "--git-path", file]) {
-            watch_if_present(manifest, &p);
-        }
+    // Rebuild when HEAD moves (a commit, a checkout). Not on git's index, which `git status`
+    // refreshes: that would recompile the server after every look at the tree. Edits are
+    // noticed through the source folders main() watches.
+    if let Some(p) = git(&["rev-parse", "--git-path", "HEAD"]) {
+        watch_if_present(manifest, &p);
     }
     if let Some(reference) = git(&["symbolic-ref", "-q", "HEAD"]) {
         if let Some(p) = git(&["rev-parse", "--git-path", &reference]) {

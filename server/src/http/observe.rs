@@ -103,7 +103,11 @@ pub async fn readyz(State(state): State<AppState>) -> Response {
     let not_ready = |why: String| {
         (
             StatusCode::SERVICE_UNAVAILABLE,
-            axum::Json(serde_json::json!({ "status": "not ready", "reason": why })),
+            axum::Json(serde_json::json!({
+                "status": "not ready",
+                "reason": why,
+                "build": crate::build_info::json(),
+            })),
         )
             .into_response()
     };
