@@ -271,6 +271,30 @@ async fn app_files_carry_their_type_an_etag_and_a_cache_rule() {
         .await
         .unwrap();
     assert_eq!(r.status(), 200);
+    // The pages' own files too: typed, tagged, checked on every use.
+    for (path, wanted) in [
+        ("/static/cairn.css", "text/css; charset=utf-8"),
+        ("/static/count-list.js", "text/javascript; charset=utf-8"),
+    ] {
+        let r = app
+            .client
+            .get(format!("{}{path}", app.base))
+            .send()
+            .await
+            .unwrap();
+        assert_eq!(r.status(), 200, "{path}");
+        assert_eq!(r.headers()["content-type"], wanted, "{path}");
+        assert_eq!(r.headers()["cache-control"], "no-cache", "{path}");
+        let etag = r.headers()["etag"].to_str().unwrap().to_owned();
+        let again = app
+            .client
+            .get(format!("{}{path}", app.base))
+            .header("if-none-match", &etag)
+            .send()
+            .await
+            .unwrap();
+        assert_eq!(again.status(), 304, "{path}");
+    }
     // The bare path leads to the app; no file outside the app's own is reachable.
     let r = app
         .client

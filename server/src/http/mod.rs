@@ -15,8 +15,6 @@ use crate::error::ApiError;
 use access::{Access, Guard, RouteTable, Rule};
 use axum::Router;
 use axum::extract::DefaultBodyLimit;
-use axum::http::header;
-use axum::response::IntoResponse;
 
 /// Declares every route of Cairn with its access rule.
 pub fn route_table() -> RouteTable {
@@ -84,10 +82,11 @@ fn app_files(state: &AppState) -> Router<AppState> {
         ))
 }
 
-async fn stylesheet() -> impl IntoResponse {
-    (
-        [(header::CONTENT_TYPE, "text/css; charset=utf-8")],
+async fn stylesheet(headers: axum::http::HeaderMap) -> axum::response::Response {
+    crate::web::page_file(
         include_str!("../../static/cairn.css"),
+        "text/css; charset=utf-8",
+        &headers,
     )
 }
 

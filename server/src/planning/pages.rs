@@ -23,7 +23,7 @@ use crate::time::Timestamp;
 use askama::Template;
 use axum::Form;
 use axum::extract::{Path, State};
-use axum::http::{StatusCode, header};
+use axum::http::StatusCode;
 use axum::response::{IntoResponse, Redirect, Response};
 use chrono::NaiveDate;
 use serde::Deserialize;
@@ -678,10 +678,11 @@ async fn labels_page(
     .into_response())
 }
 
-async fn script() -> impl IntoResponse {
-    (
-        [(header::CONTENT_TYPE, "text/javascript; charset=utf-8")],
+async fn script(headers: axum::http::HeaderMap) -> axum::response::Response {
+    crate::web::page_file(
         include_str!("../../static/count-list.js"),
+        "text/javascript; charset=utf-8",
+        &headers,
     )
 }
 

@@ -124,7 +124,23 @@ async fn serve(files: &AppFiles, path: &str, headers: &HeaderMap) -> Response {
     let Some(found) = found else {
         return not_found();
     };
-    let cache = HeaderValue::from_str(&cache_control(path)).expect("an ASCII header value");
+    respond(found, &cache_control(path), headers)
+}
+
+/// Answers one of the server pages' own files (`/static/…`, compiled in with
+/// `include_str!`) with its type, an ETag from its bytes and `no-cache`: pages name these
+/// files without a version, so a browser must check them on every use (a 304 is cheap).
+pub fn page_file(text: &'static str, content_type: &'static str, headers: &HeaderMap) -> Response {
+    let found = Found {
+        bytes: Cow::Borrowed(text.as_bytes()),
+        content_type,
+        etag: Cow::Owned(files::etag(text.as_bytes())),
+    };
+    respond(found, "no-cache", headers)
+}
+
+fn respond(found: Found, cache_control: &str, headers: &HeaderMap) -> Response {
+    let cache = HeaderValue::from_str(cache_control).expect("an ASCII header value");
     let etag = HeaderValue::from_str(&found.etag).expect("an ETag is ASCII");
     if headers
         .get(header::IF_NONE_MATCH)
