@@ -6,9 +6,10 @@
 
 import { syncOutbox } from "./js/sync.js";
 
-/** Change this with every change to a file of the shell: it names the cache. */
-const VERSION = "2026-12-02.1";
-const CACHE = `cairn-shell-${VERSION}`;
+/** The hash of every file of the app, written here by the server (set when the binary is
+ * built): any change to the shell is a new cache, so a new version, with nothing to edit. */
+const SHELL_HASH = "__CAIRN_SHELL_HASH__";
+const CACHE = `cairn-shell-${SHELL_HASH}`;
 const SHELL = [
   "./", "app.css", "manifest.webmanifest",
   "icons/icon.svg", "icons/icon-192.png", "icons/icon-512.png",

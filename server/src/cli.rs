@@ -24,7 +24,7 @@ use out::{StdoutClosed, errln, out, outln};
 #[derive(Parser)]
 #[command(
     name = "cairn",
-    version,
+    version = crate::build_info::describe(),
     about = "Cycle counting that keeps stock records true"
 )]
 struct Cli {
@@ -215,6 +215,24 @@ enum Command {
         #[command(subcommand)]
         command: ConfigCommand,
     },
+    /// Print shell completions for cairn (save to your shell's completions folder).
+    Completions { shell: CompletionShell },
+    /// Print cairn's manual page (roff, for `man -l -` or a man1 folder).
+    #[command(hide = true)]
+    Man,
+}
+
+/// The shells `cairn completions` writes for.
+#[derive(Clone, Copy, clap::ValueEnum)]
+enum CompletionShell {
+    Bash,
+    Zsh,
+    Fish,
+}
+
+/// Returns cairn's command definitions (for completions and the manual page).
+pub fn definitions() -> clap::Command {
+    <Cli as clap::CommandFactory>::command()
 }
 
 #[derive(Subcommand)]
@@ -809,6 +827,21 @@ async fn dispatch(command: Command) -> anyhow::Result<()> {
             let config = Config::from_file(&path)?;
             outln!("{config:#?}")?;
             Ok(())
+        }
+        Command::Completions { shell } => {
+            let shell = match shell {
+                CompletionShell::Bash => clap_complete::Shell::Bash,
+                CompletionShell::Zsh => clap_complete::Shell::Zsh,
+                CompletionShell::Fish => clap_complete::Shell::Fish,
+            };
+            let mut script = Vec::new();
+            clap_complete::generate(shell, &mut definitions(), "cairn", &mut script);
+            out!("{}", String::from_utf8_lossy(&script))
+        }
+        Command::Man => {
+            let mut page = Vec::new();
+            clap_mangen::Man::new(definitions()).render(&mut page)?;
+            out!("{}", String::from_utf8_lossy(&page))
         }
         Command::Report {
             what,

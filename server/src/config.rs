@@ -23,8 +23,9 @@ pub struct Config {
     pub readers: usize,
     /// Movements of one key between balance snapshots.
     pub snapshot_every: i64,
-    /// The phone app's files (HTML, JS, the wasm built by `cargo xtask wasm`), served at `/app/`.
-    pub web_dir: PathBuf,
+    /// Development only: serve the phone app at `/app/` from this folder, read at every
+    /// request (edit its JS without a rebuild), instead of the files compiled in. Off by default.
+    pub web_dir: Option<PathBuf>,
     /// Mark session cookies `Secure` (sent over HTTPS only). On by default;
     /// the plain-HTTP demo on loopback turns it off.
     pub secure_cookies: bool,
@@ -62,7 +63,7 @@ impl Default for Config {
             synchronous: store.synchronous,
             readers: store.readers,
             snapshot_every: store.snapshot_every,
-            web_dir: PathBuf::from(concat!(env!("CARGO_MANIFEST_DIR"), "/../client/web")),
+            web_dir: None,
             secure_cookies: true,
             trust_forwarded_for: false,
             max_concurrent_hashes: crate::accounts::hashing::default_max_concurrent_hashes(),

@@ -8,6 +8,7 @@ pub mod accounts;
 pub mod accuracy;
 pub use store::backup;
 pub mod batch;
+pub mod build_info;
 pub mod cli;
 pub mod config;
 pub mod demo;
@@ -25,6 +26,7 @@ pub mod store;
 pub mod sync;
 pub mod telemetry;
 pub mod time;
+pub mod web;
 pub mod writes;
 
 use config::Config;

@@ -274,6 +274,16 @@ impl Metrics {
                 );
             }
         }
+        let _ = writeln!(
+            out,
+            "# HELP cairn_build_info The build serving: version, commit, build day, schema version.\n\
+             # TYPE cairn_build_info gauge\n\
+             cairn_build_info{{version=\"{}\",commit=\"{}\",build_date=\"{}\",schema_version=\"{}\"}} 1",
+            escape(crate::build_info::VERSION),
+            escape(crate::build_info::COMMIT),
+            escape(crate::build_info::BUILD_DATE),
+            crate::build_info::schema_version()
+        );
         out
     }
 }

@@ -27,7 +27,9 @@ export function cairn(args, input = "") {
  * - `env` adds environment variables to the server's;
  * - `site: true` gives the site a counter with a PIN and an admin's integration token
  *   (`token`, used by `api(method, path, body)`), made through the CLI;
- * - `webDir` serves the phone app from another folder (through a config file's `web_dir`).
+ * - `webDir` serves the phone app from another folder (through a config file's `web_dir`,
+ *   the development override) instead of the files compiled into the binary;
+ * - `halt()` stops it and `resume({webDir})` starts it again at the same address and database.
  */
 export async function startServer({ prepare, env, site = false, webDir = null, zone = "UTC" } = {}) {
   const dir = mkdtempSync(join(tmpdir(), "cairn-browser-"));
@@ -44,21 +46,31 @@ export async function startServer({ prepare, env, site = false, webDir = null, z
       "--role", "admin", "--label", "browser tests"]).trim().split(/\s+/).pop();
   }
   if (prepare) await prepare(db, dir);
-  const args = ["serve", "--db", db, "--listen", "127.0.0.1:0"];
-  if (webDir) {
-    writeFileSync(join(dir, "cairn.toml"), `web_dir = ${JSON.stringify(webDir)}\n`);
-    args.push("--config", join(dir, "cairn.toml"));
-  }
-  const child = spawn(BIN, args, {
-    stdio: ["ignore", "pipe", "inherit"],
-    env: { ...process.env, ...env },
-  });
-  const line = await new Promise((resolve, reject) => {
-    const rl = createInterface({ input: child.stdout });
-    rl.once("line", resolve);
-    child.once("exit", (code) => reject(new Error(`cairn serve exited with ${code}`)));
-  });
-  const url = line.split(" at ")[1].trim().replace(/\/$/, "");
+  // Starts `cairn serve` on `listen`; the config file names the development folder, if any.
+  const serve = async (listen, folder) => {
+    const args = ["serve", "--db", db, "--listen", listen];
+    if (folder) {
+      writeFileSync(join(dir, "cairn.toml"), `web_dir = ${JSON.stringify(folder)}\n`);
+      args.push("--config", join(dir, "cairn.toml"));
+    }
+    const child = spawn(BIN, args, {
+      stdio: ["ignore", "pipe", "inherit"],
+      env: { ...process.env, ...env },
+    });
+    const line = await new Promise((resolve, reject) => {
+      const rl = createInterface({ input: child.stdout });
+      rl.once("line", resolve);
+      child.once("exit", (code) => reject(new Error(`cairn serve exited with ${code}`)));
+    });
+    return { child, url: line.split(" at ")[1].trim().replace(/\/$/, "") };
+  };
+  let { child, url } = await serve("127.0.0.1:0", webDir);
+  const halt = async () => {
+    if (child.exitCode !== null || child.signalCode !== null) return;
+    const exited = new Promise((resolve) => child.once("exit", resolve));
+    child.kill("SIGTERM");
+    await exited;
+  };
   const api = async (method, path, body) => {
     const r = await fetch(`${url}${path}`, {
       method,
@@ -74,6 +86,16 @@ export async function startServer({ prepare, env, site = false, webDir = null, z
     db,
     token,
     api,
+    /** Stops the server, keeping its database (a phone then finds no server). */
+    halt,
+    /**
+     * Starts the server again at the same address over the same database, serving the
+     * app compiled in, or `webDir`'s files when given (another version of the app).
+     */
+    async resume({ webDir: folder = null } = {}) {
+      await halt();
+      ({ child } = await serve(new URL(url).host, folder));
+    },
     stop() {
       child.kill("SIGTERM");
       rmSync(dir, { recursive: true, force: true });

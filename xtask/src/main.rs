@@ -1,5 +1,6 @@
 //! `cargo xtask wasm`: builds the two WebAssembly modules of the phone app and their JS glue
-//! into `client/web/pkg/`.
+//! into `client/web/pkg/`, which the server compiles in. `cargo xtask dist`: the release
+//! folder (see [`dist`]). `cargo xtask test`: every test. `cargo xtask demo`: the demo.
 //!
 //! - `cairn_scan.js` + `cairn_scan_bg.wasm`: the scan parser, loaded with the app shell;
 //! - `cairn_camera.js` + `cairn_camera_bg.wasm`: the camera decoder, loaded when the camera
@@ -15,6 +16,7 @@ use std::path::{Path, PathBuf};
 use std::process::Command;
 
 use anyhow::{Context, Result, bail};
+use sha2::{Digest, Sha256};
 
 const TARGET: &str = "wasm32-unknown-unknown";
 const PROFILE: &str = "wasm";
@@ -43,29 +45,31 @@ fn main() -> Result<()> {
     match args.first().map(String::as_str) {
         Some("wasm") => wasm(args.iter().any(|a| a == "--no-opt")),
         Some("test") => test(),
+        Some("dist") => dist(),
         Some("demo") => {
             wasm(false)?;
             demo(&args[1..])
         }
         _ => {
             eprintln!(
-                "usage: cargo xtask wasm [--no-opt] | cargo xtask demo [cairn demo options] | cargo xtask test"
+                "usage: cargo xtask wasm [--no-opt] | cargo xtask demo [cairn demo options] | cargo xtask test | cargo xtask dist"
             );
             std::process::exit(2);
         }
     }
 }
 
-/// Runs every test: the Rust suites, then the browser suites against the built wasm.
+/// Runs every test: builds the wasm (the binary compiles the app in), then the Rust
+/// suites, then the browser suites.
 fn test() -> Result<()> {
     let root = root();
     let cargo = std::env::var("CARGO").unwrap_or_else(|_| "cargo".to_owned());
+    wasm(true)?;
     run(Command::new(&cargo)
         .current_dir(&root)
         .args(["test", "--workspace", "--all-features"]))
     .context("the Rust test suites")?;
     postgres_suites(&cargo, &root)?;
-    wasm(true)?;
     run(Command::new(&cargo).current_dir(&root).args([
         "build",
         "-p",
@@ -123,6 +127,89 @@ fn postgres_suites(cargo: &str, root: &Path) -> Result<()> {
         .args(&args)
         .env("CAIRN_TEST_STORE", &url))
     .context("the suites on PostgreSQL")
+}
+
+/// Builds a release into `target/dist/cairn-VERSION/`: the binary (the phone app inside),
+/// the example config, shell completions and the manual page made by that binary, and
+/// `SHA256SUMS` (`sha256sum -c SHA256SUMS` checks it). Then runs `tests/install.rs`
+/// against the release binary, which serves the app with the source folder hidden.
+fn dist() -> Result<()> {
+    let root = root();
+    let cargo = std::env::var("CARGO").unwrap_or_else(|_| "cargo".to_owned());
+    wasm(false)?;
+    run(Command::new(&cargo).current_dir(&root).args([
+        "build",
+        "--release",
+        "--locked",
+        "-p",
+        "cairn-server",
+        "--bin",
+        "cairn",
+    ]))?;
+    let bin = root.join("target/release/cairn");
+    let version = output(Command::new(&bin).arg("--version"))?;
+    let folder = root
+        .join("target/dist")
+        .join(format!("cairn-{}", env!("CARGO_PKG_VERSION")));
+    if folder.exists() {
+        std::fs::remove_dir_all(&folder)
+            .with_context(|| format!("clearing {}", folder.display()))?;
+    }
+    std::fs::create_dir_all(folder.join("completions"))?;
+    std::fs::create_dir_all(folder.join("man"))?;
+    std::fs::copy(&bin, folder.join("cairn"))?;
+    std::fs::copy(
+        root.join("deploy/systemd/cairn.toml"),
+        folder.join("cairn.toml"),
+    )?;
+    for (shell, name) in [
+        ("bash", "completions/cairn.bash"),
+        ("zsh", "completions/_cairn"),
+        ("fish", "completions/cairn.fish"),
+    ] {
+        let script = output(Command::new(&bin).args(["completions", shell]))?;
+        std::fs::write(folder.join(name), script)?;
+    }
+    std::fs::write(
+        folder.join("man/cairn.1"),
+        output(Command::new(&bin).arg("man"))?,
+    )?;
+    let files = [
+        "cairn",
+        "cairn.toml",
+        "completions/cairn.bash",
+        "completions/_cairn",
+        "completions/cairn.fish",
+        "man/cairn.1",
+    ];
+    let mut sums = String::new();
+    for name in files {
+        let bytes = std::fs::read(folder.join(name))?;
+        let digest = Sha256::digest(&bytes);
+        let hex: String = digest.iter().map(|b| format!("{b:02x}")).collect();
+        // GNU coreutils' format: hash, two spaces (text mode), name.
+        sums.push_str(&format!("{hex}  {name}\n"));
+    }
+    std::fs::write(folder.join("SHA256SUMS"), sums)?;
+    run(Command::new(&cargo)
+        .current_dir(&root)
+        .args(["test", "-p", "cairn-server", "--test", "install"])
+        .env("CAIRN_TEST_BIN", &bin))
+    .context("the install tests against the release binary")?;
+    println!("{}\n{}", version.trim(), folder.display());
+    Ok(())
+}
+
+fn output(cmd: &mut Command) -> Result<String> {
+    let out = cmd.output().with_context(|| format!("starting {cmd:?}"))?;
+    if !out.status.success() {
+        bail!(
+            "{cmd:?} failed with {}: {}",
+            out.status,
+            String::from_utf8_lossy(&out.stderr)
+        );
+    }
+    String::from_utf8(out.stdout).with_context(|| format!("{cmd:?} printed non-UTF-8"))
 }
 
 /// Builds and starts `cairn demo` in release mode, passing `args` on.

@@ -13,7 +13,7 @@ use crate::AppState;
 use crate::error::ApiError;
 use crate::http::access::{ADMINS, Access, ClientAddress, CurrentUser, RouteTable};
 use crate::http::extract::CurrentSite;
-use crate::http::pages::{Me, VERSION, render};
+use crate::http::pages::{Me, render};
 use crate::master::Site;
 use crate::time::Timestamp;
 use askama::Template;
@@ -138,7 +138,7 @@ async fn render_users(
         users,
         all_roles: Role::ALL,
         message,
-        version: VERSION,
+        version: crate::build_info::describe(),
     })?;
     Ok((status, page).into_response())
 }
@@ -362,7 +362,7 @@ async fn devices_page(
         me: Some(me),
         site,
         devices,
-        version: VERSION,
+        version: crate::build_info::describe(),
     })?
     .into_response())
 }
@@ -415,7 +415,7 @@ async fn render_tokens(
         all_roles: Role::ALL,
         new_token,
         message,
-        version: VERSION,
+        version: crate::build_info::describe(),
     })?;
     Ok((status, page).into_response())
 }
@@ -536,7 +536,7 @@ async fn audit_page(
         site,
         rows,
         limit: MAX_AUDIT_PAGE_ROWS,
-        version: VERSION,
+        version: crate::build_info::describe(),
     })?
     .into_response())
 }

@@ -16,7 +16,7 @@ use crate::error::ApiError;
 use crate::http::access::{
     Access, ClientAddress, CounterDevice, CurrentUser, MaybeUser, RouteTable,
 };
-use crate::http::pages::{Me, VERSION, render};
+use crate::http::pages::{Me, render};
 use crate::input::text::{self, Kind};
 use crate::master::SiteCode;
 use crate::time::Timestamp;
@@ -76,7 +76,7 @@ fn sign_in_form(
         csrf,
         message: message.to_string(),
         name: name.to_string(),
-        version: VERSION,
+        version: crate::build_info::describe(),
     })?;
     Ok((status, jar, page).into_response())
 }

@@ -15,7 +15,7 @@ use crate::AppState;
 use crate::error::ApiError;
 use crate::http::access::{Access, BOOK_READERS, CurrentUser, RouteTable};
 use crate::http::extract::{CurrentSite, Params};
-use crate::http::pages::{Me, PageError, VERSION, render};
+use crate::http::pages::{Me, PageError, render};
 use crate::master::Site;
 use crate::master::codes::Sku;
 use askama::Template;
@@ -296,7 +296,7 @@ async fn accuracy_page(
             .collect(),
         query,
         site,
-        version: VERSION,
+        version: crate::build_info::describe(),
     };
     Ok(render(&page)?)
 }
@@ -377,7 +377,7 @@ async fn item_page(
             .collect(),
         site,
         r,
-        version: VERSION,
+        version: crate::build_info::describe(),
     };
     Ok(render(&page)?)
 }
@@ -459,7 +459,7 @@ async fn buffers_page(
             })
             .collect(),
         site,
-        version: VERSION,
+        version: crate::build_info::describe(),
     };
     Ok(render(&page)?)
 }
@@ -530,7 +530,7 @@ async fn items_page(
             })
             .collect(),
         site,
-        version: VERSION,
+        version: crate::build_info::describe(),
     };
     Ok(render(&page)?)
 }
@@ -722,7 +722,7 @@ async fn buffer_page(
         query,
         site,
         r,
-        version: VERSION,
+        version: crate::build_info::describe(),
     };
     Ok(render(&page)?)
 }

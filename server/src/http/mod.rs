@@ -15,8 +15,6 @@ use crate::error::ApiError;
 use access::{Access, Guard, RouteTable, Rule};
 use axum::Router;
 use axum::extract::DefaultBodyLimit;
-use axum::http::header;
-use axum::response::IntoResponse;
 
 /// Declares every route of Cairn with its access rule.
 pub fn route_table() -> RouteTable {
@@ -58,10 +56,7 @@ pub fn router(state: AppState) -> Router {
         ))
         // The phone app's static files are public (the app signs in itself); added after the
         // guard so they sit outside the route table.
-        .nest_service(
-            "/app",
-            tower_http::services::ServeDir::new(&state.config.web_dir),
-        )
+        .merge(app_files(&state))
         .fallback(not_found)
         .layer(DefaultBodyLimit::max(state.config.max_body_bytes))
         // Phones on weak Wi-Fi: the app shell, wasm and JSON answers go gzip-compressed.
@@ -75,10 +70,23 @@ pub fn router(state: AppState) -> Router {
         .with_state(state)
 }
 
-async fn stylesheet() -> impl IntoResponse {
-    (
-        [(header::CONTENT_TYPE, "text/css; charset=utf-8")],
+/// Routes `/app/` to the phone app's files: compiled in, or `web_dir` when set.
+fn app_files(state: &AppState) -> Router<AppState> {
+    use axum::routing::get;
+    Router::new()
+        .route("/app", get(crate::web::app_root_redirect))
+        .route("/app/", get(crate::web::app_index))
+        .route("/app/{*path}", get(crate::web::app_file))
+        .with_state(crate::web::AppFiles::from_config(
+            state.config.web_dir.as_deref(),
+        ))
+}
+
+async fn stylesheet(headers: axum::http::HeaderMap) -> axum::response::Response {
+    crate::web::page_file(
         include_str!("../../static/cairn.css"),
+        "text/css; charset=utf-8",
+        &headers,
     )
 }
 

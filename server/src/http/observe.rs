@@ -103,7 +103,11 @@ pub async fn readyz(State(state): State<AppState>) -> Response {
     let not_ready = |why: String| {
         (
             StatusCode::SERVICE_UNAVAILABLE,
-            axum::Json(serde_json::json!({ "status": "not ready", "reason": why })),
+            axum::Json(serde_json::json!({
+                "status": "not ready",
+                "reason": why,
+                "build": crate::build_info::json(),
+            })),
         )
             .into_response()
     };
@@ -117,7 +121,9 @@ pub async fn readyz(State(state): State<AppState>) -> Response {
     match tokio::time::timeout(READY_TIMEOUT, state.store.ping_writer()).await {
         Ok(Ok(())) => (
             StatusCode::OK,
-            axum::Json(serde_json::json!({ "status": "ready" })),
+            axum::Json(
+                serde_json::json!({ "status": "ready", "build": crate::build_info::json() }),
+            ),
         )
             .into_response(),
         Ok(Err(e)) => {

@@ -58,9 +58,6 @@ impl Me {
     }
 }
 
-/// Cairn's version, for the page footer.
-pub const VERSION: &str = env!("CARGO_PKG_VERSION");
-
 /// Renders a template, turning a template error into a logged 500.
 pub fn render(page: &impl Template) -> Result<Html<String>, ApiError> {
     Ok(Html(
@@ -93,7 +90,7 @@ impl IntoResponse for PageError {
         let page = Refusal {
             me: None,
             message: self.0.public_text(),
-            version: VERSION,
+            version: crate::build_info::describe(),
         };
         match page.render() {
             Ok(html) => (status, Html(html)).into_response(),
@@ -153,7 +150,7 @@ async fn home(
     Ok(render(&Home {
         me: Some(Me::of(&p)),
         sites,
-        version: VERSION,
+        version: crate::build_info::describe(),
     })?
     .into_response())
 }
@@ -177,7 +174,7 @@ async fn site_page(
         me: Some(Me::at(&p, &site)),
         site,
         counts,
-        version: VERSION,
+        version: crate::build_info::describe(),
     })
 }
 
@@ -206,6 +203,6 @@ async fn phone_page(
         me: Some(Me::at(&p, &site)),
         address: format!("{host}/app/"),
         site,
-        version: VERSION,
+        version: crate::build_info::describe(),
     })
 }

@@ -14,7 +14,7 @@ use crate::AppState;
 use crate::accounts::{Principal, audit};
 use crate::http::access::{Access, ClientAddress, CurrentUser, RouteTable};
 use crate::http::extract::{CurrentSite, Params};
-use crate::http::pages::{Me, PageError, VERSION, render};
+use crate::http::pages::{Me, PageError, render};
 use crate::master::Site;
 use crate::store::error::StoreError;
 use askama::Template;
@@ -144,7 +144,7 @@ async fn render_policy(
         reasons,
         reason_errors,
         caution: CAUTION,
-        version: VERSION,
+        version: crate::build_info::describe(),
     })?;
     Ok((showing.status, page).into_response())
 }

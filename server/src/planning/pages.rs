@@ -16,14 +16,14 @@ use crate::accounts::{Principal, Role};
 use crate::error::ApiError;
 use crate::http::access::{Access, BOOK_READERS, CurrentUser, LIST_KEEPERS, RouteTable};
 use crate::http::extract::{CurrentSite, Params};
-use crate::http::pages::{Me, PageError, VERSION, render};
+use crate::http::pages::{Me, PageError, render};
 use crate::master::Site;
 use crate::store::error::StoreError;
 use crate::time::Timestamp;
 use askama::Template;
 use axum::Form;
 use axum::extract::{Path, State};
-use axum::http::{StatusCode, header};
+use axum::http::StatusCode;
 use axum::response::{IntoResponse, Redirect, Response};
 use chrono::NaiveDate;
 use serde::Deserialize;
@@ -440,7 +440,7 @@ async fn render_day(
         started,
         shown,
         refresh_ms: REFRESH_MS,
-        version: VERSION,
+        version: crate::build_info::describe(),
     })?;
     Ok((showing.status, page).into_response())
 }
@@ -673,15 +673,16 @@ async fn labels_page(
         site,
         day,
         sheets,
-        version: VERSION,
+        version: crate::build_info::describe(),
     })?
     .into_response())
 }
 
-async fn script() -> impl IntoResponse {
-    (
-        [(header::CONTENT_TYPE, "text/javascript; charset=utf-8")],
+async fn script(headers: axum::http::HeaderMap) -> axum::response::Response {
+    crate::web::page_file(
         include_str!("../../static/count-list.js"),
+        "text/javascript; charset=utf-8",
+        &headers,
     )
 }
 

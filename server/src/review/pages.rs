@@ -19,7 +19,7 @@ use crate::accounts::{Principal, Role};
 use crate::error::ApiError;
 use crate::http::access::{Access, BOOK_READERS, ClientAddress, CurrentUser, RouteTable};
 use crate::http::extract::{CurrentSite, Params};
-use crate::http::pages::{Me, PageError, VERSION, render};
+use crate::http::pages::{Me, PageError, render};
 use crate::master::Site;
 use crate::netting::rule::{MoveId, NetMove, Place, Window};
 use crate::netting::service::Evidence;
@@ -308,7 +308,7 @@ async fn render_list(
         manager_limit: money(policy.manager_value_minor),
         site,
         caution: CAUTION,
-        version: VERSION,
+        version: crate::build_info::describe(),
     })?;
     Ok((status, page).into_response())
 }
@@ -710,7 +710,7 @@ async fn render_detail(
         manager_limit: money(policy.manager_value_minor),
         site,
         caution: CAUTION,
-        version: VERSION,
+        version: crate::build_info::describe(),
     })?;
     Ok((showing.status, page).into_response())
 }
