@@ -8,25 +8,20 @@ use cairn::accounts::Role;
 use common::spawn_app;
 use serde_json::{Value, json};
 use std::collections::BTreeMap;
-use std::path::Path;
 
-/// Row counts of every table (sign-in throttling and sessions included).
-fn table_counts(db: &Path) -> BTreeMap<String, i64> {
-    let c = common::sqlite_file(db);
-    let names: Vec<String> = c
-        .prepare("select name from sqlite_master where type = 'table' and name not like 'sqlite_%'")
-        .unwrap()
-        .query_map([], |r| r.get(0))
-        .unwrap()
-        .collect::<Result<_, _>>()
-        .unwrap();
+/// Row counts of every table (sign-in throttling and sessions included), on either store.
+fn table_counts(app: &common::TestApp) -> BTreeMap<String, i64> {
+    let names = app.sql_rows(if common::on_postgres() {
+        "select cast(table_name as text) from information_schema.tables
+         where table_schema = current_schema() and table_type = 'BASE TABLE'"
+    } else {
+        "select name from sqlite_master where type = 'table' and name not like 'sqlite_%'"
+    });
     names
         .into_iter()
         .map(|n| {
-            let k: i64 = c
-                .query_row(&format!("select count(*) from \"{n}\""), [], |r| r.get(0))
-                .unwrap();
-            (n, k)
+            let k = app.sql_i64(&format!("select count(*) from \"{}\"", n[0]));
+            (n[0].clone(), k)
         })
         .collect()
 }
@@ -153,7 +148,7 @@ async fn every_bad_request_is_refused_with_a_clear_message_and_writes_nothing() 
         .unwrap()
         .to_string();
     let admin = app.token.get().unwrap().clone();
-    let before = table_counts(&app.db);
+    let before = table_counts(&app);
     let mut failures = Vec::new();
     for c in cases() {
         let token = if c.path == SYNC { &device } else { &admin };
@@ -188,7 +183,7 @@ async fn every_bad_request_is_refused_with_a_clear_message_and_writes_nothing() 
     }
     assert!(failures.is_empty(), "{}", failures.join("\n"));
     assert_eq!(
-        table_counts(&app.db),
+        table_counts(&app),
         before,
         "a refused request writes nothing"
     );
@@ -279,7 +274,7 @@ async fn bad_events_in_a_sync_are_refused_one_by_one_and_leave_no_trace() {
         (json!("just a string"), "cannot be read"),
         (json!(null), "cannot be read"),
     ];
-    let before = table_counts(&app.db);
+    let before = table_counts(&app);
     let body = json!({"device_clock": now, "rtt_ms": 20,
                       "events": events.iter().map(|(e, _)| e.clone()).collect::<Vec<_>>()});
     let r = app
@@ -303,7 +298,7 @@ async fn bad_events_in_a_sync_are_refused_one_by_one_and_leave_no_trace() {
         let reason = result["reason"].as_str().unwrap_or("");
         assert!(reason.contains(says), "the reason names '{says}': {reason}");
     }
-    let mut after = table_counts(&app.db);
+    let mut after = table_counts(&app);
     // The clock sample of the request is kept (one row per device, updated).
     assert_eq!(after.remove("device_clock"), Some(1));
     let mut before = before;
@@ -320,16 +315,9 @@ async fn sql_looking_free_text_is_stored_literally_and_harms_nothing() {
         .post(ITEMS, &json!([item(json!({"description": text}))]))
         .await;
     assert_eq!(s, 200, "{b}");
-    let c = common::sqlite_file(&app.db);
-    let stored: String = c
-        .query_row("select description from item where sku = 'N1'", [], |r| {
-            r.get(0)
-        })
-        .unwrap();
-    assert_eq!(stored, text);
-    let items: i64 = c
-        .query_row("select count(*) from item", [], |r| r.get(0))
-        .unwrap();
+    let stored = app.sql_rows("select description from item where sku = 'N1'");
+    assert_eq!(stored, [[text.to_string()]]);
+    let items = app.sql_i64("select count(*) from item");
     assert_eq!(items, 3, "S1, L1 and N1 are all still there");
 }
 

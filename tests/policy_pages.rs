@@ -98,20 +98,19 @@ async fn policy(app: &TestApp) -> Value {
 
 /// The audit trail's count-policy changes, oldest first: actor, subject, detail.
 fn policy_audit(app: &TestApp) -> Vec<(String, String, Value)> {
-    let conn = common::sqlite_file(&app.db);
-    let mut stmt = conn
-        .prepare(
-            "select actor, subject, detail from audit_event
-             where action = 'count_policy_changed' order by id",
+    app.sql_rows(
+        "select actor, subject, detail from audit_event
+         where action = 'count_policy_changed' order by id",
+    )
+    .into_iter()
+    .map(|r| {
+        (
+            r[0].clone(),
+            r[1].clone(),
+            serde_json::from_str(&r[2]).unwrap(),
         )
-        .unwrap();
-    stmt.query_map([], |r| {
-        let detail: String = r.get(2)?;
-        Ok((r.get(0)?, r.get(1)?, serde_json::from_str(&detail).unwrap()))
     })
-    .unwrap()
-    .collect::<Result<_, _>>()
-    .unwrap()
+    .collect()
 }
 
 #[tokio::test]
