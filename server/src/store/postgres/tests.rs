@@ -626,6 +626,30 @@ async fn planning_answers(
         .await
         .unwrap();
     out.push(serde_json::to_value(balances).unwrap());
+    // The same balances page by page, zero keys included.
+    let mut pages = Vec::new();
+    let mut after = None;
+    loop {
+        let page = store
+            .balances(
+                site.id,
+                BalanceQuery {
+                    limit: 7,
+                    include_zero: true,
+                    after: after.clone(),
+                    ..BalanceQuery::default()
+                },
+            )
+            .await
+            .unwrap();
+        pages.extend(page.balances);
+        match page.next {
+            Some(n) => after = Some(n),
+            None => break,
+        }
+    }
+    assert!(pages.len() > 7, "more than one page");
+    out.push(serde_json::to_value(pages).unwrap());
     out.push(serde_json::to_value(store.bins(site.id, None).await.unwrap()).unwrap());
     out.push(serde_json::to_value(store.site_counts(site.id).await.unwrap()).unwrap());
     out.extend(accuracy_answers(store, site, day).await);
