@@ -43,8 +43,10 @@ pub async fn migrate(client: &mut tokio_postgres::Client) -> Result<i64, StoreEr
         &[&LOCK_SPACE, &MIGRATION_LOCK],
     )
     .await?;
+    // The server's notice that the table exists already would reach every CLI run's log.
     tx.batch_execute(
-        "create table if not exists schema_migration (
+        "set local client_min_messages = warning;
+         create table if not exists schema_migration (
              version     bigint primary key,
              name        text not null,
              checksum    bigint not null,
