@@ -525,7 +525,7 @@ pub async fn plan_input(
                 bc.counted_on, bc.counted_at
          from bin b join zone z on z.id = b.zone_id left join bin_count bc on bc.bin_id = b.id
          where b.site_id = $1
-         order by b.code",
+         order by b.code collate \"C\"",
         &[&site.0],
     )
     .await?
@@ -590,7 +590,7 @@ pub async fn plan_input(
         "select k.bin_id, k.item_id, k.lot, k.qty, k.last_event_at
            from balance k join bin b on b.id = k.bin_id
           where b.site_id = $1
-          order by k.bin_id, k.item_id, k.lot",
+          order by k.bin_id, k.item_id, k.lot collate \"C\"",
         &[&site.0],
     )
     .await?
