@@ -186,12 +186,14 @@ pub async fn bins(
     zone: Option<ZoneCode>,
 ) -> Result<Vec<Bin>, StoreError> {
     let c = store.client().await?;
+    // Two sides of one place tie on the walk's order; the code settles it (SQLite reads
+    // the bins through its (site, code) index, so it meets them in that order too).
     let found = rows(
         &c,
         "select b.code, z.code, b.aisle, b.bay, b.level, b.side, b.walk_seq
          from bin b join zone z on z.id = b.zone_id
          where b.site_id = $1 and ($2::text is null or z.code = $2)
-         order by z.walk_seq, z.code collate \"C\", b.aisle, b.bay, b.level",
+         order by z.walk_seq, z.code collate \"C\", b.aisle, b.bay, b.level, b.code collate \"C\"",
         &[&site.0, &zone.as_ref().map(ZoneCode::as_str)],
     )
     .await?;
