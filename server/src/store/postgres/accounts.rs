@@ -282,7 +282,7 @@ impl AccountStore for PgStore {
             "select u.id, u.name, u.display_name, u.pin_hash is not null, string_agg(r.role, ',')
                from user_account u join user_role r on r.user_id = u.id
               where r.site_id = $1
-              group by u.id order by lower(u.name)",
+              group by u.id order by lower(u.name) collate \"C\"",
             &[&site.0],
         )
         .await?;

@@ -180,7 +180,7 @@ impl AccuracyStore for PgStore {
              join item_class ic on ic.item_id = i.id
              where i.site_id = $1 and ic.class = 'A'
                and ic.run_id = (select max(x.run_id) from item_class x where x.item_id = i.id)
-             order by i.sku",
+             order by i.sku collate \"C\"",
             &[&site.0, &before.0],
         )
         .await?
@@ -207,7 +207,7 @@ impl AccuracyStore for PgStore {
                     (select count(*) from balance b where b.item_id = i.id and b.qty <> 0)
              from item i
              where i.site_id = $1 and ($2::text is null or i.sku = $2)
-             order by i.sku",
+             order by i.sku collate \"C\"",
             &[&site.0, &sku.as_ref().map(|s| s.as_str())],
         )
         .await?
@@ -245,7 +245,7 @@ impl AccuracyStore for PgStore {
              where m.site_id = $1 and m.kind = 'pick' and m.qty < 0
                and m.event_at >= $2 and m.event_at < $3
                and ($4::text is null or i.sku = $4)
-             order by i.sku, m.event_at",
+             order by i.sku collate \"C\", m.event_at",
             &[&site.0, &from.0, &to.0, &sku.as_ref().map(|s| s.as_str())],
         )
         .await?;
@@ -273,16 +273,18 @@ impl AccuracyStore for PgStore {
         let c = self.client().await?;
         Ok(rows(
             &c,
-            "select i.sku, ''::text, p.lead_time_days, p.lead_time_sd_days, p.review_days,
-                    p.service_level, p.updated_at, p.updated_by
-             from planner_input p join item i on i.id = p.item_id
-             where p.site_id = $1
-             union all
-             select ''::text, g.item_group, g.lead_time_days, g.lead_time_sd_days, g.review_days,
-                    g.service_level, g.updated_at, g.updated_by
-             from planner_group_default g
-             where g.site_id = $1
-             order by 2, 1",
+            "select * from (
+                 select i.sku, ''::text as item_group, p.lead_time_days, p.lead_time_sd_days,
+                        p.review_days, p.service_level, p.updated_at, p.updated_by
+                 from planner_input p join item i on i.id = p.item_id
+                 where p.site_id = $1
+                 union all
+                 select ''::text, g.item_group, g.lead_time_days, g.lead_time_sd_days,
+                        g.review_days, g.service_level, g.updated_at, g.updated_by
+                 from planner_group_default g
+                 where g.site_id = $1
+             ) x
+             order by x.item_group collate \"C\", x.sku collate \"C\"",
             &[&site.0],
         )
         .await?

@@ -270,7 +270,7 @@ pub async fn balances(
         args.push(Box::new(l));
         let n = args.len();
         sql.push_str(&format!(
-            " and (b.bin_id, b.item_id, b.lot) > (${}, ${}, ${})",
+            " and (b.bin_id, b.item_id, b.lot collate \"C\") > (${}, ${}, ${})",
             n - 2,
             n - 1,
             n
@@ -281,7 +281,7 @@ pub async fn balances(
     }
     let limit = query.limit.clamp(1, MAX_PAGE_ROWS);
     sql.push_str(&format!(
-        " order by b.bin_id, b.item_id, b.lot limit {limit}"
+        " order by b.bin_id, b.item_id, b.lot collate \"C\" limit {limit}"
     ));
     let params: Vec<&(dyn ToSql + Sync)> = args
         .iter()

@@ -144,11 +144,15 @@ pub async fn site(store: &PgStore, code: &SiteCode) -> Result<Option<Site>, Stor
 /// See [`crate::store::Store::sites`].
 pub async fn sites(store: &PgStore) -> Result<Vec<Site>, StoreError> {
     let c = store.client().await?;
-    rows(&c, &format!("{SITE_COLUMNS} order by code"), &[])
-        .await?
-        .iter()
-        .map(to_site)
-        .collect()
+    rows(
+        &c,
+        &format!("{SITE_COLUMNS} order by code collate \"C\""),
+        &[],
+    )
+    .await?
+    .iter()
+    .map(to_site)
+    .collect()
 }
 
 /// See [`crate::store::Store::site_counts`].
@@ -182,12 +186,14 @@ pub async fn bins(
     zone: Option<ZoneCode>,
 ) -> Result<Vec<Bin>, StoreError> {
     let c = store.client().await?;
+    // Two sides of one place tie on the walk's order; the code settles it (SQLite reads
+    // the bins through its (site, code) index, so it meets them in that order too).
     let found = rows(
         &c,
         "select b.code, z.code, b.aisle, b.bay, b.level, b.side, b.walk_seq
          from bin b join zone z on z.id = b.zone_id
          where b.site_id = $1 and ($2::text is null or z.code = $2)
-         order by z.walk_seq, z.code, b.aisle, b.bay, b.level",
+         order by z.walk_seq, z.code collate \"C\", b.aisle, b.bay, b.level, b.code collate \"C\"",
         &[&site.0, &zone.as_ref().map(ZoneCode::as_str)],
     )
     .await?;
@@ -220,10 +226,10 @@ pub async fn bin_contents(
     for bin in bins {
         let items = rows(
             &c,
-            "select distinct i.id, i.sku, i.description, i.base_unit, i.lot_tracked
+            "select distinct i.id, i.sku collate \"C\", i.description, i.base_unit, i.lot_tracked
              from bin b join balance k on k.bin_id = b.id join item i on i.id = k.item_id
              where b.site_id = $1 and b.code = $2 and k.qty <> 0
-             order by i.sku",
+             order by 2",
             &[&site.0, &bin.as_str()],
         )
         .await?;

@@ -8,6 +8,7 @@
 
 pub mod accounts;
 pub mod accuracy;
+pub mod count_lists;
 pub mod ledger;
 pub mod master;
 pub mod migrate;

@@ -214,7 +214,7 @@ impl Store for PgStore {
     }
 
     async fn save_count_list(&self, site: SiteId, list: NewCountList) -> Result<i64, StoreError> {
-        super::planning::save_count_list(self, site, list).await
+        super::count_lists::save_count_list(self, site, list).await
     }
 
     async fn count_list(
@@ -222,7 +222,7 @@ impl Store for PgStore {
         site: SiteId,
         day: NaiveDate,
     ) -> Result<Option<ListView>, StoreError> {
-        super::planning::count_list(self, site, day).await
+        super::count_lists::count_list(self, site, day).await
     }
 
     async fn move_task(
@@ -232,7 +232,7 @@ impl Store for PgStore {
         task: i64,
         run: u32,
     ) -> Result<(), StoreError> {
-        super::planning::move_task(self, site, day, task, run).await
+        super::count_lists::move_task(self, site, day, task, run).await
     }
 
     async fn hold_run(
@@ -242,7 +242,7 @@ impl Store for PgStore {
         run: u32,
         holder: Option<crate::accounts::UserName>,
     ) -> Result<(), StoreError> {
-        super::planning::hold_run(self, site, day, run, holder).await
+        super::count_lists::hold_run(self, site, day, run, holder).await
     }
 
     async fn bin_contents(
@@ -255,7 +255,7 @@ impl Store for PgStore {
     }
 
     async fn finish_task(&self, site: SiteId, task: i64, at: Timestamp) -> Result<(), StoreError> {
-        super::planning::finish_task(self, site, task, at).await
+        super::count_lists::finish_task(self, site, task, at).await
     }
 
     async fn catalog(

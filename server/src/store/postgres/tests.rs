@@ -26,6 +26,11 @@ struct TestDb {
 
 impl TestDb {
     fn create() -> Option<(Self, String)> {
+        Self::create_with("")
+    }
+
+    /// Creates the database with `options` added to `create database` (a collation).
+    fn create_with(options: &str) -> Option<(Self, String)> {
         let admin = std::env::var("CAIRN_TEST_STORE")
             .ok()
             .filter(|v| !v.trim().is_empty());
@@ -38,7 +43,7 @@ impl TestDb {
             std::process::id(),
             &uuid::Uuid::now_v7().simple().to_string()[20..]
         );
-        admin_sql(&admin, &format!("create database {name}"));
+        admin_sql(&admin, &format!("create database {name} {options}"));
         let base = admin.rsplit_once('/').map_or(admin.as_str(), |(b, _)| b);
         let url = format!("{base}/{name}");
         Some((Self { admin, name }, url))
@@ -419,6 +424,16 @@ async fn both(
     out
 }
 
+/// Names item `i` of the differential history: cases and punctuation mixed, so a text
+/// order other than the bytes' shows.
+fn sku(i: usize) -> String {
+    match i % 3 {
+        0 => format!("SKU-{i:03}"),
+        1 => format!("sku.{i:03}"),
+        _ => format!("Sku_{i:03}"),
+    }
+}
+
 /// Makes the same master data, movements, short picks and counter on `store`.
 async fn same_history(store: &dyn Store, site: SiteId, day: chrono::NaiveDate) {
     let zones = ["A", "B", "C"];
@@ -448,10 +463,10 @@ async fn same_history(store: &dyn Store, site: SiteId, day: chrono::NaiveDate) {
     let items: Vec<_> = (0..30)
         .map(|i| {
             ItemRecord {
-                sku: format!("SKU-{i:03}"),
+                sku: sku(i),
                 description: format!("Widget {i}"),
                 base_unit: "each".into(),
-                unit_cost_minor: 50 + 37 * i,
+                unit_cost_minor: 50 + 37 * i as i64,
                 lot_tracked: false,
                 group: None,
             }
@@ -468,8 +483,8 @@ async fn same_history(store: &dyn Store, site: SiteId, day: chrono::NaiveDate) {
     let mut rows = Vec::new();
     for n in 0..600 {
         // Each of 25 items lives in two bins; the last five never move.
-        let sku = rng.random_range(0..25);
-        let bin = (sku * 7 + 11 * rng.random_range(0..2)) % codes.len();
+        let item = rng.random_range(0..25);
+        let bin = (item * 7 + 11 * rng.random_range(0..2)) % codes.len();
         let receipt = n < 60 || rng.random_bool(0.4);
         let qty = if receipt {
             rng.random_range(20..120)
@@ -479,7 +494,7 @@ async fn same_history(store: &dyn Store, site: SiteId, day: chrono::NaiveDate) {
         rows.push(NewMovement {
             uid: MovementUid::parse(&format!("d{n}")).unwrap(),
             bin: BinCode::parse(&codes[bin]).unwrap(),
-            sku: Sku::parse(&format!("SKU-{sku:03}")).unwrap(),
+            sku: Sku::parse(&sku(item)).unwrap(),
             lot: String::new(),
             expiry: None,
             qty: if receipt { qty } else { -qty },
@@ -508,7 +523,7 @@ async fn same_history(store: &dyn Store, site: SiteId, day: chrono::NaiveDate) {
         .map(|n| crate::planning::short_pick::NewShortPick {
             uid: MovementUid::parse(&format!("sp{n}")).unwrap(),
             bin: BinCode::parse(&codes[n * 4]).unwrap(),
-            sku: Sku::parse(&format!("SKU-{:03}", n * 5)).unwrap(),
+            sku: Sku::parse(&sku(n * 5)).unwrap(),
             lot: String::new(),
             short_qty: n as i64,
             reported_at: Timestamp(end - 3_600_000 * (n as i64 + 1)),
@@ -597,7 +612,7 @@ async fn planning_answers(
     out.push(
         serde_json::to_value(
             store
-                .class_history(site.id, Sku::parse("SKU-007").unwrap())
+                .class_history(site.id, Sku::parse(&sku(7)).unwrap())
                 .await
                 .unwrap(),
         )
@@ -626,6 +641,30 @@ async fn planning_answers(
         .await
         .unwrap();
     out.push(serde_json::to_value(balances).unwrap());
+    // The same balances page by page, zero keys included.
+    let mut pages = Vec::new();
+    let mut after = None;
+    loop {
+        let page = store
+            .balances(
+                site.id,
+                BalanceQuery {
+                    limit: 7,
+                    include_zero: true,
+                    after: after.clone(),
+                    ..BalanceQuery::default()
+                },
+            )
+            .await
+            .unwrap();
+        pages.extend(page.balances);
+        match page.next {
+            Some(n) => after = Some(n),
+            None => break,
+        }
+    }
+    assert!(pages.len() > 7, "more than one page");
+    out.push(serde_json::to_value(pages).unwrap());
     out.push(serde_json::to_value(store.bins(site.id, None).await.unwrap()).unwrap());
     out.push(serde_json::to_value(store.site_counts(site.id).await.unwrap()).unwrap());
     out.extend(accuracy_answers(store, site, day).await);
@@ -658,11 +697,19 @@ async fn accuracy_answers(
     };
     let inputs = vec![
         NewPlannerInput {
-            target: InputTarget::Item(Sku::parse("SKU-003").unwrap()),
+            target: InputTarget::Item(Sku::parse(&sku(3)).unwrap()),
             times,
         },
         NewPlannerInput {
-            target: InputTarget::Group("fasteners".into()),
+            target: InputTarget::Item(Sku::parse(&sku(4)).unwrap()),
+            times,
+        },
+        NewPlannerInput {
+            target: InputTarget::Group("bolts".into()),
+            times,
+        },
+        NewPlannerInput {
+            target: InputTarget::Group("Fasteners".into()),
             times: LeadTimes {
                 service_level: None,
                 ..times
@@ -705,7 +752,7 @@ async fn accuracy_answers(
     ));
     out.push(debug(
         &store
-            .daily_issues(site.id, days, end, Some(Sku::parse("SKU-004").unwrap()))
+            .daily_issues(site.id, days, end, Some(Sku::parse(&sku(4)).unwrap()))
             .await
             .unwrap(),
     ));
@@ -734,7 +781,10 @@ async fn accuracy_answers(
 
 #[tokio::test(flavor = "multi_thread", worker_threads = 2)]
 async fn the_same_history_plans_the_same_lists_on_both_stores() {
-    let Some((_db, url)) = TestDb::create() else {
+    // A database whose default collation sorts text unlike SQLite's byte order, so every
+    // ordered read must say which order it means.
+    let icu = "template template0 locale_provider icu icu_locale 'en-US'";
+    let Some((_db, url)) = TestDb::create_with(icu) else {
         return;
     };
     let dir = tempfile::tempdir().unwrap();
