@@ -197,7 +197,7 @@ impl AccountStore for PgStore {
     }
 
     async fn user(&self, name: &UserName) -> Result<Option<User>, StoreError> {
-        user_by_name(&self.client().await?, name).await
+        user_by_name(&*self.client().await?, name).await
     }
 
     async fn credentials(&self, name: &UserName) -> Result<Option<StoredCredentials>, StoreError> {
@@ -268,7 +268,7 @@ impl AccountStore for PgStore {
     }
 
     async fn roles_at(&self, user: UserId, site: SiteId) -> Result<Vec<Role>, StoreError> {
-        roles_at(&self.client().await?, user, site).await
+        roles_at(&*self.client().await?, user, site).await
     }
 
     async fn site_users(

@@ -109,7 +109,15 @@ impl PgStore {
     }
 
     /// Takes a pooled connection for a read.
-    pub async fn client(&self) -> Result<deadpool_postgres::Object, StoreError> {
+    pub async fn client(&self) -> Result<ReadConn, StoreError> {
+        Ok(ReadConn {
+            conn: self.connection().await?,
+            taken: std::time::Instant::now(),
+        })
+    }
+
+    /// Takes a pooled connection and shows the pool's figures.
+    async fn connection(&self) -> Result<deadpool_postgres::Object, StoreError> {
         let c = self.pool.get().await?;
         self.report_pool();
         Ok(c)
@@ -169,7 +177,7 @@ impl PgStore {
         R: Send + 'static,
         F: FnOnce(&PgTx<'_>) -> Result<R, StoreError> + Send + 'static,
     {
-        let mut client = self.client().await?;
+        let mut client = self.connection().await?;
         let rt = tokio::runtime::Handle::current();
         let every = self.options.snapshot_every;
         tokio::task::spawn_blocking(move || {
@@ -236,6 +244,34 @@ pub async fn row_one(
 ) -> Result<Row, StoreError> {
     let st = c.prepare_cached(sql).await?;
     Ok(c.query_one(&st, params).await?)
+}
+
+/// A pooled connection taken for a read; the time it was held counts as the read's time
+/// on `/metrics`.
+pub struct ReadConn {
+    conn: deadpool_postgres::Object,
+    taken: std::time::Instant,
+}
+
+impl std::ops::Deref for ReadConn {
+    type Target = deadpool_postgres::Object;
+    fn deref(&self) -> &Self::Target {
+        &self.conn
+    }
+}
+
+impl std::ops::DerefMut for ReadConn {
+    fn deref_mut(&mut self) -> &mut Self::Target {
+        &mut self.conn
+    }
+}
+
+impl Drop for ReadConn {
+    fn drop(&mut self) {
+        crate::telemetry::metrics()
+            .db_read_seconds
+            .observe_duration(self.taken.elapsed());
+    }
 }
 
 /// Takes the transaction-scoped advisory locks of `scope`: the one site's, or every

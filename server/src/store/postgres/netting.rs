@@ -73,7 +73,7 @@ pub(super) const SETTINGS_SQL: &str =
 
 pub(super) const SOURCES_SQL: &str =
     "select source, uncertainty_ms, posting_lag_ms from source_timing
-     where site_id = $1 order by source";
+     where site_id = $1 order by source collate \"C\"";
 
 pub(super) fn source_rows(rows: Vec<Row>) -> Result<Vec<SourceTimingRow>, StoreError> {
     rows.iter()
@@ -353,10 +353,10 @@ impl NettingTx for PgTx<'_> {
 
     fn rechecked_keys(&self, task: i64) -> Result<Vec<(ItemLot, i64)>, StoreError> {
         self.query(
-            "select distinct r.item_id, r.lot, r.pass_id
+            "select distinct r.item_id, r.lot collate \"C\" as lot, r.pass_id
              from count_task_recheck k join count_result r on r.id = k.result_id
              where k.task_id = $1
-             order by r.pass_id, r.item_id, r.lot",
+             order by r.pass_id, r.item_id, lot",
             &[&task],
         )?
         .iter()
@@ -729,7 +729,7 @@ pub(super) fn reason_code_rows<C: GenericClient>(
     site: SiteId,
 ) -> Result<Vec<ReasonCode>, StoreError> {
     q.query(
-        "select code, label from reason_code where site_id = $1 order by code",
+        "select code, label from reason_code where site_id = $1 order by code collate \"C\"",
         &[&site.0],
     )?
     .iter()
@@ -1200,7 +1200,7 @@ pub async fn count_pass_report(
                 .collect::<Result<_, _>>()?;
             for r in q.query(
                 "select r.id from count_result r join item i on i.id = r.item_id
-                 where r.pass_id = $1 and r.superseded_by is null order by i.sku, r.lot",
+                 where r.pass_id = $1 and r.superseded_by is null order by i.sku collate \"C\", r.lot collate \"C\"",
                 &[&report.pass_id],
             )? {
                 if let Some(d) = result_detail(q, site, r.try_get(0)?, now)? {

@@ -120,7 +120,7 @@ fn class_row(r: &Row) -> (i64, Class) {
 
 /// See [`crate::store::Store::planning_settings`].
 pub async fn planning_settings(store: &PgStore, site: SiteId) -> Result<Settings, StoreError> {
-    settings(&store.client().await?, site).await
+    settings(&*store.client().await?, site).await
 }
 
 /// See [`crate::store::Store::put_planning_settings`].
@@ -167,7 +167,7 @@ pub async fn put_planning_settings(
 
 /// See [`crate::store::Store::calendar`].
 pub async fn calendar(store: &PgStore, site: SiteId) -> Result<Calendar, StoreError> {
-    read_calendar(&store.client().await?, site).await
+    read_calendar(&*store.client().await?, site).await
 }
 
 /// See [`crate::store::Store::put_calendar`].

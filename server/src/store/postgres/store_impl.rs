@@ -64,7 +64,8 @@ impl Store for PgStore {
 
     async fn write_shared_work(&self, scope: WriteScope, work: Work) -> Result<Answer, StoreError> {
         // PostgreSQL groups concurrent commits itself (one WAL flush serves the commits
-        // waiting on it), so a sync is a write of its own.
+        // waiting on it), so a sync is a write of its own: a group of one.
+        crate::telemetry::metrics().db_write_group_size.observe(1.0);
         self.write_tx(scope, move |tx| work(tx)).await
     }
 

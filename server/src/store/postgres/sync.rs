@@ -393,7 +393,7 @@ pub async fn catalog(store: &PgStore, site: SiteId) -> Result<Vec<ItemBrief>, St
     }
     c.query(
         "select id, sku, description, base_unit, lot_tracked from item where site_id = $1
-         order by sku",
+         order by sku collate \"C\"",
         &[&site.0],
     )
     .await?
