@@ -25,7 +25,7 @@ use rand::{Rng, SeedableRng};
 use rand_chacha::ChaCha8Rng;
 use serde_json::{Value, json};
 use std::collections::{BTreeMap, HashMap, HashSet};
-use std::path::{Path, PathBuf};
+use std::path::PathBuf;
 use std::time::Duration;
 
 const PHONES: usize = 4;
@@ -42,6 +42,8 @@ const BASE_MS: u64 = 1_772_528_400_000;
 /// The site every run starts from: enrolled phones and the host's token.
 struct Template {
     db: PathBuf,
+    /// The template's database when the suites run on PostgreSQL.
+    pg: Option<common::PgTestDb>,
     phones: Vec<String>,
     host: String,
     each_gtin: String,
@@ -49,7 +51,7 @@ struct Template {
 }
 
 async fn template() -> Template {
-    let app = common::spawn_app().await;
+    let mut app = common::spawn_app().await;
     app.small_site().await;
     let body = "501234567890";
     let each_gtin = format!("{body}{}", cairn_scan::gtin_check_digit(body).unwrap());
@@ -77,20 +79,58 @@ async fn template() -> Template {
     }
     let dir = tempfile::tempdir().unwrap();
     let db = dir.path().join("template.db");
-    cairn::backup::backup(&app.db, &db, None, &indicatif::ProgressBar::hidden())
-        .expect("the template copies");
+    let host = app.token.get().unwrap().clone();
+    // On PostgreSQL the app's database is the template: each run copies it.
+    let pg = app.pg.take();
+    if pg.is_none() {
+        cairn::backup::backup(&app.db, &db, None, &indicatif::ProgressBar::hidden())
+            .expect("the template copies");
+    }
+    drop(app);
     Template {
         db,
+        pg,
         phones,
-        host: app.token.get().unwrap().clone(),
+        host,
         each_gtin,
         _dir: dir,
     }
 }
 
-/// A server over one database file that can be stopped and started again.
+/// One run's database: a copy of the template's, a file or a PostgreSQL database.
+struct RunDb {
+    file: PathBuf,
+    pg: Option<common::PgTestDb>,
+}
+
+impl RunDb {
+    fn copy_of(t: &Template, file: PathBuf) -> Self {
+        let pg = t.pg.as_ref().and_then(common::PgTestDb::copy_of);
+        if pg.is_none() {
+            std::fs::copy(&t.db, &file).unwrap();
+        }
+        RunDb { file, pg }
+    }
+
+    fn location(&self) -> cairn::store::DbLocation {
+        match &self.pg {
+            Some(pg) => cairn::store::DbLocation::Postgres(pg.url.clone()),
+            None => self.file.clone().into(),
+        }
+    }
+
+    fn rows(&self, sql: &str) -> Vec<Vec<String>> {
+        common::sql_rows_on(self.pg.as_ref().map(|p| p.url.as_str()), &self.file, sql)
+    }
+
+    fn int(&self, sql: &str) -> i64 {
+        common::sql_i64_on(self.pg.as_ref().map(|p| p.url.as_str()), &self.file, sql)
+    }
+}
+
+/// A server over one database that can be stopped and started again.
 struct Server {
-    db: PathBuf,
+    db: cairn::store::DbLocation,
     base: String,
     stop: Option<(
         tokio::sync::oneshot::Sender<()>,
@@ -99,9 +139,9 @@ struct Server {
 }
 
 impl Server {
-    async fn start(db: &Path) -> Self {
+    async fn start(db: cairn::store::DbLocation) -> Self {
         let mut s = Server {
-            db: db.to_path_buf(),
+            db,
             base: String::new(),
             stop: None,
         };
@@ -111,7 +151,7 @@ impl Server {
 
     async fn boot(&mut self) {
         let state = AppState::open(Config {
-            db: self.db.clone().into(),
+            db: self.db.clone(),
             // The simulation checks logic, not power cuts (tests/crash.rs does those).
             synchronous: Synchronous::Normal,
             readers: 2,
@@ -353,9 +393,8 @@ async fn post_movements(
 }
 
 /// Plays a seed's script against a fresh copy of the template.
-async fn play(t: &Template, s: &Script, seed: u64, mode: Mode, db: &Path) -> Acks {
-    std::fs::copy(&t.db, db).unwrap();
-    let mut server = Server::start(db).await;
+async fn play(s: &Script, t: &Template, seed: u64, mode: Mode, db: &RunDb) -> Acks {
+    let mut server = Server::start(db.location()).await;
     let client = reqwest::Client::builder()
         .timeout(Duration::from_secs(30))
         // No idle connections: a restart never waits for one to close.
@@ -490,117 +529,84 @@ async fn play(t: &Template, s: &Script, seed: u64, mode: Mode, db: &Path) -> Ack
 }
 
 /// What the counts come to, independent of clocks and arrival order.
-fn counts_summary(db: &Path) -> BTreeMap<String, String> {
-    let c = common::sqlite_file(db);
+fn counts_summary(db: &RunDb) -> BTreeMap<String, String> {
     let mut out = BTreeMap::new();
-    let mut q = c
-        .prepare(
-            "select p.uid, b.code, p.empty, p.done_at is not null from count_pass p
-             join bin b on b.id = p.bin_id order by p.uid",
-        )
-        .unwrap();
-    for row in q
-        .query_map([], |r| {
-            Ok((
-                r.get::<_, String>(0)?,
-                format!(
-                    "{} empty={} done={}",
-                    r.get::<_, String>(1)?,
-                    r.get::<_, i64>(2)?,
-                    r.get::<_, bool>(3)?
-                ),
-            ))
-        })
-        .unwrap()
-    {
-        let (k, v) = row.unwrap();
-        out.insert(format!("pass {k}"), v);
+    for r in db.rows(
+        "select p.uid, b.code, case when p.empty then '1' else '0' end,
+                case when p.done_at is not null then 'true' else 'false' end
+         from count_pass p join bin b on b.id = p.bin_id order by p.uid",
+    ) {
+        out.insert(
+            format!("pass {}", r[0]),
+            format!("{} empty={} done={}", r[1], r[2], r[3]),
+        );
     }
-    let mut q = c
-        .prepare(
-            "select p.uid, i.sku, l.lot, sum(l.qty), count(*) from count_line l
-             join count_pass p on p.id = l.pass_id join item i on i.id = l.item_id
-             where not exists (select 1 from count_line_undo u where u.line_uid = l.uid)
-             group by p.uid, i.sku, l.lot",
-        )
-        .unwrap();
-    for row in q
-        .query_map([], |r| {
-            Ok((
-                format!(
-                    "line {} {} {}",
-                    r.get::<_, String>(0)?,
-                    r.get::<_, String>(1)?,
-                    r.get::<_, String>(2)?
-                ),
-                format!("qty={} lines={}", r.get::<_, i64>(3)?, r.get::<_, i64>(4)?),
-            ))
-        })
-        .unwrap()
-    {
-        let (k, v) = row.unwrap();
-        out.insert(k, v);
+    for r in db.rows(
+        "select p.uid, i.sku, l.lot, cast(sum(l.qty) as text), cast(count(*) as text)
+         from count_line l
+         join count_pass p on p.id = l.pass_id join item i on i.id = l.item_id
+         where not exists (select 1 from count_line_undo u where u.line_uid = l.uid)
+         group by p.uid, i.sku, l.lot",
+    ) {
+        out.insert(
+            format!("line {} {} {}", r[0], r[1], r[2]),
+            format!("qty={} lines={}", r[3], r[4]),
+        );
     }
-    // Netting results, when netting has produced any: what each current result says about
-    // its key (the count, the book value it was held to, the difference and the verdict).
-    // Windows, instants, settling and superseded rows follow the server's clock and the
-    // order news arrived in, not the counts, so they are left out.
-    let has_results: bool = c
-        .query_row(
-            "select exists (select 1 from sqlite_master where type = 'table' and name = 'count_result')",
-            [],
-            |r| r.get(0),
+    // Netting results: what each current result says about its key (the count, the book
+    // value it was held to, the difference and the verdict). Windows, instants, settling
+    // and superseded rows follow the server's clock and the order news arrived in, not the
+    // counts, so they are left out.
+    let mut rows: Vec<String> = db
+        .rows(
+            "select p.uid, i.sku, r.lot, coalesce(r.class, 'NULL'), cast(r.counted as text),
+                    cast(r.f_star as text), cast(r.variance as text), r.status, r.verdict
+             from count_result r join count_pass p on p.id = r.pass_id
+             join item i on i.id = r.item_id
+             where r.superseded_by is null",
         )
-        .unwrap();
-    if has_results {
-        let sql = "select p.uid || '|' || i.sku || '|' || r.lot || '|' || quote(r.class) || '|' ||
-                          r.counted || '|' || r.f_star || '|' || r.variance || '|' || r.status ||
-                          '|' || r.verdict
-                   from count_result r join count_pass p on p.id = r.pass_id
-                   join item i on i.id = r.item_id
-                   where r.superseded_by is null";
-        let mut rows: Vec<String> = c
-            .prepare(sql)
-            .unwrap()
-            .query_map([], |r| r.get(0))
-            .unwrap()
-            .map(|r| r.unwrap())
-            .collect();
-        rows.sort();
-        for (i, r) in rows.into_iter().enumerate() {
-            out.insert(format!("result {i}"), r);
-        }
+        .into_iter()
+        .map(|r| r.join("|"))
+        .collect();
+    rows.sort();
+    for (i, r) in rows.into_iter().enumerate() {
+        out.insert(format!("result {i}"), r);
     }
     out
 }
 
-fn check(db: &Path, s: &Script, acks: &Acks, seed: u64) {
-    let c = common::sqlite_file(db);
-    let ok: String = c
-        .query_row("pragma integrity_check", [], |r| r.get(0))
-        .unwrap();
-    assert_eq!(ok, "ok", "seed {seed}");
+/// Counts each id of a table's `uid` column.
+fn uid_counts(db: &RunDb, table: &str) -> HashMap<String, i64> {
+    db.rows(&format!(
+        "select uid, cast(count(*) as text) from {table} group by uid"
+    ))
+    .into_iter()
+    .map(|r| (r[0].clone(), r[1].parse().unwrap()))
+    .collect()
+}
+
+fn check(db: &RunDb, s: &Script, acks: &Acks, seed: u64) {
+    if db.pg.is_none() {
+        let ok = db.rows("pragma integrity_check");
+        assert_eq!(ok, [["ok".to_string()]], "seed {seed}");
+    }
     let scripted: usize = s.phones.iter().map(Vec::len).sum();
     assert_eq!(
         acks.events.len(),
         scripted,
         "seed {seed}: every event was acknowledged"
     );
-    let mut once = c
-        .prepare("select count(*) from sync_event where uid = ?1")
-        .unwrap();
+    let events = uid_counts(db, "sync_event");
     for id in &acks.events {
-        let n: i64 = once.query_row([id], |r| r.get(0)).unwrap();
+        let n = events.get(id).copied().unwrap_or(0);
         assert_eq!(
             n, 1,
             "seed {seed}: acknowledged event {id} is stored {n} times"
         );
     }
-    let stored: i64 = c
-        .query_row("select count(*) from sync_event", [], |r| r.get(0))
-        .unwrap();
     assert_eq!(
-        stored as usize, scripted,
+        db.int("select count(*) from sync_event") as usize,
+        scripted,
         "seed {seed}: nothing unacknowledged is stored"
     );
     let line_ids: Vec<&str> = s
@@ -610,19 +616,14 @@ fn check(db: &Path, s: &Script, acks: &Acks, seed: u64) {
         .filter(|e| e.line)
         .map(|e| e.id.as_str())
         .collect();
-    let lines: i64 = c
-        .query_row("select count(*) from count_line", [], |r| r.get(0))
-        .unwrap();
     assert_eq!(
-        lines as usize,
+        db.int("select count(*) from count_line") as usize,
         line_ids.len(),
         "seed {seed}: one count line per line event"
     );
-    let mut line_once = c
-        .prepare("select count(*) from count_line where uid = ?1")
-        .unwrap();
+    let lines = uid_counts(db, "count_line");
     for id in line_ids {
-        let n: i64 = line_once.query_row([id], |r| r.get(0)).unwrap();
+        let n = lines.get(id).copied().unwrap_or(0);
         assert_eq!(n, 1, "seed {seed}: line {id} applied {n} times");
     }
     let moves: usize = s
@@ -631,17 +632,22 @@ fn check(db: &Path, s: &Script, acks: &Acks, seed: u64) {
         .map(|b| b.as_array().unwrap().len())
         .sum();
     assert_eq!(acks.movements.len(), moves, "seed {seed}");
-    let stored: i64 = c
-        .query_row("select count(*) from movement", [], |r| r.get(0))
-        .unwrap();
-    let template_moves: i64 = 0;
     assert_eq!(
-        stored - template_moves,
+        db.int("select count(*) from movement"),
         moves as i64,
         "seed {seed}: each movement once"
     );
     assert_eq!(
-        cairn::backup::unbalanced_keys(&c).unwrap(),
+        db.int(
+            "select
+               (select count(*) from (select bin_id, item_id, lot, sum(qty) as s from movement
+                                      group by bin_id, item_id, lot) m
+                  left join balance b using (bin_id, item_id, lot)
+                where coalesce(b.qty, 0) <> m.s)
+             + (select count(*) from balance b where b.qty <> 0 and not exists
+                  (select 1 from movement m where m.bin_id = b.bin_id and m.item_id = b.item_id
+                     and m.lot = b.lot))"
+        ),
         0,
         "seed {seed}: balances equal movements"
     );
@@ -663,11 +669,11 @@ async fn phones_under_faults_and_restarts_store_every_acknowledged_event_once() 
     let mut stats: HashMap<&str, usize> = HashMap::new();
     for seed in first..first + seeds {
         let s = script(seed, &t.each_gtin);
-        let faulty_db = dir.path().join(format!("faulty-{seed}.db"));
-        let clean_db = dir.path().join(format!("clean-{seed}.db"));
-        let acks = play(&t, &s, seed, Mode::Faulty, &faulty_db).await;
+        let faulty_db = RunDb::copy_of(&t, dir.path().join(format!("faulty-{seed}.db")));
+        let clean_db = RunDb::copy_of(&t, dir.path().join(format!("clean-{seed}.db")));
+        let acks = play(&s, &t, seed, Mode::Faulty, &faulty_db).await;
         check(&faulty_db, &s, &acks, seed);
-        let clean = play(&t, &s, seed, Mode::Clean, &clean_db).await;
+        let clean = play(&s, &t, seed, Mode::Clean, &clean_db).await;
         check(&clean_db, &s, &clean, seed);
         let (a, b) = (counts_summary(&faulty_db), counts_summary(&clean_db));
         assert!(!a.is_empty(), "seed {seed} counted something");
@@ -678,7 +684,7 @@ async fn phones_under_faults_and_restarts_store_every_acknowledged_event_once() 
         *stats.entry("events").or_default() += acks.events.len();
         for f in [faulty_db, clean_db] {
             for ext in ["", "-wal", "-shm"] {
-                let _ = std::fs::remove_file(format!("{}{ext}", f.display()));
+                let _ = std::fs::remove_file(format!("{}{ext}", f.file.display()));
             }
         }
     }

@@ -169,6 +169,16 @@ pub struct PgTestDb {
 impl PgTestDb {
     /// Creates a new, empty database, or `None` when the suites run on SQLite.
     pub fn create() -> Option<Self> {
+        Self::create_from(None)
+    }
+
+    /// Creates a new database as a copy of `template`'s (whose connections are ended
+    /// first: PostgreSQL copies a database nobody is connected to), or `None` on SQLite.
+    pub fn copy_of(template: &PgTestDb) -> Option<Self> {
+        Self::create_from(Some(&template.name))
+    }
+
+    fn create_from(template: Option<&str>) -> Option<Self> {
         let admin = std::env::var(STORE_SWITCH)
             .ok()
             .filter(|v| !v.trim().is_empty())?;
@@ -179,7 +189,19 @@ impl PgTestDb {
             N.fetch_add(1, std::sync::atomic::Ordering::Relaxed),
             &uuid::Uuid::now_v7().simple().to_string()[24..]
         );
-        admin_sql(&admin, &format!("create database {name}"));
+        match template {
+            None => admin_sql(&admin, &format!("create database {name}")),
+            Some(t) => {
+                admin_sql(
+                    &admin,
+                    &format!(
+                        "select pg_terminate_backend(pid) from pg_stat_activity
+                         where datname = '{t}' and pid <> pg_backend_pid()"
+                    ),
+                );
+                admin_sql(&admin, &format!("create database {name} template {t}"));
+            }
+        }
         let url = pg_url(&admin, &name);
         Some(Self { admin, name, url })
     }
@@ -792,33 +814,7 @@ impl TestApp {
     /// numbers with `cast(x as text)`; an empty value reads as ""), from the test's
     /// database beside the API.
     pub fn sql_rows(&self, sql: &str) -> Vec<Vec<String>> {
-        match &self.pg {
-            Some(pg) => on_pg(&pg.url, sql, |c, sql| async move {
-                c.query(sql.as_str(), &[]).await.map(|rows| {
-                    rows.iter()
-                        .map(|r| {
-                            (0..r.len())
-                                .map(|i| r.get::<_, Option<String>>(i).unwrap_or_default())
-                                .collect()
-                        })
-                        .collect()
-                })
-            })
-            .unwrap_or_else(|e| panic!("{sql}: {e}")),
-            None => {
-                let c = sqlite_file(&self.db);
-                let mut q = c.prepare(sql).unwrap_or_else(|e| panic!("{sql}: {e}"));
-                let n = q.column_count();
-                q.query_map([], |r| {
-                    (0..n)
-                        .map(|i| r.get::<_, Option<String>>(i).map(Option::unwrap_or_default))
-                        .collect()
-                })
-                .unwrap()
-                .map(Result::unwrap)
-                .collect()
-            }
-        }
+        sql_rows_on(self.pg.as_ref().map(|p| p.url.as_str()), &self.db, sql)
     }
 
     /// Runs one statement on the test's database beside the API; returns the rows it
@@ -837,7 +833,40 @@ impl TestApp {
 }
 
 /// Reads one integer from the PostgreSQL database `pg` if given, else the SQLite `file`.
-fn sql_i64_on(pg: Option<&str>, file: &std::path::Path, sql: &str) -> i64 {
+/// Reads rows as text (see `TestApp::sql_rows`) from the PostgreSQL database `pg`, or else
+/// from the SQLite `file`.
+pub fn sql_rows_on(pg: Option<&str>, file: &std::path::Path, sql: &str) -> Vec<Vec<String>> {
+    match pg {
+        Some(url) => on_pg(url, sql, |c, sql| async move {
+            c.query(sql.as_str(), &[]).await.map(|rows| {
+                rows.iter()
+                    .map(|r| {
+                        (0..r.len())
+                            .map(|i| r.get::<_, Option<String>>(i).unwrap_or_default())
+                            .collect()
+                    })
+                    .collect()
+            })
+        })
+        .unwrap_or_else(|e| panic!("{sql}: {e}")),
+        None => {
+            let c = sqlite_file(file);
+            let mut q = c.prepare(sql).unwrap_or_else(|e| panic!("{sql}: {e}"));
+            let n = q.column_count();
+            q.query_map([], |r| {
+                (0..n)
+                    .map(|i| r.get::<_, Option<String>>(i).map(Option::unwrap_or_default))
+                    .collect()
+            })
+            .unwrap()
+            .map(Result::unwrap)
+            .collect()
+        }
+    }
+}
+
+/// Reads one integer (see `TestApp::sql_i64`) from `pg`, or else from the SQLite `file`.
+pub fn sql_i64_on(pg: Option<&str>, file: &std::path::Path, sql: &str) -> i64 {
     match pg {
         Some(url) => on_pg(url, sql, |c, sql| async move {
             c.query_one(sql.as_str(), &[])

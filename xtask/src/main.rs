@@ -94,9 +94,9 @@ fn test() -> Result<()> {
     .context("the browser test suites")
 }
 
-/// The suites that do not run on PostgreSQL: the sync simulation (its checks still read the
-/// SQLite file; to be ported) and the install test (about the binary, not the store).
-const NOT_ON_POSTGRES: &[&str] = &["sim", "install"];
+/// The suites that do not run on PostgreSQL: the install test (about the binary, not the
+/// store).
+const NOT_ON_POSTGRES: &[&str] = &["install"];
 
 /// Every test suite of the server, from its manifest.
 fn server_suites(root: &Path) -> Result<Vec<String>> {
