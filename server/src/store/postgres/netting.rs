@@ -1112,24 +1112,7 @@ fn result_detail<C: GenericClient>(
             }),
         }
     }
-    let automatic_adjustment = q
-        .query_opt(
-            "select a.id, a.result_id, m.uid, m.qty, m.event_at, a.posted_at
-             from count_auto_adjustment a join movement m on m.id = a.movement_id
-             where a.result_id = $1",
-            &[&row.id],
-        )?
-        .map(|r| {
-            Ok::<_, StoreError>(crate::review::store::AutoAdjustment {
-                id: r.try_get(0)?,
-                result: r.try_get(1)?,
-                movement: r.try_get(2)?,
-                qty: r.try_get(3)?,
-                event_at: Timestamp(r.try_get(4)?),
-                posted_at: Timestamp(r.try_get(5)?),
-            })
-        })
-        .transpose()?;
+    let automatic_adjustment = super::review::automatic(q, row.id)?;
     Ok(Some(ResultDetail {
         row,
         evidence,

@@ -226,7 +226,8 @@ fn counters<C: GenericClient>(
     Ok(users.into_iter().map(UserId).collect())
 }
 
-fn automatic<C: GenericClient>(
+/// Reads the automatic adjustment of a result, if it has one.
+pub(super) fn automatic<C: GenericClient>(
     q: &PgTx<'_, C>,
     result: i64,
 ) -> Result<Option<AutoAdjustment>, StoreError> {
