@@ -784,6 +784,7 @@ async fn dispatch(command: Command) -> anyhow::Result<()> {
             Ok(())
         }
         Command::Backup { db, to, keep } => {
+            sqlite_only(&db, "backup")?;
             let report = tokio::task::spawn_blocking(move || {
                 crate::backup::with_spinner(|p| crate::backup::backup(&db, &to, keep, p))
             })
@@ -792,6 +793,7 @@ async fn dispatch(command: Command) -> anyhow::Result<()> {
             Ok(())
         }
         Command::Restore { from, db, force } => {
+            sqlite_only(&db, "restore")?;
             let report = tokio::task::spawn_blocking(move || {
                 crate::backup::with_spinner(|p| crate::backup::restore(&from, &db, force, p))
             })
@@ -968,6 +970,20 @@ async fn serve(state: AppState, listen: SocketAddr, demo: bool) -> anyhow::Resul
     ));
     tokio::spawn(settle_results(state.store.clone()));
     crate::run(state, listener, shutdown_signal()).await?;
+    Ok(())
+}
+
+/// Refuses a PostgreSQL URL where a command copies the SQLite file.
+fn sqlite_only(db: &std::path::Path, command: &str) -> anyhow::Result<()> {
+    if matches!(
+        DbLocation::parse(&db.to_string_lossy()),
+        Ok(DbLocation::Postgres(_))
+    ) {
+        anyhow::bail!(
+            "cairn {command} copies a SQLite file; back up PostgreSQL with its own tools \
+             (pg_dump, pg_basebackup: deploy/postgres/README.md)"
+        );
+    }
     Ok(())
 }
 
