@@ -139,7 +139,8 @@ fn postgres_suites(cargo: &str, root: &Path) -> Result<()> {
         .filter(|s| !NOT_ON_POSTGRES.contains(&s.as_str()))
         .collect();
     println!("== the same suites on PostgreSQL (each test a database of its own)");
-    let mut args = vec!["test", "-p", "cairn-server", "--lib"];
+    // The same flags as the first run, so its build serves this one.
+    let mut args = vec!["test", "--workspace", "--all-features", "--lib"];
     for suite in &suites {
         args.extend(["--test", suite.as_str()]);
     }
