@@ -16,7 +16,7 @@ pub const BUILD_DATE: &str = env!("CAIRN_BUILD_DATE");
 
 /// Returns the newest schema version this build migrates a database to.
 pub fn schema_version() -> i64 {
-    crate::store::sqlite::migrate::latest_version()
+    crate::store::schema_version()
 }
 
 /// Returns the build in one line: `0.1.0 (commit 1a2b3c4d5e, built 2026-12-04, schema 23)`.

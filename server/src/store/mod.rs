@@ -148,6 +148,11 @@ impl<'de> serde::Deserialize<'de> for DbLocation {
     }
 }
 
+/// The schema version this build brings both stores to (their migrations share numbers).
+pub fn schema_version() -> i64 {
+    sqlite::migrate::latest_version()
+}
+
 /// Opens (creating and migrating if needed) the store at `location`.
 pub fn open(location: &DbLocation, options: StoreOptions) -> anyhow::Result<Arc<dyn Store>> {
     Ok(match location {
@@ -575,6 +580,11 @@ mod tests {
         let e = format!("{e:#}");
         assert!(e.contains("cannot connect"), "{e}");
         assert!(!e.contains("s3cret"), "{e}");
+    }
+
+    #[test]
+    fn both_stores_end_at_the_same_schema_version() {
+        assert_eq!(schema_version(), postgres::migrate::latest_version());
     }
 
     #[test]

@@ -18,29 +18,6 @@ use crate::time::Timestamp;
 use cairn_scan::wire::EventFlag;
 use tokio_postgres::Row;
 
-fn flag_text(flags: &[EventFlag]) -> String {
-    flags
-        .iter()
-        .map(|f| match f {
-            EventFlag::Reassigned => "reassigned",
-            EventFlag::FoundStock => "found_stock",
-            EventFlag::Held => "held",
-        })
-        .collect::<Vec<_>>()
-        .join(",")
-}
-
-fn flags_of(text: &str) -> Vec<EventFlag> {
-    text.split(',')
-        .filter_map(|f| match f {
-            "reassigned" => Some(EventFlag::Reassigned),
-            "found_stock" => Some(EventFlag::FoundStock),
-            "held" => Some(EventFlag::Held),
-            _ => None,
-        })
-        .collect()
-}
-
 /// A stored bigint as a narrower integer.
 fn narrow<T: TryFrom<i64>>(r: &Row, i: usize) -> Result<T, StoreError> {
     let v: i64 = r.try_get(i)?;
@@ -52,7 +29,7 @@ impl SyncTx for PgTx<'_> {
         self.query_opt("select body, flags from sync_event where uid = $1", &[&uid])?
             .map(|r| {
                 let flags: String = r.try_get(1)?;
-                Ok((r.try_get(0)?, flags_of(&flags)))
+                Ok((r.try_get(0)?, crate::sync::results::flags_of(&flags)))
             })
             .transpose()
     }
@@ -364,7 +341,7 @@ impl SyncTx for PgTx<'_> {
                 &e.event.device_at,
                 &e.at.0,
                 &e.uncertainty_ms,
-                &flag_text(e.flags),
+                &crate::sync::results::flag_text(e.flags),
                 &b.received_at.0,
                 &e.event.user.as_deref().unwrap_or(&b.sender.user_name),
             ],

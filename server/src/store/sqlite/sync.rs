@@ -20,29 +20,6 @@ use crate::time::Timestamp;
 use cairn_scan::wire::EventFlag;
 use rusqlite::{Connection, OptionalExtension, params};
 
-fn flag_text(flags: &[EventFlag]) -> String {
-    flags
-        .iter()
-        .map(|f| match f {
-            EventFlag::Reassigned => "reassigned",
-            EventFlag::FoundStock => "found_stock",
-            EventFlag::Held => "held",
-        })
-        .collect::<Vec<_>>()
-        .join(",")
-}
-
-fn flags_of(text: &str) -> Vec<EventFlag> {
-    text.split(',')
-        .filter_map(|f| match f {
-            "reassigned" => Some(EventFlag::Reassigned),
-            "found_stock" => Some(EventFlag::FoundStock),
-            "held" => Some(EventFlag::Held),
-            _ => None,
-        })
-        .collect()
-}
-
 /// Lists every item of a site with its packs, for the phone's catalogue: no quantities.
 pub fn catalog(conn: &Connection, site: SiteId) -> Result<Vec<ItemBrief>, StoreError> {
     let mut packs: std::collections::HashMap<i64, Vec<PackBrief>> = Default::default();
@@ -127,7 +104,10 @@ impl SyncTx for Tx<'_> {
         Ok(self
             .prepare_cached("select body, flags from sync_event where uid = ?1")?
             .query_row([uid], |r| {
-                Ok((r.get::<_, String>(0)?, flags_of(&r.get::<_, String>(1)?)))
+                Ok((
+                    r.get::<_, String>(0)?,
+                    crate::sync::results::flags_of(&r.get::<_, String>(1)?),
+                ))
             })
             .optional()?)
     }
@@ -445,7 +425,7 @@ impl SyncTx for Tx<'_> {
             e.event.device_at,
             e.at.0,
             e.uncertainty_ms,
-            flag_text(e.flags),
+            crate::sync::results::flag_text(e.flags),
             b.received_at.0,
             e.event.user.as_deref().unwrap_or(&b.sender.user_name)
         ])?;
