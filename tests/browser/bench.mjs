@@ -97,5 +97,5 @@ try {
   console.log(`sync of ${queued} queued events: ${(ms / 1000).toFixed(2)} s (${Math.round(queued / (ms / 1000))} events/s), ${await outboxCount(page)} left`);
 } finally {
   await browser.close();
-  server.stop();
+  await server.stop();
 }

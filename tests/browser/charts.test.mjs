@@ -30,7 +30,7 @@ before(async () => {
 
 after(async () => {
   await browser?.close();
-  server?.stop();
+  await server?.stop();
 });
 
 /** The counter's phone counts each bin of today's list: right, except one short by 3. */

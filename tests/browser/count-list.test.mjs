@@ -45,7 +45,7 @@ before(async () => {
 
 after(async () => {
   await browser?.close();
-  server?.stop();
+  await server?.stop();
 });
 
 async function api(path, init = {}) {

@@ -15,6 +15,42 @@ export const BIN = process.env.CAIRN_BIN ?? join(ROOT, "target", "debug", "cairn
 export const COUNTER = { user: "esme", pin: "2468", display: "Esme Tulloch" };
 const ADMIN = { user: "ada", password: "test-only-password-ada" };
 
+/**
+ * The PostgreSQL server the suites run on instead of a SQLite file, when
+ * `CAIRN_TEST_STORE` names one (`postgres://…`); each server a test starts gets a database
+ * of its own there, dropped when the test stops it.
+ */
+const PG = (process.env.CAIRN_TEST_STORE ?? "").startsWith("postgres") ? process.env.CAIRN_TEST_STORE : null;
+let pgCount = 0;
+
+/** Runs `sql` on the PostgreSQL server's administrative database with psql. */
+function pgAdmin(sql) {
+  execFileSync("psql", ["-X", "-q", "-v", "ON_ERROR_STOP=1", "-d", PG, "-c", sql], { encoding: "utf8" });
+}
+
+/**
+ * A new, empty database for one server: a file in `dir` (`name`), or on PostgreSQL a
+ * database of its own (`{db, drop}`).
+ */
+function freshDb(dir, name) {
+  if (!PG) return { db: join(dir, name), drop() {} };
+  const db_name = `cairn_test_browser_${process.pid}_${++pgCount}`;
+  pgAdmin(`drop database if exists ${db_name}`);
+  pgAdmin(`create database ${db_name}`);
+  const url = new URL(PG);
+  url.pathname = `/${db_name}`;
+  return {
+    db: url.toString(),
+    drop() {
+      try {
+        pgAdmin(`drop database if exists ${db_name} with (force)`);
+      } catch (e) {
+        console.error(`could not drop ${db_name}: ${e.message}`);
+      }
+    },
+  };
+}
+
 /** Runs the `cairn` binary with `args`, feeding `input` on standard input; returns its output. */
 export function cairn(args, input = "") {
   return execFileSync(BIN, args, { input, encoding: "utf8" });
@@ -33,7 +69,8 @@ export function cairn(args, input = "") {
  */
 export async function startServer({ prepare, env, site = false, webDir = null, zone = "UTC" } = {}) {
   const dir = mkdtempSync(join(tmpdir(), "cairn-browser-"));
-  const db = join(dir, "t.db");
+  const store = freshDb(dir, "t.db");
+  const db = store.db;
   cairn(["site", "add", "--db", db, "--code", "T", "--name", "Browser test", "--time-zone", zone]);
   let token = null;
   if (site) {
@@ -96,8 +133,9 @@ export async function startServer({ prepare, env, site = false, webDir = null, z
       await halt();
       ({ child } = await serve(new URL(url).host, folder));
     },
-    stop() {
-      child.kill("SIGTERM");
+    async stop() {
+      await halt();
+      store.drop();
       rmSync(dir, { recursive: true, force: true });
     },
   };
@@ -109,7 +147,8 @@ export async function startServer({ prepare, env, site = false, webDir = null, z
  */
 export async function startDemo() {
   const dir = mkdtempSync(join(tmpdir(), "cairn-demo-"));
-  const child = spawn(BIN, ["demo", "--small", "--db", join(dir, "demo.db"), "--listen", "127.0.0.1:0"], {
+  const store = freshDb(dir, "demo.db");
+  const child = spawn(BIN, ["demo", "--small", "--db", store.db, "--listen", "127.0.0.1:0"], {
     stdio: ["ignore", "pipe", "inherit"],
     env: { RUST_LOG: "warn", ...process.env },
   });
@@ -122,8 +161,13 @@ export async function startDemo() {
   child.stdout.resume();
   return {
     url: line.split(" at ")[1].trim().replace(/\/$/, ""),
-    stop() {
-      child.kill("SIGTERM");
+    async stop() {
+      if (child.exitCode === null && child.signalCode === null) {
+        const exited = new Promise((resolve) => child.once("exit", resolve));
+        child.kill("SIGTERM");
+        await exited;
+      }
+      store.drop();
       rmSync(dir, { recursive: true, force: true });
     },
   };

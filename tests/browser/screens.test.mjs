@@ -18,8 +18,8 @@ before(async () => {
   await seedSite(server);
 });
 
-after(() => {
-  server?.stop();
+after(async () => {
+  await server?.stop();
   if (!keep) rmSync(shots, { recursive: true, force: true });
 });
 

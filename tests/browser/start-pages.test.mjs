@@ -29,7 +29,7 @@ before(async () => {
 
 after(async () => {
   await browser?.close();
-  demo?.stop();
+  await demo?.stop();
   if (!keep) rmSync(shots, { recursive: true, force: true });
 });
 

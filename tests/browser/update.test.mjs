@@ -24,8 +24,8 @@ before(async () => {
   await seedSite(server);
 });
 
-after(() => {
-  server?.stop();
+after(async () => {
+  await server?.stop();
   rmSync(web, { recursive: true, force: true });
 });
 

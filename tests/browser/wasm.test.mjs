@@ -17,7 +17,7 @@ before(async () => {
 
 after(async () => {
   await browser?.close();
-  server?.stop();
+  await server?.stop();
 });
 
 test("the label-check page parses a GS1 element string with the wasm rules", async () => {

@@ -267,9 +267,18 @@ pub async fn spawn_app() -> TestApp {
 
 /// Starts the real application as `spawn_app` does, with settings changed by `tweak`.
 pub async fn spawn_app_with(tweak: impl FnOnce(&mut Config)) -> TestApp {
+    spawn_app_on(PgTestDb::create(), tweak).await
+}
+
+/// Starts the real application on a SQLite file whatever the switch says: the other side
+/// of a comparison between the two stores.
+pub async fn spawn_sqlite_app() -> TestApp {
+    spawn_app_on(None, |_| {}).await
+}
+
+async fn spawn_app_on(pg: Option<PgTestDb>, tweak: impl FnOnce(&mut Config)) -> TestApp {
     let dir = tempfile::tempdir().expect("a temporary directory can be made");
     let db = dir.path().join("cairn.db");
-    let pg = PgTestDb::create();
     let mut config = Config {
         db: match &pg {
             Some(p) => cairn::store::DbLocation::Postgres(p.url.clone()),

@@ -67,9 +67,13 @@ fn test() -> Result<()> {
     wasm(true)?;
     run(Command::new(&cargo)
         .current_dir(&root)
-        .args(["test", "--workspace", "--all-features"]))
+        .args(["test", "--workspace", "--all-features"])
+        .env_remove("CAIRN_TEST_STORE"))
     .context("the Rust test suites")?;
-    postgres_suites(&cargo, &root)?;
+    let pg = postgres_url();
+    if let Some(url) = &pg {
+        postgres_suites(&cargo, &root, url)?;
+    }
     run(Command::new(&cargo).current_dir(&root).args([
         "build",
         "-p",
@@ -90,8 +94,19 @@ fn test() -> Result<()> {
     run(Command::new("node")
         .current_dir(&browser)
         .args(["--test", "--test-concurrency=1"])
-        .env("CAIRN_BIN", root.join("target/debug/cairn")))
-    .context("the browser test suites")
+        .env("CAIRN_BIN", root.join("target/debug/cairn"))
+        .env_remove("CAIRN_TEST_STORE"))
+    .context("the browser test suites")?;
+    if let Some(url) = &pg {
+        println!("== the browser suites on PostgreSQL (each server a database of its own)");
+        run(Command::new("node")
+            .current_dir(&browser)
+            .args(["--test", "--test-concurrency=1"])
+            .env("CAIRN_BIN", root.join("target/debug/cairn"))
+            .env("CAIRN_TEST_STORE", url))
+        .context("the browser test suites on PostgreSQL")?;
+    }
+    Ok(())
 }
 
 /// The suites that do not run on PostgreSQL: the install test (about the binary, not the
@@ -113,27 +128,31 @@ fn server_suites(root: &Path) -> Result<Vec<String>> {
     Ok(names)
 }
 
-/// Runs the server's unit tests and every suite but [`NOT_ON_POSTGRES`] again on PostgreSQL,
-/// each test in a database of its
-/// own: on the server `CAIRN_TEST_STORE` names, else on 127.0.0.1:5432 when one answers
-/// there. Says plainly when it skips them.
-fn postgres_suites(cargo: &str, root: &Path) -> Result<()> {
-    let url = match std::env::var("CAIRN_TEST_STORE") {
-        Ok(url) if !url.trim().is_empty() => url,
+/// The PostgreSQL server the second runs use: the one `CAIRN_TEST_STORE` names, else
+/// 127.0.0.1:5432 when one answers there. Says plainly when there is none, so the runs
+/// on it are skipped.
+fn postgres_url() -> Option<String> {
+    match std::env::var("CAIRN_TEST_STORE") {
+        Ok(url) if !url.trim().is_empty() => Some(url),
         _ => {
             let addr = std::net::SocketAddr::from(([127, 0, 0, 1], 5432));
             if std::net::TcpStream::connect_timeout(&addr, std::time::Duration::from_secs(2))
                 .is_err()
             {
                 println!(
-                    "SKIPPED the PostgreSQL runs: nothing answers on 127.0.0.1:5432 \
-                     (set CAIRN_TEST_STORE=postgres://… to name a server)"
+                    "SKIPPED the PostgreSQL runs (Rust and browser suites): nothing answers \
+                     on 127.0.0.1:5432 (set CAIRN_TEST_STORE=postgres://… to name a server)"
                 );
-                return Ok(());
+                return None;
             }
-            "postgres://postgres@127.0.0.1:5432/postgres".to_owned()
+            Some("postgres://postgres@127.0.0.1:5432/postgres".to_owned())
         }
-    };
+    }
+}
+
+/// Runs the server's unit tests and every suite but [`NOT_ON_POSTGRES`] again on the
+/// PostgreSQL server at `url`, each test in a database of its own.
+fn postgres_suites(cargo: &str, root: &Path, url: &str) -> Result<()> {
     let suites: Vec<String> = server_suites(root)?
         .into_iter()
         .filter(|s| !NOT_ON_POSTGRES.contains(&s.as_str()))
@@ -147,7 +166,7 @@ fn postgres_suites(cargo: &str, root: &Path) -> Result<()> {
     run(Command::new(cargo)
         .current_dir(root)
         .args(&args)
-        .env("CAIRN_TEST_STORE", &url))
+        .env("CAIRN_TEST_STORE", url))
     .context("the suites on PostgreSQL")
 }
 
