@@ -92,6 +92,12 @@ async fn a_sites_writes_wait_for_its_lock_while_another_site_writes() {
         .execute("select pg_advisory_lock($1, $2)", &[&LOCK_SPACE, &key])
         .await
         .unwrap();
+    let contended = || {
+        cairn::telemetry::metrics()
+            .db_lock_contended
+            .load(std::sync::atomic::Ordering::Relaxed)
+    };
+    let before = contended();
     let store = app.state.store.clone();
     let site = t.id;
     let waiting = tokio::spawn(async move {
@@ -111,6 +117,9 @@ async fn a_sites_writes_wait_for_its_lock_while_another_site_writes() {
     .expect("U writes while T's lock is held")
     .unwrap();
     assert_eq!(written, 1);
+    // T's write found its lock held; U's did not (the counter is the process's, and no
+    // other test here holds a site's lock).
+    assert_eq!(contended() - before, 1, "one write waited for a held lock");
     other
         .execute("select pg_advisory_unlock($1, $2)", &[&LOCK_SPACE, &key])
         .await
@@ -173,6 +182,7 @@ async fn metrics_show_the_pool_and_the_lock_wait() {
         "cairn_db_pool_idle ",
         "cairn_db_pool_waiting ",
         "cairn_db_lock_wait_seconds_count ",
+        "cairn_db_lock_contended_total ",
     ] {
         assert!(text.contains(name), "{name} missing from /metrics:\n{text}");
     }
@@ -232,4 +242,43 @@ async fn a_sqlite_file_copies_onto_an_empty_database_and_reads_the_same() {
         .await
         .expect_err("a non-empty target is refused");
     assert!(again.to_string().contains("already holds"), "{again}");
+}
+
+#[test]
+fn loadtest_compares_one_and_two_servers_and_drops_its_scratch_database() {
+    if skipped() {
+        return;
+    }
+    let admin = std::env::var(common::STORE_SWITCH).unwrap();
+    let out = std::process::Command::new(env!("CARGO_BIN_EXE_cairn"))
+        .args([
+            "loadtest",
+            "--db",
+            &admin,
+            "--phones",
+            "2",
+            "--sites",
+            "2",
+            "--seconds",
+            "1",
+        ])
+        .output()
+        .expect("cairn runs");
+    let text = String::from_utf8_lossy(&out.stdout);
+    assert!(
+        out.status.success(),
+        "{text}{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    for line in ["1 server: ", "2 servers: ", "  server 2: "] {
+        assert!(text.contains(line), "{line:?} missing:\n{text}");
+    }
+    // Each server wrote its own sites: none waited for another's lock.
+    assert_eq!(text.matches(", 0 found it held").count(), 3, "{text}");
+    let left = common::sql_i64_on(
+        Some(&admin),
+        std::path::Path::new(""),
+        "select count(*) from pg_database where datname like 'cairn_loadtest_%'",
+    );
+    assert_eq!(left, 0, "the scratch database is dropped");
 }

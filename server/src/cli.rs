@@ -196,9 +196,18 @@ enum Command {
     },
     /// Drive the sync endpoint of a fresh in-process server on loopback with N phones for a
     /// bounded time; print events/s, p50/p99 latency and the raw SQLite ceiling of the same rows.
+    /// With `--db postgres://…`: one `cairn serve`, then two on disjoint sites, over a scratch
+    /// database on that server (dropped after); events/s and each process's CPU per event.
     Loadtest {
         #[arg(long, default_value_t = 200)]
         phones: usize,
+        /// A PostgreSQL server to compare one and two servers on (`postgres://…`; the role
+        /// needs CREATEDB: the load runs in a scratch database of its own).
+        #[arg(long)]
+        db: Option<String>,
+        /// Sites the phones are spread over (with --db).
+        #[arg(long, default_value_t = 8)]
+        sites: usize,
         #[arg(long, default_value_t = 20)]
         seconds: u64,
         /// Events per sync request.
@@ -804,10 +813,40 @@ async fn dispatch(command: Command) -> anyhow::Result<()> {
         Command::Probe { url } => probe(&url).await,
         Command::Loadtest {
             phones,
+            db: Some(url),
+            sites,
+            seconds,
+            batch,
+            interval_ms,
+            ..
+        } => {
+            anyhow::ensure!(
+                matches!(
+                    DbLocation::parse(&url).map_err(anyhow::Error::msg)?,
+                    DbLocation::Postgres(_)
+                ),
+                "loadtest --db takes a PostgreSQL URL (postgres://…); without --db it runs on a \
+                 scratch SQLite file"
+            );
+            let spec = crate::loadtest::servers::ServersSpec {
+                url,
+                phones,
+                sites,
+                seconds,
+                batch,
+                interval: std::time::Duration::from_millis(interval_ms),
+            };
+            let phases = crate::loadtest::servers::run(spec.clone()).await?;
+            out!("{}", crate::loadtest::servers::report(&spec, &phases))?;
+            Ok(())
+        }
+        Command::Loadtest {
+            phones,
             seconds,
             batch,
             synchronous,
             interval_ms,
+            ..
         } => {
             let outcome = crate::loadtest::run(crate::loadtest::Spec {
                 phones,

@@ -107,6 +107,9 @@ pub struct Metrics {
     pub db_read_seconds: Histogram,
     /// PostgreSQL: time a write waits for its sites' advisory locks.
     pub db_lock_wait_seconds: Histogram,
+    /// PostgreSQL: writes that found their site's lock held by another transaction (on
+    /// this server or another) and had to wait for it.
+    pub db_lock_contended: AtomicU64,
     /// PostgreSQL: the connection pool (size, idle, callers waiting); -1 until a PostgreSQL
     /// store reports it, and not shown then.
     pub db_pool: [std::sync::atomic::AtomicI64; 3],
@@ -126,6 +129,7 @@ static METRICS: std::sync::LazyLock<Metrics> = std::sync::LazyLock::new(|| Metri
     db_write_group_size: Histogram::new(&GROUP_BUCKETS),
     db_read_seconds: Histogram::new(&LATENCY_BUCKETS_S),
     db_lock_wait_seconds: Histogram::new(&LATENCY_BUCKETS_S),
+    db_lock_contended: AtomicU64::new(0),
     db_pool: std::array::from_fn(|_| std::sync::atomic::AtomicI64::new(-1)),
 });
 
@@ -252,6 +256,12 @@ impl Metrics {
                 "cairn_db_lock_wait_seconds",
                 "Time a write waits for its site's lock (writes of one site take turns across servers).",
                 &self.db_lock_wait_seconds,
+            );
+            let _ = writeln!(
+                out,
+                "# HELP cairn_db_lock_contended_total Writes that found their site's lock held by another transaction and waited.\n\
+                 # TYPE cairn_db_lock_contended_total counter\ncairn_db_lock_contended_total {}",
+                self.db_lock_contended.load(Relaxed)
             );
             for (i, (name, help)) in [
                 (

@@ -275,18 +275,30 @@ impl Drop for ReadConn {
 }
 
 /// Takes the transaction-scoped advisory locks of `scope`: the one site's, or every
-/// site's in id order (so two writers never wait on each other in a circle).
+/// site's in id order (so two writers never wait on each other in a circle). A site's
+/// lock is tried first, so a write that has to wait for another is counted
+/// (`cairn_db_lock_contended_total`): writes of different sites never are.
 async fn lock_scope(
     tx: &tokio_postgres::Transaction<'_>,
     scope: WriteScope,
 ) -> Result<(), StoreError> {
     match scope {
         WriteScope::Site(site) => {
-            tx.execute(
-                "select pg_advisory_xact_lock($1, $2)",
-                &[&LOCK_SPACE, &site_key(site.0)?],
-            )
-            .await?;
+            let key = site_key(site.0)?;
+            let free: bool = tx
+                .query_one(
+                    "select pg_try_advisory_xact_lock($1, $2)",
+                    &[&LOCK_SPACE, &key],
+                )
+                .await?
+                .get(0);
+            if !free {
+                crate::telemetry::metrics()
+                    .db_lock_contended
+                    .fetch_add(1, std::sync::atomic::Ordering::Relaxed);
+                tx.execute("select pg_advisory_xact_lock($1, $2)", &[&LOCK_SPACE, &key])
+                    .await?;
+            }
         }
         WriteScope::AllSites => {
             tx.execute(

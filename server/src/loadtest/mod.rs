@@ -4,7 +4,10 @@
 //! the same run (plain batched INSERTs into the same schema, same durability).
 //!
 //! Everything runs in one process on a fresh temporary database: the server, the phones
-//! (one task each, one request in flight each) and the ceiling.
+//! (one task each, one request in flight each) and the ceiling. `servers` runs the same
+//! phones against one and then two `cairn serve` processes on PostgreSQL.
+
+pub mod servers;
 
 use crate::accounts::audit::{Action, Actor, AuditEvent};
 use crate::accounts::secret::{self, API_TOKEN_PREFIX, DEVICE_TOKEN_PREFIX, Secret, Token};
@@ -78,7 +81,8 @@ pub async fn run(spec: Spec) -> anyhow::Result<Outcome> {
         synchronous: spec.synchronous,
         ..Config::default()
     })?;
-    let (tokens, admin) = set_up(&state, spec.phones).await?;
+    let password = LoadSecrets::new().await?;
+    let (tokens, admin) = set_up(&state, "LT", 0, spec.phones, &password).await?;
     let listener = tokio::net::TcpListener::bind("127.0.0.1:0").await?;
     let base = format!("http://{}", listener.local_addr()?);
     let (stop_tx, stop_rx) = tokio::sync::oneshot::channel::<()>();
@@ -89,7 +93,7 @@ pub async fn run(spec: Spec) -> anyhow::Result<Outcome> {
         })
         .await
     });
-    master_data(&base, &admin, spec.phones).await?;
+    master_data(&base, "LT", &admin, spec.phones).await?;
     // The schema and master data without any load, for the ceiling.
     let empty = dir.join("ceiling.db");
     tokio::task::spawn_blocking({
@@ -107,7 +111,13 @@ pub async fn run(spec: Spec) -> anyhow::Result<Outcome> {
         let interval = spec.interval;
         let first = started + interval.mul_f64(i as f64 / spec.phones as f64);
         phones.push(tokio::spawn(async move {
-            phone(i, &base, &token, batch, deadline, first, interval).await
+            let who = Phone {
+                site: "LT".into(),
+                user: i,
+                bin: i,
+            };
+            who.run(&base, &token, batch, deadline, first, interval)
+                .await
         }));
     }
     let mut latencies = Vec::new();
@@ -152,20 +162,42 @@ fn tempfile_dir() -> anyhow::Result<std::path::PathBuf> {
     Ok(dir)
 }
 
-/// Site LT, its admin's token, and a counter with an enrolled phone per phone.
-async fn set_up(state: &AppState, phones: usize) -> anyhow::Result<(Vec<String>, String)> {
+/// The load's accounts' password and PIN, hashed once: hashing is slow by design and not
+/// what is measured.
+pub(crate) struct LoadSecrets {
+    password: secret::SecretHash,
+    pin: secret::SecretHash,
+}
+
+impl LoadSecrets {
+    pub(crate) async fn new() -> anyhow::Result<Self> {
+        Ok(Self {
+            password: secret::hash(Secret::new("load-test-only-password")).await?,
+            pin: secret::hash(Secret::new("4821")).await?,
+        })
+    }
+}
+
+/// Site `code`, its admin's token, and a counter with an enrolled phone for each of
+/// `phones` phones, numbered from `first` (counter `phone{n}`).
+pub(crate) async fn set_up(
+    state: &AppState,
+    code: &str,
+    first: usize,
+    phones: usize,
+    secrets: &LoadSecrets,
+) -> anyhow::Result<(Vec<String>, String)> {
     let store = state.store.as_ref();
     let site = store
         .create_site(NewSite {
-            code: SiteCode::parse("LT")?,
-            name: "Load test".into(),
+            code: SiteCode::parse(code)?,
+            name: format!("Load test {code}"),
             time_zone: crate::time::day::SiteZone::UTC,
         })
         .await?;
-    // One hash for every account: hashing is slow by design and not what is measured.
-    let password = secret::hash(Secret::new("load-test-only-password")).await?;
-    let pin = secret::hash(Secret::new("4821")).await?;
-    let admin = UserName::parse("loadadmin").map_err(anyhow::Error::msg)?;
+    let (password, pin) = (&secrets.password, &secrets.pin);
+    let admin_name = format!("loadadmin{}", code.to_lowercase());
+    let admin = UserName::parse(&admin_name).map_err(anyhow::Error::msg)?;
     store
         .create_user(
             NewUser {
@@ -175,7 +207,7 @@ async fn set_up(state: &AppState, phones: usize) -> anyhow::Result<(Vec<String>,
                 pin: None,
                 roles: vec![(site.id, Role::Admin)],
             },
-            AuditEvent::now(Actor::System, Action::UserCreated, "loadadmin"),
+            AuditEvent::now(Actor::System, Action::UserCreated, &admin_name),
         )
         .await?;
     let admin_token = Token::generate(API_TOKEN_PREFIX);
@@ -193,7 +225,7 @@ async fn set_up(state: &AppState, phones: usize) -> anyhow::Result<(Vec<String>,
         )
         .await?;
     let mut tokens = Vec::new();
-    for i in 0..phones {
+    for i in first..first + phones {
         let name = UserName::parse(&format!("phone{i}")).map_err(anyhow::Error::msg)?;
         let user = store
             .create_user(
@@ -226,16 +258,21 @@ async fn set_up(state: &AppState, phones: usize) -> anyhow::Result<(Vec<String>,
     Ok((tokens, admin_token.expose().to_string()))
 }
 
-/// One bin per phone and one item, through the API.
-async fn master_data(base: &str, admin: &str, phones: usize) -> anyhow::Result<()> {
+/// One bin per phone and one item at site `code`, through the API.
+pub(crate) async fn master_data(
+    base: &str,
+    code: &str,
+    admin: &str,
+    phones: usize,
+) -> anyhow::Result<()> {
     let bins: Vec<Value> = (0..phones)
         .map(|i| json!({"zone": "A", "aisle": 1 + i / 90, "bay": 1 + i % 90, "level": 1, "side": "L"}))
         .collect();
     let client = reqwest::Client::new();
     for (path, body) in [
-        ("/api/v1/sites/LT/bins", json!(bins)),
+        (format!("/api/v1/sites/{code}/bins"), json!(bins)),
         (
-            "/api/v1/sites/LT/items",
+            format!("/api/v1/sites/{code}/items"),
             json!([{"sku": "LOAD-1", "description": "Load item", "base_unit": "each", "unit_cost_minor": 100}]),
         ),
     ] {
@@ -255,63 +292,73 @@ async fn master_data(base: &str, admin: &str, phones: usize) -> anyhow::Result<(
     Ok(())
 }
 
-/// One phone: sends passes of `batch` events until the deadline; returns each request's
-/// latency in ms and the events accepted.
-async fn phone(
-    i: usize,
-    base: &str,
-    token: &str,
-    batch: usize,
-    deadline: Instant,
-    first: Instant,
-    interval: Duration,
-) -> anyhow::Result<(Vec<f64>, u64)> {
-    let mut next = first;
-    let client = reqwest::Client::new();
-    let bin = format!("A-{:02}-{:02}-1", 1 + i / 90, 1 + i % 90);
-    let mut latencies = Vec::new();
-    let mut accepted = 0;
-    let mut rtt: Option<i64> = None;
-    loop {
-        if !interval.is_zero() {
-            tokio::time::sleep_until(next.into()).await;
-            next += interval;
-        }
-        if Instant::now() >= deadline {
-            break;
-        }
-        let now = chrono::Utc::now().timestamp_millis();
-        // Events are made before the request is sent, never after its device_clock.
-        let start = now - batch as i64;
-        let pass = uuid::Uuid::now_v7().to_string();
-        // Phone i belongs to counter phone{i} (set_up).
-        let user = format!("phone{i}");
-        let mut events = vec![json!({"id": pass, "at": start, "user": user, "count": pass,
+/// One phone: counter `phone{user}` counting the `bin`th bin of `site`.
+pub(crate) struct Phone {
+    pub site: String,
+    pub user: usize,
+    pub bin: usize,
+}
+
+impl Phone {
+    /// Sends passes of `batch` events until the deadline; returns each request's
+    /// latency in ms and the events accepted.
+    pub(crate) async fn run(
+        &self,
+        base: &str,
+        token: &str,
+        batch: usize,
+        deadline: Instant,
+        first: Instant,
+        interval: Duration,
+    ) -> anyhow::Result<(Vec<f64>, u64)> {
+        let mut next = first;
+        let client = reqwest::Client::new();
+        let i = self.bin;
+        let bin = format!("A-{:02}-{:02}-1", 1 + i / 90, 1 + i % 90);
+        let mut latencies = Vec::new();
+        let mut accepted = 0;
+        let mut rtt: Option<i64> = None;
+        loop {
+            if !interval.is_zero() {
+                tokio::time::sleep_until(next.into()).await;
+                next += interval;
+            }
+            if Instant::now() >= deadline {
+                break;
+            }
+            let now = chrono::Utc::now().timestamp_millis();
+            // Events are made before the request is sent, never after its device_clock.
+            let start = now - batch as i64;
+            let pass = uuid::Uuid::now_v7().to_string();
+            // The phone belongs to counter phone{user} (set_up).
+            let user = format!("phone{}", self.user);
+            let mut events = vec![json!({"id": pass, "at": start, "user": user, "count": pass,
                                      "task": null, "bin": bin, "type": "bin_opened", "label": ""})];
-        for k in 1..batch {
-            events.push(
+            for k in 1..batch {
+                events.push(
                 json!({"id": uuid::Uuid::now_v7().to_string(), "at": start + k as i64,
                 "user": user, "count": pass, "task": null, "bin": bin, "type": "line", "sku": "LOAD-1",
                 "qty": 1 + (k % 9) as i64, "lot": "", "entry": "keypad"}),
             );
+            }
+            let body = json!({"device_clock": now, "rtt_ms": rtt, "events": events});
+            let sent = Instant::now();
+            let r = client
+                .post(format!("{base}/api/v1/sites/{}/sync", self.site))
+                .bearer_auth(token)
+                .json(&body)
+                .send()
+                .await
+                .context("a sync request failed")?;
+            ensure!(r.status().is_success(), "sync answered {}", r.status());
+            let answer: Value = r.json().await?;
+            let took = sent.elapsed();
+            rtt = Some(took.as_millis() as i64);
+            latencies.push(took.as_secs_f64() * 1e3);
+            accepted += answer["results"].as_array().map_or(0, |r| {
+                r.iter().filter(|r| r["status"] == "accepted").count()
+            }) as u64;
         }
-        let body = json!({"device_clock": now, "rtt_ms": rtt, "events": events});
-        let sent = Instant::now();
-        let r = client
-            .post(format!("{base}/api/v1/sites/LT/sync"))
-            .bearer_auth(token)
-            .json(&body)
-            .send()
-            .await
-            .context("a sync request failed")?;
-        ensure!(r.status().is_success(), "sync answered {}", r.status());
-        let answer: Value = r.json().await?;
-        let took = sent.elapsed();
-        rtt = Some(took.as_millis() as i64);
-        latencies.push(took.as_secs_f64() * 1e3);
-        accepted += answer["results"].as_array().map_or(0, |r| {
-            r.iter().filter(|r| r["status"] == "accepted").count()
-        }) as u64;
+        Ok((latencies, accepted))
     }
-    Ok((latencies, accepted))
 }
