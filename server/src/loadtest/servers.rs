@@ -327,18 +327,18 @@ impl Scratch {
             "cairn_loadtest_{}",
             &uuid::Uuid::now_v7().simple().to_string()[20..]
         );
-        admin_sql(admin, &format!("create database {name}"))
+        crate::store::postgres::admin_execute(admin, &format!("create database {name}"))
             .await
             .context("creating the load's scratch database (the role needs CREATEDB)")?;
         Ok(Self {
             admin: admin.to_string(),
-            url: with_database(admin, &name),
+            url: crate::store::postgres::with_database(admin, &name),
             name,
         })
     }
 
     async fn drop_now(self) {
-        if let Err(e) = admin_sql(
+        if let Err(e) = crate::store::postgres::admin_execute(
             &self.admin,
             &format!("drop database if exists {} with (force)", self.name),
         )
@@ -347,30 +347,6 @@ impl Scratch {
             tracing::warn!("could not drop the scratch database {}: {e:#}", self.name);
         }
     }
-}
-
-async fn admin_sql(admin: &str, sql: &str) -> anyhow::Result<()> {
-    let (client, conn) = tokio_postgres::connect(admin, tokio_postgres::NoTls)
-        .await
-        .map_err(|e| anyhow::anyhow!("connecting to the PostgreSQL server: {e}"))?;
-    let driver = tokio::spawn(conn);
-    client.batch_execute(sql).await?;
-    drop(client);
-    let _ = driver.await;
-    Ok(())
-}
-
-/// `url` with its database name replaced by `name` (query parameters kept).
-fn with_database(url: &str, name: &str) -> String {
-    let (base, query) = match url.split_once('?') {
-        Some((b, q)) => (b, format!("?{q}")),
-        None => (url, String::new()),
-    };
-    let scheme_end = base.find("://").map_or(0, |i| i + 3);
-    let host_end = base[scheme_end..]
-        .find('/')
-        .map_or(base.len(), |i| scheme_end + i);
-    format!("{}/{name}{query}", &base[..host_end])
 }
 
 /// The report: one line a phase, then one a server.
@@ -413,15 +389,6 @@ pub fn report(spec: &ServersSpec, phases: &[Phase]) -> String {
 #[cfg(test)]
 mod tests {
     use super::*;
-
-    #[test]
-    fn the_database_name_is_replaced_and_parameters_kept() {
-        assert_eq!(
-            with_database("postgres://u@h:5432/postgres?sslmode=require", "x"),
-            "postgres://u@h:5432/x?sslmode=require"
-        );
-        assert_eq!(with_database("postgres://u@h", "x"), "postgres://u@h/x");
-    }
 
     #[test]
     fn lock_figures_come_from_the_histogram() {

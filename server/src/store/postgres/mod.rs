@@ -199,6 +199,32 @@ impl PgStore {
     }
 }
 
+/// Runs `sql` on the database `url` names over a connection of its own: for making and
+/// dropping scratch databases (the load test, benchmarks), not for a store's work.
+pub async fn admin_execute(url: &str, sql: &str) -> anyhow::Result<()> {
+    let (client, conn) = tokio_postgres::connect(url, tokio_postgres::NoTls)
+        .await
+        .map_err(|e| anyhow::anyhow!("connecting to the PostgreSQL server: {e}"))?;
+    let driver = tokio::spawn(conn);
+    client.batch_execute(sql).await?;
+    drop(client);
+    let _ = driver.await;
+    Ok(())
+}
+
+/// `url` with its database name replaced by `name` (query parameters kept).
+pub fn with_database(url: &str, name: &str) -> String {
+    let (base, query) = match url.split_once('?') {
+        Some((b, q)) => (b, format!("?{q}")),
+        None => (url, String::new()),
+    };
+    let scheme_end = base.find("://").map_or(0, |i| i + 3);
+    let host_end = base[scheme_end..]
+        .find('/')
+        .map_or(base.len(), |i| scheme_end + i);
+    format!("{}/{name}{query}", &base[..host_end])
+}
+
 /// Tells whether `e` is a unique constraint refusing a row (SQLSTATE 23505).
 pub fn is_unique_violation(e: &tokio_postgres::Error) -> bool {
     e.code() == Some(&tokio_postgres::error::SqlState::UNIQUE_VIOLATION)

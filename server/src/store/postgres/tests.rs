@@ -804,3 +804,13 @@ async fn the_same_history_plans_the_same_lists_on_both_stores() {
         assert_eq!(a, b, "answer {i} differs between SQLite and PostgreSQL");
     }
 }
+
+#[test]
+fn a_database_name_is_replaced_and_parameters_kept() {
+    use crate::store::postgres::with_database;
+    assert_eq!(
+        with_database("postgres://u@h:5432/postgres?sslmode=require", "x"),
+        "postgres://u@h:5432/x?sslmode=require"
+    );
+    assert_eq!(with_database("postgres://u@h", "x"), "postgres://u@h/x");
+}
