@@ -50,6 +50,16 @@ pub struct ItemFacts {
     pub class: Option<Class>,
 }
 
+/// What netting reads of one key of a bin (see [`NettingTx::keys_facts`]).
+#[derive(Debug, Clone, PartialEq, Eq)]
+pub struct KeyRead {
+    pub item: ItemFacts,
+    /// The balance just before the history netting looks at.
+    pub balance_before: i64,
+    /// The moves in that history, in event order (ties by id).
+    pub moves: Vec<LedgerMove>,
+}
+
 /// A result row to write.
 #[derive(Debug, Clone, Copy)]
 pub struct NewResult<'a> {
@@ -98,6 +108,28 @@ pub trait NettingTx: RecountTx + crate::ledger::WatermarkTx {
         from: Timestamp,
         to: Timestamp,
     ) -> Result<Vec<LedgerMove>, StoreError>;
+    /// What netting reads of each of a bin's `keys`, in their order: the item, the
+    /// balance from every movement stamped at or before `before`, and the moves stamped in
+    /// `[from, to]`. By default the three queries above a key; a store whose round trips
+    /// cost more than its queries answers every key at once.
+    fn keys_facts(
+        &self,
+        bin: i64,
+        keys: &[ItemLot],
+        before: Timestamp,
+        from: Timestamp,
+        to: Timestamp,
+    ) -> Result<Vec<KeyRead>, StoreError> {
+        keys.iter()
+            .map(|key| {
+                Ok(KeyRead {
+                    item: self.item_facts(key.0)?,
+                    balance_before: self.balance_as_of(bin, key, before)?,
+                    moves: self.key_moves(bin, key, from, to)?,
+                })
+            })
+            .collect()
+    }
     /// Writes a result; returns its id.
     fn insert_result(&self, r: &NewResult<'_>) -> Result<i64, StoreError>;
     /// Marks result `old` superseded by `new`.
@@ -240,12 +272,33 @@ pub fn net<T: NettingTx + ?Sized>(
         .into());
     }
 
+    let keys: Vec<ItemLot> = keys
+        .into_iter()
+        .filter(|k| only.is_none_or(|o| o.contains(k)))
+        .collect();
+    let reads = tx.keys_facts(
+        pass.bin_id,
+        &keys,
+        history_from.plus_ms(-1),
+        history_from,
+        history_to,
+    )?;
+    if reads.len() != keys.len() {
+        return Err(anyhow::anyhow!(
+            "the store read {} of {} keys of count {}",
+            reads.len(),
+            keys.len(),
+            pass.uid
+        )
+        .into());
+    }
     let mut changed = Vec::new();
-    for key in keys {
-        if only.is_some_and(|o| !o.contains(&key)) {
-            continue;
-        }
-        let item = tx.item_facts(key.0)?;
+    for (key, read) in keys.into_iter().zip(reads) {
+        let KeyRead {
+            item,
+            balance_before,
+            moves,
+        } = read;
         let count = match counted.get(&key) {
             Some(&(qty, last)) => KeyCount::Scanned { qty, last },
             None => KeyCount::NotScanned,
@@ -257,8 +310,8 @@ pub fn net<T: NettingTx + ?Sized>(
             class: item.class,
             unit_cost_minor: item.unit_cost_minor,
             count,
-            balance_before: tx.balance_as_of(pass.bin_id, &key, history_from.plus_ms(-1))?,
-            moves: tx.key_moves(pass.bin_id, &key, history_from, history_to)?,
+            balance_before,
+            moves,
         };
         let current = if netted.contains(&key) {
             tx.current_result(pass.id, &key)?
