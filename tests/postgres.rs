@@ -1,11 +1,14 @@
 //! What only the PostgreSQL store has: its migrations recorded and a newer database
 //! refused, writes of one site taking turns on the site's advisory lock while another
 //! site writes on, a nightly job claimed once across servers, the pool on `/metrics`,
-//! `store copy` and TLS as the URL's `sslmode` says (`tls.rs`).
+//! `store copy` (every site, or one onto a database serving others: `copy_site.rs`) and
+//! TLS as the URL's `sslmode` says (`tls.rs`).
 //! Runs when `CAIRN_TEST_STORE` names a PostgreSQL server (see tests/common); says it
 //! skipped otherwise.
 
 mod common;
+#[path = "postgres/copy_site.rs"]
+mod copy_site;
 #[path = "postgres/tls.rs"]
 mod tls;
 
