@@ -308,6 +308,31 @@ async fn one_site_of_a_file_joins_a_database_serving_another_site_and_is_served(
         before,
         "a refused copy changed the target"
     );
+
+    // The target's own site under another code: its movements' uids are taken already, so
+    // it is refused (by the table it stopped at) and the target stays as it was.
+    common::sqlite_file(&other)
+        .execute("update site set code = 'NT2' where code = 'NTH'", [])
+        .unwrap();
+    let e = cairn::store::copy::copy_site(
+        &other,
+        &url,
+        &SiteCode::parse("NT2").unwrap(),
+        &indicatif::ProgressBar::hidden(),
+    )
+    .await
+    .expect_err("the same movements twice");
+    let e = format!("{e:#}");
+    assert!(
+        e.contains("table movement: the target already holds a row with the same unique value")
+            && e.contains("nothing was written"),
+        "{e}"
+    );
+    assert_eq!(
+        fingerprint(&url),
+        before,
+        "a refused copy changed the target"
+    );
 }
 
 #[tokio::test(flavor = "multi_thread", worker_threads = 2)]
