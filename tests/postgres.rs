@@ -1,10 +1,16 @@
 //! What only the PostgreSQL store has: its migrations recorded and a newer database
 //! refused, writes of one site taking turns on the site's advisory lock while another
-//! site writes on, a nightly job claimed once across servers, and the pool on `/metrics`.
+//! site writes on, a nightly job claimed once across servers, the pool on `/metrics`,
+//! `store copy` (every site, or one onto a database serving others: `copy_site.rs`) and
+//! TLS as the URL's `sslmode` says (`tls.rs`).
 //! Runs when `CAIRN_TEST_STORE` names a PostgreSQL server (see tests/common); says it
 //! skipped otherwise.
 
 mod common;
+#[path = "postgres/copy_site.rs"]
+mod copy_site;
+#[path = "postgres/tls.rs"]
+mod tls;
 
 use cairn::master::{BinRecord, NewBin};
 use cairn::store::postgres::LOCK_SPACE;
@@ -25,7 +31,10 @@ fn skipped() -> bool {
 /// A connection of the test's own to the app's database.
 async fn connect(app: &TestApp) -> tokio_postgres::Client {
     let url = &app.pg.as_ref().expect("the app runs on PostgreSQL").url;
-    let (client, conn) = tokio_postgres::connect(url, tokio_postgres::NoTls)
+    let (config, tls) =
+        cairn::store::postgres::connect::read_url(url).expect("the test database URL reads");
+    let (client, conn) = config
+        .connect(tls)
         .await
         .expect("the test database answers");
     tokio::spawn(conn);

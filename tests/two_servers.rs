@@ -170,9 +170,19 @@ struct Request {
     lines: Vec<String>,
 }
 
+/// A phone's clock is corrected by the server's when a request arrives, so a count's
+/// window moves by a few milliseconds between two runs of the same request. Every phone
+/// event is therefore stamped on a whole second and every movement half a second off
+/// one: no movement lies within milliseconds of a window's edge, and both runs see the
+/// same movements in each window.
+fn whole_second(at: i64) -> i64 {
+    at - at.rem_euclid(1_000)
+}
+
 /// The `k`th pass of phone `p`: one bin opened, a line per SKU, the bin done; the counts
 /// sometimes off by a few so some differences go to a recount.
 fn pass(p: usize, k: usize, at: i64) -> Request {
+    let at = whole_second(at);
     let mut rng = ChaCha8Rng::seed_from_u64((p * 10_000 + k) as u64);
     let bin = bin((p * 5 + k * 7) % BINS);
     let count = uuid::Uuid::now_v7().to_string();
@@ -201,7 +211,7 @@ fn pass(p: usize, k: usize, at: i64) -> Request {
         lines.push(id);
     }
     let done = uuid::Uuid::now_v7().to_string();
-    events.push(ev(&done, at - 500, "bin_done", json!({})));
+    events.push(ev(&done, at - 1_000, "bin_done", json!({})));
     ids.push(done);
     Request {
         phone: Some(p),
@@ -215,6 +225,7 @@ fn pass(p: usize, k: usize, at: i64) -> Request {
 /// The host's `k`th batch: picks and receipts over the last seconds, some of them while a
 /// bin is being counted.
 fn host_batch(h: usize, k: usize, at: i64) -> Request {
+    let at = whole_second(at) + 500;
     let mut rng = ChaCha8Rng::seed_from_u64((h * 10_000 + k) as u64 ^ 0xB47C);
     let mut ids = Vec::new();
     let rows: Vec<Value> = (0..MOVES)
@@ -226,7 +237,7 @@ fn host_batch(h: usize, k: usize, at: i64) -> Request {
                    "sku": SKUS[rng.random_range(0..SKUS.len())],
                    "qty": if pick { -rng.random_range(1..=3) } else { rng.random_range(1..=4) },
                    "kind": if pick { "pick" } else { "receipt" },
-                   "event_at": rfc3339(at - rng.random_range(0..6_000))})
+                   "event_at": rfc3339(at - 1_000 * rng.random_range(0..6))})
         })
         .collect();
     Request {

@@ -522,9 +522,9 @@ fn pg_database(admin: &str, name: &str) -> String {
             .build()
             .unwrap();
         rt.block_on(async {
-            let (c, conn) = tokio_postgres::connect(&admin_url, tokio_postgres::NoTls)
-                .await
-                .unwrap();
+            let (config, tls) =
+                cairn::store::postgres::connect::read_url(&admin_url).expect("the URL reads");
+            let (c, conn) = config.connect(tls).await.unwrap();
             tokio::spawn(conn);
             for sql in [
                 format!("drop database if exists {name2} with (force)"),
@@ -536,11 +536,15 @@ fn pg_database(admin: &str, name: &str) -> String {
     })
     .join()
     .unwrap();
-    let base = admin.split('?').next().unwrap();
+    // The admin URL's parameters (sslmode among them) hold for the bench's databases too.
+    let (base, query) = match admin.split_once('?') {
+        Some((b, q)) => (b, format!("?{q}")),
+        None => (admin, String::new()),
+    };
     let cut = base[base.find("://").unwrap() + 3..]
         .find('/')
         .map_or(base.len(), |i| base.find("://").unwrap() + 3 + i);
-    format!("{}/{name}", &base[..cut])
+    format!("{}/{name}{query}", &base[..cut])
 }
 
 /// The same site, bins and items as `master_data`, through the store.
@@ -600,9 +604,9 @@ async fn pg_master(url: &str) -> SiteId {
 async fn pg_raw_ceiling(admin: &str, rows: &[Row]) -> f64 {
     let url = pg_database(admin, "cairn_bench_raw");
     let site = pg_master(&url).await;
-    let (mut c, conn) = tokio_postgres::connect(&url, tokio_postgres::NoTls)
-        .await
-        .unwrap();
+    // The same URL read the same way as the store's: TLS or not, both sides alike.
+    let (config, tls) = cairn::store::postgres::connect::read_url(&url).expect("the URL reads");
+    let (mut c, conn) = config.connect(tls).await.unwrap();
     tokio::spawn(conn);
     let mut bin_ids = std::collections::HashMap::new();
     for r in c.query("select code, id from bin", &[]).await.unwrap() {

@@ -301,15 +301,20 @@ enum CodeCommand {
 
 #[derive(Subcommand)]
 enum StoreCommand {
-    /// Copy every site of a SQLite file onto an empty PostgreSQL database, then read every
-    /// table back and check it (the file is only read; stop the server that writes it).
+    /// Copy every site of a SQLite file onto an empty PostgreSQL database, or one site
+    /// (--site) onto a database that may hold other sites; then read every table back and
+    /// check it (the file is only read; stop the server that writes it).
     Copy {
         /// The SQLite file.
         #[arg(long)]
         from: PathBuf,
-        /// The PostgreSQL database, `postgres://user@host/db` (must be empty).
+        /// The PostgreSQL database, `postgres://user@host/db` (empty, unless --site).
         #[arg(long)]
         to: String,
+        /// Copy only this site, with fresh ids, onto a database that does not hold it
+        /// yet; its people come along (one already there must be the same account).
+        #[arg(long)]
+        site: Option<String>,
     },
 }
 
@@ -768,12 +773,15 @@ async fn dispatch(command: Command) -> anyhow::Result<()> {
         }
         Command::User { command } => user_command(command).await,
         Command::Store {
-            command: StoreCommand::Copy { from, to },
+            command: StoreCommand::Copy { from, to, site },
         } => {
             let target = DbLocation::parse(&to).map_err(anyhow::Error::msg)?;
             let DbLocation::Postgres(url) = &target else {
                 anyhow::bail!("--to must be a postgres:// URL, not {target}");
             };
+            let site = site
+                .map(|c| crate::master::SiteCode::parse(&c).map_err(anyhow::Error::msg))
+                .transpose()?;
             let pb = if std::io::IsTerminal::is_terminal(&std::io::stderr()) {
                 let pb = indicatif::ProgressBar::new(0);
                 pb.set_style(
@@ -786,7 +794,10 @@ async fn dispatch(command: Command) -> anyhow::Result<()> {
             } else {
                 indicatif::ProgressBar::hidden()
             };
-            let report = crate::store::copy::copy(&from, url, &pb).await;
+            let report = match &site {
+                None => crate::store::copy::copy(&from, url, &pb).await,
+                Some(code) => crate::store::copy::copy_site(&from, url, code, &pb).await,
+            };
             pb.finish_and_clear();
             let report = report?;
             outln!("copied {} to {target}: {report}", from.display())?;

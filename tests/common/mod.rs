@@ -239,7 +239,10 @@ fn admin_sql(admin: &str, sql: &str) {
             .build()
             .expect("a runtime for the test database");
         rt.block_on(async {
-            let (client, conn) = tokio_postgres::connect(&admin, tokio_postgres::NoTls)
+            let (config, tls) = cairn::store::postgres::connect::read_url(&admin)
+                .unwrap_or_else(|e| panic!("{STORE_SWITCH}: {e}"));
+            let (client, conn) = config
+                .connect(tls)
                 .await
                 .unwrap_or_else(|e| panic!("{STORE_SWITCH} names a server that answers: {e}"));
             let driver = tokio::spawn(conn);
@@ -936,7 +939,10 @@ where
             .build()
             .expect("a runtime for the test's statement");
         rt.block_on(async {
-            let (client, conn) = tokio_postgres::connect(&url, tokio_postgres::NoTls)
+            let (config, tls) = cairn::store::postgres::connect::read_url(&url)
+                .expect("the test's database URL reads");
+            let (client, conn) = config
+                .connect(tls)
                 .await
                 .expect("the test's database answers");
             let driver = tokio::spawn(conn);

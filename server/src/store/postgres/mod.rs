@@ -8,6 +8,7 @@
 
 pub mod accounts;
 pub mod accuracy;
+pub mod connect;
 pub mod count_lists;
 pub mod ledger;
 pub mod master;
@@ -26,8 +27,8 @@ mod tests;
 
 use super::{StoreError, StoreOptions, WriteScope};
 use deadpool_postgres::{Manager, ManagerConfig, Pool, RecyclingMethod};
+use tokio_postgres::Row;
 use tokio_postgres::types::ToSql;
-use tokio_postgres::{NoTls, Row};
 pub use tx::{PgRead, PgTx};
 
 /// The first key of every advisory lock Cairn takes (the second is the site's id), so a
@@ -53,34 +54,37 @@ impl From<tokio_postgres::Error> for StoreError {
 
 impl From<deadpool_postgres::PoolError> for StoreError {
     fn from(e: deadpool_postgres::PoolError) -> Self {
-        StoreError::Internal(anyhow::anyhow!("no database connection: {e}"))
+        let why = match &e {
+            deadpool_postgres::PoolError::Backend(e) => describe(e),
+            other => other.to_string(),
+        };
+        StoreError::Internal(anyhow::anyhow!("no database connection: {why}"))
     }
 }
 
-/// Says what went wrong with the server's own words where it gave some.
+/// Says what went wrong with the server's own words where it gave some, and in plain
+/// words when TLS refused the server's certificate.
 pub fn describe(e: &tokio_postgres::Error) -> String {
     match e.as_db_error() {
         Some(db) => format!("{}: {}", db.code().code(), db.message()),
-        None => e.to_string(),
+        None => connect::certificate_refused(e).unwrap_or_else(|| connect::with_causes(e)),
     }
 }
 
 impl PgStore {
-    /// Connects to `url`, migrates the database (once, whatever other servers start with
+    /// Connects to `url` (TLS as its `sslmode` says, see [`connect`]), migrates the database (once, whatever other servers start with
     /// it) and keeps a pool of connections. Runs the migration on a thread of its own, so
     /// it may be called from inside or outside the server's runtime.
     pub fn open(url: &str, options: StoreOptions) -> Result<Self, StoreError> {
-        let config: tokio_postgres::Config = url
-            .parse()
-            .map_err(|e| anyhow::anyhow!("the database URL cannot be read: {e}"))?;
-        let migrating = config.clone();
+        let (config, tls) = connect::read_url(url).map_err(anyhow::Error::msg)?;
+        let (migrating, migrating_tls) = (config.clone(), tls.clone());
         std::thread::spawn(move || -> Result<i64, StoreError> {
             let rt = tokio::runtime::Builder::new_current_thread()
                 .enable_all()
                 .build()
                 .map_err(|e| anyhow::anyhow!("cannot start the migration's runtime: {e}"))?;
             rt.block_on(async move {
-                let (mut client, conn) = migrating.connect(NoTls).await.map_err(|e| {
+                let (mut client, conn) = migrating.connect(migrating_tls).await.map_err(|e| {
                     anyhow::anyhow!("cannot connect to the database: {}", describe(&e))
                 })?;
                 let driver = tokio::spawn(conn);
@@ -94,7 +98,7 @@ impl PgStore {
         .map_err(|_| anyhow::anyhow!("the migration thread panicked"))??;
         let manager = Manager::from_config(
             config,
-            NoTls,
+            tls,
             ManagerConfig {
                 recycling_method: RecyclingMethod::Fast,
             },
@@ -202,9 +206,13 @@ impl PgStore {
 /// Runs `sql` on the database `url` names over a connection of its own: for making and
 /// dropping scratch databases (the load test, benchmarks), not for a store's work.
 pub async fn admin_execute(url: &str, sql: &str) -> anyhow::Result<()> {
-    let (client, conn) = tokio_postgres::connect(url, tokio_postgres::NoTls)
-        .await
-        .map_err(|e| anyhow::anyhow!("connecting to the PostgreSQL server: {e}"))?;
+    let (config, tls) = connect::read_url(url).map_err(anyhow::Error::msg)?;
+    let (client, conn) = config.connect(tls).await.map_err(|e| {
+        anyhow::anyhow!(
+            "connecting to the PostgreSQL server: {}",
+            connect::with_causes(&e)
+        )
+    })?;
     let driver = tokio::spawn(conn);
     client.batch_execute(sql).await?;
     drop(client);

@@ -67,7 +67,9 @@ fn admin_sql(admin: &str, sql: &str) {
             .build()
             .expect("a runtime for the admin statement");
         rt.block_on(async {
-            let (client, conn) = tokio_postgres::connect(&admin, tokio_postgres::NoTls)
+            let (config, tls) = super::connect::read_url(&admin).expect("the switch's URL reads");
+            let (client, conn) = config
+                .connect(tls)
                 .await
                 .expect("the switch's server answers");
             let driver = tokio::spawn(conn);
