@@ -300,6 +300,8 @@ pub async fn copy_site(
     tx.commit()
         .await
         .map_err(|e| anyhow::anyhow!(super::describe(&e)))?;
+    progress.set_message("vacuuming and gathering the planner's statistics");
+    super::analyze_copied(&pg, &report.tables).await?;
     report.sites = 1;
     report.movements = report.rows_of("movement");
     report.site = Some(SiteReport {
