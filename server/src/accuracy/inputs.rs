@@ -251,7 +251,7 @@ mod tests {
         let bad = record("S1", "", -1.0, f64::NAN, 4000.0, Some(1.0))
             .validate()
             .unwrap_err();
-        let fields: Vec<_> = bad.iter().map(|e| e.field).collect();
+        let fields: Vec<_> = bad.iter().map(|e| e.field.as_str()).collect();
         assert_eq!(
             fields,
             [

@@ -369,6 +369,10 @@ pub async fn put_items(
     audit: Option<AuditEvent>,
 ) -> Result<usize, StoreError> {
     refuse_repeats(&rows, "sku", "SKU", |r| r.sku.as_str())?;
+    let repeated = crate::master::repeated_pack_gtins(&rows);
+    if !repeated.is_empty() {
+        return Err(StoreError::Rejected(repeated));
+    }
     store
         .write_tx(WriteScope::Site(site), move |tx| {
             for r in &rows {
@@ -391,11 +395,50 @@ pub async fn put_items(
                 )?;
                 progress.tick(1);
             }
+            put_item_packs(tx, site, &rows)?;
             let written = rows.len();
             audit_in(tx, audit, serde_json::json!({"written": written}))?;
             Ok(written)
         })
         .await
+}
+
+/// Creates or updates the packs item rows name (their items are written): a GTIN that
+/// belongs to another SKU refuses the batch, naming the row and `packs[j].gtin`.
+fn put_item_packs(tx: &PgTx<'_>, site: SiteId, rows: &[NewItem]) -> Result<(), StoreError> {
+    let mut errors = Vec::new();
+    for (i, item) in rows.iter().enumerate() {
+        for (j, p) in item.packs.iter().enumerate() {
+            if let Some(owner) = tx.query_opt(
+                "select i.sku from pack p join item i on i.id = p.item_id
+                  where p.site_id = $1 and p.gtin = $2",
+                &[&site.0, &p.gtin],
+            )? {
+                let owner: String = owner.get(0);
+                if owner != item.sku.as_str() {
+                    errors.push(RowError::new(
+                        i,
+                        format!("packs[{j}].gtin"),
+                        format!("GTIN {} already belongs to SKU '{owner}'", p.gtin),
+                    ));
+                }
+            }
+        }
+    }
+    if !errors.is_empty() {
+        return Err(StoreError::Rejected(errors));
+    }
+    for item in rows {
+        for p in &item.packs {
+            tx.execute(
+                "insert into pack (site_id, item_id, gtin, level, units)
+                 select $1, id, $3::text, $4::text, $5::bigint from item where site_id = $1 and sku = $2
+                 on conflict (site_id, gtin) do update set level = excluded.level, units = excluded.units",
+                &[&site.0, &item.sku.as_str(), &p.gtin, &p.level.as_str(), &i64::from(p.units)],
+            )?;
+        }
+    }
+    Ok(())
 }
 
 /// See [`crate::store::Store::put_packs`]: a GTIN stays with the item it was first given to.

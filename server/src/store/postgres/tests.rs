@@ -7,7 +7,7 @@
 use super::PgStore;
 use crate::ledger::{MovementKind, NewMovement, RecordOutcome};
 use crate::master::codes::{BinCode, MovementUid, Sku};
-use crate::master::{BinRecord, ItemRecord, NewSite, SiteCode, SiteId};
+use crate::master::{BinRecord, ItemPackRecord, ItemRecord, NewSite, SiteCode, SiteId};
 use crate::store::{
     BalanceQuery, HistoryQuery, HistorySubject, Progress, Store, StoreError, StoreOptions,
     WriteScope,
@@ -132,6 +132,8 @@ async fn fresh(url: &str, every: i64) -> (PgStore, SiteId) {
                 unit_cost_minor: 100,
                 lot_tracked: false,
                 group: None,
+                packs: None,
+                class: None,
             }
             .validate()
             .unwrap()
@@ -469,6 +471,26 @@ async fn same_history(store: &dyn Store, site: SiteId, day: chrono::NaiveDate) {
                 unit_cost_minor: 50 + 37 * i as i64,
                 lot_tracked: false,
                 group: None,
+                packs: (i < 4).then(|| {
+                    let gtin = |level: u32| {
+                        let body = format!("{level}5012345{i:05}");
+                        let check = cairn_scan::gtin_check_digit(&body).expect("digits");
+                        format!("{body}{check}")
+                    };
+                    vec![
+                        ItemPackRecord {
+                            gtin: gtin(1),
+                            level: "case".into(),
+                            units: 12,
+                        },
+                        ItemPackRecord {
+                            gtin: gtin(0),
+                            level: "each".into(),
+                            units: 1,
+                        },
+                    ]
+                }),
+                class: None,
             }
             .validate()
             .unwrap()

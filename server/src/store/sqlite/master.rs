@@ -296,6 +296,10 @@ pub fn put_items(
     progress: &Progress,
 ) -> Result<usize, StoreError> {
     refuse_repeats(rows, "sku", "SKU", |r| r.sku.as_str())?;
+    let repeated = crate::master::repeated_pack_gtins(rows);
+    if !repeated.is_empty() {
+        return Err(StoreError::Rejected(repeated));
+    }
     let mut ins = tx.prepare_cached(
         "insert into item (site_id, sku, description, base_unit, unit_cost_minor, lot_tracked, item_group)
          values (?1, ?2, ?3, ?4, ?5, ?6, ?7)
@@ -315,7 +319,52 @@ pub fn put_items(
         ])?;
         progress.tick(1);
     }
+    put_item_packs(tx, site, rows)?;
     Ok(rows.len())
+}
+
+/// Creates or updates the packs item rows name (their items are written): a GTIN that
+/// belongs to another SKU refuses the batch, naming the row and `packs[j].gtin`.
+fn put_item_packs(tx: &Transaction, site: SiteId, rows: &[NewItem]) -> Result<(), StoreError> {
+    let mut owner_q = tx.prepare_cached(
+        "select i.sku from pack p join item i on i.id = p.item_id where p.site_id = ?1 and p.gtin = ?2",
+    )?;
+    let mut errors = Vec::new();
+    for (i, item) in rows.iter().enumerate() {
+        for (j, p) in item.packs.iter().enumerate() {
+            if let Some(owner) = owner_q
+                .query_row(params![site.0, p.gtin], |r| r.get::<_, String>(0))
+                .optional()?
+                && owner != item.sku.as_str()
+            {
+                errors.push(RowError::new(
+                    i,
+                    format!("packs[{j}].gtin"),
+                    format!("GTIN {} already belongs to SKU '{owner}'", p.gtin),
+                ));
+            }
+        }
+    }
+    if !errors.is_empty() {
+        return Err(StoreError::Rejected(errors));
+    }
+    let mut ins = tx.prepare_cached(
+        "insert into pack (site_id, item_id, gtin, level, units)
+         select ?1, id, ?3, ?4, ?5 from item where site_id = ?1 and sku = ?2
+         on conflict (site_id, gtin) do update set level = excluded.level, units = excluded.units",
+    )?;
+    for item in rows {
+        for p in &item.packs {
+            ins.execute(params![
+                site.0,
+                item.sku.as_str(),
+                p.gtin,
+                p.level.as_str(),
+                p.units
+            ])?;
+        }
+    }
+    Ok(())
 }
 
 /// Creates or updates packs by GTIN; a GTIN stays with the item it was first given to.
