@@ -3,6 +3,7 @@
 //! before any SQL runs.
 
 pub mod codes;
+pub mod read;
 pub mod routes;
 
 use crate::batch::{FieldError, RowError};
@@ -246,7 +247,7 @@ pub struct ItemRecord {
     #[serde(default)]
     pub packs: Option<Vec<ItemPackRecord>>,
     /// Read-only: the item's ABC class, which the server keeps. Taken and ignored, so a
-    /// row read back can be sent again as it is.
+    /// row read back (`read::ItemRow`) can be sent again as it is.
     #[serde(default)]
     pub class: Option<serde::de::IgnoredAny>,
 }
