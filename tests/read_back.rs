@@ -6,7 +6,9 @@
 mod common;
 
 use cairn::accounts::Role;
-use common::{Auth, Body, PASSWORD, PhoneSite, TestApp, phone_site, review_site, spawn_app};
+use common::{
+    Auth, Body, PASSWORD, PhoneSite, ROOT_USER, TestApp, phone_site, review_site, spawn_app,
+};
 use reqwest::Method;
 use serde_json::{Value, json};
 
@@ -470,6 +472,87 @@ async fn items_carry_their_current_class_and_are_filtered_by_it() {
 }
 
 #[tokio::test]
+async fn planner_inputs_read_back_page_by_page_and_post_back_unchanged() {
+    let app = spawn_app().await;
+    app.small_site().await;
+    app.post_ok(
+        "/api/v1/sites/T/planner-inputs",
+        &json!([
+            {"sku": "S1", "lead_time_days": 5, "lead_time_sd_days": 1.5, "review_days": 7, "service_level": 0.95},
+            {"sku": "L1", "lead_time_days": 3},
+            {"group": "fasteners", "lead_time_days": 10, "review_days": 5}
+        ]),
+    )
+    .await;
+    let page = read(&app, "planner-inputs").await;
+    assert_eq!(page["next"], Value::Null);
+    let rows = page["planner_inputs"].as_array().unwrap();
+    let keys: Vec<(&str, &str)> = rows
+        .iter()
+        .map(|r| (r["group"].as_str().unwrap(), r["sku"].as_str().unwrap()))
+        .collect();
+    assert_eq!(
+        keys,
+        [("", "L1"), ("", "S1"), ("fasteners", "")],
+        "items' own rows by SKU, then group defaults"
+    );
+    let strip = |r: &Value| {
+        let mut r = r.clone();
+        let o = r.as_object_mut().unwrap();
+        assert_eq!(o.remove("updated_by"), Some(json!(ROOT_USER)));
+        assert!(o.remove("updated_at").unwrap().is_string());
+        r
+    };
+    assert_eq!(
+        strip(&rows[1]),
+        json!({"sku": "S1", "group": "", "lead_time_days": 5.0, "lead_time_sd_days": 1.5,
+               "review_days": 7.0, "service_level": 0.95})
+    );
+    assert_eq!(
+        strip(&rows[2]),
+        json!({"sku": "", "group": "fasteners", "lead_time_days": 10.0, "lead_time_sd_days": 0.0,
+               "review_days": 5.0, "service_level": null})
+    );
+    // Sent back as read (with its read-only fields): accepted, the figures unchanged.
+    let written = app
+        .post_ok("/api/v1/sites/T/planner-inputs", &page["planner_inputs"])
+        .await;
+    assert_eq!(written["written"], 3);
+    let again = read(&app, "planner-inputs").await;
+    let figures = |p: &Value| -> Vec<Value> {
+        p["planner_inputs"]
+            .as_array()
+            .unwrap()
+            .iter()
+            .map(strip)
+            .collect()
+    };
+    assert_eq!(figures(&again), figures(&page));
+    let walked = walk(&app, "planner-inputs", "", 2).await;
+    assert_eq!(
+        walked.iter().map(strip).collect::<Vec<_>>(),
+        figures(&again)
+    );
+    let one = read(&app, "planner-inputs?sku=S1").await;
+    assert_eq!(figures(&one), [figures(&again)[1].clone()]);
+    let group = read(&app, "planner-inputs?group=fasteners").await;
+    assert_eq!(figures(&group), [figures(&again)[2].clone()]);
+    // The CSV is every row; paging it is refused, naming the parameter.
+    let (s, b) = app
+        .get("/api/v1/sites/T/planner-inputs?format=csv&limit=2")
+        .await;
+    assert_eq!(s, 400, "{b}");
+    assert!(b["error"].as_str().unwrap().starts_with("limit:"), "{b}");
+    let csv = get_with(&app, "planner-inputs?format=csv", &[]).await;
+    assert_eq!(csv.status(), 200);
+    assert_eq!(
+        csv.text().await.unwrap().lines().count(),
+        4,
+        "header and three rows"
+    );
+}
+
+#[tokio::test]
 async fn a_read_back_answers_304_while_its_etag_still_names_the_page() {
     let app = spawn_app().await;
     app.small_site().await;
@@ -498,7 +581,7 @@ async fn a_read_back_answers_304_while_its_etag_still_names_the_page() {
     assert_eq!(changed.status(), 200);
     assert_ne!(etag_of(&changed), etag);
     assert_ne!(changed.text().await.unwrap(), body);
-    for path in ["zones", "bins", "lots"] {
+    for path in ["zones", "bins", "lots", "planner-inputs"] {
         let r = get_with(&app, path, &[]).await;
         let e = etag_of(&r);
         let again = get_with(&app, path, &[("if-none-match", &e)]).await;
@@ -507,7 +590,7 @@ async fn a_read_back_answers_304_while_its_etag_still_names_the_page() {
 }
 
 /// Every read-back route.
-const READ_BACKS: &[&str] = &["zones", "bins", "items", "lots"];
+const READ_BACKS: &[&str] = &["zones", "bins", "items", "lots", "planner-inputs"];
 
 #[tokio::test]
 async fn read_backs_are_for_book_readers_never_counters_or_strangers() {
@@ -570,6 +653,8 @@ async fn a_bad_parameter_is_refused_naming_it() {
         ("bins?aisle=1000", "aisle"),
         ("lots?sku=a%20b", "sku"),
         ("zones?limit=1.5", "limit"),
+        ("planner-inputs?sku=%20x%20y", "sku"),
+        ("planner-inputs?limit=0", "limit"),
     ];
     for (path, param) in cases {
         let (s, b) = app.get(&format!("/api/v1/sites/T/{path}")).await;

@@ -855,6 +855,27 @@ async fn accuracy_answers(
         input["updated_at"] = serde_json::Value::Null;
     }
     out.push(inputs);
+    let paged = pages(|after| async move {
+        let p = crate::accuracy::inputs::InputParams {
+            limit: Some("1".into()),
+            after,
+            ..Default::default()
+        };
+        let (q, limit) = p.query().unwrap();
+        let rows = store.planner_input_rows(site.id, q).await.unwrap();
+        crate::accuracy::inputs::input_page(rows, limit)
+    })
+    .await;
+    let mut paged = serde_json::to_value(paged).unwrap();
+    for input in paged.as_array_mut().unwrap() {
+        input["updated_at"] = serde_json::Value::Null;
+    }
+    assert_eq!(
+        paged,
+        out[out.len() - 1],
+        "paged one at a time, the same rows"
+    );
+    out.push(paged);
     let (start, end) = site.time_zone.range(day);
     let days: Vec<_> = (0..30)
         .map(|back| {
