@@ -553,6 +553,46 @@ async fn planner_inputs_read_back_page_by_page_and_post_back_unchanged() {
 }
 
 #[tokio::test]
+async fn the_count_policy_reads_back_in_one_answer_whose_parts_are_what_each_put_takes() {
+    let app = spawn_app().await;
+    app.small_site().await;
+    let policy = read(&app, "count-policy").await;
+    assert_eq!(
+        policy,
+        json!({
+            "settings": read(&app, "netting/settings").await,
+            "sources": read(&app, "netting/sources").await,
+            "reason_codes": read(&app, "netting/reason-codes").await,
+        })
+    );
+    let before = etag_of(&get_with(&app, "count-policy", &[]).await);
+    // Each part goes back through its own PUT as it was read.
+    for (part, path) in [
+        ("settings", "netting/settings"),
+        ("sources", "netting/sources"),
+        ("reason_codes", "netting/reason-codes"),
+    ] {
+        let (s, b) = app
+            .put(&format!("/api/v1/sites/T/{path}"), &policy[part])
+            .await;
+        assert_eq!(s, 200, "{path}: {b}");
+    }
+    assert_eq!(read(&app, "count-policy").await, policy);
+    let (s, b) = app
+        .put(
+            "/api/v1/sites/T/netting/sources",
+            &json!([{"source": "host", "uncertainty_ms": 2000, "posting_lag_ms": 900000}]),
+        )
+        .await;
+    assert_eq!(s, 200, "{b}");
+    let changed = get_with(&app, "count-policy", &[("if-none-match", &before)]).await;
+    assert_eq!(changed.status(), 200, "the policy changed: a new ETag");
+    assert_ne!(etag_of(&changed), before);
+    let body: Value = changed.json().await.unwrap();
+    assert_eq!(body["sources"], b);
+}
+
+#[tokio::test]
 async fn a_read_back_answers_304_while_its_etag_still_names_the_page() {
     let app = spawn_app().await;
     app.small_site().await;
@@ -581,7 +621,7 @@ async fn a_read_back_answers_304_while_its_etag_still_names_the_page() {
     assert_eq!(changed.status(), 200);
     assert_ne!(etag_of(&changed), etag);
     assert_ne!(changed.text().await.unwrap(), body);
-    for path in ["zones", "bins", "lots", "planner-inputs"] {
+    for path in ["zones", "bins", "lots", "planner-inputs", "count-policy"] {
         let r = get_with(&app, path, &[]).await;
         let e = etag_of(&r);
         let again = get_with(&app, path, &[("if-none-match", &e)]).await;
@@ -590,7 +630,14 @@ async fn a_read_back_answers_304_while_its_etag_still_names_the_page() {
 }
 
 /// Every read-back route.
-const READ_BACKS: &[&str] = &["zones", "bins", "items", "lots", "planner-inputs"];
+const READ_BACKS: &[&str] = &[
+    "zones",
+    "bins",
+    "items",
+    "lots",
+    "planner-inputs",
+    "count-policy",
+];
 
 #[tokio::test]
 async fn read_backs_are_for_book_readers_never_counters_or_strangers() {

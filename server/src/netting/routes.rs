@@ -10,13 +10,16 @@ use crate::error::ApiError;
 use crate::http::access::{
     Access, BOOK_READERS, COUNT_POLICY, ClientAddress, CurrentUser, RouteTable,
 };
+use crate::http::etag;
 use crate::http::extract::{CurrentSite, Params};
 use crate::netting::results::{
     MAX_RESULTS_PAGE, ResultDetail, ResultPage, ResultQuery, ResultState,
 };
 use axum::Json;
 use axum::extract::{Path, State};
-use serde::Deserialize;
+use axum::http::HeaderMap;
+use axum::response::Response;
+use serde::{Deserialize, Serialize};
 
 /// Results one page returns unless asked for fewer.
 const DEFAULT_RESULTS_PAGE: usize = 200;
@@ -43,6 +46,7 @@ pub fn routes(t: &mut RouteTable) {
         Access::Site(BOOK_READERS),
         get_result,
     )
+    .get(path!("/count-policy"), READ_POLICY, get_policy)
     .get(path!("/netting/settings"), READ_POLICY, get_settings)
     .put(path!("/netting/settings"), SET_POLICY, put_settings)
     .get(path!("/netting/sources"), READ_POLICY, get_sources)
@@ -113,6 +117,30 @@ async fn get_result(
         .await?
         .map(Json)
         .ok_or_else(|| ApiError::NotFound(format!("no count result {n} at this site")))
+}
+
+/// A site's count policy in one read: each part is the body its own `PUT` takes
+/// (`netting/settings`, `netting/sources`, `netting/reason-codes`), the three forms of
+/// the count-policy page.
+#[derive(Serialize)]
+struct CountPolicy {
+    settings: NettingSettings,
+    sources: Vec<SourceTimingRow>,
+    reason_codes: Vec<ReasonCode>,
+}
+
+/// Reads the count policy, with an ETag (304 when `If-None-Match` names it).
+async fn get_policy(
+    State(state): State<AppState>,
+    CurrentSite(site): CurrentSite,
+    headers: HeaderMap,
+) -> Result<Response, ApiError> {
+    let policy = CountPolicy {
+        settings: state.store.netting_settings(site.id).await?,
+        sources: state.store.source_timings(site.id).await?,
+        reason_codes: state.store.reason_codes(site.id).await?,
+    };
+    etag::json(&headers, &policy)
 }
 
 async fn get_settings(
