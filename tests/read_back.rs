@@ -6,6 +6,7 @@
 mod common;
 
 use cairn::accounts::Role;
+use cairn::time::Timestamp;
 use common::{
     Auth, Body, PASSWORD, PhoneSite, ROOT_USER, TestApp, phone_site, review_site, spawn_app,
 };
@@ -702,6 +703,12 @@ async fn a_bad_parameter_is_refused_naming_it() {
         ("zones?limit=1.5", "limit"),
         ("planner-inputs?sku=%20x%20y", "sku"),
         ("planner-inputs?limit=0", "limit"),
+        ("count-results?from=yesterday", "from"),
+        ("count-results?to=2026-03-02", "to"),
+        (
+            "count-results?from=2026-03-02T00:00:00Z&to=2026-03-01T00:00:00Z",
+            "from",
+        ),
     ];
     for (path, param) in cases {
         let (s, b) = app.get(&format!("/api/v1/sites/T/{path}")).await;
@@ -724,4 +731,120 @@ async fn a_bad_parameter_is_refused_naming_it() {
         let name = path.split(['?', '=']).nth(1).unwrap();
         assert!(b["error"].as_str().unwrap().contains(name), "{path}: {b}");
     }
+}
+
+#[tokio::test]
+async fn count_results_are_filtered_by_state_lot_and_counting_time() {
+    // Bin 1 holds 40 of S1 and 6 of L1 lot LOT-7; the counter keys 40 of S1 only and
+    // marks the bin done. S1 matches the book (a hit); L1/LOT-7 is netted as counted 0
+    // against a book of 6: out of tolerance (unclassified items are held to class A's
+    // tolerance, exact), so it waits for review. (The netting rule: DESIGN §4.)
+    let PhoneSite { app, cora, .. } = phone_site(&[]).await;
+    const MIN: i64 = 60_000;
+    let base = Timestamp::now().0 - 30 * MIN;
+    let at = |ms: i64| Timestamp(ms).to_string();
+    app.post_ok(
+        "/api/v1/sites/T/movements",
+        &json!([
+            {"id": "r0", "bin": "A-01-01-1", "sku": "S1", "qty": 40, "kind": "receipt",
+             "event_at": at(base - 60 * MIN)},
+            {"id": "r1", "bin": "A-01-01-1", "sku": "L1", "lot": "LOT-7", "qty": 6,
+             "kind": "receipt", "event_at": at(base - 60 * MIN)}
+        ]),
+    )
+    .await;
+    let pass = uuid::Uuid::now_v7().to_string();
+    let event = |t: i64, kind: &str, extra: Value| {
+        let mut e = json!({"id": uuid::Uuid::now_v7().to_string(), "at": t, "count": pass,
+                           "task": null, "bin": "A-01-01-1", "type": kind});
+        e.as_object_mut()
+            .unwrap()
+            .extend(extra.as_object().unwrap().clone());
+        e
+    };
+    let mut opened = event(base, "bin_opened", json!({"label": ""}));
+    opened["id"] = json!(pass);
+    app.sync(
+        &cora,
+        vec![
+            opened,
+            event(
+                base + MIN,
+                "line",
+                json!({"sku": "S1", "gtin": null, "packs": 1, "qty": 40, "lot": "", "entry": "keypad"}),
+            ),
+            event(base + 2 * MIN, "bin_done", json!({})),
+        ],
+        0,
+    )
+    .await;
+    let results = |query: &str| {
+        let app = &app;
+        let query = query.to_string();
+        async move {
+            let (s, b) = app
+                .get(&format!("/api/v1/sites/T/count-results?{query}"))
+                .await;
+            assert_eq!(s, 200, "{query}: {b}");
+            b["results"]
+                .as_array()
+                .unwrap()
+                .iter()
+                .map(|r| {
+                    (
+                        r["sku"].as_str().unwrap().to_string(),
+                        r["lot"].as_str().unwrap().to_string(),
+                    )
+                })
+                .collect::<Vec<_>>()
+        }
+    };
+    let key = |sku: &str, lot: &str| (sku.to_string(), lot.to_string());
+    // The default is `open`: current, out of tolerance, not reviewed.
+    assert_eq!(results("").await, [key("L1", "LOT-7")]);
+    assert_eq!(results("state=open").await, [key("L1", "LOT-7")]);
+    let mut current = results("state=current").await;
+    current.sort();
+    assert_eq!(current, [key("L1", "LOT-7"), key("S1", "")]);
+    assert_eq!(
+        results("state=current&lot=LOT-7").await,
+        [key("L1", "LOT-7")]
+    );
+    assert_eq!(results("state=current&lot=").await, [key("S1", "")]);
+    assert!(results("state=current&lot=LOT-8").await.is_empty());
+    // counted_at bounds, both inclusive.
+    let (_, page) = app
+        .get("/api/v1/sites/T/count-results?state=current&sku=S1")
+        .await;
+    let counted = page["results"][0]["counted_at"]
+        .as_str()
+        .unwrap()
+        .to_string();
+    let ms = chrono::DateTime::parse_from_rfc3339(&counted)
+        .unwrap()
+        .timestamp_millis();
+    let q = |from: i64, to: i64| {
+        format!(
+            "state=current&sku=S1&from={}&to={}",
+            Timestamp(from),
+            Timestamp(to)
+        )
+    };
+    assert_eq!(results(&q(ms, ms)).await, [key("S1", "")]);
+    assert!(results(&q(ms + 1, ms + MIN)).await.is_empty());
+    assert!(results(&q(ms - MIN, ms - 1)).await.is_empty());
+    // A late pick inside the window re-nets S1: the old row is superseded, kept under `all`.
+    app.post_ok(
+        "/api/v1/sites/T/movements",
+        &json!([{"id": "p1", "bin": "A-01-01-1", "sku": "S1", "qty": -1, "kind": "pick",
+                 "event_at": at(base + MIN / 2)}]),
+    )
+    .await;
+    let (_, all) = app
+        .get("/api/v1/sites/T/count-results?state=all&sku=S1")
+        .await;
+    let rows = all["results"].as_array().unwrap();
+    assert_eq!(rows.len(), 2, "{all}");
+    assert!(rows[0]["superseded_by"].is_i64(), "{all}");
+    assert_eq!(results("state=current&sku=S1").await.len(), 1);
 }

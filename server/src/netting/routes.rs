@@ -15,6 +15,7 @@ use crate::http::extract::{CurrentSite, Params};
 use crate::netting::results::{
     MAX_RESULTS_PAGE, ResultDetail, ResultPage, ResultQuery, ResultState,
 };
+use crate::time::Timestamp;
 use axum::Json;
 use axum::extract::{Path, State};
 use axum::http::HeaderMap;
@@ -69,12 +70,29 @@ struct ResultParams {
     state: Option<ResultState>,
     bin: Option<String>,
     sku: Option<String>,
+    lot: Option<String>,
     pass: Option<String>,
+    from: Option<String>,
+    to: Option<String>,
     limit: Option<usize>,
     #[serde(default)]
     after: i64,
 }
 
+/// Reads an instant parameter (RFC 3339, within the input bounds), naming it when bad.
+fn instant(param: &str, raw: Option<String>) -> Result<Option<Timestamp>, ApiError> {
+    raw.map(|t| {
+        crate::input::bounds::instant(&t).map_err(|e| ApiError::BadRequest(format!("{param}: {e}")))
+    })
+    .transpose()
+}
+
+/// Lists a site's count results by id, `limit` (1 to 1,000, default 200) after result
+/// `after` (the previous page's `next`). `state`: `open` (the default: current results
+/// out of tolerance with no review yet — what waits for someone), `current` (every
+/// result not superseded by a re-net) or `all` (superseded rows too). Filters, each
+/// exact: `bin`, `sku`, `lot` (empty: keys without a lot), `pass` (id or uid); `from`
+/// and `to` (RFC 3339 instants, both inclusive) bound `counted_at`.
 async fn list_results(
     State(state): State<AppState>,
     CurrentSite(site): CurrentSite,
@@ -86,6 +104,15 @@ async fn list_results(
             "limit {limit} is out of range 1 to {MAX_RESULTS_PAGE}"
         )));
     }
+    let from = instant("from", q.from)?;
+    let to = instant("to", q.to)?;
+    if let (Some(f), Some(t)) = (from, to)
+        && f > t
+    {
+        return Err(ApiError::BadRequest(format!(
+            "from: {f} is after to ({t}); the range would hold nothing"
+        )));
+    }
     let page = state
         .store
         .count_results(
@@ -94,7 +121,10 @@ async fn list_results(
                 state: q.state.unwrap_or(ResultState::Open),
                 bin: q.bin,
                 sku: q.sku,
+                lot: q.lot,
                 pass: q.pass,
+                from,
+                to,
                 limit,
                 after: q.after,
             },
