@@ -687,7 +687,11 @@ async fn planner_inputs_with_a_bad_row_are_refused_whole_by_csv_and_api() {
     assert!(err.contains("line 3, sku: no item 'NOPE'"), "{err}");
     let (s, stored) = app.get("/api/v1/sites/T/planner-inputs").await;
     assert_eq!(s, 200);
-    assert_eq!(stored, json!([]), "nothing was written");
+    assert_eq!(
+        stored,
+        json!({"planner_inputs": [], "next": null}),
+        "nothing was written"
+    );
 
     // The API: every bad row named, nothing written.
     let (s, e) = app
@@ -729,7 +733,10 @@ async fn planner_inputs_with_a_bad_row_are_refused_whole_by_csv_and_api() {
         .await;
     assert_eq!(s, 422, "{e}");
     assert_eq!(e["rows"][0]["row"], 1);
-    assert_eq!(app.get("/api/v1/sites/T/planner-inputs").await.1, json!([]));
+    assert_eq!(
+        app.get("/api/v1/sites/T/planner-inputs").await.1,
+        json!({"planner_inputs": [], "next": null})
+    );
 
     // A good file is written, and a planner may post over the API.
     let good = write_file(
@@ -763,7 +770,7 @@ async fn planner_inputs_with_a_bad_row_are_refused_whole_by_csv_and_api() {
         .await;
     assert_eq!(a.status, 200, "{}", a.text);
     let (_, stored) = app.get("/api/v1/sites/T/planner-inputs").await;
-    let rows: Vec<(String, String, f64, String)> = stored
+    let rows: Vec<(String, String, f64, String)> = stored["planner_inputs"]
         .as_array()
         .unwrap()
         .iter()

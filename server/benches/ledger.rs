@@ -96,6 +96,8 @@ fn master_data(conn: &mut rusqlite::Connection, bins: usize, items: usize) -> Si
                 unit_cost_minor: 100,
                 lot_tracked: false,
                 group: None,
+                packs: None,
+                class: None,
             }
             .validate()
             .unwrap()
@@ -587,6 +589,8 @@ async fn pg_master(url: &str) -> SiteId {
                 unit_cost_minor: 100,
                 lot_tracked: false,
                 group: None,
+                packs: None,
+                class: None,
             }
             .validate()
             .unwrap()

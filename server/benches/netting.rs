@@ -86,6 +86,8 @@ fn make_db(path: &Path, lines: usize, moves: usize) {
                 unit_cost_minor: rng.random_range(5..20_000),
                 lot_tracked: false,
                 group: None,
+                packs: None,
+                class: None,
             }
             .validate()
             .unwrap()

@@ -31,15 +31,16 @@ impl RowError {
 /// A field-level error before the row number is known.
 #[derive(Debug, Clone, PartialEq, Eq)]
 pub struct FieldError {
-    pub field: &'static str,
+    /// The field, or its path inside the row (`packs[1].gtin`).
+    pub field: String,
     pub message: String,
 }
 
 impl FieldError {
     /// Builds an error for `field`.
-    pub fn new(field: &'static str, message: impl Into<String>) -> Self {
+    pub fn new(field: impl Into<String>, message: impl Into<String>) -> Self {
         Self {
-            field,
+            field: field.into(),
             message: message.into(),
         }
     }

@@ -8,6 +8,7 @@ use super::buffer::MAX_DAYS;
 use crate::batch::FieldError;
 use crate::input::text::Kind;
 use crate::master::codes::Sku;
+use crate::master::read::{self, Page, ParamError};
 use crate::planning::abc::Class;
 use serde::{Deserialize, Serialize};
 
@@ -94,6 +95,13 @@ pub struct PlannerInputRecord {
     /// Leave empty to take the class's service level.
     #[serde(default)]
     pub service_level: Option<f64>,
+    /// Read-only (who set the row, and when, is the server's): taken and ignored, so a
+    /// row read back can be sent again as it is.
+    #[serde(default)]
+    pub updated_at: Option<serde::de::IgnoredAny>,
+    /// Read-only, as `updated_at`.
+    #[serde(default)]
+    pub updated_by: Option<serde::de::IgnoredAny>,
 }
 
 /// What a planner input row applies to.
@@ -131,6 +139,75 @@ pub struct PlannerInput {
     pub times: LeadTimes,
     pub updated_at: crate::time::Timestamp,
     pub updated_by: String,
+}
+
+/// Which planner inputs to read, in the order of `(group, sku)`: items' own rows (group
+/// empty) by SKU, then group defaults by group.
+#[derive(Debug, Clone, PartialEq, Eq)]
+pub struct InputQuery {
+    /// Only this item's own row.
+    pub sku: Option<Sku>,
+    /// Only this group's default.
+    pub group: Option<String>,
+    /// The key `(group, sku)` of the last row of the previous page.
+    pub after: Option<(String, String)>,
+    /// Rows to read: the page's limit and one to spare.
+    pub take: usize,
+}
+
+/// Query parameters of `GET planner-inputs`: `sku`, `group`, `limit`, `after` (and
+/// `format=csv`, which gives every row and is not paged).
+#[derive(Debug, Default, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct InputParams {
+    pub sku: Option<String>,
+    pub group: Option<String>,
+    pub limit: Option<String>,
+    pub after: Option<String>,
+    pub format: Option<String>,
+}
+
+impl InputParams {
+    /// Checks the paging and filters; returns the query and the page's limit.
+    pub fn query(&self) -> Result<(InputQuery, usize), ParamError> {
+        let limit = read::limit(self.limit.as_deref())?;
+        let given = |v: &Option<String>| {
+            v.as_deref()
+                .map(str::trim)
+                .filter(|t| !t.is_empty())
+                .map(str::to_owned)
+        };
+        let sku = given(&self.sku)
+            .map(|t| {
+                Sku::parse(&t).map_err(|e| ParamError {
+                    param: "sku",
+                    message: e.to_string(),
+                })
+            })
+            .transpose()?;
+        let group = given(&self.group)
+            .map(|t| {
+                crate::input::text::check(Kind::Name, &t).map_err(|e| ParamError {
+                    param: "group",
+                    message: e.to_string(),
+                })
+            })
+            .transpose()?;
+        Ok((
+            InputQuery {
+                sku,
+                group,
+                after: read::decode_cursor::<2>(self.after.as_deref())?.map(|[g, s]| (g, s)),
+                take: limit + 1,
+            },
+            limit,
+        ))
+    }
+}
+
+/// Cuts a page of planner inputs (key: group, then SKU).
+pub fn input_page(rows: Vec<PlannerInput>, limit: usize) -> Page<PlannerInput> {
+    Page::cut(rows, limit, |p| vec![p.group.as_str(), p.sku.as_str()])
 }
 
 impl PlannerInputRecord {
@@ -229,6 +306,8 @@ mod tests {
             lead_time_sd_days: Some(sd),
             review_days: Some(r),
             service_level: p,
+            updated_at: None,
+            updated_by: None,
         }
     }
 
@@ -251,7 +330,7 @@ mod tests {
         let bad = record("S1", "", -1.0, f64::NAN, 4000.0, Some(1.0))
             .validate()
             .unwrap_err();
-        let fields: Vec<_> = bad.iter().map(|e| e.field).collect();
+        let fields: Vec<_> = bad.iter().map(|e| e.field.as_str()).collect();
         assert_eq!(
             fields,
             [
@@ -282,5 +361,19 @@ mod tests {
             ..Default::default()
         };
         assert!(s.check().is_err());
+    }
+
+    #[test]
+    fn the_csv_export_of_planner_inputs_imports_again_its_read_only_columns_ignored() {
+        // The header and a row as `GET planner-inputs?format=csv` writes them.
+        let text = "sku,group,lead_time_days,lead_time_sd_days,review_days,service_level,updated_at,updated_by\n\
+                    S1,,5,1,2,0.95,2026-03-02T08:00:00.000Z,pat\n";
+        let mut rdr = csv::ReaderBuilder::new()
+            .trim(csv::Trim::All)
+            .from_reader(text.as_bytes());
+        let rows: Vec<PlannerInputRecord> = rdr.deserialize().collect::<Result<_, _>>().unwrap();
+        let row = rows.into_iter().next().unwrap().validate().unwrap();
+        assert_eq!(row.target, InputTarget::Item(Sku::parse("S1").unwrap()));
+        assert_eq!(row.times.service_level, Some(0.95));
     }
 }

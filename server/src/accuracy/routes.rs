@@ -4,7 +4,7 @@
 //! the planner's inputs, and the buffer of every item or one. Book readers
 //! read; planners (and inventory managers) set inputs and settings.
 
-use super::inputs::{AccuracySettings, PlannerInputRecord};
+use super::inputs::{AccuracySettings, InputParams, PlannerInputRecord, input_page};
 use super::lists::{BUFFER_COLUMNS, ITEM_COLUMNS};
 use super::report::{self, ACCURACY_TABLES, Table};
 use super::service::{
@@ -16,6 +16,7 @@ use crate::AppState;
 use crate::accounts::audit;
 use crate::error::ApiError;
 use crate::http::access::{Access, BOOK_READERS, CurrentUser, PLANNERS, RouteTable};
+use crate::http::etag;
 use crate::http::extract::{CurrentSite, JsonRows, Params};
 use crate::master::Site;
 use crate::master::codes::Sku;
@@ -23,7 +24,7 @@ use crate::planning::abc::Class;
 use crate::time::day::SiteZone;
 use axum::Json;
 use axum::extract::{Path, State};
-use axum::http::header;
+use axum::http::{HeaderMap, header};
 use axum::response::{IntoResponse, Response};
 use chrono::NaiveDate;
 use serde::Deserialize;
@@ -344,18 +345,42 @@ async fn put_settings(
     Ok(Json(s))
 }
 
+/// Reads the planner inputs. JSON: a page in `(group, sku)` order — items' own rows
+/// first, by SKU, then group defaults, by group — each as `POST planner-inputs` takes it
+/// plus the read-only `updated_at` and `updated_by`; filters `sku` (that item's own row),
+/// `group` (that group's default); paging `limit` (1 to 1,000, default 200) and `after`
+/// (the previous page's `next`). Answers `{"planner_inputs": [...], "next": …}` with an
+/// ETag. `format=csv`: every row, not paged (no filter or paging parameter with it).
 async fn get_inputs(
     State(state): State<AppState>,
     CurrentSite(site): CurrentSite,
-    Params(p): Params<ReportParams>,
+    headers: HeaderMap,
+    Params(p): Params<InputParams>,
 ) -> Result<Response, ApiError> {
-    let csv = p.csv()?;
-    let inputs = state.store.planner_inputs(site.id).await?;
-    if csv {
-        csv_response(&site, &report::inputs_table(&inputs))
-    } else {
-        Ok(Json(inputs).into_response())
+    let bad = |e: crate::master::read::ParamError| ApiError::BadRequest(e.to_string());
+    let csv = ReportParams {
+        format: p.format.clone(),
+        ..ReportParams::default()
     }
+    .csv()?;
+    if csv {
+        let named = [
+            ("sku", &p.sku),
+            ("group", &p.group),
+            ("limit", &p.limit),
+            ("after", &p.after),
+        ];
+        if let Some((name, _)) = named.iter().find(|(_, v)| v.is_some()) {
+            return Err(ApiError::BadRequest(format!(
+                "{name}: the CSV holds every row; filters and paging are for the JSON list"
+            )));
+        }
+        let inputs = state.store.planner_inputs(site.id).await?;
+        return csv_response(&site, &report::inputs_table(&inputs));
+    }
+    let (query, limit) = p.query().map_err(bad)?;
+    let rows = state.store.planner_input_rows(site.id, query).await?;
+    etag::json(&headers, &input_page(rows, limit).named("planner_inputs"))
 }
 
 async fn post_inputs(

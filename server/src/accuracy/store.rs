@@ -2,7 +2,7 @@
 //! [`crate::store::Store`] includes this trait; the SQL is in
 //! `store/sqlite/accuracy.rs`, one function per query.
 
-use super::inputs::{AccuracySettings, NewPlannerInput, PlannerInput};
+use super::inputs::{AccuracySettings, InputQuery, NewPlannerInput, PlannerInput};
 use crate::accounts::audit::AuditEvent;
 use crate::master::SiteId;
 use crate::master::codes::Sku;
@@ -123,6 +123,13 @@ pub trait AccuracyStore: Send + Sync {
     ) -> Result<Vec<DailyIssue>, StoreError>;
     /// Reads every stored planner input of a site, items first, then groups.
     async fn planner_inputs(&self, site: SiteId) -> Result<Vec<PlannerInput>, StoreError>;
+    /// Reads a site's planner inputs that pass the filters, by `(group, sku)` after
+    /// `query.after` (items' own rows, group empty, first), at most `query.take` of them.
+    async fn planner_input_rows(
+        &self,
+        site: SiteId,
+        query: InputQuery,
+    ) -> Result<Vec<PlannerInput>, StoreError>;
     /// Stores planner inputs (replacing earlier ones of the same item or group).
     /// All or nothing: a row naming an unknown item refuses the batch.
     async fn put_planner_inputs(

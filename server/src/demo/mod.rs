@@ -277,6 +277,8 @@ fn items(spec: &DemoSpec, rng: &mut ChaCha8Rng, bins: &[NewBin]) -> (Vec<DemoIte
             unit_cost_minor: cost,
             lot_tracked: fam.lot_tracked,
             group: Some(fam.group.into()),
+            packs: None,
+            class: None,
         };
         let item = rec.validate().expect("demo items are built valid");
         let rank = ranks[i] as f64;

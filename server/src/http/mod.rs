@@ -3,6 +3,7 @@
 
 pub mod access;
 pub mod body_deadline;
+pub mod etag;
 pub mod extract;
 pub mod headers;
 pub mod nav;

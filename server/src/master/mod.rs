@@ -3,9 +3,10 @@
 //! before any SQL runs.
 
 pub mod codes;
+pub mod read;
 pub mod routes;
 
-use crate::batch::FieldError;
+use crate::batch::{FieldError, RowError};
 use crate::input::bounds;
 use crate::input::text::{self, Kind};
 use codes::{BinCode, Sku, ZoneCode};
@@ -242,9 +243,25 @@ pub struct ItemRecord {
     pub lot_tracked: bool,
     #[serde(default)]
     pub group: Option<String>,
+    /// The item's packs, created or updated with it (JSON only; a pack not named is kept).
+    #[serde(default)]
+    pub packs: Option<Vec<ItemPackRecord>>,
+    /// Read-only: the item's ABC class, which the server keeps. Taken and ignored, so a
+    /// row read back (`read::ItemRow`) can be sent again as it is.
+    #[serde(default)]
+    pub class: Option<serde::de::IgnoredAny>,
 }
 
-/// A validated item.
+/// One pack inside an item row: a pack row without the SKU, which is the item's.
+#[derive(Debug, Clone, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct ItemPackRecord {
+    pub gtin: String,
+    pub level: String,
+    pub units: i64,
+}
+
+/// A validated item, with the packs its row named.
 #[derive(Debug, Clone, PartialEq)]
 pub struct NewItem {
     pub sku: Sku,
@@ -253,6 +270,8 @@ pub struct NewItem {
     pub unit_cost_minor: i64,
     pub lot_tracked: bool,
     pub group: String,
+    /// Packs of this item to create or update (each with this item's SKU).
+    pub packs: Vec<NewPack>,
 }
 
 impl ItemRecord {
@@ -291,6 +310,10 @@ impl ItemRecord {
         ) {
             errs.push(FieldError::new("unit_cost_minor", e));
         }
+        let packs = match &sku {
+            Ok(sku) => item_packs(sku, self.packs.unwrap_or_default(), &mut errs),
+            Err(()) => Vec::new(),
+        };
         match sku {
             Ok(sku) if errs.is_empty() => Ok(NewItem {
                 sku,
@@ -299,10 +322,80 @@ impl ItemRecord {
                 unit_cost_minor: self.unit_cost_minor,
                 lot_tracked: self.lot_tracked,
                 group,
+                packs,
             }),
             _ => Err(errs),
         }
     }
+}
+
+/// Most packs one item row may name (each, inner, case, pallet, and room for variants).
+pub const MAX_ITEM_PACKS: usize = 32;
+
+/// Validates the packs of an item row by the pack rule, each error at `packs[j].field`;
+/// a GTIN named twice in the row is refused.
+fn item_packs(sku: &Sku, packs: Vec<ItemPackRecord>, errs: &mut Vec<FieldError>) -> Vec<NewPack> {
+    if packs.len() > MAX_ITEM_PACKS {
+        errs.push(FieldError::new(
+            "packs",
+            format!(
+                "an item names at most {MAX_ITEM_PACKS} packs, found {}",
+                packs.len()
+            ),
+        ));
+        return Vec::new();
+    }
+    let mut out: Vec<NewPack> = Vec::with_capacity(packs.len());
+    for (j, p) in packs.into_iter().enumerate() {
+        let row = PackRecord {
+            sku: sku.as_str().to_string(),
+            gtin: p.gtin,
+            level: p.level,
+            units: p.units,
+        };
+        match row.validate() {
+            Ok(pack) => {
+                if let Some(k) = out.iter().position(|q| q.gtin == pack.gtin) {
+                    errs.push(FieldError::new(
+                        format!("packs[{j}].gtin"),
+                        format!(
+                            "GTIN {} is named twice in this item (first at packs[{k}])",
+                            pack.gtin
+                        ),
+                    ));
+                }
+                out.push(pack);
+            }
+            Err(es) => errs.extend(
+                es.into_iter()
+                    .map(|e| FieldError::new(format!("packs[{j}].{}", e.field), e.message)),
+            ),
+        }
+    }
+    out
+}
+
+/// Finds the packs of a batch of items whose GTIN an earlier item of the batch already
+/// names: a GTIN belongs to one item. Each error is at the later row, `packs[j].gtin`.
+pub fn repeated_pack_gtins(rows: &[NewItem]) -> Vec<RowError> {
+    let mut first: std::collections::HashMap<&str, usize> = Default::default();
+    let mut errors = Vec::new();
+    for (i, item) in rows.iter().enumerate() {
+        for (j, p) in item.packs.iter().enumerate() {
+            match first.get(p.gtin.as_str()) {
+                Some(&k) if k != i => errors.push(RowError::new(
+                    i,
+                    format!("packs[{j}].gtin"),
+                    format!("GTIN {} is also named by row {k} of this batch", p.gtin),
+                )),
+                Some(_) => {}
+                None => {
+                    first.insert(p.gtin.as_str(), i);
+                }
+            }
+        }
+    }
+    errors
 }
 
 /// A pack row as sent.
@@ -445,6 +538,76 @@ mod tests {
         assert_eq!(b.side, Side::Right);
     }
 
+    fn item(sku: &str, packs: Vec<(&str, &str, i64)>) -> ItemRecord {
+        ItemRecord {
+            sku: sku.into(),
+            description: "Hex bolt".into(),
+            base_unit: "each".into(),
+            unit_cost_minor: 5,
+            lot_tracked: false,
+            group: None,
+            packs: Some(
+                packs
+                    .into_iter()
+                    .map(|(gtin, level, units)| ItemPackRecord {
+                        gtin: gtin.into(),
+                        level: level.into(),
+                        units,
+                    })
+                    .collect(),
+            ),
+            class: None,
+        }
+    }
+
+    #[test]
+    fn an_items_packs_are_checked_by_the_pack_rule_each_error_at_its_path() {
+        // 4006381333931: a valid EAN-13 (GS1 General Specifications mod-10 rule, check 1).
+        let ok = item("A1", vec![("4006381333931", "CASE", 6)])
+            .validate()
+            .unwrap();
+        assert_eq!(ok.packs.len(), 1);
+        assert_eq!(
+            (ok.packs[0].sku.as_str(), ok.packs[0].gtin.as_str()),
+            ("A1", "04006381333931")
+        );
+        assert_eq!(ok.packs[0].level, PackLevel::Case);
+        let errs = item(
+            "A1",
+            vec![
+                ("4006381333931", "each", 1),
+                ("4006381333932", "case", 6),
+                ("04006381333931", "case", 0),
+            ],
+        )
+        .validate()
+        .unwrap_err();
+        let fields: Vec<&str> = errs.iter().map(|e| e.field.as_str()).collect();
+        assert_eq!(fields, ["packs[1].gtin", "packs[2].units"]);
+        let twice = item(
+            "A1",
+            vec![("4006381333931", "each", 1), ("04006381333931", "case", 6)],
+        )
+        .validate()
+        .unwrap_err();
+        assert_eq!(twice[0].field, "packs[1].gtin");
+    }
+
+    #[test]
+    fn a_gtin_named_by_two_items_of_a_batch_is_refused_at_the_later_one() {
+        let rows: Vec<NewItem> = [
+            item("A1", vec![("4006381333931", "each", 1)]),
+            item("A2", vec![]),
+            item("A3", vec![("4006381333931", "each", 1)]),
+        ]
+        .into_iter()
+        .map(|r| r.validate().unwrap())
+        .collect();
+        let errs = repeated_pack_gtins(&rows);
+        assert_eq!(errs.len(), 1);
+        assert_eq!((errs[0].row, errs[0].field.as_str()), (2, "packs[0].gtin"));
+    }
+
     #[test]
     fn an_item_with_a_negative_cost_names_the_field() {
         let r = ItemRecord {
@@ -454,6 +617,8 @@ mod tests {
             unit_cost_minor: -5,
             lot_tracked: false,
             group: None,
+            packs: None,
+            class: None,
         };
         let errs = r.validate().unwrap_err();
         assert_eq!(errs[0].field, "unit_cost_minor");

@@ -1,14 +1,20 @@
-//! HTTP routes of master data: sites, and batch upserts of bins, items, packs.
+//! HTTP routes of master data: sites, batch upserts of bins, items, packs, and the
+//! read-back of zones, bins, items (with their packs) and lots, paged by key
+//! (`master::read`), for the roles that read book data.
 
+use super::read::{self, BinParams, ItemParams, LotParams, ParamError, ZoneParams};
 use super::{BinRecord, ItemRecord, PackRecord, Site, SiteCounts};
 use crate::AppState;
 use crate::accounts::audit;
 use crate::error::ApiError;
 use crate::http::access::{Access, BOOK_READERS, BOOK_WRITERS, CurrentUser, RouteTable};
-use crate::http::extract::{CurrentSite, JsonRows};
+use crate::http::etag;
+use crate::http::extract::{CurrentSite, JsonRows, Params};
 use crate::store::error::Progress;
 use axum::Json;
 use axum::extract::State;
+use axum::http::HeaderMap;
+use axum::response::Response;
 use serde::Serialize;
 use serde_json::json;
 
@@ -16,15 +22,35 @@ use serde_json::json;
 pub fn routes(t: &mut RouteTable) {
     t.get("/api/v1/sites", Access::SignedIn, list_sites)
         .get("/api/v1/sites/{site}", Access::Site(BOOK_READERS), get_site)
+        .get(
+            "/api/v1/sites/{site}/zones",
+            Access::Site(BOOK_READERS),
+            get_zones,
+        )
+        .get(
+            "/api/v1/sites/{site}/bins",
+            Access::Site(BOOK_READERS),
+            get_bins,
+        )
         .post(
             "/api/v1/sites/{site}/bins",
             Access::Site(BOOK_WRITERS),
             post_bins,
         )
+        .get(
+            "/api/v1/sites/{site}/items",
+            Access::Site(BOOK_READERS),
+            get_items,
+        )
         .post(
             "/api/v1/sites/{site}/items",
             Access::Site(BOOK_WRITERS),
             post_items,
+        )
+        .get(
+            "/api/v1/sites/{site}/lots",
+            Access::Site(BOOK_READERS),
+            get_lots,
         )
         .post(
             "/api/v1/sites/{site}/packs",
@@ -111,4 +137,64 @@ async fn post_packs(
         .put_packs(site.id, rows, Progress::default(), Some(audit))
         .await?;
     Ok(Json(Written { written }))
+}
+
+fn bad_param(e: ParamError) -> ApiError {
+    ApiError::BadRequest(e.to_string())
+}
+
+/// Reads a page of the site's zones by code: `limit` (1 to 1,000, default 200), `after`
+/// (the `next` of the previous page). Answers `{"zones": [...], "next": cursor|null}`
+/// with an ETag (304 when `If-None-Match` names it).
+async fn get_zones(
+    State(state): State<AppState>,
+    CurrentSite(site): CurrentSite,
+    headers: HeaderMap,
+    Params(p): Params<ZoneParams>,
+) -> Result<Response, ApiError> {
+    let (query, limit) = p.query().map_err(bad_param)?;
+    let rows = state.store.zone_rows(site.id, query).await?;
+    etag::json(&headers, &read::zone_page(rows, limit).named("zones"))
+}
+
+/// Reads a page of the site's bins by code, each as `POST bins` takes it: filters
+/// `zone`, `aisle`; paging `limit`, `after`. Answers `{"bins": [...], "next": …}`, ETag.
+async fn get_bins(
+    State(state): State<AppState>,
+    CurrentSite(site): CurrentSite,
+    headers: HeaderMap,
+    Params(p): Params<BinParams>,
+) -> Result<Response, ApiError> {
+    let (query, limit) = p.query().map_err(bad_param)?;
+    let rows = state.store.bin_rows(site.id, query).await?;
+    etag::json(&headers, &read::bin_page(rows, limit).named("bins"))
+}
+
+/// Reads a page of the site's items by SKU, each as `POST items` takes it with its
+/// packs, plus its read-only `class`: filters `sku` (exact), `sku_prefix`, `group`,
+/// `class` (`A`, `B`, `C` or `none`); paging `limit`, `after`. Answers
+/// `{"items": [...], "next": …}`, ETag.
+async fn get_items(
+    State(state): State<AppState>,
+    CurrentSite(site): CurrentSite,
+    headers: HeaderMap,
+    Params(p): Params<ItemParams>,
+) -> Result<Response, ApiError> {
+    let (query, limit) = p.query().map_err(bad_param)?;
+    let rows = state.store.item_rows(site.id, query).await?;
+    etag::json(&headers, &read::item_page(rows, limit).named("items"))
+}
+
+/// Reads a page of the site's lots (made by the movements that name them) by SKU, then
+/// lot code: filter `sku`; paging `limit`, `after`. Answers `{"lots": [...], "next": …}`,
+/// ETag.
+async fn get_lots(
+    State(state): State<AppState>,
+    CurrentSite(site): CurrentSite,
+    headers: HeaderMap,
+    Params(p): Params<LotParams>,
+) -> Result<Response, ApiError> {
+    let (query, limit) = p.query().map_err(bad_param)?;
+    let rows = state.store.lot_rows(site.id, query).await?;
+    etag::json(&headers, &read::lot_page(rows, limit).named("lots"))
 }

@@ -32,8 +32,14 @@ pub struct ResultQuery {
     pub state: ResultState,
     pub bin: Option<String>,
     pub sku: Option<String>,
+    /// Only this lot (empty: keys without a lot).
+    pub lot: Option<String>,
     /// A count pass by id or uid.
     pub pass: Option<String>,
+    /// Results counted at or after this instant.
+    pub from: Option<Timestamp>,
+    /// Results counted at or before this instant.
+    pub to: Option<Timestamp>,
     pub limit: usize,
     /// Results with an id greater than this.
     pub after: i64,

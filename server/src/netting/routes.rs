@@ -10,13 +10,17 @@ use crate::error::ApiError;
 use crate::http::access::{
     Access, BOOK_READERS, COUNT_POLICY, ClientAddress, CurrentUser, RouteTable,
 };
+use crate::http::etag;
 use crate::http::extract::{CurrentSite, Params};
 use crate::netting::results::{
     MAX_RESULTS_PAGE, ResultDetail, ResultPage, ResultQuery, ResultState,
 };
+use crate::time::Timestamp;
 use axum::Json;
 use axum::extract::{Path, State};
-use serde::Deserialize;
+use axum::http::HeaderMap;
+use axum::response::Response;
+use serde::{Deserialize, Serialize};
 
 /// Results one page returns unless asked for fewer.
 const DEFAULT_RESULTS_PAGE: usize = 200;
@@ -43,6 +47,7 @@ pub fn routes(t: &mut RouteTable) {
         Access::Site(BOOK_READERS),
         get_result,
     )
+    .get(path!("/count-policy"), READ_POLICY, get_policy)
     .get(path!("/netting/settings"), READ_POLICY, get_settings)
     .put(path!("/netting/settings"), SET_POLICY, put_settings)
     .get(path!("/netting/sources"), READ_POLICY, get_sources)
@@ -65,12 +70,29 @@ struct ResultParams {
     state: Option<ResultState>,
     bin: Option<String>,
     sku: Option<String>,
+    lot: Option<String>,
     pass: Option<String>,
+    from: Option<String>,
+    to: Option<String>,
     limit: Option<usize>,
     #[serde(default)]
     after: i64,
 }
 
+/// Reads an instant parameter (RFC 3339, within the input bounds), naming it when bad.
+fn instant(param: &str, raw: Option<String>) -> Result<Option<Timestamp>, ApiError> {
+    raw.map(|t| {
+        crate::input::bounds::instant(&t).map_err(|e| ApiError::BadRequest(format!("{param}: {e}")))
+    })
+    .transpose()
+}
+
+/// Lists a site's count results by id, `limit` (1 to 1,000, default 200) after result
+/// `after` (the previous page's `next`). `state`: `open` (the default: current results
+/// out of tolerance with no review yet — what waits for someone), `current` (every
+/// result not superseded by a re-net) or `all` (superseded rows too). Filters, each
+/// exact: `bin`, `sku`, `lot` (empty: keys without a lot), `pass` (id or uid); `from`
+/// and `to` (RFC 3339 instants, both inclusive) bound `counted_at`.
 async fn list_results(
     State(state): State<AppState>,
     CurrentSite(site): CurrentSite,
@@ -82,6 +104,15 @@ async fn list_results(
             "limit {limit} is out of range 1 to {MAX_RESULTS_PAGE}"
         )));
     }
+    let from = instant("from", q.from)?;
+    let to = instant("to", q.to)?;
+    if let (Some(f), Some(t)) = (from, to)
+        && f > t
+    {
+        return Err(ApiError::BadRequest(format!(
+            "from: {f} is after to ({t}); the range would hold nothing"
+        )));
+    }
     let page = state
         .store
         .count_results(
@@ -90,7 +121,10 @@ async fn list_results(
                 state: q.state.unwrap_or(ResultState::Open),
                 bin: q.bin,
                 sku: q.sku,
+                lot: q.lot,
                 pass: q.pass,
+                from,
+                to,
                 limit,
                 after: q.after,
             },
@@ -113,6 +147,30 @@ async fn get_result(
         .await?
         .map(Json)
         .ok_or_else(|| ApiError::NotFound(format!("no count result {n} at this site")))
+}
+
+/// A site's count policy in one read: each part is the body its own `PUT` takes
+/// (`netting/settings`, `netting/sources`, `netting/reason-codes`), the three forms of
+/// the count-policy page.
+#[derive(Serialize)]
+struct CountPolicy {
+    settings: NettingSettings,
+    sources: Vec<SourceTimingRow>,
+    reason_codes: Vec<ReasonCode>,
+}
+
+/// Reads the count policy, with an ETag (304 when `If-None-Match` names it).
+async fn get_policy(
+    State(state): State<AppState>,
+    CurrentSite(site): CurrentSite,
+    headers: HeaderMap,
+) -> Result<Response, ApiError> {
+    let policy = CountPolicy {
+        settings: state.store.netting_settings(site.id).await?,
+        sources: state.store.source_timings(site.id).await?,
+        reason_codes: state.store.reason_codes(site.id).await?,
+    };
+    etag::json(&headers, &policy)
 }
 
 async fn get_settings(

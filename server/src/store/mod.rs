@@ -17,6 +17,9 @@ use crate::accounts::store::AccountStore;
 use crate::accuracy::store::AccuracyStore;
 use crate::ledger::{BalanceRow, Movement};
 use crate::master::codes::{BinCode, Sku, ZoneCode};
+use crate::master::read::{
+    BinQuery, BinRow, ItemQuery, ItemRow, LotQuery, LotRow, ZoneQuery, ZoneRow,
+};
 use crate::master::{Bin, NewBin, NewItem, NewPack, NewSite, Site, SiteCode, SiteCounts, SiteId};
 use crate::planning::abc::{AbcRule, Class, Usage};
 use crate::planning::calendar::Calendar;
@@ -320,6 +323,17 @@ pub trait Store: AccountStore + AccuracyStore + ReviewStore + Send + Sync + 'sta
     async fn site_counts(&self, site: SiteId) -> Result<SiteCounts, StoreError>;
     /// Lists a site's bins (of one zone, if given) in zone, aisle, bay, level order.
     async fn bins(&self, site: SiteId, zone: Option<ZoneCode>) -> Result<Vec<Bin>, StoreError>;
+    /// Reads a site's zones by code after `query.after`, at most `query.take` of them.
+    async fn zone_rows(&self, site: SiteId, query: ZoneQuery) -> Result<Vec<ZoneRow>, StoreError>;
+    /// Reads a site's bins that pass the filters, by code after `query.after`, at most
+    /// `query.take` of them.
+    async fn bin_rows(&self, site: SiteId, query: BinQuery) -> Result<Vec<BinRow>, StoreError>;
+    /// Reads a site's items that pass the filters, each with its packs (fewest units
+    /// first) and current class, by SKU after `query.after`, at most `query.take` of them.
+    async fn item_rows(&self, site: SiteId, query: ItemQuery) -> Result<Vec<ItemRow>, StoreError>;
+    /// Reads a site's lots (of one item, if given), by SKU then lot code after
+    /// `query.after`, at most `query.take` of them.
+    async fn lot_rows(&self, site: SiteId, query: LotQuery) -> Result<Vec<LotRow>, StoreError>;
     /// Creates or updates bins (by code), creating zones as needed. All or nothing.
     /// A batch's `audit` event (if any) is written in the same transaction, with its counts.
     async fn put_bins(

@@ -180,7 +180,7 @@ pub fn cache_control(path: &str) -> String {
 }
 
 /// Tells whether an `If-None-Match` value names `etag` (weak comparison, RFC 9110 §13.1.2).
-fn matches_etag(if_none_match: &str, etag: &str) -> bool {
+pub(crate) fn matches_etag(if_none_match: &str, etag: &str) -> bool {
     let bare = |t: &str| t.trim().trim_start_matches("W/").to_owned();
     let wanted = bare(etag);
     if_none_match

@@ -6,7 +6,7 @@ use super::accounts::insert_audit;
 use super::{PgStore, col, row_opt, rows};
 use crate::accounts::audit::AuditEvent;
 use crate::accuracy::inputs::{
-    AccuracySettings, InputTarget, LeadTimes, NewPlannerInput, PlannerInput,
+    AccuracySettings, InputQuery, InputTarget, LeadTimes, NewPlannerInput, PlannerInput,
 };
 use crate::accuracy::store::{
     AItem, AccuracyStore, DailyIssue, ItemRow, PlannedTask, ResultQuery, StoredResult,
@@ -286,6 +286,58 @@ impl AccuracyStore for PgStore {
              ) x
              order by x.item_group collate \"C\", x.sku collate \"C\"",
             &[&site.0],
+        )
+        .await?
+        .into_iter()
+        .map(|r| PlannerInput {
+            sku: r.get(0),
+            group: r.get(1),
+            times: LeadTimes {
+                lead_time_days: r.get(2),
+                lead_time_sd_days: r.get(3),
+                review_days: r.get(4),
+                service_level: r.get(5),
+            },
+            updated_at: Timestamp(r.get(6)),
+            updated_by: r.get(7),
+        })
+        .collect())
+    }
+
+    async fn planner_input_rows(
+        &self,
+        site: SiteId,
+        q: InputQuery,
+    ) -> Result<Vec<PlannerInput>, StoreError> {
+        let (after_group, after_sku) = q.after.unzip();
+        let c = self.client().await?;
+        Ok(rows(
+            &c,
+            "select * from (
+                 select i.sku, ''::text as item_group, p.lead_time_days, p.lead_time_sd_days,
+                        p.review_days, p.service_level, p.updated_at, p.updated_by
+                 from planner_input p join item i on i.id = p.item_id
+                 where p.site_id = $1
+                 union all
+                 select ''::text, g.item_group, g.lead_time_days, g.lead_time_sd_days,
+                        g.review_days, g.service_level, g.updated_at, g.updated_by
+                 from planner_group_default g
+                 where g.site_id = $1
+             ) x
+             where ($2::text is null or (x.item_group = '' and x.sku = $2))
+               and ($3::text is null or x.item_group = $3)
+               and ($4::text is null or x.item_group collate \"C\" > $4
+                    or (x.item_group = $4 and x.sku collate \"C\" > $5::text))
+             order by x.item_group collate \"C\", x.sku collate \"C\"
+             limit $6",
+            &[
+                &site.0,
+                &q.sku.as_ref().map(Sku::as_str),
+                &q.group,
+                &after_group,
+                &after_sku,
+                &(q.take as i64),
+            ],
         )
         .await?
         .into_iter()

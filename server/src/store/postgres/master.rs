@@ -7,7 +7,11 @@ use super::tx::PgTx;
 use super::{PgStore, is_unique_violation, narrow, row_one, row_opt, rows};
 use crate::accounts::audit::AuditEvent;
 use crate::batch::RowError;
-use crate::master::codes::{BinCode, ZoneCode};
+use crate::master::codes::{BinCode, Sku, ZoneCode};
+use crate::master::read::{
+    BinQuery, BinRow, ClassFilter, ItemQuery, ItemRow, LotQuery, LotRow, PackRow, ZoneQuery,
+    ZoneRow,
+};
 use crate::master::{
     Bin, NewBin, NewItem, NewPack, NewSite, Side, Site, SiteCode, SiteCounts, SiteId,
 };
@@ -214,6 +218,186 @@ pub async fn bins(
         .collect()
 }
 
+/// See [`crate::store::Store::zone_rows`]: a page of a site's zones by code.
+pub async fn zone_rows(
+    store: &PgStore,
+    site: SiteId,
+    q: ZoneQuery,
+) -> Result<Vec<ZoneRow>, StoreError> {
+    let c = store.client().await?;
+    rows(
+        &c,
+        "select z.code, z.walk_seq, (select count(*) from bin b where b.zone_id = z.id)
+         from zone z
+         where z.site_id = $1 and ($2::text is null or z.code collate \"C\" > $2)
+         order by z.code collate \"C\"
+         limit $3",
+        &[&site.0, &q.after, &(q.take as i64)],
+    )
+    .await?
+    .iter()
+    .map(|r| {
+        Ok(ZoneRow {
+            code: r.try_get(0)?,
+            walk_seq: r.try_get(1)?,
+            bins: narrow(r.try_get(2)?, "bin count")?,
+        })
+    })
+    .collect()
+}
+
+/// See [`crate::store::Store::bin_rows`]: a page of a site's bins by code.
+pub async fn bin_rows(
+    store: &PgStore,
+    site: SiteId,
+    q: BinQuery,
+) -> Result<Vec<BinRow>, StoreError> {
+    let c = store.client().await?;
+    rows(
+        &c,
+        "select b.code, z.code, b.aisle, b.bay, b.level, b.side, b.walk_seq
+         from bin b join zone z on z.id = b.zone_id
+         where b.site_id = $1 and ($2::text is null or z.code = $2)
+           and ($3::bigint is null or b.aisle = $3)
+           and ($4::text is null or b.code collate \"C\" > $4)
+         order by b.code collate \"C\"
+         limit $5",
+        &[
+            &site.0,
+            &q.zone.as_ref().map(ZoneCode::as_str),
+            &q.aisle.map(i64::from),
+            &q.after,
+            &(q.take as i64),
+        ],
+    )
+    .await?
+    .iter()
+    .map(|r| {
+        Ok(BinRow {
+            code: r.try_get(0)?,
+            zone: r.try_get(1)?,
+            aisle: narrow(r.try_get(2)?, "aisle")?,
+            bay: narrow(r.try_get(3)?, "bay")?,
+            level: narrow(r.try_get(4)?, "level")?,
+            side: r.try_get(5)?,
+            walk_seq: r.try_get(6)?,
+        })
+    })
+    .collect()
+}
+
+/// See [`crate::store::Store::item_rows`]: a page of a site's items by SKU, each with its
+/// packs and current class.
+pub async fn item_rows(
+    store: &PgStore,
+    site: SiteId,
+    q: ItemQuery,
+) -> Result<Vec<ItemRow>, StoreError> {
+    let c = store.client().await?;
+    let found = rows(
+        &c,
+        "select * from (
+             select i.sku, i.description, i.base_unit, i.unit_cost_minor, i.lot_tracked,
+                    i.item_group,
+                    (select ic.class from item_class ic where ic.item_id = i.id
+                     order by ic.run_id desc limit 1) as class
+             from item i
+             where i.site_id = $1 and ($2::text is null or i.sku = $2)
+               and ($3::text is null or substr(i.sku, 1, length($3)) = $3)
+               and ($4::text is null or i.item_group = $4)
+               and ($6::text is null or i.sku collate \"C\" > $6)
+         ) x
+         where ($5::text is null or coalesce(x.class, '') = $5)
+         order by x.sku collate \"C\"
+         limit $7",
+        &[
+            &site.0,
+            &q.sku.as_ref().map(Sku::as_str),
+            &q.sku_prefix,
+            &q.group,
+            &q.class.map(ClassFilter::stored),
+            &q.after,
+            &(q.take as i64),
+        ],
+    )
+    .await?;
+    let mut items = found
+        .iter()
+        .map(|r| {
+            Ok(ItemRow {
+                sku: r.try_get(0)?,
+                description: r.try_get(1)?,
+                base_unit: r.try_get(2)?,
+                unit_cost_minor: r.try_get(3)?,
+                lot_tracked: r.try_get(4)?,
+                group: r.try_get(5)?,
+                packs: Vec::new(),
+                class: r.try_get(6)?,
+            })
+        })
+        .collect::<Result<Vec<_>, StoreError>>()?;
+    // One read for the packs of the whole page, not one per item.
+    let skus: Vec<&str> = items.iter().map(|i| i.sku.as_str()).collect();
+    let mut packs: HashMap<String, Vec<PackRow>> = HashMap::new();
+    for r in rows(
+        &c,
+        "select i.sku, p.gtin, p.level, p.units
+         from pack p join item i on i.id = p.item_id
+         where i.site_id = $1 and i.sku = any($2)
+         order by i.sku, p.units, p.gtin collate \"C\"",
+        &[&site.0, &skus],
+    )
+    .await?
+    {
+        packs.entry(r.try_get(0)?).or_default().push(PackRow {
+            gtin: r.try_get(1)?,
+            level: r.try_get(2)?,
+            units: narrow(r.try_get(3)?, "units")?,
+        });
+    }
+    for item in &mut items {
+        item.packs = packs.remove(&item.sku).unwrap_or_default();
+    }
+    Ok(items)
+}
+
+/// See [`crate::store::Store::lot_rows`]: a page of a site's lots by SKU, then lot code.
+pub async fn lot_rows(
+    store: &PgStore,
+    site: SiteId,
+    q: LotQuery,
+) -> Result<Vec<LotRow>, StoreError> {
+    let (after_sku, after_lot) = q.after.unzip();
+    let c = store.client().await?;
+    rows(
+        &c,
+        "select i.sku, l.code, l.expiry
+         from lot l join item i on i.id = l.item_id
+         where i.site_id = $1 and ($2::text is null or i.sku = $2)
+           and ($3::text is null or i.sku collate \"C\" > $3
+                or (i.sku = $3 and l.code collate \"C\" > $4::text))
+         order by i.sku collate \"C\", l.code collate \"C\"
+         limit $5",
+        &[
+            &site.0,
+            &q.sku.as_ref().map(Sku::as_str),
+            &after_sku,
+            &after_lot,
+            &(q.take as i64),
+        ],
+    )
+    .await?
+    .iter()
+    .map(|r| {
+        Ok(LotRow {
+            sku: r.try_get(0)?,
+            lot: r.try_get(1)?,
+            expiry: r.try_get(2)?,
+        })
+    })
+    .collect()
+}
+
 /// Lists, per named bin, the items with a non-zero balance there and their packs
 /// (no quantities: this is what a blind counter may be told).
 pub async fn bin_contents(
@@ -369,6 +553,10 @@ pub async fn put_items(
     audit: Option<AuditEvent>,
 ) -> Result<usize, StoreError> {
     refuse_repeats(&rows, "sku", "SKU", |r| r.sku.as_str())?;
+    let repeated = crate::master::repeated_pack_gtins(&rows);
+    if !repeated.is_empty() {
+        return Err(StoreError::Rejected(repeated));
+    }
     store
         .write_tx(WriteScope::Site(site), move |tx| {
             for r in &rows {
@@ -391,11 +579,50 @@ pub async fn put_items(
                 )?;
                 progress.tick(1);
             }
+            put_item_packs(tx, site, &rows)?;
             let written = rows.len();
             audit_in(tx, audit, serde_json::json!({"written": written}))?;
             Ok(written)
         })
         .await
+}
+
+/// Creates or updates the packs item rows name (their items are written): a GTIN that
+/// belongs to another SKU refuses the batch, naming the row and `packs[j].gtin`.
+fn put_item_packs(tx: &PgTx<'_>, site: SiteId, rows: &[NewItem]) -> Result<(), StoreError> {
+    let mut errors = Vec::new();
+    for (i, item) in rows.iter().enumerate() {
+        for (j, p) in item.packs.iter().enumerate() {
+            if let Some(owner) = tx.query_opt(
+                "select i.sku from pack p join item i on i.id = p.item_id
+                  where p.site_id = $1 and p.gtin = $2",
+                &[&site.0, &p.gtin],
+            )? {
+                let owner: String = owner.get(0);
+                if owner != item.sku.as_str() {
+                    errors.push(RowError::new(
+                        i,
+                        format!("packs[{j}].gtin"),
+                        format!("GTIN {} already belongs to SKU '{owner}'", p.gtin),
+                    ));
+                }
+            }
+        }
+    }
+    if !errors.is_empty() {
+        return Err(StoreError::Rejected(errors));
+    }
+    for item in rows {
+        for p in &item.packs {
+            tx.execute(
+                "insert into pack (site_id, item_id, gtin, level, units)
+                 select $1, id, $3::text, $4::text, $5::bigint from item where site_id = $1 and sku = $2
+                 on conflict (site_id, gtin) do update set level = excluded.level, units = excluded.units",
+                &[&site.0, &item.sku.as_str(), &p.gtin, &p.level.as_str(), &i64::from(p.units)],
+            )?;
+        }
+    }
+    Ok(())
 }
 
 /// See [`crate::store::Store::put_packs`]: a GTIN stays with the item it was first given to.

@@ -1138,12 +1138,21 @@ pub async fn count_results(
            and ($3::text is null or b.code = $3)
            and ($4::text is null or i.sku = $4)
            and ($5::text is null or p.uid = $5 or p.id::text = $5)
+           and ($6::text is null or r.lot = $6)
+           and ($7::bigint is null or r.counted_at >= $7)
+           and ($8::bigint is null or r.counted_at <= $8)
          order by r.id limit {limit}"
     );
     let c = store.client().await?;
     let st = c.prepare_cached(&sql).await?;
+    let (from, to) = (q.from.map(|t| t.0), q.to.map(|t| t.0));
     let results = c
-        .query(&st, &[&site.0, &q.after, &q.bin, &q.sku, &q.pass])
+        .query(
+            &st,
+            &[
+                &site.0, &q.after, &q.bin, &q.sku, &q.pass, &q.lot, &from, &to,
+            ],
+        )
         .await?
         .iter()
         .map(|r| map_row(r, now).map(|(row, _)| row))

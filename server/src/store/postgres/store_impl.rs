@@ -4,6 +4,9 @@
 use super::PgStore;
 use crate::accounts::audit::AuditEvent;
 use crate::master::codes::{BinCode, Sku, ZoneCode};
+use crate::master::read::{
+    BinQuery, BinRow, ItemQuery, ItemRow, LotQuery, LotRow, ZoneQuery, ZoneRow,
+};
 use crate::master::{Bin, NewBin, NewItem, NewPack, NewSite, Site, SiteCode, SiteCounts, SiteId};
 use crate::planning::abc::{AbcRule, Class, Usage};
 use crate::planning::calendar::Calendar;
@@ -100,6 +103,22 @@ impl Store for PgStore {
 
     async fn bins(&self, site: SiteId, zone: Option<ZoneCode>) -> Result<Vec<Bin>, StoreError> {
         super::master::bins(self, site, zone).await
+    }
+
+    async fn zone_rows(&self, site: SiteId, query: ZoneQuery) -> Result<Vec<ZoneRow>, StoreError> {
+        super::master::zone_rows(self, site, query).await
+    }
+
+    async fn bin_rows(&self, site: SiteId, query: BinQuery) -> Result<Vec<BinRow>, StoreError> {
+        super::master::bin_rows(self, site, query).await
+    }
+
+    async fn item_rows(&self, site: SiteId, query: ItemQuery) -> Result<Vec<ItemRow>, StoreError> {
+        super::master::item_rows(self, site, query).await
+    }
+
+    async fn lot_rows(&self, site: SiteId, query: LotQuery) -> Result<Vec<LotRow>, StoreError> {
+        super::master::lot_rows(self, site, query).await
     }
 
     async fn put_bins(

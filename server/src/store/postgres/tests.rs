@@ -7,7 +7,7 @@
 use super::PgStore;
 use crate::ledger::{MovementKind, NewMovement, RecordOutcome};
 use crate::master::codes::{BinCode, MovementUid, Sku};
-use crate::master::{BinRecord, ItemRecord, NewSite, SiteCode, SiteId};
+use crate::master::{BinRecord, ItemPackRecord, ItemRecord, NewSite, SiteCode, SiteId};
 use crate::store::{
     BalanceQuery, HistoryQuery, HistorySubject, Progress, Store, StoreError, StoreOptions,
     WriteScope,
@@ -134,6 +134,8 @@ async fn fresh(url: &str, every: i64) -> (PgStore, SiteId) {
                 unit_cost_minor: 100,
                 lot_tracked: false,
                 group: None,
+                packs: None,
+                class: None,
             }
             .validate()
             .unwrap()
@@ -471,6 +473,26 @@ async fn same_history(store: &dyn Store, site: SiteId, day: chrono::NaiveDate) {
                 unit_cost_minor: 50 + 37 * i as i64,
                 lot_tracked: false,
                 group: None,
+                packs: (i < 4).then(|| {
+                    let gtin = |level: u32| {
+                        let body = format!("{level}5012345{i:05}");
+                        let check = cairn_scan::gtin_check_digit(&body).expect("digits");
+                        format!("{body}{check}")
+                    };
+                    vec![
+                        ItemPackRecord {
+                            gtin: gtin(1),
+                            level: "case".into(),
+                            units: 12,
+                        },
+                        ItemPackRecord {
+                            gtin: gtin(0),
+                            level: "each".into(),
+                            units: 1,
+                        },
+                    ]
+                }),
+                class: None,
             }
             .validate()
             .unwrap()
@@ -669,7 +691,105 @@ async fn planning_answers(
     out.push(serde_json::to_value(pages).unwrap());
     out.push(serde_json::to_value(store.bins(site.id, None).await.unwrap()).unwrap());
     out.push(serde_json::to_value(store.site_counts(site.id).await.unwrap()).unwrap());
+    out.extend(read_back_answers(store, site.id).await);
     out.extend(accuracy_answers(store, site, day).await);
+    out
+}
+
+/// Walks every page of a read-back list; `read` reads the page after a cursor.
+async fn pages<T, F, Fut>(mut read: F) -> Vec<T>
+where
+    F: FnMut(Option<String>) -> Fut,
+    Fut: std::future::Future<Output = crate::master::read::Page<T>>,
+{
+    let mut out = Vec::new();
+    let mut after = None;
+    loop {
+        let page = read(after.take()).await;
+        out.extend(page.rows);
+        match page.next {
+            Some(n) => after = Some(n),
+            None => return out,
+        }
+    }
+}
+
+/// The read-back lists of a site (zones, bins, items with packs and classes, some
+/// filtered), each walked seven rows at a time, as JSON: the order of the mixed-case
+/// SKUs shows whether both stores compare codes byte by byte.
+async fn read_back_answers(store: &dyn Store, site: SiteId) -> Vec<serde_json::Value> {
+    use crate::master::read::{self, BinParams, ItemParams, LotParams, ZoneParams};
+    let seven = || Some("7".to_string());
+    let mut out = Vec::new();
+    let zones = pages(|after| async move {
+        let p = ZoneParams {
+            limit: seven(),
+            after,
+        };
+        let (q, limit) = p.query().unwrap();
+        read::zone_page(store.zone_rows(site, q).await.unwrap(), limit)
+    })
+    .await;
+    out.push(serde_json::to_value(zones).unwrap());
+    for zone in [None, Some("B")] {
+        let bins = pages(|after| async move {
+            let p = BinParams {
+                zone: zone.map(str::to_string),
+                limit: seven(),
+                after,
+                ..BinParams::default()
+            };
+            let (q, limit) = p.query().unwrap();
+            read::bin_page(store.bin_rows(site, q).await.unwrap(), limit)
+        })
+        .await;
+        out.push(serde_json::to_value(bins).unwrap());
+    }
+    for (prefix, class) in [
+        (None, None),
+        (Some("Sku"), None),
+        (None, Some("C")),
+        (None, Some("none")),
+    ] {
+        let items = pages(|after| async move {
+            let p = ItemParams {
+                sku_prefix: prefix.map(str::to_string),
+                class: class.map(str::to_string),
+                limit: seven(),
+                after,
+                ..ItemParams::default()
+            };
+            let (q, limit) = p.query().unwrap();
+            read::item_page(store.item_rows(site, q).await.unwrap(), limit)
+        })
+        .await;
+        out.push(serde_json::to_value(items).unwrap());
+    }
+    let every = out[3].as_array().unwrap();
+    assert_eq!(every.len(), 30, "every item, page by page");
+    assert_eq!(
+        every
+            .iter()
+            .filter(|i| i["packs"] != serde_json::json!([]))
+            .count(),
+        4
+    );
+    let (c, none) = (out[5].as_array().unwrap(), out[6].as_array().unwrap());
+    assert!(
+        !c.is_empty() && !none.is_empty(),
+        "class C and unclassified items"
+    );
+    let lots = pages(|after| async move {
+        let p = LotParams {
+            limit: seven(),
+            after,
+            ..LotParams::default()
+        };
+        let (q, limit) = p.query().unwrap();
+        read::lot_page(store.lot_rows(site, q).await.unwrap(), limit)
+    })
+    .await;
+    out.push(serde_json::to_value(lots).unwrap());
     out
 }
 
@@ -737,6 +857,27 @@ async fn accuracy_answers(
         input["updated_at"] = serde_json::Value::Null;
     }
     out.push(inputs);
+    let paged = pages(|after| async move {
+        let p = crate::accuracy::inputs::InputParams {
+            limit: Some("1".into()),
+            after,
+            ..Default::default()
+        };
+        let (q, limit) = p.query().unwrap();
+        let rows = store.planner_input_rows(site.id, q).await.unwrap();
+        crate::accuracy::inputs::input_page(rows, limit)
+    })
+    .await;
+    let mut paged = serde_json::to_value(paged).unwrap();
+    for input in paged.as_array_mut().unwrap() {
+        input["updated_at"] = serde_json::Value::Null;
+    }
+    assert_eq!(
+        paged,
+        out[out.len() - 1],
+        "paged one at a time, the same rows"
+    );
+    out.push(paged);
     let (start, end) = site.time_zone.range(day);
     let days: Vec<_> = (0..30)
         .map(|back| {

@@ -7,7 +7,7 @@
 use super::SqliteStore;
 use crate::accounts::audit::AuditEvent;
 use crate::accuracy::inputs::{
-    AccuracySettings, InputTarget, LeadTimes, NewPlannerInput, PlannerInput,
+    AccuracySettings, InputQuery, InputTarget, LeadTimes, NewPlannerInput, PlannerInput,
 };
 use crate::accuracy::store::{
     AItem, AccuracyStore, DailyIssue, ItemRow, PlannedTask, ResultQuery, StoredResult,
@@ -285,6 +285,59 @@ pub fn planner_inputs(conn: &Connection, site: SiteId) -> Result<Vec<PlannerInpu
     Ok(rows.collect::<rusqlite::Result<Vec<_>>>()?)
 }
 
+/// Reads a page of a site's planner inputs by `(group, sku)`: see
+/// [`crate::accuracy::store::AccuracyStore::planner_input_rows`].
+pub fn planner_input_rows(
+    conn: &Connection,
+    site: SiteId,
+    q: &InputQuery,
+) -> Result<Vec<PlannerInput>, StoreError> {
+    let (after_group, after_sku) = q.after.clone().unzip();
+    let mut stmt = conn.prepare_cached(
+        "select * from (
+             select i.sku as sku, '' as grp, p.lead_time_days, p.lead_time_sd_days,
+                    p.review_days, p.service_level, p.updated_at, p.updated_by
+             from planner_input p join item i on i.id = p.item_id
+             where p.site_id = ?1
+             union all
+             select '', g.item_group, g.lead_time_days, g.lead_time_sd_days, g.review_days,
+                    g.service_level, g.updated_at, g.updated_by
+             from planner_group_default g
+             where g.site_id = ?1
+         ) x
+         where (?2 is null or (x.grp = '' and x.sku = ?2))
+           and (?3 is null or x.grp = ?3)
+           and (?4 is null or x.grp > ?4 or (x.grp = ?4 and x.sku > ?5))
+         order by x.grp, x.sku
+         limit ?6",
+    )?;
+    let rows = stmt.query_map(
+        params![
+            site.0,
+            q.sku.as_ref().map(Sku::as_str),
+            q.group,
+            after_group,
+            after_sku,
+            q.take as i64
+        ],
+        |r| {
+            Ok(PlannerInput {
+                sku: r.get(0)?,
+                group: r.get(1)?,
+                times: LeadTimes {
+                    lead_time_days: r.get(2)?,
+                    lead_time_sd_days: r.get(3)?,
+                    review_days: r.get(4)?,
+                    service_level: r.get(5)?,
+                },
+                updated_at: Timestamp(r.get(6)?),
+                updated_by: r.get(7)?,
+            })
+        },
+    )?;
+    Ok(rows.collect::<rusqlite::Result<Vec<_>>>()?)
+}
+
 /// Stores planner inputs; refuses the whole batch if a row names an unknown item.
 pub fn put_planner_inputs(
     tx: &Transaction,
@@ -434,6 +487,16 @@ impl AccuracyStore for SqliteStore {
 
     async fn planner_inputs(&self, site: SiteId) -> Result<Vec<PlannerInput>, StoreError> {
         self.readers.run(move |c| planner_inputs(c, site)).await
+    }
+
+    async fn planner_input_rows(
+        &self,
+        site: SiteId,
+        query: InputQuery,
+    ) -> Result<Vec<PlannerInput>, StoreError> {
+        self.readers
+            .run(move |c| planner_input_rows(c, site, &query))
+            .await
     }
 
     async fn put_planner_inputs(

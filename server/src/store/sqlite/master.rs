@@ -1,7 +1,11 @@
 //! SQL for master data: sites, zones, bins, items and packs.
 
 use crate::batch::RowError;
-use crate::master::codes::{BinCode, ZoneCode};
+use crate::master::codes::{BinCode, Sku, ZoneCode};
+use crate::master::read::{
+    BinQuery, BinRow, ClassFilter, ItemQuery, ItemRow, LotQuery, LotRow, PackRow, ZoneQuery,
+    ZoneRow,
+};
 use crate::master::{
     Bin, NewBin, NewItem, NewPack, NewSite, Side, Site, SiteCode, SiteCounts, SiteId,
 };
@@ -155,6 +159,162 @@ pub fn bins(
     Ok(out)
 }
 
+/// Reads a page of a site's zones by code (see [`crate::store::Store::zone_rows`]).
+pub fn zone_rows(
+    conn: &Connection,
+    site: SiteId,
+    q: &ZoneQuery,
+) -> Result<Vec<ZoneRow>, StoreError> {
+    let mut stmt = conn.prepare_cached(
+        "select z.code, z.walk_seq, (select count(*) from bin b where b.zone_id = z.id)
+         from zone z
+         where z.site_id = ?1 and (?2 is null or z.code > ?2)
+         order by z.code
+         limit ?3",
+    )?;
+    let rows = stmt.query_map(params![site.0, q.after, q.take as i64], |r| {
+        Ok(ZoneRow {
+            code: r.get(0)?,
+            walk_seq: r.get(1)?,
+            bins: r.get(2)?,
+        })
+    })?;
+    Ok(rows.collect::<rusqlite::Result<Vec<_>>>()?)
+}
+
+/// Reads a page of a site's bins by code (see [`crate::store::Store::bin_rows`]).
+pub fn bin_rows(conn: &Connection, site: SiteId, q: &BinQuery) -> Result<Vec<BinRow>, StoreError> {
+    let mut stmt = conn.prepare_cached(
+        "select b.code, z.code, b.aisle, b.bay, b.level, b.side, b.walk_seq
+         from bin b join zone z on z.id = b.zone_id
+         where b.site_id = ?1 and (?2 is null or z.code = ?2) and (?3 is null or b.aisle = ?3)
+           and (?4 is null or b.code > ?4)
+         order by b.code
+         limit ?5",
+    )?;
+    let rows = stmt.query_map(
+        params![
+            site.0,
+            q.zone.as_ref().map(ZoneCode::as_str),
+            q.aisle,
+            q.after,
+            q.take as i64
+        ],
+        |r| {
+            Ok(BinRow {
+                code: r.get(0)?,
+                zone: r.get(1)?,
+                aisle: r.get(2)?,
+                bay: r.get(3)?,
+                level: r.get(4)?,
+                side: r.get(5)?,
+                walk_seq: r.get(6)?,
+            })
+        },
+    )?;
+    Ok(rows.collect::<rusqlite::Result<Vec<_>>>()?)
+}
+
+/// Reads a page of a site's items by SKU, each with its packs and current class (see
+/// [`crate::store::Store::item_rows`]).
+pub fn item_rows(
+    conn: &Connection,
+    site: SiteId,
+    q: &ItemQuery,
+) -> Result<Vec<ItemRow>, StoreError> {
+    let mut stmt = conn.prepare_cached(
+        "select * from (
+             select i.id, i.sku, i.description, i.base_unit, i.unit_cost_minor, i.lot_tracked,
+                    i.item_group,
+                    (select c.class from item_class c where c.item_id = i.id
+                     order by c.run_id desc limit 1) as class
+             from item i
+             where i.site_id = ?1 and (?2 is null or i.sku = ?2)
+               and (?3 is null or substr(i.sku, 1, length(?3)) = ?3)
+               and (?4 is null or i.item_group = ?4)
+               and (?6 is null or i.sku > ?6)
+         ) x
+         where (?5 is null or coalesce(x.class, '') = ?5)
+         order by x.sku
+         limit ?7",
+    )?;
+    let found = stmt
+        .query_map(
+            params![
+                site.0,
+                q.sku.as_ref().map(Sku::as_str),
+                q.sku_prefix,
+                q.group,
+                q.class.map(ClassFilter::stored),
+                q.after,
+                q.take as i64
+            ],
+            |r| {
+                Ok((
+                    r.get::<_, i64>(0)?,
+                    ItemRow {
+                        sku: r.get(1)?,
+                        description: r.get(2)?,
+                        base_unit: r.get(3)?,
+                        unit_cost_minor: r.get(4)?,
+                        lot_tracked: r.get(5)?,
+                        group: r.get(6)?,
+                        packs: Vec::new(),
+                        class: r.get(7)?,
+                    },
+                ))
+            },
+        )?
+        .collect::<rusqlite::Result<Vec<_>>>()?;
+    let mut packs = conn.prepare_cached(
+        "select gtin, level, units from pack where item_id = ?1 order by units, gtin",
+    )?;
+    let mut out = Vec::with_capacity(found.len());
+    for (id, mut item) in found {
+        item.packs = packs
+            .query_map([id], |r| {
+                Ok(PackRow {
+                    gtin: r.get(0)?,
+                    level: r.get(1)?,
+                    units: r.get(2)?,
+                })
+            })?
+            .collect::<rusqlite::Result<Vec<_>>>()?;
+        out.push(item);
+    }
+    Ok(out)
+}
+
+/// Reads a page of a site's lots by SKU, then lot code (see [`crate::store::Store::lot_rows`]).
+pub fn lot_rows(conn: &Connection, site: SiteId, q: &LotQuery) -> Result<Vec<LotRow>, StoreError> {
+    let (after_sku, after_lot) = q.after.clone().unzip();
+    let mut stmt = conn.prepare_cached(
+        "select i.sku, l.code, l.expiry
+         from lot l join item i on i.id = l.item_id
+         where i.site_id = ?1 and (?2 is null or i.sku = ?2)
+           and (?3 is null or i.sku > ?3 or (i.sku = ?3 and l.code > ?4))
+         order by i.sku, l.code
+         limit ?5",
+    )?;
+    let rows = stmt.query_map(
+        params![
+            site.0,
+            q.sku.as_ref().map(Sku::as_str),
+            after_sku,
+            after_lot,
+            q.take as i64
+        ],
+        |r| {
+            Ok(LotRow {
+                sku: r.get(0)?,
+                lot: r.get(1)?,
+                expiry: r.get(2)?,
+            })
+        },
+    )?;
+    Ok(rows.collect::<rusqlite::Result<Vec<_>>>()?)
+}
+
 /// Lists, per named bin, the items with a non-zero balance there and their packs
 /// (no quantities: this is what a blind counter may be told).
 pub fn bin_contents(
@@ -296,6 +456,10 @@ pub fn put_items(
     progress: &Progress,
 ) -> Result<usize, StoreError> {
     refuse_repeats(rows, "sku", "SKU", |r| r.sku.as_str())?;
+    let repeated = crate::master::repeated_pack_gtins(rows);
+    if !repeated.is_empty() {
+        return Err(StoreError::Rejected(repeated));
+    }
     let mut ins = tx.prepare_cached(
         "insert into item (site_id, sku, description, base_unit, unit_cost_minor, lot_tracked, item_group)
          values (?1, ?2, ?3, ?4, ?5, ?6, ?7)
@@ -315,7 +479,52 @@ pub fn put_items(
         ])?;
         progress.tick(1);
     }
+    put_item_packs(tx, site, rows)?;
     Ok(rows.len())
+}
+
+/// Creates or updates the packs item rows name (their items are written): a GTIN that
+/// belongs to another SKU refuses the batch, naming the row and `packs[j].gtin`.
+fn put_item_packs(tx: &Transaction, site: SiteId, rows: &[NewItem]) -> Result<(), StoreError> {
+    let mut owner_q = tx.prepare_cached(
+        "select i.sku from pack p join item i on i.id = p.item_id where p.site_id = ?1 and p.gtin = ?2",
+    )?;
+    let mut errors = Vec::new();
+    for (i, item) in rows.iter().enumerate() {
+        for (j, p) in item.packs.iter().enumerate() {
+            if let Some(owner) = owner_q
+                .query_row(params![site.0, p.gtin], |r| r.get::<_, String>(0))
+                .optional()?
+                && owner != item.sku.as_str()
+            {
+                errors.push(RowError::new(
+                    i,
+                    format!("packs[{j}].gtin"),
+                    format!("GTIN {} already belongs to SKU '{owner}'", p.gtin),
+                ));
+            }
+        }
+    }
+    if !errors.is_empty() {
+        return Err(StoreError::Rejected(errors));
+    }
+    let mut ins = tx.prepare_cached(
+        "insert into pack (site_id, item_id, gtin, level, units)
+         select ?1, id, ?3, ?4, ?5 from item where site_id = ?1 and sku = ?2
+         on conflict (site_id, gtin) do update set level = excluded.level, units = excluded.units",
+    )?;
+    for item in rows {
+        for p in &item.packs {
+            ins.execute(params![
+                site.0,
+                item.sku.as_str(),
+                p.gtin,
+                p.level.as_str(),
+                p.units
+            ])?;
+        }
+    }
+    Ok(())
 }
 
 /// Creates or updates packs by GTIN; a GTIN stays with the item it was first given to.

@@ -23,6 +23,9 @@ use super::{
 use crate::accounts::audit::AuditEvent;
 use crate::ledger::NewMovement;
 use crate::master::codes::{BinCode, MovementUid, Sku, ZoneCode};
+use crate::master::read::{
+    BinQuery, BinRow, ItemQuery, ItemRow, LotQuery, LotRow, ZoneQuery, ZoneRow,
+};
 use crate::master::{Bin, NewBin, NewItem, NewPack, NewSite, Site, SiteCode, SiteCounts, SiteId};
 use crate::planning::abc::{AbcRule, Class, Usage};
 use crate::planning::calendar::Calendar;
@@ -299,6 +302,30 @@ impl Store for SqliteStore {
     async fn bins(&self, site: SiteId, zone: Option<ZoneCode>) -> Result<Vec<Bin>, StoreError> {
         self.readers
             .run(move |c| master::bins(c, site, zone.as_ref()))
+            .await
+    }
+
+    async fn zone_rows(&self, site: SiteId, query: ZoneQuery) -> Result<Vec<ZoneRow>, StoreError> {
+        self.readers
+            .run(move |c| master::zone_rows(c, site, &query))
+            .await
+    }
+
+    async fn bin_rows(&self, site: SiteId, query: BinQuery) -> Result<Vec<BinRow>, StoreError> {
+        self.readers
+            .run(move |c| master::bin_rows(c, site, &query))
+            .await
+    }
+
+    async fn item_rows(&self, site: SiteId, query: ItemQuery) -> Result<Vec<ItemRow>, StoreError> {
+        self.readers
+            .run(move |c| master::item_rows(c, site, &query))
+            .await
+    }
+
+    async fn lot_rows(&self, site: SiteId, query: LotQuery) -> Result<Vec<LotRow>, StoreError> {
+        self.readers
+            .run(move |c| master::lot_rows(c, site, &query))
             .await
     }
 

@@ -52,6 +52,8 @@ fn fresh() -> (Connection, SiteId) {
                 unit_cost_minor: 100,
                 lot_tracked: false,
                 group: None,
+                packs: None,
+                class: None,
             }
             .validate()
             .unwrap()

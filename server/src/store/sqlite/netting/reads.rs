@@ -77,6 +77,18 @@ pub fn count_results(
         args.push(s.clone().into());
         sql.push_str(&format!(" and i.sku = ?{}", args.len()));
     }
+    if let Some(l) = &q.lot {
+        args.push(l.clone().into());
+        sql.push_str(&format!(" and r.lot = ?{}", args.len()));
+    }
+    if let Some(f) = q.from {
+        args.push(f.0.into());
+        sql.push_str(&format!(" and r.counted_at >= ?{}", args.len()));
+    }
+    if let Some(t) = q.to {
+        args.push(t.0.into());
+        sql.push_str(&format!(" and r.counted_at <= ?{}", args.len()));
+    }
     if let Some(p) = &q.pass {
         args.push(p.clone().into());
         let n = args.len();
