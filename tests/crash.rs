@@ -7,9 +7,8 @@ mod common;
 
 use common::cairn_with_input;
 use serde_json::{Value, json};
-use std::io::{BufRead, BufReader};
 use std::path::Path;
-use std::process::{Child, Command, Stdio};
+use std::process::Command;
 use std::sync::{Arc, Mutex};
 use std::time::Duration;
 
@@ -28,28 +27,6 @@ fn cairn(args: &[&str]) -> std::process::Output {
         .args(args)
         .output()
         .expect("the cairn binary runs")
-}
-
-/// Starts `cairn serve` on port 0 and returns the child and its base URL.
-fn serve(db: &str) -> (Child, String) {
-    let mut child = Command::new(env!("CARGO_BIN_EXE_cairn"))
-        .args(["serve", "--db", db, "--listen", "127.0.0.1:0"])
-        .stdout(Stdio::piped())
-        .stderr(Stdio::null())
-        .spawn()
-        .expect("cairn serve starts");
-    let mut line = String::new();
-    BufReader::new(child.stdout.take().unwrap())
-        .read_line(&mut line)
-        .unwrap();
-    let url = line
-        .split(" at ")
-        .nth(1)
-        .expect("the first line names the address")
-        .trim()
-        .trim_end_matches('/')
-        .to_string();
-    (child, url)
 }
 
 /// Makes the host system's user and its integration token through the CLI.
@@ -218,7 +195,7 @@ async fn a_killed_server_loses_no_acknowledged_movement() {
     let acked_lines: Arc<Mutex<Vec<String>>> = Arc::default();
     let mut phone_tokens = Vec::new();
     for round in 0..ROUNDS {
-        let (mut child, url) = serve(&db);
+        let (mut child, url) = common::serve_child(&db);
         let client = reqwest::Client::new();
         if phone_tokens.is_empty() {
             for p in 0..PHONES {
@@ -292,7 +269,7 @@ async fn a_killed_server_loses_no_acknowledged_movement() {
             t.await.unwrap();
         }
     }
-    let (mut child, _) = serve(&db);
+    let (mut child, _) = common::serve_child(&db);
     child.kill().unwrap();
     child.wait().unwrap();
     let conn = common::sqlite_file(&db);

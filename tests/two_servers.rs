@@ -19,8 +19,7 @@ use common::cairn_with_input;
 use rand::{Rng, SeedableRng};
 use rand_chacha::ChaCha8Rng;
 use serde_json::{Value, json};
-use std::io::{BufRead, BufReader};
-use std::process::{Child, Command, Stdio};
+use std::process::{Child, Command};
 use std::sync::atomic::{AtomicBool, AtomicU32, Ordering};
 use std::sync::{Arc, Mutex};
 use std::time::Duration;
@@ -134,29 +133,6 @@ fn setup(db: &str, dir: &std::path::Path) -> String {
         "inventory_manager",
     ]);
     String::from_utf8(out.stdout).unwrap().trim().to_string()
-}
-
-/// Starts `cairn serve` on port 0 and returns the child and its base URL.
-fn serve(db: &str) -> (Child, String) {
-    let mut child = Command::new(env!("CARGO_BIN_EXE_cairn"))
-        .args(["serve", "--db", db, "--listen", "127.0.0.1:0"])
-        .env("RUST_LOG", "error")
-        .stdout(Stdio::piped())
-        .stderr(Stdio::null())
-        .spawn()
-        .expect("cairn serve starts");
-    let mut line = String::new();
-    BufReader::new(child.stdout.take().unwrap())
-        .read_line(&mut line)
-        .unwrap();
-    let url = line
-        .split(" at ")
-        .nth(1)
-        .unwrap_or_else(|| panic!("the first line names the address: {line:?}"))
-        .trim()
-        .trim_end_matches('/')
-        .to_string();
-    (child, url)
 }
 
 /// One request a sender made: where it goes, with what, and the ids it carries.
@@ -432,7 +408,8 @@ async fn two_servers_one_killed_again_and_again_lose_nothing_and_count_the_same(
     let host = setup(&pg.url, dir.path());
     let started = now_ms();
     let open = opening(started - 3_600_000);
-    let servers: Vec<(Child, String)> = vec![serve(&pg.url), serve(&pg.url)];
+    let servers: Vec<(Child, String)> =
+        vec![common::serve_child(&pg.url), common::serve_child(&pg.url)];
     let urls: Urls = Arc::new(Mutex::new(servers.iter().map(|s| s.1.clone()).collect()));
     let mut children: Vec<Child> = servers.into_iter().map(|s| s.0).collect();
     let c = client();
@@ -480,7 +457,7 @@ async fn two_servers_one_killed_again_and_again_lose_nothing_and_count_the_same(
         kills += 1;
         // Down for a moment: the senders find the other server meanwhile.
         tokio::time::sleep(Duration::from_millis(rng.random_range(0..300))).await;
-        let (child, url) = serve(&pg.url);
+        let (child, url) = common::serve_child(&pg.url);
         children[victim] = child;
         urls.lock().unwrap()[victim] = url;
     }
@@ -528,7 +505,7 @@ async fn two_servers_one_killed_again_and_again_lose_nothing_and_count_the_same(
     let single = common::PgTestDb::create().unwrap();
     let dir2 = tempfile::tempdir().unwrap();
     let host2 = setup(&single.url, dir2.path());
-    let (mut child, url) = serve(&single.url);
+    let (mut child, url) = common::serve_child(&single.url);
     let phones2 = enrol(&c, &url).await;
     let one: Urls = Arc::new(Mutex::new(vec![url]));
     for req in &acked {

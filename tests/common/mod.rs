@@ -1006,3 +1006,28 @@ pub fn table_contents(db: &std::path::Path) -> std::collections::BTreeMap<String
         })
         .collect()
 }
+
+/// Starts `cairn serve` over `db` on 127.0.0.1 port 0 as a child process (one that can be
+/// killed with SIGKILL); returns it and its base URL, read from its first line.
+pub fn serve_child(db: &str) -> (std::process::Child, String) {
+    use std::io::BufRead;
+    let mut child = std::process::Command::new(env!("CARGO_BIN_EXE_cairn"))
+        .args(["serve", "--db", db, "--listen", "127.0.0.1:0"])
+        .env("RUST_LOG", "error")
+        .stdout(std::process::Stdio::piped())
+        .stderr(std::process::Stdio::null())
+        .spawn()
+        .expect("cairn serve starts");
+    let mut line = String::new();
+    std::io::BufReader::new(child.stdout.take().unwrap())
+        .read_line(&mut line)
+        .unwrap();
+    let url = line
+        .split(" at ")
+        .nth(1)
+        .unwrap_or_else(|| panic!("the first line names the address: {line:?}"))
+        .trim()
+        .trim_end_matches('/')
+        .to_string();
+    (child, url)
+}
