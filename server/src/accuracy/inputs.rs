@@ -155,6 +155,18 @@ pub struct InputQuery {
     pub take: usize,
 }
 
+impl InputQuery {
+    /// Every row of a site (the CSV export and the planner's own reads).
+    pub fn every() -> Self {
+        Self {
+            sku: None,
+            group: None,
+            after: None,
+            take: i64::MAX as usize,
+        }
+    }
+}
+
 /// Query parameters of `GET planner-inputs`: `sku`, `group`, `limit`, `after` (and
 /// `format=csv`, which gives every row and is not paged).
 #[derive(Debug, Default, Deserialize)]

@@ -270,38 +270,7 @@ impl AccuracyStore for PgStore {
 
     /// Reads a site's planner inputs: items' own rows (by SKU), then group defaults (by group).
     async fn planner_inputs(&self, site: SiteId) -> Result<Vec<PlannerInput>, StoreError> {
-        let c = self.client().await?;
-        Ok(rows(
-            &c,
-            "select * from (
-                 select i.sku, ''::text as item_group, p.lead_time_days, p.lead_time_sd_days,
-                        p.review_days, p.service_level, p.updated_at, p.updated_by
-                 from planner_input p join item i on i.id = p.item_id
-                 where p.site_id = $1
-                 union all
-                 select ''::text, g.item_group, g.lead_time_days, g.lead_time_sd_days,
-                        g.review_days, g.service_level, g.updated_at, g.updated_by
-                 from planner_group_default g
-                 where g.site_id = $1
-             ) x
-             order by x.item_group collate \"C\", x.sku collate \"C\"",
-            &[&site.0],
-        )
-        .await?
-        .into_iter()
-        .map(|r| PlannerInput {
-            sku: r.get(0),
-            group: r.get(1),
-            times: LeadTimes {
-                lead_time_days: r.get(2),
-                lead_time_sd_days: r.get(3),
-                review_days: r.get(4),
-                service_level: r.get(5),
-            },
-            updated_at: Timestamp(r.get(6)),
-            updated_by: r.get(7),
-        })
-        .collect())
+        self.planner_input_rows(site, InputQuery::every()).await
     }
 
     async fn planner_input_rows(

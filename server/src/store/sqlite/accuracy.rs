@@ -256,33 +256,7 @@ pub fn daily_issues(
 
 /// Reads a site's planner inputs: items' own rows (by SKU), then group defaults (by group).
 pub fn planner_inputs(conn: &Connection, site: SiteId) -> Result<Vec<PlannerInput>, StoreError> {
-    let mut stmt = conn.prepare_cached(
-        "select i.sku, '', p.lead_time_days, p.lead_time_sd_days, p.review_days,
-                p.service_level, p.updated_at, p.updated_by
-         from planner_input p join item i on i.id = p.item_id
-         where p.site_id = ?1
-         union all
-         select '', g.item_group, g.lead_time_days, g.lead_time_sd_days, g.review_days,
-                g.service_level, g.updated_at, g.updated_by
-         from planner_group_default g
-         where g.site_id = ?1
-         order by 2, 1",
-    )?;
-    let rows = stmt.query_map([site.0], |r| {
-        Ok(PlannerInput {
-            sku: r.get(0)?,
-            group: r.get(1)?,
-            times: LeadTimes {
-                lead_time_days: r.get(2)?,
-                lead_time_sd_days: r.get(3)?,
-                review_days: r.get(4)?,
-                service_level: r.get(5)?,
-            },
-            updated_at: Timestamp(r.get(6)?),
-            updated_by: r.get(7)?,
-        })
-    })?;
-    Ok(rows.collect::<rusqlite::Result<Vec<_>>>()?)
+    planner_input_rows(conn, site, &InputQuery::every())
 }
 
 /// Reads a page of a site's planner inputs by `(group, sku)`: see
