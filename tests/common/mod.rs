@@ -202,7 +202,7 @@ impl PgTestDb {
                 admin_sql(&admin, &format!("create database {name} template {t}"));
             }
         }
-        let url = pg_url(&admin, &name);
+        let url = cairn::store::postgres::with_database(&admin, &name);
         Some(Self { admin, name, url })
     }
 }
@@ -214,19 +214,6 @@ impl Drop for PgTestDb {
             &format!("drop database if exists {} with (force)", self.name),
         );
     }
-}
-
-/// The switch's URL with its database name replaced by `name`.
-fn pg_url(admin: &str, name: &str) -> String {
-    let (base, query) = match admin.split_once('?') {
-        Some((b, q)) => (b, format!("?{q}")),
-        None => (admin, String::new()),
-    };
-    let scheme_end = base.find("://").map_or(0, |i| i + 3);
-    let host_end = base[scheme_end..]
-        .find('/')
-        .map_or(base.len(), |i| scheme_end + i);
-    format!("{}/{name}{query}", &base[..host_end])
 }
 
 /// Runs one statement on the switch's database, on a thread of its own (callers may be

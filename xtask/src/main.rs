@@ -91,20 +91,22 @@ fn test() -> Result<()> {
     if !Path::new("/usr/bin/chromium").exists() {
         bail!("the browser tests need Debian's chromium: apt-get install -y chromium");
     }
-    run(Command::new("node")
-        .current_dir(&browser)
-        .args(["--test", "--test-concurrency=1"])
-        .env("CAIRN_BIN", root.join("target/debug/cairn"))
-        .env_remove("CAIRN_TEST_STORE"))
-    .context("the browser test suites")?;
+    // The browser suites on SQLite files, then on the PostgreSQL server when there is one.
+    let node = |store: Option<&str>| {
+        let mut cmd = Command::new("node");
+        cmd.current_dir(&browser)
+            .args(["--test", "--test-concurrency=1"])
+            .env("CAIRN_BIN", root.join("target/debug/cairn"));
+        match store {
+            Some(url) => cmd.env("CAIRN_TEST_STORE", url),
+            None => cmd.env_remove("CAIRN_TEST_STORE"),
+        };
+        cmd
+    };
+    run(&mut node(None)).context("the browser test suites")?;
     if let Some(url) = &pg {
         println!("== the browser suites on PostgreSQL (each server a database of its own)");
-        run(Command::new("node")
-            .current_dir(&browser)
-            .args(["--test", "--test-concurrency=1"])
-            .env("CAIRN_BIN", root.join("target/debug/cairn"))
-            .env("CAIRN_TEST_STORE", url))
-        .context("the browser test suites on PostgreSQL")?;
+        run(&mut node(Some(url))).context("the browser test suites on PostgreSQL")?;
     }
     Ok(())
 }
