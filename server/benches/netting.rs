@@ -398,6 +398,7 @@ fn main() {
 /// Copies the database as built onto a scratch PostgreSQL database and nets every pass
 /// there in one write transaction, as the SQLite run did.
 fn net_on_postgres(admin: &str, pristine: &Path, lines: usize, moves: usize) {
+    use cairn::loadtest::servers::cpu_seconds;
     use cairn::store::postgres::{PgStore, admin_execute, with_database};
     let rt = tokio::runtime::Builder::new_multi_thread()
         .worker_threads(2)
@@ -446,12 +447,24 @@ fn net_on_postgres(admin: &str, pristine: &Path, lines: usize, moves: usize) {
             .write_tx(
                 cairn::store::WriteScope::Site(cairn::master::SiteId(site)),
                 move |tx| {
+                    // The CPU time of the server process serving this transaction, and
+                    // of this one, tell the database's work from the waiting.
+                    let backend: i32 = tx.query_one("select pg_backend_pid()", &[])?.get(0);
+                    let cpu = || (cpu_seconds(backend as u32), cpu_seconds(std::process::id()));
+                    let before = cpu();
                     let (mut written, mut tasks) = (0, 0);
                     for p in passes {
                         let out = cairn::netting::pass::net(tx, p, None, "", now)?;
                         written += out.written.len();
                         tasks += out.tasks.len();
                     }
+                    let after = cpu();
+                    println!(
+                        "CPU while netting: PostgreSQL's server process {:.2} s, this process \
+                         {:.2} s",
+                        after.0 - before.0,
+                        after.1 - before.1
+                    );
                     Ok((written, tasks))
                 },
             )

@@ -270,7 +270,7 @@ const TICKS_PER_S: f64 = 100.0;
 
 /// User and system CPU seconds process `pid` (all its threads) has used, from
 /// `/proc/PID/stat`; 0 where that cannot be read.
-fn cpu_seconds(pid: u32) -> f64 {
+pub fn cpu_seconds(pid: u32) -> f64 {
     std::fs::read_to_string(format!("/proc/{pid}/stat"))
         .ok()
         .and_then(|s| {

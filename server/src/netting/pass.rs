@@ -81,6 +81,27 @@ pub struct OpenTask {
     pub supervisor: bool,
 }
 
+/// What netting reads of a pass before it looks at the pass's keys (see
+/// [`NettingTx::pass_read`]).
+#[derive(Debug, Clone)]
+pub struct PassRead {
+    pub facts: PassFacts,
+    pub settings: NettingSettings,
+    pub timings: Vec<SourceTimingRow>,
+    pub watermark: i64,
+    /// The counted keys: the sum of the lines not undone, and the last scan.
+    pub counted: BTreeMap<ItemLot, (i64, Timestamp)>,
+    /// Every key the bin has ever held.
+    pub bin_keys: Vec<ItemLot>,
+    /// The keys with a current result.
+    pub netted: Vec<ItemLot>,
+    /// The keys the pass's recount task re-checks, each with its first count's pass
+    /// (empty for a first count).
+    pub rechecked: Vec<(ItemLot, i64)>,
+    /// Whether recount tasks of this pass are open (not done, not withdrawn).
+    pub has_open_tasks: bool,
+}
+
 /// The queries and writes netting makes inside one transaction. Each method is one
 /// query or one write; the store implements it with its own SQL. Placing a recount is
 /// part of netting ([`RecountTx`]).
@@ -130,8 +151,35 @@ pub trait NettingTx: RecountTx + crate::ledger::WatermarkTx {
             })
             .collect()
     }
+    /// Everything netting reads of a pass before its keys; `None` when there is no such
+    /// pass. By default the queries above one after another; a store whose round trips
+    /// cost more than its queries sends them together.
+    fn pass_read(&self, pass: i64) -> Result<Option<PassRead>, StoreError> {
+        let Some(facts) = self.pass_facts(pass)? else {
+            return Ok(None);
+        };
+        Ok(Some(PassRead {
+            settings: self.netting_settings(facts.site)?,
+            timings: self.source_timings(facts.site)?,
+            watermark: self.watermark()?,
+            counted: self.counted_keys(pass)?,
+            bin_keys: self.bin_keys(facts.bin_id)?,
+            netted: self.netted_keys(pass)?,
+            rechecked: match facts.recount_task {
+                Some(task) => self.rechecked_keys(task)?,
+                None => Vec::new(),
+            },
+            has_open_tasks: !self.open_tasks_of(pass)?.is_empty(),
+            facts,
+        }))
+    }
     /// Writes a result; returns its id.
     fn insert_result(&self, r: &NewResult<'_>) -> Result<i64, StoreError>;
+    /// Writes results, in order; returns their ids in the same order. By default one
+    /// [`NettingTx::insert_result`] each.
+    fn insert_results(&self, rows: &[NewResult<'_>]) -> Result<Vec<i64>, StoreError> {
+        rows.iter().map(|r| self.insert_result(r)).collect()
+    }
     /// Marks result `old` superseded by `new`.
     fn supersede(&self, old: i64, new: i64) -> Result<(), StoreError>;
 
@@ -234,15 +282,24 @@ pub fn net<T: NettingTx + ?Sized>(
     now: Timestamp,
 ) -> Result<NetOutcome, StoreError> {
     let mut out = NetOutcome::default();
-    let Some(pass) = tx.pass_facts(pass_id)? else {
+    let Some(read) = tx.pass_read(pass_id)? else {
         return Err(StoreError::NotFound(format!("no count pass {pass_id}")));
     };
+    let PassRead {
+        facts: pass,
+        settings,
+        timings,
+        watermark,
+        counted,
+        bin_keys,
+        netted,
+        rechecked: targets,
+        has_open_tasks,
+    } = read;
     let Some(done) = pass.timing.done else {
         return Ok(out);
     };
-    let settings = tx.netting_settings(pass.site)?;
-    let sources = Sources::new(&tx.source_timings(pass.site)?);
-    let watermark = tx.watermark()?;
+    let sources = Sources::new(&timings);
     let history_from = service::history_from(&pass.timing, &sources);
     // No key's window ends after the bin's, and no movement stamped later than its
     // source's uncertainty after that can reach into it.
@@ -250,17 +307,12 @@ pub fn net<T: NettingTx + ?Sized>(
         .plus_ms(pass.timing.clock_uncertainty_ms.max(0))
         .plus_ms(sources.max_uncertainty_ms());
 
-    let counted = tx.counted_keys(pass.id)?;
     let mut keys: BTreeSet<ItemLot> = counted.keys().cloned().collect();
-    keys.extend(tx.bin_keys(pass.bin_id)?);
+    keys.extend(bin_keys);
     // Keys with a current result: only these have a result to compare with.
-    let netted: BTreeSet<ItemLot> = tx.netted_keys(pass.id)?.into_iter().collect();
+    let netted: BTreeSet<ItemLot> = netted.into_iter().collect();
     keys.extend(netted.iter().cloned());
     // The keys a recount pass re-checks, each with its first count's pass.
-    let targets = match pass.recount_task {
-        Some(task) => tx.rechecked_keys(task)?,
-        None => Vec::new(),
-    };
     keys.extend(targets.iter().map(|(k, _)| k.clone()));
     if keys.len() > service::MAX_KEYS_PER_PASS {
         return Err(anyhow::anyhow!(
@@ -292,7 +344,8 @@ pub fn net<T: NettingTx + ?Sized>(
         )
         .into());
     }
-    let mut changed = Vec::new();
+    // The keys whose netting changed: the fresh result, its status, the result it replaces.
+    let mut fresh_rows = Vec::new();
     for (key, read) in keys.into_iter().zip(reads) {
         let KeyRead {
             item,
@@ -347,14 +400,32 @@ pub fn net<T: NettingTx + ?Sized>(
         } else {
             service::status_text(fresh.status)
         };
-        let id = tx.insert_result(&NewResult {
+        fresh_rows.push((key, fresh, status, current));
+    }
+    let new_rows: Vec<NewResult<'_>> = fresh_rows
+        .iter()
+        .map(|(_, fresh, status, current)| NewResult {
             pass: &pass,
-            netted: &fresh,
+            netted: fresh,
             status,
             watermark,
             now,
             reason: if current.is_some() { reason } else { "" },
-        })?;
+        })
+        .collect();
+    let ids = tx.insert_results(&new_rows)?;
+    if ids.len() != new_rows.len() {
+        return Err(anyhow::anyhow!(
+            "the store wrote {} of {} results of count {}",
+            ids.len(),
+            new_rows.len(),
+            pass.uid
+        )
+        .into());
+    }
+    drop(new_rows);
+    let mut changed = Vec::new();
+    for ((key, fresh, _, current), id) in fresh_rows.into_iter().zip(ids) {
         if let Some(c) = &current {
             tx.supersede(c.id, id)?;
         }
@@ -383,7 +454,10 @@ pub fn net<T: NettingTx + ?Sized>(
         }
         out.tasks
             .extend(decide_recounts(tx, pass.id, &decide, &sent)?);
-        withdraw_unneeded(tx, pass.id, reason, now)?;
+        // Only a task open before this netting or sent by it can have become unneeded.
+        if has_open_tasks || !out.tasks.is_empty() {
+            withdraw_unneeded(tx, pass.id, reason, now)?;
+        }
     } else if !pass.withdrawn {
         // A recount pass decides every key its task re-checks.
         let mut by_first: BTreeMap<i64, Vec<(ItemLot, i64)>> = BTreeMap::new();

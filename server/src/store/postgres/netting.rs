@@ -4,11 +4,11 @@
 //! follows `store/sqlite/netting/` statement for statement.
 
 use super::PgStore;
-use super::tx::PgTx;
+use super::tx::{PgTx, WATERMARK_SQL, watermark_row};
 use crate::accounts::audit::{AuditEvent, AuditTx};
 use crate::master::SiteId;
 use crate::netting::pass::{
-    CurrentResult, ItemFacts, ItemLot, KeyRead, NettingTx, NewResult, OpenTask,
+    CurrentResult, ItemFacts, ItemLot, KeyRead, NettingTx, NewResult, OpenTask, PassRead,
 };
 use crate::netting::recount::{DayList, NewRecountTask, Rechecked, RecountTx, RunLoad};
 use crate::netting::results::*;
@@ -21,8 +21,9 @@ use crate::store::{StoreError, WriteScope};
 use crate::time::Timestamp;
 use crate::time::day::SiteZone;
 use deadpool_postgres::GenericClient;
-use std::collections::{BTreeMap, BTreeSet};
+use std::collections::{BTreeMap, BTreeSet, HashMap};
 use tokio_postgres::Row;
+use tokio_postgres::types::ToSql;
 
 fn json<T: serde::Serialize>(v: &T) -> Result<String, StoreError> {
     Ok(serde_json::to_string(v).map_err(anyhow::Error::from)?)
@@ -67,15 +68,80 @@ pub(super) fn settings_row(r: Option<Row>) -> Result<NettingSettings, StoreError
     Ok(s)
 }
 
-pub(super) const SETTINGS_SQL: &str =
-    "select tol_a_units, tol_a_bp, tol_a_value_minor, tol_b_units, tol_b_bp,
-            tol_b_value_minor, tol_c_units, tol_c_bp, tol_c_value_minor,
-            auto_adjust, manager_value_minor, bulk_value_minor
-     from netting_settings where site_id = $1";
+/// A site's settings row, the site named by `$site` (a parameter or a subquery).
+macro_rules! settings_sql {
+    ($site:literal) => {
+        concat!(
+            "select tol_a_units, tol_a_bp, tol_a_value_minor, tol_b_units, tol_b_bp,
+                    tol_b_value_minor, tol_c_units, tol_c_bp, tol_c_value_minor,
+                    auto_adjust, manager_value_minor, bulk_value_minor
+             from netting_settings where site_id = ",
+            $site
+        )
+    };
+}
 
-pub(super) const SOURCES_SQL: &str =
-    "select source, uncertainty_ms, posting_lag_ms from source_timing
-     where site_id = $1 order by source collate \"C\"";
+/// A site's source timings, the site named as in [`settings_sql`].
+macro_rules! sources_sql {
+    ($site:literal) => {
+        concat!(
+            "select source, uncertainty_ms, posting_lag_ms from source_timing
+             where site_id = ",
+            $site,
+            " order by source collate \"C\""
+        )
+    };
+}
+
+pub(super) const SETTINGS_SQL: &str = settings_sql!("$1");
+pub(super) const SOURCES_SQL: &str = sources_sql!("$1");
+
+const PASS_SQL: &str =
+    "select p.id, p.uid, p.site_id, p.bin_id, b.code, p.task_id, t.est_s, u.name,
+            p.first_at, p.done_at, p.uncertainty_ms,
+            case when t.recount_of is not null then t.id end,
+            coalesce(t.withdrawn_at is not null, false), p.held
+     from count_pass p join bin b on b.id = p.bin_id
+     join user_account u on u.id = p.user_id
+     left join count_task t on t.id = p.task_id
+     where p.id = $1";
+
+const COUNTED_SQL: &str = "select l.item_id, l.lot, sum(l.qty)::bigint, max(l.at) from count_line l
+     where l.pass_id = $1
+       and not exists (select 1 from count_line_undo u where u.line_uid = l.uid)
+     group by l.item_id, l.lot";
+
+const NETTED_SQL: &str =
+    "select item_id, lot from count_result where pass_id = $1 and superseded_by is null";
+
+/// The recount tasks of first count `$1` not done, not withdrawn, not counted against.
+macro_rules! open_tasks_sql {
+    ($select:literal) => {
+        concat!(
+            "select ",
+            $select,
+            " from count_result r join count_task_recheck k on k.result_id = r.id
+                 join count_task t on t.id = k.task_id
+             where r.pass_id = $1
+               and t.withdrawn_at is null and t.status <> 'done'
+               and not exists (select 1 from count_pass p
+                               where p.task_id = t.id and p.done_at is not null)"
+        )
+    };
+}
+
+/// The keys recount task `$task` re-checks, with the pass of each key's first count.
+macro_rules! rechecked_sql {
+    ($task:literal) => {
+        concat!(
+            "select distinct r.item_id, r.lot collate \"C\" as lot, r.pass_id
+             from count_task_recheck k join count_result r on r.id = k.result_id
+             where k.task_id = ",
+            $task,
+            " order by r.pass_id, r.item_id, lot"
+        )
+    };
+}
 
 pub(super) fn source_rows(rows: Vec<Row>) -> Result<Vec<SourceTimingRow>, StoreError> {
     rows.iter()
@@ -89,38 +155,100 @@ pub(super) fn source_rows(rows: Vec<Row>) -> Result<Vec<SourceTimingRow>, StoreE
         .collect()
 }
 
+fn pass_row(r: &Row) -> Result<PassFacts, StoreError> {
+    Ok(PassFacts {
+        id: r.try_get(0)?,
+        uid: r.try_get(1)?,
+        site: SiteId(r.try_get(2)?),
+        bin_id: r.try_get(3)?,
+        bin_code: r.try_get(4)?,
+        task_est_s: r.try_get(6)?,
+        user_name: r.try_get(7)?,
+        timing: CountTiming {
+            first_scan: Timestamp(r.try_get(8)?),
+            done: r.try_get::<_, Option<i64>>(9)?.map(Timestamp),
+            clock_uncertainty_ms: r.try_get(10)?,
+        },
+        recount_task: r.try_get(11)?,
+        withdrawn: r.try_get(12)?,
+        held: r.try_get(13)?,
+    })
+}
+
+fn counted_rows(rows: Vec<Row>) -> Result<BTreeMap<ItemLot, (i64, Timestamp)>, StoreError> {
+    rows.iter()
+        .map(|r| {
+            Ok((
+                (r.try_get(0)?, r.try_get(1)?),
+                (r.try_get(2)?, Timestamp(r.try_get(3)?)),
+            ))
+        })
+        .collect()
+}
+
+fn rechecked_rows(rows: Vec<Row>) -> Result<Vec<(ItemLot, i64)>, StoreError> {
+    rows.iter()
+        .map(|r| Ok(((r.try_get(0)?, r.try_get(1)?), r.try_get(2)?)))
+        .collect()
+}
+
 impl NettingTx for PgTx<'_> {
     fn pass_facts(&self, pass: i64) -> Result<Option<PassFacts>, StoreError> {
-        let Some(r) = self.query_opt(
-            "select p.id, p.uid, p.site_id, p.bin_id, b.code, p.task_id, t.est_s, u.name,
-                    p.first_at, p.done_at, p.uncertainty_ms,
-                    case when t.recount_of is not null then t.id end,
-                    coalesce(t.withdrawn_at is not null, false), p.held
-             from count_pass p join bin b on b.id = p.bin_id
-             join user_account u on u.id = p.user_id
-             left join count_task t on t.id = p.task_id
-             where p.id = $1",
-            &[&pass],
-        )?
-        else {
+        self.query_opt(PASS_SQL, &[&pass])?
+            .map(|r| pass_row(&r))
+            .transpose()
+    }
+
+    /// Nine statements sent together: one round trip a pass.
+    fn pass_read(&self, pass: i64) -> Result<Option<PassRead>, StoreError> {
+        let p: &[&(dyn ToSql + Sync)] = &[&pass];
+        let (facts, settings, timings, watermark, counted, bin_keys, netted, rechecked, open) =
+            self.together("netting: a pass's reads", async {
+                tokio::try_join!(
+                    self.rows(PASS_SQL, p),
+                    self.rows(
+                        settings_sql!("(select site_id from count_pass where id = $1)"),
+                        p
+                    ),
+                    self.rows(
+                        sources_sql!("(select site_id from count_pass where id = $1)"),
+                        p
+                    ),
+                    self.rows(WATERMARK_SQL, &[]),
+                    self.rows(COUNTED_SQL, p),
+                    self.rows(
+                        "select item_id, lot from balance
+                         where bin_id = (select bin_id from count_pass where id = $1)",
+                        p
+                    ),
+                    self.rows(NETTED_SQL, p),
+                    self.rows(
+                        rechecked_sql!(
+                            "(select t.id from count_pass p join count_task t on t.id = p.task_id
+                              where p.id = $1 and t.recount_of is not null)"
+                        ),
+                        p
+                    ),
+                    self.rows(concat!("select exists (", open_tasks_sql!("1"), ")"), p),
+                )
+            })?;
+        let Some(facts) = facts.first().map(pass_row).transpose()? else {
             return Ok(None);
         };
-        Ok(Some(PassFacts {
-            id: r.try_get(0)?,
-            uid: r.try_get(1)?,
-            site: SiteId(r.try_get(2)?),
-            bin_id: r.try_get(3)?,
-            bin_code: r.try_get(4)?,
-            task_est_s: r.try_get(6)?,
-            user_name: r.try_get(7)?,
-            timing: CountTiming {
-                first_scan: Timestamp(r.try_get(8)?),
-                done: r.try_get::<_, Option<i64>>(9)?.map(Timestamp),
-                clock_uncertainty_ms: r.try_get(10)?,
-            },
-            recount_task: r.try_get(11)?,
-            withdrawn: r.try_get(12)?,
-            held: r.try_get(13)?,
+        Ok(Some(PassRead {
+            facts,
+            settings: settings_row(settings.into_iter().next())?,
+            timings: source_rows(timings)?,
+            watermark: watermark_row(&watermark)?,
+            counted: counted_rows(counted)?,
+            bin_keys: item_lots(bin_keys)?,
+            netted: item_lots(netted)?,
+            rechecked: rechecked_rows(rechecked)?,
+            has_open_tasks: open
+                .first()
+                .map(|r| r.try_get(0))
+                .transpose()?
+                .unwrap_or(false),
         }))
     }
 
@@ -133,20 +261,7 @@ impl NettingTx for PgTx<'_> {
     }
 
     fn counted_keys(&self, pass: i64) -> Result<BTreeMap<ItemLot, (i64, Timestamp)>, StoreError> {
-        let mut counted = BTreeMap::new();
-        for r in self.query(
-            "select l.item_id, l.lot, sum(l.qty)::bigint, max(l.at) from count_line l
-             where l.pass_id = $1
-               and not exists (select 1 from count_line_undo u where u.line_uid = l.uid)
-             group by l.item_id, l.lot",
-            &[&pass],
-        )? {
-            counted.insert(
-                (r.try_get(0)?, r.try_get(1)?),
-                (r.try_get(2)?, Timestamp(r.try_get(3)?)),
-            );
-        }
-        Ok(counted)
+        counted_rows(self.query(COUNTED_SQL, &[&pass])?)
     }
 
     fn bin_keys(&self, bin: i64) -> Result<Vec<ItemLot>, StoreError> {
@@ -157,10 +272,7 @@ impl NettingTx for PgTx<'_> {
     }
 
     fn netted_keys(&self, pass: i64) -> Result<Vec<ItemLot>, StoreError> {
-        item_lots(self.query(
-            "select item_id, lot from count_result where pass_id = $1 and superseded_by is null",
-            &[&pass],
-        )?)
+        item_lots(self.query(NETTED_SQL, &[&pass])?)
     }
 
     fn current_result(
@@ -251,8 +363,8 @@ impl NettingTx for PgTx<'_> {
         .collect()
     }
 
-    /// Every key at once: three statements a pass instead of three a key, since a round
-    /// trip to the server costs more than the index look-ups it carries.
+    /// Every key at once: three statements a pass instead of three a key, sent together,
+    /// since a round trip to the server costs more than the index look-ups it carries.
     fn keys_facts(
         &self,
         bin: i64,
@@ -266,14 +378,47 @@ impl NettingTx for PgTx<'_> {
         }
         let items: Vec<i64> = keys.iter().map(|k| k.0).collect();
         let lots: Vec<&str> = keys.iter().map(|k| k.1.as_str()).collect();
+        let by_item: &[&(dyn ToSql + Sync)] = &[&items];
+        let by_key_before: &[&(dyn ToSql + Sync)] = &[&bin, &items, &lots, &before.0];
+        let by_key_within: &[&(dyn ToSql + Sync)] = &[&bin, &items, &lots, &from.0, &to.0];
+        let (item_rows, balance_rows, move_rows) =
+            self.together("netting: a bin's keys", async {
+                tokio::try_join!(
+                    self.rows(
+                        "select i.id, i.sku, i.unit_cost_minor,
+                            (select c.class from item_class c where c.item_id = i.id
+                             order by c.run_id desc limit 1)
+                     from item i where i.id = any($1)",
+                        by_item,
+                    ),
+                    // As balance_as_of, for each key (`ord` numbers them from 1).
+                    self.rows(
+                        "select k.ord,
+                            (coalesce(s.qty, 0)
+                             + coalesce((select sum(m.qty) from movement m
+                                         where m.bin_id = $1 and m.item_id = k.item
+                                           and m.lot = k.lot
+                                           and m.event_at > coalesce(s.at, -9223372036854775808)
+                                           and m.event_at <= $4), 0))::bigint
+                     from unnest($2::bigint[], $3::text[]) with ordinality as k(item, lot, ord)
+                     left join lateral (select at, qty from balance_snapshot
+                                        where bin_id = $1 and item_id = k.item and lot = k.lot
+                                          and at <= $4
+                                        order by at desc limit 1) s on true",
+                        by_key_before,
+                    ),
+                    self.rows(
+                        "select k.ord, m.id, m.uid, m.event_at, m.qty, m.kind, m.source
+                     from unnest($2::bigint[], $3::text[]) with ordinality as k(item, lot, ord)
+                     join movement m on m.bin_id = $1 and m.item_id = k.item and m.lot = k.lot
+                                    and m.event_at >= $4 and m.event_at <= $5
+                     order by k.ord, m.event_at, m.id",
+                        by_key_within,
+                    ),
+                )
+            })?;
         let mut facts: std::collections::HashMap<i64, ItemFacts> = Default::default();
-        for r in self.query(
-            "select i.id, i.sku, i.unit_cost_minor,
-                    (select c.class from item_class c where c.item_id = i.id
-                     order by c.run_id desc limit 1)
-             from item i where i.id = any($1)",
-            &[&items],
-        )? {
+        for r in item_rows {
             let class: Option<String> = r.try_get(3)?;
             facts.insert(
                 r.try_get(0)?,
@@ -284,34 +429,13 @@ impl NettingTx for PgTx<'_> {
                 },
             );
         }
-        // As balance_as_of, for each key (`ord` numbers them from 1).
         let mut balances = vec![0i64; keys.len()];
-        for r in self.query(
-            "select k.ord,
-                    (coalesce(s.qty, 0)
-                     + coalesce((select sum(m.qty) from movement m
-                                 where m.bin_id = $1 and m.item_id = k.item and m.lot = k.lot
-                                   and m.event_at > coalesce(s.at, -9223372036854775808)
-                                   and m.event_at <= $4), 0))::bigint
-             from unnest($2::bigint[], $3::text[]) with ordinality as k(item, lot, ord)
-             left join lateral (select at, qty from balance_snapshot
-                                where bin_id = $1 and item_id = k.item and lot = k.lot
-                                  and at <= $4
-                                order by at desc limit 1) s on true",
-            &[&bin, &items, &lots, &before.0],
-        )? {
+        for r in balance_rows {
             let ord: i64 = r.try_get(0)?;
             balances[ord as usize - 1] = r.try_get(1)?;
         }
         let mut moves: Vec<Vec<LedgerMove>> = vec![Vec::new(); keys.len()];
-        for r in self.query(
-            "select k.ord, m.id, m.uid, m.event_at, m.qty, m.kind, m.source
-             from unnest($2::bigint[], $3::text[]) with ordinality as k(item, lot, ord)
-             join movement m on m.bin_id = $1 and m.item_id = k.item and m.lot = k.lot
-                            and m.event_at >= $4 and m.event_at <= $5
-             order by k.ord, m.event_at, m.id",
-            &[&bin, &items, &lots, &from.0, &to.0],
-        )? {
+        for r in move_rows {
             let ord: i64 = r.try_get(0)?;
             moves[ord as usize - 1].push(LedgerMove {
                 id: r.try_get(1)?,
@@ -339,41 +463,102 @@ impl NettingTx for PgTx<'_> {
     }
 
     fn insert_result(&self, r: &NewResult<'_>) -> Result<i64, StoreError> {
-        let n = r.netted;
-        let settled = r.now > n.settles_at;
-        Ok(self
-            .query_one(
-                "insert into count_result (pass_id, site_id, bin_id, item_id, lot, class, counted,
-                     f_star, variance, status, verdict, unit_cost_minor, counted_at, window_start,
-                     window_end, evidence, watermark, settles_at, settled, renet_reason, computed_at)
-                 values ($1, $2, $3, $4, $5, $6, $7, $8, $9, $10, $11, $12, $13, $14, $15, $16, $17,
-                         $18, $19, $20, $21)
-                 returning id",
-                &[
-                    &r.pass.id,
-                    &r.pass.site.0,
-                    &r.pass.bin_id,
-                    &n.item_id,
-                    &n.lot,
-                    &n.class.map(Class::as_str),
-                    &n.counted,
-                    &n.f_star,
-                    &n.variance,
-                    &r.status,
-                    &n.verdict,
-                    &n.unit_cost_minor,
-                    &n.counted_at.0,
-                    &n.window.start.0,
-                    &n.window.end.0,
-                    &json(&n.evidence)?,
-                    &r.watermark,
-                    &n.settles_at.0,
-                    &settled,
-                    &r.reason,
-                    &r.now.0,
-                ],
-            )?
-            .try_get(0)?)
+        let ids = self.insert_results(std::slice::from_ref(r))?;
+        Ok(ids[0])
+    }
+
+    /// Every row in one statement (the columns as arrays): one round trip and one
+    /// executor run for a pass's results. The rows of one call are of one pass, each key
+    /// at most once, so the ids are matched to the rows by key.
+    fn insert_results(&self, rows: &[NewResult<'_>]) -> Result<Vec<i64>, StoreError> {
+        let Some(first) = rows.first() else {
+            return Ok(Vec::new());
+        };
+        let pass = first.pass;
+        if let Some(r) = rows.iter().find(|r| r.pass.id != pass.id) {
+            return Err(anyhow::anyhow!(
+                "results of passes {} and {} in one insert",
+                pass.id,
+                r.pass.id
+            )
+            .into());
+        }
+        let col = |f: &dyn Fn(&NewResult<'_>) -> i64| rows.iter().map(f).collect::<Vec<i64>>();
+        let items = col(&|r| r.netted.item_id);
+        let lots: Vec<&str> = rows.iter().map(|r| r.netted.lot.as_str()).collect();
+        let classes: Vec<Option<&str>> = rows
+            .iter()
+            .map(|r| r.netted.class.map(Class::as_str))
+            .collect();
+        let counted = col(&|r| r.netted.counted);
+        let f_star = col(&|r| r.netted.f_star);
+        let variance = col(&|r| r.netted.variance);
+        let status: Vec<&str> = rows.iter().map(|r| r.status).collect();
+        let verdict: Vec<&str> = rows.iter().map(|r| r.netted.verdict).collect();
+        let cost = col(&|r| r.netted.unit_cost_minor);
+        let counted_at = col(&|r| r.netted.counted_at.0);
+        let window_start = col(&|r| r.netted.window.start.0);
+        let window_end = col(&|r| r.netted.window.end.0);
+        let evidence = rows
+            .iter()
+            .map(|r| json(&r.netted.evidence))
+            .collect::<Result<Vec<_>, _>>()?;
+        let watermark = col(&|r| r.watermark);
+        let settles_at = col(&|r| r.netted.settles_at.0);
+        let settled: Vec<bool> = rows.iter().map(|r| r.now > r.netted.settles_at).collect();
+        let reason: Vec<&str> = rows.iter().map(|r| r.reason).collect();
+        let now = col(&|r| r.now.0);
+        let inserted = self.query(
+            "insert into count_result (pass_id, site_id, bin_id, item_id, lot, class, counted,
+                 f_star, variance, status, verdict, unit_cost_minor, counted_at, window_start,
+                 window_end, evidence, watermark, settles_at, settled, renet_reason, computed_at)
+             select $1, $2, $3, v.* from unnest($4::bigint[], $5::text[], $6::text[],
+                 $7::bigint[], $8::bigint[], $9::bigint[], $10::text[], $11::text[],
+                 $12::bigint[], $13::bigint[], $14::bigint[], $15::bigint[], $16::text[],
+                 $17::bigint[], $18::bigint[], $19::boolean[], $20::text[], $21::bigint[]) v
+             returning id, item_id, lot",
+            &[
+                &pass.id,
+                &pass.site.0,
+                &pass.bin_id,
+                &items,
+                &lots,
+                &classes,
+                &counted,
+                &f_star,
+                &variance,
+                &status,
+                &verdict,
+                &cost,
+                &counted_at,
+                &window_start,
+                &window_end,
+                &evidence,
+                &watermark,
+                &settles_at,
+                &settled,
+                &reason,
+                &now,
+            ],
+        )?;
+        let mut ids: HashMap<(i64, String), i64> = HashMap::with_capacity(inserted.len());
+        for r in &inserted {
+            ids.insert((r.try_get(1)?, r.try_get(2)?), r.try_get(0)?);
+        }
+        rows.iter()
+            .map(|r| {
+                let key = (r.netted.item_id, r.netted.lot.clone());
+                ids.remove(&key).ok_or_else(|| {
+                    anyhow::anyhow!(
+                        "the insert of pass {}'s results returned no id for item {} lot {:?}",
+                        pass.id,
+                        key.0,
+                        key.1
+                    )
+                    .into()
+                })
+            })
+            .collect()
     }
 
     fn supersede(&self, old: i64, new: i64) -> Result<(), StoreError> {
@@ -441,16 +626,7 @@ impl NettingTx for PgTx<'_> {
     }
 
     fn rechecked_keys(&self, task: i64) -> Result<Vec<(ItemLot, i64)>, StoreError> {
-        self.query(
-            "select distinct r.item_id, r.lot collate \"C\" as lot, r.pass_id
-             from count_task_recheck k join count_result r on r.id = k.result_id
-             where k.task_id = $1
-             order by r.pass_id, r.item_id, lot",
-            &[&task],
-        )?
-        .iter()
-        .map(|r| Ok(((r.try_get(0)?, r.try_get(1)?), r.try_get(2)?)))
-        .collect()
+        rechecked_rows(self.query(rechecked_sql!("$1"), &[&task])?)
     }
 
     fn live_tasks_of(&self, pass: i64, key: &ItemLot) -> Result<i64, StoreError> {
@@ -498,13 +674,7 @@ impl NettingTx for PgTx<'_> {
 
     fn open_tasks_of(&self, first_pass: i64) -> Result<Vec<OpenTask>, StoreError> {
         self.query(
-            "select distinct t.id, t.list_id, t.supervisor
-             from count_result r join count_task_recheck k on k.result_id = r.id
-                 join count_task t on t.id = k.task_id
-             where r.pass_id = $1
-               and t.withdrawn_at is null and t.status <> 'done'
-               and not exists (select 1 from count_pass p
-                               where p.task_id = t.id and p.done_at is not null)",
+            open_tasks_sql!("distinct t.id, t.list_id, t.supervisor"),
             &[&first_pass],
         )?
         .iter()
