@@ -72,6 +72,36 @@ pub trait LedgerTx: WatermarkTx {
     fn bin_id(&self, site: SiteId, bin: &BinCode) -> Result<Option<i64>, StoreError>;
     /// Finds an item of `site` by SKU.
     fn item_ref(&self, site: SiteId, sku: &Sku) -> Result<Option<ItemRef>, StoreError>;
+    /// Finds the bins of `site` among `codes`, by code (codes not found are absent). By
+    /// default one [`LedgerTx::bin_id`] a code; a store whose round trips cost more than
+    /// its look-ups answers them all at once.
+    fn bin_ids(
+        &self,
+        site: SiteId,
+        codes: &[&BinCode],
+    ) -> Result<HashMap<String, i64>, StoreError> {
+        let mut out = HashMap::with_capacity(codes.len());
+        for code in codes {
+            if let Some(id) = self.bin_id(site, code)? {
+                out.insert(code.as_str().to_string(), id);
+            }
+        }
+        Ok(out)
+    }
+    /// Finds the items of `site` among `skus`, by SKU, as [`LedgerTx::bin_ids`] does bins.
+    fn item_refs(
+        &self,
+        site: SiteId,
+        skus: &[&Sku],
+    ) -> Result<HashMap<String, ItemRef>, StoreError> {
+        let mut out = HashMap::with_capacity(skus.len());
+        for sku in skus {
+            if let Some(item) = self.item_ref(site, sku)? {
+                out.insert(sku.as_str().to_string(), item);
+            }
+        }
+        Ok(out)
+    }
     /// Reads a stored movement by its sender's id (ids are unique across sites).
     fn movement_by_uid(&self, uid: &MovementUid) -> Result<Option<StoredMovement>, StoreError>;
     /// Tells whether a stored movement has a reversal.
@@ -88,20 +118,6 @@ pub trait LedgerTx: WatermarkTx {
     ) -> Result<Inserted, StoreError>;
 }
 
-/// Looks a code up once per batch.
-fn cached<'a, V: Copy>(
-    seen: &mut HashMap<&'a str, Option<V>>,
-    code: &'a str,
-    look: impl FnOnce() -> Result<Option<V>, StoreError>,
-) -> Result<Option<V>, StoreError> {
-    if let Some(v) = seen.get(code) {
-        return Ok(*v);
-    }
-    let v = look()?;
-    seen.insert(code, v);
-    Ok(v)
-}
-
 /// Checks a batch against what is stored and writes it in one pass; if any row breaks a
 /// rule the batch is refused with every row's errors (`StoreError::Rejected`) and the
 /// caller's transaction must be dropped, so the batch writes all rows or none. A resend
@@ -114,8 +130,19 @@ pub fn write_batch<T: LedgerTx + ?Sized>(
     now: Timestamp,
     progress: &Progress,
 ) -> Result<(RecordOutcome, Vec<WrittenMove>), StoreError> {
-    let mut bins = HashMap::new();
-    let mut items = HashMap::new();
+    // Every bin and item the batch names, looked up once.
+    let bins = {
+        let mut codes: Vec<&BinCode> = rows.iter().map(|m| &m.bin).collect();
+        codes.sort_unstable_by_key(|c| c.as_str());
+        codes.dedup_by_key(|c| c.as_str());
+        tx.bin_ids(site, &codes)?
+    };
+    let items = {
+        let mut skus: Vec<&Sku> = rows.iter().map(|m| &m.sku).collect();
+        skus.sort_unstable_by_key(|s| s.as_str());
+        skus.dedup_by_key(|s| s.as_str());
+        tx.item_refs(site, &skus)?
+    };
     let mut seen: HashMap<&str, usize> = HashMap::with_capacity(rows.len());
     let mut ids: Vec<Option<i64>> = Vec::with_capacity(rows.len());
     let mut errors = Vec::new();
@@ -141,8 +168,8 @@ pub fn write_batch<T: LedgerTx + ?Sized>(
             );
             continue;
         }
-        let bin_id = cached(&mut bins, m.bin.as_str(), || tx.bin_id(site, &m.bin))?;
-        let item = cached(&mut items, m.sku.as_str(), || tx.item_ref(site, &m.sku))?;
+        let bin_id = bins.get(m.bin.as_str()).copied();
+        let item = items.get(m.sku.as_str()).copied();
         if bin_id.is_none() {
             err("bin", format!("unknown bin '{}' in this site", m.bin));
         }

@@ -15,6 +15,7 @@ use crate::store::{
 };
 use crate::time::Timestamp;
 use deadpool_postgres::Client;
+use std::collections::HashMap;
 use tokio_postgres::types::ToSql;
 
 const WATERMARK: &str = "select coalesce(max(id), 0) from movement";
@@ -39,6 +40,44 @@ impl LedgerTx for PgTx<'_> {
                 id: r.get(0),
                 lot_tracked: r.get(1),
             }))
+    }
+
+    fn bin_ids(
+        &self,
+        site: SiteId,
+        codes: &[&BinCode],
+    ) -> Result<HashMap<String, i64>, StoreError> {
+        let codes: Vec<&str> = codes.iter().map(|c| c.as_str()).collect();
+        self.query(
+            "select code, id from bin where site_id = $1 and code = any($2)",
+            &[&site.0, &codes],
+        )?
+        .iter()
+        .map(|r| Ok((r.try_get(0)?, r.try_get(1)?)))
+        .collect()
+    }
+
+    fn item_refs(
+        &self,
+        site: SiteId,
+        skus: &[&Sku],
+    ) -> Result<HashMap<String, ItemRef>, StoreError> {
+        let skus: Vec<&str> = skus.iter().map(|s| s.as_str()).collect();
+        self.query(
+            "select sku, id, lot_tracked from item where site_id = $1 and sku = any($2)",
+            &[&site.0, &skus],
+        )?
+        .iter()
+        .map(|r| {
+            Ok((
+                r.try_get(0)?,
+                ItemRef {
+                    id: r.try_get(1)?,
+                    lot_tracked: r.try_get(2)?,
+                },
+            ))
+        })
+        .collect()
     }
 
     fn movement_by_uid(&self, uid: &MovementUid) -> Result<Option<StoredMovement>, StoreError> {
@@ -83,12 +122,29 @@ impl LedgerTx for PgTx<'_> {
         recorded_at: Timestamp,
         reverses: Option<i64>,
     ) -> Result<Inserted, StoreError> {
+        // The movement, its lot and its balance in one statement (one round trip): the
+        // lot and the balance change only when the movement is new.
         let written = self.query_opt(
-            "insert into movement (uid, site_id, bin_id, item_id, lot, qty, kind, event_at,
-                                   recorded_at, source, doc_ref, actor, reverses)
-             values ($1, $2, $3, $4, $5, $6, $7, $8, $9, $10, $11, $12, $13)
-             on conflict (uid) do nothing
-             returning id",
+            "with m as (
+                 insert into movement (uid, site_id, bin_id, item_id, lot, qty, kind, event_at,
+                                       recorded_at, source, doc_ref, actor, reverses)
+                 values ($1, $2, $3, $4, $5, $6, $7, $8, $9, $10, $11, $12, $13)
+                 on conflict (uid) do nothing
+                 returning id),
+             l as (
+                 insert into lot (item_id, code, expiry)
+                 select $4, $5, $14 from m where $5 <> ''
+                 on conflict do nothing),
+             b as (
+                 insert into balance (bin_id, item_id, lot, qty, last_event_at, moves_since_snap)
+                 select $3, $4, $5, $6, $8, 1 from m
+                 on conflict (bin_id, item_id, lot) do update set
+                     qty = balance.qty + excluded.qty,
+                     last_event_at = greatest(balance.last_event_at, excluded.last_event_at),
+                     moves_since_snap = balance.moves_since_snap + 1
+                 returning qty, last_event_at, moves_since_snap, snap_at)
+             select m.id, b.qty, b.last_event_at, b.moves_since_snap, b.snap_at
+             from m cross join b",
             &[
                 &m.uid.as_str(),
                 &site.0,
@@ -103,42 +159,46 @@ impl LedgerTx for PgTx<'_> {
                 &m.doc_ref,
                 &m.actor,
                 &reverses,
+                &m.expiry.map(|d| d.to_string()),
             ],
         )?;
         let Some(row) = written else {
             return Ok(Inserted::Existing);
         };
-        if !m.lot.is_empty() {
-            self.execute(
-                "insert into lot (item_id, code, expiry) values ($1, $2, $3) on conflict do nothing",
-                &[&key.item_id, &m.lot, &m.expiry.map(|d| d.to_string())],
-            )?;
-        }
-        apply_to_balance(self, key, m.qty, m.event_at.0)?;
-        Ok(Inserted::New(row.get(0)))
+        let balance = BalanceAfter {
+            qty: row.try_get(1)?,
+            last_event_at: row.try_get(2)?,
+            moves_since_snap: row.try_get(3)?,
+            snap_at: row.try_get(4)?,
+        };
+        keep_snapshots(self, key, m.qty, m.event_at.0, balance)?;
+        Ok(Inserted::New(row.try_get(0)?))
     }
 }
 
-/// Adds one delta to the current balance and to every snapshot it falls under,
+/// A key's balance row just after a movement was added to it.
+struct BalanceAfter {
+    qty: i64,
+    last_event_at: i64,
+    moves_since_snap: i64,
+    snap_at: Option<i64>,
+}
+
+/// After a delta was added to a key's balance: adds it to every snapshot it falls under,
 /// and takes a new snapshot when the key has moved `snapshot_every` times.
-fn apply_to_balance(
+fn keep_snapshots(
     tx: &PgTx<'_>,
     key: &LedgerKey,
     qty: i64,
     event_at: i64,
+    after: BalanceAfter,
 ) -> Result<(), StoreError> {
-    let r = tx.query_one(
-        "insert into balance (bin_id, item_id, lot, qty, last_event_at, moves_since_snap)
-         values ($1, $2, $3, $4, $5, 1)
-         on conflict (bin_id, item_id, lot) do update set
-             qty = balance.qty + excluded.qty,
-             last_event_at = greatest(balance.last_event_at, excluded.last_event_at),
-             moves_since_snap = balance.moves_since_snap + 1
-         returning qty, last_event_at, moves_since_snap, snap_at",
-        &[&key.bin_id, &key.item_id, &key.lot, &qty, &event_at],
-    )?;
-    let (balance, last_event_at, moves, snap_at): (i64, i64, i64, Option<i64>) =
-        (r.get(0), r.get(1), r.get(2), r.get(3));
+    let BalanceAfter {
+        qty: balance,
+        last_event_at,
+        moves_since_snap: moves,
+        snap_at,
+    } = after;
     if snap_at.is_some_and(|s| event_at <= s) {
         // A late movement: every snapshot at or after its event time includes it.
         tx.execute(
