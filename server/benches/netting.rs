@@ -17,7 +17,9 @@
 //! CREATEDB): the same database, as built, is also copied onto a scratch PostgreSQL
 //! database with `cairn store copy`'s code (which vacuums and analyses the tables it
 //! filled, as autovacuum would after a bulk load) and netted there the same way, in one write transaction holding the site's lock;
-//! the scratch database is dropped after.
+//! the scratch database is dropped after. CAIRN_BENCH_PG_SET="name = value; …" sets
+//! settings of that database for the netting (e.g. `log_min_duration_statement = 0` to
+//! see each statement's time in the server's log).
 
 use cairn::master::{BinRecord, ItemRecord, NewSite, SiteCode};
 use cairn::store::Progress;
@@ -425,6 +427,17 @@ fn net_on_postgres(admin: &str, pristine: &Path, lines: usize, moves: usize) {
             "copied onto PostgreSQL in {:.1} s",
             t.elapsed().as_secs_f64()
         );
+        // CAIRN_BENCH_PG_SET="name = value; …": settings of the scratch database for the
+        // netting's connections (a plan logger, say), set after the copy.
+        for set in std::env::var("CAIRN_BENCH_PG_SET")
+            .unwrap_or_default()
+            .split(';')
+            .filter(|s| !s.trim().is_empty())
+        {
+            admin_execute(admin, &format!("alter database {name} set {set}"))
+                .await
+                .unwrap();
+        }
         let store = PgStore::open(&url, OpenOptions::default()).unwrap();
         let c = store.client().await.unwrap();
         let site: i64 = c

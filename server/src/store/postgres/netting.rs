@@ -96,14 +96,18 @@ macro_rules! sources_sql {
 pub(super) const SETTINGS_SQL: &str = settings_sql!("$1");
 pub(super) const SOURCES_SQL: &str = sources_sql!("$1");
 
-const PASS_SQL: &str =
-    "select p.id, p.uid, p.site_id, p.bin_id, b.code, p.task_id, t.est_s, u.name,
+/// A pass with its bin, counter and task. The task's fields are read by its key in
+/// subqueries (as in `rechecked_sql`): a join may keep a plan that scans every task, made
+/// while the table was small.
+const PASS_SQL: &str = "select p.id, p.uid, p.site_id, p.bin_id, b.code, p.task_id,
+            (select t.est_s from count_task t where t.id = p.task_id), u.name,
             p.first_at, p.done_at, p.uncertainty_ms,
-            case when t.recount_of is not null then t.id end,
-            coalesce(t.withdrawn_at is not null, false), p.held
+            (select t.id from count_task t where t.id = p.task_id and t.recount_of is not null),
+            coalesce((select t.withdrawn_at is not null from count_task t
+                      where t.id = p.task_id), false),
+            p.held
      from count_pass p join bin b on b.id = p.bin_id
      join user_account u on u.id = p.user_id
-     left join count_task t on t.id = p.task_id
      where p.id = $1";
 
 const COUNTED_SQL: &str = "select l.item_id, l.lot, sum(l.qty)::bigint, max(l.at) from count_line l
@@ -131,14 +135,21 @@ macro_rules! open_tasks_sql {
 }
 
 /// The keys recount task `$task` re-checks, with the pass of each key's first count.
+/// Each result is read by its key in a subquery of its own: a join would let a plan made
+/// while `count_result` was small (a prepared statement's generic plan lives as long as
+/// the connection) scan the whole table once it has grown, as it does within one long
+/// netting transaction.
 macro_rules! rechecked_sql {
     ($task:literal) => {
         concat!(
             "select distinct r.item_id, r.lot collate \"C\" as lot, r.pass_id
-             from count_task_recheck k join count_result r on r.id = k.result_id
-             where k.task_id = ",
+             from (select (select item_id from count_result where id = k.result_id) as item_id,
+                          (select lot from count_result where id = k.result_id) as lot,
+                          (select pass_id from count_result where id = k.result_id) as pass_id
+                   from count_task_recheck k
+                   where k.task_id = ",
             $task,
-            " order by r.pass_id, r.item_id, lot"
+            ") r order by r.pass_id, r.item_id, lot"
         )
     };
 }
@@ -734,10 +745,14 @@ impl RecountTx for PgTx<'_> {
 
     fn rechecked(&self, task: i64) -> Result<Vec<Rechecked>, StoreError> {
         self.query(
-            "select r.id, i.sku, r.lot from count_task_recheck k
-                 join count_result r on r.id = k.result_id join item i on i.id = r.item_id
+            // Each result by its key (see `rechecked_sql`).
+            "select k.result_id,
+                    (select i.sku from count_result r join item i on i.id = r.item_id
+                     where r.id = k.result_id),
+                    (select r.lot from count_result r where r.id = k.result_id)
+             from count_task_recheck k
              where k.task_id = $1
-             order by r.id",
+             order by k.result_id",
             &[&task],
         )?
         .iter()
