@@ -9,7 +9,7 @@ use crate::master::codes::{BinCode, MovementUid, Sku};
 use crate::netting::pass::{NettingTx, WrittenMove};
 use crate::store::error::{Progress, StoreError};
 use crate::time::Timestamp;
-use std::collections::HashMap;
+use std::collections::{HashMap, HashSet};
 
 /// Rows between progress ticks during a long batch.
 const PROGRESS_EVERY: usize = 1_000;
@@ -116,6 +116,49 @@ pub trait LedgerTx: WatermarkTx {
         recorded_at: Timestamp,
         reverses: Option<i64>,
     ) -> Result<Inserted, StoreError>;
+    /// Writes a batch's checked movements in order, as [`LedgerTx::insert_movement`]
+    /// each; returns what each did. By default one call a movement; a store whose round
+    /// trips cost more than its writes sends them together.
+    fn insert_movements(
+        &self,
+        site: SiteId,
+        rows: &[MovementWrite<'_>],
+    ) -> Result<Vec<Inserted>, StoreError> {
+        rows.iter()
+            .map(|w| {
+                let reverses = match w.reverses {
+                    Reverses::Nothing => None,
+                    Reverses::Stored(id) => Some(id),
+                    Reverses::Earlier(uid) => {
+                        Some(self.movement_by_uid(uid)?.map(|o| o.id).ok_or_else(|| {
+                            anyhow::anyhow!("movement '{uid}' to reverse was not written")
+                        })?)
+                    }
+                };
+                self.insert_movement(site, w.m, &w.key, w.recorded_at, reverses)
+            })
+            .collect()
+    }
+}
+
+/// What a checked movement reverses.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum Reverses<'a> {
+    Nothing,
+    /// A movement stored before the batch, by its ledger id.
+    Stored(i64),
+    /// A movement earlier in the same batch, by its sender's id: written (or found
+    /// already stored) just before this one.
+    Earlier(&'a MovementUid),
+}
+
+/// A checked movement of a batch, ready to write.
+#[derive(Debug, Clone)]
+pub struct MovementWrite<'a> {
+    pub m: &'a NewMovement,
+    pub key: LedgerKey,
+    pub recorded_at: Timestamp,
+    pub reverses: Reverses<'a>,
 }
 
 /// Checks a batch against what is stored and writes it in one pass; if any row breaks a
@@ -144,7 +187,10 @@ pub fn write_batch<T: LedgerTx + ?Sized>(
         tx.item_refs(site, &skus)?
     };
     let mut seen: HashMap<&str, usize> = HashMap::with_capacity(rows.len());
-    let mut ids: Vec<Option<i64>> = Vec::with_capacity(rows.len());
+    // Stored movements reversed by an earlier row of this batch.
+    let mut reversed_here: HashSet<i64> = HashSet::new();
+    // The checked rows (batch position, write), written once every row is checked.
+    let mut writes: Vec<(usize, MovementWrite<'_>)> = Vec::with_capacity(rows.len());
     let mut errors = Vec::new();
     let mut outcome = RecordOutcome::default();
     let mut written = Vec::new();
@@ -156,7 +202,6 @@ pub fn write_batch<T: LedgerTx + ?Sized>(
         )
     };
     for (i, m) in rows.iter().enumerate() {
-        ids.push(None);
         let mut err = |field: &str, msg: String| errors.push(RowError::new(i, field, msg));
         if let Some(first) = seen.insert(m.uid.as_str(), i) {
             err(
@@ -198,7 +243,7 @@ pub fn write_batch<T: LedgerTx + ?Sized>(
             lot: m.lot.clone(),
         };
         let reverses = match &m.reverses {
-            None => None,
+            None => Reverses::Nothing,
             Some(r) => {
                 let mirror = |o_qty: i64| {
                     format!(
@@ -211,27 +256,24 @@ pub fn write_batch<T: LedgerTx + ?Sized>(
                     if o.bin != m.bin || o.sku != m.sku || o.lot != m.lot || o.qty != -m.qty {
                         err("reverses", mirror(o.qty));
                     }
-                    match ids[j] {
-                        Some(id) => Some(id),
-                        None => tx.movement_by_uid(r)?.map(|o| o.id),
-                    }
+                    Reverses::Earlier(r)
                 } else if let Some(o) = tx.movement_by_uid(r)? {
                     if o.site != site || o.key != key || o.qty != -m.qty {
                         err("reverses", mirror(o.qty));
                     }
-                    if tx.is_reversed(o.id)? {
+                    if !reversed_here.insert(o.id) || tx.is_reversed(o.id)? {
                         err(
                             "reverses",
                             format!("movement '{r}' has already been reversed"),
                         );
                     }
-                    Some(o.id)
+                    Reverses::Stored(o.id)
                 } else {
                     err(
                         "reverses",
                         format!("movement '{r}' to reverse is not in the ledger"),
                     );
-                    None
+                    Reverses::Nothing
                 }
             }
         };
@@ -244,24 +286,57 @@ pub fn write_batch<T: LedgerTx + ?Sized>(
             }
             continue;
         }
-        let recorded_at = m.recorded_at.unwrap_or(now);
-        match tx.insert_movement(site, m, &key, recorded_at, reverses)? {
+        writes.push((
+            i,
+            MovementWrite {
+                m,
+                key,
+                recorded_at: m.recorded_at.unwrap_or(now),
+                reverses,
+            },
+        ));
+    }
+    if !errors.is_empty() {
+        // The rows checked before the first error are refused with the rest: say too
+        // which of them resend an id with other content.
+        for (i, w) in &writes {
+            if let Some(prev) = tx.movement_by_uid(&w.m.uid)?
+                && !prev.same_content(site, &w.key, w.m)
+            {
+                errors.push(resent_differently(*i, w.m));
+            }
+        }
+        errors.sort_by_key(|e| e.row);
+        return Err(StoreError::Rejected(errors));
+    }
+    let (places, writes): (Vec<usize>, Vec<MovementWrite<'_>>) = writes.into_iter().unzip();
+    let done = tx.insert_movements(site, &writes)?;
+    if done.len() != writes.len() {
+        return Err(anyhow::anyhow!(
+            "the store wrote {} of {} movements",
+            done.len(),
+            writes.len()
+        )
+        .into());
+    }
+    for ((i, w), inserted) in places.into_iter().zip(writes).zip(done) {
+        let m = w.m;
+        match inserted {
             Inserted::Existing => {
                 let prev = tx.movement_by_uid(&m.uid)?.ok_or_else(|| {
                     anyhow::anyhow!("movement '{}' conflicted but cannot be read", m.uid)
                 })?;
-                if !prev.same_content(site, &key, m) {
+                if !prev.same_content(site, &w.key, m) {
                     errors.push(resent_differently(i, m));
                 }
                 outcome.already_recorded += 1;
             }
             Inserted::New(id) => {
-                ids[i] = Some(id);
                 written.push(WrittenMove {
                     id,
                     uid: m.uid.as_str().to_string(),
-                    bin_id: key.bin_id,
-                    key: (key.item_id, key.lot),
+                    bin_id: w.key.bin_id,
+                    key: (w.key.item_id, w.key.lot),
                     event_at: m.event_at,
                     source: m.source.clone(),
                 });

@@ -282,7 +282,8 @@ pub struct BalanceRow {
 }
 
 pub use append::{
-    Inserted, ItemRef, LedgerKey, LedgerTx, StoredMovement, WatermarkTx, append, write_batch,
+    Inserted, ItemRef, LedgerKey, LedgerTx, MovementWrite, Reverses, StoredMovement, WatermarkTx,
+    append, write_batch,
 };
 
 #[cfg(test)]

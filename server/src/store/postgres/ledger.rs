@@ -5,8 +5,8 @@
 use super::tx::PgTx;
 use super::{PgStore, row_one, row_opt, rows};
 use crate::ledger::{
-    BalanceRow, Inserted, ItemRef, LedgerKey, LedgerTx, Movement, MovementKind, NewMovement,
-    StoredMovement,
+    BalanceRow, Inserted, ItemRef, LedgerKey, LedgerTx, Movement, MovementKind, MovementWrite,
+    NewMovement, Reverses, StoredMovement,
 };
 use crate::master::SiteId;
 use crate::master::codes::{BinCode, MovementUid, Sku};
@@ -122,106 +122,121 @@ impl LedgerTx for PgTx<'_> {
         recorded_at: Timestamp,
         reverses: Option<i64>,
     ) -> Result<Inserted, StoreError> {
-        // The movement, its lot and its balance in one statement (one round trip): the
-        // lot and the balance change only when the movement is new.
-        let written = self.query_opt(
-            "with m as (
-                 insert into movement (uid, site_id, bin_id, item_id, lot, qty, kind, event_at,
-                                       recorded_at, source, doc_ref, actor, reverses)
-                 values ($1, $2, $3, $4, $5, $6, $7, $8, $9, $10, $11, $12, $13)
-                 on conflict (uid) do nothing
-                 returning id),
-             l as (
-                 insert into lot (item_id, code, expiry)
-                 select $4, $5, $14 from m where $5 <> ''
-                 on conflict do nothing),
-             b as (
-                 insert into balance (bin_id, item_id, lot, qty, last_event_at, moves_since_snap)
-                 select $3, $4, $5, $6, $8, 1 from m
-                 on conflict (bin_id, item_id, lot) do update set
-                     qty = balance.qty + excluded.qty,
-                     last_event_at = greatest(balance.last_event_at, excluded.last_event_at),
-                     moves_since_snap = balance.moves_since_snap + 1
-                 returning qty, last_event_at, moves_since_snap, snap_at)
-             select m.id, b.qty, b.last_event_at, b.moves_since_snap, b.snap_at
-             from m cross join b",
-            &[
-                &m.uid.as_str(),
-                &site.0,
-                &key.bin_id,
-                &key.item_id,
-                &m.lot,
-                &m.qty,
-                &m.kind.as_str(),
-                &m.event_at.0,
-                &recorded_at.0,
-                &m.source,
-                &m.doc_ref,
-                &m.actor,
-                &reverses,
-                &m.expiry.map(|d| d.to_string()),
-            ],
+        let w = MovementWrite {
+            m,
+            key: key.clone(),
+            recorded_at,
+            reverses: reverses.map_or(Reverses::Nothing, Reverses::Stored),
+        };
+        let mut done = self.insert_movements(site, std::slice::from_ref(&w))?;
+        done.pop()
+            .ok_or_else(|| anyhow::anyhow!("the movement '{}' was not written", m.uid).into())
+    }
+
+    /// Each movement is one statement that needs nothing back to finish its work (see
+    /// [`WRITE_MOVEMENT`]), so a batch's statements are sent together: one round trip.
+    fn insert_movements(
+        &self,
+        site: SiteId,
+        rows: &[MovementWrite<'_>],
+    ) -> Result<Vec<Inserted>, StoreError> {
+        let expiry: Vec<Option<String>> = rows
+            .iter()
+            .map(|w| w.m.expiry.map(|d| d.to_string()))
+            .collect();
+        let answers = self.together(
+            "ledger: a batch's movements",
+            futures_util::future::try_join_all(rows.iter().zip(&expiry).map(|(w, expiry)| {
+                let (m, key) = (w.m, &w.key);
+                let (reverses, reverses_uid) = match w.reverses {
+                    Reverses::Nothing => (None, None),
+                    Reverses::Stored(id) => (Some(id), None),
+                    Reverses::Earlier(uid) => (None, Some(uid.as_str())),
+                };
+                async move {
+                    self.rows(
+                        WRITE_MOVEMENT,
+                        &[
+                            &m.uid.as_str(),
+                            &site.0,
+                            &key.bin_id,
+                            &key.item_id,
+                            &m.lot,
+                            &m.qty,
+                            &m.kind.as_str(),
+                            &m.event_at.0,
+                            &w.recorded_at.0,
+                            &m.source,
+                            &m.doc_ref,
+                            &m.actor,
+                            &reverses,
+                            &reverses_uid,
+                            expiry,
+                            &self.snapshot_every,
+                        ],
+                    )
+                    .await
+                }
+            })),
         )?;
-        let Some(row) = written else {
-            return Ok(Inserted::Existing);
-        };
-        let balance = BalanceAfter {
-            qty: row.try_get(1)?,
-            last_event_at: row.try_get(2)?,
-            moves_since_snap: row.try_get(3)?,
-            snap_at: row.try_get(4)?,
-        };
-        keep_snapshots(self, key, m.qty, m.event_at.0, balance)?;
-        Ok(Inserted::New(row.try_get(0)?))
+        answers
+            .iter()
+            .map(|rows| match rows.first() {
+                Some(r) => Ok(Inserted::New(r.try_get(0)?)),
+                None => Ok(Inserted::Existing),
+            })
+            .collect()
     }
 }
 
-/// A key's balance row just after a movement was added to it.
-struct BalanceAfter {
-    qty: i64,
-    last_event_at: i64,
-    moves_since_snap: i64,
-    snap_at: Option<i64>,
-}
-
-/// After a delta was added to a key's balance: adds it to every snapshot it falls under,
-/// and takes a new snapshot when the key has moved `snapshot_every` times.
-fn keep_snapshots(
-    tx: &PgTx<'_>,
-    key: &LedgerKey,
-    qty: i64,
-    event_at: i64,
-    after: BalanceAfter,
-) -> Result<(), StoreError> {
-    let BalanceAfter {
-        qty: balance,
-        last_event_at,
-        moves_since_snap: moves,
-        snap_at,
-    } = after;
-    if snap_at.is_some_and(|s| event_at <= s) {
-        // A late movement: every snapshot at or after its event time includes it.
-        tx.execute(
-            "update balance_snapshot set qty = qty + $4
-             where bin_id = $1 and item_id = $2 and lot = $3 and at >= $5",
-            &[&key.bin_id, &key.item_id, &key.lot, &qty, &event_at],
-        )?;
-    }
-    if moves >= tx.snapshot_every {
-        // Every delta of this key has event_at <= last_event_at, so the balance is the snapshot.
-        tx.execute(
-            "insert into balance_snapshot (bin_id, item_id, lot, at, qty) values ($1, $2, $3, $4, $5)
-             on conflict (bin_id, item_id, lot, at) do update set qty = excluded.qty",
-            &[&key.bin_id, &key.item_id, &key.lot, &last_event_at, &balance],
-        )?;
-        tx.execute(
-            "update balance set moves_since_snap = 0, snap_at = $4
-              where bin_id = $1 and item_id = $2 and lot = $3",
-            &[&key.bin_id, &key.item_id, &key.lot, &last_event_at],
-        )?;
-    }
-    Ok(())
-}
+/// One movement with everything it changes, unless its id is stored already: the
+/// movement; its lot; every balance snapshot at or after its event time (a late
+/// movement); the key's balance; and, when the key has moved `$16` times since its last
+/// snapshot, a new snapshot of the balance at the key's latest event time (every delta of
+/// the key has an event time at or before it, so the balance is the snapshot). A
+/// snapshot already at that time is at or after this movement's event time, so `late`
+/// has brought it to the same balance: the new one is then left out (`do nothing`; the
+/// statement may not change that row twice). The store's SQLite code makes the same
+/// changes a statement each. A reversal names its
+/// original by ledger id (`$13`) or, for one earlier in the same batch, by sender's id
+/// (`$14`, written by an earlier statement).
+const WRITE_MOVEMENT: &str = "with m as (
+         insert into movement (uid, site_id, bin_id, item_id, lot, qty, kind, event_at,
+                               recorded_at, source, doc_ref, actor, reverses)
+         values ($1, $2, $3, $4, $5, $6, $7, $8, $9, $10, $11, $12,
+                 coalesce($13::bigint,
+                          (select id from movement where uid = $14::text)))
+         on conflict (uid) do nothing
+         returning id),
+     l as (
+         insert into lot (item_id, code, expiry)
+         select $4, $5, $15::text from m where $5 <> ''
+         on conflict do nothing),
+     late as (
+         update balance_snapshot set qty = qty + $6
+         where bin_id = $3 and item_id = $4 and lot = $5 and at >= $8
+           and exists (select 1 from m)),
+     b as (
+         insert into balance (bin_id, item_id, lot, qty, last_event_at, moves_since_snap,
+                              snap_at)
+         select $3, $4, $5, $6, $8,
+                case when 1 >= $16::bigint then 0 else 1 end,
+                case when 1 >= $16::bigint then $8 end
+         from m
+         on conflict (bin_id, item_id, lot) do update set
+             qty = balance.qty + excluded.qty,
+             last_event_at = greatest(balance.last_event_at, excluded.last_event_at),
+             moves_since_snap = case when balance.moves_since_snap + 1 >= $16::bigint then 0
+                                     else balance.moves_since_snap + 1 end,
+             snap_at = case when balance.moves_since_snap + 1 >= $16::bigint
+                            then greatest(balance.last_event_at, excluded.last_event_at)
+                            else balance.snap_at end
+         returning qty, last_event_at, moves_since_snap),
+     s as (
+         insert into balance_snapshot (bin_id, item_id, lot, at, qty)
+         select $3, $4, $5, b.last_event_at, b.qty from b where b.moves_since_snap = 0
+         on conflict (bin_id, item_id, lot, at) do nothing)
+     select id from m";
 
 /// Returns the ledger's high-water mark on a read connection.
 pub async fn watermark(c: &Client) -> Result<i64, StoreError> {
