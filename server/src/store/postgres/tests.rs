@@ -319,6 +319,36 @@ async fn a_resent_batch_changes_nothing_and_a_reversal_happens_once() {
     );
     assert_eq!(balance(&store, site, 0, 0, None).await, 0);
 
+    // Within one batch: a row may reverse an earlier row; two rows may not reverse one
+    // stored movement.
+    let mut back = mv("in2", 1, 1, -5, 60);
+    back.reverses = Some(MovementUid::parse("in1").unwrap());
+    write(&store, site, vec![mv("in1", 1, 1, 5, 55), back])
+        .await
+        .unwrap();
+    assert_eq!(balance(&store, site, 1, 1, None).await, 4 + 5 - 5);
+    let c = store.client().await.unwrap();
+    let reversed_by: i64 = c
+        .query_one(
+            "select count(*) from movement r join movement o on o.id = r.reverses
+             where r.uid = 'in2' and o.uid = 'in1'",
+            &[],
+        )
+        .await
+        .unwrap()
+        .get(0);
+    assert_eq!(reversed_by, 1);
+    let (mut a, mut b) = (mv("st2", 1, 1, -4, 70), mv("st3", 1, 1, -4, 71));
+    a.reverses = Some(MovementUid::parse("r2").unwrap());
+    b.reverses = Some(MovementUid::parse("r2").unwrap());
+    let err = write(&store, site, vec![a, b]).await.unwrap_err();
+    assert!(
+        matches!(err, StoreError::Rejected(ref r) if r.len() == 1 && r[0].row == 1
+            && r[0].message.contains("already been reversed")),
+        "{err:?}"
+    );
+    assert_eq!(balance(&store, site, 1, 1, None).await, 4);
+
     // A batch with one bad row writes nothing.
     let mut bad = mv("b2", 0, 0, 3, 50);
     bad.bin = BinCode::parse("Z-99-99-9").unwrap();

@@ -250,6 +250,33 @@ fn a_reversal_must_mirror_the_original_and_happen_once() {
         "{err:?}"
     );
     assert_eq!(current(&conn, &key(&conn, 0, 0)), 0);
+
+    // Within one batch: a row may reverse an earlier row; two rows may not reverse one
+    // stored movement.
+    let mut back = mv("in2", 1, 1, -5, 50);
+    back.reverses = Some(MovementUid::parse("in1").unwrap());
+    write(&mut conn, site, &[mv("in1", 1, 1, 5, 40), back], 256).unwrap();
+    assert_eq!(current(&conn, &key(&conn, 1, 1)), 0);
+    let reversed_by: i64 = conn
+        .query_row(
+            "select count(*) from movement r join movement o on o.id = r.reverses
+             where r.uid = 'in2' and o.uid = 'in1'",
+            [],
+            |r| r.get(0),
+        )
+        .unwrap();
+    assert_eq!(reversed_by, 1);
+    write(&mut conn, site, &[mv("st1", 0, 1, 4, 60)], 256).unwrap();
+    let (mut a, mut b) = (mv("st2", 0, 1, -4, 70), mv("st3", 0, 1, -4, 71));
+    a.reverses = Some(MovementUid::parse("st1").unwrap());
+    b.reverses = Some(MovementUid::parse("st1").unwrap());
+    let err = write(&mut conn, site, &[a, b], 256).unwrap_err();
+    assert!(
+        matches!(err, StoreError::Rejected(ref r) if r.len() == 1 && r[0].row == 1
+            && r[0].message.contains("already been reversed")),
+        "{err:?}"
+    );
+    assert_eq!(current(&conn, &key(&conn, 0, 1)), 4);
 }
 
 #[tokio::test]
