@@ -8,6 +8,7 @@ pub mod extract;
 pub mod headers;
 pub mod nav;
 pub mod observe;
+pub mod openapi;
 pub mod pages;
 pub mod serve;
 
@@ -23,7 +24,8 @@ pub fn route_table() -> RouteTable {
     t.get("/healthz", Access::Public, observe::healthz)
         .get("/readyz", Access::Public, observe::readyz)
         .get("/metrics", Access::Public, observe::metrics)
-        .get("/static/cairn.css", Access::Public, stylesheet);
+        .get("/static/cairn.css", Access::Public, stylesheet)
+        .get(openapi::DOCUMENT_PATH, Access::Public, openapi::serve);
     pages::routes(&mut t);
     crate::accounts::routes::routes(&mut t);
     crate::accounts::admin::routes(&mut t);
