@@ -174,7 +174,7 @@ impl MovementRecord {
         }
         if self.qty == 0 {
             errs.push(FieldError::new("qty", "quantity must not be 0"));
-        } else if self.qty.abs() > MAX_ABS_QTY {
+        } else if self.qty.unsigned_abs() > MAX_ABS_QTY.unsigned_abs() {
             errs.push(FieldError::new(
                 "qty",
                 format!("quantity {} is beyond ±{MAX_ABS_QTY}", self.qty),
@@ -323,6 +323,28 @@ mod tests {
             .unwrap_err();
         assert_eq!(errs[0].field, "qty");
         assert!(errs[0].message.contains("negative"), "{}", errs[0].message);
+    }
+
+    #[test]
+    fn the_most_negative_quantity_is_refused_not_overflowed() {
+        // i64::MIN has no positive counterpart: its absolute value overflowed (a panic
+        // in a debug build, a wrapped negative that passed the bound in a release one).
+        for qty in [i64::MIN, i64::MIN + 1, -MAX_ABS_QTY - 1, MAX_ABS_QTY + 1] {
+            let errs = rec(qty, "adjustment", "2026-06-01T10:00:00Z")
+                .validate(now(), "api")
+                .unwrap_err();
+            assert_eq!(errs[0].field, "qty", "{qty}");
+            assert!(
+                errs[0].message.contains("beyond"),
+                "{qty}: {}",
+                errs[0].message
+            );
+        }
+        assert!(
+            rec(-MAX_ABS_QTY, "adjustment", "2026-06-01T10:00:00Z")
+                .validate(now(), "api")
+                .is_ok()
+        );
     }
 
     #[test]

@@ -173,7 +173,7 @@ pub fn path_param(name: &str) -> (&'static str, Value) {
         ),
         "day" => (
             "A local day of the site, `YYYY-MM-DD`.",
-            json!({ "type": "string", "format": "date" }),
+            json!({ "type": "string", "format": "date", "examples": ["2026-03-02"] }),
         ),
         "id" => (
             "A count result's id.",
@@ -238,11 +238,12 @@ const BATCH: &[(u16, &str)] = &[(
 const BATCH_409: &[(u16, &str)] = &[
     (
         409,
-        "A movement `id` already in the ledger with other content, or another conflict.",
+        "The batch conflicts with what the ledger holds (the text says which).",
     ),
     (
         422,
-        "The batch was refused whole: `rows` names each element (`index`) and field at fault.",
+        "The batch was refused whole: `rows` names each element (`index`) and field at fault; \
+         a movement `id` already in the ledger with other content is refused here, on `id`.",
     ),
 ];
 const CONFLICT: &[(u16, &str)] = &[(
@@ -420,8 +421,9 @@ fn site_op(method: &str, tail: &str, s: &mut Schemas) -> Option<Op> {
         )
         .says("The adjustments Cairn posted (approved or automatic), for the host to apply. \
                Keep the last `next` and send it as `after` to read only what is new.")
-        .q("after", "A cursor: the `next` of the previous page (a ledger `seq`).", string())
-        .q("limit", "Most rows on the page.", json!({ "type": "integer", "minimum": 1 }))
+        .q("after", "A cursor: the `next` of the previous page (a ledger `seq`); 0 or none: from the start.",
+           json!({ "type": "integer", "format": "int64", "minimum": 0 }))
+        .q("limit", "Most rows on the page.", json!({ "type": "integer", "minimum": 1, "maximum": crate::review::MAX_FEED_ROWS, "default": 200 }))
         .csv(),
         // ---- netting --------------------------------------------------------------------
         ("GET", "/count-results") => Op::new(
@@ -441,7 +443,7 @@ fn site_op(method: &str, tail: &str, s: &mut Schemas) -> Option<Op> {
         .q("from", "Counted at or after this instant.", instant())
         .q("to", "Counted at or before this instant.", instant())
         .q("limit", "Most rows on the page.", json!({ "type": "integer", "minimum": 1, "maximum": 1000, "default": 200 }))
-        .q("after", "The `next` of the previous page (a result id).", json!({ "type": "integer", "minimum": 0 })),
+        .q("after", "The `next` of the previous page: results with a higher id.", json!({ "type": "integer", "format": "int64" })),
         ("GET", "/count-results/{id}") => Op::new(
             "Read one count result",
             "The result with its evidence, the rows it replaced and its recount tasks.",
@@ -503,8 +505,8 @@ fn site_op(method: &str, tail: &str, s: &mut Schemas) -> Option<Op> {
             "A page of lines the phones sent.",
             object("`lines`, `next` (a line id, or null)."),
         )
-        .q("after", "The `next` of the previous page (a line id).", json!({ "type": "integer", "minimum": 0 }))
-        .q("limit", "Most rows on the page.", json!({ "type": "integer", "minimum": 1 })),
+        .q("after", "The `next` of the previous page: lines with a higher id.", json!({ "type": "integer", "format": "int64" }))
+        .q("limit", "Most rows on the page.", json!({ "type": "integer", "minimum": 1, "maximum": 5000, "default": 5000 })),
         ("GET", "/my-tasks") => Op::new(
             "Read my count tasks",
             "The counter's part of the day's list, blind: no book quantities.",
@@ -557,15 +559,23 @@ fn site_op(method: &str, tail: &str, s: &mut Schemas) -> Option<Op> {
             object("Progress per run."),
         ),
         // ---- accuracy ---------------------------------------------------------------------
-        ("GET", "/accuracy") => report_op(
-            Op::new("Read record accuracy", "The accuracy report.", object("The report.")),
-        ),
-        ("GET", "/accuracy/items") => list_op(
-            Op::new("Read record error per item", "The rows of the table.", object("Rows.")),
-        ),
-        ("GET", "/accuracy/items/{sku}") => report_op(
-            Op::new("Read one item's record error", "The item's figures.", object("The item's figures.")),
-        ),
+        ("GET", "/accuracy") => period(Op::new("Read record accuracy", "The accuracy report.", object("The report.")))
+            .q("class", "Only this ABC class.", json!({ "type": "string", "enum": ["", "A", "B", "C"] }))
+            .q("zone", "Only this zone.", string())
+            .q("table", "Which table the CSV holds (default `summary`).", string())
+            .csv(),
+        ("GET", "/accuracy/items") => table_view(period(Op::new(
+            "Read record error per item",
+            "Every row the filter keeps (never paged).",
+            json!({ "type": "array", "items": object("One item's record error.") }),
+        )))
+        .csv(),
+        ("GET", "/accuracy/items/{sku}") => period(Op::new(
+            "Read one item's record error",
+            "The item's figures.",
+            object("The item's figures."),
+        ))
+        .csv(),
         ("GET", "/accuracy/settings") => Op::new("Read accuracy settings", "The settings.", object("Accuracy settings.")),
         ("PUT", "/accuracy/settings") => Op::new("Set accuracy settings", "The settings now.", object("Accuracy settings."))
             .body(object("Accuracy settings, as read."), json!({})),
@@ -582,45 +592,65 @@ fn site_op(method: &str, tail: &str, s: &mut Schemas) -> Option<Op> {
         ("POST", "/planner-inputs") => Op::new("Set planner inputs", "What was written.", object("Counts written."))
             .body(json!({ "type": "array", "items": object("A planner input row.") }), json!([]))
             .errors(BATCH),
-        ("GET", "/buffer") => list_op(Op::new("Read buffers", "The rows of the table.", object("Rows."))),
-        ("GET", "/buffer/{sku}") => report_op(Op::new("Read one item's buffer", "The item's buffer.", object("The buffer."))),
+        ("GET", "/buffer") => table_view(window(Op::new(
+            "Read buffers",
+            "Every row the filter keeps (never paged).",
+            json!({ "type": "array", "items": object("One item's safety stock and order point with every term.") }),
+        )))
+        .csv(),
+        ("GET", "/buffer/{sku}") => window(Op::new(
+            "Read one item's buffer",
+            "The item's safety stock and order point with every term.",
+            object("One item's safety stock and order point with every term."),
+        ))
+        .csv(),
         _ => return None,
     };
     Some(op)
 }
 
-/// Adds the accuracy reports' parameters.
-fn report_op(op: Op) -> Op {
-    op.q("since", "The period's first day.", day())
-        .q("until", "The period's last day.", day())
-        .q("class", "Only this ABC class.", string())
-        .q("zone", "Only this zone.", string())
-        .q("table", "Which table of the report.", string())
-        .q(
-            "window_days",
-            "The demand window in days.",
-            json!({ "type": "integer", "minimum": 1 }),
-        )
-        .csv()
+/// A day parameter of the reports, where an empty value is the same as none.
+fn optional_day() -> Value {
+    json!({ "type": "string", "pattern": "^([0-9]{4}-[0-9]{2}-[0-9]{2})?$",
+            "description": "`YYYY-MM-DD`, a local day of the site; empty is the same as none." })
 }
 
-/// Adds the long tables' parameters.
-fn list_op(op: Op) -> Op {
-    op.q("since", "The period's first day.", day())
-        .q("until", "The period's last day.", day())
-        .q(
-            "window_days",
-            "The demand window in days.",
-            json!({ "type": "integer", "minimum": 1 }),
-        )
-        .q("class", "Only this ABC class.", string())
-        .q("group", "Only this item group.", string())
-        .q("q", "Text the SKU or description contains.", string())
-        .q("sort", "The column to order by.", string())
-        .q(
-            "dir",
-            "`asc` or `desc`.",
-            json!({ "type": "string", "enum": ["asc", "desc"] }),
-        )
-        .csv()
+/// Adds a report's period: `since` and `until`.
+fn period(op: Op) -> Op {
+    op.q("since", "The period's first day.", optional_day()).q(
+        "until",
+        "The period's last day (default: today).",
+        optional_day(),
+    )
+}
+
+/// Adds the buffer's demand window: its last day and length.
+fn window(op: Op) -> Op {
+    op.q(
+        "until",
+        "The demand window's last day (default: yesterday).",
+        optional_day(),
+    )
+    .q(
+        "window_days",
+        "The demand window in days, 1 to 3,660 (default: the site's).",
+        json!({ "type": "string", "pattern": "^([0-9]{1,4})?$" }),
+    )
+}
+
+/// Adds the long tables' filter and order (their API answers are never paged).
+fn table_view(op: Op) -> Op {
+    op.q(
+        "class",
+        "Only this ABC class.",
+        json!({ "type": "string", "enum": ["", "A", "B", "C"] }),
+    )
+    .q("group", "Only this item group.", string())
+    .q("q", "Text the SKU or description contains.", string())
+    .q("sort", "The column to order by.", string())
+    .q(
+        "dir",
+        "`asc` or `desc`.",
+        json!({ "type": "string", "enum": ["", "asc", "desc"] }),
+    )
 }
