@@ -397,3 +397,58 @@ fn the_wire_instant_check_tells_the_one_form_from_others() {
     assert!(!is_wire_instant("2026-03-02T08:00:00.000+00:00"));
     assert!(!is_wire_instant("2026-03-02T08:00:00.0000Z"));
 }
+
+#[tokio::test]
+async fn refusals_the_contract_run_found_are_named_and_in_the_error_shape() {
+    let app = spawn_app().await;
+    app.small_site().await;
+    // A path segment that is no number: axum's refusal, in the API's error shape.
+    let (s, b) = app
+        .post(
+            "/api/v1/sites/T/count-lists/2026-03-02/tasks/9223372036854775808/move",
+            &json!({ "run": 1 }),
+        )
+        .await;
+    assert_eq!(s, 400, "{b}");
+    assert!(
+        b["error"].as_str().unwrap().contains("9223372036854775808"),
+        "{b}"
+    );
+    // The most negative quantity is refused on qty, not overflowed.
+    let (s, b) = app
+        .post(
+            "/api/v1/sites/T/movements",
+            &json!([movement(
+                "m-1",
+                "A-01-01-1",
+                "S1",
+                i64::MIN,
+                "adjustment",
+                "2026-03-02T08:00:00Z"
+            )]),
+        )
+        .await;
+    assert_eq!(s, 422, "{b}");
+    assert_eq!(
+        (b["rows"][0]["index"].clone(), b["rows"][0]["field"].clone()),
+        (json!(0), json!("qty"))
+    );
+    // Page sizes outside 1 to 1,000 and report parameters a route does not read.
+    for (path, param) in [
+        ("balances?limit=0", "limit"),
+        ("balances?limit=1001", "limit"),
+        ("bins/A-01-01-1/movements?limit=0", "limit"),
+        ("accuracy?window_days=30", "window_days"),
+        ("accuracy/items/S1?zone=A", "zone"),
+        ("buffer/S1?since=2026-01-01", "since"),
+    ] {
+        let (s, b) = app.get(&format!("/api/v1/sites/T/{path}")).await;
+        assert_eq!(s, 400, "{path}: {b}");
+        assert!(
+            b["error"].as_str().unwrap().starts_with(param),
+            "{path}: {b}"
+        );
+    }
+    let (s, b) = app.get("/api/v1/sites/T/balances?limit=1000").await;
+    assert_eq!(s, 200, "{b}");
+}

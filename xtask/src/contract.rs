@@ -137,6 +137,8 @@ pub fn run(root: &Path, bin: &Path) -> Result<()> {
             .arg("--report-junit-path")
             .arg(dir.join("junit.xml"))
             .env("NO_COLOR", "1")
+            // Schemathesis keeps its example database in the folder it runs in.
+            .current_dir(&dir)
             .status()
             .context("starting schemathesis")?;
         if !status.success() {
