@@ -712,7 +712,7 @@ async fn planner_inputs_with_a_bad_row_are_refused_whole_by_csv_and_api() {
         .iter()
         .map(|r| {
             (
-                r["row"].as_u64().unwrap(),
+                r["index"].as_u64().unwrap(),
                 r["field"].as_str().unwrap().to_string(),
             )
         })
@@ -732,7 +732,7 @@ async fn planner_inputs_with_a_bad_row_are_refused_whole_by_csv_and_api() {
         )
         .await;
     assert_eq!(s, 422, "{e}");
-    assert_eq!(e["rows"][0]["row"], 1);
+    assert_eq!(e["rows"][0]["index"], 1);
     assert_eq!(
         app.get("/api/v1/sites/T/planner-inputs").await.1,
         json!({"planner_inputs": [], "next": null})

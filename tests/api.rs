@@ -89,7 +89,7 @@ async fn a_batch_with_bad_rows_writes_nothing_and_names_each_row_and_field() {
         .iter()
         .map(|r| {
             (
-                r["row"].as_u64().unwrap(),
+                r["index"].as_u64().unwrap(),
                 r["field"].as_str().unwrap().to_string(),
             )
         })
@@ -241,11 +241,17 @@ async fn master_data_errors_name_the_row_and_rule() {
         .await;
     assert_eq!(s, 422, "{b}");
     assert_eq!(
-        (b["rows"][0]["row"].as_u64(), b["rows"][0]["field"].as_str()),
+        (
+            b["rows"][0]["index"].as_u64(),
+            b["rows"][0]["field"].as_str()
+        ),
         (Some(1), Some("gtin"))
     );
     assert_eq!(
-        (b["rows"][1]["row"].as_u64(), b["rows"][1]["field"].as_str()),
+        (
+            b["rows"][1]["index"].as_u64(),
+            b["rows"][1]["field"].as_str()
+        ),
         (Some(2), Some("units"))
     );
     let (s, b) = app

@@ -219,7 +219,7 @@ async fn an_item_row_whose_packs_break_a_rule_is_refused_whole_naming_the_pack()
         assert!(
             errors
                 .iter()
-                .any(|e| e["row"] == row && e["field"] == field),
+                .any(|e| e["index"] == row && e["field"] == field),
             "{field} of row {row}: {b}"
         );
     }

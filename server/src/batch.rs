@@ -7,9 +7,11 @@ use serde::Serialize;
 pub const MAX_BATCH_ROWS: usize = 5_000;
 
 /// One rule broken by one row of a batch.
-#[derive(Debug, Clone, PartialEq, Eq, Serialize)]
+#[derive(Debug, Clone, PartialEq, Eq, Serialize, utoipa::ToSchema)]
 pub struct RowError {
-    /// Position of the row in the batch, counted from 0.
+    /// Position of the element in the batch array, counted from 0; `index` on the wire
+    /// (a CSV import turns it into the file's 1-based `line`).
+    #[serde(rename = "index")]
     pub row: usize,
     /// The field (column) at fault, or `"row"` when the row as a whole is.
     pub field: String,

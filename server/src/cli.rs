@@ -224,6 +224,12 @@ enum Command {
         #[command(subcommand)]
         command: ConfigCommand,
     },
+    /// Write the API's OpenAPI 3.1 document (what `GET /api/v1/openapi.json` serves).
+    Openapi {
+        /// Where to write it (default: standard output).
+        #[arg(long, value_name = "FILE")]
+        out: Option<PathBuf>,
+    },
     /// Print shell completions for cairn (save to your shell's completions folder).
     Completions { shell: CompletionShell },
     /// Print cairn's manual page (roff, for `man -l -` or a man1 folder).
@@ -889,6 +895,21 @@ async fn dispatch(command: Command) -> anyhow::Result<()> {
             let mut script = Vec::new();
             clap_complete::generate(shell, &mut definitions(), "cairn", &mut script);
             out!("{}", String::from_utf8_lossy(&script))
+        }
+        Command::Openapi { out } => {
+            let doc = crate::http::openapi::document();
+            if !doc.undocumented.is_empty() {
+                anyhow::bail!(
+                    "routes without documentation: {}",
+                    doc.undocumented.join(", ")
+                );
+            }
+            let text = serde_json::to_string_pretty(&doc.json)? + "\n";
+            match out {
+                Some(path) => std::fs::write(&path, text)
+                    .map_err(|e| anyhow::anyhow!("cannot write {}: {e}", path.display())),
+                None => out!("{text}"),
+            }
         }
         Command::Man => {
             let mut page = Vec::new();

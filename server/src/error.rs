@@ -6,7 +6,7 @@ use crate::store::error::StoreError;
 use axum::Json;
 use axum::http::StatusCode;
 use axum::response::{IntoResponse, Response};
-use serde_json::json;
+use serde::Serialize;
 
 /// Everything a handler can answer besides success.
 #[derive(Debug, thiserror::Error)]
@@ -103,16 +103,36 @@ impl ApiError {
     }
 }
 
+/// The body of every error answer of the API.
+#[derive(Debug, Serialize, utoipa::ToSchema)]
+pub struct ErrorBody {
+    /// What went wrong, in words a person can act on (a fixed text for a 5xx).
+    pub error: String,
+    /// A refused batch (422): every rule each element broke. Nothing of the batch was
+    /// written.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub rows: Option<Vec<RowError>>,
+}
+
 impl IntoResponse for ApiError {
     fn into_response(self) -> Response {
         let status = self.status();
         let body = match &self {
             ApiError::Internal(e) => {
                 tracing::error!(error = ?e, "request failed");
-                json!({ "error": INTERNAL_TEXT })
+                ErrorBody {
+                    error: INTERNAL_TEXT.into(),
+                    rows: None,
+                }
             }
-            ApiError::Rejected(rows) => json!({ "error": self.to_string(), "rows": rows }),
-            other => json!({ "error": other.to_string() }),
+            ApiError::Rejected(rows) => ErrorBody {
+                error: self.to_string(),
+                rows: Some(rows.clone()),
+            },
+            other => ErrorBody {
+                error: other.to_string(),
+                rows: None,
+            },
         };
         let mut response = (status, Json(body)).into_response();
         if let ApiError::Busy { retry_after_s, .. } = self {

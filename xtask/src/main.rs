@@ -15,6 +15,8 @@
 use std::path::{Path, PathBuf};
 use std::process::Command;
 
+mod contract;
+
 use anyhow::{Context, Result, bail};
 use sha2::{Digest, Sha256};
 
@@ -45,6 +47,18 @@ fn main() -> Result<()> {
     match args.first().map(String::as_str) {
         Some("wasm") => wasm(args.iter().any(|a| a == "--no-opt")),
         Some("test") => test(),
+        Some("contract") => {
+            let root = root();
+            let cargo = std::env::var("CARGO").unwrap_or_else(|_| "cargo".to_owned());
+            run(Command::new(&cargo).current_dir(&root).args([
+                "build",
+                "-p",
+                "cairn-server",
+                "--bin",
+                "cairn",
+            ]))?;
+            contract::run(&root, &root.join("target/debug/cairn"))
+        }
         Some("dist") => dist(),
         Some("demo") => {
             wasm(false)?;
@@ -52,7 +66,7 @@ fn main() -> Result<()> {
         }
         _ => {
             eprintln!(
-                "usage: cargo xtask wasm [--no-opt] | cargo xtask demo [cairn demo options] | cargo xtask test | cargo xtask dist"
+                "usage: cargo xtask wasm [--no-opt] | cargo xtask demo [cairn demo options] | cargo xtask test | cargo xtask contract | cargo xtask dist"
             );
             std::process::exit(2);
         }
@@ -60,7 +74,7 @@ fn main() -> Result<()> {
 }
 
 /// Runs every test: builds the wasm (the binary compiles the app in), then the Rust
-/// suites, then the browser suites.
+/// suites, the API contract run (Schemathesis, `contract.rs`), then the browser suites.
 fn test() -> Result<()> {
     let root = root();
     let cargo = std::env::var("CARGO").unwrap_or_else(|_| "cargo".to_owned());
@@ -81,6 +95,7 @@ fn test() -> Result<()> {
         "--bin",
         "cairn",
     ]))?;
+    contract::run(&root, &root.join("target/debug/cairn")).context("the API contract run")?;
     let browser = root.join("tests/browser");
     if !browser.join("node_modules/playwright-core").exists() {
         run(Command::new("npm")

@@ -18,7 +18,7 @@ pub const MAX_WINDOW_DAYS: u32 = 3660;
 pub const MAX_GROUP_CHARS: usize = crate::input::text::MAX_NAME_CHARS;
 
 /// A site's accuracy target, demand window and service levels.
-#[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize)]
+#[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize, utoipa::ToSchema)]
 #[serde(deny_unknown_fields)]
 pub struct AccuracySettings {
     /// The IRA the site aims for, 0 to 1; the trend charts draw it as a line.

@@ -70,6 +70,30 @@ pub struct ReportParams {
     pub window_days: Option<String>,
 }
 
+impl ReportParams {
+    /// Refuses the parameters named, which the route does not read, so a value sent to
+    /// one is never silently dropped (the accuracy report has no `window_days`, one
+    /// item's figures no class, zone or table, one item's buffer no `since`).
+    pub fn refuse(&self, names: &[&str]) -> Result<(), ApiError> {
+        for name in names {
+            let v = match *name {
+                "since" => &self.since,
+                "class" => &self.class,
+                "zone" => &self.zone,
+                "table" => &self.table,
+                "window_days" => &self.window_days,
+                other => unreachable!("refuse is called with a report parameter, not {other}"),
+            };
+            if v.is_some() {
+                return Err(ApiError::BadRequest(format!(
+                    "{name}: not a parameter of this report"
+                )));
+            }
+        }
+        Ok(())
+    }
+}
+
 /// Query parameters of the long tables (the buffer, record error per item),
 /// pages and API alike: the report's own (period or demand window, format)
 /// and the table's view (filter, order, page). Empty is the same as none.
@@ -256,6 +280,7 @@ async fn get_accuracy(
     CurrentSite(site): CurrentSite,
     Params(p): Params<ReportParams>,
 ) -> Result<Response, ApiError> {
+    p.refuse(&["window_days"])?;
     let csv = p.csv()?;
     let r = report_for(&state, &site, &p).await?;
     if !csv {
@@ -309,6 +334,7 @@ async fn get_item(
     Path((_, code)): Path<(String, String)>,
     Params(p): Params<ReportParams>,
 ) -> Result<Response, ApiError> {
+    p.refuse(&["window_days", "class", "zone", "table"])?;
     let csv = p.csv()?;
     let items = service::item_reports(
         state.store.as_ref(),
@@ -439,6 +465,7 @@ async fn get_buffer(
     Path((_, code)): Path<(String, String)>,
     Params(p): Params<ReportParams>,
 ) -> Result<Response, ApiError> {
+    p.refuse(&["since", "class", "zone", "table"])?;
     let csv = p.csv()?;
     let reports = buffers_for(&state, &site, &p, Some(sku(&code)?)).await?;
     if csv {

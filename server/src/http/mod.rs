@@ -8,6 +8,7 @@ pub mod extract;
 pub mod headers;
 pub mod nav;
 pub mod observe;
+pub mod openapi;
 pub mod pages;
 pub mod serve;
 
@@ -23,7 +24,8 @@ pub fn route_table() -> RouteTable {
     t.get("/healthz", Access::Public, observe::healthz)
         .get("/readyz", Access::Public, observe::readyz)
         .get("/metrics", Access::Public, observe::metrics)
-        .get("/static/cairn.css", Access::Public, stylesheet);
+        .get("/static/cairn.css", Access::Public, stylesheet)
+        .get(openapi::DOCUMENT_PATH, Access::Public, openapi::serve);
     pages::routes(&mut t);
     crate::accounts::routes::routes(&mut t);
     crate::accounts::admin::routes(&mut t);
@@ -57,6 +59,9 @@ pub fn router(state: AppState) -> Router {
         ))
         // The phone app's static files are public (the app signs in itself); added after the
         // guard so they sit outside the route table.
+        // Axum's own refusals (a path segment that is not a number) answer plain text;
+        // on the API they take the one error shape.
+        .layer(axum::middleware::from_fn(api_error_shape))
         .merge(app_files(&state))
         .fallback(not_found)
         .layer(DefaultBodyLimit::max(state.config.max_body_bytes))
@@ -93,4 +98,37 @@ async fn stylesheet(headers: axum::http::HeaderMap) -> axum::response::Response 
 
 async fn not_found() -> ApiError {
     ApiError::NotFound("no such page or endpoint".into())
+}
+
+/// Most bytes of a plain-text refusal rewritten as the API's error shape.
+const MAX_REFUSAL_BYTES: usize = 4 * 1024;
+
+/// Rewrites a plain-text 4xx answer of an API route (axum's extractor refusals) as
+/// `{"error": TEXT}`, the shape every API error has.
+async fn api_error_shape(
+    request: axum::extract::Request,
+    next: axum::middleware::Next,
+) -> axum::response::Response {
+    use axum::http::header::CONTENT_TYPE;
+    use axum::response::IntoResponse;
+    let api = request.uri().path().starts_with("/api/");
+    let response = next.run(request).await;
+    let plain = response
+        .headers()
+        .get(CONTENT_TYPE)
+        .and_then(|v| v.to_str().ok())
+        .is_some_and(|v| v.starts_with("text/plain"));
+    if !(api && plain && response.status().is_client_error()) {
+        return response;
+    }
+    let (parts, body) = response.into_parts();
+    let text = match axum::body::to_bytes(body, MAX_REFUSAL_BYTES).await {
+        Ok(bytes) => String::from_utf8_lossy(&bytes).into_owned(),
+        Err(_) => "the request was refused".to_string(),
+    };
+    let body = crate::error::ErrorBody {
+        error: text,
+        rows: None,
+    };
+    (parts.status, axum::Json(body)).into_response()
 }

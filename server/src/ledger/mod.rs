@@ -20,7 +20,7 @@ pub const MAX_ABS_QTY: i64 = 1_000_000_000;
 pub const MAX_REF_CHARS: usize = crate::input::text::MAX_REF_CHARS;
 
 /// What kind of physical event a movement records.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, Hash, Serialize, Deserialize)]
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Hash, Serialize, Deserialize, utoipa::ToSchema)]
 #[serde(rename_all = "snake_case")]
 pub enum MovementKind {
     Receipt,
@@ -73,7 +73,7 @@ impl MovementKind {
 }
 
 /// A movement as a sender submits it (JSON object or CSV row).
-#[derive(Debug, Clone, Deserialize)]
+#[derive(Debug, Clone, Deserialize, utoipa::ToSchema)]
 #[serde(deny_unknown_fields)]
 pub struct MovementRecord {
     pub id: String,
@@ -174,7 +174,7 @@ impl MovementRecord {
         }
         if self.qty == 0 {
             errs.push(FieldError::new("qty", "quantity must not be 0"));
-        } else if self.qty.abs() > MAX_ABS_QTY {
+        } else if self.qty.unsigned_abs() > MAX_ABS_QTY.unsigned_abs() {
             errs.push(FieldError::new(
                 "qty",
                 format!("quantity {} is beyond ±{MAX_ABS_QTY}", self.qty),
@@ -244,9 +244,14 @@ impl MovementRecord {
 }
 
 /// A movement as stored.
-#[derive(Debug, Clone, Serialize)]
+#[derive(Debug, Clone, Serialize, utoipa::ToSchema)]
 pub struct Movement {
+    /// The ledger's own number for the movement: given when it is written, rising in
+    /// the order movements were written (not their `event_at` order), never reused. A
+    /// count result's `watermark` and a batch's answer refer to it.
     pub seq: i64,
+    /// The sender's id for the movement (what `POST movements` took as `id`): the key
+    /// that makes a resent batch change nothing.
     pub id: String,
     pub bin: String,
     pub sku: String,
@@ -262,18 +267,19 @@ pub struct Movement {
 }
 
 /// What a batch write did.
-#[derive(Debug, Clone, Default, PartialEq, Eq, Serialize)]
+#[derive(Debug, Clone, Default, PartialEq, Eq, Serialize, utoipa::ToSchema)]
 pub struct RecordOutcome {
     /// Movements written by this batch.
     pub recorded: usize,
     /// Movements whose id was already in the ledger with the same content.
     pub already_recorded: usize,
-    /// The ledger's high-water mark after the batch.
+    /// The ledger's high-water mark after the batch: the highest movement `seq` written
+    /// at the site so far (not a sender's `id`).
     pub watermark: i64,
 }
 
 /// The balance of one key.
-#[derive(Debug, Clone, PartialEq, Eq, Serialize)]
+#[derive(Debug, Clone, PartialEq, Eq, Serialize, utoipa::ToSchema)]
 pub struct BalanceRow {
     pub bin: String,
     pub sku: String,
@@ -318,6 +324,28 @@ mod tests {
             .unwrap_err();
         assert_eq!(errs[0].field, "qty");
         assert!(errs[0].message.contains("negative"), "{}", errs[0].message);
+    }
+
+    #[test]
+    fn the_most_negative_quantity_is_refused_not_overflowed() {
+        // i64::MIN has no positive counterpart: its absolute value overflowed (a panic
+        // in a debug build, a wrapped negative that passed the bound in a release one).
+        for qty in [i64::MIN, i64::MIN + 1, -MAX_ABS_QTY - 1, MAX_ABS_QTY + 1] {
+            let errs = rec(qty, "adjustment", "2026-06-01T10:00:00Z")
+                .validate(now(), "api")
+                .unwrap_err();
+            assert_eq!(errs[0].field, "qty", "{qty}");
+            assert!(
+                errs[0].message.contains("beyond"),
+                "{qty}: {}",
+                errs[0].message
+            );
+        }
+        assert!(
+            rec(-MAX_ABS_QTY, "adjustment", "2026-06-01T10:00:00Z")
+                .validate(now(), "api")
+                .is_ok()
+        );
     }
 
     #[test]

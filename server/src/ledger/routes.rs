@@ -73,6 +73,19 @@ fn instant(field: &str, v: Option<String>) -> Result<Option<Timestamp>, ApiError
 
 /// Rows per page when the caller names no limit.
 const DEFAULT_PAGE_ROWS: usize = 200;
+/// Most rows a balance or history page holds.
+const MAX_PAGE_ROWS: usize = 1_000;
+
+/// Reads `limit`: 1 to [`MAX_PAGE_ROWS`], [`DEFAULT_PAGE_ROWS`] when not given.
+fn page_limit(limit: Option<usize>) -> Result<usize, ApiError> {
+    match limit {
+        None => Ok(DEFAULT_PAGE_ROWS),
+        Some(n) if (1..=MAX_PAGE_ROWS).contains(&n) => Ok(n),
+        Some(n) => Err(ApiError::BadRequest(format!(
+            "limit: {n} is not a whole number from 1 to {MAX_PAGE_ROWS}"
+        ))),
+    }
+}
 
 #[derive(Deserialize)]
 #[serde(deny_unknown_fields)]
@@ -106,7 +119,7 @@ async fn get_balances(
         lot: p.lot,
         at: instant("at", p.at)?,
         include_zero: p.include_zero,
-        limit: p.limit.unwrap_or(DEFAULT_PAGE_ROWS),
+        limit: page_limit(p.limit)?,
         after: p.after,
     };
     Ok(Json(state.store.balances(site.id, q).await?))
@@ -131,7 +144,7 @@ async fn history(
         subject,
         from: instant("from", p.from)?,
         to: instant("to", p.to)?,
-        limit: p.limit.unwrap_or(DEFAULT_PAGE_ROWS),
+        limit: page_limit(p.limit)?,
         after: p.after,
     };
     Ok(Json(state.store.movements(site.id, q).await?))

@@ -40,7 +40,7 @@ pub struct NewSite {
 }
 
 /// How many rows of each kind of master data a site holds.
-#[derive(Debug, Clone, Default, Serialize)]
+#[derive(Debug, Clone, Default, Serialize, utoipa::ToSchema)]
 pub struct SiteCounts {
     pub zones: u64,
     pub bins: u64,
@@ -153,7 +153,7 @@ pub fn place_label(
 }
 
 /// A bin row as sent (CSV columns or JSON fields).
-#[derive(Debug, Clone, Deserialize)]
+#[derive(Debug, Clone, Deserialize, utoipa::ToSchema)]
 #[serde(deny_unknown_fields)]
 pub struct BinRecord {
     #[serde(default)]
@@ -232,7 +232,7 @@ impl BinRecord {
 }
 
 /// An item row as sent.
-#[derive(Debug, Clone, Deserialize)]
+#[derive(Debug, Clone, Deserialize, utoipa::ToSchema)]
 #[serde(deny_unknown_fields)]
 pub struct ItemRecord {
     pub sku: String,
@@ -249,11 +249,12 @@ pub struct ItemRecord {
     /// Read-only: the item's ABC class, which the server keeps. Taken and ignored, so a
     /// row read back (`read::ItemRow`) can be sent again as it is.
     #[serde(default)]
+    #[schema(value_type = Option<String>)]
     pub class: Option<serde::de::IgnoredAny>,
 }
 
 /// One pack inside an item row: a pack row without the SKU, which is the item's.
-#[derive(Debug, Clone, Deserialize)]
+#[derive(Debug, Clone, Deserialize, utoipa::ToSchema)]
 #[serde(deny_unknown_fields)]
 pub struct ItemPackRecord {
     pub gtin: String,
@@ -399,7 +400,7 @@ pub fn repeated_pack_gtins(rows: &[NewItem]) -> Vec<RowError> {
 }
 
 /// A pack row as sent.
-#[derive(Debug, Clone, Deserialize)]
+#[derive(Debug, Clone, Deserialize, utoipa::ToSchema)]
 #[serde(deny_unknown_fields)]
 pub struct PackRecord {
     pub sku: String,

@@ -131,7 +131,7 @@ fn sku_param(param: &'static str, raw: &Option<String>) -> Result<Option<Sku>, P
 
 /// A zone as the API reads it back. Zones are made by the bins that name them, in the
 /// order they first appeared (`walk_seq`); `bins` counts the zone's bins.
-#[derive(Debug, Clone, PartialEq, Eq, Serialize)]
+#[derive(Debug, Clone, PartialEq, Eq, Serialize, utoipa::ToSchema)]
 pub struct ZoneRow {
     pub code: String,
     pub walk_seq: i64,
@@ -139,7 +139,7 @@ pub struct ZoneRow {
 }
 
 /// A bin as the API reads it back: the fields `POST bins` takes.
-#[derive(Debug, Clone, PartialEq, Eq, Serialize)]
+#[derive(Debug, Clone, PartialEq, Eq, Serialize, utoipa::ToSchema)]
 pub struct BinRow {
     pub code: String,
     pub zone: String,
@@ -152,7 +152,7 @@ pub struct BinRow {
 }
 
 /// A pack of an item as the API reads it back: a `POST packs` row without the SKU.
-#[derive(Debug, Clone, PartialEq, Eq, Serialize)]
+#[derive(Debug, Clone, PartialEq, Eq, Serialize, utoipa::ToSchema)]
 pub struct PackRow {
     pub gtin: String,
     pub level: String,
@@ -161,7 +161,7 @@ pub struct PackRow {
 
 /// An item as the API reads it back: the fields `POST items` takes, its packs (fewest
 /// units first) and, read-only, its current ABC class (`null` before its first).
-#[derive(Debug, Clone, PartialEq, Eq, Serialize)]
+#[derive(Debug, Clone, PartialEq, Eq, Serialize, utoipa::ToSchema)]
 pub struct ItemRow {
     pub sku: String,
     pub description: String,
@@ -175,7 +175,7 @@ pub struct ItemRow {
 
 /// A lot as the API reads it back: the item and the `lot` and `expiry` the movement
 /// that first named it carried.
-#[derive(Debug, Clone, PartialEq, Eq, Serialize)]
+#[derive(Debug, Clone, PartialEq, Eq, Serialize, utoipa::ToSchema)]
 pub struct LotRow {
     pub sku: String,
     pub lot: String,

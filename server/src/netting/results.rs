@@ -46,7 +46,7 @@ pub struct ResultQuery {
 }
 
 /// One result as the API lists it.
-#[derive(Debug, Clone, PartialEq, Eq, Serialize)]
+#[derive(Debug, Clone, PartialEq, Eq, Serialize, utoipa::ToSchema)]
 pub struct ResultRow {
     pub id: i64,
     pub pass_id: i64,
@@ -66,6 +66,8 @@ pub struct ResultRow {
     pub counted_at: Timestamp,
     pub window_start: Timestamp,
     pub window_end: Timestamp,
+    /// The highest ledger `seq` (a movement's number in the ledger, not the sender's `id`)
+    /// this result was netted against: movements with a higher `seq` were not yet seen.
     pub watermark: i64,
     pub settles_at: Timestamp,
     pub settled: bool,
@@ -80,7 +82,7 @@ pub struct ResultRow {
 }
 
 /// A page of results.
-#[derive(Debug, Clone, Serialize)]
+#[derive(Debug, Clone, Serialize, utoipa::ToSchema)]
 pub struct ResultPage {
     pub results: Vec<ResultRow>,
     pub next: Option<i64>,

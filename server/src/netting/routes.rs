@@ -152,8 +152,8 @@ async fn get_result(
 /// A site's count policy in one read: each part is the body its own `PUT` takes
 /// (`netting/settings`, `netting/sources`, `netting/reason-codes`), the three forms of
 /// the count-policy page.
-#[derive(Serialize)]
-struct CountPolicy {
+#[derive(Serialize, utoipa::ToSchema)]
+pub struct CountPolicy {
     settings: NettingSettings,
     sources: Vec<SourceTimingRow>,
     reason_codes: Vec<ReasonCode>,

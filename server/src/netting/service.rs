@@ -29,7 +29,7 @@ pub const VERDICT_HIT: &str = "hit";
 pub const VERDICT_OUT: &str = "out_of_tolerance";
 
 /// A site's netting policy: tolerance per class and the review limits.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize, utoipa::ToSchema)]
 #[serde(deny_unknown_fields)]
 pub struct NettingSettings {
     pub tolerances: ClassTolerances,
@@ -82,7 +82,7 @@ impl NettingSettings {
 }
 
 /// One movement source's timing, as stored and on the wire.
-#[derive(Debug, Clone, PartialEq, Eq, Serialize, Deserialize)]
+#[derive(Debug, Clone, PartialEq, Eq, Serialize, Deserialize, utoipa::ToSchema)]
 #[serde(deny_unknown_fields)]
 pub struct SourceTimingRow {
     pub source: String,
@@ -126,7 +126,7 @@ pub fn check_sources(rows: &[SourceTimingRow]) -> Result<(), String> {
 }
 
 /// A reason code a reviewer picks from.
-#[derive(Debug, Clone, PartialEq, Eq, Serialize, Deserialize)]
+#[derive(Debug, Clone, PartialEq, Eq, Serialize, Deserialize, utoipa::ToSchema)]
 #[serde(deny_unknown_fields)]
 pub struct ReasonCode {
     pub code: String,

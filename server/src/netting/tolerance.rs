@@ -13,7 +13,7 @@ pub const BASIS_POINTS_PER_WHOLE: i64 = 10_000;
 /// variance is within tolerance when it keeps every limit that is set. With no
 /// limit set at all the tolerance is exact (0 units), so a forgotten setting
 /// sends counts to recount rather than letting any difference pass.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize, utoipa::ToSchema)]
 #[serde(deny_unknown_fields)]
 pub struct Tolerance {
     /// Largest |variance| in base units.
@@ -124,7 +124,7 @@ impl Tolerance {
 }
 
 /// The tolerance of each ABC class.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize, utoipa::ToSchema)]
 #[serde(deny_unknown_fields)]
 pub struct ClassTolerances {
     pub a: Tolerance,

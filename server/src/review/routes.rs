@@ -38,7 +38,7 @@ struct FeedParams {
 }
 
 /// A page of the feed.
-#[derive(Debug, Serialize)]
+#[derive(Debug, Serialize, utoipa::ToSchema)]
 pub struct FeedPage {
     pub adjustments: Vec<AdjustmentRow>,
     /// Pass as `after` for the next page; absent on the last page.

@@ -173,7 +173,7 @@ pub struct Decided {
 }
 
 /// One posted count adjustment, as the host reads it.
-#[derive(Debug, Clone, PartialEq, Eq, Serialize)]
+#[derive(Debug, Clone, PartialEq, Eq, Serialize, utoipa::ToSchema)]
 pub struct AdjustmentRow {
     /// The movement uid: stable, the host's key for it.
     pub id: String,

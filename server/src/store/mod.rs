@@ -256,7 +256,7 @@ pub struct BalanceQuery {
 }
 
 /// A page of balances.
-#[derive(Debug, Clone, serde::Serialize)]
+#[derive(Debug, Clone, serde::Serialize, utoipa::ToSchema)]
 pub struct BalancePage {
     pub balances: Vec<BalanceRow>,
     pub next: Option<String>,
@@ -281,7 +281,7 @@ pub struct HistoryQuery {
 }
 
 /// A page of movements in event order.
-#[derive(Debug, Clone, serde::Serialize)]
+#[derive(Debug, Clone, serde::Serialize, utoipa::ToSchema)]
 pub struct HistoryPage {
     pub movements: Vec<Movement>,
     pub next: Option<String>,
