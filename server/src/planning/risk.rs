@@ -47,10 +47,13 @@ pub const MIN_INTERVAL_DAYS: f64 = 1.0;
 pub const MAX_INTERVAL_DAYS: f64 = 730.0;
 /// Most items one choice may take.
 pub const MAX_ITEMS: usize = 1_000_000;
-/// Bisection steps for one item's interval (the bracket shrinks 2⁶⁰-fold).
+/// Most steps for one item's interval (bisection alone shrinks the bracket 2⁶⁰-fold).
 const INTERVAL_STEPS: u32 = 60;
-/// Bisection steps for the multiplier, on a log scale.
-const LAMBDA_STEPS: u32 = 80;
+/// Relative precision at which one item's interval stops being refined.
+const INTERVAL_TOLERANCE: f64 = 1e-12;
+/// Bisection steps for the multiplier on a log scale (from a 1000-fold bracket
+/// to a ratio within 1 + 2e-13).
+const LAMBDA_STEPS: u32 = 45;
 
 /// `sqrt(2/π)`: mean of the half-normal distribution with unit scale.
 pub const HALF_NORMAL_MEAN: f64 = 0.797_884_560_802_865_4;
@@ -253,7 +256,20 @@ fn marginal(item: &RiskItem, t: f64) -> f64 {
     t * error_value_at(item, t) - integral(item, t) + safety
 }
 
-/// Solves `D(T) = λ·m` for one item within `[MIN_INTERVAL_DAYS, max]`.
+/// `D′(T)`: how fast `D` grows with `T` (for Newton steps).
+fn marginal_slope(item: &RiskItem, t: f64) -> f64 {
+    let Growth { a, b } = item.growth;
+    let s = (a + b * t).sqrt();
+    if s <= 0.0 {
+        return 0.0;
+    }
+    let k = item.unit_cost * HALF_NORMAL_MEAN;
+    // d/dT [T·h − H] = T·h′; d/dT [q·b·T²/(2s)] = q·b·T·(4a + 3bT)/(4s³).
+    t * k * b / (2.0 * s) + item.safety_weight * b * t * (4.0 * a + 3.0 * b * t) / (4.0 * s * s * s)
+}
+
+/// Solves `D(T) = λ·m` for one item within `[MIN_INTERVAL_DAYS, max]`:
+/// Newton steps kept inside a shrinking bisection bracket.
 fn interval_for(item: &RiskItem, lambda: f64, max: f64) -> f64 {
     let target = lambda * item.minutes;
     if marginal(item, MIN_INTERVAL_DAYS) >= target {
@@ -263,15 +279,26 @@ fn interval_for(item: &RiskItem, lambda: f64, max: f64) -> f64 {
         return max;
     }
     let (mut lo, mut hi) = (MIN_INTERVAL_DAYS, max);
+    let mut t = 0.5 * (lo + hi);
     for _ in 0..INTERVAL_STEPS {
-        let mid = 0.5 * (lo + hi);
-        if marginal(item, mid) < target {
-            lo = mid;
+        let gap = marginal(item, t) - target;
+        if gap < 0.0 {
+            lo = t;
         } else {
-            hi = mid;
+            hi = t;
         }
+        if gap.abs() <= INTERVAL_TOLERANCE * target || hi - lo <= INTERVAL_TOLERANCE * hi {
+            break;
+        }
+        let slope = marginal_slope(item, t);
+        let newton = t - gap / slope;
+        t = if slope > 0.0 && newton > lo && newton < hi {
+            newton
+        } else {
+            0.5 * (lo + hi)
+        };
     }
-    0.5 * (lo + hi)
+    t
 }
 
 fn minutes_at(items: &[RiskItem], maxes: &[f64], lambda: f64) -> f64 {

@@ -65,6 +65,30 @@ fn the_closed_form_mean_error_value_matches_a_numeric_average() {
 }
 
 #[test]
+fn the_newton_slope_matches_a_finite_difference_of_the_marginal() {
+    // The interval search steps by D′(T); a wrong D′ would only slow it, so check it directly.
+    for (growth, safety) in [
+        (Growth { a: 0.0, b: 2.0 }, 0.0),
+        (Growth { a: 9.0, b: 0.3 }, 1.5),
+        (Growth { a: 0.5, b: 4.0 }, 0.2),
+    ] {
+        let it = RiskItem {
+            safety_weight: safety,
+            ..item(1, growth, 3.5, 1.0)
+        };
+        for t in [1.5, 12.0, 300.0] {
+            let h = 1e-4 * t;
+            let numeric = (marginal(&it, t + h) - marginal(&it, t - h)) / (2.0 * h);
+            let exact = marginal_slope(&it, t);
+            assert!(
+                (numeric - exact).abs() < 1e-6 * exact.abs().max(1.0),
+                "{growth:?} q={safety} t={t}: {numeric} vs {exact}"
+            );
+        }
+    }
+}
+
+#[test]
 fn three_items_get_the_intervals_the_lagrange_condition_gives_by_hand() {
     // Derivation (a = 0, no safety term): with k = sqrt(2/π),
     //   H(T) = k·c·(2/3)·sqrt(b)·T^{3/2}, so the daily cost is f(T) = (2/3)·k·c·sqrt(b)·sqrt(T) = α·sqrt(T).
