@@ -1,7 +1,9 @@
 //! Building the day's count list on a large site: 50,000 items, 100,000 bins
 //! and a 2,000,000-movement ledger. Prints the time of the nightly ABC
-//! classification and of each step of building and storing the list, and
-//! the peak memory of the process that did it.
+//! classification and of each step of building and storing the list, the
+//! choice of intervals by expected error value for one key per bin (the
+//! arithmetic alone, on seeded growth figures: the risk policy is not yet
+//! wired to the store), and the peak memory of the process that did it.
 //!
 //! Run: `cargo bench -p cairn-server --bench planning`. Sizes can be lowered
 //! with CAIRN_BENCH_ITEMS, CAIRN_BENCH_BINS and CAIRN_BENCH_MOVES.
@@ -10,7 +12,9 @@
 //! peak memory printed belongs to the planning work alone.
 
 use cairn::master::{BinRecord, ItemRecord, NewSite, SiteCode};
+use cairn::planning::abc::Class;
 use cairn::planning::plan::{self, Capacity, Fill};
+use cairn::planning::risk::{self, Floors, Growth, RiskItem, Source};
 use cairn::planning::service;
 use cairn::store::StoreOptions as OpenOptions;
 use cairn::store::sqlite::{SqliteStore, master, migrate};
@@ -183,6 +187,41 @@ fn make_db(path: &Path, items: usize, bins: usize, moves: usize) {
     conn.execute_batch("analyze").unwrap();
 }
 
+/// Least counts a year per class for the risk choice (A monthly, B quarterly, C yearly).
+const RISK_FLOORS: Floors = Floors {
+    per_year: [12, 4, 1],
+};
+
+/// Makes one key per bin with seeded growth, cost and minutes (a fifth A, a third B).
+fn risk_items(keys: usize) -> Vec<RiskItem> {
+    let mut rng = ChaCha8Rng::seed_from_u64(22);
+    (0..keys)
+        .map(|key| {
+            let class = match rng.random_range(0..15) {
+                0..=2 => Class::A,
+                3..=7 => Class::B,
+                _ => Class::C,
+            };
+            RiskItem {
+                key: key as i64,
+                class,
+                growth: Growth {
+                    a: rng.random_range(0.0..4.0),
+                    b: rng.random_range(0.001..2.0),
+                },
+                source: Source::Default,
+                unit_cost: rng.random_range(0.1..500.0),
+                minutes: rng.random_range(0.5..2.0),
+                safety_weight: if rng.random_bool(0.5) {
+                    0.0
+                } else {
+                    rng.random_range(0.0..1.0)
+                },
+            }
+        })
+        .collect()
+}
+
 fn peak_rss_kib() -> u64 {
     std::fs::read_to_string("/proc/self/status")
         .unwrap_or_default()
@@ -244,6 +283,22 @@ fn main() {
             "| ABC classification (nightly; {} A / {} B / {} C) | {abc_ms:.0} |",
             abc.a, abc.b, abc.c
         );
+        let risk_items = risk_items(bins);
+        let t = Instant::now();
+        let choice = risk::choose(&risk_items, f64::from(capacity.counters * capacity.minutes), &RISK_FLOORS)
+            .unwrap();
+        let risk_ms = t.elapsed().as_secs_f64() * 1e3;
+        assert!(
+            !choice.floors_exceed_minutes,
+            "the floors alone fill the day: the bench would time the trivial path"
+        );
+        println!(
+            "| risk intervals, arithmetic only ({} keys, {:.0} of {} minutes used) | {risk_ms:.0} |",
+            choice.intervals.len(),
+            choice.minutes_per_day,
+            capacity.counters * capacity.minutes
+        );
+        drop((risk_items, choice));
         let t = Instant::now();
         let input = store
             .plan_input(

@@ -1,9 +1,10 @@
 //! The day's count list. The arithmetic lives in files with no I/O: ABC
 //! classes (`abc`), the calendar and due rule (`calendar`, `due`), task times
-//! (`estimate`), the walk and its runs (`walk`) and the day's selection
-//! (`plan`). This file holds the settings and the shapes the list is shown
-//! in; `service` joins the arithmetic to the store; `routes` is the HTTP side
-//! (`pages` the supervisor's pages, `progress` what they tally).
+//! (`estimate`), the walk and its runs (`walk`), the day's selection
+//! (`plan`) and intervals chosen by expected error value (`risk`). This file
+//! holds the settings and the shapes the list is shown in; `service` joins
+//! the arithmetic to the store; `routes` is the HTTP side (`pages` the
+//! supervisor's pages, `progress` what they tally).
 
 pub mod abc;
 pub mod calendar;
@@ -13,6 +14,7 @@ pub mod pages;
 pub mod phone;
 pub mod plan;
 pub mod progress;
+pub mod risk;
 pub mod routes;
 pub mod service;
 pub mod short_pick;
