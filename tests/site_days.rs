@@ -5,7 +5,7 @@
 mod common;
 
 use cairn::accounts::Role;
-use chrono::{Duration, NaiveDate, Utc};
+use chrono::{Duration, NaiveDate, SecondsFormat, Utc};
 use common::{Auth, Body, spawn_app};
 use reqwest::Method;
 use serde_json::{Value, json};
@@ -93,7 +93,7 @@ async fn my_tasks(app: &common::TestApp, code: &str, token: &str) -> (u16, Value
 
 /// Posts a receipt of 30 of S1 into A-01-01-1 of site `code`, 30 hours ago.
 async fn stock(app: &common::TestApp, code: &str, admin: &Auth) {
-    let at = (Utc::now() - Duration::hours(30)).to_rfc3339();
+    let at = (Utc::now() - Duration::hours(30)).to_rfc3339_opts(SecondsFormat::Millis, true);
     let a = app
         .send(
             Method::POST,

@@ -50,14 +50,7 @@ fn main() -> Result<()> {
         Some("contract") => {
             let root = root();
             let cargo = std::env::var("CARGO").unwrap_or_else(|_| "cargo".to_owned());
-            run(Command::new(&cargo).current_dir(&root).args([
-                "build",
-                "-p",
-                "cairn-server",
-                "--bin",
-                "cairn",
-            ]))?;
-            contract::run(&root, &root.join("target/debug/cairn"))
+            contract::run(&root, &build_cairn(&cargo, &root)?)
         }
         Some("dist") => dist(),
         Some("demo") => {
@@ -71,6 +64,18 @@ fn main() -> Result<()> {
             std::process::exit(2);
         }
     }
+}
+
+/// Builds the `cairn` binary (debug) the contract run serves; returns its path.
+fn build_cairn(cargo: &str, root: &Path) -> Result<PathBuf> {
+    run(Command::new(cargo).current_dir(root).args([
+        "build",
+        "-p",
+        "cairn-server",
+        "--bin",
+        "cairn",
+    ]))?;
+    Ok(root.join("target/debug/cairn"))
 }
 
 /// Runs every test: builds the wasm (the binary compiles the app in), then the Rust
@@ -88,14 +93,7 @@ fn test() -> Result<()> {
     if let Some(url) = &pg {
         postgres_suites(&cargo, &root, url)?;
     }
-    run(Command::new(&cargo).current_dir(&root).args([
-        "build",
-        "-p",
-        "cairn-server",
-        "--bin",
-        "cairn",
-    ]))?;
-    contract::run(&root, &root.join("target/debug/cairn")).context("the API contract run")?;
+    contract::run(&root, &build_cairn(&cargo, &root)?).context("the API contract run")?;
     let browser = root.join("tests/browser");
     if !browser.join("node_modules/playwright-core").exists() {
         run(Command::new("npm")
