@@ -80,13 +80,7 @@ pub trait LedgerTx: WatermarkTx {
         site: SiteId,
         codes: &[&BinCode],
     ) -> Result<HashMap<String, i64>, StoreError> {
-        let mut out = HashMap::with_capacity(codes.len());
-        for code in codes {
-            if let Some(id) = self.bin_id(site, code)? {
-                out.insert(code.as_str().to_string(), id);
-            }
-        }
-        Ok(out)
+        each_found(codes, BinCode::as_str, |c| self.bin_id(site, c))
     }
     /// Finds the items of `site` among `skus`, by SKU, as [`LedgerTx::bin_ids`] does bins.
     fn item_refs(
@@ -94,13 +88,7 @@ pub trait LedgerTx: WatermarkTx {
         site: SiteId,
         skus: &[&Sku],
     ) -> Result<HashMap<String, ItemRef>, StoreError> {
-        let mut out = HashMap::with_capacity(skus.len());
-        for sku in skus {
-            if let Some(item) = self.item_ref(site, sku)? {
-                out.insert(sku.as_str().to_string(), item);
-            }
-        }
-        Ok(out)
+        each_found(skus, Sku::as_str, |s| self.item_ref(site, s))
     }
     /// Reads a stored movement by its sender's id (ids are unique across sites).
     fn movement_by_uid(&self, uid: &MovementUid) -> Result<Option<StoredMovement>, StoreError>;
@@ -139,6 +127,21 @@ pub trait LedgerTx: WatermarkTx {
             })
             .collect()
     }
+}
+
+/// Looks each code up with `look`; returns those found, by code.
+fn each_found<C: ?Sized, V>(
+    codes: &[&C],
+    text: impl Fn(&C) -> &str,
+    mut look: impl FnMut(&C) -> Result<Option<V>, StoreError>,
+) -> Result<HashMap<String, V>, StoreError> {
+    let mut out = HashMap::with_capacity(codes.len());
+    for code in codes {
+        if let Some(v) = look(code)? {
+            out.insert(text(code).to_string(), v);
+        }
+    }
+    Ok(out)
 }
 
 /// What a checked movement reverses.

@@ -18,8 +18,6 @@ use deadpool_postgres::Client;
 use std::collections::HashMap;
 use tokio_postgres::types::ToSql;
 
-const WATERMARK: &str = "select coalesce(max(id), 0) from movement";
-
 impl LedgerTx for PgTx<'_> {
     fn bin_id(&self, site: SiteId, bin: &BinCode) -> Result<Option<i64>, StoreError> {
         Ok(self
@@ -240,7 +238,7 @@ const WRITE_MOVEMENT: &str = "with m as (
 
 /// Returns the ledger's high-water mark on a read connection.
 pub async fn watermark(c: &Client) -> Result<i64, StoreError> {
-    Ok(row_one(c, WATERMARK, &[]).await?.get(0))
+    Ok(row_one(c, super::tx::WATERMARK_SQL, &[]).await?.get(0))
 }
 
 /// The balance of a key (`$1` bin, `$2` item, `$3` lot) as of `$4`: the sum of its deltas
