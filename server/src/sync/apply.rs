@@ -3,13 +3,16 @@
 //! again (or named a conflict when its content differs); each new event is checked against
 //! what is stored — its bin, its maker, its task (a recount is blind and by someone else; a
 //! withdrawn one takes no new count), the plausibility of its corrected time, its pass, its
-//! label or line — and then recorded, inside its own savepoint so a refused event leaves
-//! nothing behind. Passes whose times cannot be trusted ([`plausible`]) are marked held
-//! before netting sees them. The store answers the queries of [`SyncTx`].
+//! label or line — and then recorded. Every check of an event comes before its first
+//! write, so a refused event leaves nothing behind. Passes whose times cannot be trusted
+//! ([`plausible`]) are marked held before netting sees them. The store answers the queries
+//! of [`SyncTx`]; the request's reads are asked for together before its first event and
+//! its lines and events written together ([`super::gather`]).
 
 use super::SyncBatch;
 use super::clock::ClockSample;
 use super::event::{Body, Event, Line};
+use super::gather::{EventWrites, Known, SyncFacts, SyncKeys};
 use super::plausible::{self, Sampled, TaskFloor};
 use crate::accounts::DeviceId;
 use crate::master::SiteId;
@@ -18,7 +21,7 @@ use crate::time::Timestamp;
 use crate::time::day::SiteZone;
 use cairn_scan::wire::{EventFlag, EventResult};
 use chrono::NaiveDate;
-use std::collections::BTreeMap;
+use std::collections::{BTreeMap, HashSet};
 
 /// The bin an event names, with its place for the label check.
 #[derive(Debug, Clone, PartialEq, Eq)]
@@ -93,9 +96,9 @@ pub struct NewPass<'a> {
 }
 
 /// A count line to write.
-#[derive(Debug, Clone, Copy)]
+#[derive(Debug, Clone)]
 pub struct NewLine<'a> {
-    pub uid: &'a str,
+    pub uid: String,
     pub pass: i64,
     pub item: i64,
     pub line: &'a Line,
@@ -106,25 +109,30 @@ pub struct NewLine<'a> {
 }
 
 /// An accepted event to record.
-#[derive(Debug, Clone, Copy)]
+#[derive(Debug, Clone)]
 pub struct NewEvent<'a> {
     pub event: &'a Event,
     pub batch: &'a SyncBatch,
     pub at: Timestamp,
     pub uncertainty_ms: i64,
-    pub flags: &'a [EventFlag],
+    pub flags: Vec<EventFlag>,
 }
 
-/// The queries and writes of a sync request; each method one query or one write.
+/// A stored pass widened by a request's events: earliest first scan, widest uncertainty.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub struct PassWidening {
+    pub pass: i64,
+    pub at: Timestamp,
+    pub uncertainty_ms: i64,
+    pub reassigned: bool,
+}
+
+/// The queries and writes of a sync request; each method one query or one write, except
+/// the three that take a request's worth at once ([`SyncTx::facts`], [`SyncTx::holdings`],
+/// [`SyncTx::write_events`]), whose defaults call the one-at-a-time methods.
 pub trait SyncTx {
     /// The stored event with this id: its canonical body and flags.
     fn stored_event(&self, uid: &str) -> Result<Option<(String, Vec<EventFlag>)>, StoreError>;
-    /// Opens a savepoint for one event; [`SyncTx::keep_event`] or
-    /// [`SyncTx::drop_event`] closes it.
-    fn begin_event(&self) -> Result<(), StoreError>;
-    fn keep_event(&self) -> Result<(), StoreError>;
-    /// Undoes everything since [`SyncTx::begin_event`].
-    fn drop_event(&self) -> Result<(), StoreError>;
     /// The clock sample a device's previous sync left, if any.
     fn previous_clock(&self, device: DeviceId) -> Result<Option<Sampled>, StoreError>;
     fn save_clock(
@@ -174,6 +182,35 @@ pub trait SyncTx {
     /// Marks a task done at `at` and its bin counted whole that day.
     fn finish_task(&self, site: SiteId, task: i64, at: Timestamp) -> Result<(), StoreError>;
     fn insert_event(&self, e: &NewEvent<'_>) -> Result<(), StoreError>;
+
+    /// What is stored under each of `keys`: events, bins, tasks, passes, items and packs
+    /// (a key with nothing stored is absent from the answer).
+    fn facts(&self, site: SiteId, keys: &SyncKeys) -> Result<SyncFacts, StoreError> {
+        super::gather::facts_one_by_one(self, site, keys)
+    }
+    /// Which of the (bin, item) pairs hold a non-zero balance.
+    fn holdings(&self, pairs: &[(i64, i64)]) -> Result<HashSet<(i64, i64)>, StoreError> {
+        let mut held = HashSet::new();
+        for &(bin, item) in pairs {
+            if self.bin_holds(bin, item)? {
+                held.insert((bin, item));
+            }
+        }
+        Ok(held)
+    }
+    /// Writes the widened passes, then the lines, then the events, each in the order given.
+    fn write_events(&self, w: &EventWrites<'_>) -> Result<(), StoreError> {
+        for p in &w.widened {
+            self.extend_pass(p.pass, p.at, p.uncertainty_ms, p.reassigned)?;
+        }
+        for l in &w.lines {
+            self.insert_line(l)?;
+        }
+        for e in &w.events {
+            self.insert_event(e)?;
+        }
+        Ok(())
+    }
 }
 
 /// Why an event was refused, or a store failure that aborts the whole request.
@@ -202,6 +239,7 @@ pub fn apply_batch(tx: &dyn SyncTx, batch: &SyncBatch) -> Result<Vec<EventResult
             .and_then(|prev| plausible::clock_step(prev, sample));
         tx.save_clock(device, &batch.clock, batch.received_at)?;
     }
+    let mut known = Known::read(tx, batch)?;
     // The passes this request added events to, with the places of those events' results.
     let mut touched: BTreeMap<i64, Vec<usize>> = BTreeMap::new();
     let mut results = Vec::with_capacity(batch.events.len());
@@ -214,28 +252,24 @@ pub fn apply_batch(tx: &dyn SyncTx, batch: &SyncBatch) -> Result<Vec<EventResult
             }
         };
         let id = event.id.to_string();
-        if let Some((body, flags)) = tx.stored_event(&id)? {
-            results.push(if body == event.canonical {
-                EventResult::accepted(&id, true, flags)
+        if let Some((body, flags)) = known.stored_event(&id) {
+            results.push(if *body == event.canonical {
+                EventResult::accepted(&id, true, flags.clone())
             } else {
                 EventResult::conflict(&id)
             });
             continue;
         }
-        tx.begin_event()?;
-        match apply_event(tx, batch, event) {
+        match apply_event(tx, &mut known, batch, event) {
             Ok((flags, pass)) => {
-                tx.keep_event()?;
                 touched.entry(pass).or_default().push(results.len());
                 results.push(EventResult::accepted(&id, false, flags));
             }
-            Err(Refusal::Event(why)) => {
-                tx.drop_event()?;
-                results.push(EventResult::rejected(&id, why));
-            }
+            Err(Refusal::Event(why)) => results.push(EventResult::rejected(&id, why)),
             Err(Refusal::Store(e)) => return Err(e),
         }
     }
+    known.flush(tx)?;
     for (pass, places) in touched {
         if hold_if_untrusted(tx, pass, sample, device_step)? {
             for i in places {
@@ -277,15 +311,17 @@ fn hold_if_untrusted(
     Ok(true)
 }
 
-/// Applies one event; returns its flags and the pass it went to.
-fn apply_event(
+/// Applies one event; returns its flags and the pass it went to. Every check comes
+/// before the first write, so a refused event changes nothing.
+fn apply_event<'a>(
     tx: &dyn SyncTx,
-    batch: &SyncBatch,
-    event: &Event,
+    known: &mut Known<'a>,
+    batch: &'a SyncBatch,
+    event: &'a Event,
 ) -> Result<(Vec<EventFlag>, i64), Refusal> {
     let (at, uncertainty) = batch.clock.correct(event.device_at);
     let site = batch.site;
-    let Some(bin) = tx.bin(site, event.bin.as_str())? else {
+    let Some(bin) = known.bin(event.bin.as_str()).cloned() else {
         return refuse(format!("no bin {} at this site", event.bin));
     };
     if let Some(maker) = &event.user
@@ -301,7 +337,7 @@ fn apply_event(
     let mut floor = None;
     let mut withdrawn = None;
     if let Some(task) = event.task {
-        let Some(row) = tx.task(site, task)? else {
+        let Some(row) = known.task(task).cloned() else {
             return refuse(format!("no task {task} at this site"));
         };
         if row.bin != bin.id {
@@ -333,7 +369,7 @@ fn apply_event(
         return refuse(why);
     }
     let pass_uid = event.pass.to_string();
-    let pass = tx.pass_by_uid(&pass_uid)?;
+    let pass = known.pass(&pass_uid).cloned();
     // A withdrawn recount needs no count: a new one against it is refused; a pass begun
     // before it was withdrawn is kept as evidence (netting lets it decide nothing).
     if let (Some(why), None) = (&withdrawn, &pass) {
@@ -376,11 +412,22 @@ fn apply_event(
             }
         }
         Body::Line(line) => {
-            let (item, found) = check_line(tx, site, bin.id, line)?;
+            let (item, found) = check_line(known, bin.id, line)?;
             if found {
                 flags.push(EventFlag::FoundStock);
             }
             line_item = Some(item);
+        }
+        // An undo is checked by making it: it is the one write before the pass's.
+        Body::Undo { line } => {
+            let line_uid = line.to_string();
+            known.flush(tx)?;
+            if tx.line_pass(&line_uid)?.is_some_and(|o| o != pass_uid) {
+                return refuse(format!("line {line_uid} is not a line of count {pass_uid}"));
+            }
+            if !tx.undo_line(&line_uid, &event.id.to_string(), &pass_uid, at)? {
+                return refuse(format!("line {line_uid} was undone already"));
+            }
         }
         _ => {}
     }
@@ -388,30 +435,41 @@ fn apply_event(
     let reassigned = flags.contains(&EventFlag::Reassigned);
     let pass_id = match pass {
         Some(p) => {
-            tx.extend_pass(p.id, at, uncertainty, reassigned)?;
+            known.widen(p.id, at, uncertainty, reassigned);
             p.id
         }
-        None => tx.insert_pass(&NewPass {
-            uid: &pass_uid,
-            site,
-            bin: bin.id,
-            task: event.task,
-            at,
-            uncertainty_ms: uncertainty,
-            reassigned,
-            batch,
-        })?,
+        None => {
+            let id = tx.insert_pass(&NewPass {
+                uid: &pass_uid,
+                site,
+                bin: bin.id,
+                task: event.task,
+                at,
+                uncertainty_ms: uncertainty,
+                reassigned,
+                batch,
+            })?;
+            known.opened(
+                &pass_uid,
+                StoredPass {
+                    id,
+                    bin: bin.id,
+                    task: event.task,
+                    user: batch.sender.user.0,
+                },
+            );
+            id
+        }
     };
 
-    let id = event.id.to_string();
     match &event.body {
         Body::BinOpened { .. } => {
             if let Some(task) = event.task {
                 tx.start_task(task)?;
             }
         }
-        Body::Line(line) => tx.insert_line(&NewLine {
-            uid: &id,
+        Body::Line(line) => known.line(NewLine {
+            uid: event.id.to_string(),
             pass: pass_id,
             item: line_item.expect("a line's item was resolved above"),
             line,
@@ -419,16 +477,8 @@ fn apply_event(
             device_at: event.device_at,
             uncertainty_ms: uncertainty,
             found: flags.contains(&EventFlag::FoundStock),
-        })?,
-        Body::Undo { line } => {
-            let line_uid = line.to_string();
-            if tx.line_pass(&line_uid)?.is_some_and(|o| o != pass_uid) {
-                return refuse(format!("line {line_uid} is not a line of count {pass_uid}"));
-            }
-            if !tx.undo_line(&line_uid, &id, &pass_uid, at)? {
-                return refuse(format!("line {line_uid} was undone already"));
-            }
-        }
+        }),
+        Body::Undo { .. } => {}
         Body::BinEmpty => tx.mark_empty(pass_id)?,
         Body::BinDone => {
             tx.mark_done(pass_id, at)?;
@@ -437,29 +487,24 @@ fn apply_event(
             }
         }
     }
-    tx.insert_event(&NewEvent {
+    known.record(NewEvent {
         event,
         batch,
         at,
         uncertainty_ms: uncertainty,
-        flags: &flags,
-    })?;
+        flags: flags.clone(),
+    });
     Ok((flags, pass_id))
 }
 
 /// Resolves a line's item and checks its pack; says whether the bin was not expected
 /// to hold the item (no non-zero balance of it there).
-fn check_line(
-    tx: &dyn SyncTx,
-    site: SiteId,
-    bin: i64,
-    line: &Line,
-) -> Result<(i64, bool), Refusal> {
-    let Some(item) = tx.item_id(site, line.sku.as_str())? else {
+fn check_line(known: &Known<'_>, bin: i64, line: &Line) -> Result<(i64, bool), Refusal> {
+    let Some(item) = known.item(line.sku.as_str()) else {
         return refuse(format!("no item {} at this site", line.sku));
     };
     if let Some(gtin) = &line.gtin {
-        let Some((pack_item, units)) = tx.pack(site, gtin)? else {
+        let Some((pack_item, units)) = known.pack(gtin) else {
             return refuse(format!("GTIN {gtin} is not known at this site"));
         };
         if pack_item != item {
@@ -472,5 +517,5 @@ fn check_line(
             ));
         }
     }
-    Ok((item, !tx.bin_holds(bin, item)?))
+    Ok((item, !known.holds(bin, item)))
 }

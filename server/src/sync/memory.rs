@@ -53,7 +53,6 @@ struct Memory {
     items: BTreeMap<String, i64>,
     packs: BTreeMap<String, (i64, i64)>,
     state: RefCell<State>,
-    saved: RefCell<Option<State>>,
 }
 
 impl Memory {
@@ -88,23 +87,6 @@ impl Memory {
 impl SyncTx for Memory {
     fn stored_event(&self, uid: &str) -> Result<Option<(String, Vec<EventFlag>)>, StoreError> {
         Ok(self.state.borrow().events.get(uid).cloned())
-    }
-
-    fn begin_event(&self) -> Result<(), StoreError> {
-        *self.saved.borrow_mut() = Some(self.state.borrow().clone());
-        Ok(())
-    }
-
-    fn keep_event(&self) -> Result<(), StoreError> {
-        *self.saved.borrow_mut() = None;
-        Ok(())
-    }
-
-    fn drop_event(&self) -> Result<(), StoreError> {
-        if let Some(s) = self.saved.borrow_mut().take() {
-            *self.state.borrow_mut() = s;
-        }
-        Ok(())
     }
 
     fn previous_clock(&self, device: DeviceId) -> Result<Option<Sampled>, StoreError> {
@@ -204,7 +186,7 @@ impl SyncTx for Memory {
     fn insert_line(&self, l: &NewLine<'_>) -> Result<(), StoreError> {
         let mut s = self.state.borrow_mut();
         let uid = s.passes[l.pass as usize - 1].uid.clone();
-        s.lines.insert(l.uid.into(), uid);
+        s.lines.insert(l.uid.clone(), uid);
         Ok(())
     }
 
@@ -434,4 +416,52 @@ fn an_event_far_before_the_server_received_it_is_refused() {
         "the reason names the time bounds: {r:?}"
     );
     assert!(m.state.borrow().passes.is_empty());
+}
+
+#[test]
+fn an_undo_sees_a_line_sent_earlier_in_the_same_request_and_a_refused_undo_opens_no_count() {
+    let m = Memory::new();
+    let undo =
+        |id: u128, pass: u128, line: u128| ev(id, pass, 30, "undo", json!({ "line": uid(line) }));
+    let events = [
+        opened(1, 120),
+        line(2, 1, 60, 12),
+        undo(3, 1, 2),
+        // The same line again: undone already.
+        undo(4, 1, 2),
+        // From a count the line is not of: refused before that count is opened.
+        undo(5, 9, 2),
+        // The line's event resent within the request: a repeat.
+        line(2, 1, 60, 12),
+    ];
+    let r = apply_batch(&m, &batch("cora", 0, &events)).unwrap();
+    assert_eq!(
+        statuses(&r),
+        [
+            EventStatus::Accepted,
+            EventStatus::Accepted,
+            EventStatus::Accepted,
+            EventStatus::Rejected,
+            EventStatus::Rejected,
+            EventStatus::Accepted,
+        ],
+        "{r:?}"
+    );
+    assert!(
+        r[3].reason
+            .as_deref()
+            .unwrap_or("")
+            .contains("undone already")
+    );
+    assert!(
+        r[4].reason
+            .as_deref()
+            .unwrap_or("")
+            .contains("not a line of count")
+    );
+    assert!(r[5].repeat, "{r:?}");
+    let s = m.state.borrow();
+    assert_eq!(s.passes.len(), 1, "the refused undo opened no count");
+    assert_eq!(s.events.len(), 3);
+    assert_eq!(s.undone.len(), 1);
 }

@@ -10,6 +10,7 @@
 pub mod apply;
 pub mod clock;
 pub mod event;
+pub mod gather;
 pub mod plausible;
 pub mod results;
 pub mod routes;

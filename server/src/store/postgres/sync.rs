@@ -1,6 +1,7 @@
 //! Phones' sync over PostgreSQL: the queries and writes of `SyncTx` (the workflow is
-//! `sync::apply`'s; one savepoint per event), the phone's catalogue and the count lines
-//! support reads. The SQL follows `store/sqlite/sync.rs`.
+//! `sync::apply`'s), the phone's catalogue and the count lines support reads. The SQL
+//! follows `store/sqlite/sync.rs`; a request's reads go together in two round trips and
+//! its lines, events and pass widenings in one (`facts`, `holdings`, `write_events`).
 
 use super::PgStore;
 use super::tx::PgTx;
@@ -12,16 +13,215 @@ use crate::sync::apply::{
     EventBin, EventTask, NewEvent, NewLine, NewPass, PassTrust, StoredPass, SyncTx,
 };
 use crate::sync::clock::ClockSample;
+use crate::sync::gather::{EventWrites, SyncFacts, SyncKeys};
 use crate::sync::plausible::Sampled;
 use crate::sync::results::StoredLine;
 use crate::time::Timestamp;
 use cairn_scan::wire::EventFlag;
+use std::collections::HashSet;
 use tokio_postgres::Row;
+use tokio_postgres::types::ToSql;
 
 /// A stored bigint as a narrower integer.
 fn narrow<T: TryFrom<i64>>(r: &Row, i: usize) -> Result<T, StoreError> {
     let v: i64 = r.try_get(i)?;
     T::try_from(v).map_err(|_| anyhow::anyhow!("stored value {v} is out of range").into())
+}
+
+/// The columns a bin is read with (`bin_row`), then `$more` columns; a caller adds the
+/// condition.
+macro_rules! bin_sql {
+    ($more:literal) => {
+        concat!(
+            "select b.id, z.code, b.aisle, b.bay, b.level",
+            $more,
+            " from bin b join zone z on z.id = b.zone_id"
+        )
+    };
+}
+
+fn bin_row(r: &Row) -> Result<EventBin, StoreError> {
+    Ok(EventBin {
+        id: r.try_get(0)?,
+        zone: r.try_get(1)?,
+        aisle: narrow(r, 2)?,
+        bay: narrow(r, 3)?,
+        level: narrow(r, 4)?,
+    })
+}
+
+/// The columns a task is read with (`task_row`), then `$more` columns; a caller adds the
+/// condition.
+macro_rules! task_sql {
+    ($more:literal) => {
+        concat!(
+            "select t.bin_id, coalesce(r.holder, ''), b.code, l.day, l.built_at,
+                (select p.done_at from count_result c join count_pass p on p.id = c.pass_id
+                 where c.id = t.recount_of),
+                t.recount_of is not null,
+                case when t.withdrawn_at is not null then t.withdrawn_reason end",
+            $more,
+            " from count_task t
+             join count_list l on l.id = t.list_id join bin b on b.id = t.bin_id
+             left join count_run r on r.list_id = t.list_id and r.run = t.run"
+        )
+    };
+}
+
+fn task_row(r: &Row) -> Result<EventTask, StoreError> {
+    Ok(EventTask {
+        bin: r.try_get(0)?,
+        holder: r.try_get(1)?,
+        bin_code: r.try_get(2)?,
+        day: r.try_get(3)?,
+        built_at: Timestamp(r.try_get(4)?),
+        recheck_done_at: r.try_get::<_, Option<i64>>(5)?.map(Timestamp),
+        is_recount: r.try_get(6)?,
+        withdrawn: r.try_get(7)?,
+    })
+}
+
+/// The columns a pass is read with (`pass_row`), then `$more` columns; a caller adds the
+/// condition.
+macro_rules! pass_sql {
+    ($more:literal) => {
+        concat!(
+            "select id, bin_id, task_id, user_id",
+            $more,
+            " from count_pass"
+        )
+    };
+}
+
+fn pass_row(r: &Row) -> Result<StoredPass, StoreError> {
+    Ok(StoredPass {
+        id: r.try_get(0)?,
+        bin: r.try_get(1)?,
+        task: r.try_get(2)?,
+        user: r.try_get(3)?,
+    })
+}
+
+/// Count lines as one array a column, for a multi-row insert.
+struct LineColumns {
+    uid: Vec<String>,
+    pass: Vec<i64>,
+    item: Vec<i64>,
+    lot: Vec<String>,
+    expiry: Vec<Option<String>>,
+    qty: Vec<i64>,
+    packs: Vec<i64>,
+    gtin: Vec<Option<String>>,
+    entry: Vec<&'static str>,
+    at: Vec<i64>,
+    device_at: Vec<i64>,
+    uncertainty_ms: Vec<i64>,
+    found: Vec<bool>,
+}
+
+impl LineColumns {
+    fn of(lines: &[NewLine<'_>]) -> Self {
+        Self {
+            uid: lines.iter().map(|l| l.uid.clone()).collect(),
+            pass: lines.iter().map(|l| l.pass).collect(),
+            item: lines.iter().map(|l| l.item).collect(),
+            lot: lines.iter().map(|l| l.line.lot.clone()).collect(),
+            expiry: lines
+                .iter()
+                .map(|l| l.line.expiry.map(|d| d.format("%Y-%m-%d").to_string()))
+                .collect(),
+            qty: lines.iter().map(|l| l.line.qty).collect(),
+            packs: lines.iter().map(|l| l.line.packs).collect(),
+            gtin: lines.iter().map(|l| l.line.gtin.clone()).collect(),
+            entry: lines.iter().map(|l| l.line.entry.as_str()).collect(),
+            at: lines.iter().map(|l| l.at.0).collect(),
+            device_at: lines.iter().map(|l| l.device_at).collect(),
+            uncertainty_ms: lines.iter().map(|l| l.uncertainty_ms).collect(),
+            found: lines.iter().map(|l| l.found).collect(),
+        }
+    }
+
+    fn params(&self) -> [&(dyn ToSql + Sync); 13] {
+        [
+            &self.uid,
+            &self.pass,
+            &self.item,
+            &self.lot,
+            &self.expiry,
+            &self.qty,
+            &self.packs,
+            &self.gtin,
+            &self.entry,
+            &self.at,
+            &self.device_at,
+            &self.uncertainty_ms,
+            &self.found,
+        ]
+    }
+}
+
+/// Accepted events as one array a column, for a multi-row insert.
+struct EventColumns<'a> {
+    uid: Vec<String>,
+    site: Vec<i64>,
+    user: Vec<i64>,
+    device: Vec<Option<i64>>,
+    pass: Vec<String>,
+    kind: Vec<&'a str>,
+    body: Vec<&'a str>,
+    device_at: Vec<i64>,
+    at: Vec<i64>,
+    uncertainty_ms: Vec<i64>,
+    flags: Vec<String>,
+    received_at: Vec<i64>,
+    made_by: Vec<&'a str>,
+}
+
+impl<'a> EventColumns<'a> {
+    fn of(events: &'a [NewEvent<'a>]) -> Self {
+        Self {
+            uid: events.iter().map(|e| e.event.id.to_string()).collect(),
+            site: events.iter().map(|e| e.batch.site.0).collect(),
+            user: events.iter().map(|e| e.batch.sender.user.0).collect(),
+            device: events
+                .iter()
+                .map(|e| e.batch.sender.device.map(|d| d.0))
+                .collect(),
+            pass: events.iter().map(|e| e.event.pass.to_string()).collect(),
+            kind: events.iter().map(|e| e.event.kind.as_str()).collect(),
+            body: events.iter().map(|e| e.event.canonical.as_str()).collect(),
+            device_at: events.iter().map(|e| e.event.device_at).collect(),
+            at: events.iter().map(|e| e.at.0).collect(),
+            uncertainty_ms: events.iter().map(|e| e.uncertainty_ms).collect(),
+            flags: events
+                .iter()
+                .map(|e| crate::sync::results::flag_text(&e.flags))
+                .collect(),
+            received_at: events.iter().map(|e| e.batch.received_at.0).collect(),
+            made_by: events
+                .iter()
+                .map(|e| e.event.user.as_deref().unwrap_or(&e.batch.sender.user_name))
+                .collect(),
+        }
+    }
+
+    fn params(&self) -> [&(dyn ToSql + Sync); 13] {
+        [
+            &self.uid,
+            &self.site,
+            &self.user,
+            &self.device,
+            &self.pass,
+            &self.kind,
+            &self.body,
+            &self.device_at,
+            &self.at,
+            &self.uncertainty_ms,
+            &self.flags,
+            &self.received_at,
+            &self.made_by,
+        ]
+    }
 }
 
 impl SyncTx for PgTx<'_> {
@@ -32,18 +232,6 @@ impl SyncTx for PgTx<'_> {
                 Ok((r.try_get(0)?, crate::sync::results::flags_of(&flags)))
             })
             .transpose()
-    }
-
-    fn begin_event(&self) -> Result<(), StoreError> {
-        Ok(self.batch("savepoint sync_event")?)
-    }
-
-    fn keep_event(&self) -> Result<(), StoreError> {
-        Ok(self.batch("release savepoint sync_event")?)
-    }
-
-    fn drop_event(&self) -> Result<(), StoreError> {
-        Ok(self.batch("rollback to savepoint sync_event; release savepoint sync_event")?)
     }
 
     fn previous_clock(&self, device: DeviceId) -> Result<Option<Sampled>, StoreError> {
@@ -112,48 +300,19 @@ impl SyncTx for PgTx<'_> {
 
     fn bin(&self, site: SiteId, code: &str) -> Result<Option<EventBin>, StoreError> {
         self.query_opt(
-            "select b.id, z.code, b.aisle, b.bay, b.level
-             from bin b join zone z on z.id = b.zone_id
-             where b.site_id = $1 and b.code = $2",
+            concat!(bin_sql!(""), " where b.site_id = $1 and b.code = $2"),
             &[&site.0, &code],
         )?
-        .map(|r| {
-            Ok(EventBin {
-                id: r.try_get(0)?,
-                zone: r.try_get(1)?,
-                aisle: narrow(&r, 2)?,
-                bay: narrow(&r, 3)?,
-                level: narrow(&r, 4)?,
-            })
-        })
+        .map(|r| bin_row(&r))
         .transpose()
     }
 
     fn task(&self, site: SiteId, task: i64) -> Result<Option<EventTask>, StoreError> {
         self.query_opt(
-            "select t.bin_id, coalesce(r.holder, ''), b.code, l.day, l.built_at,
-                    (select p.done_at from count_result c join count_pass p on p.id = c.pass_id
-                     where c.id = t.recount_of),
-                    t.recount_of is not null,
-                    case when t.withdrawn_at is not null then t.withdrawn_reason end
-             from count_task t
-             join count_list l on l.id = t.list_id join bin b on b.id = t.bin_id
-             left join count_run r on r.list_id = t.list_id and r.run = t.run
-             where t.id = $1 and l.site_id = $2",
+            concat!(task_sql!(""), " where t.id = $1 and l.site_id = $2"),
             &[&task, &site.0],
         )?
-        .map(|r| {
-            Ok(EventTask {
-                bin: r.try_get(0)?,
-                holder: r.try_get(1)?,
-                bin_code: r.try_get(2)?,
-                day: r.try_get(3)?,
-                built_at: Timestamp(r.try_get(4)?),
-                recheck_done_at: r.try_get::<_, Option<i64>>(5)?.map(Timestamp),
-                is_recount: r.try_get(6)?,
-                withdrawn: r.try_get(7)?,
-            })
-        })
+        .map(|r| task_row(&r))
         .transpose()
     }
 
@@ -162,19 +321,9 @@ impl SyncTx for PgTx<'_> {
     }
 
     fn pass_by_uid(&self, uid: &str) -> Result<Option<StoredPass>, StoreError> {
-        self.query_opt(
-            "select id, bin_id, task_id, user_id from count_pass where uid = $1",
-            &[&uid],
-        )?
-        .map(|r| {
-            Ok(StoredPass {
-                id: r.try_get(0)?,
-                bin: r.try_get(1)?,
-                task: r.try_get(2)?,
-                user: r.try_get(3)?,
-            })
-        })
-        .transpose()
+        self.query_opt(concat!(pass_sql!(""), " where uid = $1"), &[&uid])?
+            .map(|r| pass_row(&r))
+            .transpose()
     }
 
     fn item_id(&self, site: SiteId, sku: &str) -> Result<Option<i64>, StoreError> {
@@ -341,11 +490,149 @@ impl SyncTx for PgTx<'_> {
                 &e.event.device_at,
                 &e.at.0,
                 &e.uncertainty_ms,
-                &crate::sync::results::flag_text(e.flags),
+                &crate::sync::results::flag_text(&e.flags),
                 &b.received_at.0,
                 &e.event.user.as_deref().unwrap_or(&b.sender.user_name),
             ],
         )?;
+        Ok(())
+    }
+
+    /// Six reads sent together: one round trip for a request's keys.
+    fn facts(&self, site: SiteId, keys: &SyncKeys) -> Result<SyncFacts, StoreError> {
+        let events: &[&(dyn ToSql + Sync)] = &[&keys.events];
+        let bins: &[&(dyn ToSql + Sync)] = &[&site.0, &keys.bins];
+        let tasks: &[&(dyn ToSql + Sync)] = &[&keys.tasks, &site.0];
+        let passes: &[&(dyn ToSql + Sync)] = &[&keys.passes];
+        let skus: &[&(dyn ToSql + Sync)] = &[&site.0, &keys.skus];
+        let gtins: &[&(dyn ToSql + Sync)] = &[&site.0, &keys.gtins];
+        let (events, bins, tasks, passes, items, packs) =
+            self.together("sync: a request's reads", async {
+                tokio::try_join!(
+                    self.rows(
+                        "select uid, body, flags from sync_event where uid = any($1)",
+                        events
+                    ),
+                    self.rows(
+                        concat!(bin_sql!(", b.code"), " where b.site_id = $1 and b.code = any($2)"),
+                        bins
+                    ),
+                    self.rows(
+                        concat!(task_sql!(", t.id"), " where t.id = any($1) and l.site_id = $2"),
+                        tasks
+                    ),
+                    self.rows(
+                        concat!(pass_sql!(", uid"), " where uid = any($1)"),
+                        passes
+                    ),
+                    self.rows(
+                        "select sku, id from item where site_id = $1 and sku = any($2)",
+                        skus
+                    ),
+                    self.rows(
+                        "select gtin, item_id, units from pack where site_id = $1 and gtin = any($2)",
+                        gtins
+                    ),
+                )
+            })?;
+        let mut f = SyncFacts::default();
+        for r in &events {
+            let flags: String = r.try_get(2)?;
+            f.events.insert(
+                r.try_get(0)?,
+                (r.try_get(1)?, crate::sync::results::flags_of(&flags)),
+            );
+        }
+        for r in &bins {
+            f.bins.insert(r.try_get(5)?, bin_row(r)?);
+        }
+        for r in &tasks {
+            f.tasks.insert(r.try_get(8)?, task_row(r)?);
+        }
+        for r in &passes {
+            f.passes.insert(r.try_get(4)?, pass_row(r)?);
+        }
+        for r in &items {
+            f.items.insert(r.try_get(0)?, r.try_get(1)?);
+        }
+        for r in &packs {
+            f.packs
+                .insert(r.try_get(0)?, (r.try_get(1)?, r.try_get(2)?));
+        }
+        Ok(f)
+    }
+
+    fn holdings(&self, pairs: &[(i64, i64)]) -> Result<HashSet<(i64, i64)>, StoreError> {
+        let (bins, items): (Vec<i64>, Vec<i64>) = pairs.iter().copied().unzip();
+        self.query(
+            "select distinct b.bin_id, b.item_id
+             from unnest($1::bigint[], $2::bigint[]) as k(bin, item)
+             join balance b on b.bin_id = k.bin and b.item_id = k.item
+             where b.qty <> 0",
+            &[&bins, &items],
+        )?
+        .iter()
+        .map(|r| Ok((r.try_get(0)?, r.try_get(1)?)))
+        .collect()
+    }
+
+    /// Three statements sent together, each taking every row of its kind: the widened
+    /// passes, the lines and the events (rows numbered so ids follow the order given).
+    fn write_events(&self, w: &EventWrites<'_>) -> Result<(), StoreError> {
+        let widened = (
+            w.widened.iter().map(|p| p.pass).collect::<Vec<_>>(),
+            w.widened.iter().map(|p| p.at.0).collect::<Vec<_>>(),
+            w.widened
+                .iter()
+                .map(|p| p.uncertainty_ms)
+                .collect::<Vec<_>>(),
+            w.widened.iter().map(|p| p.reassigned).collect::<Vec<_>>(),
+        );
+        let widened: &[&(dyn ToSql + Sync)] = &[&widened.0, &widened.1, &widened.2, &widened.3];
+        let lines = LineColumns::of(&w.lines);
+        let lines = lines.params();
+        let events = EventColumns::of(&w.events);
+        let events = events.params();
+        self.together("sync: a request's writes", async {
+            tokio::try_join!(
+                self.rows(
+                    "update count_pass p set first_at = least(p.first_at, v.at),
+                         uncertainty_ms = greatest(p.uncertainty_ms, v.uncertainty_ms),
+                         reassigned = p.reassigned or v.reassigned
+                     from unnest($1::bigint[], $2::bigint[], $3::bigint[], $4::boolean[])
+                         as v(id, at, uncertainty_ms, reassigned)
+                     where p.id = v.id",
+                    widened
+                ),
+                self.rows(
+                    "insert into count_line (uid, pass_id, item_id, lot, expiry, qty, packs, gtin,
+                         entry, at, device_at, uncertainty_ms, found)
+                     select uid, pass_id, item_id, lot, expiry, qty, packs, gtin, entry, at,
+                            device_at, uncertainty_ms, found
+                     from unnest($1::text[], $2::bigint[], $3::bigint[], $4::text[], $5::text[],
+                                 $6::bigint[], $7::bigint[], $8::text[], $9::text[],
+                                 $10::bigint[], $11::bigint[], $12::bigint[], $13::boolean[])
+                         with ordinality as v(uid, pass_id, item_id, lot, expiry, qty, packs,
+                             gtin, entry, at, device_at, uncertainty_ms, found, ord)
+                     order by ord",
+                    &lines
+                ),
+                self.rows(
+                    "insert into sync_event (uid, site_id, user_id, device_id, pass_uid, kind,
+                         body, device_at, at, uncertainty_ms, flags, received_at, made_by)
+                     select uid, site_id, user_id, device_id, pass_uid, kind, body, device_at,
+                            at, uncertainty_ms, flags, received_at, made_by
+                     from unnest($1::text[], $2::bigint[], $3::bigint[], $4::bigint[],
+                                 $5::text[], $6::text[], $7::text[], $8::bigint[], $9::bigint[],
+                                 $10::bigint[], $11::text[], $12::bigint[], $13::text[])
+                         with ordinality as v(uid, site_id, user_id, device_id, pass_uid, kind,
+                             body, device_at, at, uncertainty_ms, flags, received_at, made_by,
+                             ord)
+                     order by ord",
+                    &events
+                ),
+            )
+        })?;
         Ok(())
     }
 }

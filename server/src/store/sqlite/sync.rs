@@ -1,7 +1,7 @@
 //! SQL for phones' sync: the queries and writes of [`SyncTx`] (the workflow is
 //! `sync::apply`'s) — each accepted event recorded once, the count passes and lines they
-//! make, each device's clock sample, one savepoint per event — and the phone's catalogue
-//! and the count lines support reads.
+//! make, each device's clock sample — and the phone's catalogue and the count lines
+//! support reads.
 
 use super::Tx;
 use crate::accounts::DeviceId;
@@ -110,18 +110,6 @@ impl SyncTx for Tx<'_> {
                 ))
             })
             .optional()?)
-    }
-
-    fn begin_event(&self) -> Result<(), StoreError> {
-        Ok(self.execute_batch("savepoint sync_event")?)
-    }
-
-    fn keep_event(&self) -> Result<(), StoreError> {
-        Ok(self.execute_batch("release sync_event")?)
-    }
-
-    fn drop_event(&self) -> Result<(), StoreError> {
-        Ok(self.execute_batch("rollback to sync_event; release sync_event")?)
     }
 
     fn previous_clock(&self, device: DeviceId) -> Result<Option<Sampled>, StoreError> {
@@ -425,7 +413,7 @@ impl SyncTx for Tx<'_> {
             e.event.device_at,
             e.at.0,
             e.uncertainty_ms,
-            crate::sync::results::flag_text(e.flags),
+            crate::sync::results::flag_text(&e.flags),
             b.received_at.0,
             e.event.user.as_deref().unwrap_or(&b.sender.user_name)
         ])?;
