@@ -50,7 +50,22 @@ pub struct Rechecked {
     pub lot: String,
 }
 
-/// The queries and writes of placing a recount; each method one query or one write.
+/// What placing one pass's recount reads before it decides anything.
+#[derive(Debug, Clone, PartialEq)]
+pub struct PlacementRead {
+    /// The open task of that kind no phone has begun, with its list.
+    pub open_task: Option<(i64, i64)>,
+    pub zone: SiteZone,
+    /// The classes of the results sent (results without one are left out).
+    pub classes: Vec<Class>,
+    /// The keys with a non-zero balance in the bin.
+    pub bin_lines: i64,
+}
+
+/// The queries and writes of placing a recount; each method one query or one write,
+/// except the three that take a step's worth at once ([`RecountTx::placement_read`],
+/// [`RecountTx::day_plan`], [`RecountTx::write_recount_task`]), whose defaults call the
+/// one-at-a-time methods.
 pub trait RecountTx {
     fn site_zone(&self, site: SiteId) -> Result<SiteZone, StoreError>;
     /// The open task of that kind (recount or supervisor count) of pass `pass` that no
@@ -83,6 +98,53 @@ pub trait RecountTx {
     /// moves down one place); returns its id.
     fn insert_recount_task(&self, t: &NewRecountTask) -> Result<i64, StoreError>;
     fn set_list_warnings(&self, list: i64, warnings: &[String]) -> Result<(), StoreError>;
+
+    /// What placing `results` (first results of pass `pass`, in bin `bin` at `site`)
+    /// needs to know first.
+    fn placement_read(
+        &self,
+        site: SiteId,
+        pass: i64,
+        bin: i64,
+        results: &[i64],
+        supervisor: bool,
+    ) -> Result<PlacementRead, StoreError> {
+        let mut classes = Vec::new();
+        for r in results {
+            classes.extend(self.result_class(*r)?);
+        }
+        Ok(PlacementRead {
+            open_task: self.open_task_of(pass, supervisor)?,
+            zone: self.site_zone(site)?,
+            classes,
+            bin_lines: self.bin_lines(bin)?,
+        })
+    }
+    /// The list of a local day at a site with its runs, if there is one.
+    fn day_plan(
+        &self,
+        site: SiteId,
+        day: &str,
+    ) -> Result<Option<(DayList, Vec<RunLoad>)>, StoreError> {
+        match self.day_list(site, day)? {
+            Some(list) => {
+                let runs = self.runs(list.id)?;
+                Ok(Some((list, runs)))
+            }
+            None => Ok(None),
+        }
+    }
+    /// Writes a new recount task and links `results` to it; returns its id and what it
+    /// re-checks, oldest first.
+    fn write_recount_task(
+        &self,
+        t: &NewRecountTask,
+        results: &[i64],
+    ) -> Result<(i64, Vec<Rechecked>), StoreError> {
+        let task = self.insert_recount_task(t)?;
+        self.link_rechecks(task, results)?;
+        Ok((task, self.rechecked(task)?))
+    }
 }
 
 /// Sends first results of one pass to a recount (or a supervisor count) of its bin: into
@@ -98,14 +160,15 @@ pub fn send<T: RecountTx + ?Sized>(
     if results.is_empty() {
         return Ok(Vec::new());
     }
-    match tx.open_task_of(pass.id, supervisor)? {
+    let read = tx.placement_read(pass.site, pass.id, pass.bin_id, results, supervisor)?;
+    match read.open_task {
         Some((task, list)) => {
             tx.link_rechecks(task, results)?;
             tx.set_task_detail(task, &detail(&tx.rechecked(task)?, supervisor))?;
             tx.bump_list(list)?;
             Ok(Vec::new())
         }
-        None => Ok(vec![add_task(tx, pass, results, supervisor, sent)?]),
+        None => Ok(vec![add_task(tx, pass, &read, results, supervisor, sent)?]),
     }
 }
 
@@ -151,6 +214,7 @@ fn detail(rows: &[Rechecked], supervisor: bool) -> String {
 fn add_task<T: RecountTx + ?Sized>(
     tx: &T,
     pass: &PassFacts,
+    read: &PlacementRead,
     results: &[i64],
     supervisor: bool,
     sent: &Sent,
@@ -158,16 +222,16 @@ fn add_task<T: RecountTx + ?Sized>(
     let done = pass.timing.done.unwrap_or(pass.timing.first_scan);
     // The site's local day of the count, not the UTC one (a count at 23:30 in Chicago is
     // recounted on that day's list).
-    let day = tx
-        .site_zone(pass.site)?
-        .day_of(done)
-        .format("%Y-%m-%d")
-        .to_string();
-    let list = match tx.day_list(pass.site, &day)? {
-        Some(l) => l,
-        None => tx.create_day_list(pass.site, &day, RECOUNT_EST_S.div_euclid(60).max(1), sent)?,
+    let day = read.zone.day_of(done).format("%Y-%m-%d").to_string();
+    let (list, runs) = match tx.day_plan(pass.site, &day)? {
+        Some(plan) => plan,
+        None => {
+            let list =
+                tx.create_day_list(pass.site, &day, RECOUNT_EST_S.div_euclid(60).max(1), sent)?;
+            let runs = tx.runs(list.id)?;
+            (list, runs)
+        }
     };
-    let runs = tx.runs(list.id)?;
     let placement = if supervisor {
         let run = runs
             .iter()
@@ -190,24 +254,21 @@ fn add_task<T: RecountTx + ?Sized>(
         tx.add_run(list.id, run)?;
     }
     // The task is as important as the most important key it re-checks.
-    let mut class: Option<Class> = None;
-    for r in results {
-        if let Some(c) = tx.result_class(*r)? {
-            class = Some(class.map_or(c, |k| k.min(c)));
-        }
-    }
-    let task = tx.insert_recount_task(&NewRecountTask {
-        list: list.id,
-        bin: pass.bin_id,
-        run,
-        class,
-        lines: tx.bin_lines(pass.bin_id)?.max(1),
-        est_s: pass.task_est_s.unwrap_or(RECOUNT_EST_S),
-        recount_of: results[0],
-        supervisor,
-    })?;
-    tx.link_rechecks(task, results)?;
-    let detail = detail(&tx.rechecked(task)?, supervisor);
+    let class = read.classes.iter().copied().min();
+    let (task, rechecked) = tx.write_recount_task(
+        &NewRecountTask {
+            list: list.id,
+            bin: pass.bin_id,
+            run,
+            class,
+            lines: read.bin_lines.max(1),
+            est_s: pass.task_est_s.unwrap_or(RECOUNT_EST_S),
+            recount_of: results[0],
+            supervisor,
+        },
+        results,
+    )?;
+    let detail = detail(&rechecked, supervisor);
     tx.set_task_detail(task, &detail)?;
     let warning = warning.map(|w| {
         if supervisor {

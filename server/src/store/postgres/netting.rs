@@ -10,7 +10,9 @@ use crate::master::SiteId;
 use crate::netting::pass::{
     CurrentResult, ItemFacts, ItemLot, KeyRead, NettingTx, NewResult, OpenTask, PassRead,
 };
-use crate::netting::recount::{DayList, NewRecountTask, Rechecked, RecountTx, RunLoad};
+use crate::netting::recount::{
+    DayList, NewRecountTask, PlacementRead, Rechecked, RecountTx, RunLoad,
+};
 use crate::netting::results::*;
 use crate::netting::rule::CountTiming;
 use crate::netting::service::{Evidence, LedgerMove, NettingSettings, ReasonCode, SourceTimingRow};
@@ -710,26 +712,13 @@ impl NettingTx for PgTx<'_> {
 
 impl RecountTx for PgTx<'_> {
     fn site_zone(&self, site: SiteId) -> Result<SiteZone, StoreError> {
-        let zone: String = self
-            .query_one("select time_zone from site where id = $1", &[&site.0])?
-            .try_get(0)?;
-        SiteZone::parse(&zone)
-            .map_err(|e| anyhow::anyhow!("site {} has the zone '{zone}': {e}", site.0).into())
+        zone_row(&self.query_one(ZONE_SQL, &[&site.0])?, site)
     }
 
     fn open_task_of(&self, pass: i64, supervisor: bool) -> Result<Option<(i64, i64)>, StoreError> {
-        self.query_opt(
-            "select t.id, t.list_id from count_result r
-                 join count_task_recheck k on k.result_id = r.id
-                 join count_task t on t.id = k.task_id
-             where r.pass_id = $1 and t.supervisor = $2 and t.withdrawn_at is null
-               and t.status = 'open'
-               and not exists (select 1 from count_pass p where p.task_id = t.id)
-             order by t.id limit 1",
-            &[&pass, &supervisor],
-        )?
-        .map(|r| Ok((r.try_get(0)?, r.try_get(1)?)))
-        .transpose()
+        self.query_opt(OPEN_TASK_SQL, &[&pass, &supervisor])?
+            .map(|r| Ok((r.try_get(0)?, r.try_get(1)?)))
+            .transpose()
     }
 
     fn link_rechecks(&self, task: i64, results: &[i64]) -> Result<(), StoreError> {
@@ -783,19 +772,9 @@ impl RecountTx for PgTx<'_> {
     }
 
     fn day_list(&self, site: SiteId, day: &str) -> Result<Option<DayList>, StoreError> {
-        self.query_opt(
-            "select id, counters, warnings from count_list where site_id = $1 and day = $2",
-            &[&site.0, &day],
-        )?
-        .map(|r| {
-            let warnings: String = r.try_get(2)?;
-            Ok(DayList {
-                id: r.try_get(0)?,
-                counters: small(&r, 1)?,
-                warnings: serde_json::from_str(&warnings).unwrap_or_default(),
-            })
-        })
-        .transpose()
+        self.query_opt(DAY_LIST_SQL, &[&site.0, &day])?
+            .map(|r| day_list_row(&r))
+            .transpose()
     }
 
     fn create_day_list(
@@ -826,17 +805,10 @@ impl RecountTx for PgTx<'_> {
     }
 
     fn runs(&self, list: i64) -> Result<Vec<RunLoad>, StoreError> {
-        self.query(
-            "select r.run, r.holder,
-                    (select count(*) from count_task t
-                     where t.list_id = r.list_id and t.run = r.run and t.status <> 'done'
-                       and t.withdrawn_at is null)
-             from count_run r where r.list_id = $1 order by r.run",
-            &[&list],
-        )?
-        .iter()
-        .map(|r| Ok((small(r, 0)?, r.try_get(1)?, small(r, 2)?)))
-        .collect()
+        self.query(runs_sql!("$1"), &[&list])?
+            .iter()
+            .map(run_row)
+            .collect()
     }
 
     fn add_run(&self, list: i64, run: u32) -> Result<(), StoreError> {
@@ -913,6 +885,194 @@ impl RecountTx for PgTx<'_> {
         )?;
         Ok(())
     }
+
+    /// Four reads sent together.
+    fn placement_read(
+        &self,
+        site: SiteId,
+        pass: i64,
+        bin: i64,
+        results: &[i64],
+        supervisor: bool,
+    ) -> Result<PlacementRead, StoreError> {
+        let results = results.to_vec();
+        let by_pass: &[&(dyn ToSql + Sync)] = &[&pass, &supervisor];
+        let by_site: &[&(dyn ToSql + Sync)] = &[&site.0];
+        let by_result: &[&(dyn ToSql + Sync)] = &[&results];
+        let by_bin: &[&(dyn ToSql + Sync)] = &[&bin];
+        let (open, zone, classes, lines) = self.together("recount: placement reads", async {
+            tokio::try_join!(
+                self.rows(OPEN_TASK_SQL, by_pass),
+                self.rows(ZONE_SQL, by_site),
+                self.rows(
+                    "select class from count_result where id = any($1)",
+                    by_result
+                ),
+                self.rows(
+                    "select count(*) from balance where bin_id = $1 and qty <> 0",
+                    by_bin
+                ),
+            )
+        })?;
+        let zone = zone
+            .first()
+            .ok_or_else(|| anyhow::anyhow!("no site {}", site.0))?;
+        let lines = lines
+            .first()
+            .ok_or_else(|| anyhow::anyhow!("a count answered no row"))?;
+        Ok(PlacementRead {
+            open_task: open
+                .first()
+                .map(|r| Ok::<_, StoreError>((r.try_get(0)?, r.try_get(1)?)))
+                .transpose()?,
+            zone: zone_row(zone, site)?,
+            classes: classes
+                .iter()
+                .map(|r| Ok(r.try_get::<_, Option<String>>(0)?))
+                .collect::<Result<Vec<_>, StoreError>>()?
+                .iter()
+                .filter_map(|c| c.as_deref().and_then(Class::parse))
+                .collect(),
+            bin_lines: lines.try_get(0)?,
+        })
+    }
+
+    /// The list and its runs sent together.
+    fn day_plan(
+        &self,
+        site: SiteId,
+        day: &str,
+    ) -> Result<Option<(DayList, Vec<RunLoad>)>, StoreError> {
+        let p: &[&(dyn ToSql + Sync)] = &[&site.0, &day];
+        let (list, runs) = self.together("recount: a day's list and runs", async {
+            tokio::try_join!(
+                self.rows(DAY_LIST_SQL, p),
+                self.rows(
+                    runs_sql!("(select id from count_list where site_id = $1 and day = $2)"),
+                    p
+                ),
+            )
+        })?;
+        let Some(list) = list.first() else {
+            return Ok(None);
+        };
+        Ok(Some((
+            day_list_row(list)?,
+            runs.iter().map(run_row).collect::<Result<_, _>>()?,
+        )))
+    }
+
+    /// One statement: the place after the run's recounts, the tasks after it moved down,
+    /// the task, its links, and what it re-checks.
+    fn write_recount_task(
+        &self,
+        t: &NewRecountTask,
+        results: &[i64],
+    ) -> Result<(i64, Vec<Rechecked>), StoreError> {
+        let rows = self.query(
+            "with place as (
+                 select coalesce(
+                     (select max(seq) + 1 from count_task
+                      where list_id = $1 and run = $2 and recount_of is not null),
+                     (select min(seq) from count_task where list_id = $1 and run = $2),
+                     1) as seq
+             ), moved as (
+                 update count_task set seq = seq + 1
+                 where list_id = $1 and run = $2 and recount_of is null
+                   and seq >= (select seq from place)
+             ), task as (
+                 insert into count_task (list_id, bin_id, seq, run, reason, class, detail,
+                     lines, est_s, recount_of, supervisor)
+                 select $1, $3, place.seq, $2, 'recount', $4, '', $5, $6, $7, $8 from place
+                 returning id
+             ), linked as (
+                 insert into count_task_recheck (task_id, result_id)
+                 select task.id, r from task, unnest($9::bigint[]) as r
+                 on conflict do nothing
+             )
+             select task.id, x.id, x.sku, x.lot
+             from task left join lateral (
+                 select r.id, i.sku, r.lot from count_result r join item i on i.id = r.item_id
+                 where r.id = any($9)
+             ) x on true
+             order by x.id",
+            &[
+                &t.list,
+                &big(t.run),
+                &t.bin,
+                &t.class.map(Class::as_str),
+                &t.lines,
+                &t.est_s,
+                &t.recount_of,
+                &t.supervisor,
+                &results,
+            ],
+        )?;
+        let task = rows
+            .first()
+            .ok_or_else(|| anyhow::anyhow!("a recount task was not written"))?
+            .try_get(0)?;
+        let mut rechecked = Vec::with_capacity(rows.len());
+        for r in &rows {
+            if let Some(result) = r.try_get::<_, Option<i64>>(1)? {
+                rechecked.push(Rechecked {
+                    result,
+                    sku: r.try_get(2)?,
+                    lot: r.try_get(3)?,
+                });
+            }
+        }
+        Ok((task, rechecked))
+    }
+}
+
+const ZONE_SQL: &str = "select time_zone from site where id = $1";
+
+fn zone_row(r: &Row, site: SiteId) -> Result<SiteZone, StoreError> {
+    let zone: String = r.try_get(0)?;
+    SiteZone::parse(&zone)
+        .map_err(|e| anyhow::anyhow!("site {} has the zone '{zone}': {e}", site.0).into())
+}
+
+/// The open task of a kind ($2: supervisor count or recount) of pass $1 no phone has begun.
+const OPEN_TASK_SQL: &str = "select t.id, t.list_id from count_result r
+         join count_task_recheck k on k.result_id = r.id
+         join count_task t on t.id = k.task_id
+     where r.pass_id = $1 and t.supervisor = $2 and t.withdrawn_at is null
+       and t.status = 'open'
+       and not exists (select 1 from count_pass p where p.task_id = t.id)
+     order by t.id limit 1";
+
+const DAY_LIST_SQL: &str =
+    "select id, counters, warnings from count_list where site_id = $1 and day = $2";
+
+fn day_list_row(r: &Row) -> Result<DayList, StoreError> {
+    let warnings: String = r.try_get(2)?;
+    Ok(DayList {
+        id: r.try_get(0)?,
+        counters: small(r, 1)?,
+        warnings: serde_json::from_str(&warnings).unwrap_or_default(),
+    })
+}
+
+/// A list's runs with their tasks not done; `$list` is the list's id or a subquery.
+macro_rules! runs_sql {
+    ($list:literal) => {
+        concat!(
+            "select r.run, r.holder,
+                    (select count(*) from count_task t
+                     where t.list_id = r.list_id and t.run = r.run and t.status <> 'done'
+                       and t.withdrawn_at is null)
+             from count_run r where r.list_id = ",
+            $list,
+            " order by r.run"
+        )
+    };
+}
+use runs_sql;
+
+fn run_row(r: &Row) -> Result<RunLoad, StoreError> {
+    Ok((small(r, 0)?, r.try_get(1)?, small(r, 2)?))
 }
 
 impl SettleTx for PgTx<'_> {
