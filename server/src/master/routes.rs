@@ -74,7 +74,7 @@ async fn list_sites(
 }
 
 #[derive(Serialize)]
-struct SiteView {
+pub(crate) struct SiteView {
     #[serde(flatten)]
     site: Site,
     counts: SiteCounts,
