@@ -113,6 +113,20 @@ async fn every_command_of_the_integration_guide_answers_what_the_guide_shows() {
     let guide = std::fs::read_to_string(&guide_path).expect("docs/integration.md is there");
     let steps = steps(&guide);
     assert!(steps.len() >= 8, "only {} steps", steps.len());
+    // Each refusal the guide explains is shown by a command that gets it.
+    let shown: Vec<u16> = steps
+        .iter()
+        .filter_map(|s| match s.expect {
+            Expect::Json { status, .. } => Some(status),
+            Expect::Text(_) => None,
+        })
+        .collect();
+    for status in [400, 401, 409, 422, 429] {
+        assert!(
+            shown.contains(&status),
+            "no command of the guide answers {status}"
+        );
+    }
 
     let app = spawn_app().await;
     let db = app.db_arg();
