@@ -373,6 +373,15 @@ fn site_op(method: &str, tail: &str, s: &mut Schemas) -> Option<Op> {
         .q("sku", "Only this SKU's lots.", string())
         .paged(1000, 200)
         .etag(),
+        ("GET", "/packs") => Op::new(
+            "Read packs back",
+            "A page of packs by SKU, then GTIN, each as `POST packs` takes it.",
+            page("packs", s.of::<crate::master::read::SkuPackRow>(), string()),
+        )
+        .says("The same packs `GET items` lists under each item, one row each with its SKU.")
+        .q("sku", "Only this SKU's packs.", string())
+        .paged(1000, 200)
+        .etag(),
         ("POST", "/packs") => Op::new("Create or update packs", "Every pack was written.", written())
             .says("A batch of packs (a GTIN, its level and how many base units it holds), \
                    written whole or not at all.")
