@@ -43,7 +43,7 @@ highest one written at the site when a batch was answered or a result was netted
 
 **Paging.** Lists answer a page and `next`; send `next` back as `after` for the following \
 page. `next` is null on the last page. Read-back lists (zones, bins, items, lots, \
-planner inputs) carry a weak ETag and answer 304 to `If-None-Match`.
+packs, planner inputs) carry a weak ETag and answer 304 to `If-None-Match`.
 
 **Limits.** A batch holds at most 5,000 elements; a body at most `max_body_bytes`. A \
 server busy hashing answers 429 with `Retry-After`.";
