@@ -3,11 +3,19 @@
 //! with the CLI from `tests/contract/*.csv`), and its output is compared with the block
 //! after it: a `json N` block is the body (`"…"` matches any value) and N the HTTP status,
 //! a `text` block the printed text.
+//!
+//! Where the guide says a counter counted a bin (before its first read of the adjustments
+//! feed), the test does that count: a counter's phone enrols and syncs the bin over the
+//! API, and the results are settled as `cairn serve` settles them each minute, at an
+//! instant past every source's posting lag, so the feed holds the adjustment it posts.
 
 mod common;
 
-use common::spawn_app;
-use serde_json::Value;
+use cairn::accounts::Role;
+use cairn::time::Timestamp;
+use common::{Auth, Body, TestApp, spawn_app};
+use reqwest::Method;
+use serde_json::{Value, json};
 use std::path::{Path, PathBuf};
 use std::process::Command;
 
@@ -106,6 +114,71 @@ fn cairn(args: &[&str], input: Option<&str>) {
     );
 }
 
+/// The guide's count: KL-1001 in bin A-01-01-1, counted at 187 where the book holds 188.
+const COUNTED: i64 = 187;
+
+/// Counts A-01-01-1 as the guide tells (a counter's phone, one sync: bin opened, one
+/// keyed line, bin done), then settles a day later, past every posting lag; the site's
+/// policy (set by the guide) posts the within-tolerance difference automatically.
+async fn count_the_guide_s_bin(app: &TestApp) {
+    app.add_user(
+        "noor",
+        "KLN",
+        &[Role::Counter],
+        "kestrel-lane-counter",
+        Some("3185"),
+    )
+    .await;
+    let enrolled = app.enrol("noor", "3185", "KLN").await;
+    assert_eq!(enrolled.status, 201, "{}", enrolled.text);
+    let token = enrolled.json()["token"].as_str().unwrap().to_string();
+    let label = cairn::master::place_label("KLN", "A", 1, 1, 1)
+        .expect("the bin's place prints as a label")
+        .text()
+        .to_string();
+    let pass = uuid::Uuid::now_v7().to_string();
+    let at = Timestamp::now().0;
+    let event = |id: String, ms: i64, kind: &str, extra: Value| {
+        let mut e =
+            json!({"id": id, "at": at + ms, "count": pass, "bin": "A-01-01-1", "type": kind});
+        e.as_object_mut()
+            .unwrap()
+            .extend(extra.as_object().unwrap().clone());
+        e
+    };
+    let events = vec![
+        event(pass.clone(), 0, "bin_opened", json!({"label": label})),
+        event(
+            uuid::Uuid::now_v7().to_string(),
+            5,
+            "line",
+            json!({"sku": "KL-1001", "qty": COUNTED, "lot": "", "entry": "keypad"}),
+        ),
+        event(uuid::Uuid::now_v7().to_string(), 12, "bin_done", json!({})),
+    ];
+    let body = app.stamped(
+        &token,
+        &json!({"device_clock": at + 20, "rtt_ms": 80, "events": events}),
+    );
+    let a = app
+        .send(
+            Method::POST,
+            "/api/v1/sites/KLN/sync",
+            &Auth::Bearer(token),
+            Body::Json(body),
+        )
+        .await;
+    assert_eq!(a.status, 200, "{}", a.text);
+    for r in a.json()["results"].as_array().unwrap() {
+        assert_eq!(r["status"], "accepted", "{}", a.text);
+    }
+    let day_ms = 86_400_000;
+    let settled = cairn::writes::settle(app.state.store.as_ref(), Timestamp(at + day_ms))
+        .await
+        .expect("settling runs");
+    assert_eq!(settled.adjusted.len(), 1, "one automatic adjustment");
+}
+
 // Blocking commands run while the server answers on the runtime's other thread.
 #[tokio::test(flavor = "multi_thread", worker_threads = 2)]
 async fn every_command_of_the_integration_guide_answers_what_the_guide_shows() {
@@ -113,6 +186,20 @@ async fn every_command_of_the_integration_guide_answers_what_the_guide_shows() {
     let guide = std::fs::read_to_string(&guide_path).expect("docs/integration.md is there");
     let steps = steps(&guide);
     assert!(steps.len() >= 8, "only {} steps", steps.len());
+    // Each refusal the guide explains is shown by a command that gets it.
+    let shown: Vec<u16> = steps
+        .iter()
+        .filter_map(|s| match s.expect {
+            Expect::Json { status, .. } => Some(status),
+            Expect::Text(_) => None,
+        })
+        .collect();
+    for status in [400, 401, 409, 422, 429] {
+        assert!(
+            shown.contains(&status),
+            "no command of the guide answers {status}"
+        );
+    }
 
     let app = spawn_app().await;
     let db = app.db_arg();
@@ -173,7 +260,12 @@ async fn every_command_of_the_integration_guide_answers_what_the_guide_shows() {
     );
     let state = dir.path().join("vars");
     std::fs::write(&state, "").unwrap();
+    let mut counted = false;
     for step in &steps {
+        if !counted && step.script.contains("/adjustments?") {
+            count_the_guide_s_bin(&app).await;
+            counted = true;
+        }
         let script = format!(
             "set -a\n. '{state}'\n\
              curl() {{ command curl -w '\\n%{{http_code}}' \"$@\"; }}\n\

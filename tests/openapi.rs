@@ -452,3 +452,138 @@ async fn refusals_the_contract_run_found_are_named_and_in_the_error_shape() {
     let (s, b) = app.get("/api/v1/sites/T/balances?limit=1000").await;
     assert_eq!(s, 200, "{b}");
 }
+
+/// Tells whether a schema comes from a wire type: a reference, an array of references,
+/// or an object whose fields are listed (a page of rows), never an object in words.
+fn derived(schema: &Value) -> bool {
+    if schema.get("$ref").is_some() {
+        return true;
+    }
+    match schema["type"].as_str() {
+        Some("array") => derived(&schema["items"]),
+        Some("object") => schema["properties"]
+            .as_object()
+            .is_some_and(|p| !p.is_empty() && p.values().all(|v| v.is_object())),
+        _ => false,
+    }
+}
+
+#[tokio::test]
+async fn every_body_and_answer_of_json_has_a_schema_derived_from_its_wire_type() {
+    let app = spawn_app().await;
+    let doc = served_document(&app).await;
+    let mut words = Vec::new();
+    for (method, path, op) in operations(&doc) {
+        // The document itself is any OpenAPI document.
+        if path == "/api/v1/openapi.json" {
+            continue;
+        }
+        let key = format!("{method} {path}");
+        if let Some(body) = op["requestBody"]["content"]["application/json"].get("schema")
+            && !derived(body)
+        {
+            words.push(format!("{key}: body {body}"));
+        }
+        for (status, answer) in op["responses"].as_object().unwrap() {
+            let Some(schema) = answer["content"]["application/json"].get("schema") else {
+                continue;
+            };
+            if status.starts_with('2') && !derived(schema) {
+                words.push(format!("{key}: {status} {schema}"));
+            }
+        }
+    }
+    assert!(words.is_empty(), "schemas in words: {words:#?}");
+    // The answers once described in words name their fields now.
+    let schemas = &doc["components"]["schemas"];
+    for (name, field) in [
+        ("ResultDetail", "evidence"),
+        ("SyncResponse", "offset_ms"),
+        ("SyncRequest", "device_clock"),
+        ("AccuracyReport", "ira"),
+        ("BufferReport", "record_error"),
+        ("ListView", "tasks"),
+        ("PhoneList", "time_zone"),
+    ] {
+        let text = schemas[name].to_string();
+        assert!(text.contains(&format!("\"{field}\"")), "{name}: {text}");
+    }
+}
+
+#[tokio::test]
+async fn a_struct_sent_as_an_array_of_its_fields_is_refused_naming_where() {
+    let app = spawn_app().await;
+    app.small_site().await;
+    let (s, before) = app.get("/api/v1/sites/T/netting/settings").await;
+    assert_eq!(s, 200, "{before}");
+    // serde alone reads `[null, null]` as the tolerance {units: null, percent_bp: null}.
+    let mut sent = before.clone();
+    sent["tolerances"]["c"] = json!([null, null]);
+    let (s, b) = app.put("/api/v1/sites/T/netting/settings", &sent).await;
+    assert_eq!(s, 400, "{b}");
+    let text = b["error"].as_str().unwrap();
+    assert!(
+        text.starts_with("tolerances.c: an array where an object is expected"),
+        "{b}"
+    );
+    let (_, after) = app.get("/api/v1/sites/T/netting/settings").await;
+    assert_eq!(after, before, "a refused body changes nothing");
+    // The same object as an object is taken.
+    sent["tolerances"]["c"] = json!({ "units": 3, "percent_bp": null, "value_minor": null });
+    let (s, b) = app.put("/api/v1/sites/T/netting/settings", &sent).await;
+    assert_eq!(s, 200, "{b}");
+    assert_eq!(b["tolerances"]["c"]["units"], 3);
+
+    // A whole settings body as an array, and a batch row as an array, are refused too.
+    let (s, b) = app
+        .put("/api/v1/sites/T/planning/settings", &json!([1, 2, 3]))
+        .await;
+    assert_eq!(s, 400, "{b}");
+    assert!(
+        b["error"]
+            .as_str()
+            .unwrap()
+            .starts_with("body: an array where an object"),
+        "{b}"
+    );
+    let (s, b) = app
+        .post(
+            "/api/v1/sites/T/movements",
+            &json!([
+                movement(
+                    "m-1",
+                    "A-01-01-1",
+                    "S1",
+                    5,
+                    "receipt",
+                    "2026-03-02T08:00:00Z"
+                ),
+                [
+                    "m-2",
+                    "A-01-01-1",
+                    "S1",
+                    null,
+                    null,
+                    5,
+                    "receipt",
+                    "2026-03-02T08:00:00Z"
+                ]
+            ]),
+        )
+        .await;
+    assert_eq!(s, 422, "{b}");
+    assert_eq!(b["rows"][0]["index"], 1, "{b}");
+    assert!(
+        b["rows"][0]["message"]
+            .as_str()
+            .unwrap()
+            .starts_with("an array where an object"),
+        "{b}"
+    );
+    let (_, balances) = app.get("/api/v1/sites/T/balances").await;
+    assert_eq!(
+        balances["balances"],
+        json!([]),
+        "nothing of the refused batch was written"
+    );
+}

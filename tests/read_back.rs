@@ -254,6 +254,68 @@ async fn zones_read_back_in_code_order_with_their_walk_place_and_bins() {
 }
 
 #[tokio::test]
+async fn packs_read_back_equal_what_was_posted_paged_over_sku_and_gtin_and_post_back_unchanged() {
+    let app = spawn_app().await;
+    app.small_site().await;
+    let (s, before) = app.get("/api/v1/sites/T/packs").await;
+    assert_eq!(s, 200, "{before}");
+    app.post_ok(
+        "/api/v1/sites/T/items",
+        &json!([{"sku": "HB-10", "description": "Hex bolt M10", "base_unit": "each",
+                 "unit_cost_minor": 31, "lot_tracked": false}]),
+    )
+    .await;
+    let (each, case, inner) = (
+        gtin14("0501234567001"),
+        gtin14("1501234567001"),
+        gtin14("2501234567001"),
+    );
+    let posted = json!([
+        {"sku": "HB-10", "gtin": inner, "level": "inner", "units": 10},
+        {"sku": "HB-10", "gtin": case, "level": "case", "units": 50},
+        {"sku": "HB-10", "gtin": each, "level": "each", "units": 1}
+    ]);
+    let written = app.post_ok("/api/v1/sites/T/packs", &posted).await;
+    assert_eq!(written["written"], 3);
+    // HB-10's packs in GTIN order, byte by byte, then those small_site gave S1.
+    let mine = json!([posted[2], posted[1], posted[0]]);
+    let all = walk(&app, "packs", "", 1000).await;
+    assert_eq!(all.len(), before["packs"].as_array().unwrap().len() + 3);
+    assert_eq!(Value::Array(all[..3].to_vec()), mine, "{all:?}");
+    let keys: Vec<(String, String)> = all
+        .iter()
+        .map(|p| (p["sku"].to_string(), p["gtin"].to_string()))
+        .collect();
+    let mut sorted = keys.clone();
+    sorted.sort();
+    assert_eq!(keys, sorted, "by SKU, then GTIN");
+    // Paging at 1, 2 (a page of exactly the rest is the last) and 3 gives the same rows.
+    for limit in [1, 2, 3] {
+        assert_eq!(
+            walk(&app, "packs", "&sku=HB-10", limit).await,
+            mine.as_array().unwrap().clone()
+        );
+    }
+    let (s, page) = app.get("/api/v1/sites/T/packs?sku=HB-10&limit=3").await;
+    assert_eq!(s, 200, "{page}");
+    assert_eq!(
+        page["next"],
+        Value::Null,
+        "a page of exactly limit rows is the last"
+    );
+    // The packs the items list shows are the same rows.
+    let item = read(&app, "items?sku=HB-10").await;
+    assert_eq!(item["items"][0]["packs"].as_array().unwrap().len(), 3);
+    // Posted back as read, nothing changes.
+    let written = app.post_ok("/api/v1/sites/T/packs", &page["packs"]).await;
+    assert_eq!(written["written"], 3);
+    assert_eq!(
+        read(&app, "packs?sku=HB-10").await,
+        json!({"packs": mine, "next": null})
+    );
+}
+
+#[tokio::test]
 async fn lots_read_back_as_the_movements_named_them_paged_over_their_two_part_key() {
     let app = spawn_app().await;
     app.small_site().await;
@@ -636,6 +698,7 @@ const READ_BACKS: &[&str] = &[
     "bins",
     "items",
     "lots",
+    "packs",
     "planner-inputs",
     "count-policy",
 ];
@@ -700,6 +763,9 @@ async fn a_bad_parameter_is_refused_naming_it() {
         ("bins?aisle=x", "aisle"),
         ("bins?aisle=1000", "aisle"),
         ("lots?sku=a%20b", "sku"),
+        ("packs?sku=a%20b", "sku"),
+        ("packs?limit=0", "limit"),
+        ("packs?after=not-a-cursor", "after"),
         ("zones?limit=1.5", "limit"),
         ("planner-inputs?sku=%20x%20y", "sku"),
         ("planner-inputs?limit=0", "limit"),

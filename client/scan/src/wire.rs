@@ -20,16 +20,21 @@ pub const MAX_RTT_MS: i64 = 120_000;
 /// A sync request as sent: the device clock, the last round trip, and the events,
 /// each kept as raw JSON so one malformed event is refused on its own.
 #[derive(Debug, Clone, Serialize, Deserialize)]
+#[cfg_attr(feature = "schema", derive(utoipa::ToSchema))]
 #[serde(deny_unknown_fields)]
 pub struct SyncRequest {
     pub device_clock: i64,
     #[serde(default)]
     pub rtt_ms: Option<i64>,
+    /// Each event as a [`WireEvent`]; one that does not read as one is refused on its own,
+    /// in its result, and the others are still taken.
+    #[cfg_attr(feature = "schema", schema(value_type = Vec<WireEvent>))]
     pub events: Vec<serde_json::Value>,
 }
 
 /// Where an entered quantity came from.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
+#[cfg_attr(feature = "schema", derive(utoipa::ToSchema))]
 #[serde(rename_all = "snake_case")]
 pub enum Entry {
     Scan,
@@ -50,6 +55,7 @@ impl Entry {
 
 /// The kinds of event a phone sends.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
+#[cfg_attr(feature = "schema", derive(utoipa::ToSchema))]
 #[serde(rename_all = "snake_case")]
 pub enum EventType {
     BinOpened,
@@ -74,6 +80,7 @@ impl EventType {
 
 /// One event as sent (a flat object); serialising it again gives its canonical text.
 #[derive(Debug, Clone, PartialEq, Eq, Serialize, Deserialize)]
+#[cfg_attr(feature = "schema", derive(utoipa::ToSchema))]
 #[serde(deny_unknown_fields)]
 pub struct WireEvent {
     pub id: String,
@@ -186,6 +193,7 @@ impl WireEvent {
 
 /// What happened to one event.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
+#[cfg_attr(feature = "schema", derive(utoipa::ToSchema))]
 #[serde(rename_all = "snake_case")]
 pub enum EventStatus {
     Accepted,
@@ -195,6 +203,7 @@ pub enum EventStatus {
 
 /// Notes on an accepted event that a supervisor or the counter should see.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
+#[cfg_attr(feature = "schema", derive(utoipa::ToSchema))]
 #[serde(rename_all = "snake_case")]
 pub enum EventFlag {
     /// The task's run is held by another counter now; the count is kept.
@@ -208,6 +217,7 @@ pub enum EventFlag {
 
 /// The answer for one event, in the order sent.
 #[derive(Debug, Clone, PartialEq, Eq, Serialize, Deserialize)]
+#[cfg_attr(feature = "schema", derive(utoipa::ToSchema))]
 pub struct EventResult {
     pub id: String,
     pub status: EventStatus,
@@ -256,6 +266,7 @@ impl EventResult {
 
 /// The answer to a sync request.
 #[derive(Debug, Clone, Serialize, Deserialize)]
+#[cfg_attr(feature = "schema", derive(utoipa::ToSchema))]
 pub struct SyncResponse {
     pub server_clock: i64,
     pub offset_ms: i64,

@@ -27,7 +27,7 @@ pub struct UserId(pub i64);
 pub struct DeviceId(pub i64);
 
 /// What a person may do at a site. A user holds one or more per site.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, Hash, PartialOrd, Ord, Serialize)]
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Hash, PartialOrd, Ord, Serialize, utoipa::ToSchema)]
 #[serde(rename_all = "snake_case")]
 pub enum Role {
     Counter,

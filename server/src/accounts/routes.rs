@@ -222,10 +222,11 @@ async fn sign_out(
 }
 
 /// What a phone sends to enrol.
-#[derive(Deserialize)]
+#[derive(Deserialize, utoipa::ToSchema)]
 #[serde(deny_unknown_fields)]
-struct EnrolRequest {
+pub(crate) struct EnrolRequest {
     user: String,
+    #[schema(value_type = String)]
     pin: Secret,
     site: String,
     /// A name the admin will recognise, e.g. "phone 3, aisle team".
@@ -234,8 +235,8 @@ struct EnrolRequest {
 }
 
 /// What an enrolled phone is told; the token is shown this once.
-#[derive(Serialize)]
-struct Enrolled {
+#[derive(Serialize, utoipa::ToSchema)]
+pub(crate) struct Enrolled {
     token: String,
     device_id: i64,
     site: String,
@@ -323,8 +324,8 @@ async fn enrol(
 }
 
 /// What a phone learns about itself; `server_time` lets it measure its clock.
-#[derive(Serialize)]
-struct DeviceView {
+#[derive(Serialize, utoipa::ToSchema)]
+pub(crate) struct DeviceView {
     device_id: i64,
     site_id: i64,
     user: String,

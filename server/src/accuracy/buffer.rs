@@ -68,7 +68,7 @@ pub enum BufferError {
 }
 
 /// What the planner supplies for one item.
-#[derive(Debug, Clone, Copy, PartialEq, Serialize)]
+#[derive(Debug, Clone, Copy, PartialEq, Serialize, utoipa::ToSchema)]
 pub struct BufferInputs {
     /// Chance of not running out in a replenishment cycle, in (0, 1).
     pub service_level: f64,
@@ -87,7 +87,7 @@ pub struct BufferInputs {
 }
 
 /// Every step from the inputs to the order point.
-#[derive(Debug, Clone, Copy, PartialEq, Serialize)]
+#[derive(Debug, Clone, Copy, PartialEq, Serialize, utoipa::ToSchema)]
 pub struct Buffer {
     /// The inputs the figures were computed from.
     pub inputs: BufferInputs,

@@ -78,7 +78,7 @@ fn service_level_ok(p: f64) -> bool {
 
 /// One row of planner inputs as it arrives: for one item (`sku`) or, with
 /// `group` instead, the default of an item group.
-#[derive(Debug, Clone, Deserialize)]
+#[derive(Debug, Clone, Deserialize, utoipa::ToSchema)]
 #[serde(deny_unknown_fields)]
 pub struct PlannerInputRecord {
     #[serde(default)]
@@ -98,9 +98,11 @@ pub struct PlannerInputRecord {
     /// Read-only (who set the row, and when, is the server's): taken and ignored, so a
     /// row read back can be sent again as it is.
     #[serde(default)]
+    #[schema(value_type = Option<serde_json::Value>)]
     pub updated_at: Option<serde::de::IgnoredAny>,
     /// Read-only, as `updated_at`.
     #[serde(default)]
+    #[schema(value_type = Option<serde_json::Value>)]
     pub updated_by: Option<serde::de::IgnoredAny>,
 }
 
@@ -113,7 +115,7 @@ pub enum InputTarget {
 }
 
 /// The figures of one planner input, in working days.
-#[derive(Debug, Clone, Copy, PartialEq, Serialize)]
+#[derive(Debug, Clone, Copy, PartialEq, Serialize, utoipa::ToSchema)]
 pub struct LeadTimes {
     pub lead_time_days: f64,
     pub lead_time_sd_days: f64,
@@ -129,7 +131,7 @@ pub struct NewPlannerInput {
 }
 
 /// A stored planner input, with who set it and when.
-#[derive(Debug, Clone, PartialEq, Serialize)]
+#[derive(Debug, Clone, PartialEq, Serialize, utoipa::ToSchema)]
 pub struct PlannerInput {
     /// The item's SKU, or empty for a group default.
     pub sku: String,

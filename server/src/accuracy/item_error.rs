@@ -51,7 +51,7 @@ pub struct ItemCount {
 }
 
 /// One point of the growth fit: days since the previous count, and the error found.
-#[derive(Debug, Clone, Copy, PartialEq, Serialize)]
+#[derive(Debug, Clone, Copy, PartialEq, Serialize, utoipa::ToSchema)]
 pub struct ErrorPoint {
     pub days_since_previous: f64,
     pub error: f64,

@@ -22,7 +22,7 @@ pub struct KeyCount {
 }
 
 /// The growth fit as the API and pages show it.
-#[derive(Debug, Clone, PartialEq, Serialize)]
+#[derive(Debug, Clone, PartialEq, Serialize, utoipa::ToSchema)]
 pub struct GrowthView {
     pub points: usize,
     /// `fitted` or `not_enough_data`.
@@ -74,7 +74,7 @@ impl GrowthView {
 }
 
 /// An item's record-error figures.
-#[derive(Debug, Clone, PartialEq, Serialize)]
+#[derive(Debug, Clone, PartialEq, Serialize, utoipa::ToSchema)]
 pub struct ItemFigures {
     pub counts: usize,
     pub hits: usize,

@@ -30,7 +30,7 @@ pub const DEFAULT_PERIOD_DAYS: u64 = 90;
 const JUDGED: [&str; 2] = ["hit", "out_of_tolerance"];
 
 /// A span of the site's local days, both ends included.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, utoipa::ToSchema)]
 pub struct Period {
     pub since: NaiveDate,
     pub until: NaiveDate,
@@ -95,14 +95,14 @@ impl Period {
 }
 
 /// Which results a report takes.
-#[derive(Debug, Clone, Default, PartialEq, Eq, Serialize)]
+#[derive(Debug, Clone, Default, PartialEq, Eq, Serialize, utoipa::ToSchema)]
 pub struct Filter {
     pub class: Option<Class>,
     pub zone: Option<String>,
 }
 
 /// Parts of a whole, with the ratio.
-#[derive(Debug, Clone, Copy, PartialEq, Serialize)]
+#[derive(Debug, Clone, Copy, PartialEq, Serialize, utoipa::ToSchema)]
 pub struct Share {
     pub part: u64,
     pub whole: u64,
@@ -120,7 +120,7 @@ impl From<Ratio> for Share {
 }
 
 /// One group of an IRA table: hits of counted keys.
-#[derive(Debug, Clone, PartialEq, Serialize)]
+#[derive(Debug, Clone, PartialEq, Serialize, utoipa::ToSchema)]
 pub struct GroupRow {
     pub key: String,
     pub hits: u64,
@@ -140,7 +140,7 @@ fn rows<K: ToString>(m: &BTreeMap<K, Ratio>) -> Vec<GroupRow> {
 }
 
 /// One ISO week of the trend charts.
-#[derive(Debug, Clone, PartialEq, Serialize)]
+#[derive(Debug, Clone, PartialEq, Serialize, utoipa::ToSchema)]
 pub struct WeekRow {
     pub week: String,
     pub counted: u64,
@@ -159,7 +159,7 @@ pub struct WeekRow {
 }
 
 /// An A item's due day in the period and whether it was counted by then.
-#[derive(Debug, Clone, PartialEq, Serialize)]
+#[derive(Debug, Clone, PartialEq, Serialize, utoipa::ToSchema)]
 pub struct CoverageRow {
     pub item: String,
     pub due_by: NaiveDate,
@@ -168,7 +168,7 @@ pub struct CoverageRow {
 }
 
 /// The accuracy report of one period.
-#[derive(Debug, Clone, PartialEq, Serialize)]
+#[derive(Debug, Clone, PartialEq, Serialize, utoipa::ToSchema)]
 pub struct AccuracyReport {
     pub site: String,
     pub period: Period,
@@ -384,7 +384,7 @@ async fn coverage_rows(
 }
 
 /// One item's record-error figures over a period.
-#[derive(Debug, Clone, PartialEq, Serialize)]
+#[derive(Debug, Clone, PartialEq, Serialize, utoipa::ToSchema)]
 pub struct ItemReport {
     #[serde(flatten)]
     pub item: ItemRow,
@@ -460,7 +460,7 @@ pub async fn item_reports(
 }
 
 /// Where the lead time of an item came from.
-#[derive(Debug, Clone, PartialEq, Serialize)]
+#[derive(Debug, Clone, PartialEq, Serialize, utoipa::ToSchema)]
 pub struct LeadSource {
     /// `item`, or `group NAME` for a group default.
     pub source: String,
@@ -469,7 +469,7 @@ pub struct LeadSource {
 }
 
 /// The record-error term of a buffer and how it was found.
-#[derive(Debug, Clone, PartialEq, Serialize)]
+#[derive(Debug, Clone, PartialEq, Serialize, utoipa::ToSchema)]
 pub struct RecordErrorTerm {
     /// Days after a count the error is taken at: the review period.
     pub at_days: f64,
@@ -483,7 +483,7 @@ pub struct RecordErrorTerm {
 }
 
 /// An item's buffer with every term of its derivation.
-#[derive(Debug, Clone, PartialEq, Serialize)]
+#[derive(Debug, Clone, PartialEq, Serialize, utoipa::ToSchema)]
 pub struct BufferReport {
     #[serde(flatten)]
     pub item: ItemRow,

@@ -52,7 +52,8 @@ pub struct PlannedTask {
 }
 
 /// An item as the buffer and per-item pages see it.
-#[derive(Debug, Clone, PartialEq, Eq, Serialize)]
+#[derive(Debug, Clone, PartialEq, Eq, Serialize, utoipa::ToSchema)]
+#[schema(as = AccuracyItem)]
 pub struct ItemRow {
     pub sku: String,
     pub description: String,

@@ -5,10 +5,12 @@ use crate::AppState;
 use crate::batch::{Collector, FieldError, MAX_BATCH_ROWS, RowError};
 use crate::error::ApiError;
 use crate::http::access::PathSite;
+use crate::input::objects::Objects;
 use crate::master::{Site, SiteCode};
 use axum::body::Bytes;
 use axum::extract::{FromRequest, FromRequestParts, Path, Query, Request};
 use axum::http::request::Parts;
+use serde::Deserialize;
 use serde::de::DeserializeOwned;
 use std::collections::HashMap;
 
@@ -54,7 +56,8 @@ impl<T: DeserializeOwned + Send, S: Send + Sync> FromRequestParts<S> for Params<
 
 /// A JSON array body whose rows are decoded together when they are all well
 /// formed, and one by one when one is not, so an error names its row and field.
-/// The body is read as strictly as any other (`input::json`): one value, no key twice.
+/// The body is read as strictly as any other (`input::json`): one value, no key twice,
+/// and each row (and any struct in it) a JSON object, never an array of its fields.
 pub struct JsonRows(Bytes);
 
 impl<S: Send + Sync> FromRequest<S> for JsonRows {
@@ -87,7 +90,8 @@ impl JsonRows {
     ) -> Result<Vec<T>, ApiError> {
         crate::input::json::check_shape(&self.0)?;
         let mut c = Collector::default();
-        match serde_json::from_slice::<Vec<R>>(&self.0) {
+        let mut whole = serde_json::Deserializer::from_slice(&self.0);
+        match Vec::<R>::deserialize(Objects(&mut whole)) {
             Ok(rows) => {
                 check_count(rows.len())?;
                 for (i, r) in rows.into_iter().enumerate() {
@@ -105,7 +109,7 @@ impl JsonRows {
                 };
                 check_count(rows.len())?;
                 for (i, v) in rows.into_iter().enumerate() {
-                    match serde_path_to_error::deserialize::<_, R>(v) {
+                    match serde_path_to_error::deserialize::<_, R>(Objects(v)) {
                         Ok(r) => c.push(i, validate(r)),
                         Err(e) => {
                             let field = match e.path().to_string() {

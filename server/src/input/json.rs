@@ -3,7 +3,10 @@
 //! one key twice (serde keeps the last, so a sender's first value would be
 //! silently dropped). Both are checked in a first pass over the raw text, so
 //! bodies kept as `serde_json::Value` (the phone's events) are covered too.
+//! The second pass reads the type through [`super::objects::Objects`], so a
+//! struct given as an array of its fields is refused where it stands.
 
+use super::objects::Objects;
 use serde::de::{self, DeserializeOwned, Deserializer, MapAccess, SeqAccess, Visitor};
 use std::collections::HashSet;
 use std::fmt;
@@ -54,7 +57,7 @@ pub fn check_shape(bytes: &[u8]) -> Result<(), BodyError> {
 pub fn read<T: DeserializeOwned>(bytes: &[u8]) -> Result<T, BodyError> {
     check_shape(bytes)?;
     let mut de = serde_json::Deserializer::from_slice(bytes);
-    serde_path_to_error::deserialize(&mut de).map_err(|e| BodyError {
+    serde_path_to_error::deserialize(Objects(&mut de)).map_err(|e| BodyError {
         field: place(e.path()),
         message: e.into_inner().to_string(),
     })
@@ -169,6 +172,19 @@ mod tests {
     fn a_field_of_the_wrong_type_names_the_field() {
         let e = read::<Row>(br#"{"sku": "A1", "qty": "three"}"#).unwrap_err();
         assert_eq!(e.field, "qty");
+    }
+
+    #[test]
+    fn a_row_given_as_an_array_of_its_fields_is_refused_naming_it() {
+        let e = read::<Row>(br#"["A1", 3]"#).unwrap_err();
+        assert_eq!(e.field, "body");
+        assert!(
+            e.message
+                .starts_with(super::super::objects::ARRAY_FOR_OBJECT),
+            "{e}"
+        );
+        let e = read::<Vec<Row>>(br#"[{"sku": "A1", "qty": 3}, ["B2", 4]]"#).unwrap_err();
+        assert_eq!(e.field, "[1]");
     }
 
     #[test]

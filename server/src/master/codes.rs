@@ -49,6 +49,19 @@ macro_rules! code_type {
                 f.write_str(&self.0)
             }
         }
+
+        impl utoipa::PartialSchema for $name {
+            fn schema() -> utoipa::openapi::RefOr<utoipa::openapi::schema::Schema> {
+                utoipa::openapi::schema::ObjectBuilder::new()
+                    .schema_type(utoipa::openapi::schema::Type::String)
+                    .max_length(Some($max))
+                    .description(Some(concat!("A ", $what, ": 1 to ", stringify!($max),
+                        " characters; ", $rule, ".")))
+                    .into()
+            }
+        }
+
+        impl utoipa::ToSchema for $name {}
     };
 }
 

@@ -19,7 +19,7 @@ pub use codes::{LotCode, MovementUid, SiteCode};
 pub struct SiteId(pub i64);
 
 /// One warehouse.
-#[derive(Debug, Clone, Serialize)]
+#[derive(Debug, Clone, Serialize, utoipa::ToSchema)]
 pub struct Site {
     #[serde(skip)]
     pub id: SiteId,

@@ -183,6 +183,15 @@ pub struct LotRow {
     pub expiry: Option<String>,
 }
 
+/// A pack as the API reads it back on its own: the fields `POST packs` takes.
+#[derive(Debug, Clone, PartialEq, Eq, Serialize, utoipa::ToSchema)]
+pub struct SkuPackRow {
+    pub sku: String,
+    pub gtin: String,
+    pub level: String,
+    pub units: u32,
+}
+
 /// Which zones to read: a page after a zone code.
 #[derive(Debug, Clone, PartialEq, Eq)]
 pub struct ZoneQuery {
@@ -234,6 +243,15 @@ pub struct ItemQuery {
 pub struct LotQuery {
     pub sku: Option<Sku>,
     /// The key `(sku, lot)` of the last row of the previous page.
+    pub after: Option<(String, String)>,
+    pub take: usize,
+}
+
+/// Which packs to read, by SKU then GTIN.
+#[derive(Debug, Clone, PartialEq, Eq)]
+pub struct PackQuery {
+    pub sku: Option<Sku>,
+    /// The key `(sku, gtin)` of the last row of the previous page.
     pub after: Option<(String, String)>,
     pub take: usize,
 }
@@ -378,6 +396,30 @@ impl LotParams {
     }
 }
 
+/// Query parameters of `GET packs`: `sku`, `limit`, `after`.
+#[derive(Debug, Default, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct PackParams {
+    pub sku: Option<String>,
+    pub limit: Option<String>,
+    pub after: Option<String>,
+}
+
+impl PackParams {
+    /// Checks the parameters; returns the query and the page's limit.
+    pub fn query(&self) -> Result<(PackQuery, usize), ParamError> {
+        let limit = limit(self.limit.as_deref())?;
+        Ok((
+            PackQuery {
+                sku: sku_param("sku", &self.sku)?,
+                after: decode_cursor::<2>(self.after.as_deref())?.map(|[s, g]| (s, g)),
+                take: limit + 1,
+            },
+            limit,
+        ))
+    }
+}
+
 /// Cuts a page of zones.
 pub fn zone_page(rows: Vec<ZoneRow>, limit: usize) -> Page<ZoneRow> {
     Page::cut(rows, limit, |z| vec![z.code.as_str()])
@@ -396,6 +438,11 @@ pub fn item_page(rows: Vec<ItemRow>, limit: usize) -> Page<ItemRow> {
 /// Cuts a page of lots.
 pub fn lot_page(rows: Vec<LotRow>, limit: usize) -> Page<LotRow> {
     Page::cut(rows, limit, |l| vec![l.sku.as_str(), l.lot.as_str()])
+}
+
+/// Cuts a page of packs.
+pub fn pack_page(rows: Vec<SkuPackRow>, limit: usize) -> Page<SkuPackRow> {
+    Page::cut(rows, limit, |p| vec![p.sku.as_str(), p.gtin.as_str()])
 }
 
 #[cfg(test)]

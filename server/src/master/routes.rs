@@ -2,7 +2,7 @@
 //! read-back of zones, bins, items (with their packs) and lots, paged by key
 //! (`master::read`), for the roles that read book data.
 
-use super::read::{self, BinParams, ItemParams, LotParams, ParamError, ZoneParams};
+use super::read::{self, BinParams, ItemParams, LotParams, PackParams, ParamError, ZoneParams};
 use super::{BinRecord, ItemRecord, PackRecord, Site, SiteCounts};
 use crate::AppState;
 use crate::accounts::audit;
@@ -52,6 +52,11 @@ pub fn routes(t: &mut RouteTable) {
             Access::Site(BOOK_READERS),
             get_lots,
         )
+        .get(
+            "/api/v1/sites/{site}/packs",
+            Access::Site(BOOK_READERS),
+            get_packs,
+        )
         .post(
             "/api/v1/sites/{site}/packs",
             Access::Site(BOOK_WRITERS),
@@ -73,8 +78,8 @@ async fn list_sites(
     ))
 }
 
-#[derive(Serialize)]
-struct SiteView {
+#[derive(Serialize, utoipa::ToSchema)]
+pub(crate) struct SiteView {
     #[serde(flatten)]
     site: Site,
     counts: SiteCounts,
@@ -183,6 +188,19 @@ async fn get_items(
     let (query, limit) = p.query().map_err(bad_param)?;
     let rows = state.store.item_rows(site.id, query).await?;
     etag::json(&headers, &read::item_page(rows, limit).named("items"))
+}
+
+/// Reads a page of the site's packs by SKU, then GTIN, each as `POST packs` takes it:
+/// filter `sku`; paging `limit`, `after`. Answers `{"packs": [...], "next": …}`, ETag.
+async fn get_packs(
+    State(state): State<AppState>,
+    CurrentSite(site): CurrentSite,
+    headers: HeaderMap,
+    Params(p): Params<PackParams>,
+) -> Result<Response, ApiError> {
+    let (query, limit) = p.query().map_err(bad_param)?;
+    let rows = state.store.pack_rows(site.id, query).await?;
+    etag::json(&headers, &read::pack_page(rows, limit).named("packs"))
 }
 
 /// Reads a page of the site's lots (made by the movements that name them) by SKU, then

@@ -89,7 +89,7 @@ pub struct ResultPage {
 }
 
 /// One result with its evidence, the rows it replaced and its recount tasks.
-#[derive(Debug, Clone, Serialize)]
+#[derive(Debug, Clone, Serialize, utoipa::ToSchema)]
 pub struct ResultDetail {
     #[serde(flatten)]
     pub row: ResultRow,
@@ -105,7 +105,7 @@ pub struct ResultDetail {
 }
 
 /// A recount task withdrawn before anyone counted against it.
-#[derive(Debug, Clone, Serialize)]
+#[derive(Debug, Clone, Serialize, utoipa::ToSchema)]
 pub struct WithdrawnRecount {
     pub task: i64,
     pub at: Timestamp,

@@ -14,12 +14,24 @@ pub const ADJUSTMENT_UNCERTAINTY_MS: i64 = 0;
 
 /// The ledger's sequence number of a movement: unique and stable, so it orders
 /// movements that share an event time.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, PartialOrd, Ord, Hash, Serialize, Deserialize)]
+#[derive(
+    Debug,
+    Clone,
+    Copy,
+    PartialEq,
+    Eq,
+    PartialOrd,
+    Ord,
+    Hash,
+    Serialize,
+    Deserialize,
+    utoipa::ToSchema,
+)]
 #[serde(transparent)]
 pub struct MoveId(pub i64);
 
 /// The timing of one counter's pass over one bin, in server time.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize, utoipa::ToSchema)]
 pub struct CountTiming {
     /// `s`: the first scan in the bin (for a bin marked done with no scan at
     /// all, the moment it was opened or marked done).
@@ -42,7 +54,7 @@ pub enum KeyCount {
 }
 
 /// A closed interval of server time `[start, end]`.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize, utoipa::ToSchema)]
 pub struct Window {
     pub start: Timestamp,
     pub end: Timestamp,
@@ -74,7 +86,7 @@ pub struct NetMove {
 
 /// One feasible book value: the opening balance, or the balance once every
 /// window movement up to one event instant has been applied.
-#[derive(Debug, Clone, PartialEq, Eq, Serialize, Deserialize)]
+#[derive(Debug, Clone, PartialEq, Eq, Serialize, Deserialize, utoipa::ToSchema)]
 pub struct BookState {
     pub qty: i64,
     /// The event instant of the movements that produced it; `None` for the opening.
@@ -84,7 +96,7 @@ pub struct BookState {
 }
 
 /// What happened, in words a manager can act on.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize, utoipa::ToSchema)]
 #[serde(rename_all = "snake_case")]
 pub enum Status {
     /// Nothing moved in the window: the count is compared with one book value.
@@ -115,7 +127,7 @@ pub enum Skipped {
 }
 
 /// The netting of one key: the evidence and the verdict.
-#[derive(Debug, Clone, PartialEq, Eq, Serialize, Deserialize)]
+#[derive(Debug, Clone, PartialEq, Eq, Serialize, Deserialize, utoipa::ToSchema)]
 pub struct KeyResult {
     pub window: Window,
     /// `c`: the counted quantity (0 for a key not scanned in a bin marked done).

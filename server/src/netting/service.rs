@@ -247,7 +247,7 @@ pub struct KeyFacts {
 }
 
 /// A movement of the window in the evidence, with what a manager needs to find it.
-#[derive(Debug, Clone, PartialEq, Eq, Serialize, Deserialize)]
+#[derive(Debug, Clone, PartialEq, Eq, Serialize, Deserialize, utoipa::ToSchema)]
 pub struct EvidenceMove {
     pub id: i64,
     pub uid: String,
@@ -259,7 +259,7 @@ pub struct EvidenceMove {
 }
 
 /// Why a result is what it is: stored as the `evidence` JSON of `count_result`.
-#[derive(Debug, Clone, PartialEq, Eq, Serialize, Deserialize)]
+#[derive(Debug, Clone, PartialEq, Eq, Serialize, Deserialize, utoipa::ToSchema)]
 pub struct Evidence {
     pub sku: String,
     pub timing: CountTiming,

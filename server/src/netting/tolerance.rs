@@ -28,7 +28,7 @@ pub struct Tolerance {
 }
 
 /// A limit of a [`Tolerance`].
-#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize, utoipa::ToSchema)]
 #[serde(rename_all = "snake_case")]
 pub enum Limit {
     Units,
@@ -37,7 +37,7 @@ pub enum Limit {
 }
 
 /// The judgement of one variance.
-#[derive(Debug, Clone, PartialEq, Eq, Serialize, Deserialize)]
+#[derive(Debug, Clone, PartialEq, Eq, Serialize, Deserialize, utoipa::ToSchema)]
 #[serde(tag = "verdict", rename_all = "snake_case")]
 pub enum Verdict {
     /// Variance 0.
@@ -53,6 +53,7 @@ pub enum Verdict {
     /// was judged.
     Held {
         reason: String,
+        #[schema(no_recursion)]
         variance: Box<Verdict>,
     },
 }

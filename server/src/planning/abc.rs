@@ -8,7 +8,19 @@ use std::collections::HashMap;
 use std::fmt;
 
 /// An item's importance class for counting.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, PartialOrd, Ord, Hash, Serialize, Deserialize)]
+#[derive(
+    Debug,
+    Clone,
+    Copy,
+    PartialEq,
+    Eq,
+    PartialOrd,
+    Ord,
+    Hash,
+    Serialize,
+    Deserialize,
+    utoipa::ToSchema,
+)]
 pub enum Class {
     A,
     B,
@@ -46,7 +58,9 @@ impl fmt::Display for Class {
 }
 
 /// What items are ranked by.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize, clap::ValueEnum)]
+#[derive(
+    Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize, clap::ValueEnum, utoipa::ToSchema,
+)]
 #[serde(rename_all = "snake_case")]
 pub enum Basis {
     /// Issued quantity times unit cost (annual usage value).
@@ -73,7 +87,7 @@ impl Basis {
 }
 
 /// How a site is classified.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize, utoipa::ToSchema)]
 pub struct AbcRule {
     pub basis: Basis,
     /// Cumulative share (percent) of the basis that class A covers.

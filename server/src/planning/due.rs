@@ -10,7 +10,7 @@ use std::cmp::Ordering;
 pub const MAX_PER_YEAR: u32 = 366;
 
 /// How often each class is counted.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize, utoipa::ToSchema)]
 pub struct Frequency {
     /// Counts per year for A, B and C.
     pub per_year: [u32; 3],

@@ -9,7 +9,7 @@ pub const MIN_SAMPLES: usize = 20;
 pub const RECENT_SAMPLES: usize = 200;
 
 /// Time per bin task: `base_s + per_line_s * lines`, in seconds.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize, utoipa::ToSchema)]
 pub struct TaskTime {
     pub base_s: u32,
     pub per_line_s: u32,

@@ -32,8 +32,9 @@ pub const MAX_COUNTERS: u32 = 200;
 pub const MAX_MINUTES: u32 = 24 * 60;
 
 /// A site's planning settings.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize, utoipa::ToSchema)]
 #[serde(deny_unknown_fields)]
+#[schema(as = PlanningSettings)]
 pub struct Settings {
     pub abc: AbcRule,
     pub frequency: Frequency,
@@ -123,7 +124,7 @@ impl TriggerKind {
 }
 
 /// One task as the supervisor's list and exports show it.
-#[derive(Debug, Clone, PartialEq, Eq, Serialize)]
+#[derive(Debug, Clone, PartialEq, Eq, Serialize, utoipa::ToSchema)]
 pub struct TaskView {
     /// The stored task's id; `None` in a preview.
     pub id: Option<i64>,
@@ -153,7 +154,7 @@ impl TaskView {
 }
 
 /// One counter's run.
-#[derive(Debug, Clone, PartialEq, Eq, Serialize)]
+#[derive(Debug, Clone, PartialEq, Eq, Serialize, utoipa::ToSchema)]
 pub struct RunView {
     pub run: u32,
     pub holder: String,
@@ -163,7 +164,7 @@ pub struct RunView {
 }
 
 /// The day's list as shown and exported.
-#[derive(Debug, Clone, Serialize)]
+#[derive(Debug, Clone, Serialize, utoipa::ToSchema)]
 pub struct ListView {
     pub day: NaiveDate,
     /// False for a preview that was not stored.
@@ -180,7 +181,8 @@ pub struct ListView {
 }
 
 /// Tasks per reason and per class, for the preview.
-#[derive(Debug, Clone, Default, PartialEq, Eq, Serialize)]
+#[derive(Debug, Clone, Default, PartialEq, Eq, Serialize, utoipa::ToSchema)]
+#[schema(as = ListSummary)]
 pub struct Summary {
     pub tasks: usize,
     pub triggered: usize,
@@ -224,7 +226,7 @@ impl ListView {
 }
 
 /// What one classification did.
-#[derive(Debug, Clone, PartialEq, Eq, Serialize)]
+#[derive(Debug, Clone, PartialEq, Eq, Serialize, utoipa::ToSchema)]
 pub struct AbcSummary {
     pub run: i64,
     pub day: NaiveDate,
@@ -239,7 +241,7 @@ pub struct AbcSummary {
 }
 
 /// An item entering a class.
-#[derive(Debug, Clone, PartialEq, Eq, Serialize)]
+#[derive(Debug, Clone, PartialEq, Eq, Serialize, utoipa::ToSchema)]
 pub struct ClassChange {
     pub class: Class,
     pub since: NaiveDate,

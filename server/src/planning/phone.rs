@@ -10,7 +10,7 @@ use serde::Serialize;
 use std::collections::HashMap;
 
 /// An item the counter may meet in a bin: what it is and how it is packed.
-#[derive(Debug, Clone, PartialEq, Eq, Serialize)]
+#[derive(Debug, Clone, PartialEq, Eq, Serialize, utoipa::ToSchema)]
 pub struct ItemBrief {
     pub sku: String,
     pub description: String,
@@ -21,7 +21,7 @@ pub struct ItemBrief {
 }
 
 /// One pack of an item.
-#[derive(Debug, Clone, PartialEq, Eq, Serialize)]
+#[derive(Debug, Clone, PartialEq, Eq, Serialize, utoipa::ToSchema)]
 pub struct PackBrief {
     pub gtin: String,
     pub level: String,
@@ -29,7 +29,7 @@ pub struct PackBrief {
 }
 
 /// One bin to count.
-#[derive(Debug, Clone, PartialEq, Eq, Serialize)]
+#[derive(Debug, Clone, PartialEq, Eq, Serialize, utoipa::ToSchema)]
 pub struct PhoneTask {
     pub id: Option<i64>,
     pub seq: u32,
@@ -47,7 +47,7 @@ pub struct PhoneTask {
 }
 
 /// The counter's part of the day's list.
-#[derive(Debug, Clone, Serialize)]
+#[derive(Debug, Clone, Serialize, utoipa::ToSchema)]
 pub struct PhoneList {
     pub day: chrono::NaiveDate,
     /// The site's IANA zone: the phone works out the site's "today" with it while offline,

@@ -86,7 +86,9 @@ impl OpenRecount {
 }
 
 /// Whether due counts stop at the level or fill the whole capacity.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, Default, serde::Deserialize, Serialize)]
+#[derive(
+    Debug, Clone, Copy, PartialEq, Eq, Default, serde::Deserialize, Serialize, utoipa::ToSchema,
+)]
 #[serde(rename_all = "snake_case")]
 pub enum Fill {
     /// Stop due counts at the day's share of the year's load.

@@ -6,7 +6,7 @@ use super::ListView;
 use serde::Serialize;
 
 /// Where a task stands, from its stored status.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, utoipa::ToSchema)]
 #[serde(rename_all = "snake_case")]
 pub enum Stage {
     /// `open`: nobody has opened the bin yet.
@@ -48,7 +48,7 @@ impl Stage {
 }
 
 /// Tasks and their estimated seconds in one stage.
-#[derive(Debug, Clone, Copy, Default, PartialEq, Eq, Serialize)]
+#[derive(Debug, Clone, Copy, Default, PartialEq, Eq, Serialize, utoipa::ToSchema)]
 pub struct Tally {
     pub tasks: usize,
     pub est_s: i64,
@@ -62,7 +62,7 @@ impl Tally {
 }
 
 /// One run's (or the whole day's) progress.
-#[derive(Debug, Clone, Default, PartialEq, Eq, Serialize)]
+#[derive(Debug, Clone, Default, PartialEq, Eq, Serialize, utoipa::ToSchema)]
 pub struct RunProgress {
     /// The run number; 0 for the day's total.
     pub run: u32,
@@ -94,7 +94,7 @@ impl RunProgress {
 }
 
 /// One task's stage and run, so a page can update its row in place.
-#[derive(Debug, Clone, PartialEq, Eq, Serialize)]
+#[derive(Debug, Clone, PartialEq, Eq, Serialize, utoipa::ToSchema)]
 pub struct TaskStage {
     pub id: i64,
     pub run: u32,
@@ -102,7 +102,8 @@ pub struct TaskStage {
 }
 
 /// The day's progress as the page and its live refresh show it.
-#[derive(Debug, Clone, PartialEq, Eq, Serialize)]
+#[derive(Debug, Clone, PartialEq, Eq, Serialize, utoipa::ToSchema)]
+#[schema(as = ListProgress)]
 pub struct Progress {
     pub day: chrono::NaiveDate,
     pub version: i64,

@@ -121,9 +121,9 @@ async fn put_settings(
     Ok(Json(s))
 }
 
-#[derive(Serialize, Deserialize)]
+#[derive(Serialize, Deserialize, utoipa::ToSchema)]
 #[serde(deny_unknown_fields)]
-struct CalendarBody {
+pub(crate) struct CalendarBody {
     working_weekdays: Vec<String>,
     #[serde(default)]
     holidays: Vec<String>,
@@ -224,9 +224,9 @@ async fn post_short_picks(
     Ok(Json(state.store.record_short_picks(site.id, rows).await?))
 }
 
-#[derive(Deserialize)]
+#[derive(Deserialize, utoipa::ToSchema)]
 #[serde(deny_unknown_fields)]
-struct BuildBody {
+pub(crate) struct BuildBody {
     day: String,
     counters: u32,
     minutes: u32,
@@ -365,9 +365,9 @@ async fn get_progress(
     Ok(Json(progress::of(&list)))
 }
 
-#[derive(Deserialize)]
+#[derive(Deserialize, utoipa::ToSchema)]
 #[serde(deny_unknown_fields)]
-struct MoveBody {
+pub(crate) struct MoveBody {
     run: u32,
 }
 
@@ -383,9 +383,9 @@ async fn move_task(
     stored(&state, &site, day).await
 }
 
-#[derive(Deserialize)]
+#[derive(Deserialize, utoipa::ToSchema)]
 #[serde(deny_unknown_fields)]
-struct HoldBody {
+pub(crate) struct HoldBody {
     holder: String,
 }
 

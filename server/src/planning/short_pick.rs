@@ -12,7 +12,7 @@ use serde::Deserialize;
 pub const MAX_SHORT_QTY: i64 = 1_000_000_000;
 
 /// A report as the host sends it.
-#[derive(Debug, Clone, Deserialize)]
+#[derive(Debug, Clone, Deserialize, utoipa::ToSchema)]
 #[serde(deny_unknown_fields)]
 pub struct ShortPickRecord {
     /// The sender's id: a resend with the same id is harmless.
@@ -118,7 +118,7 @@ impl ShortPickRecord {
 }
 
 /// What a batch of reports did.
-#[derive(Debug, Clone, Default, PartialEq, Eq, serde::Serialize)]
+#[derive(Debug, Clone, Default, PartialEq, Eq, serde::Serialize, utoipa::ToSchema)]
 pub struct ShortPickOutcome {
     pub recorded: usize,
     pub already_recorded: usize,

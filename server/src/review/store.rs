@@ -103,7 +103,7 @@ pub struct ReviewRow {
 
 /// The count adjustment Cairn posted for a result by itself (the site allows it and the
 /// result was a settled hit with a variance): no person reviewed it.
-#[derive(Debug, Clone, PartialEq, Eq, Serialize)]
+#[derive(Debug, Clone, PartialEq, Eq, Serialize, utoipa::ToSchema)]
 pub struct AutoAdjustment {
     /// The stable id of the automatic posting.
     pub id: i64,

@@ -18,7 +18,8 @@ use crate::accuracy::store::AccuracyStore;
 use crate::ledger::{BalanceRow, Movement};
 use crate::master::codes::{BinCode, Sku, ZoneCode};
 use crate::master::read::{
-    BinQuery, BinRow, ItemQuery, ItemRow, LotQuery, LotRow, ZoneQuery, ZoneRow,
+    BinQuery, BinRow, ItemQuery, ItemRow, LotQuery, LotRow, PackQuery, SkuPackRow, ZoneQuery,
+    ZoneRow,
 };
 use crate::master::{Bin, NewBin, NewItem, NewPack, NewSite, Site, SiteCode, SiteCounts, SiteId};
 use crate::planning::abc::{AbcRule, Class, Usage};
@@ -334,6 +335,13 @@ pub trait Store: AccountStore + AccuracyStore + ReviewStore + Send + Sync + 'sta
     /// Reads a site's lots (of one item, if given), by SKU then lot code after
     /// `query.after`, at most `query.take` of them.
     async fn lot_rows(&self, site: SiteId, query: LotQuery) -> Result<Vec<LotRow>, StoreError>;
+    /// Reads a site's packs (of one item, if given), by SKU then GTIN after
+    /// `query.after`, at most `query.take` of them.
+    async fn pack_rows(
+        &self,
+        site: SiteId,
+        query: PackQuery,
+    ) -> Result<Vec<SkuPackRow>, StoreError>;
     /// Creates or updates bins (by code), creating zones as needed. All or nothing.
     /// A batch's `audit` event (if any) is written in the same transaction, with its counts.
     async fn put_bins(

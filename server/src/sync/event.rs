@@ -67,7 +67,10 @@ pub fn read(raw: &serde_json::Value, index: usize) -> Result<Event, EventResult>
         .map(str::to_string)
         .unwrap_or_else(|| format!("#{index}"));
     let refuse = |why: String| EventResult::rejected(&shown_id, why);
-    let wire: WireEvent = serde_path_to_error::deserialize(raw.clone()).map_err(|e| {
+    let wire: WireEvent = serde_path_to_error::deserialize(crate::input::objects::Objects(
+        raw.clone(),
+    ))
+    .map_err(|e| {
         let at = match e.path().to_string() {
             p if p == "." => String::new(),
             p => format!(" at {p}"),

@@ -4,7 +4,7 @@
 use crate::time::Timestamp;
 
 /// A stored count line as support and the tests read it back.
-#[derive(Debug, Clone, PartialEq, Eq, serde::Serialize)]
+#[derive(Debug, Clone, PartialEq, Eq, serde::Serialize, utoipa::ToSchema)]
 pub struct StoredLine {
     /// The line's place in arrival order, the cursor of the next page.
     pub seq: i64,

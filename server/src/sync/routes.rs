@@ -116,8 +116,8 @@ async fn sync(
     }))
 }
 
-#[derive(Serialize)]
-struct Catalog {
+#[derive(Serialize, utoipa::ToSchema)]
+pub(crate) struct Catalog {
     version: String,
     items: Vec<crate::planning::phone::ItemBrief>,
 }
@@ -150,8 +150,8 @@ struct LinesParams {
     limit: Option<usize>,
 }
 
-#[derive(Serialize)]
-struct LinesPage {
+#[derive(Serialize, utoipa::ToSchema)]
+pub(crate) struct LinesPage {
     lines: Vec<StoredLine>,
     next: Option<i64>,
 }

@@ -24,6 +24,20 @@ const MAX_ZONE_NAME_BYTES: usize = 64;
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
 pub struct SiteZone(Tz);
 
+impl utoipa::PartialSchema for SiteZone {
+    fn schema() -> utoipa::openapi::RefOr<utoipa::openapi::schema::Schema> {
+        utoipa::openapi::schema::ObjectBuilder::new()
+            .schema_type(utoipa::openapi::schema::Type::String)
+            .description(Some(
+                "An IANA time zone name (`Europe/London`): the site's local days are its days.",
+            ))
+            .examples(["Europe/London"])
+            .into()
+    }
+}
+
+impl utoipa::ToSchema for SiteZone {}
+
 /// Why a zone name was refused; the message names the accepted form.
 #[derive(Debug, Clone, PartialEq, Eq, thiserror::Error)]
 #[error(

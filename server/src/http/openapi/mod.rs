@@ -50,9 +50,20 @@ impl Schemas {
         json!({ "type": "array", "items": self.of::<T>() })
     }
 
+    /// Adds a schema by name. Two wire types of one name would make every reference to
+    /// either point at one of them, so a second, different schema of a name is a
+    /// programmer's error (give one `#[schema(as = OtherName)]`).
     fn insert(&mut self, name: String, schema: &impl serde::Serialize) {
         let value = serde_json::to_value(schema).expect("a schema serialises to JSON");
-        self.map.entry(name).or_insert(value);
+        match self.map.get(&name) {
+            Some(held) => assert_eq!(
+                held, &value,
+                "two different schemas are named {name}; rename one with #[schema(as = …)]"
+            ),
+            None => {
+                self.map.insert(name, value);
+            }
+        }
     }
 }
 

@@ -6,6 +6,8 @@
 use super::Schemas;
 use crate::accuracy::inputs::AccuracySettings;
 use crate::netting::service::{NettingSettings, ReasonCode, SourceTimingRow};
+use crate::planning::routes::{BuildBody, CalendarBody, HoldBody, MoveBody};
+use crate::planning::{ListView, Settings as PlanningSettings};
 use axum::http::Method;
 use serde_json::{Value, json};
 
@@ -41,7 +43,7 @@ highest one written at the site when a batch was answered or a result was netted
 
 **Paging.** Lists answer a page and `next`; send `next` back as `after` for the following \
 page. `next` is null on the last page. Read-back lists (zones, bins, items, lots, \
-planner inputs) carry a weak ETag and answer 304 to `If-None-Match`.
+packs, planner inputs) carry a weak ETag and answer 304 to `If-None-Match`.
 
 **Limits.** A batch holds at most 5,000 elements; a body at most `max_body_bytes`. A \
 server busy hashing answers 429 with `Retry-After`.";
@@ -193,11 +195,6 @@ pub fn path_param(name: &str) -> (&'static str, Value) {
     }
 }
 
-/// An object whose fields this document does not list (yet): the words say what it holds.
-fn object(what: &str) -> Value {
-    json!({ "type": "object", "description": what })
-}
-
 fn string() -> Value {
     json!({ "type": "string" })
 }
@@ -252,6 +249,16 @@ const CONFLICT: &[(u16, &str)] = &[(
     409,
     "The change conflicts with the state (the text says which).",
 )];
+const MOVE: &[(u16, &str)] = &[
+    (
+        409,
+        "The change conflicts with the state (the text says which).",
+    ),
+    (
+        422,
+        "`run` names no run of the day's list: `rows` names it (`index` 0, `field` `run`).",
+    ),
+];
 const ENROL: &[(u16, &str)] = &[
     (401, "Wrong user name or PIN (the same text for both)."),
     (403, "The user holds no `counter` role at that site."),
@@ -273,21 +280,13 @@ pub fn describe(method: &Method, path: &str, s: &mut Schemas) -> Option<Op> {
         ("POST", "/api/v1/devices", _) => Op::new(
             "Enrol a phone",
             "The phone's token (shown once) and who it signs in as.",
-            object("`token`, `device_id`, `site`, `user`, `display_name`, `server_time` (an instant)."),
+            s.of::<crate::accounts::routes::Enrolled>(),
         )
         .status(201)
         .says("A counter enrols a phone with their user name and PIN at one site. The PIN \
                is checked under the sign-in throttle.")
         .body(
-            json!({
-                "type": "object",
-                "required": ["user", "pin", "site", "device_name"],
-                "additionalProperties": false,
-                "properties": {
-                    "user": string(), "pin": string(), "site": string(),
-                    "device_name": string(),
-                },
-            }),
+            s.of::<crate::accounts::routes::EnrolRequest>(),
             json!({ "user": "esme", "pin": "2468", "site": "KLN", "device_name": "phone 3" }),
         )
         .example(json!({ "token": "cairn_dev_…", "device_id": 4, "site": "KLN", "user": "esme",
@@ -296,7 +295,7 @@ pub fn describe(method: &Method, path: &str, s: &mut Schemas) -> Option<Op> {
         ("GET", "/api/v1/device", _) => Op::new(
             "Who this phone is",
             "The device, its user, the user's roles and the server's time.",
-            object("`device_id`, `site_id`, `user`, `display_name`, `roles`, `server_time` (an instant)."),
+            s.of::<crate::accounts::routes::DeviceView>(),
         ),
         ("DELETE", "/api/v1/device", _) => Op::new("Forget this phone", "The device token is revoked.", json!({}))
             .no_content()
@@ -304,7 +303,7 @@ pub fn describe(method: &Method, path: &str, s: &mut Schemas) -> Option<Op> {
         ("GET", "/api/v1/sites", _) => Op::new(
             "List my sites",
             "The sites where the credential holds a role.",
-            json!({ "type": "array", "items": object("`code`, `name`, `time_zone` (IANA).") }),
+            s.list_of::<crate::master::Site>(),
         ),
         (_, _, Some(tail)) => site_op(method.as_str(), tail, s)?,
         _ => return None,
@@ -318,8 +317,7 @@ fn site_op(method: &str, tail: &str, s: &mut Schemas) -> Option<Op> {
         ("GET", "") => Op::new(
             "Read a site",
             "The site and how much it holds.",
-            json!({ "allOf": [object("`code`, `name`, `time_zone`."),
-                              { "type": "object", "properties": { "counts": s.of::<crate::master::SiteCounts>() } }] }),
+            s.of::<crate::master::routes::SiteView>(),
         ),
         // ---- master data -------------------------------------------------------------
         ("GET", "/zones") => Op::new(
@@ -373,6 +371,15 @@ fn site_op(method: &str, tail: &str, s: &mut Schemas) -> Option<Op> {
         )
         .says("Lots are made by the movements that name them.")
         .q("sku", "Only this SKU's lots.", string())
+        .paged(1000, 200)
+        .etag(),
+        ("GET", "/packs") => Op::new(
+            "Read packs back",
+            "A page of packs by SKU, then GTIN, each as `POST packs` takes it.",
+            page("packs", s.of::<crate::master::read::SkuPackRow>(), string()),
+        )
+        .says("The same packs `GET items` lists under each item, one row each with its SKU.")
+        .q("sku", "Only this SKU's packs.", string())
         .paged(1000, 200)
         .etag(),
         ("POST", "/packs") => Op::new("Create or update packs", "Every pack was written.", written())
@@ -449,8 +456,7 @@ fn site_op(method: &str, tail: &str, s: &mut Schemas) -> Option<Op> {
         ("GET", "/count-results/{id}") => Op::new(
             "Read one count result",
             "The result with its evidence, the rows it replaced and its recount tasks.",
-            object("A count result (as listed) plus `evidence`, `replaces`, `recount_tasks`, \
-                    `withdrawn_recounts`, `automatic_adjustment`."),
+            s.of::<crate::netting::results::ResultDetail>(),
         ),
         ("GET", "/count-policy") => Op::new(
             "Read the count policy",
@@ -460,13 +466,7 @@ fn site_op(method: &str, tail: &str, s: &mut Schemas) -> Option<Op> {
         .etag(),
         ("GET", "/netting/settings") => Op::new("Read netting settings", "The settings.", s.of::<NettingSettings>()),
         ("PUT", "/netting/settings") => Op::new("Set netting settings", "The settings now.", s.of::<NettingSettings>())
-            // The body as the answer reads, but not held to its schema: serde also reads a
-            // struct from a JSON array of its fields (`"c": [null, null]`), which the
-            // contract run flagged; until the body reader refuses that, the body is
-            // described in words.
-            .body(object("The settings as `GET` answers them (`tolerances` per class a, b, c, each \
-                           `units`, `percent_bp`, `value_minor` or null; `auto_adjust`, \
-                           `manager_value_minor`, `bulk_value_minor`)."),
+            .body(s.of::<NettingSettings>(),
                   serde_json::to_value(NettingSettings::default()).expect("settings serialise"))
             .errors(CONFLICT),
         ("GET", "/netting/sources") => Op::new(
@@ -491,81 +491,84 @@ fn site_op(method: &str, tail: &str, s: &mut Schemas) -> Option<Op> {
         ("POST", "/sync") => Op::new(
             "Sync a phone",
             "Each event's result and the clock correction.",
-            object("`server_clock`, `offset_ms`, `uncertainty_ms` (integer milliseconds), `results`."),
+            s.of::<cairn_scan::wire::SyncResponse>(),
         )
         .says("The phone's sync protocol. Its clock fields are integer milliseconds since the \
                Unix epoch (`device_clock`, each event's `at`; `server_clock` in the answer), \
                the only route that does not write instants as RFC 3339: the phone measures \
                its clock's offset from them. The wire types are the same Rust types in the \
                server and the phone's wasm.")
-        .body(object("`device_clock` (epoch ms), `rtt_ms`, `events`."), json!({ "device_clock": 1772438400000_i64, "events": [] }))
+        .body(s.of::<cairn_scan::wire::SyncRequest>(), json!({ "device_clock": 1772438400000_i64, "events": [] }))
         .errors(CONFLICT),
         ("GET", "/catalog") => Op::new(
             "Read the phone's catalogue",
             "Items and packs a counter may scan, with a version.",
-            object("`version`, `items`."),
+            s.of::<crate::sync::routes::Catalog>(),
         )
         .etag(),
         ("GET", "/count-lines") => Op::new(
             "Read counted lines",
             "A page of lines the phones sent.",
-            object("`lines`, `next` (a line id, or null)."),
+            s.of::<crate::sync::routes::LinesPage>(),
         )
         .q("after", "The `next` of the previous page: lines with a higher id.", json!({ "type": "integer", "format": "int64" }))
         .q("limit", "Most rows on the page.", json!({ "type": "integer", "minimum": 1, "maximum": 5000, "default": 5000 })),
         ("GET", "/my-tasks") => Op::new(
             "Read my count tasks",
             "The counter's part of the day's list, blind: no book quantities.",
-            object("The day's runs held by the counter, their bins and items."),
+            s.of::<crate::planning::phone::PhoneList>(),
         )
         .q("day", "The local day (default: today at the site).", day()),
         // ---- planning ---------------------------------------------------------------------
-        ("GET", "/planning/settings") => Op::new("Read planning settings", "The settings.", object("Planning settings.")),
-        ("PUT", "/planning/settings") => Op::new("Set planning settings", "The settings now.", object("Planning settings."))
-            .body(object("Planning settings, as read."), json!({})),
+        ("GET", "/planning/settings") => Op::new("Read planning settings", "The settings.", s.of::<PlanningSettings>()),
+        ("PUT", "/planning/settings") => Op::new("Set planning settings", "The settings now.", s.of::<PlanningSettings>())
+            .body(s.of::<PlanningSettings>(),
+                  serde_json::to_value(PlanningSettings::default()).expect("settings serialise")),
         ("GET", "/planning/calendar") => Op::new(
             "Read the working calendar",
             "Working weekdays and holidays.",
-            object("`working_weekdays`, `holidays` (days)."),
+            s.of::<CalendarBody>(),
         ),
         ("PUT", "/planning/calendar") => Op::new(
             "Set the working calendar",
             "The calendar now.",
-            object("`working_weekdays`, `holidays` (days)."),
+            s.of::<CalendarBody>(),
         )
-        .body(object("`working_weekdays`, `holidays`."), json!({ "working_weekdays": ["mon", "tue", "wed", "thu", "fri"], "holidays": [] })),
-        ("GET", "/planning/abc") => Op::new("Read the last ABC run", "Its summary.", object("The run's day and class counts.")),
-        ("POST", "/planning/abc") => Op::new("Run ABC classification", "The run's summary.", object("The run's day and class counts."))
+        .body(s.of::<CalendarBody>(), json!({ "working_weekdays": ["mon", "tue", "wed", "thu", "fri"], "holidays": [] })),
+        ("GET", "/planning/abc") => Op::new("Read the last ABC run", "Its summary.", s.of::<crate::planning::AbcSummary>()),
+        ("POST", "/planning/abc") => Op::new("Run ABC classification", "The run's summary.", s.of::<crate::planning::AbcSummary>())
             .q("day", "The run's day (default: today at the site).", day()),
         ("GET", "/items/{sku}/classes") => Op::new(
             "Read an item's class history",
             "Each change of the item's class.",
-            json!({ "type": "array", "items": object("A class change.") }),
+            s.list_of::<crate::planning::ClassChange>(),
         ),
-        ("POST", "/short-picks") => Op::new("Report short picks", "What was recorded.", object("Counts of reports written."))
+        ("POST", "/short-picks") => Op::new("Report short picks", "What was recorded.", s.of::<crate::planning::short_pick::ShortPickOutcome>())
             .says("The host reports picks that found less than the book said; each is an \
                    instant (`reported_at`) and a bin and SKU. Written whole or not at all.")
-            .body(json!({ "type": "array", "items": object("`bin`, `sku`, `reported_at` …") }), json!([]))
+            .body(s.list_of::<crate::planning::short_pick::ShortPickRecord>(),
+                  json!([{ "id": "erp-short-9001", "bin": "A-01-02-3", "sku": "KL-1001", "short_qty": 4,
+                           "reported_at": "2026-03-02T11:20:00.000Z" }]))
             .errors(BATCH),
-        ("POST", "/count-lists") => Op::new("Build the day's count list", "The list.", object("The day's list."))
-            .body(object("`day`, `counters`, `minutes`, `fill`, `preview`, `replace`."),
+        ("POST", "/count-lists") => Op::new("Build the day's count list", "The list.", s.of::<ListView>())
+            .body(s.of::<BuildBody>(),
                   json!({ "day": "2026-03-02", "counters": 2, "minutes": 120 }))
             .errors(CONFLICT),
-        ("GET", "/count-lists/{day}") => Op::new("Read a day's count list", "The list.", object("The day's list."))
+        ("GET", "/count-lists/{day}") => Op::new("Read a day's count list", "The list.", s.of::<ListView>())
             .csv(),
-        ("POST", "/count-lists/{day}/tasks/{task}/move") => Op::new("Move a task to another run", "The list.", object("The day's list."))
-            .body(object("`run`."), json!({ "run": 2 }))
-            .errors(CONFLICT),
-        ("PUT", "/count-lists/{day}/runs/{run}") => Op::new("Give a run to a counter", "The list.", object("The day's list."))
-            .body(object("`holder` (a user name, or empty)."), json!({ "holder": "esme" }))
+        ("POST", "/count-lists/{day}/tasks/{task}/move") => Op::new("Move a task to another run", "The list.", s.of::<ListView>())
+            .body(s.of::<MoveBody>(), json!({ "run": 2 }))
+            .errors(MOVE),
+        ("PUT", "/count-lists/{day}/runs/{run}") => Op::new("Give a run to a counter", "The list.", s.of::<ListView>())
+            .body(s.of::<HoldBody>(), json!({ "holder": "esme" }))
             .errors(CONFLICT),
         ("GET", "/count-lists/{day}/progress") => Op::new(
             "Read a day's progress",
             "Tasks and estimated seconds per run: not started, in progress, done.",
-            object("Progress per run."),
+            s.of::<crate::planning::progress::Progress>(),
         ),
         // ---- accuracy ---------------------------------------------------------------------
-        ("GET", "/accuracy") => period(Op::new("Read record accuracy", "The accuracy report.", object("The report.")))
+        ("GET", "/accuracy") => period(Op::new("Read record accuracy", "The accuracy report.", s.of::<crate::accuracy::service::AccuracyReport>()))
             .q("class", "Only this ABC class.", json!({ "type": "string", "enum": ["", "A", "B", "C"] }))
             .q("zone", "Only this zone.", string())
             .q("table", "Which table the CSV holds (default `summary`).", string())
@@ -573,13 +576,13 @@ fn site_op(method: &str, tail: &str, s: &mut Schemas) -> Option<Op> {
         ("GET", "/accuracy/items") => table_view(period(Op::new(
             "Read record error per item",
             "Every row the filter keeps (never paged).",
-            json!({ "type": "array", "items": object("One item's record error.") }),
+            s.list_of::<crate::accuracy::service::ItemReport>(),
         )))
         .csv(),
         ("GET", "/accuracy/items/{sku}") => period(Op::new(
             "Read one item's record error",
             "The item's figures.",
-            object("The item's figures."),
+            s.of::<crate::accuracy::service::ItemReport>(),
         ))
         .csv(),
         ("GET", "/accuracy/settings") => Op::new("Read accuracy settings", "The settings.", s.of::<AccuracySettings>()),
@@ -588,26 +591,27 @@ fn site_op(method: &str, tail: &str, s: &mut Schemas) -> Option<Op> {
         ("GET", "/planner-inputs") => Op::new(
             "Read planner inputs back",
             "A page of planner inputs, each as `POST planner-inputs` takes it.",
-            object("`planner_inputs`, `next`."),
+            page("planner_inputs", s.of::<crate::accuracy::inputs::PlannerInput>(), string()),
         )
         .q("sku", "Only this item's own row.", string())
         .q("group", "Only this group's default.", string())
         .paged(1000, 200)
         .etag()
         .csv(),
-        ("POST", "/planner-inputs") => Op::new("Set planner inputs", "What was written.", object("Counts written."))
-            .body(json!({ "type": "array", "items": object("A planner input row.") }), json!([]))
+        ("POST", "/planner-inputs") => Op::new("Set planner inputs", "What was written.", written())
+            .body(s.list_of::<crate::accuracy::inputs::PlannerInputRecord>(),
+                  json!([{ "sku": "KL-1001", "lead_time_days": 5.0, "lead_time_sd_days": 1.5, "review_days": 0.0 }]))
             .errors(BATCH),
         ("GET", "/buffer") => table_view(window(Op::new(
             "Read buffers",
             "Every row the filter keeps (never paged).",
-            json!({ "type": "array", "items": object("One item's safety stock and order point with every term.") }),
+            s.list_of::<crate::accuracy::service::BufferReport>(),
         )))
         .csv(),
         ("GET", "/buffer/{sku}") => window(Op::new(
             "Read one item's buffer",
             "The item's safety stock and order point with every term.",
-            object("One item's safety stock and order point with every term."),
+            s.of::<crate::accuracy::service::BufferReport>(),
         ))
         .csv(),
         _ => return None,

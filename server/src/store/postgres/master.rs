@@ -9,8 +9,8 @@ use crate::accounts::audit::AuditEvent;
 use crate::batch::RowError;
 use crate::master::codes::{BinCode, Sku, ZoneCode};
 use crate::master::read::{
-    BinQuery, BinRow, ClassFilter, ItemQuery, ItemRow, LotQuery, LotRow, PackRow, ZoneQuery,
-    ZoneRow,
+    BinQuery, BinRow, ClassFilter, ItemQuery, ItemRow, LotQuery, LotRow, PackQuery, PackRow,
+    SkuPackRow, ZoneQuery, ZoneRow,
 };
 use crate::master::{
     Bin, NewBin, NewItem, NewPack, NewSite, Side, Site, SiteCode, SiteCounts, SiteId,
@@ -393,6 +393,44 @@ pub async fn lot_rows(
             sku: r.try_get(0)?,
             lot: r.try_get(1)?,
             expiry: r.try_get(2)?,
+        })
+    })
+    .collect()
+}
+
+/// See [`crate::store::Store::pack_rows`]: a page of a site's packs by SKU, then GTIN.
+pub async fn pack_rows(
+    store: &PgStore,
+    site: SiteId,
+    q: PackQuery,
+) -> Result<Vec<SkuPackRow>, StoreError> {
+    let (after_sku, after_gtin) = q.after.unzip();
+    let c = store.client().await?;
+    rows(
+        &c,
+        "select i.sku, p.gtin, p.level, p.units
+         from pack p join item i on i.id = p.item_id
+         where p.site_id = $1 and ($2::text is null or i.sku = $2)
+           and ($3::text is null or i.sku collate \"C\" > $3
+                or (i.sku = $3 and p.gtin collate \"C\" > $4::text))
+         order by i.sku collate \"C\", p.gtin collate \"C\"
+         limit $5",
+        &[
+            &site.0,
+            &q.sku.as_ref().map(Sku::as_str),
+            &after_sku,
+            &after_gtin,
+            &(q.take as i64),
+        ],
+    )
+    .await?
+    .iter()
+    .map(|r| {
+        Ok(SkuPackRow {
+            sku: r.try_get(0)?,
+            gtin: r.try_get(1)?,
+            level: r.try_get(2)?,
+            units: narrow(r.try_get(3)?, "units")?,
         })
     })
     .collect()

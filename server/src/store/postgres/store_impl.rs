@@ -5,7 +5,8 @@ use super::PgStore;
 use crate::accounts::audit::AuditEvent;
 use crate::master::codes::{BinCode, Sku, ZoneCode};
 use crate::master::read::{
-    BinQuery, BinRow, ItemQuery, ItemRow, LotQuery, LotRow, ZoneQuery, ZoneRow,
+    BinQuery, BinRow, ItemQuery, ItemRow, LotQuery, LotRow, PackQuery, SkuPackRow, ZoneQuery,
+    ZoneRow,
 };
 use crate::master::{Bin, NewBin, NewItem, NewPack, NewSite, Site, SiteCode, SiteCounts, SiteId};
 use crate::planning::abc::{AbcRule, Class, Usage};
@@ -119,6 +120,14 @@ impl Store for PgStore {
 
     async fn lot_rows(&self, site: SiteId, query: LotQuery) -> Result<Vec<LotRow>, StoreError> {
         super::master::lot_rows(self, site, query).await
+    }
+
+    async fn pack_rows(
+        &self,
+        site: SiteId,
+        query: PackQuery,
+    ) -> Result<Vec<SkuPackRow>, StoreError> {
+        super::master::pack_rows(self, site, query).await
     }
 
     async fn put_bins(

@@ -3,8 +3,8 @@
 use crate::batch::RowError;
 use crate::master::codes::{BinCode, Sku, ZoneCode};
 use crate::master::read::{
-    BinQuery, BinRow, ClassFilter, ItemQuery, ItemRow, LotQuery, LotRow, PackRow, ZoneQuery,
-    ZoneRow,
+    BinQuery, BinRow, ClassFilter, ItemQuery, ItemRow, LotQuery, LotRow, PackQuery, PackRow,
+    SkuPackRow, ZoneQuery, ZoneRow,
 };
 use crate::master::{
     Bin, NewBin, NewItem, NewPack, NewSite, Side, Site, SiteCode, SiteCounts, SiteId,
@@ -309,6 +309,41 @@ pub fn lot_rows(conn: &Connection, site: SiteId, q: &LotQuery) -> Result<Vec<Lot
                 sku: r.get(0)?,
                 lot: r.get(1)?,
                 expiry: r.get(2)?,
+            })
+        },
+    )?;
+    Ok(rows.collect::<rusqlite::Result<Vec<_>>>()?)
+}
+
+/// Reads a page of a site's packs by SKU, then GTIN (see [`crate::store::Store::pack_rows`]).
+pub fn pack_rows(
+    conn: &Connection,
+    site: SiteId,
+    q: &PackQuery,
+) -> Result<Vec<SkuPackRow>, StoreError> {
+    let (after_sku, after_gtin) = q.after.clone().unzip();
+    let mut stmt = conn.prepare_cached(
+        "select i.sku, p.gtin, p.level, p.units
+         from pack p join item i on i.id = p.item_id
+         where p.site_id = ?1 and (?2 is null or i.sku = ?2)
+           and (?3 is null or i.sku > ?3 or (i.sku = ?3 and p.gtin > ?4))
+         order by i.sku, p.gtin
+         limit ?5",
+    )?;
+    let rows = stmt.query_map(
+        params![
+            site.0,
+            q.sku.as_ref().map(Sku::as_str),
+            after_sku,
+            after_gtin,
+            q.take as i64
+        ],
+        |r| {
+            Ok(SkuPackRow {
+                sku: r.get(0)?,
+                gtin: r.get(1)?,
+                level: r.get(2)?,
+                units: r.get(3)?,
             })
         },
     )?;

@@ -24,7 +24,8 @@ use crate::accounts::audit::AuditEvent;
 use crate::ledger::NewMovement;
 use crate::master::codes::{BinCode, MovementUid, Sku, ZoneCode};
 use crate::master::read::{
-    BinQuery, BinRow, ItemQuery, ItemRow, LotQuery, LotRow, ZoneQuery, ZoneRow,
+    BinQuery, BinRow, ItemQuery, ItemRow, LotQuery, LotRow, PackQuery, SkuPackRow, ZoneQuery,
+    ZoneRow,
 };
 use crate::master::{Bin, NewBin, NewItem, NewPack, NewSite, Site, SiteCode, SiteCounts, SiteId};
 use crate::planning::abc::{AbcRule, Class, Usage};
@@ -326,6 +327,16 @@ impl Store for SqliteStore {
     async fn lot_rows(&self, site: SiteId, query: LotQuery) -> Result<Vec<LotRow>, StoreError> {
         self.readers
             .run(move |c| master::lot_rows(c, site, &query))
+            .await
+    }
+
+    async fn pack_rows(
+        &self,
+        site: SiteId,
+        query: PackQuery,
+    ) -> Result<Vec<SkuPackRow>, StoreError> {
+        self.readers
+            .run(move |c| master::pack_rows(c, site, &query))
             .await
     }
 
