@@ -523,6 +523,20 @@ fn site_op(method: &str, tail: &str, s: &mut Schemas) -> Option<Op> {
         ("GET", "/planning/settings") => Op::new("Read planning settings", "The settings.", object("Planning settings.")),
         ("PUT", "/planning/settings") => Op::new("Set planning settings", "The settings now.", object("Planning settings."))
             .body(object("Planning settings, as read."), json!({})),
+        ("GET", "/planning/frequency-policy") => Op::new(
+            "Read the frequency policy",
+            "How the site sets count intervals.",
+            object("`policy` (`abc`, `risk` or `blend`) and `floor_a`, `floor_b`, `floor_c` (least counts a year per class under `blend`; 0: none)."),
+        ),
+        ("PUT", "/planning/frequency-policy") => Op::new(
+            "Set the frequency policy",
+            "The policy now; the change is written to the audit log. A field at fault is refused (422) with its name.",
+            object("`policy`, `floor_a`, `floor_b`, `floor_c`."),
+        )
+        .body(
+            object("`policy` (`abc`, `risk` or `blend`); floors 0 to 365 counts a year, left out to keep the stored ones."),
+            json!({ "policy": "blend", "floor_a": 12, "floor_b": 4, "floor_c": 1 }),
+        ),
         ("GET", "/planning/calendar") => Op::new(
             "Read the working calendar",
             "Working weekdays and holidays.",
