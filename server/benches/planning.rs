@@ -2,8 +2,10 @@
 //! and a 2,000,000-movement ledger. Prints the time of the nightly ABC
 //! classification and of each step of building and storing the list, the
 //! choice of intervals by expected error value for one key per bin (the
-//! arithmetic alone, on seeded growth figures: the risk policy is not yet
-//! wired to the store), and the peak memory of the process that did it.
+//! arithmetic alone, on seeded growth figures), the same list request with the
+//! site on the `risk` frequency policy (reading costs, picks and count
+//! results, choosing every item's interval), and the peak memory of the
+//! process that did it.
 //!
 //! Run: `cargo bench -p cairn-server --bench planning`. Sizes can be lowered
 //! with CAIRN_BENCH_ITEMS, CAIRN_BENCH_BINS and CAIRN_BENCH_MOVES.
@@ -14,6 +16,8 @@
 use cairn::master::{BinRecord, ItemRecord, NewSite, SiteCode};
 use cairn::planning::abc::Class;
 use cairn::planning::plan::{self, Capacity, Fill};
+use cairn::accounts::audit::{Action, Actor, AuditEvent};
+use cairn::planning::policy::{FrequencyPolicy, Mode};
 use cairn::planning::risk::{self, Floors, Growth, RiskItem, Source};
 use cairn::planning::service;
 use cairn::store::StoreOptions as OpenOptions;
@@ -331,7 +335,45 @@ fn main() {
             .unwrap();
         let all_ms = t.elapsed().as_secs_f64() * 1e3;
         println!(
-            "| the whole request: read, build, store, read back ({} tasks) | {all_ms:.0} |",
+            "| the whole request, `abc` policy: read, build, store, read back ({} tasks) | {all_ms:.0} |",
+            list.tasks.len()
+        );
+        drop(list);
+
+        // The same request with the site switched to the `risk` policy: it also reads
+        // every item's unit cost, picks and count results, fits and pools the error
+        // growth and chooses each item's interval within the abc level's minutes.
+        let audit = AuditEvent::now(Actor::System, Action::IntervalRuleChanged, "bench");
+        let risk_policy = FrequencyPolicy {
+            policy: Mode::Risk,
+            ..FrequencyPolicy::default()
+        };
+        store
+            .put_frequency_policy(site.id, risk_policy, audit)
+            .await
+            .unwrap();
+        let t = Instant::now();
+        let (input, p) = service::preview(&store, &site, day, capacity, Fill::Level)
+            .await
+            .unwrap();
+        let preview_ms = t.elapsed().as_secs_f64() * 1e3;
+        let risk = input.risk.as_ref().expect("the risk policy is in force");
+        println!(
+            "| `risk` policy: read, choose intervals ({} items, {:.0} minutes a day), build ({} tasks, {} of {} due items) | {preview_ms:.0} |",
+            risk.items.iter().flatten().count(),
+            risk.budget_minutes,
+            p.tasks.len(),
+            p.due_items_planned,
+            p.due_items
+        );
+        drop((input, p));
+        let t = Instant::now();
+        let list = service::build(&store, &site, day, capacity, Fill::Level, true)
+            .await
+            .unwrap();
+        let all_ms = t.elapsed().as_secs_f64() * 1e3;
+        println!(
+            "| the whole request, `risk` policy: read, choose, build, store, read back ({} tasks) | {all_ms:.0} |",
             list.tasks.len()
         );
         println!();
