@@ -24,8 +24,9 @@ use std::collections::HashMap;
 
 /// Most counts a year a floor may ask for (one a day).
 pub const MAX_FLOOR_PER_YEAR: u32 = 365;
-/// Days of picks an item's pick rate is taken over, for its pool.
-pub const DEMAND_DAYS: i64 = 91;
+/// Days of picks an item's pick rate is taken over, for its pool (four weeks: recent
+/// enough to band its traffic, short enough that reading it stays a small part of planning).
+pub const DEMAND_DAYS: i64 = 28;
 /// Growth used when neither the item, its pool nor the site has enough repeat
 /// counts: variance growing by one unit² a day from nothing. With one growth for
 /// every item the budget's multiplier absorbs its size, so intervals then follow
