@@ -137,6 +137,7 @@ fn textbook_site() -> PlanInput {
         fill: Fill::Level,
         counting_since: Some(NaiveDate::from_ymd_opt(2026, 1, 1).unwrap()),
         watermark: 0,
+        risk: None,
     }
 }
 

@@ -77,6 +77,9 @@ pub enum Action {
     CountPolicyChanged,
     /// A change to a site's time zone (and so to which instants its days span).
     SiteZoneChanged,
+    /// A change to how a site sets its count intervals (`abc`, `risk`, `blend`) or
+    /// to its class floors.
+    IntervalRuleChanged,
 }
 
 impl Action {
@@ -102,6 +105,7 @@ impl Action {
             Action::Adjustment => "adjustment",
             Action::CountPolicyChanged => "count_policy_changed",
             Action::SiteZoneChanged => "site_zone_changed",
+            Action::IntervalRuleChanged => "interval_rule_changed",
         }
     }
 }
@@ -187,6 +191,20 @@ pub fn policy_change(
     AuditEvent::now(by.actor(), Action::CountPolicyChanged, part)
         .at_site(site)
         .detail(serde_json::json!({ "now": value }))
+}
+
+/// Records a change of a site's frequency policy: what it was and what it is now.
+pub fn interval_rule_change(
+    by: &super::Principal,
+    site: SiteId,
+    before: &impl serde::Serialize,
+    now: &impl serde::Serialize,
+) -> AuditEvent {
+    let was = serde_json::to_value(before).unwrap_or(Value::Null);
+    let now = serde_json::to_value(now).unwrap_or(Value::Null);
+    AuditEvent::now(by.actor(), Action::IntervalRuleChanged, "frequency-policy")
+        .at_site(site)
+        .detail(serde_json::json!({ "was": was, "now": now }))
 }
 
 /// One stored event, as pages and the CSV export show it.

@@ -416,6 +416,20 @@ fn key_counts(results: &[StoredResult]) -> Vec<KeyCount> {
         .collect()
 }
 
+/// Computes the record-error figures of every item with judged results, by SKU.
+pub fn figures_by_sku(
+    results: &[StoredResult],
+) -> Result<HashMap<String, ItemFigures>, crate::accuracy::item_error::ItemErrorError> {
+    let mut by_item: HashMap<&str, Vec<StoredResult>> = HashMap::new();
+    for r in results {
+        by_item.entry(r.sku.as_str()).or_default().push(r.clone());
+    }
+    by_item
+        .into_iter()
+        .map(|(sku, rs)| Ok((sku.to_string(), items::item_figures(&key_counts(&rs))?)))
+        .collect()
+}
+
 /// Computes record-error figures for every item counted in `period` (or one item).
 pub async fn item_reports(
     store: &dyn Store,

@@ -33,6 +33,7 @@ pub fn route_table() -> RouteTable {
     crate::ledger::routes::routes(&mut t);
     crate::planning::routes::routes(&mut t);
     crate::planning::pages::routes(&mut t);
+    crate::planning::policy_page::routes(&mut t);
     crate::accuracy::routes::routes(&mut t);
     crate::accuracy::pages::routes(&mut t);
     crate::sync::routes::routes(&mut t);

@@ -13,6 +13,8 @@ pub mod estimate;
 pub mod pages;
 pub mod phone;
 pub mod plan;
+pub mod policy;
+pub mod policy_page;
 pub mod progress;
 pub mod risk;
 pub mod routes;
@@ -141,6 +143,8 @@ pub struct TaskView {
     pub lines: u32,
     pub est_s: i64,
     pub status: String,
+    /// The figures behind a due task (`planning::policy::Why`); `None` for triggered ones.
+    pub why: Option<serde_json::Value>,
 }
 
 impl TaskView {
@@ -278,4 +282,6 @@ pub struct NewTask {
     /// The stored recount task this is: kept (moved here from an earlier list if need
     /// be), never deleted or copied, so netting still finds the count done against it.
     pub recount_task: Option<i64>,
+    /// The figures behind a due task, as JSON text.
+    pub why: Option<String>,
 }

@@ -8,6 +8,7 @@ use super::abc::Class;
 use super::calendar::Calendar;
 use super::due::Overdue;
 use super::estimate::TaskTime;
+use super::policy::{RiskPlan, Why};
 use super::walk::{Place, split, walk_order};
 use super::{Settings, TriggerKind};
 use chrono::NaiveDate;
@@ -136,6 +137,8 @@ pub struct PlanInput {
     pub counting_since: Option<NaiveDate>,
     /// The ledger's high-water mark the facts were read at.
     pub watermark: i64,
+    /// Intervals set by risk (`risk` and `blend` policies); `None` under `abc`.
+    pub risk: Option<RiskPlan>,
 }
 
 /// Why a bin is on the list.
@@ -173,7 +176,7 @@ impl Reason {
 }
 
 /// One bin task of the day.
-#[derive(Debug, Clone, PartialEq, Eq)]
+#[derive(Debug, Clone, PartialEq)]
 pub struct Task {
     /// Index into [`PlanInput::bins`].
     pub bin: u32,
@@ -189,6 +192,8 @@ pub struct Task {
     pub run: u32,
     /// The stored recount task this is, kept rather than created again.
     pub keep: Option<i64>,
+    /// The figures behind a due task.
+    pub why: Option<Why>,
 }
 
 /// The day's list.
@@ -242,6 +247,7 @@ struct Chosen {
     lines: u32,
     /// The stored recount task it keeps.
     keep: Option<i64>,
+    why: Option<Why>,
 }
 
 /// Orders a run's tasks: open recounts, other triggered bins, the rest.
@@ -269,6 +275,7 @@ impl Chosen {
             seq: 0,
             run,
             keep: self.keep,
+            why: self.why.clone(),
         }
     }
 }
@@ -280,28 +287,30 @@ impl Task {
     }
 }
 
-/// Builds the day's list.
-pub fn build(input: &PlanInput) -> Plan {
-    assert!(
-        input.capacity.counters > 0,
-        "capacity is checked before planning"
-    );
-    let s = &input.settings;
+/// Returns the `abc` interval in working days of A, B, C and dead stock on the input's day.
+pub fn abc_intervals(input: &PlanInput) -> [i64; 4] {
+    let f = &input.settings.frequency;
     let wdy = input.calendar.working_days_in_year(input.day);
-    let intervals = [
-        s.frequency.interval(Class::A, false, wdy),
-        s.frequency.interval(Class::B, false, wdy),
-        s.frequency.interval(Class::C, false, wdy),
-        s.frequency.interval(Class::C, true, wdy),
-    ];
-    let interval_of = |it: &ItemFacts| {
-        if it.dead {
-            intervals[3]
-        } else {
-            intervals[it.class.index()]
-        }
-    };
-    let seconds: Vec<i64> = input
+    [
+        f.interval(Class::A, false, wdy),
+        f.interval(Class::B, false, wdy),
+        f.interval(Class::C, false, wdy),
+        f.interval(Class::C, true, wdy),
+    ]
+}
+
+/// Returns an item's `abc` interval from [`abc_intervals`].
+pub fn abc_interval(intervals: &[i64; 4], it: &ItemFacts) -> i64 {
+    if it.dead {
+        intervals[3]
+    } else {
+        intervals[it.class.index()]
+    }
+}
+
+/// Returns each bin's task time in seconds (its zone's learned time, else the settings').
+pub fn bin_seconds(input: &PlanInput) -> Vec<i64> {
+    input
         .bins
         .iter()
         .map(|b| {
@@ -309,24 +318,28 @@ pub fn build(input: &PlanInput) -> Plan {
                 .zone_time
                 .get(&b.zone)
                 .copied()
-                .unwrap_or(s.task_time)
+                .unwrap_or(input.settings.task_time)
                 .seconds(b.lines)
         })
-        .collect();
-    let mut warnings = Vec::new();
-    if !input.calendar.is_working(input.day) {
-        warnings.push(format!(
-            "{} is not a working day in the site calendar",
-            input.day
-        ));
-    }
+        .collect()
+}
 
-    // The level: each bin is counted as often as its most frequent item
-    // needs; its load belongs to that item's group (class, or dead stock).
-    let group_of = |it: &ItemFacts| if it.dead { 3 } else { it.class.index() };
+fn group_of(it: &ItemFacts) -> usize {
+    if it.dead { 3 } else { it.class.index() }
+}
+
+/// Returns the day's share of the year's load per group (A, B, C, dead stock), seconds
+/// a working day: each bin is counted as often as its most frequent item needs
+/// (`interval_of(item index, item)`, working days), and its load belongs to that
+/// item's group.
+pub fn level_by_group(
+    input: &PlanInput,
+    seconds: &[i64],
+    interval_of: impl Fn(usize, &ItemFacts) -> i64,
+) -> [f64; 4] {
     let mut rate = vec![(0f64, 3usize); input.bins.len()];
-    for it in &input.items {
-        let r = 1.0 / interval_of(it) as f64;
+    for (i, it) in input.items.iter().enumerate() {
+        let r = 1.0 / interval_of(i, it).max(1) as f64;
         for &b in &it.bins {
             let cur = &mut rate[b as usize];
             if r > cur.0 || (r == cur.0 && group_of(it) < cur.1) {
@@ -335,9 +348,44 @@ pub fn build(input: &PlanInput) -> Plan {
         }
     }
     let mut level = [0f64; 4];
-    for ((r, g), &sec) in rate.iter().zip(&seconds) {
+    for ((r, g), &sec) in rate.iter().zip(seconds) {
         level[*g] += r * sec as f64;
     }
+    level
+}
+
+/// Returns the day's whole level, seconds a working day (see [`level_by_group`]).
+pub fn level_s(
+    input: &PlanInput,
+    seconds: &[i64],
+    interval_of: impl Fn(usize, &ItemFacts) -> i64,
+) -> f64 {
+    level_by_group(input, seconds, interval_of).iter().sum()
+}
+
+/// Builds the day's list.
+pub fn build(input: &PlanInput) -> Plan {
+    assert!(
+        input.capacity.counters > 0,
+        "capacity is checked before planning"
+    );
+    let s = &input.settings;
+    let intervals = abc_intervals(input);
+    let risk = input.risk.as_ref();
+    let item_risk = |i: usize| risk.and_then(|r| r.items.get(i)).and_then(Option::as_ref);
+    let interval_of = |i: usize, it: &ItemFacts| {
+        item_risk(i).map_or_else(|| abc_interval(&intervals, it), |r| r.working_days)
+    };
+    let seconds = bin_seconds(input);
+    let mut warnings = Vec::new();
+    if !input.calendar.is_working(input.day) {
+        warnings.push(format!(
+            "{} is not a working day in the site calendar",
+            input.day
+        ));
+    }
+
+    let level = level_by_group(input, &seconds, interval_of);
     let level_s = level.iter().sum::<f64>().ceil() as i64;
 
     let capacity_s = input.capacity.total_s();
@@ -361,6 +409,7 @@ pub fn build(input: &PlanInput) -> Plan {
             seconds: r.seconds,
             lines: r.lines,
             keep: Some(r.task),
+            why: None,
         };
         if r.supervisor {
             supervisor.push(c);
@@ -400,6 +449,7 @@ pub fn build(input: &PlanInput) -> Plan {
             seconds: seconds[b],
             lines: input.bins[b].lines,
             keep: None,
+            why: None,
         });
     }
 
@@ -407,22 +457,23 @@ pub fn build(input: &PlanInput) -> Plan {
     let began = input
         .counting_since
         .map_or(0, |d| input.calendar.working_days_between(d, input.day));
-    let mut due: Vec<(Overdue, &ItemFacts)> = input
+    let mut due: Vec<(Overdue, &ItemFacts, usize, Option<NaiveDate>)> = input
         .items
         .iter()
-        .filter(|it| !it.bins.is_empty())
-        .filter_map(|it| {
-            let since = it
+        .enumerate()
+        .filter(|(_, it)| !it.bins.is_empty())
+        .filter_map(|(i, it)| {
+            let last = it
                 .bins
                 .iter()
                 .map(|&b| input.bins[b as usize].last_count)
                 .min()
-                .flatten()
-                .map(|d| input.calendar.working_days_between(d, input.day));
-            Overdue::of(since, began, interval_of(it)).map(|o| (o, it))
+                .flatten();
+            let since = last.map(|d| input.calendar.working_days_between(d, input.day));
+            Overdue::of(since, began, interval_of(i, it)).map(|o| (o, it, i, last))
         })
         .collect();
-    due.sort_by(|(oa, a), (ob, b)| {
+    due.sort_by(|(oa, a, ..), (ob, b, ..)| {
         ob.cmp_ratio(oa)
             .then(a.class.cmp(&b.class))
             .then(a.id.cmp(&b.id))
@@ -435,7 +486,7 @@ pub fn build(input: &PlanInput) -> Plan {
     let slack = f64::from(100 + s.level_slack_pct) / 100.0;
     let mut group_used = [0i64; 4];
     let mut used_due = 0i64;
-    for (o, it) in &due {
+    for (o, it, i, last) in &due {
         let g = group_of(it);
         let share = if o.never_counted {
             level[g]
@@ -464,6 +515,16 @@ pub fn build(input: &PlanInput) -> Plan {
         }
         group_used[g] += cost;
         used_due += cost;
+        let why = Why::of(
+            risk.map_or(super::policy::Mode::Abc, |r| r.mode),
+            it.class,
+            it.dead,
+            o.interval,
+            last.filter(|_| !o.never_counted).map(|d| (d, o.days)),
+            input.day,
+            item_risk(*i),
+        );
+        let detail = why.sentence();
         for b in new {
             on_list[b as usize] = true;
             chosen.push(Chosen {
@@ -474,17 +535,11 @@ pub fn build(input: &PlanInput) -> Plan {
                     Reason::Due
                 },
                 class: Some(it.class),
-                detail: if o.never_counted {
-                    "never counted".into()
-                } else {
-                    format!(
-                        "{} working days since last count (every {})",
-                        o.days, o.interval
-                    )
-                },
+                detail: detail.clone(),
                 seconds: seconds[b as usize],
                 lines: input.bins[b as usize].lines,
                 keep: None,
+                why: Some(why.clone()),
             });
         }
     }
@@ -571,7 +626,7 @@ pub fn build(input: &PlanInput) -> Plan {
     }
     let planned = due
         .iter()
-        .filter(|(_, it)| it.bins.iter().all(|&b| final_on[b as usize]))
+        .filter(|(_, it, ..)| it.bins.iter().all(|&b| final_on[b as usize]))
         .count();
     Plan {
         day: input.day,
@@ -642,6 +697,7 @@ mod tests {
             fill: Fill::Capacity,
             counting_since: None,
             watermark: 0,
+            risk: None,
         }
     }
 

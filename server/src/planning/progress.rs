@@ -173,6 +173,7 @@ mod tests {
             lines: 1,
             est_s,
             status: status.into(),
+            why: None,
         }
     }
 

@@ -5,14 +5,17 @@
 use super::calendar::{Calendar, MAX_HOLIDAYS};
 use super::phone;
 use super::plan::{Capacity, Fill};
+use super::policy::FrequencyPolicy;
 use super::progress::{self, Progress};
 use super::short_pick::{ShortPickOutcome, ShortPickRecord};
 use super::{AbcSummary, ClassChange, ListView, Settings, service};
 use crate::AppState;
 use crate::accounts::Role;
+use crate::accounts::audit;
 use crate::error::ApiError;
 use crate::http::access::{
-    Access, BOOK_READERS, BOOK_WRITERS, COUNT_POLICY, CurrentUser, LIST_KEEPERS, RouteTable,
+    Access, BOOK_READERS, BOOK_WRITERS, COUNT_POLICY, ClientAddress, CurrentUser, LIST_KEEPERS,
+    RouteTable,
 };
 use crate::http::extract::{CurrentSite, JsonRows, Params};
 use crate::master::codes::BinCode;
@@ -41,6 +44,16 @@ pub fn routes(t: &mut RouteTable) {
         path!("/planning/settings"),
         Access::Site(COUNT_POLICY),
         put_settings,
+    )
+    .get(
+        path!("/planning/frequency-policy"),
+        Access::Site(BOOK_READERS),
+        get_frequency_policy,
+    )
+    .put(
+        path!("/planning/frequency-policy"),
+        Access::Site(COUNT_POLICY),
+        put_frequency_policy,
     )
     .get(
         path!("/planning/calendar"),
@@ -119,6 +132,33 @@ async fn put_settings(
     s.check().map_err(ApiError::BadRequest)?;
     state.store.put_planning_settings(site.id, s).await?;
     Ok(Json(s))
+}
+
+async fn get_frequency_policy(
+    State(state): State<AppState>,
+    CurrentSite(site): CurrentSite,
+) -> Result<Json<FrequencyPolicy>, ApiError> {
+    Ok(Json(state.store.frequency_policy(site.id).await?))
+}
+
+/// Sets the frequency policy; a body at fault is refused whole (422), each field named.
+async fn put_frequency_policy(
+    State(state): State<AppState>,
+    CurrentUser(p): CurrentUser,
+    ClientAddress(address): ClientAddress,
+    CurrentSite(site): CurrentSite,
+    bytes: axum::body::Bytes,
+) -> Result<Json<FrequencyPolicy>, ApiError> {
+    let value: serde_json::Value = body(&bytes)?;
+    let before = state.store.frequency_policy(site.id).await?;
+    let policy = FrequencyPolicy::from_json(&value, &before)
+        .map_err(|errors| ApiError::Rejected(errors.into_iter().map(|e| e.at(0)).collect()))?;
+    let audit = audit::interval_rule_change(&p, site.id, &before, &policy).from_address(&address);
+    state
+        .store
+        .put_frequency_policy(site.id, policy, audit)
+        .await?;
+    Ok(Json(policy))
 }
 
 #[derive(Serialize, Deserialize, utoipa::ToSchema)]

@@ -3,14 +3,18 @@
 
 use super::abc;
 use super::plan::{self, Capacity, Fill, Plan, PlanInput};
+use super::policy::{self, DEMAND_DAYS, FrequencyPolicy, ItemHistory, ItemWorth, Mode, RiskPlan};
 use super::{
     AbcSummary, ListView, MAX_COUNTERS, MAX_MINUTES, NewCountList, NewTask, Summary, TaskView,
 };
+use crate::accuracy::item_error::{ErrorGrowth, GrowthFit, Shortfall};
+use crate::accuracy::store::ResultQuery;
 use crate::master::Site;
 use crate::store::Store;
 use crate::store::error::StoreError;
 use crate::time::Timestamp;
 use chrono::NaiveDate;
+use std::collections::HashMap;
 use std::fmt::Write as _;
 use std::sync::Arc;
 
@@ -57,12 +61,70 @@ pub async fn preview(
         classify(store, site, day).await?;
     }
     let day_end = site.time_zone.range(day).1;
-    let input = store
+    let mut input = store
         .plan_input(site.id, day, day_end, capacity, fill)
         .await?;
+    let policy = store.frequency_policy(site.id).await?;
+    if policy.policy != Mode::Abc {
+        input.risk = Some(risk_plan(store, site, &input, day_end, &policy).await?);
+    }
     let plan = plan::build(&input);
     Ok((input, plan))
 }
+
+/// Chooses each item's interval by risk: reads its unit cost, picks and count results,
+/// fits its error growth (`accuracy`) and lets `policy::risk_plan` choose.
+async fn risk_plan(
+    store: &dyn Store,
+    site: &Site,
+    input: &PlanInput,
+    day_end: Timestamp,
+    policy: &FrequencyPolicy,
+) -> Result<RiskPlan, StoreError> {
+    let from = Timestamp(day_end.0 - DEMAND_DAYS * crate::time::DAY_MS);
+    let worth: HashMap<i64, ItemWorth> = store
+        .item_worth(site.id, from, day_end)
+        .await?
+        .into_iter()
+        .map(|w| (w.item, w))
+        .collect();
+    let results = store
+        .accuracy_results(
+            site.id,
+            ResultQuery {
+                from: Timestamp(i64::MIN),
+                to: day_end,
+                sku: None,
+            },
+        )
+        .await?;
+    let mut figures = crate::accuracy::service::figures_by_sku(&results)
+        .map_err(|e| anyhow::anyhow!("record-error figures for the risk policy: {e}"))?;
+    let history: Vec<ItemHistory> = input
+        .items
+        .iter()
+        .map(|it| {
+            let w = worth.get(&it.id);
+            let f = w.and_then(|w| figures.remove(&w.sku));
+            ItemHistory {
+                unit_cost_minor: w.map_or(0, |w| w.unit_cost_minor),
+                picks_per_day: w.map_or(0.0, |w| w.picks as f64 / DEMAND_DAYS as f64),
+                growth: f.as_ref().map_or(NO_GROWTH, |f| f.growth.growth),
+                points: f.map(|f| f.points).unwrap_or_default(),
+            }
+        })
+        .collect();
+    Ok(policy::risk_plan(input, &history, policy)
+        .map_err(|e| anyhow::anyhow!("the risk policy's choice: {e}"))?)
+}
+
+/// The growth of an item with no judged counts.
+const NO_GROWTH: ErrorGrowth = ErrorGrowth {
+    points: 0,
+    fit: GrowthFit::NotEnoughData(Shortfall::TooFewPoints {
+        needed: crate::accuracy::item_error::MIN_FIT_POINTS,
+    }),
+};
 
 /// Builds and stores a day's list, and returns it as stored.
 pub async fn build(
@@ -107,6 +169,9 @@ pub async fn save_plan(
                 lines: t.lines,
                 est_s: t.seconds,
                 recount_task: t.keep,
+                why: t.why.as_ref().map(|w| {
+                    serde_json::to_string(w).expect("the figures are plain numbers and text")
+                }),
             })
             .collect(),
     };
@@ -161,6 +226,9 @@ pub fn view(input: &PlanInput, plan: &Plan) -> ListView {
                 lines: t.lines,
                 est_s: t.seconds,
                 status: "open".into(),
+                why: t.why.as_ref().map(|w| {
+                    serde_json::to_value(w).expect("the figures are plain numbers and text")
+                }),
             }
         })
         .collect();
@@ -426,6 +494,7 @@ mod tests {
                 lines: 1,
                 est_s: 150,
                 status: "open".into(),
+                why: None,
             }],
         };
         v.tally(&[]);

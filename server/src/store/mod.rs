@@ -25,6 +25,7 @@ use crate::master::{Bin, NewBin, NewItem, NewPack, NewSite, Site, SiteCode, Site
 use crate::planning::abc::{AbcRule, Class, Usage};
 use crate::planning::calendar::Calendar;
 use crate::planning::plan::{Capacity, Fill, PlanInput};
+use crate::planning::policy::{FrequencyPolicy, ItemWorth};
 use crate::planning::short_pick::{NewShortPick, ShortPickOutcome};
 use crate::planning::{AbcSummary, ClassChange, ListView, NewCountList, Settings};
 use crate::review::store::ReviewStore;
@@ -385,6 +386,22 @@ pub trait Store: AccountStore + AccuracyStore + ReviewStore + Send + Sync + 'sta
         site: SiteId,
         settings: Settings,
     ) -> Result<(), StoreError>;
+    /// Reads a site's frequency policy (`abc` until one is stored).
+    async fn frequency_policy(&self, site: SiteId) -> Result<FrequencyPolicy, StoreError>;
+    /// Stores a site's frequency policy and writes `audit` in the same transaction.
+    async fn put_frequency_policy(
+        &self,
+        site: SiteId,
+        policy: FrequencyPolicy,
+        audit: AuditEvent,
+    ) -> Result<(), StoreError>;
+    /// Reads every item's unit cost and its pick movements with event time in `[from, to)`.
+    async fn item_worth(
+        &self,
+        site: SiteId,
+        from: Timestamp,
+        to: Timestamp,
+    ) -> Result<Vec<ItemWorth>, StoreError>;
     /// Reads a site's calendar (Monday to Friday until one is stored).
     async fn calendar(&self, site: SiteId) -> Result<Calendar, StoreError>;
     /// Replaces a site's calendar.

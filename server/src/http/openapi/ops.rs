@@ -524,6 +524,20 @@ fn site_op(method: &str, tail: &str, s: &mut Schemas) -> Option<Op> {
         ("PUT", "/planning/settings") => Op::new("Set planning settings", "The settings now.", s.of::<PlanningSettings>())
             .body(s.of::<PlanningSettings>(),
                   serde_json::to_value(PlanningSettings::default()).expect("settings serialise")),
+        ("GET", "/planning/frequency-policy") => Op::new(
+            "Read the frequency policy",
+            "How the site sets count intervals.",
+            s.of::<crate::planning::policy::FrequencyPolicy>(),
+        ),
+        ("PUT", "/planning/frequency-policy") => Op::new(
+            "Set the frequency policy",
+            "The policy now; the change is written to the audit log. A field at fault is refused (422) with its name.",
+            s.of::<crate::planning::policy::FrequencyPolicy>(),
+        )
+        .body(
+            s.of::<crate::planning::policy::FrequencyPolicyChange>(),
+            json!({ "policy": "blend", "floor_a": 12, "floor_b": 4, "floor_c": 1 }),
+        ),
         ("GET", "/planning/calendar") => Op::new(
             "Read the working calendar",
             "Working weekdays and holidays.",

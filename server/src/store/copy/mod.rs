@@ -41,6 +41,7 @@ const TABLES: &[&str] = &[
     "api_token",
     "audit_event",
     "planning_settings",
+    "frequency_policy",
     "site_calendar",
     "site_holiday",
     "abc_run",

@@ -131,8 +131,8 @@ fn save_list(tx: &PgTx<'_>, site: SiteId, list: &NewCountList) -> Result<i64, St
             continue;
         }
         tx.execute(
-            "insert into count_task (list_id, bin_id, seq, run, reason, class, detail, lines, est_s)
-             values ($1, $2, $3, $4, $5, $6, $7, $8, $9)",
+            "insert into count_task (list_id, bin_id, seq, run, reason, class, detail, lines, est_s, why)
+             values ($1, $2, $3, $4, $5, $6, $7, $8, $9, $10)",
             &[
                 &id,
                 &t.bin_id,
@@ -143,6 +143,7 @@ fn save_list(tx: &PgTx<'_>, site: SiteId, list: &NewCountList) -> Result<i64, St
                 &t.detail,
                 &i64::from(t.lines),
                 &t.est_s,
+                &t.why,
             ],
         )?;
     }
@@ -172,7 +173,7 @@ pub async fn count_list(
     let tasks = rows(
         &c,
         "select t.id, t.seq, t.run, b.code, z.code, b.aisle, b.bay, b.level, t.reason, t.class,
-                t.detail, t.lines, t.est_s, t.status
+                t.detail, t.lines, t.est_s, t.status, t.why
          from count_task t join bin b on b.id = t.bin_id join zone z on z.id = b.zone_id
          where t.list_id = $1 and t.withdrawn_at is null order by t.run, t.seq",
         &[&id],
@@ -196,6 +197,9 @@ pub async fn count_list(
             lines: col(r, 11)?,
             est_s: r.get(12),
             status: r.get(13),
+            why: r
+                .get::<_, Option<String>>(14)
+                .and_then(|t| serde_json::from_str(&t).ok()),
         })
     })
     .collect::<Result<Vec<_>, StoreError>>()?;

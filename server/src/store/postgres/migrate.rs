@@ -23,6 +23,11 @@ const MIGRATIONS: &[Migration] = &[
         name: "job_claim",
         sql: include_str!("../../../../migrations/postgres/0010_job_claim.sql"),
     },
+    Migration {
+        version: 11,
+        name: "frequency_policy",
+        sql: include_str!("../../../../migrations/postgres/0011_frequency_policy.sql"),
+    },
 ];
 
 /// The newest version this build knows.

@@ -5,6 +5,7 @@
 use super::recount_tasks;
 use super::tx::PgTx;
 use super::{PgStore, col, is_unique_violation, row_one, row_opt, rows};
+use crate::accounts::audit::{AuditEvent, AuditTx};
 use crate::batch::RowError;
 use crate::ledger::WatermarkTx;
 use crate::master::SiteId;
@@ -14,6 +15,7 @@ use crate::planning::calendar::Calendar;
 use crate::planning::due::Frequency;
 use crate::planning::estimate::TaskTime;
 use crate::planning::plan::{BinFacts, Capacity, Fill, ItemFacts, PlanInput, Trigger};
+use crate::planning::policy::{FrequencyPolicy, ItemWorth, Mode};
 use crate::planning::short_pick::{NewShortPick, ShortPickOutcome};
 use crate::planning::walk::Place;
 use crate::planning::{AbcSummary, ClassChange, Settings, TriggerKind};
@@ -163,6 +165,90 @@ pub async fn put_planning_settings(
             Ok(())
         })
         .await
+}
+
+/// See [`crate::store::Store::frequency_policy`]: `abc` when none was stored.
+pub async fn frequency_policy(
+    store: &PgStore,
+    site: SiteId,
+) -> Result<FrequencyPolicy, StoreError> {
+    let c = store.client().await?;
+    let Some(r) = row_opt(
+        &c,
+        "select mode, floor_a, floor_b, floor_c from frequency_policy where site_id = $1",
+        &[&site.0],
+    )
+    .await?
+    else {
+        return Ok(FrequencyPolicy::default());
+    };
+    let mode: String = r.get(0);
+    Ok(FrequencyPolicy {
+        policy: Mode::parse(&mode)
+            .ok_or_else(|| anyhow::anyhow!("a stored frequency policy '{mode}' is unknown"))?,
+        floor_a: col(&r, 1)?,
+        floor_b: col(&r, 2)?,
+        floor_c: col(&r, 3)?,
+    })
+}
+
+/// See [`crate::store::Store::put_frequency_policy`].
+pub async fn put_frequency_policy(
+    store: &PgStore,
+    site: SiteId,
+    p: FrequencyPolicy,
+    audit: AuditEvent,
+) -> Result<(), StoreError> {
+    store
+        .write_tx(WriteScope::Site(site), move |tx| {
+            tx.insert_audit(&audit)?;
+            tx.execute(
+                "insert into frequency_policy (site_id, mode, floor_a, floor_b, floor_c, changed_at)
+                 values ($1, $2, $3, $4, $5, $6)
+                 on conflict (site_id) do update set mode = excluded.mode,
+                     floor_a = excluded.floor_a, floor_b = excluded.floor_b,
+                     floor_c = excluded.floor_c, changed_at = excluded.changed_at",
+                &[
+                    &site.0,
+                    &p.policy.as_str(),
+                    &i64::from(p.floor_a),
+                    &i64::from(p.floor_b),
+                    &i64::from(p.floor_c),
+                    &audit.at.0,
+                ],
+            )?;
+            Ok(())
+        })
+        .await
+}
+
+/// See [`crate::store::Store::item_worth`].
+pub async fn item_worth(
+    store: &PgStore,
+    site: SiteId,
+    from: Timestamp,
+    to: Timestamp,
+) -> Result<Vec<ItemWorth>, StoreError> {
+    let c = store.client().await?;
+    rows(
+        &c,
+        "select i.id, i.sku, i.unit_cost_minor,
+                (select count(*) from movement m
+                 where m.item_id = i.id and m.event_at >= $2 and m.event_at < $3 and m.kind = 'pick')
+         from item i where i.site_id = $1 order by i.id",
+        &[&site.0, &from.0, &to.0],
+    )
+    .await?
+    .iter()
+    .map(|r| {
+        Ok(ItemWorth {
+            item: r.get(0),
+            sku: r.get(1),
+            unit_cost_minor: r.get(2),
+            picks: r.get(3),
+        })
+    })
+    .collect()
 }
 
 /// See [`crate::store::Store::calendar`].
@@ -697,5 +783,6 @@ pub async fn plan_input(
         fill,
         counting_since: counting_since.as_deref().map(parse_day).transpose()?,
         watermark: super::ledger::watermark(&c).await?,
+        risk: None,
     })
 }

@@ -188,6 +188,31 @@ impl Store for PgStore {
         super::planning::put_planning_settings(self, site, settings).await
     }
 
+    async fn frequency_policy(
+        &self,
+        site: SiteId,
+    ) -> Result<crate::planning::policy::FrequencyPolicy, StoreError> {
+        super::planning::frequency_policy(self, site).await
+    }
+
+    async fn put_frequency_policy(
+        &self,
+        site: SiteId,
+        policy: crate::planning::policy::FrequencyPolicy,
+        audit: AuditEvent,
+    ) -> Result<(), StoreError> {
+        super::planning::put_frequency_policy(self, site, policy, audit).await
+    }
+
+    async fn item_worth(
+        &self,
+        site: SiteId,
+        from: Timestamp,
+        to: Timestamp,
+    ) -> Result<Vec<crate::planning::policy::ItemWorth>, StoreError> {
+        super::planning::item_worth(self, site, from, to).await
+    }
+
     async fn calendar(&self, site: SiteId) -> Result<Calendar, StoreError> {
         super::planning::calendar(self, site).await
     }

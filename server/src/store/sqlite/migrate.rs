@@ -64,6 +64,11 @@ pub const MIGRATIONS: &[Migration] = &[
         name: "0010_job_claim.sql",
         sql: include_str!("../../../../migrations/0010_job_claim.sql"),
     },
+    Migration {
+        version: 11,
+        name: "0011_frequency_policy.sql",
+        sql: include_str!("../../../../migrations/0011_frequency_policy.sql"),
+    },
 ];
 
 /// Returns the newest schema version this binary knows.

@@ -419,6 +419,39 @@ impl Store for SqliteStore {
             .await
     }
 
+    async fn frequency_policy(
+        &self,
+        site: SiteId,
+    ) -> Result<crate::planning::policy::FrequencyPolicy, StoreError> {
+        self.readers
+            .run(move |c| planning::frequency_policy(c, site))
+            .await
+    }
+
+    async fn put_frequency_policy(
+        &self,
+        site: SiteId,
+        policy: crate::planning::policy::FrequencyPolicy,
+        audit: AuditEvent,
+    ) -> Result<(), StoreError> {
+        self.write_tx(move |tx| {
+            accounts::insert_audit(tx, &audit)?;
+            planning::put_frequency_policy(tx, site, &policy, audit.at)
+        })
+        .await
+    }
+
+    async fn item_worth(
+        &self,
+        site: SiteId,
+        from: Timestamp,
+        to: Timestamp,
+    ) -> Result<Vec<crate::planning::policy::ItemWorth>, StoreError> {
+        self.readers
+            .run(move |c| planning::item_worth(c, site, from, to))
+            .await
+    }
+
     async fn calendar(&self, site: SiteId) -> Result<Calendar, StoreError> {
         self.readers.run(move |c| planning::calendar(c, site)).await
     }

@@ -9,6 +9,7 @@ use crate::planning::calendar::Calendar;
 use crate::planning::due::Frequency;
 use crate::planning::estimate::TaskTime;
 use crate::planning::plan::{BinFacts, Capacity, Fill, ItemFacts, PlanInput, Trigger};
+use crate::planning::policy::{FrequencyPolicy, ItemWorth, Mode};
 use crate::planning::short_pick::{NewShortPick, ShortPickOutcome};
 use crate::planning::walk::Place;
 use crate::planning::{AbcSummary, ClassChange, NewCountList};
@@ -87,6 +88,79 @@ pub fn put_settings(tx: &Transaction, site: SiteId, s: &Settings) -> Result<(), 
         s.level_slack_pct
     ])?;
     Ok(())
+}
+
+/// Reads a site's frequency policy, or `abc` when none was stored.
+pub fn frequency_policy(conn: &Connection, site: SiteId) -> Result<FrequencyPolicy, StoreError> {
+    let row = conn
+        .prepare_cached(
+            "select mode, floor_a, floor_b, floor_c from frequency_policy where site_id = ?1",
+        )?
+        .query_row([site.0], |r| {
+            Ok((
+                r.get::<_, String>(0)?,
+                r.get::<_, u32>(1)?,
+                r.get::<_, u32>(2)?,
+                r.get::<_, u32>(3)?,
+            ))
+        })
+        .optional()?;
+    let Some((mode, floor_a, floor_b, floor_c)) = row else {
+        return Ok(FrequencyPolicy::default());
+    };
+    Ok(FrequencyPolicy {
+        policy: Mode::parse(&mode)
+            .ok_or_else(|| anyhow::anyhow!("a stored frequency policy '{mode}' is unknown"))?,
+        floor_a,
+        floor_b,
+        floor_c,
+    })
+}
+
+/// Stores a site's frequency policy, changed at `at`.
+pub fn put_frequency_policy(
+    tx: &Transaction,
+    site: SiteId,
+    p: &FrequencyPolicy,
+    at: Timestamp,
+) -> Result<(), StoreError> {
+    tx.prepare_cached(
+        "insert or replace into frequency_policy (site_id, mode, floor_a, floor_b, floor_c, changed_at)
+         values (?1, ?2, ?3, ?4, ?5, ?6)",
+    )?
+    .execute(params![
+        site.0,
+        p.policy.as_str(),
+        p.floor_a,
+        p.floor_b,
+        p.floor_c,
+        at.0
+    ])?;
+    Ok(())
+}
+
+/// Reads every item's unit cost and its picks with event time in `[from, to)`.
+pub fn item_worth(
+    conn: &Connection,
+    site: SiteId,
+    from: Timestamp,
+    to: Timestamp,
+) -> Result<Vec<ItemWorth>, StoreError> {
+    let mut q = conn.prepare_cached(
+        "select i.id, i.sku, i.unit_cost_minor,
+                (select count(*) from movement m indexed by movement_item_time
+                 where m.item_id = i.id and m.event_at >= ?2 and m.event_at < ?3 and m.kind = 'pick')
+         from item i where i.site_id = ?1 order by i.id",
+    )?;
+    let rows = q.query_map(params![site.0, from.0, to.0], |r| {
+        Ok(ItemWorth {
+            item: r.get(0)?,
+            sku: r.get(1)?,
+            unit_cost_minor: r.get(2)?,
+            picks: r.get(3)?,
+        })
+    })?;
+    Ok(rows.collect::<rusqlite::Result<Vec<_>>>()?)
 }
 
 /// Reads a site's calendar, or Monday to Friday without holidays when none was stored.
@@ -576,6 +650,7 @@ pub fn plan_input(
             .map(|d| parse_day(&d))
             .transpose()?,
         watermark: watermark(conn)?,
+        risk: None,
     })
 }
 
@@ -663,8 +738,8 @@ pub fn save_count_list(
         run.execute(params![id, r])?;
     }
     let mut ins = tx.prepare_cached(
-        "insert into count_task (list_id, bin_id, seq, run, reason, class, detail, lines, est_s)
-         values (?1, ?2, ?3, ?4, ?5, ?6, ?7, ?8, ?9)",
+        "insert into count_task (list_id, bin_id, seq, run, reason, class, detail, lines, est_s, why)
+         values (?1, ?2, ?3, ?4, ?5, ?6, ?7, ?8, ?9, ?10)",
     )?;
     let mut kept = HashSet::new();
     let mut carried = Vec::new();
@@ -691,12 +766,18 @@ pub fn save_count_list(
             t.class.map(Class::as_str),
             t.detail,
             t.lines,
-            t.est_s
+            t.est_s,
+            t.why
         ])?;
     }
     recount_tasks::refuse_unplaced(tx, id, &kept)?;
     recount_tasks::note_carried(tx, &carried, list.day)?;
     Ok(id)
+}
+
+/// Reads a task's stored figures; text that is not JSON (never written so) reads as none.
+fn why_of(text: Option<String>) -> Option<serde_json::Value> {
+    text.and_then(|t| serde_json::from_str(&t).ok())
 }
 
 /// Reads a stored list with its runs and tasks.
@@ -727,7 +808,7 @@ pub fn count_list(
     };
     let mut q = conn.prepare_cached(
         "select t.id, t.seq, t.run, b.code, z.code, b.aisle, b.bay, b.level, t.reason, t.class, t.detail,
-                t.lines, t.est_s, t.status
+                t.lines, t.est_s, t.status, t.why
          from count_task t join bin b on b.id = t.bin_id join zone z on z.id = b.zone_id
          where t.list_id = ?1 and t.withdrawn_at is null order by t.run, t.seq",
     )?;
@@ -749,6 +830,7 @@ pub fn count_list(
                 lines: r.get(11)?,
                 est_s: r.get(12)?,
                 status: r.get(13)?,
+                why: why_of(r.get(14)?),
             })
         })?
         .collect::<rusqlite::Result<Vec<_>>>()?;

@@ -1,0 +1,524 @@
+//! A site's frequency policy — how each item's count interval is set — and
+//! the figures that say why a due bin is on the day's list. Pure; no I/O.
+//!
+//! * `abc` (the default): each class is counted so many times a year
+//!   ([`super::due::Frequency`]).
+//! * `risk`: each item's interval is chosen by [`super::risk::choose`] from its
+//!   error growth, unit cost and minutes per count, within the same
+//!   counter-minutes a day that the `abc` frequencies take (the level; see
+//!   [`risk_plan`]), so switching moves minutes between items without adding any.
+//! * `blend`: as `risk`, but no class is counted less often than its floor
+//!   (counts a year; 0 sets none).
+//!
+//! Dead stock keeps its own `abc` frequency under every policy.
+
+use super::abc::Class;
+use super::plan::{self, PlanInput};
+use super::risk::{self, Floors, Growth, PoolKey, RateBand, RiskError, RiskItem, Source};
+use crate::accuracy::item_error::{self, ErrorGrowth, ErrorPoint};
+use crate::batch::FieldError;
+use chrono::NaiveDate;
+use serde::Serialize;
+use serde_json::Value;
+use std::collections::HashMap;
+
+/// Most counts a year a floor may ask for (one a day).
+pub const MAX_FLOOR_PER_YEAR: u32 = 365;
+/// Days of picks an item's pick rate is taken over, for its pool (four weeks: recent
+/// enough to band its traffic, short enough that reading it stays a small part of planning).
+pub const DEMAND_DAYS: i64 = 28;
+/// Growth used when neither the item, its pool nor the site has enough repeat
+/// counts: variance growing by one unit² a day from nothing. With one growth for
+/// every item the budget's multiplier absorbs its size, so intervals then follow
+/// unit cost and minutes alone (our own choice, not measured).
+pub const UNIT_GROWTH: Growth = Growth { a: 0.0, b: 1.0 };
+
+/// How a site sets its count intervals.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Default, Serialize, utoipa::ToSchema)]
+#[serde(rename_all = "snake_case")]
+pub enum Mode {
+    #[default]
+    Abc,
+    Risk,
+    Blend,
+}
+
+impl Mode {
+    /// Every mode, in the order forms list them.
+    pub const ALL: [Mode; 3] = [Mode::Abc, Mode::Risk, Mode::Blend];
+
+    /// Returns the stored and wire form.
+    pub fn as_str(self) -> &'static str {
+        match self {
+            Mode::Abc => "abc",
+            Mode::Risk => "risk",
+            Mode::Blend => "blend",
+        }
+    }
+
+    /// Parses the stored and wire form.
+    pub fn parse(text: &str) -> Option<Self> {
+        Self::ALL.into_iter().find(|m| m.as_str() == text)
+    }
+}
+
+/// A site's frequency policy.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, utoipa::ToSchema)]
+pub struct FrequencyPolicy {
+    pub policy: Mode,
+    /// Least counts a year of A, B and C under `blend`; kept but unused otherwise.
+    pub floor_a: u32,
+    pub floor_b: u32,
+    pub floor_c: u32,
+}
+
+/// A change of the frequency policy as sent: [`FrequencyPolicy::from_json`] reads it
+/// field by field so each fault is named; this type describes it in the API document.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, utoipa::ToSchema)]
+pub struct FrequencyPolicyChange {
+    pub policy: Mode,
+    /// Least counts a year of class A under `blend`, 0 (no floor) to 365; left out: kept.
+    pub floor_a: Option<u32>,
+    /// As `floor_a`, for class B.
+    pub floor_b: Option<u32>,
+    /// As `floor_a`, for class C.
+    pub floor_c: Option<u32>,
+}
+
+impl Default for FrequencyPolicy {
+    /// Returns `abc`, with floors of 12 / 4 / 1 ready for `blend` (the `abc` defaults).
+    fn default() -> Self {
+        Self {
+            policy: Mode::Abc,
+            floor_a: 12,
+            floor_b: 4,
+            floor_c: 1,
+        }
+    }
+}
+
+impl FrequencyPolicy {
+    /// Returns the floors the risk choice keeps to: the stored ones under `blend`, none under `risk`.
+    pub fn floors(&self) -> Floors {
+        match self.policy {
+            Mode::Blend => Floors {
+                per_year: [self.floor_a, self.floor_b, self.floor_c],
+            },
+            _ => Floors { per_year: [0; 3] },
+        }
+    }
+
+    /// Reads a policy from its JSON form, `{"policy", "floor_a", "floor_b", "floor_c"}`
+    /// (floors may be left out: they keep `current`'s); returns every field at fault.
+    pub fn from_json(body: &Value, current: &Self) -> Result<Self, Vec<FieldError>> {
+        let mut errors = Vec::new();
+        let Some(obj) = body.as_object() else {
+            return Err(vec![FieldError::new("body", "must be a JSON object")]);
+        };
+        for key in obj.keys() {
+            if !["policy", "floor_a", "floor_b", "floor_c"].contains(&key.as_str()) {
+                errors.push(FieldError::new(
+                    key.clone(),
+                    "is not a field of the frequency policy (policy, floor_a, floor_b, floor_c)",
+                ));
+            }
+        }
+        let policy = match obj.get("policy") {
+            None => {
+                errors.push(FieldError::new("policy", "is required: abc, risk or blend"));
+                None
+            }
+            Some(v) => {
+                let found = v.as_str().and_then(Mode::parse);
+                if found.is_none() {
+                    errors.push(FieldError::new(
+                        "policy",
+                        format!("must be abc, risk or blend, found {v}"),
+                    ));
+                }
+                found
+            }
+        };
+        let mut floor = |name: &str, kept: u32| match obj.get(name) {
+            None => kept,
+            Some(v) => match v.as_u64().filter(|&n| n <= u64::from(MAX_FLOOR_PER_YEAR)) {
+                Some(n) => n as u32,
+                None => {
+                    errors.push(FieldError::new(
+                        name,
+                        format!(
+                            "must be a whole number of counts a year from 0 (no floor) to {MAX_FLOOR_PER_YEAR}, found {v}"
+                        ),
+                    ));
+                    kept
+                }
+            },
+        };
+        let floor_a = floor("floor_a", current.floor_a);
+        let floor_b = floor("floor_b", current.floor_b);
+        let floor_c = floor("floor_c", current.floor_c);
+        match policy {
+            Some(policy) if errors.is_empty() => Ok(Self {
+                policy,
+                floor_a,
+                floor_b,
+                floor_c,
+            }),
+            _ => Err(errors),
+        }
+    }
+}
+
+/// One item's worth and traffic as the store reads them for the risk choice.
+#[derive(Debug, Clone, PartialEq, Eq)]
+pub struct ItemWorth {
+    pub item: i64,
+    pub sku: String,
+    pub unit_cost_minor: i64,
+    /// Pick movements in the window asked for.
+    pub picks: i64,
+}
+
+/// What the planner knows of one item's record error and worth, for the risk choice.
+#[derive(Debug, Clone, PartialEq)]
+pub struct ItemHistory {
+    pub unit_cost_minor: i64,
+    /// Picks a day over the last [`DEMAND_DAYS`].
+    pub picks_per_day: f64,
+    /// The item's own growth fit.
+    pub growth: ErrorGrowth,
+    /// The points of that fit, pooled with other items' when its own are too few.
+    pub points: Vec<ErrorPoint>,
+}
+
+/// Where an item's error growth came from, as the list shows it.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct GrowthWhy {
+    /// `item` (its own counts), `pool` (its class × zone × pick-rate band) or `site`
+    /// (every item's counts, or the unit growth when there are too few).
+    pub from: &'static str,
+    /// The pool, e.g. `class C, zone 2, busy` (for `pool`).
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub pool: Option<String>,
+    /// Repeat counts the fit used (0 for the unit growth).
+    pub points: usize,
+    /// σ²(t) = a + b·t: error variance after a count (units²) and its growth per day.
+    pub a: f64,
+    pub b: f64,
+}
+
+/// The risk figures of one item.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct ItemRisk {
+    /// The interval in the site's working days (at least 1).
+    pub working_days: i64,
+    /// The interval chosen, in calendar days.
+    pub days: f64,
+    /// Expected absolute error value just before its next count, minor units.
+    pub error_value_due: f64,
+    pub unit_cost_minor: i64,
+    pub growth: GrowthWhy,
+    /// Its class floor, not its risk, set the interval.
+    pub at_floor: bool,
+    #[serde(skip)]
+    pub fit: Growth,
+}
+
+impl ItemRisk {
+    /// Returns the risk score `days` calendar days after a count: the expected
+    /// absolute error value standing then, `c·sqrt(2/π)·sqrt(a + b·days)`, minor units.
+    pub fn score_at(&self, days: f64) -> f64 {
+        self.unit_cost_minor as f64
+            * risk::HALF_NORMAL_MEAN
+            * (self.fit.a + self.fit.b * days.max(0.0)).sqrt()
+    }
+}
+
+/// Intervals set by risk for a day's plan, one entry per item of the [`PlanInput`].
+#[derive(Debug, Clone, PartialEq)]
+pub struct RiskPlan {
+    pub mode: Mode,
+    /// `None` for dead stock and items in no bin (they keep their `abc` interval).
+    pub items: Vec<Option<ItemRisk>>,
+    /// Counter-minutes a calendar day the choice was given: the `abc` level.
+    pub budget_minutes: f64,
+    /// The floors alone take more than the budget: every item is at its floor.
+    pub floors_exceed_minutes: bool,
+}
+
+fn pool_name(p: &PoolKey, zones: &HashMap<i64, &str>) -> String {
+    let band = match p.band {
+        RateBand::Slow => "slow",
+        RateBand::Steady => "steady",
+        RateBand::Busy => "busy",
+        RateBand::Fast => "fast",
+    };
+    format!(
+        "class {}, zone {}, {band} picking",
+        p.class,
+        zones.get(&p.zone).copied().unwrap_or("?")
+    )
+}
+
+/// Fits the growth of a set of points, the first [`item_error::MAX_POINTS`] of them.
+fn fit(points: &[ErrorPoint]) -> Result<ErrorGrowth, RiskError> {
+    let points = &points[..points.len().min(item_error::MAX_POINTS)];
+    // Points come from stored results, already bounded; a refusal would be a bug upstream.
+    item_error::fit_error_growth(points).map_err(|_| RiskError::BadFigure {
+        key: -1,
+        what: "a stored error point",
+    })
+}
+
+/// Chooses the interval of every item by risk within the minutes the `abc`
+/// frequencies take a day (their level, [`plan::level_s`]), keeping to
+/// `policy`'s floors. `history` is one entry per item of `input`.
+pub fn risk_plan(
+    input: &PlanInput,
+    history: &[ItemHistory],
+    policy: &FrequencyPolicy,
+) -> Result<RiskPlan, RiskError> {
+    assert_eq!(
+        history.len(),
+        input.items.len(),
+        "the service reads one history per item"
+    );
+    let wdy = input.calendar.working_days_in_year(input.day).max(1) as f64;
+    let seconds = plan::bin_seconds(input);
+    let intervals = plan::abc_intervals(input);
+    let abc_level_s = plan::level_s(input, &seconds, |_, it| plan::abc_interval(&intervals, it));
+    // The level is seconds per working day; the choice works in calendar days.
+    let budget_minutes = abc_level_s / 60.0 * wdy / 365.0;
+    let zones: HashMap<i64, &str> = input
+        .bins
+        .iter()
+        .map(|b| (b.place.zone, b.zone.as_str()))
+        .collect();
+
+    let planned: Vec<usize> = (0..input.items.len())
+        .filter(|&i| !input.items[i].dead && !input.items[i].bins.is_empty())
+        .collect();
+    let pool_of = |i: usize| {
+        let it = &input.items[i];
+        PoolKey {
+            class: it.class,
+            zone: input.bins[it.bins[0] as usize].place.zone,
+            band: RateBand::of(history[i].picks_per_day),
+        }
+    };
+    let mut pool_points: HashMap<PoolKey, Vec<ErrorPoint>> = HashMap::new();
+    let mut all_points = Vec::new();
+    for &i in &planned {
+        pool_points
+            .entry(pool_of(i))
+            .or_default()
+            .extend_from_slice(&history[i].points);
+        all_points.extend_from_slice(&history[i].points);
+    }
+    let mut pooled: HashMap<PoolKey, ErrorGrowth> = HashMap::new();
+    for (k, points) in &pool_points {
+        pooled.insert(*k, fit(points)?);
+    }
+    let site = fit(&all_points)?;
+    let (site_growth, site_points) = match site.fit {
+        item_error::GrowthFit::Fitted { a, b } => (Growth { a, b }, site.points),
+        item_error::GrowthFit::NotEnoughData(_) => (UNIT_GROWTH, 0),
+    };
+
+    let mut items = Vec::with_capacity(planned.len());
+    let mut whys = Vec::with_capacity(planned.len());
+    for &i in &planned {
+        let it = &input.items[i];
+        let h = &history[i];
+        let pool = pool_of(i);
+        let (growth, source) = risk::pick_growth(&h.growth, pool, pooled.get(&pool), site_growth);
+        let why = match source {
+            Source::Own { points } => GrowthWhy {
+                from: "item",
+                pool: None,
+                points,
+                a: growth.a,
+                b: growth.b,
+            },
+            Source::Pooled { pool, points } => GrowthWhy {
+                from: "pool",
+                pool: Some(pool_name(&pool, &zones)),
+                points,
+                a: growth.a,
+                b: growth.b,
+            },
+            Source::Default => GrowthWhy {
+                from: "site",
+                pool: None,
+                points: site_points,
+                a: growth.a,
+                b: growth.b,
+            },
+        };
+        let minutes: f64 = it
+            .bins
+            .iter()
+            .map(|&b| seconds[b as usize] as f64)
+            .sum::<f64>()
+            / 60.0;
+        items.push(RiskItem {
+            key: i as i64,
+            class: it.class,
+            growth,
+            source,
+            unit_cost: h.unit_cost_minor.max(0) as f64,
+            minutes: minutes.max(1.0 / 60.0),
+            safety_weight: 0.0,
+        });
+        whys.push(why);
+    }
+    let mut out = RiskPlan {
+        mode: policy.policy,
+        items: vec![None; input.items.len()],
+        budget_minutes,
+        floors_exceed_minutes: false,
+    };
+    if items.is_empty() || budget_minutes <= 0.0 {
+        return Ok(out);
+    }
+    let choice = risk::choose(&items, budget_minutes, &policy.floors())?;
+    out.floors_exceed_minutes = choice.floors_exceed_minutes;
+    for ((item, interval), why) in items.iter().zip(&choice.intervals).zip(whys) {
+        // Floors are whole working days too: never round an interval past its floor.
+        let floor_wd = match policy.floors().per_year[item.class.index()] {
+            0 => i64::MAX,
+            n => super::due::interval_days(wdy as i64, n),
+        };
+        let working_days = ((interval.days * wdy / 365.0).round() as i64)
+            .max(1)
+            .min(floor_wd);
+        out.items[item.key as usize] = Some(ItemRisk {
+            working_days,
+            days: interval.days,
+            error_value_due: interval.error_value_due,
+            unit_cost_minor: item.unit_cost as i64,
+            growth: why,
+            at_floor: interval.at_floor || working_days == floor_wd,
+            fit: item.growth,
+        });
+    }
+    Ok(out)
+}
+
+/// The figures behind a due task, as the list's JSON shows them.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct Why {
+    pub policy: Mode,
+    pub class: Class,
+    /// Dead stock: no stock and no movement for a year (its own `abc` frequency).
+    pub dead_stock: bool,
+    /// The item's interval, in working days.
+    pub interval_working_days: i64,
+    pub last_counted: Option<NaiveDate>,
+    /// Working days since that count; `None` when never counted.
+    pub working_days_since: Option<i64>,
+    /// Under `risk` and `blend`: the score and the figures behind it.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub risk: Option<RiskWhy>,
+}
+
+/// The risk part of [`Why`].
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct RiskWhy {
+    /// Expected absolute error value standing today, minor units.
+    pub score: f64,
+    /// Expected absolute error value when its interval has run, minor units.
+    pub error_value_due: f64,
+    /// The interval chosen, calendar days.
+    pub interval_days: f64,
+    pub unit_cost_minor: i64,
+    pub growth: GrowthWhy,
+    pub at_floor: bool,
+}
+
+fn round2(x: f64) -> f64 {
+    (x * 100.0).round() / 100.0
+}
+
+impl Why {
+    /// Builds the figures of an item due on `day`, last counted on `last` (if ever).
+    pub fn of(
+        mode: Mode,
+        class: Class,
+        dead_stock: bool,
+        interval: i64,
+        last: Option<(NaiveDate, i64)>,
+        day: NaiveDate,
+        risk: Option<&ItemRisk>,
+    ) -> Self {
+        let risk = risk.map(|r| {
+            let since = last.map_or(r.days, |(d, _)| (day - d).num_days() as f64);
+            RiskWhy {
+                score: round2(r.score_at(since)),
+                error_value_due: round2(r.error_value_due),
+                interval_days: round2(r.days),
+                unit_cost_minor: r.unit_cost_minor,
+                growth: r.growth.clone(),
+                at_floor: r.at_floor,
+            }
+        });
+        Self {
+            policy: if risk.is_some() { mode } else { Mode::Abc },
+            class,
+            dead_stock,
+            interval_working_days: interval,
+            last_counted: last.map(|(d, _)| d),
+            working_days_since: last.map(|(_, n)| n),
+            risk,
+        }
+    }
+
+    /// Says in words why the bin is on the list (the task's detail).
+    pub fn sentence(&self) -> String {
+        let last = match (self.last_counted, self.working_days_since) {
+            (Some(d), Some(n)) => format!("last counted {d}, {n} working days ago"),
+            _ => "never counted".to_string(),
+        };
+        match &self.risk {
+            None if self.dead_stock => format!(
+                "dead stock, every {} working days; {last}",
+                self.interval_working_days
+            ),
+            None => format!(
+                "class {} every {} working days; {last}",
+                self.class, self.interval_working_days
+            ),
+            Some(r) => {
+                let growth = match (r.growth.from, &r.growth.pool) {
+                    ("item", _) => format!("its own {} repeat counts", r.growth.points),
+                    (_, Some(pool)) => {
+                        format!("{} repeat counts of {pool}", r.growth.points)
+                    }
+                    _ if r.growth.points > 0 => {
+                        format!("{} repeat counts site-wide", r.growth.points)
+                    }
+                    _ => "no repeat counts yet: the same growth for every item".to_string(),
+                };
+                let floor = if r.at_floor {
+                    ", held by the class floor"
+                } else {
+                    ""
+                };
+                format!(
+                    "risk {:.0}: expected error worth {:.0} now and {:.0} by the end of its interval \
+                     (unit cost {}, error growth from {growth}); every {} working days{floor}, class {}; {last}",
+                    r.score,
+                    r.score,
+                    r.error_value_due,
+                    r.unit_cost_minor,
+                    self.interval_working_days,
+                    self.class
+                )
+            }
+        }
+    }
+}
+
+#[cfg(test)]
+#[path = "policy_tests.rs"]
+mod tests;

@@ -1,0 +1,265 @@
+use super::*;
+use crate::accuracy::item_error::{GrowthFit, MIN_FIT_POINTS};
+use crate::planning::Settings;
+use crate::planning::calendar::Calendar;
+use crate::planning::plan::{BinFacts, Capacity, Fill, ItemFacts};
+use crate::planning::walk::Place;
+use serde_json::json;
+
+/// A site of `classes.len()` items, one bin each, in one zone.
+fn input(classes: &[Class]) -> PlanInput {
+    let bins = (0..classes.len())
+        .map(|i| BinFacts {
+            id: i as i64 + 1,
+            code: format!("A-01-{:02}-1", i + 1),
+            zone: "A".into(),
+            place: Place {
+                zone_seq: 0,
+                zone: 1,
+                aisle: 1,
+                bay: 1 + i as u16,
+                level: 1,
+                side: 0,
+                walk_seq: 0,
+            },
+            lines: 1,
+            last_count: None,
+        })
+        .collect();
+    let items = classes
+        .iter()
+        .enumerate()
+        .map(|(i, &class)| ItemFacts {
+            id: i as i64 + 1,
+            class,
+            dead: false,
+            bins: vec![i as u32],
+        })
+        .collect();
+    PlanInput {
+        day: NaiveDate::from_ymd_opt(2026, 3, 2).expect("a valid date"),
+        calendar: Calendar::default(),
+        settings: Settings::default(),
+        bins,
+        items,
+        triggers: Vec::new(),
+        recounts: Vec::new(),
+        zone_time: HashMap::new(),
+        capacity: Capacity {
+            counters: 1,
+            minutes: 60,
+        },
+        fill: Fill::Capacity,
+        counting_since: None,
+        watermark: 0,
+        risk: None,
+    }
+}
+
+/// An item's history with its own fit `σ²(t) = a + b·t` and unit cost.
+fn fitted(a: f64, b: f64, cost: i64) -> ItemHistory {
+    ItemHistory {
+        unit_cost_minor: cost,
+        picks_per_day: 1.0,
+        growth: ErrorGrowth {
+            points: MIN_FIT_POINTS,
+            fit: GrowthFit::Fitted { a, b },
+        },
+        points: Vec::new(),
+    }
+}
+
+fn interval(plan: &RiskPlan, i: usize) -> &ItemRisk {
+    plan.items[i]
+        .as_ref()
+        .expect("a stocked item gets an interval")
+}
+
+#[test]
+fn a_fast_drifting_c_item_is_counted_more_often_than_a_stable_a_item() {
+    // Same cost and minutes; the C item's error variance grows 100 times faster.
+    // With a = 0, D(T) ∝ c·sqrt(b)·T^{3/2} (module notes of `risk`), so
+    // T_C / T_A = (sqrt(b_A) / sqrt(b_C))^{2/3} = (1/10)^{2/3} ≈ 0.215 when neither
+    // is at a bound.
+    let mut input = input(&[Class::A, Class::C, Class::B, Class::B]);
+    let history = vec![
+        fitted(0.0, 0.01, 1_000),
+        fitted(0.0, 1.0, 1_000),
+        fitted(0.0, 0.1, 1_000),
+        fitted(0.0, 0.1, 1_000),
+    ];
+    let policy = FrequencyPolicy {
+        policy: Mode::Risk,
+        ..FrequencyPolicy::default()
+    };
+    let plan = risk_plan(&input, &history, &policy).expect("valid figures");
+    let (a, c) = (interval(&plan, 0), interval(&plan, 1));
+    assert!(
+        c.days < a.days,
+        "C every {} days, A every {}",
+        c.days,
+        a.days
+    );
+    let ratio = c.days / a.days;
+    assert!((ratio - 0.1f64.powf(2.0 / 3.0)).abs() < 1e-6, "{ratio}");
+    assert_eq!(c.growth.from, "item");
+    // The budget is the abc level: 12 + 1 + 4 + 4 counts a year of 150 s bins.
+    let wdy = input.calendar.working_days_in_year(input.day) as f64;
+    let level_s: f64 = [12u32, 1, 4, 4]
+        .iter()
+        .map(|&f| 150.0 / crate::planning::due::interval_days(wdy as i64, f) as f64)
+        .sum();
+    assert!((plan.budget_minutes - level_s / 60.0 * wdy / 365.0).abs() < 1e-9);
+    // Planned with it, the list's order follows: with every item never counted and
+    // counting begun long ago, the C item is the most overdue relative to its interval.
+    input.counting_since = NaiveDate::from_ymd_opt(2025, 3, 2);
+    input.capacity.minutes = 3;
+    input.risk = Some(plan);
+    let built = crate::planning::plan::build(&input);
+    assert_eq!(built.tasks.len(), 1, "{:?}", built.tasks);
+    assert_eq!(built.tasks[0].bin, 1, "{:?}", built.tasks);
+    let why = built.tasks[0].why.as_ref().expect("a due task says why");
+    assert_eq!(why.policy, Mode::Risk);
+    assert!(why.risk.is_some());
+    assert!(
+        built.tasks[0].detail.starts_with("risk "),
+        "{}",
+        built.tasks[0].detail
+    );
+    // Under abc the A item leads instead.
+    input.risk = None;
+    let built = crate::planning::plan::build(&input);
+    assert_eq!(built.tasks[0].bin, 0, "{:?}", built.tasks);
+    assert!(
+        built.tasks[0].detail.starts_with("class A every "),
+        "{}",
+        built.tasks[0].detail
+    );
+}
+
+#[test]
+fn blend_floors_hold_every_class_to_its_least_counts_a_year() {
+    // A stable, cheap A item would be left two years alone by risk; the floor of 12
+    // a year holds it to the abc interval of 12 a year.
+    let input = input(&[Class::A, Class::C, Class::C]);
+    let history = vec![
+        fitted(0.0, 0.0001, 1),
+        fitted(0.0, 5.0, 10_000),
+        fitted(0.0, 5.0, 10_000),
+    ];
+    let risk = risk_plan(
+        &input,
+        &history,
+        &FrequencyPolicy {
+            policy: Mode::Risk,
+            ..FrequencyPolicy::default()
+        },
+    )
+    .expect("valid figures");
+    let wdy = input.calendar.working_days_in_year(input.day);
+    let floor_wd = crate::planning::due::interval_days(wdy, 12);
+    assert!(interval(&risk, 0).working_days > floor_wd);
+    let blend = risk_plan(
+        &input,
+        &history,
+        &FrequencyPolicy {
+            policy: Mode::Blend,
+            floor_a: 12,
+            floor_b: 4,
+            floor_c: 1,
+        },
+    )
+    .expect("valid figures");
+    let a = interval(&blend, 0);
+    assert!(a.working_days <= floor_wd, "{a:?}");
+    assert!(a.at_floor);
+    for i in 1..3 {
+        assert!(interval(&blend, i).working_days <= crate::planning::due::interval_days(wdy, 1));
+    }
+}
+
+#[test]
+fn items_without_fits_fall_back_to_their_pool_then_to_the_site() {
+    let input = input(&[Class::B, Class::B, Class::C]);
+    let points: Vec<ErrorPoint> = (0..MIN_FIT_POINTS)
+        .map(|k| ErrorPoint {
+            days_since_previous: 10.0 + 5.0 * k as f64,
+            error: 1.0 + k as f64,
+        })
+        .collect();
+    let few = ItemHistory {
+        unit_cost_minor: 100,
+        picks_per_day: 2.0,
+        growth: ErrorGrowth {
+            points: 4,
+            fit: GrowthFit::NotEnoughData(item_error::Shortfall::TooFewPoints {
+                needed: MIN_FIT_POINTS,
+            }),
+        },
+        points: points[..4].to_vec(),
+    };
+    let mut other = few.clone();
+    other.points = points[4..].to_vec();
+    let mut alone = few.clone();
+    alone.points = Vec::new();
+    let plan = risk_plan(
+        &input,
+        &[few, other, alone],
+        &FrequencyPolicy {
+            policy: Mode::Risk,
+            ..FrequencyPolicy::default()
+        },
+    )
+    .expect("valid figures");
+    let b = interval(&plan, 0);
+    assert_eq!(b.growth.from, "pool");
+    assert_eq!(b.growth.points, MIN_FIT_POINTS);
+    assert_eq!(
+        b.growth.pool.as_deref(),
+        Some("class B, zone A, busy picking")
+    );
+    // The C item's pool has no points; the site's pooled fit (the same 8) is used.
+    let c = interval(&plan, 2);
+    assert_eq!((c.growth.from, c.growth.points), ("site", MIN_FIT_POINTS));
+}
+
+#[test]
+fn a_policy_body_at_fault_names_each_field() {
+    let current = FrequencyPolicy::default();
+    let cases = [
+        (json!({"policy": "often"}), vec!["policy"]),
+        (json!({"floor_a": 3}), vec!["policy"]),
+        (json!({"policy": "blend", "floor_a": 400}), vec!["floor_a"]),
+        (
+            json!({"policy": "blend", "floor_b": -1, "floor_c": "x"}),
+            vec!["floor_b", "floor_c"],
+        ),
+        (json!({"policy": "risk", "floors": 1}), vec!["floors"]),
+        (json!(["risk"]), vec!["body"]),
+    ];
+    for (body, fields) in cases {
+        let errors = FrequencyPolicy::from_json(&body, &current).expect_err("refused");
+        let named: Vec<&str> = errors.iter().map(|e| e.field.as_str()).collect();
+        assert_eq!(named, fields, "{body}");
+    }
+    let ok = FrequencyPolicy::from_json(&json!({"policy": "blend", "floor_a": 24}), &current)
+        .expect("accepted");
+    assert_eq!((ok.policy, ok.floor_a, ok.floor_b), (Mode::Blend, 24, 4));
+}
+
+#[test]
+fn the_abc_reason_names_the_class_interval_and_last_count() {
+    let day = NaiveDate::from_ymd_opt(2026, 9, 1).expect("a valid date");
+    let last = NaiveDate::from_ymd_opt(2026, 6, 1).expect("a valid date");
+    let why = Why::of(Mode::Abc, Class::B, false, 65, Some((last, 66)), day, None);
+    assert_eq!(
+        why.sentence(),
+        "class B every 65 working days; last counted 2026-06-01, 66 working days ago"
+    );
+    let never = Why::of(Mode::Risk, Class::C, true, 261, None, day, None);
+    assert_eq!(never.policy, Mode::Abc, "dead stock keeps abc");
+    assert_eq!(
+        never.sentence(),
+        "dead stock, every 261 working days; never counted"
+    );
+}
