@@ -547,7 +547,7 @@ async fn the_probes_ignore_a_token_sent_with_them() {
     // A known path asked with a method it does not take says which it takes.
     let r = app
         .client
-        .get(format!("{}/api/v1/sites/T/packs", app.base))
+        .get(format!("{}/api/v1/sites/T/short-picks", app.base))
         .bearer_auth(&good)
         .send()
         .await
