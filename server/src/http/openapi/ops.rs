@@ -245,6 +245,10 @@ const BATCH_409: &[(u16, &str)] = &[
          a movement `id` already in the ledger with other content is refused here, on `id`.",
     ),
 ];
+const FIELDS: &[(u16, &str)] = &[(
+    422,
+    "The body was refused whole: `rows` names each field at fault (`index` 0).",
+)];
 const CONFLICT: &[(u16, &str)] = &[(
     409,
     "The change conflicts with the state (the text says which).",
@@ -537,7 +541,8 @@ fn site_op(method: &str, tail: &str, s: &mut Schemas) -> Option<Op> {
         .body(
             s.of::<crate::planning::policy::FrequencyPolicyChange>(),
             json!({ "policy": "blend", "floor_a": 12, "floor_b": 4, "floor_c": 1 }),
-        ),
+        )
+        .errors(FIELDS),
         ("GET", "/planning/calendar") => Op::new(
             "Read the working calendar",
             "Working weekdays and holidays.",
