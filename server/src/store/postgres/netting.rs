@@ -928,10 +928,10 @@ impl RecountTx for PgTx<'_> {
             zone: zone_row(zone, site)?,
             classes: classes
                 .iter()
-                .map(|r| Ok(r.try_get::<_, Option<String>>(0)?))
-                .collect::<Result<Vec<_>, StoreError>>()?
-                .iter()
-                .filter_map(|c| c.as_deref().and_then(Class::parse))
+                .map(|r| r.try_get::<_, Option<&str>>(0))
+                .collect::<Result<Vec<_>, _>>()?
+                .into_iter()
+                .filter_map(|c| c.and_then(Class::parse))
                 .collect(),
             bin_lines: lines.try_get(0)?,
         })
