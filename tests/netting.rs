@@ -1638,3 +1638,222 @@ async fn a_new_item_is_held_to_class_a_until_it_has_history_enough_to_be_classif
         "{l1}"
     );
 }
+
+// ---------------------------------------------------------------------------
+// Many bins in one request.
+
+/// The six bins of `many_bins_site`: the two of the small site and four more in aisle 1.
+const SIX_BINS: [&str; 6] = [
+    BIN1,
+    BIN2,
+    "A-01-03-1",
+    "A-01-04-1",
+    "A-01-05-1",
+    "A-01-06-1",
+];
+
+/// Site T with six bins, each holding 40 of S1 and bin 1 ten of L1 lot K1 (received an
+/// hour before the base); a pick of 2 of S1 from bin 3 during its count; today's list
+/// with runs for cora and dan.
+async fn many_bins_site() -> (Site, String) {
+    let s = site().await;
+    let (st, b) = s
+        .app
+        .post(
+            "/api/v1/sites/T/bins",
+            &json!([
+                {"zone": "A", "aisle": 1, "bay": 3, "level": 1, "side": "L"},
+                {"zone": "A", "aisle": 1, "bay": 4, "level": 1, "side": "R"},
+                {"zone": "A", "aisle": 1, "bay": 5, "level": 1, "side": "L"},
+                {"zone": "A", "aisle": 1, "bay": 6, "level": 1, "side": "R"}
+            ]),
+        )
+        .await;
+    assert_eq!(st, 200, "{b}");
+    let early = s.base - 60 * MIN;
+    let uids: Vec<String> = (0..SIX_BINS.len()).map(|i| format!("r{i}")).collect();
+    let mut moves: Vec<Move<'_>> = SIX_BINS
+        .iter()
+        .zip(&uids)
+        .map(|(bin, uid)| (uid.as_str(), *bin, "S1", "", 40, "receipt", early, "host"))
+        .collect();
+    moves.push(("rl", BIN1, "L1", "K1", 10, "receipt", early, "host"));
+    // Bin 3's pass (the fourth below) opens at base + 4.5 min and scans at base + 5 min.
+    let pick_at = s.base + 4 * MIN + 3 * MIN / 4;
+    moves.push(("p3", SIX_BINS[2], "S1", "", -2, "pick", pick_at, "host"));
+    s.moves(&moves).await;
+    let day = todays_list(&s, 2).await;
+    (s, day)
+}
+
+/// A pass's keyed lines: SKU, lot, quantity.
+type Lines = Vec<(&'static str, &'static str, i64)>;
+
+/// A pass's events: opened at `t`, its lines 30 s later, done a minute after `t`.
+fn pass_events(p: &Pass, t: i64, lines: &[(&str, &str, i64)]) -> Vec<Value> {
+    let mut events = vec![p.opened(t)];
+    events.extend(
+        lines
+            .iter()
+            .map(|(sku, lot, qty)| p.line(t + MIN / 2, sku, lot, *qty)),
+    );
+    events.push(p.done(t + MIN));
+    events
+}
+
+/// Every result of the site (superseded ones too) and the day's recount tasks, with the
+/// passes named by their place in `passes` so two sites' can be compared.
+async fn netting_state(s: &Site, day: &str, passes: &[&Pass]) -> Value {
+    let name = |uid: &str| {
+        passes
+            .iter()
+            .position(|p| p.count == uid)
+            .map_or_else(|| uid.to_string(), |i| format!("pass {i}"))
+    };
+    let results: Vec<Value> = s
+        .results("state=all&limit=1000")
+        .await
+        .iter()
+        .map(|r| {
+            json!([
+                name(r["pass"].as_str().unwrap()),
+                r["bin"],
+                r["sku"],
+                r["lot"],
+                r["counted"],
+                r["f_star"],
+                r["variance"],
+                r["status"],
+                r["verdict"],
+                r["recount_outcome"],
+                r["first_count_wrong"],
+                r["superseded_by"].is_null(),
+                r["renet_reason"]
+            ])
+        })
+        .collect();
+    let (_, list) = recount_tasks(s, day).await;
+    let tasks: Vec<Value> = list["tasks"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .map(|t| json!([t["bin"], t["reason"], t["run"], t["seq"], t["status"]]))
+        .collect();
+    json!({"results": results, "tasks": tasks, "warnings": list["warnings"]})
+}
+
+/// The id of the day's recount task of `bin`.
+async fn recount_task_of(s: &Site, day: &str, bin: &str) -> i64 {
+    let (tasks, list) = recount_tasks(s, day).await;
+    tasks
+        .iter()
+        .find(|t| t["bin"] == bin)
+        .unwrap_or_else(|| panic!("a recount of {bin}: {list}"))["id"]
+        .as_i64()
+        .unwrap()
+}
+
+#[tokio::test]
+async fn a_request_of_many_bins_nets_as_one_request_a_bin_would() {
+    // The same counts reach two sites: on one as a single request per round (a phone
+    // that was offline), on the other one request a pass. Netting reads and writes the
+    // first counts of different bins together; the results, recounts and their places
+    // in the list must be the same. Round 1: six first counts, bin 5 counted twice (the
+    // second pass of a bin waits for the first's writes); bin 1 short (out), bin 4 over
+    // (out), bin 6 with no line (S1 not scanned: out), bin 3 netted over the pick.
+    let (a, day_a) = many_bins_site().await;
+    let (b, day_b) = many_bins_site().await;
+    let step = 3 * MIN / 2;
+    let round1: Vec<(Pass, Lines)> = vec![
+        (
+            Pass::new(SIX_BINS[0]),
+            vec![("S1", "", 35), ("L1", "K1", 10)],
+        ),
+        (Pass::new(SIX_BINS[1]), vec![("S1", "", 40)]),
+        (Pass::new(SIX_BINS[4]), vec![("S1", "", 40)]),
+        (Pass::new(SIX_BINS[2]), vec![("S1", "", 38)]),
+        (Pass::new(SIX_BINS[3]), vec![("S1", "", 41)]),
+        (Pass::new(SIX_BINS[4]), vec![("S1", "", 39)]),
+        (Pass::new(SIX_BINS[5]), vec![]),
+    ];
+    let events = |round: &[(Pass, Lines)], from: i64| -> Vec<Vec<Value>> {
+        round
+            .iter()
+            .enumerate()
+            .map(|(i, (p, lines))| pass_events(p, from + i as i64 * step, lines))
+            .collect()
+    };
+    let one = events(&round1, a.base);
+    a.sync(&a.cora, one.concat(), 0).await;
+    for e in &one {
+        b.sync(&b.cora, e.clone(), 0).await;
+    }
+    let mut passes: Vec<&Pass> = round1.iter().map(|(p, _)| p).collect();
+    let (sa, sb) = (
+        netting_state(&a, &day_a, &passes).await,
+        netting_state(&b, &day_b, &passes).await,
+    );
+    assert_eq!(sa, sb, "round 1: one request against one a pass");
+    let out = sa["results"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .filter(|r| r[8] == "out_of_tolerance")
+        .count();
+    assert_eq!(out, 4, "bins 1, 4, 6 and bin 5's second pass are out: {sa}");
+    assert_eq!(
+        sa["tasks"]
+            .as_array()
+            .unwrap()
+            .iter()
+            .filter(|t| t[1] == "recount")
+            .count(),
+        4,
+        "{sa}"
+    );
+
+    // Round 2 mixes recount passes (each nets on its own) with first counts of other
+    // bins: dan recounts bin 1 (35: the first count stands) and bin 4 (40: the book was
+    // right); cora counts bin 2 and bin 3 again.
+    let mut round2 = Vec::new();
+    for (s, day) in [(&a, &day_a), (&b, &day_b)] {
+        let mut r1 = Pass::new(SIX_BINS[0]);
+        r1.task = Some(recount_task_of(s, day, SIX_BINS[0]).await);
+        let mut r4 = Pass::new(SIX_BINS[3]);
+        r4.task = Some(recount_task_of(s, day, SIX_BINS[3]).await);
+        round2.push(vec![
+            (r1, vec![("S1", "", 35), ("L1", "K1", 10)]),
+            (Pass::new(SIX_BINS[1]), vec![("S1", "", 40)]),
+            (r4, vec![("S1", "", 40)]),
+            (Pass::new(SIX_BINS[2]), vec![("S1", "", 38)]),
+        ]);
+    }
+    let (ra, rb) = (&round2[0], &round2[1]);
+    let from = a.base + 15 * MIN;
+    // On site a: dan's two recounts in one request, cora's two counts in another, sent
+    // interleaved by time on site b one pass a request.
+    let ea = events(ra, from);
+    a.sync(&a.dan, [ea[0].clone(), ea[2].clone()].concat(), 0)
+        .await;
+    a.sync(&a.cora, [ea[1].clone(), ea[3].clone()].concat(), 0)
+        .await;
+    let eb = events(rb, from);
+    b.sync(&b.dan, eb[0].clone(), 0).await;
+    b.sync(&b.dan, eb[2].clone(), 0).await;
+    b.sync(&b.cora, eb[1].clone(), 0).await;
+    b.sync(&b.cora, eb[3].clone(), 0).await;
+    passes.extend(ra.iter().map(|(p, _)| p));
+    let sa = netting_state(&a, &day_a, &passes).await;
+    let mut passes_b: Vec<&Pass> = round1.iter().map(|(p, _)| p).collect();
+    passes_b.extend(rb.iter().map(|(p, _)| p));
+    let sb = netting_state(&b, &day_b, &passes_b).await;
+    assert_eq!(sa, sb, "round 2: recounts among first counts");
+    let outcomes: Vec<&Value> = sa["results"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .filter(|r| !r[9].is_null())
+        .map(|r| &r[9])
+        .collect();
+    assert_eq!(outcomes.len(), 2, "the recounts decided bins 1 and 4: {sa}");
+}

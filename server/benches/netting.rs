@@ -6,7 +6,8 @@
 //! what the results said, by status and verdict, to check against how the data was built.
 //!
 //! Run: `cargo bench -p cairn-server --bench netting`. Sizes: CAIRN_BENCH_LINES (count
-//! lines, default 20000) and CAIRN_BENCH_MOVES (default 2000000). CAIRN_BENCH_KEEP=FILE
+//! lines, default 20000) and CAIRN_BENCH_MOVES (default 2000000); CAIRN_BENCH_PASSES_PER_CALL
+//! (default all) how many passes one call of the netting takes. CAIRN_BENCH_KEEP=FILE
 //! keeps a copy of the database as built; CAIRN_BENCH_REUSE=FILE nets such a copy
 //! instead of building one.
 //!
@@ -45,6 +46,25 @@ fn env_usize(name: &str, default: usize) -> usize {
         .ok()
         .and_then(|v| v.parse().ok())
         .unwrap_or(default)
+}
+
+/// Passes netted by one call (CAIRN_BENCH_PASSES_PER_CALL, default all: the netting
+/// reads and writes up to `PASSES_PER_ROUND` first counts of different bins together; 1
+/// nets each pass on its own, as a request that marks one bin done does).
+fn passes_per_call() -> usize {
+    env_usize("CAIRN_BENCH_PASSES_PER_CALL", usize::MAX).max(1)
+}
+
+/// Every pass of `passes` netted whole, first netting (no reason).
+fn jobs(passes: &[i64]) -> Vec<cairn::netting::pass::NetJob<'static>> {
+    passes
+        .iter()
+        .map(|&pass| cairn::netting::pass::NetJob {
+            pass,
+            only: None,
+            reason: "",
+        })
+        .collect()
 }
 
 fn make_db(path: &Path, lines: usize, moves: usize) {
@@ -321,12 +341,10 @@ fn main() {
     let mut written = 0;
     let mut tasks = 0;
     let now = Timestamp(COUNT_AT + DAY_MS);
-    for p in &passes {
-        let out = cairn::netting::pass::net(
+    for call in passes.chunks(passes_per_call()) {
+        let out = cairn::netting::pass::net_many(
             &cairn::store::sqlite::Tx::new(&tx, opts.snapshot_every),
-            *p,
-            None,
-            "",
+            &jobs(call),
             now,
         )
         .unwrap();
@@ -466,8 +484,8 @@ fn net_on_postgres(admin: &str, pristine: &Path, lines: usize, moves: usize) {
                     let cpu = || (cpu_seconds(backend as u32), cpu_seconds(std::process::id()));
                     let before = cpu();
                     let (mut written, mut tasks) = (0, 0);
-                    for p in passes {
-                        let out = cairn::netting::pass::net(tx, p, None, "", now)?;
+                    for call in passes.chunks(passes_per_call()) {
+                        let out = cairn::netting::pass::net_many(tx, &jobs(call), now)?;
                         written += out.written.len();
                         tasks += out.tasks.len();
                     }

@@ -102,6 +102,29 @@ pub struct PassRead {
     pub has_open_tasks: bool,
 }
 
+/// What netting asks of a bin's keys: the balance from every movement stamped at or before
+/// `before`, and the moves stamped in `[from, to]` (see [`NettingTx::keys_facts`]).
+#[derive(Debug, Clone, Copy)]
+pub struct KeysAsk<'a> {
+    pub bin: i64,
+    pub keys: &'a [ItemLot],
+    pub before: Timestamp,
+    pub from: Timestamp,
+    pub to: Timestamp,
+}
+
+/// A pass to net, the keys to net (all when `None`) and why a changed key's new row
+/// supersedes its old one (see [`net`]).
+#[derive(Debug, Clone, Copy)]
+pub struct NetJob<'a> {
+    pub pass: i64,
+    pub only: Option<&'a HashSet<ItemLot>>,
+    pub reason: &'a str,
+}
+
+/// Most passes [`net_many`] reads in one go.
+pub const PASSES_PER_ROUND: usize = 256;
+
 /// The queries and writes netting makes inside one transaction. Each method is one
 /// query or one write; the store implements it with its own SQL. Placing a recount is
 /// part of netting ([`RecountTx`]).
@@ -173,10 +196,22 @@ pub trait NettingTx: RecountTx + crate::ledger::WatermarkTx {
             facts,
         }))
     }
+    /// [`NettingTx::pass_read`] of several passes, in their order. By default one after
+    /// another; a store whose round trips cost more than its queries reads them together.
+    fn pass_reads(&self, passes: &[i64]) -> Result<Vec<Option<PassRead>>, StoreError> {
+        passes.iter().map(|&p| self.pass_read(p)).collect()
+    }
+    /// [`NettingTx::keys_facts`] of several bins, in their order. By default one after
+    /// another; a store whose round trips cost more than its queries reads them together.
+    fn keys_facts_many(&self, asks: &[KeysAsk<'_>]) -> Result<Vec<Vec<KeyRead>>, StoreError> {
+        asks.iter()
+            .map(|a| self.keys_facts(a.bin, a.keys, a.before, a.from, a.to))
+            .collect()
+    }
     /// Writes a result; returns its id.
     fn insert_result(&self, r: &NewResult<'_>) -> Result<i64, StoreError>;
-    /// Writes results, in order; returns their ids in the same order. By default one
-    /// [`NettingTx::insert_result`] each.
+    /// Writes results (of one pass or several), in order; returns their ids in the same
+    /// order. By default one [`NettingTx::insert_result`] each.
     fn insert_results(&self, rows: &[NewResult<'_>]) -> Result<Vec<i64>, StoreError> {
         rows.iter().map(|r| self.insert_result(r)).collect()
     }
@@ -185,6 +220,11 @@ pub trait NettingTx: RecountTx + crate::ledger::WatermarkTx {
 
     /// A pass by uid if it is marked done, and whether it has any result yet.
     fn done_pass_by_uid(&self, uid: &str) -> Result<Option<(i64, bool)>, StoreError>;
+    /// [`NettingTx::done_pass_by_uid`] of several uids, in their order. By default one
+    /// after another.
+    fn done_passes_by_uid(&self, uids: &[&str]) -> Result<Vec<Option<(i64, bool)>>, StoreError> {
+        uids.iter().map(|u| self.done_pass_by_uid(u)).collect()
+    }
     /// The widest clock uncertainty of a site's passes marked done; `None` when none is.
     fn widest_done_uncertainty(&self, site: SiteId) -> Result<Option<i64>, StoreError>;
     /// The passes of a bin marked done at or after `done_from`, with their timing.
@@ -281,199 +321,419 @@ pub fn net<T: NettingTx + ?Sized>(
     reason: &str,
     now: Timestamp,
 ) -> Result<NetOutcome, StoreError> {
-    let mut out = NetOutcome::default();
     let Some(read) = tx.pass_read(pass_id)? else {
         return Err(StoreError::NotFound(format!("no count pass {pass_id}")));
     };
-    let PassRead {
-        facts: pass,
-        settings,
-        timings,
-        watermark,
-        counted,
-        bin_keys,
-        netted,
-        rechecked: targets,
-        has_open_tasks,
-    } = read;
-    let Some(done) = pass.timing.done else {
-        return Ok(out);
-    };
-    let sources = Sources::new(&timings);
-    let history_from = service::history_from(&pass.timing, &sources);
-    // No key's window ends after the bin's, and no movement stamped later than its
-    // source's uncertainty after that can reach into it.
-    let history_to = done
-        .plus_ms(pass.timing.clock_uncertainty_ms.max(0))
-        .plus_ms(sources.max_uncertainty_ms());
+    net_read(tx, read, only, reason, now)
+}
 
-    let mut keys: BTreeSet<ItemLot> = counted.keys().cloned().collect();
-    keys.extend(bin_keys);
-    // Keys with a current result: only these have a result to compare with.
-    let netted: BTreeSet<ItemLot> = netted.into_iter().collect();
-    keys.extend(netted.iter().cloned());
-    // The keys a recount pass re-checks, each with its first count's pass.
-    keys.extend(targets.iter().map(|(k, _)| k.clone()));
-    if keys.len() > service::MAX_KEYS_PER_PASS {
-        return Err(anyhow::anyhow!(
-            "count {} touches {} keys, more than {}",
-            pass.uid,
-            keys.len(),
-            service::MAX_KEYS_PER_PASS
-        )
-        .into());
-    }
-
-    let keys: Vec<ItemLot> = keys
-        .into_iter()
-        .filter(|k| only.is_none_or(|o| o.contains(k)))
-        .collect();
-    let reads = tx.keys_facts(
-        pass.bin_id,
-        &keys,
-        history_from.plus_ms(-1),
-        history_from,
-        history_to,
-    )?;
-    if reads.len() != keys.len() {
-        return Err(anyhow::anyhow!(
-            "the store read {} of {} keys of count {}",
-            reads.len(),
-            keys.len(),
-            pass.uid
-        )
-        .into());
-    }
-    // The keys whose netting changed: the fresh result, its status, the result it replaces.
-    let mut fresh_rows = Vec::new();
-    for (key, read) in keys.into_iter().zip(reads) {
-        let KeyRead {
-            item,
-            balance_before,
-            moves,
-        } = read;
-        let count = match counted.get(&key) {
-            Some(&(qty, last)) => KeyCount::Scanned { qty, last },
-            None => KeyCount::NotScanned,
-        };
-        let facts = KeyFacts {
-            item_id: key.0,
-            sku: item.sku.clone(),
-            lot: key.1.clone(),
-            class: item.class,
-            unit_cost_minor: item.unit_cost_minor,
-            count,
-            balance_before,
-            moves,
-        };
-        let current = if netted.contains(&key) {
-            tx.current_result(pass.id, &key)?
-        } else {
-            None
-        };
-        let is_target = targets.iter().any(|(k, _)| *k == key);
-        let (fresh, vanished_row) =
-            match service::net_one(&pass.timing, &facts, &sources, &settings) {
-                Some(n) => (Some(n), false),
-                None if is_target
-                    || current
-                        .as_ref()
-                        .is_some_and(|c| c.status != STATUS_NOTHING_TO_NET) =>
-                {
-                    (vanished(&pass, &key, item, &sources, &settings), true)
-                }
-                None => (None, false),
-            };
-        let Some(mut fresh) = fresh else { continue };
-        if let Some(why) = &pass.held
-            && !vanished_row
-        {
-            service::hold(&mut fresh, why);
+/// Nets several passes, in order, with the same outcome as [`net`] of each in turn, but
+/// reading and writing first counts of different bins together: their reads in one go,
+/// then their results in one write, then each pass's recount work in turn. A first count
+/// reads nothing another bin's netting writes (its own results, lines and tasks, its bin's
+/// ledger), so reading it before the other's writes changes nothing. A recount pass, or a
+/// second pass of a bin already in the group, waits for the next group.
+pub fn net_many<T: NettingTx + ?Sized>(
+    tx: &T,
+    jobs: &[NetJob<'_>],
+    now: Timestamp,
+) -> Result<NetOutcome, StoreError> {
+    let mut out = NetOutcome::default();
+    let mut rest = jobs;
+    while !rest.is_empty() {
+        // A pass named twice waits: its second netting must see the first one's writes.
+        let mut named = HashSet::new();
+        let round = rest
+            .iter()
+            .take(PASSES_PER_ROUND)
+            .take_while(|j| named.insert(j.pass))
+            .count();
+        let ids: Vec<i64> = rest[..round].iter().map(|j| j.pass).collect();
+        let reads = tx.pass_reads(&ids)?;
+        if reads.len() != ids.len() {
+            return Err(
+                anyhow::anyhow!("the store read {} of {} passes", reads.len(), ids.len()).into(),
+            );
         }
-        if let Some(c) = &current
-            && !service::differs(&c.evidence, &fresh.evidence)
-        {
+        let mut bins = HashSet::new();
+        let mut group = Vec::new();
+        for (job, read) in rest.iter().zip(reads) {
+            let Some(read) = read else {
+                if group.is_empty() {
+                    return Err(StoreError::NotFound(format!("no count pass {}", job.pass)));
+                }
+                break;
+            };
+            let alone = read.facts.recount_task.is_some() || !bins.insert(read.facts.bin_id);
+            if alone && !group.is_empty() {
+                break;
+            }
+            group.push((job, read));
+            if alone {
+                break;
+            }
+        }
+        rest = &rest[group.len()..];
+        if let [(job, _)] = group.as_slice() {
+            let (job, read) = (*job, group.pop().expect("one pass").1);
+            out.add(net_read(tx, read, job.only, job.reason, now)?);
             continue;
         }
-        let status = if vanished_row {
-            STATUS_NOTHING_TO_NET
-        } else {
-            service::status_text(fresh.status)
-        };
-        fresh_rows.push((key, fresh, status, current));
+        out.add(net_group(tx, group, now)?);
     }
-    let new_rows: Vec<NewResult<'_>> = fresh_rows
+    Ok(out)
+}
+
+/// Nets a pass already read (see [`net`]).
+fn net_read<T: NettingTx + ?Sized>(
+    tx: &T,
+    read: PassRead,
+    only: Option<&HashSet<ItemLot>>,
+    reason: &str,
+    now: Timestamp,
+) -> Result<NetOutcome, StoreError> {
+    let Some(plan) = Plan::of(read, only)? else {
+        return Ok(NetOutcome::default());
+    };
+    let reads = tx.keys_facts(
+        plan.pass.bin_id,
+        &plan.keys,
+        plan.history_from.plus_ms(-1),
+        plan.history_from,
+        plan.history_to,
+    )?;
+    let judged = plan.judge(tx, reads)?;
+    let ids = tx.insert_results(&judged.new_rows(reason, now))?;
+    judged.finish(tx, ids, reason, now)
+}
+
+/// Nets first counts of different bins together (see [`net_many`]).
+fn net_group<T: NettingTx + ?Sized>(
+    tx: &T,
+    group: Vec<(&NetJob<'_>, PassRead)>,
+    now: Timestamp,
+) -> Result<NetOutcome, StoreError> {
+    let mut plans = Vec::with_capacity(group.len());
+    for (job, read) in group {
+        if let Some(plan) = Plan::of(read, job.only)? {
+            plans.push((job, plan));
+        }
+    }
+    let asks: Vec<KeysAsk<'_>> = plans
         .iter()
-        .map(|(_, fresh, status, current)| NewResult {
-            pass: &pass,
-            netted: fresh,
-            status,
-            watermark,
-            now,
-            reason: if current.is_some() { reason } else { "" },
+        .map(|(_, p)| KeysAsk {
+            bin: p.pass.bin_id,
+            keys: &p.keys,
+            before: p.history_from.plus_ms(-1),
+            from: p.history_from,
+            to: p.history_to,
         })
         .collect();
-    let ids = tx.insert_results(&new_rows)?;
-    if ids.len() != new_rows.len() {
+    let reads = tx.keys_facts_many(&asks)?;
+    drop(asks);
+    if reads.len() != plans.len() {
         return Err(anyhow::anyhow!(
-            "the store wrote {} of {} results of count {}",
-            ids.len(),
-            new_rows.len(),
-            pass.uid
+            "the store read the keys of {} of {} passes",
+            reads.len(),
+            plans.len()
         )
         .into());
     }
-    drop(new_rows);
-    let mut changed = Vec::new();
-    for ((key, fresh, _, current), id) in fresh_rows.into_iter().zip(ids) {
-        if let Some(c) = &current {
-            tx.supersede(c.id, id)?;
-        }
-        out.written.push(id);
-        changed.push((key, id, fresh.verdict, current.is_some()));
+    let mut judged = Vec::with_capacity(plans.len());
+    for ((job, plan), reads) in plans.into_iter().zip(reads) {
+        judged.push((job, plan.judge(tx, reads)?));
     }
-
-    let sent = Sent { watermark, now };
-    if pass.recount_task.is_none() {
-        // The out-of-tolerance keys of a first count go to one recount of the bin.
-        let mut out_keys = Vec::new();
-        for (key, id, verdict, _) in &changed {
-            if *verdict == VERDICT_OUT && tx.live_tasks_of(pass.id, key)? == 0 {
-                out_keys.push(*id);
-            }
-        }
-        out.tasks
-            .extend(recount::send(tx, &pass, &out_keys, false, &sent)?);
-        // Re-checked keys of this pass changed under their recounts: re-apply them.
-        let mut decide = Vec::new();
-        for (key, _, _, renetted) in &changed {
-            // A key netted for the first time has had no result a recount could re-check.
-            if *renetted && let Some(rc) = tx.latest_recount_pass(pass.id, key)? {
-                decide.push((key.clone(), rc));
-            }
-        }
-        out.tasks
-            .extend(decide_recounts(tx, pass.id, &decide, &sent)?);
-        // Only a task open before this netting or sent by it can have become unneeded.
-        if has_open_tasks || !out.tasks.is_empty() {
-            withdraw_unneeded(tx, pass.id, reason, now)?;
-        }
-    } else if !pass.withdrawn {
-        // A recount pass decides every key its task re-checks.
-        let mut by_first: BTreeMap<i64, Vec<(ItemLot, i64)>> = BTreeMap::new();
-        for (key, first_pass) in &targets {
-            by_first
-                .entry(*first_pass)
-                .or_default()
-                .push((key.clone(), pass.id));
-        }
-        for (first_pass, decide) in by_first {
-            out.tasks
-                .extend(decide_recounts(tx, first_pass, &decide, &sent)?);
-            withdraw_unneeded(tx, first_pass, reason, now)?;
-        }
+    let rows: Vec<NewResult<'_>> = judged
+        .iter()
+        .flat_map(|(job, j)| j.new_rows(job.reason, now))
+        .collect();
+    let mut ids = tx.insert_results(&rows)?.into_iter();
+    if ids.len() != rows.len() {
+        return Err(
+            anyhow::anyhow!("the store wrote {} of {} results", ids.len(), rows.len()).into(),
+        );
+    }
+    drop(rows);
+    let mut out = NetOutcome::default();
+    for (job, j) in judged {
+        let mine: Vec<i64> = ids.by_ref().take(j.fresh_rows.len()).collect();
+        out.add(j.finish(tx, mine, job.reason, now)?);
     }
     Ok(out)
+}
+
+/// A pass marked done, read, with the keys to net and the history to read of them.
+struct Plan {
+    pass: PassFacts,
+    settings: NettingSettings,
+    sources: Sources,
+    watermark: i64,
+    counted: BTreeMap<ItemLot, (i64, Timestamp)>,
+    netted: BTreeSet<ItemLot>,
+    targets: Vec<(ItemLot, i64)>,
+    has_open_tasks: bool,
+    keys: Vec<ItemLot>,
+    history_from: Timestamp,
+    history_to: Timestamp,
+}
+
+/// A pass netted, its new rows not yet written.
+struct Judged {
+    pass: PassFacts,
+    watermark: i64,
+    targets: Vec<(ItemLot, i64)>,
+    has_open_tasks: bool,
+    /// The keys whose netting changed: the fresh result, its status, the result it replaces.
+    fresh_rows: Vec<(ItemLot, Netted, &'static str, Option<CurrentResult>)>,
+}
+
+impl Plan {
+    /// Chooses the keys of a pass to net; `None` for a pass not marked done.
+    fn of(read: PassRead, only: Option<&HashSet<ItemLot>>) -> Result<Option<Self>, StoreError> {
+        let PassRead {
+            facts: pass,
+            settings,
+            timings,
+            watermark,
+            counted,
+            bin_keys,
+            netted,
+            rechecked: targets,
+            has_open_tasks,
+        } = read;
+        let Some(done) = pass.timing.done else {
+            return Ok(None);
+        };
+        let sources = Sources::new(&timings);
+        let history_from = service::history_from(&pass.timing, &sources);
+        // No key's window ends after the bin's, and no movement stamped later than its
+        // source's uncertainty after that can reach into it.
+        let history_to = done
+            .plus_ms(pass.timing.clock_uncertainty_ms.max(0))
+            .plus_ms(sources.max_uncertainty_ms());
+
+        let mut keys: BTreeSet<ItemLot> = counted.keys().cloned().collect();
+        keys.extend(bin_keys);
+        // Keys with a current result: only these have a result to compare with.
+        let netted: BTreeSet<ItemLot> = netted.into_iter().collect();
+        keys.extend(netted.iter().cloned());
+        // The keys a recount pass re-checks, each with its first count's pass.
+        keys.extend(targets.iter().map(|(k, _)| k.clone()));
+        if keys.len() > service::MAX_KEYS_PER_PASS {
+            return Err(anyhow::anyhow!(
+                "count {} touches {} keys, more than {}",
+                pass.uid,
+                keys.len(),
+                service::MAX_KEYS_PER_PASS
+            )
+            .into());
+        }
+        let keys: Vec<ItemLot> = keys
+            .into_iter()
+            .filter(|k| only.is_none_or(|o| o.contains(k)))
+            .collect();
+        Ok(Some(Self {
+            pass,
+            settings,
+            sources,
+            watermark,
+            counted,
+            netted,
+            targets,
+            has_open_tasks,
+            keys,
+            history_from,
+            history_to,
+        }))
+    }
+
+    /// Nets each key from what the store read of it (`reads`, in the order of the keys).
+    fn judge<T: NettingTx + ?Sized>(
+        self,
+        tx: &T,
+        reads: Vec<KeyRead>,
+    ) -> Result<Judged, StoreError> {
+        let Self {
+            pass,
+            settings,
+            sources,
+            watermark,
+            counted,
+            netted,
+            targets,
+            has_open_tasks,
+            keys,
+            ..
+        } = self;
+        if reads.len() != keys.len() {
+            return Err(anyhow::anyhow!(
+                "the store read {} of {} keys of count {}",
+                reads.len(),
+                keys.len(),
+                pass.uid
+            )
+            .into());
+        }
+        let mut fresh_rows = Vec::new();
+        for (key, read) in keys.into_iter().zip(reads) {
+            let KeyRead {
+                item,
+                balance_before,
+                moves,
+            } = read;
+            let count = match counted.get(&key) {
+                Some(&(qty, last)) => KeyCount::Scanned { qty, last },
+                None => KeyCount::NotScanned,
+            };
+            let facts = KeyFacts {
+                item_id: key.0,
+                sku: item.sku.clone(),
+                lot: key.1.clone(),
+                class: item.class,
+                unit_cost_minor: item.unit_cost_minor,
+                count,
+                balance_before,
+                moves,
+            };
+            let current = if netted.contains(&key) {
+                tx.current_result(pass.id, &key)?
+            } else {
+                None
+            };
+            let is_target = targets.iter().any(|(k, _)| *k == key);
+            let (fresh, vanished_row) =
+                match service::net_one(&pass.timing, &facts, &sources, &settings) {
+                    Some(n) => (Some(n), false),
+                    None if is_target
+                        || current
+                            .as_ref()
+                            .is_some_and(|c| c.status != STATUS_NOTHING_TO_NET) =>
+                    {
+                        (vanished(&pass, &key, item, &sources, &settings), true)
+                    }
+                    None => (None, false),
+                };
+            let Some(mut fresh) = fresh else { continue };
+            if let Some(why) = &pass.held
+                && !vanished_row
+            {
+                service::hold(&mut fresh, why);
+            }
+            if let Some(c) = &current
+                && !service::differs(&c.evidence, &fresh.evidence)
+            {
+                continue;
+            }
+            let status = if vanished_row {
+                STATUS_NOTHING_TO_NET
+            } else {
+                service::status_text(fresh.status)
+            };
+            fresh_rows.push((key, fresh, status, current));
+        }
+        Ok(Judged {
+            pass,
+            watermark,
+            targets,
+            has_open_tasks,
+            fresh_rows,
+        })
+    }
+}
+
+impl Judged {
+    /// The rows to write, in the order of `fresh_rows`.
+    fn new_rows<'a>(&'a self, reason: &'a str, now: Timestamp) -> Vec<NewResult<'a>> {
+        self.fresh_rows
+            .iter()
+            .map(|(_, fresh, status, current)| NewResult {
+                pass: &self.pass,
+                netted: fresh,
+                status,
+                watermark: self.watermark,
+                now,
+                reason: if current.is_some() { reason } else { "" },
+            })
+            .collect()
+    }
+
+    /// Supersedes the rows replaced by the written ones (`ids`, in the order of
+    /// [`Judged::new_rows`]) and does the recount work they call for.
+    fn finish<T: NettingTx + ?Sized>(
+        self,
+        tx: &T,
+        ids: Vec<i64>,
+        reason: &str,
+        now: Timestamp,
+    ) -> Result<NetOutcome, StoreError> {
+        let Self {
+            pass,
+            watermark,
+            targets,
+            has_open_tasks,
+            fresh_rows,
+        } = self;
+        if ids.len() != fresh_rows.len() {
+            return Err(anyhow::anyhow!(
+                "the store wrote {} of {} results of count {}",
+                ids.len(),
+                fresh_rows.len(),
+                pass.uid
+            )
+            .into());
+        }
+        let mut out = NetOutcome::default();
+        let mut changed = Vec::new();
+        for ((key, fresh, _, current), id) in fresh_rows.into_iter().zip(ids) {
+            if let Some(c) = &current {
+                tx.supersede(c.id, id)?;
+            }
+            out.written.push(id);
+            changed.push((key, id, fresh.verdict, current.is_some()));
+        }
+
+        let sent = Sent { watermark, now };
+        if pass.recount_task.is_none() {
+            // The out-of-tolerance keys of a first count go to one recount of the bin.
+            let mut out_keys = Vec::new();
+            for (key, id, verdict, _) in &changed {
+                if *verdict == VERDICT_OUT && tx.live_tasks_of(pass.id, key)? == 0 {
+                    out_keys.push(*id);
+                }
+            }
+            out.tasks
+                .extend(recount::send(tx, &pass, &out_keys, false, &sent)?);
+            // Re-checked keys of this pass changed under their recounts: re-apply them.
+            let mut decide = Vec::new();
+            for (key, _, _, renetted) in &changed {
+                // A key netted for the first time has had no result a recount could re-check.
+                if *renetted && let Some(rc) = tx.latest_recount_pass(pass.id, key)? {
+                    decide.push((key.clone(), rc));
+                }
+            }
+            out.tasks
+                .extend(decide_recounts(tx, pass.id, &decide, &sent)?);
+            // Only a task open before this netting or sent by it can have become unneeded.
+            if has_open_tasks || !out.tasks.is_empty() {
+                withdraw_unneeded(tx, pass.id, reason, now)?;
+            }
+        } else if !pass.withdrawn {
+            // A recount pass decides every key its task re-checks.
+            let mut by_first: BTreeMap<i64, Vec<(ItemLot, i64)>> = BTreeMap::new();
+            for (key, first_pass) in &targets {
+                by_first
+                    .entry(*first_pass)
+                    .or_default()
+                    .push((key.clone(), pass.id));
+            }
+            for (first_pass, decide) in by_first {
+                out.tasks
+                    .extend(decide_recounts(tx, first_pass, &decide, &sent)?);
+                withdraw_unneeded(tx, first_pass, reason, now)?;
+            }
+        }
+        Ok(out)
+    }
 }
 
 /// Decides keys of the first count `first_pass` from recount passes (`(key, recount
@@ -600,9 +860,19 @@ pub fn after_sync<T: NettingTx + ?Sized>(
             .or_default()
             .push(e.event_uid.clone());
     }
-    let mut out = NetOutcome::default();
-    for (pass_uid, events) in touched {
-        let Some((pass_id, netted_before)) = tx.done_pass_by_uid(pass_uid)? else {
+    let uids: Vec<&str> = touched.keys().copied().collect();
+    let found = tx.done_passes_by_uid(&uids)?;
+    if found.len() != uids.len() {
+        return Err(anyhow::anyhow!(
+            "the store looked up {} of {} counts",
+            found.len(),
+            uids.len()
+        )
+        .into());
+    }
+    let mut passes = Vec::new();
+    for ((pass_uid, events), found) in touched.into_iter().zip(found) {
+        let Some((pass_id, netted_before)) = found else {
             continue;
         };
         let reason = if netted_before {
@@ -613,9 +883,17 @@ pub fn after_sync<T: NettingTx + ?Sized>(
         } else {
             String::new()
         };
-        out.add(net(tx, pass_id, None, &reason, now)?);
+        passes.push((pass_id, reason));
     }
-    Ok(out)
+    let jobs: Vec<NetJob<'_>> = passes
+        .iter()
+        .map(|(pass, reason)| NetJob {
+            pass: *pass,
+            only: None,
+            reason,
+        })
+        .collect();
+    net_many(tx, &jobs, now)
 }
 
 /// A movement just written, as the re-net needs it.
@@ -661,15 +939,26 @@ pub fn after_movements<T: NettingTx + ?Sized>(
             }
         }
     }
-    for ((pass, key), uids) in due {
-        let only: HashSet<ItemLot> = [key].into_iter().collect();
-        let reason = format!(
-            "{} recorded after the count, stamped within its reach (event time − source \
-             uncertainty ≤ bin done + clock uncertainty)",
-            name_ids("movement", &uids)
-        );
-        out.add(net(tx, pass, Some(&only), &reason, now)?);
-    }
+    let due: Vec<(i64, HashSet<ItemLot>, String)> = due
+        .into_iter()
+        .map(|((pass, key), uids)| {
+            let reason = format!(
+                "{} recorded after the count, stamped within its reach (event time − source \
+                 uncertainty ≤ bin done + clock uncertainty)",
+                name_ids("movement", &uids)
+            );
+            (pass, [key].into_iter().collect(), reason)
+        })
+        .collect();
+    let jobs: Vec<NetJob<'_>> = due
+        .iter()
+        .map(|(pass, only, reason)| NetJob {
+            pass: *pass,
+            only: Some(only),
+            reason,
+        })
+        .collect();
+    out.add(net_many(tx, &jobs, now)?);
     Ok(out)
 }
 

@@ -8,7 +8,7 @@ use super::tx::{PgTx, WATERMARK_SQL, watermark_row};
 use crate::accounts::audit::{AuditEvent, AuditTx};
 use crate::master::SiteId;
 use crate::netting::pass::{
-    CurrentResult, ItemFacts, ItemLot, KeyRead, NettingTx, NewResult, OpenTask, PassRead,
+    CurrentResult, ItemFacts, ItemLot, KeyRead, KeysAsk, NettingTx, NewResult, OpenTask, PassRead,
 };
 use crate::netting::recount::{
     DayList, NewRecountTask, PlacementRead, Rechecked, RecountTx, RunLoad,
@@ -101,7 +101,10 @@ pub(super) const SOURCES_SQL: &str = sources_sql!("$1");
 /// A pass with its bin, counter and task. The task's fields are read by its key in
 /// subqueries (as in `rechecked_sql`): a join may keep a plan that scans every task, made
 /// while the table was small.
-const PASS_SQL: &str = "select p.id, p.uid, p.site_id, p.bin_id, b.code, p.task_id,
+macro_rules! pass_sql {
+    ($which:literal) => {
+        concat!(
+            "select p.id, p.uid, p.site_id, p.bin_id, b.code, p.task_id,
             (select t.est_s from count_task t where t.id = p.task_id), u.name,
             p.first_at, p.done_at, p.uncertainty_ms,
             (select t.id from count_task t where t.id = p.task_id and t.recount_of is not null),
@@ -110,7 +113,13 @@ const PASS_SQL: &str = "select p.id, p.uid, p.site_id, p.bin_id, b.code, p.task_
             p.held
      from count_pass p join bin b on b.id = p.bin_id
      join user_account u on u.id = p.user_id
-     where p.id = $1";
+     where p.id ",
+            $which
+        )
+    };
+}
+
+const PASS_SQL: &str = pass_sql!("= $1");
 
 const COUNTED_SQL: &str = "select l.item_id, l.lot, sum(l.qty)::bigint, max(l.at) from count_line l
      where l.pass_id = $1
@@ -265,6 +274,121 @@ impl NettingTx for PgTx<'_> {
         }))
     }
 
+    /// Seven statements for every pass at once, sent together, and one more a recount
+    /// pass (the keys its task re-checks).
+    fn pass_reads(&self, passes: &[i64]) -> Result<Vec<Option<PassRead>>, StoreError> {
+        if passes.len() < 2 {
+            return passes.iter().map(|&p| self.pass_read(p)).collect();
+        }
+        let p: &[&(dyn ToSql + Sync)] = &[&passes];
+        let (facts, settings, timings, watermark, counted, bin_keys, netted, open) = self
+            .together("netting: passes' reads", async {
+                tokio::try_join!(
+                    self.rows(pass_sql!("= any($1)"), p),
+                    self.rows(
+                        "select tol_a_units, tol_a_bp, tol_a_value_minor, tol_b_units, tol_b_bp,
+                                tol_b_value_minor, tol_c_units, tol_c_bp, tol_c_value_minor,
+                                auto_adjust, manager_value_minor, bulk_value_minor, site_id
+                         from netting_settings
+                         where site_id in (select site_id from count_pass where id = any($1))",
+                        p
+                    ),
+                    self.rows(
+                        "select source, uncertainty_ms, posting_lag_ms, site_id from source_timing
+                         where site_id in (select site_id from count_pass where id = any($1))
+                         order by source collate \"C\"",
+                        p
+                    ),
+                    self.rows(WATERMARK_SQL, &[]),
+                    self.rows(
+                        "select l.item_id, l.lot, sum(l.qty)::bigint, max(l.at), l.pass_id
+                         from count_line l
+                         where l.pass_id = any($1)
+                           and not exists (select 1 from count_line_undo u where u.line_uid = l.uid)
+                         group by l.pass_id, l.item_id, l.lot",
+                        p
+                    ),
+                    self.rows(
+                        "select b.item_id, b.lot, p.id from count_pass p
+                         join balance b on b.bin_id = p.bin_id where p.id = any($1)",
+                        p
+                    ),
+                    self.rows(
+                        "select item_id, lot, pass_id from count_result
+                         where pass_id = any($1) and superseded_by is null",
+                        p
+                    ),
+                    self.rows(
+                        "select distinct r.pass_id
+                         from count_result r join count_task_recheck k on k.result_id = r.id
+                         join count_task t on t.id = k.task_id
+                         where r.pass_id = any($1)
+                           and t.withdrawn_at is null and t.status <> 'done'
+                           and not exists (select 1 from count_pass p
+                                           where p.task_id = t.id and p.done_at is not null)",
+                        p
+                    ),
+                )
+            })?;
+        let watermark = watermark_row(&watermark)?;
+        // Rows grouped by the id in their last column.
+        let by = |rows: Vec<Row>, col: usize| -> Result<HashMap<i64, Vec<Row>>, StoreError> {
+            let mut m: HashMap<i64, Vec<Row>> = HashMap::new();
+            for r in rows {
+                m.entry(r.try_get(col)?).or_default().push(r);
+            }
+            Ok(m)
+        };
+        let mut settings = by(settings, 12)?;
+        let mut timings = by(timings, 3)?;
+        let mut counted = by(counted, 4)?;
+        let mut bin_keys = by(bin_keys, 2)?;
+        let mut netted = by(netted, 2)?;
+        let open: BTreeSet<i64> = open
+            .iter()
+            .map(|r| r.try_get(0))
+            .collect::<Result<_, _>>()?;
+        let mut facts: HashMap<i64, PassFacts> = facts
+            .iter()
+            .map(|r| pass_row(r).map(|f| (f.id, f)))
+            .collect::<Result<_, _>>()?;
+        let mut sites: HashMap<i64, (NettingSettings, Vec<SourceTimingRow>)> = HashMap::new();
+        passes
+            .iter()
+            .map(|pass| {
+                let Some(facts) = facts.remove(pass) else {
+                    return Ok(None);
+                };
+                let site = facts.site.0;
+                let (settings, timings) = match sites.entry(site) {
+                    std::collections::hash_map::Entry::Occupied(e) => e.get().clone(),
+                    std::collections::hash_map::Entry::Vacant(e) => {
+                        let s = settings_row(
+                            settings.remove(&site).and_then(|v| v.into_iter().next()),
+                        )?;
+                        let t = source_rows(timings.remove(&site).unwrap_or_default())?;
+                        e.insert((s, t)).clone()
+                    }
+                };
+                let rechecked = match facts.recount_task {
+                    Some(task) => self.rechecked_keys(task)?,
+                    None => Vec::new(),
+                };
+                Ok(Some(PassRead {
+                    settings,
+                    timings,
+                    watermark,
+                    counted: counted_rows(counted.remove(pass).unwrap_or_default())?,
+                    bin_keys: item_lots(bin_keys.remove(pass).unwrap_or_default())?,
+                    netted: item_lots(netted.remove(pass).unwrap_or_default())?,
+                    rechecked,
+                    has_open_tasks: open.contains(pass),
+                    facts,
+                }))
+            })
+            .collect()
+    }
+
     fn netting_settings(&self, site: SiteId) -> Result<NettingSettings, StoreError> {
         settings_row(self.query_opt(SETTINGS_SQL, &[&site.0])?)
     }
@@ -376,8 +500,8 @@ impl NettingTx for PgTx<'_> {
         .collect()
     }
 
-    /// Every key at once: three statements a pass instead of three a key, sent together,
-    /// since a round trip to the server costs more than the index look-ups it carries.
+    /// Every key at once: three statements a pass instead of three a key (see
+    /// [`NettingTx::keys_facts_many`]).
     fn keys_facts(
         &self,
         bin: i64,
@@ -386,51 +510,91 @@ impl NettingTx for PgTx<'_> {
         from: Timestamp,
         to: Timestamp,
     ) -> Result<Vec<KeyRead>, StoreError> {
-        if keys.is_empty() {
-            return Ok(Vec::new());
+        let ask = KeysAsk {
+            bin,
+            keys,
+            before,
+            from,
+            to,
+        };
+        Ok(self
+            .keys_facts_many(std::slice::from_ref(&ask))?
+            .pop()
+            .unwrap_or_default())
+    }
+
+    /// Every key of every bin at once: three statements sent together, since a round trip
+    /// to the server, and the planning of a statement, cost more than the index look-ups
+    /// it carries. Each key travels with its bin and its times.
+    fn keys_facts_many(&self, asks: &[KeysAsk<'_>]) -> Result<Vec<Vec<KeyRead>>, StoreError> {
+        let n: usize = asks.iter().map(|a| a.keys.len()).sum();
+        if n == 0 {
+            return Ok(asks.iter().map(|_| Vec::new()).collect());
         }
-        let items: Vec<i64> = keys.iter().map(|k| k.0).collect();
-        let lots: Vec<&str> = keys.iter().map(|k| k.1.as_str()).collect();
-        let by_item: &[&(dyn ToSql + Sync)] = &[&items];
-        let by_key_before: &[&(dyn ToSql + Sync)] = &[&bin, &items, &lots, &before.0];
-        let by_key_within: &[&(dyn ToSql + Sync)] = &[&bin, &items, &lots, &from.0, &to.0];
-        let (item_rows, balance_rows, move_rows) =
-            self.together("netting: a bin's keys", async {
-                tokio::try_join!(
-                    self.rows(
-                        "select i.id, i.sku, i.unit_cost_minor,
+        let mut bins = Vec::with_capacity(n);
+        let mut items = Vec::with_capacity(n);
+        let mut lots: Vec<&str> = Vec::with_capacity(n);
+        let (mut before, mut from, mut to) = (
+            Vec::with_capacity(n),
+            Vec::with_capacity(n),
+            Vec::with_capacity(n),
+        );
+        for a in asks {
+            for k in a.keys {
+                bins.push(a.bin);
+                items.push(k.0);
+                lots.push(k.1.as_str());
+                before.push(a.before.0);
+                from.push(a.from.0);
+                to.push(a.to.0);
+            }
+        }
+        let mut distinct = items.clone();
+        distinct.sort_unstable();
+        distinct.dedup();
+        let by_item: &[&(dyn ToSql + Sync)] = &[&distinct];
+        let by_key_before: &[&(dyn ToSql + Sync)] = &[&bins, &items, &lots, &before];
+        let by_key_within: &[&(dyn ToSql + Sync)] = &[&bins, &items, &lots, &from, &to];
+        let (item_rows, balance_rows, move_rows) = self.together("netting: bins' keys", async {
+            tokio::try_join!(
+                self.rows(
+                    "select i.id, i.sku, i.unit_cost_minor,
                             (select c.class from item_class c where c.item_id = i.id
                              order by c.run_id desc limit 1)
                      from item i where i.id = any($1)",
-                        by_item,
-                    ),
-                    // As balance_as_of, for each key (`ord` numbers them from 1).
-                    self.rows(
-                        "select k.ord,
+                    by_item,
+                ),
+                // As balance_as_of, for each key (`ord` numbers them from 1).
+                self.rows(
+                    "select k.ord,
                             (coalesce(s.qty, 0)
                              + coalesce((select sum(m.qty) from movement m
-                                         where m.bin_id = $1 and m.item_id = k.item
+                                         where m.bin_id = k.bin and m.item_id = k.item
                                            and m.lot = k.lot
                                            and m.event_at > coalesce(s.at, -9223372036854775808)
-                                           and m.event_at <= $4), 0))::bigint
-                     from unnest($2::bigint[], $3::text[]) with ordinality as k(item, lot, ord)
+                                           and m.event_at <= k.before_at), 0))::bigint
+                     from unnest($1::bigint[], $2::bigint[], $3::text[], $4::bigint[])
+                          with ordinality as k(bin, item, lot, before_at, ord)
                      left join lateral (select at, qty from balance_snapshot
-                                        where bin_id = $1 and item_id = k.item and lot = k.lot
-                                          and at <= $4
+                                        where bin_id = k.bin and item_id = k.item
+                                          and lot = k.lot and at <= k.before_at
                                         order by at desc limit 1) s on true",
-                        by_key_before,
-                    ),
-                    self.rows(
-                        "select k.ord, m.id, m.uid, m.event_at, m.qty, m.kind, m.source
-                     from unnest($2::bigint[], $3::text[]) with ordinality as k(item, lot, ord)
-                     join movement m on m.bin_id = $1 and m.item_id = k.item and m.lot = k.lot
-                                    and m.event_at >= $4 and m.event_at <= $5
+                    by_key_before,
+                ),
+                self.rows(
+                    "select k.ord, m.id, m.uid, m.event_at, m.qty, m.kind, m.source
+                     from unnest($1::bigint[], $2::bigint[], $3::text[], $4::bigint[],
+                                 $5::bigint[])
+                          with ordinality as k(bin, item, lot, from_at, to_at, ord)
+                     join movement m on m.bin_id = k.bin and m.item_id = k.item
+                                    and m.lot = k.lot
+                                    and m.event_at >= k.from_at and m.event_at <= k.to_at
                      order by k.ord, m.event_at, m.id",
-                        by_key_within,
-                    ),
-                )
-            })?;
-        let mut facts: std::collections::HashMap<i64, ItemFacts> = Default::default();
+                    by_key_within,
+                ),
+            )
+        })?;
+        let mut facts: HashMap<i64, ItemFacts> = HashMap::with_capacity(item_rows.len());
         for r in item_rows {
             let class: Option<String> = r.try_get(3)?;
             facts.insert(
@@ -442,15 +606,21 @@ impl NettingTx for PgTx<'_> {
                 },
             );
         }
-        let mut balances = vec![0i64; keys.len()];
+        // A key's place in the arrays, from the 1-based `ord` the server sent back.
+        let place = |r: &Row| -> Result<usize, StoreError> {
+            let ord: i64 = r.try_get(0)?;
+            usize::try_from(ord - 1)
+                .ok()
+                .filter(|&i| i < n)
+                .ok_or_else(|| anyhow::anyhow!("key number {ord} of {n} read back").into())
+        };
+        let mut balances = vec![0i64; n];
         for r in balance_rows {
-            let ord: i64 = r.try_get(0)?;
-            balances[ord as usize - 1] = r.try_get(1)?;
+            balances[place(&r)?] = r.try_get(1)?;
         }
-        let mut moves: Vec<Vec<LedgerMove>> = vec![Vec::new(); keys.len()];
+        let mut moves: Vec<Vec<LedgerMove>> = vec![Vec::new(); n];
         for r in move_rows {
-            let ord: i64 = r.try_get(0)?;
-            moves[ord as usize - 1].push(LedgerMove {
+            moves[place(&r)?].push(LedgerMove {
                 id: r.try_get(1)?,
                 uid: r.try_get(2)?,
                 event_at: Timestamp(r.try_get(3)?),
@@ -459,20 +629,26 @@ impl NettingTx for PgTx<'_> {
                 source: r.try_get(6)?,
             });
         }
-        keys.iter()
+        let mut reads = items
+            .iter()
             .zip(balances.into_iter().zip(moves))
-            .map(|(key, (balance_before, moves))| {
+            .map(|(item, (balance_before, moves))| {
                 let item = facts
-                    .get(&key.0)
+                    .get(item)
                     .cloned()
-                    .ok_or_else(|| anyhow::anyhow!("no item {}", key.0))?;
+                    .ok_or_else(|| anyhow::anyhow!("no item {item}"))?;
                 Ok(KeyRead {
                     item,
                     balance_before,
                     moves,
                 })
             })
-            .collect()
+            .collect::<Result<Vec<_>, StoreError>>()?
+            .into_iter();
+        Ok(asks
+            .iter()
+            .map(|a| reads.by_ref().take(a.keys.len()).collect())
+            .collect())
     }
 
     fn insert_result(&self, r: &NewResult<'_>) -> Result<i64, StoreError> {
@@ -481,22 +657,16 @@ impl NettingTx for PgTx<'_> {
     }
 
     /// Every row in one statement (the columns as arrays): one round trip and one
-    /// executor run for a pass's results. The rows of one call are of one pass, each key
-    /// at most once, so the ids are matched to the rows by key.
+    /// executor run for the results of a pass, or of several. The rows of one call name
+    /// each key of a pass at most once, so the ids are matched to the rows by pass and key.
     fn insert_results(&self, rows: &[NewResult<'_>]) -> Result<Vec<i64>, StoreError> {
-        let Some(first) = rows.first() else {
+        if rows.is_empty() {
             return Ok(Vec::new());
-        };
-        let pass = first.pass;
-        if let Some(r) = rows.iter().find(|r| r.pass.id != pass.id) {
-            return Err(anyhow::anyhow!(
-                "results of passes {} and {} in one insert",
-                pass.id,
-                r.pass.id
-            )
-            .into());
         }
         let col = |f: &dyn Fn(&NewResult<'_>) -> i64| rows.iter().map(f).collect::<Vec<i64>>();
+        let passes = col(&|r| r.pass.id);
+        let sites = col(&|r| r.pass.site.0);
+        let bins = col(&|r| r.pass.bin_id);
         let items = col(&|r| r.netted.item_id);
         let lots: Vec<&str> = rows.iter().map(|r| r.netted.lot.as_str()).collect();
         let classes: Vec<Option<&str>> = rows
@@ -525,15 +695,16 @@ impl NettingTx for PgTx<'_> {
             "insert into count_result (pass_id, site_id, bin_id, item_id, lot, class, counted,
                  f_star, variance, status, verdict, unit_cost_minor, counted_at, window_start,
                  window_end, evidence, watermark, settles_at, settled, renet_reason, computed_at)
-             select $1, $2, $3, v.* from unnest($4::bigint[], $5::text[], $6::text[],
-                 $7::bigint[], $8::bigint[], $9::bigint[], $10::text[], $11::text[],
-                 $12::bigint[], $13::bigint[], $14::bigint[], $15::bigint[], $16::text[],
-                 $17::bigint[], $18::bigint[], $19::boolean[], $20::text[], $21::bigint[]) v
-             returning id, item_id, lot",
+             select v.* from unnest($1::bigint[], $2::bigint[], $3::bigint[], $4::bigint[],
+                 $5::text[], $6::text[], $7::bigint[], $8::bigint[], $9::bigint[], $10::text[],
+                 $11::text[], $12::bigint[], $13::bigint[], $14::bigint[], $15::bigint[],
+                 $16::text[], $17::bigint[], $18::bigint[], $19::boolean[], $20::text[],
+                 $21::bigint[]) v
+             returning id, pass_id, item_id, lot",
             &[
-                &pass.id,
-                &pass.site.0,
-                &pass.bin_id,
+                &passes,
+                &sites,
+                &bins,
                 &items,
                 &lots,
                 &classes,
@@ -554,19 +725,19 @@ impl NettingTx for PgTx<'_> {
                 &now,
             ],
         )?;
-        let mut ids: HashMap<(i64, String), i64> = HashMap::with_capacity(inserted.len());
+        let mut ids: HashMap<(i64, i64, String), i64> = HashMap::with_capacity(inserted.len());
         for r in &inserted {
-            ids.insert((r.try_get(1)?, r.try_get(2)?), r.try_get(0)?);
+            ids.insert((r.try_get(1)?, r.try_get(2)?, r.try_get(3)?), r.try_get(0)?);
         }
         rows.iter()
             .map(|r| {
-                let key = (r.netted.item_id, r.netted.lot.clone());
+                let key = (r.pass.id, r.netted.item_id, r.netted.lot.clone());
                 ids.remove(&key).ok_or_else(|| {
                     anyhow::anyhow!(
-                        "the insert of pass {}'s results returned no id for item {} lot {:?}",
-                        pass.id,
+                        "the insert of results returned no id for pass {} item {} lot {:?}",
                         key.0,
-                        key.1
+                        key.1,
+                        key.2
                     )
                     .into()
                 })
@@ -590,6 +761,21 @@ impl NettingTx for PgTx<'_> {
         )?
         .map(|r| Ok((r.try_get(0)?, r.try_get(1)?)))
         .transpose()
+    }
+
+    fn done_passes_by_uid(&self, uids: &[&str]) -> Result<Vec<Option<(i64, bool)>>, StoreError> {
+        if uids.len() < 2 {
+            return uids.iter().map(|u| self.done_pass_by_uid(u)).collect();
+        }
+        let mut found: HashMap<String, (i64, bool)> = HashMap::with_capacity(uids.len());
+        for r in self.query(
+            "select p.uid, p.id, exists (select 1 from count_result r where r.pass_id = p.id)
+             from count_pass p where p.uid = any($1) and p.done_at is not null",
+            &[&uids],
+        )? {
+            found.insert(r.try_get(0)?, (r.try_get(1)?, r.try_get(2)?));
+        }
+        Ok(uids.iter().map(|u| found.get(*u).copied()).collect())
     }
 
     fn widest_done_uncertainty(&self, site: SiteId) -> Result<Option<i64>, StoreError> {
