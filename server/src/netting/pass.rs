@@ -694,15 +694,24 @@ impl Judged {
 
         let sent = Sent { watermark, now };
         if pass.recount_task.is_none() {
-            // The out-of-tolerance keys of a first count go to one recount of the bin.
+            // The out-of-tolerance keys of a first count go to one recount of the bin. A
+            // key netted for the first time has no earlier result a task could re-check
+            // (a key with results always has a current one), so no live task.
             let mut out_keys = Vec::new();
-            for (key, id, verdict, _) in &changed {
-                if *verdict == VERDICT_OUT && tx.live_tasks_of(pass.id, key)? == 0 {
+            for (key, id, verdict, renetted) in &changed {
+                if *verdict == VERDICT_OUT && (!*renetted || tx.live_tasks_of(pass.id, key)? == 0) {
                     out_keys.push(*id);
                 }
             }
-            out.tasks
-                .extend(recount::send(tx, &pass, &out_keys, false, &sent)?);
+            // With no task open before this netting there is none to add these keys to.
+            out.tasks.extend(recount::send(
+                tx,
+                &pass,
+                &out_keys,
+                false,
+                &sent,
+                has_open_tasks,
+            )?);
             // Re-checked keys of this pass changed under their recounts: re-apply them.
             let mut decide = Vec::new();
             for (key, _, _, renetted) in &changed {
@@ -711,12 +720,13 @@ impl Judged {
                     decide.push((key.clone(), rc));
                 }
             }
-            out.tasks
-                .extend(decide_recounts(tx, pass.id, &decide, &sent)?);
-            // Only a task open before this netting or sent by it can have become unneeded.
-            if has_open_tasks || !out.tasks.is_empty() {
+            let decided = decide_recounts(tx, pass.id, &decide, &sent)?;
+            // Only a task open before this netting or sent by it can have become unneeded,
+            // and a recount sent just now re-checks keys that are out: it is needed.
+            if has_open_tasks || !decided.is_empty() {
                 withdraw_unneeded(tx, pass.id, reason, now)?;
             }
+            out.tasks.extend(decided);
         } else if !pass.withdrawn {
             // A recount pass decides every key its task re-checks.
             let mut by_first: BTreeMap<i64, Vec<(ItemLot, i64)>> = BTreeMap::new();
@@ -759,7 +769,7 @@ pub fn decide_recounts<T: NettingTx + ?Sized>(
     let pass = tx
         .pass_facts(first_pass)?
         .ok_or_else(|| anyhow::anyhow!("count pass {first_pass} vanished"))?;
-    recount::send(tx, &pass, &supervise, true, sent)
+    recount::send(tx, &pass, &supervise, true, sent, true)
 }
 
 /// Applies the recount rule to a first result from the recount pass's result of the same

@@ -100,7 +100,8 @@ pub trait RecountTx {
     fn set_list_warnings(&self, list: i64, warnings: &[String]) -> Result<(), StoreError>;
 
     /// What placing `results` (first results of pass `pass`, in bin `bin` at `site`)
-    /// needs to know first.
+    /// needs to know first; the open task only when `find_open` (the caller may know
+    /// there is none).
     fn placement_read(
         &self,
         site: SiteId,
@@ -108,13 +109,18 @@ pub trait RecountTx {
         bin: i64,
         results: &[i64],
         supervisor: bool,
+        find_open: bool,
     ) -> Result<PlacementRead, StoreError> {
         let mut classes = Vec::new();
         for r in results {
             classes.extend(self.result_class(*r)?);
         }
         Ok(PlacementRead {
-            open_task: self.open_task_of(pass, supervisor)?,
+            open_task: if find_open {
+                self.open_task_of(pass, supervisor)?
+            } else {
+                None
+            },
             zone: self.site_zone(site)?,
             classes,
             bin_lines: self.bin_lines(bin)?,
@@ -149,18 +155,28 @@ pub trait RecountTx {
 
 /// Sends first results of one pass to a recount (or a supervisor count) of its bin: into
 /// the open task of that kind no phone has begun yet, if the pass has one, else into a
-/// new task. Returns the task added, if one was.
+/// new task. Returns the task added, if one was. `may_have_open` is false when the caller
+/// knows the pass has no task open (not done, not withdrawn, not counted against): then
+/// there is none to look for.
 pub fn send<T: RecountTx + ?Sized>(
     tx: &T,
     pass: &PassFacts,
     results: &[i64],
     supervisor: bool,
     sent: &Sent,
+    may_have_open: bool,
 ) -> Result<Vec<i64>, StoreError> {
     if results.is_empty() {
         return Ok(Vec::new());
     }
-    let read = tx.placement_read(pass.site, pass.id, pass.bin_id, results, supervisor)?;
+    let read = tx.placement_read(
+        pass.site,
+        pass.id,
+        pass.bin_id,
+        results,
+        supervisor,
+        may_have_open,
+    )?;
     match read.open_task {
         Some((task, list)) => {
             tx.link_rechecks(task, results)?;

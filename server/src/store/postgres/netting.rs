@@ -1080,6 +1080,7 @@ impl RecountTx for PgTx<'_> {
         bin: i64,
         results: &[i64],
         supervisor: bool,
+        find_open: bool,
     ) -> Result<PlacementRead, StoreError> {
         let results = results.to_vec();
         let by_pass: &[&(dyn ToSql + Sync)] = &[&pass, &supervisor];
@@ -1088,7 +1089,13 @@ impl RecountTx for PgTx<'_> {
         let by_bin: &[&(dyn ToSql + Sync)] = &[&bin];
         let (open, zone, classes, lines) = self.together("recount: placement reads", async {
             tokio::try_join!(
-                self.rows(OPEN_TASK_SQL, by_pass),
+                async {
+                    if find_open {
+                        self.rows(OPEN_TASK_SQL, by_pass).await
+                    } else {
+                        Ok(Vec::new())
+                    }
+                },
                 self.rows(ZONE_SQL, by_site),
                 self.rows(
                     "select class from count_result where id = any($1)",
