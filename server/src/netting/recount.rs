@@ -140,6 +140,12 @@ pub trait RecountTx {
             None => Ok(None),
         }
     }
+    /// Sets a new task's detail and raises its list's version: the last two writes of
+    /// placing it. By default one after the other.
+    fn describe_task(&self, task: i64, detail: &str, list: i64) -> Result<(), StoreError> {
+        self.set_task_detail(task, detail)?;
+        self.bump_list(list)
+    }
     /// Writes a new recount task and links `results` to it; returns its id and what it
     /// re-checks, oldest first.
     fn write_recount_task(
@@ -285,7 +291,6 @@ fn add_task<T: RecountTx + ?Sized>(
         results,
     )?;
     let detail = detail(&rechecked, supervisor);
-    tx.set_task_detail(task, &detail)?;
     let warning = warning.map(|w| {
         if supervisor {
             format!(
@@ -306,7 +311,7 @@ fn add_task<T: RecountTx + ?Sized>(
             tx.set_list_warnings(list.id, &all)?;
         }
     }
-    tx.bump_list(list.id)?;
+    tx.describe_task(task, &detail, list.id)?;
     Ok(task)
 }
 

@@ -957,6 +957,16 @@ impl RecountTx for PgTx<'_> {
         Ok(())
     }
 
+    /// Both writes in one statement.
+    fn describe_task(&self, task: i64, detail: &str, list: i64) -> Result<(), StoreError> {
+        self.execute(
+            "with d as (update count_task set detail = $2 where id = $1)
+             update count_list set version = version + 1 where id = $3",
+            &[&task, &detail, &list],
+        )?;
+        Ok(())
+    }
+
     fn day_list(&self, site: SiteId, day: &str) -> Result<Option<DayList>, StoreError> {
         self.query_opt(DAY_LIST_SQL, &[&site.0, &day])?
             .map(|r| day_list_row(&r))
