@@ -180,6 +180,8 @@ const LEFT: f64 = 84.0;
 const RIGHT: f64 = 120.0;
 const TOP: f64 = 40.0;
 const BOTTOM: f64 = 44.0;
+/// Least distance between the two end labels' baselines (a line of 12-unit text).
+const LABEL_GAP: f64 = 15.0;
 
 /// Draws the cumulative error value each policy found, week by week: one line each,
 /// told apart by dash and marker as well as colour; the proposal drawn heavier.
@@ -244,7 +246,19 @@ pub fn svg(rows: &[WeekRow], shown: Shown, title: &str) -> String {
         b = TOP + ph,
         r = LEFT + pw
     );
-    for (p, vals) in &series {
+    // End labels beside each line's last point, pushed apart so they never overlap.
+    let ends: Vec<f64> = series
+        .iter()
+        .map(|(_, v)| y(v.last().copied().unwrap_or(0.0)) + 4.0)
+        .collect();
+    let mut label_y = ends.clone();
+    if (ends[0] - ends[1]).abs() < LABEL_GAP {
+        let mid = (ends[0] + ends[1]) / 2.0;
+        let (upper, lower) = if ends[0] <= ends[1] { (0, 1) } else { (1, 0) };
+        label_y[upper] = mid - LABEL_GAP / 2.0;
+        label_y[lower] = mid + LABEL_GAP / 2.0;
+    }
+    for (n, (p, vals)) in series.iter().enumerate() {
         let (colour, dash) = match p {
             Policy::Abc => ("#50616b", "6 4"),
             Policy::Risk => ("#9a3b2f", "none"),
@@ -284,7 +298,7 @@ pub fn svg(rows: &[WeekRow], shown: Shown, title: &str) -> String {
             s,
             r##"<text x="{lx:.1}" y="{ly:.1}" fill="{colour}">{name} {amount}</text></g>"##,
             lx = LEFT + pw + 8.0,
-            ly = y(last) + if *p == Policy::Abc { 14.0 } else { -6.0 },
+            ly = label_y[n],
             name = escape(&name(*p, shown)),
             amount = escape(&money(last * 100.0))
         );

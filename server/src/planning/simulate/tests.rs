@@ -227,3 +227,31 @@ fn the_table_marks_the_proposal_and_the_chart_has_one_series_a_policy() {
     assert_eq!(svg.matches("<g class=\"series\"").count(), 2);
     assert!(svg.contains("a &lt;title&gt; &amp; more"));
 }
+
+#[test]
+fn the_end_labels_stand_apart_when_both_policies_found_the_same() {
+    let row = |policy| WeekRow {
+        week: 1,
+        policy,
+        ira: 1.0,
+        value_accuracy: 1.0,
+        errors_found: 2,
+        error_value_found: 5_000.0,
+        mean_age_days: Some(1.0),
+        standing_error_value: 0.0,
+        safety_stock_value: 0.0,
+        minutes_used: 10.0,
+        bins_counted: 3,
+    };
+    let svg = report::svg(&[row(Policy::Abc), row(Policy::Risk)], Shown::Both, "t");
+    let ys: Vec<f64> = svg
+        .split("<text ")
+        .filter(|t| t.contains(">abc 50.00<") || t.contains(">risk 50.00<"))
+        .map(|t| {
+            let y = t.split("y=\"").nth(1).unwrap();
+            y[..y.find('"').unwrap()].parse().unwrap()
+        })
+        .collect();
+    assert_eq!(ys.len(), 2, "{svg}");
+    assert!((ys[0] - ys[1]).abs() >= 15.0 - 1e-9, "{ys:?}");
+}
