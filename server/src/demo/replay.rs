@@ -195,13 +195,18 @@ pub async fn replay(
         .max(1) as f64;
     let mean_pick = (1.0 + f64::from(MAX_PICK)) / 2.0;
 
+    // Each item's keys, read once: (bin, lot, book).
+    let mut keys_of: Vec<Vec<(usize, &str, i64)>> = vec![Vec::new(); input.items.len()];
+    for (bin, item, lot, book, _) in &keys {
+        keys_of[*item].push((*bin, lot, *book));
+    }
     let mut demo_items = Vec::with_capacity(input.items.len());
     let mut sim_items = Vec::with_capacity(input.items.len());
     for (i, it) in input.items.iter().enumerate() {
         let w = worth_of.get(&it.id);
-        let booked: BTreeSet<usize> = keys
+        let booked: BTreeSet<usize> = keys_of[i]
             .iter()
-            .filter(|k| k.1 == i && k.3 != 0)
+            .filter(|k| k.2 != 0)
             .map(|k| k.0)
             .collect();
         let held: Vec<usize> = it.bins.iter().map(|&b| b as usize).collect();
@@ -222,7 +227,7 @@ pub async fn replay(
                 description: String::new(),
                 base_unit: String::new(),
                 unit_cost_minor: unit_cost,
-                lot_tracked: keys.iter().any(|k| k.1 == i && !k.2.is_empty()),
+                lot_tracked: keys_of[i].iter().any(|k| !k.1.is_empty()),
                 group: String::new(),
                 packs: Vec::new(),
             },
