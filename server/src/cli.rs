@@ -118,6 +118,42 @@ enum Command {
         #[arg(long)]
         save: bool,
     },
+    /// Replay a demo site's weeks with its injected record errors and count them
+    /// under `abc` and `risk` side by side at the same minutes: week by week IRA, value
+    /// accuracy, errors found, their value and age, and the planner's safety stock;
+    /// writes an SVG chart of the error value each found. Needs the demo's shelf truth
+    /// (a site made by `cairn demo` or `cairn demo-data`). Reads the database only.
+    SimulateCounting {
+        #[arg(long, env = "CAIRN_DB")]
+        db: DbLocation,
+        #[arg(long)]
+        site: String,
+        /// Weeks to simulate, from the site's today (1 to 520).
+        #[arg(long, default_value_t = 12)]
+        weeks: u32,
+        /// Counter-minutes a working day, the same for both policies (1 to 48000).
+        #[arg(long, default_value_t = 240)]
+        minutes: u32,
+        /// The policy proposed: both are always simulated; this one is marked `*` in the
+        /// table and drawn heavier in the chart (`both`: neither is marked).
+        #[arg(long, value_enum, default_value_t = ProposedPolicy::Both)]
+        policy: ProposedPolicy,
+        /// Seed of the error process (the same seed gives byte-identical output).
+        #[arg(long, default_value_t = 22)]
+        seed: u64,
+        /// Least counts a year of class A, B, C under `risk`, as `blend` sets them
+        /// (0: no floor), e.g. `--floors 12,4,1`.
+        #[arg(long, value_delimiter = ',', default_values_t = [0, 0, 0])]
+        floors: Vec<u32>,
+        /// The run's first day, YYYY-MM-DD: demand is read over the 28 days before it and
+        /// the book and shelf as they stand now (default: today at the site).
+        #[arg(long)]
+        start: Option<chrono::NaiveDate>,
+        /// Where to write the SVG chart (default: `simulate-counting-SITE.svg` next to
+        /// the database file, or in the current folder for a PostgreSQL URL).
+        #[arg(long)]
+        svg: Option<PathBuf>,
+    },
     /// Print the accuracy report of a period, or the buffer of every item.
     Report {
         /// accuracy: IRA, value accuracy, adjustments, compliance, coverage;
@@ -260,6 +296,13 @@ enum ConfigCommand {
 enum ReportKind {
     Accuracy,
     Buffer,
+}
+
+#[derive(Clone, Copy, clap::ValueEnum)]
+enum ProposedPolicy {
+    Abc,
+    Risk,
+    Both,
 }
 
 #[derive(Clone, Copy, clap::ValueEnum)]
@@ -699,6 +742,60 @@ async fn dispatch(command: Command) -> anyhow::Result<()> {
                 PlanFormat::Csv => out!("{}", planning::service::to_csv(&view)?)?,
                 PlanFormat::Json => outln!("{}", serde_json::to_string_pretty(&view)?)?,
             }
+            Ok(())
+        }
+        Command::SimulateCounting {
+            db,
+            site,
+            weeks,
+            minutes,
+            policy,
+            seed,
+            floors,
+            start,
+            svg,
+        } => {
+            use crate::planning::simulate::{Policy, report};
+            db.must_exist("")?;
+            let floors: [u32; 3] = floors
+                .try_into()
+                .map_err(|_| anyhow::anyhow!("--floors takes three numbers: A,B,C"))?;
+            let svg = svg.unwrap_or_else(|| {
+                let name = format!("simulate-counting-{site}.svg");
+                match &db {
+                    DbLocation::File(path) => path
+                        .parent()
+                        .map_or_else(|| PathBuf::from(&name), |d| d.join(&name)),
+                    _ => PathBuf::from(&name),
+                }
+            });
+            let state = open(db)?;
+            let store = state.store.as_ref();
+            let site = site_of(store, &site).await?;
+            let spec = demo::replay::ReplaySpec {
+                weeks,
+                minutes,
+                seed,
+                floors,
+                start,
+                show: std::io::IsTerminal::is_terminal(&std::io::stderr()),
+            };
+            let run = demo::replay::replay(store, &site, &spec).await?;
+            let shown = match policy {
+                ProposedPolicy::Abc => report::Shown::Proposal(Policy::Abc),
+                ProposedPolicy::Risk => report::Shown::Proposal(Policy::Risk),
+                ProposedPolicy::Both => report::Shown::Both,
+            };
+            let title = format!(
+                "Error value found, cumulative: abc and risk at {minutes} counter-minutes a working day ({})",
+                site.code
+            );
+            std::fs::write(&svg, report::svg(&run.rows, shown, &title))
+                .map_err(|e| anyhow::anyhow!("cannot write the chart to {}: {e}", svg.display()))?;
+            out!("{}", run.preamble(site.code.as_str(), &spec))?;
+            out!("{}", report::table(&run.rows, shown))?;
+            out!("{}", run.note())?;
+            outln!("chart written to {}", svg.display())?;
             Ok(())
         }
         Command::Net {

@@ -8,6 +8,7 @@ pub mod accounts;
 mod catalog;
 pub mod count_day;
 pub mod history;
+pub mod replay;
 mod sim;
 
 use crate::master::codes::{BinCode, Sku, ZoneCode};

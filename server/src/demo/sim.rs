@@ -88,6 +88,34 @@ impl<'a> World<'a> {
         }
     }
 
+    /// Sets up a warehouse that already holds `keys` (bin, item, lot, book, shelf) on
+    /// `start`, history day 0, with nothing on order; its days run from 1.
+    pub fn resume(
+        items: &'a [DemoItem],
+        bins: &'a [NewBin],
+        rng: ChaCha8Rng,
+        start: NaiveDate,
+        keys: &[(usize, usize, String, i64, i64)],
+    ) -> Self {
+        let mut world = Self {
+            items,
+            bins,
+            rng,
+            start,
+            stock: HashMap::new(),
+            on_order: vec![None; items.len()],
+            doc_seq: 0,
+            unrecorded_picks: 0,
+            miskeyed_picks: 0,
+            misputaways: 0,
+            truth_log: None,
+        };
+        for (bin, item, lot, book, truth) in keys {
+            world.put(*bin, *item, lot, None, *book, *truth);
+        }
+        world
+    }
+
     /// Returns the date of history day `day`.
     pub fn date(&self, day: u32) -> NaiveDate {
         self.start

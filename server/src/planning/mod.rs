@@ -20,6 +20,7 @@ pub mod risk;
 pub mod routes;
 pub mod service;
 pub mod short_pick;
+pub mod simulate;
 pub mod walk;
 
 use abc::{AbcRule, Class};

@@ -298,6 +298,16 @@ pub struct ShelfRow {
     pub qty: i64,
 }
 
+/// One key's book and true shelf quantity on a demo site (ids as the planner reads them).
+#[derive(Debug, Clone, PartialEq, Eq)]
+pub struct ShelfKey {
+    pub bin: i64,
+    pub item: i64,
+    pub lot: String,
+    pub book: i64,
+    pub truth: i64,
+}
+
 /// The operations the rest of Cairn needs from storage.
 #[async_trait]
 pub trait Store: AccountStore + AccuracyStore + ReviewStore + Send + Sync + 'static {
@@ -375,6 +385,9 @@ pub trait Store: AccountStore + AccuracyStore + ReviewStore + Send + Sync + 'sta
     -> Result<HistoryPage, StoreError>;
     /// Replaces the demo site's true shelf quantities.
     async fn put_demo_shelf(&self, site: SiteId, rows: Vec<ShelfRow>) -> Result<(), StoreError>;
+    /// Reads every key of a demo site with a book or a shelf quantity (balance and
+    /// `demo_shelf` side by side), by bin id, item id and lot; empty on other sites.
+    async fn shelf_keys(&self, site: SiteId) -> Result<Vec<ShelfKey>, StoreError>;
 
     // The day's count list.
 

@@ -721,6 +721,41 @@ pub async fn put_packs(
         .await
 }
 
+/// See [`crate::store::Store::shelf_keys`].
+pub async fn shelf_keys(
+    store: &PgStore,
+    site: SiteId,
+) -> Result<Vec<crate::store::ShelfKey>, StoreError> {
+    let c = store.client().await?;
+    Ok(rows(
+        &c,
+        "select k.bin_id, k.item_id, k.lot,
+                coalesce((select qty from balance x
+                          where x.bin_id = k.bin_id and x.item_id = k.item_id and x.lot = k.lot), 0),
+                coalesce((select qty from demo_shelf s
+                          where s.bin_id = k.bin_id and s.item_id = k.item_id and s.lot = k.lot), 0)
+         from (select bin_id, item_id, lot from balance
+               union select bin_id, item_id, lot from demo_shelf) k
+         join bin b on b.id = k.bin_id
+         where b.site_id = $1
+           and exists (select 1 from demo_shelf s join bin sb on sb.id = s.bin_id
+                       where sb.site_id = $1)
+         order by k.bin_id, k.item_id, k.lot collate \"C\"",
+        &[&site.0],
+    )
+    .await?
+    .iter()
+    .map(|r| crate::store::ShelfKey {
+        bin: r.get(0),
+        item: r.get(1),
+        lot: r.get(2),
+        book: r.get(3),
+        truth: r.get(4),
+    })
+    .filter(|k| k.book != 0 || k.truth != 0)
+    .collect())
+}
+
 /// See [`crate::store::Store::put_demo_shelf`].
 pub async fn put_demo_shelf(
     store: &PgStore,

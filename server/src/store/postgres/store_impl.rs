@@ -176,6 +176,10 @@ impl Store for PgStore {
         super::master::put_demo_shelf(self, site, rows).await
     }
 
+    async fn shelf_keys(&self, site: SiteId) -> Result<Vec<crate::store::ShelfKey>, StoreError> {
+        super::master::shelf_keys(self, site).await
+    }
+
     async fn planning_settings(&self, site: SiteId) -> Result<Settings, StoreError> {
         super::planning::planning_settings(self, site).await
     }

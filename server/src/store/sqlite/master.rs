@@ -612,6 +612,41 @@ pub fn put_packs(
     Ok(rows.len())
 }
 
+/// The keys of a demo site with book and shelf quantities; no shelf rows, no keys.
+const SHELF_KEYS_SQL: &str = "select k.bin_id, k.item_id, k.lot,
+        coalesce((select qty from balance x
+                  where x.bin_id = k.bin_id and x.item_id = k.item_id and x.lot = k.lot), 0),
+        coalesce((select qty from demo_shelf s
+                  where s.bin_id = k.bin_id and s.item_id = k.item_id and s.lot = k.lot), 0)
+     from (select bin_id, item_id, lot from balance
+           union select bin_id, item_id, lot from demo_shelf) k
+     join bin b on b.id = k.bin_id
+     where b.site_id = ?1
+       and exists (select 1 from demo_shelf s join bin sb on sb.id = s.bin_id where sb.site_id = ?1)
+     order by k.bin_id, k.item_id, k.lot";
+
+/// See [`crate::store::Store::shelf_keys`].
+pub fn shelf_keys(
+    conn: &Connection,
+    site: SiteId,
+) -> Result<Vec<crate::store::ShelfKey>, StoreError> {
+    let mut q = conn.prepare_cached(SHELF_KEYS_SQL)?;
+    let rows = q.query_map([site.0], |r| {
+        Ok(crate::store::ShelfKey {
+            bin: r.get(0)?,
+            item: r.get(1)?,
+            lot: r.get(2)?,
+            book: r.get(3)?,
+            truth: r.get(4)?,
+        })
+    })?;
+    Ok(rows
+        .collect::<rusqlite::Result<Vec<_>>>()?
+        .into_iter()
+        .filter(|k| k.book != 0 || k.truth != 0)
+        .collect())
+}
+
 /// Replaces a demo site's true shelf quantities.
 pub fn put_demo_shelf(tx: &Transaction, site: SiteId, rows: &[ShelfRow]) -> Result<(), StoreError> {
     tx.execute(

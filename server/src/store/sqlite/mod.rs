@@ -406,6 +406,10 @@ impl Store for SqliteStore {
             .await
     }
 
+    async fn shelf_keys(&self, site: SiteId) -> Result<Vec<crate::store::ShelfKey>, StoreError> {
+        self.readers.run(move |c| master::shelf_keys(c, site)).await
+    }
+
     async fn planning_settings(&self, site: SiteId) -> Result<Settings, StoreError> {
         self.readers.run(move |c| planning::settings(c, site)).await
     }

@@ -1,0 +1,307 @@
+//! `cairn simulate-counting`: `abc` and `risk` counting the demo site's injected
+//! errors side by side. Each test generates a small Kestrel Lane site with its counting
+//! history into its own store (a SQLite file, or a PostgreSQL database of its own when
+//! `CAIRN_TEST_STORE` is set) and replays it through the library or the real binary.
+
+mod common;
+
+use cairn::demo::replay::{Replay, ReplaySpec, replay};
+use cairn::demo::{self, DemoSpec};
+use cairn::master::{NewSite, Site, SiteCode};
+use cairn::planning::simulate::report::{self, Shown};
+use cairn::planning::simulate::{Policy, WeekRow};
+use cairn::store::{DbLocation, Store, StoreOptions};
+use chrono::NaiveDate;
+use std::process::Command;
+use std::sync::Arc;
+
+/// The last day of the small site's history; the simulation starts the day after.
+fn end() -> NaiveDate {
+    NaiveDate::from_ymd_opt(2026, 6, 30).unwrap()
+}
+
+fn start() -> NaiveDate {
+    end().succ_opt().unwrap()
+}
+
+struct DemoSite {
+    _dir: tempfile::TempDir,
+    _pg: Option<common::PgTestDb>,
+    db: String,
+    store: Arc<dyn Store>,
+    site: Site,
+}
+
+/// A small demo site (60 items, 150 bins, 120 days, the last 4 weeks counted).
+async fn demo_site(seed: u64) -> DemoSite {
+    let dir = tempfile::tempdir().unwrap();
+    let pg = common::PgTestDb::create();
+    let db = match &pg {
+        Some(pg) => pg.url.clone(),
+        None => dir.path().join("demo.db").display().to_string(),
+    };
+    let store = cairn::store::open(&DbLocation::parse(&db).unwrap(), StoreOptions::default())
+        .expect("the test store opens");
+    let spec = DemoSpec {
+        items: 60,
+        bins: 150,
+        days: 120,
+        end: end(),
+        history_weeks: 4,
+        ..DemoSpec::standard(seed)
+    };
+    demo::generate(store.as_ref(), &spec, false)
+        .await
+        .expect("the demo site generates");
+    let site = store
+        .site(&SiteCode::parse(demo::DEMO_SITE).unwrap())
+        .await
+        .unwrap()
+        .unwrap();
+    DemoSite {
+        _dir: dir,
+        _pg: pg,
+        db,
+        store,
+        site,
+    }
+}
+
+fn spec(weeks: u32, minutes: u32, seed: u64) -> ReplaySpec {
+    ReplaySpec {
+        weeks,
+        minutes,
+        seed,
+        floors: [0, 0, 0],
+        start: Some(start()),
+        show: false,
+    }
+}
+
+async fn run(s: &DemoSite, spec: &ReplaySpec) -> Replay {
+    replay(s.store.as_ref(), &s.site, spec)
+        .await
+        .expect("the demo site replays")
+}
+
+#[tokio::test]
+async fn the_same_seed_gives_the_same_weeks_and_another_seed_does_not() {
+    let s = demo_site(11).await;
+    let one = run(&s, &spec(6, 60, 5)).await;
+    let two = run(&s, &spec(6, 60, 5)).await;
+    let other = run(&s, &spec(6, 60, 6)).await;
+    assert_eq!(one.rows.len(), 12, "six weeks, two policies");
+    assert_eq!(one.rows, two.rows);
+    assert_eq!(
+        report::table(&one.rows, Shown::Both),
+        report::table(&two.rows, Shown::Both)
+    );
+    assert_ne!(one.rows, other.rows, "another seed injects other errors");
+    // The world injected errors of all three kinds over the six weeks.
+    assert!(
+        one.unrecorded_picks + one.miskeyed_picks > 0,
+        "{} unrecorded, {} mis-keyed",
+        one.unrecorded_picks,
+        one.miskeyed_picks
+    );
+    // It started from the site's book and the demo's shelf truth: some keys were wrong.
+    assert!(one.wrong_at_start > 0, "{}", one.wrong_at_start);
+}
+
+fn figures(rows: &[WeekRow]) -> (report::Totals, report::Totals) {
+    (
+        report::totals(rows, Policy::Abc),
+        report::totals(rows, Policy::Risk),
+    )
+}
+
+/// The issue's expectation: at equal minutes, `risk` finds more of the injected error
+/// value than `abc`. On the demo site it does not (see DEVELOPERS.md, "Counting
+/// simulation", for why: the fitted growth is flat for most items, so the optimiser
+/// leaves them at its longest interval). Kept as written and ignored, so the day the
+/// model learns what it misses, `cargo test -- --ignored` says so.
+#[tokio::test]
+#[ignore = "risk finds less injected error value than abc on the demo site: flat growth fits (b = 0) park items at 730 days; see DEVELOPERS.md"]
+async fn at_equal_minutes_risk_finds_more_injected_error_value_than_abc() {
+    let s = demo_site(11).await;
+    let r = run(&s, &spec(12, 60, 22)).await;
+    let (abc, risk) = figures(&r.rows);
+    eprintln!("{}", report::verdict(&abc, &risk));
+    eprintln!("abc {abc:?}\nrisk {risk:?}");
+    assert!(
+        risk.error_value_found > abc.error_value_found,
+        "{}",
+        report::verdict(&abc, &risk)
+    );
+}
+
+/// Why the expectation above fails, asserted so that it is noticed when it stops being
+/// true: items whose fitted error growth is flat (`b = 0`: no more error for waiting
+/// longer) are left by `risk` at the longest interval, never counted, while `abc`
+/// counts them by class; the error left standing under `risk` sits on such items.
+#[tokio::test]
+async fn risk_leaves_items_with_a_flat_growth_fit_uncounted_and_their_errors_standing() {
+    let s = demo_site(11).await;
+    let r = run(&s, &spec(12, 60, 22)).await;
+    let (abc, risk) = figures(&r.rows);
+    eprintln!(
+        "demo site, 12 weeks at 60 minutes: {}; final value accuracy abc {:.4}, risk {:.4}; \
+         risk parked {} items with flat growth at the longest interval",
+        report::verdict(&abc, &risk),
+        abc.final_value_accuracy,
+        risk.final_value_accuracy,
+        r.flat_parked
+    );
+    assert!(r.flat_parked > 0, "some item has a flat fit and is parked");
+    assert!(
+        r.flat_parked_error_value > 0.0,
+        "the error value risk leaves standing sits partly on parked items"
+    );
+}
+
+#[tokio::test]
+async fn risk_keeps_to_the_class_floors_when_given_them() {
+    let s = demo_site(11).await;
+    let mut with = spec(4, 60, 22);
+    with.floors = [24, 12, 4];
+    let r = run(&s, &with).await;
+    assert_eq!(r.flat_parked, 0, "no item is left past its floor");
+    assert!(
+        r.risk_longest_days <= 365.0 / 4.0 + 1e-9,
+        "{}",
+        r.risk_longest_days
+    );
+    // Minutes: neither policy spends more than the working days' minutes.
+    for row in &r.rows {
+        assert!(row.minutes_used <= 5.0 * 60.0 + 1e-9, "{row:?}");
+    }
+}
+
+fn cairn(args: &[&str]) -> std::process::Output {
+    Command::new(env!("CARGO_BIN_EXE_cairn"))
+        .args(args)
+        .output()
+        .expect("the cairn binary runs")
+}
+
+#[tokio::test]
+async fn the_command_prints_both_policies_week_by_week_and_writes_a_chart_of_both() {
+    let s = demo_site(12).await;
+    let dir = tempfile::tempdir().unwrap();
+    let svg = dir.path().join("chart.svg");
+    let svg_arg = svg.display().to_string();
+    let start = start().to_string();
+    let args = [
+        "simulate-counting",
+        "--db",
+        &s.db,
+        "--site",
+        "KLN",
+        "--weeks",
+        "3",
+        "--minutes",
+        "60",
+        "--policy",
+        "risk",
+        "--start",
+        &start,
+        "--svg",
+        &svg_arg,
+    ];
+    let out = cairn(&args);
+    let text = String::from_utf8_lossy(&out.stdout).to_string();
+    assert!(
+        out.status.success(),
+        "{text}{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    let chart = std::fs::read_to_string(&svg).unwrap();
+    // Three weeks, two policies: six rows, the proposal marked.
+    let rows: Vec<&str> = text
+        .lines()
+        .filter(|l| {
+            let mut w = l.split_whitespace();
+            w.next().is_some_and(|n| n.parse::<u32>().is_ok())
+                && w.next()
+                    .is_some_and(|p| p.starts_with("abc") || p.starts_with("risk"))
+        })
+        .collect();
+    assert_eq!(rows.len(), 6, "{text}");
+    assert_eq!(rows.iter().filter(|l| l.contains("risk*")).count(), 3);
+    for head in [
+        "IRA",
+        "value acc",
+        "errors",
+        "age (d)",
+        "safety stock",
+        "minutes",
+    ] {
+        assert!(text.contains(head), "{head}: {text}");
+    }
+    assert!(text.contains("at equal minutes"), "{text}");
+    assert!(text.contains("seed 22"), "the default seed is said: {text}");
+
+    // The chart is XML with one series per policy, a point per week after week 0.
+    let doc = roxmltree::Document::parse(&chart).expect("the chart is well-formed XML");
+    let series: Vec<roxmltree::Node> = doc
+        .descendants()
+        .filter(|n| n.attribute("class") == Some("series"))
+        .collect();
+    let policies: Vec<&str> = series
+        .iter()
+        .filter_map(|n| n.attribute("data-policy"))
+        .collect();
+    assert_eq!(policies, ["abc", "risk"]);
+    for g in &series {
+        let line = g
+            .children()
+            .find(|n| n.has_tag_name("polyline"))
+            .expect("each series has its line");
+        assert_eq!(
+            line.attribute("points").unwrap().split_whitespace().count(),
+            4
+        );
+    }
+
+    // The same seed gives byte-identical output and chart.
+    let again = cairn(&args);
+    assert_eq!(again.stdout, out.stdout);
+    assert_eq!(std::fs::read_to_string(&svg).unwrap(), chart);
+}
+
+#[tokio::test]
+async fn a_missing_site_a_site_without_shelf_truth_and_bad_figures_are_refused_clearly() {
+    let s = demo_site(13).await;
+    s.store
+        .create_site(NewSite {
+            code: SiteCode::parse("LIVE").unwrap(),
+            name: "A live site".into(),
+            time_zone: cairn::time::day::SiteZone::UTC,
+        })
+        .await
+        .unwrap();
+    let dir = tempfile::tempdir().unwrap();
+    let svg = dir.path().join("x.svg").display().to_string();
+    let cases: [(&[&str], &str); 5] = [
+        (&["--site", "NOPE"], "no site 'NOPE'"),
+        (&["--site", "LIVE"], "has no shelf truth"),
+        (&["--site", "KLN", "--minutes", "0"], "--minutes 0"),
+        (&["--site", "KLN", "--weeks", "0"], "--weeks 0"),
+        (
+            &["--site", "KLN", "--floors", "400,0,0"],
+            "floor of class A",
+        ),
+    ];
+    for (extra, says) in cases {
+        let mut args = vec!["simulate-counting", "--db", &s.db, "--svg", &svg];
+        args.extend_from_slice(extra);
+        let out = cairn(&args);
+        let err = String::from_utf8_lossy(&out.stderr);
+        assert!(!out.status.success(), "{extra:?}");
+        assert!(err.contains(says), "{extra:?}: {err}");
+    }
+    assert!(
+        !std::path::Path::new(&svg).exists(),
+        "no chart is written for a refused run"
+    );
+}
