@@ -128,8 +128,9 @@ pub struct PassWidening {
 }
 
 /// The queries and writes of a sync request; each method one query or one write, except
-/// the three that take a request's worth at once ([`SyncTx::facts`], [`SyncTx::holdings`],
-/// [`SyncTx::write_events`]), whose defaults call the one-at-a-time methods.
+/// the four that take a request's worth at once ([`SyncTx::swap_clock`], [`SyncTx::facts`],
+/// [`SyncTx::holdings`], [`SyncTx::write_events`]), whose defaults call the one-at-a-time
+/// methods.
 pub trait SyncTx {
     /// The stored event with this id: its canonical body and flags.
     fn stored_event(&self, uid: &str) -> Result<Option<(String, Vec<EventFlag>)>, StoreError>;
@@ -141,6 +142,18 @@ pub trait SyncTx {
         clock: &ClockSample,
         at: Timestamp,
     ) -> Result<(), StoreError>;
+    /// Saves a device's clock sample and returns the one its previous sync left, if any.
+    /// By default [`SyncTx::previous_clock`] then [`SyncTx::save_clock`].
+    fn swap_clock(
+        &self,
+        device: DeviceId,
+        clock: &ClockSample,
+        at: Timestamp,
+    ) -> Result<Option<Sampled>, StoreError> {
+        let previous = self.previous_clock(device)?;
+        self.save_clock(device, clock, at)?;
+        Ok(previous)
+    }
     fn pass_trust(&self, pass: i64) -> Result<PassTrust, StoreError>;
     /// Marks a pass held with `reason` unless it is held already.
     fn hold_pass(&self, pass: i64, reason: &str) -> Result<(), StoreError>;
@@ -235,9 +248,8 @@ pub fn apply_batch(tx: &dyn SyncTx, batch: &SyncBatch) -> Result<Vec<EventResult
     let mut device_step = None;
     if let Some(device) = batch.sender.device {
         device_step = tx
-            .previous_clock(device)?
+            .swap_clock(device, &batch.clock, batch.received_at)?
             .and_then(|prev| plausible::clock_step(prev, sample));
-        tx.save_clock(device, &batch.clock, batch.received_at)?;
     }
     let mut known = Known::read(tx, batch)?;
     // The passes this request added events to, with the places of those events' results.

@@ -265,6 +265,36 @@ impl SyncTx for PgTx<'_> {
         Ok(())
     }
 
+    /// One statement: the sample read in the snapshot the upsert does not change.
+    fn swap_clock(
+        &self,
+        device: DeviceId,
+        clock: &ClockSample,
+        at: Timestamp,
+    ) -> Result<Option<Sampled>, StoreError> {
+        self.query_opt(
+            "with previous as (
+                 select offset_ms, uncertainty_ms, sampled_at from device_clock
+                 where device_id = $1
+             ), saved as (
+                 insert into device_clock (device_id, offset_ms, uncertainty_ms, sampled_at)
+                 values ($1, $2, $3, $4)
+                 on conflict (device_id) do update set offset_ms = excluded.offset_ms,
+                     uncertainty_ms = excluded.uncertainty_ms, sampled_at = excluded.sampled_at
+             )
+             select offset_ms, uncertainty_ms, sampled_at from previous",
+            &[&device.0, &clock.offset_ms, &clock.uncertainty_ms, &at.0],
+        )?
+        .map(|r| {
+            Ok(Sampled {
+                offset_ms: r.try_get(0)?,
+                uncertainty_ms: r.try_get(1)?,
+                at: Timestamp(r.try_get(2)?),
+            })
+        })
+        .transpose()
+    }
+
     fn pass_trust(&self, pass: i64) -> Result<PassTrust, StoreError> {
         let r = self.query_one(
             "select held, first_at, done_at, clock_offset_ms, clock_uncertainty_ms,
