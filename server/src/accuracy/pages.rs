@@ -144,6 +144,7 @@ async fn accuracy_page(
     CurrentSite(site): CurrentSite,
     Params(q): Params<ReportParams>,
 ) -> Result<Html<String>, PageError> {
+    q.refuse(&["interval"])?;
     let r = report_for(&state, &site, &q).await?;
     let zones: Vec<String> = {
         let mut z: Vec<String> = state
@@ -551,9 +552,72 @@ struct BufferPage {
     r: BufferReport,
     class: String,
     terms: Vec<Term>,
+    whatif: Vec<WhatIfLine>,
+    asked: String,
+    unit_cost: String,
     daily: Vec<(String, i64)>,
     query: String,
     version: &'static str,
+}
+
+/// One row of the count-interval table, written for the page.
+struct WhatIfLine {
+    days: String,
+    mark: &'static str,
+    current: bool,
+    sigma_rec: String,
+    safety_stock: String,
+    order_point: i64,
+    ss_change: String,
+    op_change: String,
+    value_change: String,
+}
+
+/// Writes a change with its sign: `+1.50`, `−0.25`, `0`.
+fn signed(v: f64, places: usize) -> String {
+    let text = format!("{:.places$}", v.abs());
+    if text.trim_start_matches(['0', '.']).is_empty() {
+        "0".into()
+    } else if v < 0.0 {
+        format!("−{text}")
+    } else {
+        format!("+{text}")
+    }
+}
+
+fn whatif_lines(r: &BufferReport) -> Vec<WhatIfLine> {
+    r.counting
+        .rows
+        .iter()
+        .map(|w| WhatIfLine {
+            days: if w.interval_days.fract() == 0.0 {
+                format!("{}", w.interval_days)
+            } else {
+                format!("{:.1}", w.interval_days)
+            },
+            mark: match (w.current, w.asked) {
+                (true, true) => "today, asked",
+                (true, false) => "today",
+                (false, true) => "asked",
+                (false, false) => "",
+            },
+            current: w.current,
+            sigma_rec: format!("{:.2}", w.sigma_rec),
+            safety_stock: format!("{:.2}", w.safety_stock),
+            order_point: w.order_point_units,
+            ss_change: signed(w.safety_stock_change, 2),
+            op_change: signed(w.order_point_units_change as f64, 0),
+            value_change: {
+                // Bounded by MAX_UNITS × the largest unit cost; rounding to whole minor units.
+                let minor = w.safety_stock_value_change_minor.round() as i64;
+                if minor > 0 {
+                    format!("+{}", money(minor))
+                } else {
+                    money(minor)
+                }
+            },
+        })
+        .collect()
 }
 
 fn terms(r: &BufferReport) -> Vec<Term> {
@@ -602,12 +666,21 @@ fn terms(r: &BufferReport) -> Vec<Term> {
             how: "0 means continuous review".into(),
         },
         Term {
+            symbol: "T",
+            name: "count interval (calendar days)",
+            value: format!("{:.2}", e.at_days),
+            how: format!(
+                "{}; the buffer is held through the count cycle, so σrec is taken just before the next count",
+                e.interval_source
+            ),
+        },
+        Term {
             symbol: "σkey",
-            name: "record error of one bin at age R",
+            name: "record error of one bin at age T",
             value: num(e.per_key_sd, 6),
             how: match (e.growth.a, e.growth.b) {
                 (Some(a), Some(b)) => format!(
-                    "sqrt(a + b·R) = sqrt({a:.6} + {b:.6} × {}) from {} repeat counts",
+                    "sqrt(a + b·T) = sqrt({a:.6} + {b:.6} × {:.2}) from {} repeat counts",
                     e.at_days, e.growth.points
                 ),
                 _ => e.growth.note.clone().unwrap_or_default(),
@@ -713,6 +786,9 @@ async fn buffer_page(
             .class
             .map_or("not classified".into(), |c| c.to_string()),
         terms: terms(&r),
+        whatif: whatif_lines(&r),
+        asked: q.interval.clone().unwrap_or_default(),
+        unit_cost: money(r.item.unit_cost_minor),
         daily: r
             .demand
             .daily
