@@ -349,3 +349,57 @@ async fn the_page_shows_the_rows_with_todays_marked_as_the_buffer() {
     );
     assert!(!l1.text.contains("<table class=\"grid intervals\">"));
 }
+
+#[tokio::test]
+async fn under_the_risk_policy_the_buffer_takes_the_interval_the_list_chooses() {
+    let app = site().await;
+    // The site's day (site T keeps UTC): the buffer reads the choice of today's list.
+    let today = chrono::Utc::now().date_naive().to_string();
+    app.post_ok(
+        &format!("/api/v1/sites/T/planning/abc?day={today}"),
+        &json!({}),
+    )
+    .await;
+    let (s, v) = app
+        .put(
+            "/api/v1/sites/T/planning/frequency-policy",
+            &json!({"policy": "risk"}),
+        )
+        .await;
+    assert_eq!(s, 200, "{v}");
+    let (s, list) = app
+        .post(
+            "/api/v1/sites/T/count-lists",
+            &json!({"day": today, "counters": 1, "minutes": 480, "fill": "capacity", "preview": true}),
+        )
+        .await;
+    assert_eq!(s, 200, "{list}");
+    let (s, r) = app.get(BUFFER).await;
+    assert_eq!(s, 200, "{r}");
+    let e = &r["record_error"];
+    assert_eq!(
+        e["interval_source"], "chosen by the site's risk policy",
+        "{e}"
+    );
+    let days = f(&e["at_days"]);
+    let task = list["tasks"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .find(|t| t["bin"] == "A-01-01-1")
+        .unwrap_or_else(|| panic!("S1's bin is on the list: {list}"));
+    // The list shows the interval to two decimals.
+    let chosen = f(&task["why"]["risk"]["interval_days"]);
+    assert_eq!((days * 100.0).round() / 100.0, chosen, "{task}");
+    assert_ne!(days, 365.0, "not the class interval");
+    close(&e["sigma_rec"], (days * 18.0 / 49.0).sqrt());
+    let now: Vec<&Value> = r["counting"]["rows"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .filter(|w| w["current"] == true)
+        .collect();
+    assert_eq!(now.len(), 1);
+    assert_eq!(now[0]["interval_days"], e["at_days"]);
+    assert_eq!(now[0]["safety_stock"], r["buffer"]["safety_stock"]);
+}

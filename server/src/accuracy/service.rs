@@ -541,24 +541,42 @@ pub struct CountInterval {
 }
 
 /// Returns each class's count interval under the site's planning settings.
-fn class_intervals(settings: &crate::planning::Settings, policy: Mode) -> [CountInterval; 3] {
+fn class_intervals(settings: &crate::planning::Settings) -> [CountInterval; 3] {
     let per_year = settings.frequency.per_year;
     Class::ALL.map(|c| {
         let n = per_year[c.index()].max(1);
         let counts = if n == 1 { "count" } else { "counts" };
-        let mut source = format!("class {c}: {n} {counts} a year");
-        if policy != Mode::Abc {
-            // The risk choice needs the whole site's plan; not read here yet.
-            source.push_str(&format!(
-                " (the site is on the {} policy; the buffer still takes the class interval)",
-                policy.as_str()
-            ));
-        }
         CountInterval {
             days: 365.0 / f64::from(n),
-            source,
+            source: format!("class {c}: {n} {counts} a year"),
         }
     })
+}
+
+/// Returns the item's interval: the one the risk policy chose for it, else its class's.
+fn interval_of(
+    item: &ItemRow,
+    classes: &[CountInterval; 3],
+    risk: Option<&(Mode, HashMap<String, f64>)>,
+) -> CountInterval {
+    let class = &classes[item.class.unwrap_or(Class::C).index()];
+    match risk {
+        None => class.clone(),
+        Some((mode, chosen)) => match chosen.get(&item.sku) {
+            Some(&days) => CountInterval {
+                days,
+                source: format!("chosen by the site's {} policy", mode.as_str()),
+            },
+            None => CountInterval {
+                days: class.days,
+                source: format!(
+                    "{} (the {} policy sets none for an item in no bin or dead stock)",
+                    class.source,
+                    mode.as_str()
+                ),
+            },
+        },
+    }
 }
 
 /// What a buffer period and window are: the last day of demand and its length.
@@ -608,8 +626,8 @@ pub async fn buffer_reports(
     asked_days: Option<u32>,
 ) -> Result<Vec<BufferReport>, ApiError> {
     let settings = store.accuracy_settings(site.id).await?;
-    let policy = store.frequency_policy(site.id).await?.policy;
-    let intervals = class_intervals(&store.planning_settings(site.id).await?, policy);
+    let classes = class_intervals(&store.planning_settings(site.id).await?);
+    let risk = crate::planning::service::risk_intervals(store, site, window.zone.today()).await?;
     let calendar = store.calendar(site.id).await?;
     let items = store.accuracy_items(site.id, sku.clone()).await?;
     if sku.is_some() && items.is_empty() {
@@ -677,7 +695,7 @@ pub async fn buffer_reports(
             });
         let rs = by_item.get(&item.sku).map_or(&[][..], Vec::as_slice);
         let figures = items::item_figures(&key_counts(rs)).map_err(internal)?;
-        let interval = intervals[item.class.unwrap_or(Class::C).index()].clone();
+        let interval = interval_of(&item, &classes, risk.as_ref());
         out.push(derive(
             &settings,
             item,
