@@ -285,6 +285,15 @@ async fn the_page_shows_the_rows_with_todays_marked_as_the_buffer() {
         html.contains("If it were counted at another interval"),
         "{html}"
     );
+    // The chart is drawn for both frames, one bar per row.
+    for frame in ["narrow", "wide"] {
+        let svg = html
+            .split(&format!("id=\"chart-intervals-{frame}\""))
+            .nth(1)
+            .and_then(|t| t.split("</svg>").next())
+            .unwrap_or_else(|| panic!("the {frame} chart is on the page"));
+        assert_eq!(svg.matches("<title>safety stock ").count(), 8, "{svg}");
+    }
     assert!(html.contains("From the item's own error growth (12 repeat counts of a bin)"));
     let table = html
         .split("<table class=\"grid intervals\">")

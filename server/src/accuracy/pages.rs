@@ -553,6 +553,7 @@ struct BufferPage {
     class: String,
     terms: Vec<Term>,
     whatif: Vec<WhatIfLine>,
+    whatif_chart: String,
     asked: String,
     unit_cost: String,
     daily: Vec<(String, i64)>,
@@ -583,6 +584,47 @@ fn signed(v: f64, places: usize) -> String {
     } else {
         format!("+{text}")
     }
+}
+
+/// Draws safety stock per count interval as bars, today's labelled; empty without rows.
+fn whatif_chart(r: &BufferReport, lines: &[WhatIfLine]) -> String {
+    if lines.is_empty() {
+        return String::new();
+    }
+    let x: Vec<String> = lines
+        .iter()
+        .map(|l| {
+            if l.current {
+                format!("{} d (today)", l.days)
+            } else {
+                format!("{} d", l.days)
+            }
+        })
+        .collect();
+    let series = [Bars {
+        label: "safety stock".into(),
+        values: r
+            .counting
+            .rows
+            .iter()
+            .map(|w| Some(w.safety_stock))
+            .collect(),
+    }];
+    let axis = chart::BarAxis {
+        fmt: &|v| format!("{v:.1}"),
+        min_step: 0.1,
+    };
+    chart::per_frame("chart-intervals", |frame, id| {
+        chart::bars(
+            frame,
+            id,
+            "Safety stock (units) if counted every … days",
+            &x,
+            &series,
+            &axis,
+            "No rows",
+        )
+    })
 }
 
 fn whatif_lines(r: &BufferReport) -> Vec<WhatIfLine> {
@@ -779,6 +821,7 @@ async fn buffer_page(
         "until={}&window_days={}",
         r.demand.to, r.demand.calendar_days
     );
+    let whatif = whatif_lines(&r);
     let page = BufferPage {
         me: Some(Me::at(&p, &site)),
         class: r
@@ -786,7 +829,8 @@ async fn buffer_page(
             .class
             .map_or("not classified".into(), |c| c.to_string()),
         terms: terms(&r),
-        whatif: whatif_lines(&r),
+        whatif_chart: whatif_chart(&r, &whatif),
+        whatif,
         asked: q.interval.clone().unwrap_or_default(),
         unit_cost: money(r.item.unit_cost_minor),
         daily: r
