@@ -327,6 +327,37 @@ async fn the_page_shows_the_rows_with_todays_marked_as_the_buffer() {
         f(&b["safety_stock"])
     )));
 
+    // The list's last column: the safety stock change at 30 days, L1 without one.
+    let list = app
+        .send(
+            Method::GET,
+            "/sites/T/buffer?until=2026-03-13&window_days=12&sort=monthly_ss_change",
+            &Auth::Session(session.clone()),
+            Body::Empty,
+        )
+        .await;
+    assert_eq!(list.status, 200, "{}", list.text);
+    let change = f(&row(&r, 30.0)["safety_stock_change"]);
+    assert!(change < 0.0);
+    let s1 = list
+        .text
+        .split("<code>S1</code>")
+        .nth(1)
+        .and_then(|t| t.split("</tr>").next())
+        .expect("S1 is listed");
+    assert!(s1.contains(&format!(">−{:.2}<", -change)), "{s1}");
+    let l1 = list
+        .text
+        .split("<code>L1</code>")
+        .nth(1)
+        .and_then(|t| t.split("</tr>").next())
+        .expect("L1 is listed");
+    assert!(l1.contains("<td class=\"n\">–</td><td>"), "{l1}");
+    assert!(
+        list.text.find("<code>S1</code>") < list.text.find("<code>L1</code>"),
+        "a missing value sorts last"
+    );
+
     let bad = app
         .send(
             Method::GET,

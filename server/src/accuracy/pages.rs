@@ -393,6 +393,7 @@ struct BufferLine {
     sigma_rec: String,
     safety_stock: String,
     order_point: String,
+    monthly: String,
     note: bool,
 }
 
@@ -456,6 +457,7 @@ async fn buffers_page(
                 order_point: r
                     .buffer
                     .map_or("–".into(), |b| b.order_point_units.to_string()),
+                monthly: r.monthly_ss_change().map_or("–".into(), |v| signed(v, 2)),
                 note: !r.notes.is_empty(),
             })
             .collect(),

@@ -518,6 +518,18 @@ pub struct BufferReport {
     pub notes: Vec<String>,
 }
 
+impl BufferReport {
+    /// Returns the safety stock change if the item were counted every 30 days
+    /// (negative: stock freed); `None` without what-if rows.
+    pub fn monthly_ss_change(&self) -> Option<f64> {
+        self.counting
+            .rows
+            .iter()
+            .find(|w| w.interval_days == whatif::MONTHLY_DAYS)
+            .map(|w| w.safety_stock_change)
+    }
+}
+
 /// How σrec, safety stock and the order point would change if the item were
 /// counted at another interval, every other input as today.
 #[derive(Debug, Clone, PartialEq, Serialize, utoipa::ToSchema)]

@@ -20,6 +20,8 @@ use serde::Serialize;
 
 /// Intervals every what-if table shows, in calendar days: a week to a year.
 pub const SHOWN_DAYS: [u32; 7] = [7, 14, 30, 60, 91, 182, 365];
+/// The shown interval the buffer list compares with: about a month.
+pub const MONTHLY_DAYS: f64 = 30.0;
 /// Longest interval a planner may ask about, in days (two years, as the
 /// interval chooser's longest).
 pub const MAX_ASKED_DAYS: u32 = 730;
