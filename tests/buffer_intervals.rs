@@ -235,6 +235,25 @@ async fn a_bad_interval_is_refused_by_name_and_an_item_without_history_shows_no_
         .await;
     assert_eq!(csv.status, 400, "{}", csv.text);
     assert!(csv.text.contains("interval"), "{}", csv.text);
+    // The CSV names the interval σrec was taken at, beside its terms.
+    let csv = app
+        .send(
+            Method::GET,
+            &format!("{BUFFER}&format=csv"),
+            &Auth::Bearer(root_token(&app).await),
+            Body::Empty,
+        )
+        .await;
+    assert_eq!(csv.status, 200, "{}", csv.text);
+    let mut reader = csv::Reader::from_reader(csv.text.as_bytes());
+    let headers = reader.headers().unwrap().clone();
+    let record = reader.records().next().unwrap().unwrap();
+    let cell = |name: &str| &record[headers.iter().position(|h| h == name).unwrap()];
+    assert_eq!(cell("count_interval_days"), "365");
+    assert_eq!(cell("count_interval_source"), "class C: 1 count a year");
+    assert!(
+        (cell("record_error_sd").parse::<f64>().unwrap() - (6570.0f64 / 49.0).sqrt()).abs() < 1e-9
+    );
 
     // L1 has a buffer but no counts: nothing invented, and the page says why.
     let (s, l1) = app
