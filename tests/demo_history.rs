@@ -317,7 +317,7 @@ async fn after_the_history_differences_wait_and_the_buffer_has_every_term() {
 
     let settings = g.store.accuracy_settings(g.site.id).await.unwrap();
     let window = DemandWindow::new(Some(end()), None, &settings, g.site.time_zone).unwrap();
-    let rows = service::buffer_reports(g.store.as_ref(), &g.site, window, None)
+    let rows = service::buffer_reports(g.store.as_ref(), &g.site, window, None, None)
         .await
         .unwrap();
     assert_eq!(rows.len(), 60);

@@ -1093,7 +1093,7 @@ async fn report(
             let settings = store.accuracy_settings(site.id).await?;
             let window = service::DemandWindow::new(until, None, &settings, site.time_zone)
                 .map_err(anyhow::Error::msg)?;
-            let r = service::buffer_reports(store, &site, window, None)
+            let r = service::buffer_reports(store, &site, window, None, None)
                 .await
                 .map_err(public)?;
             if let PlanFormat::Json = format {

@@ -23,7 +23,7 @@ fn class_key(item: &ItemRow) -> SortKey {
 }
 
 /// Columns of the buffer table, in the page's order.
-pub const BUFFER_COLUMNS: [Column<BufferReport>; 9] = [
+pub const BUFFER_COLUMNS: [Column<BufferReport>; 10] = [
     Column {
         name: "sku",
         label: "Item",
@@ -77,6 +77,12 @@ pub const BUFFER_COLUMNS: [Column<BufferReport>; 9] = [
         label: "Order point",
         numeric: true,
         key: |r| SortKey::num(r.buffer.map(|b| b.order_point_units as f64)),
+    },
+    Column {
+        name: "monthly_ss_change",
+        label: "SS change if counted every 30 d",
+        numeric: true,
+        key: |r| SortKey::num(r.monthly_ss_change()),
     },
 ];
 

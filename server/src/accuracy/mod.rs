@@ -3,7 +3,7 @@
 //! (`buffer`), accuracy figures over count results (`metrics`), per-item
 //! record error with its growth over time (`item_error`, pooled over an
 //! item's bins in `items`), daily demand (`demand`), due days for coverage
-//! (`coverage`), planner inputs and settings (`inputs`) and the trend charts
+//! (`coverage`), the buffer at other count intervals (`whatif`), planner inputs and settings (`inputs`) and the trend charts
 //! (`chart`); the long tables' filter, order and pages (`table`, the columns in `lists`). `service` joins them to the store (`store`), `report` writes
 //! tables as text and CSV, `routes` and `pages` are the HTTP side.
 
@@ -23,3 +23,4 @@ pub mod service;
 pub mod stats;
 pub mod store;
 pub mod table;
+pub mod whatif;

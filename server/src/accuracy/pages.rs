@@ -144,6 +144,7 @@ async fn accuracy_page(
     CurrentSite(site): CurrentSite,
     Params(q): Params<ReportParams>,
 ) -> Result<Html<String>, PageError> {
+    q.refuse(&["interval"])?;
     let r = report_for(&state, &site, &q).await?;
     let zones: Vec<String> = {
         let mut z: Vec<String> = state
@@ -392,6 +393,7 @@ struct BufferLine {
     sigma_rec: String,
     safety_stock: String,
     order_point: String,
+    monthly: String,
     note: bool,
 }
 
@@ -455,6 +457,7 @@ async fn buffers_page(
                 order_point: r
                     .buffer
                     .map_or("–".into(), |b| b.order_point_units.to_string()),
+                monthly: r.monthly_ss_change().map_or("–".into(), |v| signed(v, 2)),
                 note: !r.notes.is_empty(),
             })
             .collect(),
@@ -551,9 +554,114 @@ struct BufferPage {
     r: BufferReport,
     class: String,
     terms: Vec<Term>,
+    whatif: Vec<WhatIfLine>,
+    whatif_chart: String,
+    asked: String,
+    unit_cost: String,
     daily: Vec<(String, i64)>,
     query: String,
     version: &'static str,
+}
+
+/// One row of the count-interval table, written for the page.
+struct WhatIfLine {
+    days: String,
+    mark: &'static str,
+    current: bool,
+    sigma_rec: String,
+    safety_stock: String,
+    order_point: i64,
+    ss_change: String,
+    op_change: String,
+    value_change: String,
+}
+
+/// Writes a change with its sign: `+1.50`, `−0.25`, `0`.
+fn signed(v: f64, places: usize) -> String {
+    let text = format!("{:.places$}", v.abs());
+    if text.trim_start_matches(['0', '.']).is_empty() {
+        "0".into()
+    } else if v < 0.0 {
+        format!("−{text}")
+    } else {
+        format!("+{text}")
+    }
+}
+
+/// Draws safety stock per count interval as bars, today's labelled; empty without rows.
+fn whatif_chart(r: &BufferReport, lines: &[WhatIfLine]) -> String {
+    if lines.is_empty() {
+        return String::new();
+    }
+    let x: Vec<String> = lines
+        .iter()
+        .map(|l| {
+            if l.current {
+                format!("{} d (today)", l.days)
+            } else {
+                format!("{} d", l.days)
+            }
+        })
+        .collect();
+    let series = [Bars {
+        label: "safety stock".into(),
+        values: r
+            .counting
+            .rows
+            .iter()
+            .map(|w| Some(w.safety_stock))
+            .collect(),
+    }];
+    let axis = chart::BarAxis {
+        fmt: &|v| format!("{v:.1}"),
+        min_step: 0.1,
+    };
+    chart::per_frame("chart-intervals", |frame, id| {
+        chart::bars(
+            frame,
+            id,
+            "Safety stock (units) if counted every … days",
+            &x,
+            &series,
+            &axis,
+            "No rows",
+        )
+    })
+}
+
+fn whatif_lines(r: &BufferReport) -> Vec<WhatIfLine> {
+    r.counting
+        .rows
+        .iter()
+        .map(|w| WhatIfLine {
+            days: if w.interval_days.fract() == 0.0 {
+                format!("{}", w.interval_days)
+            } else {
+                format!("{:.1}", w.interval_days)
+            },
+            mark: match (w.current, w.asked) {
+                (true, true) => "today, asked",
+                (true, false) => "today",
+                (false, true) => "asked",
+                (false, false) => "",
+            },
+            current: w.current,
+            sigma_rec: format!("{:.2}", w.sigma_rec),
+            safety_stock: format!("{:.2}", w.safety_stock),
+            order_point: w.order_point_units,
+            ss_change: signed(w.safety_stock_change, 2),
+            op_change: signed(w.order_point_units_change as f64, 0),
+            value_change: {
+                // Bounded by MAX_UNITS × the largest unit cost; rounding to whole minor units.
+                let minor = w.safety_stock_value_change_minor.round() as i64;
+                if minor > 0 {
+                    format!("+{}", money(minor))
+                } else {
+                    money(minor)
+                }
+            },
+        })
+        .collect()
 }
 
 fn terms(r: &BufferReport) -> Vec<Term> {
@@ -602,12 +710,21 @@ fn terms(r: &BufferReport) -> Vec<Term> {
             how: "0 means continuous review".into(),
         },
         Term {
+            symbol: "T",
+            name: "count interval (calendar days)",
+            value: format!("{:.2}", e.at_days),
+            how: format!(
+                "{}; the buffer is held through the count cycle, so σrec is taken just before the next count",
+                e.interval_source
+            ),
+        },
+        Term {
             symbol: "σkey",
-            name: "record error of one bin at age R",
+            name: "record error of one bin at age T",
             value: num(e.per_key_sd, 6),
             how: match (e.growth.a, e.growth.b) {
                 (Some(a), Some(b)) => format!(
-                    "sqrt(a + b·R) = sqrt({a:.6} + {b:.6} × {}) from {} repeat counts",
+                    "sqrt(a + b·T) = sqrt({a:.6} + {b:.6} × {:.2}) from {} repeat counts",
                     e.at_days, e.growth.points
                 ),
                 _ => e.growth.note.clone().unwrap_or_default(),
@@ -706,6 +823,7 @@ async fn buffer_page(
         "until={}&window_days={}",
         r.demand.to, r.demand.calendar_days
     );
+    let whatif = whatif_lines(&r);
     let page = BufferPage {
         me: Some(Me::at(&p, &site)),
         class: r
@@ -713,6 +831,10 @@ async fn buffer_page(
             .class
             .map_or("not classified".into(), |c| c.to_string()),
         terms: terms(&r),
+        whatif_chart: whatif_chart(&r, &whatif),
+        whatif,
+        asked: q.interval.clone().unwrap_or_default(),
+        unit_cost: money(r.item.unit_cost_minor),
         daily: r
             .demand
             .daily

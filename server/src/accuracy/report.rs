@@ -201,7 +201,7 @@ pub fn items_table(items: &[ItemReport]) -> Table {
 }
 
 /// The columns of the buffer table, in order.
-pub const BUFFER_HEADERS: [&str; 34] = [
+pub const BUFFER_HEADERS: [&str; 36] = [
     "sku",
     "description",
     "class",
@@ -221,6 +221,8 @@ pub const BUFFER_HEADERS: [&str; 34] = [
     "service_level",
     "service_level_source",
     "z",
+    "count_interval_days",
+    "count_interval_source",
     "per_key_sd",
     "keys",
     "record_error_sd",
@@ -269,6 +271,8 @@ pub fn buffer_table(reports: &[BufferReport]) -> Table {
                     r.service_level.to_string(),
                     r.service_level_source.clone(),
                     opt(b.map(|b| b.z)),
+                    r.record_error.at_days.to_string(),
+                    r.record_error.interval_source.clone(),
                     opt(r.record_error.per_key_sd),
                     r.record_error.keys.to_string(),
                     r.record_error.sigma_rec.to_string(),

@@ -12,6 +12,7 @@ use super::service::{
     Period,
 };
 use super::table::{Column, RawView, View};
+use super::whatif;
 use crate::AppState;
 use crate::accounts::audit;
 use crate::error::ApiError;
@@ -68,6 +69,8 @@ pub struct ReportParams {
     pub format: Option<String>,
     pub table: Option<String>,
     pub window_days: Option<String>,
+    /// One item's buffer: a count interval to see it at, in days.
+    pub interval: Option<String>,
 }
 
 impl ReportParams {
@@ -82,6 +85,7 @@ impl ReportParams {
                 "zone" => &self.zone,
                 "table" => &self.table,
                 "window_days" => &self.window_days,
+                "interval" => &self.interval,
                 other => unreachable!("refuse is called with a report parameter, not {other}"),
             };
             if v.is_some() {
@@ -185,6 +189,21 @@ pub fn parse_day(name: &str, text: &str) -> Result<NaiveDate, ApiError> {
 }
 
 impl ReportParams {
+    /// Returns the count interval asked about, whole days from 1 to
+    /// [`whatif::MAX_ASKED_DAYS`].
+    pub fn asked_interval(&self) -> Result<Option<u32>, ApiError> {
+        let Some(text) = given(&self.interval) else {
+            return Ok(None);
+        };
+        match text.parse::<u32>() {
+            Ok(d) if (1..=whatif::MAX_ASKED_DAYS).contains(&d) => Ok(Some(d)),
+            _ => Err(ApiError::BadRequest(format!(
+                "interval: '{text}' is not a whole number of days from 1 to {}",
+                whatif::MAX_ASKED_DAYS
+            ))),
+        }
+    }
+
     fn day(&self, name: &str, v: &Option<String>) -> Result<Option<NaiveDate>, ApiError> {
         given(v).map(|t| parse_day(name, t)).transpose()
     }
@@ -280,7 +299,7 @@ async fn get_accuracy(
     CurrentSite(site): CurrentSite,
     Params(p): Params<ReportParams>,
 ) -> Result<Response, ApiError> {
-    p.refuse(&["window_days"])?;
+    p.refuse(&["window_days", "interval"])?;
     let csv = p.csv()?;
     let r = report_for(&state, &site, &p).await?;
     if !csv {
@@ -334,7 +353,7 @@ async fn get_item(
     Path((_, code)): Path<(String, String)>,
     Params(p): Params<ReportParams>,
 ) -> Result<Response, ApiError> {
-    p.refuse(&["window_days", "class", "zone", "table"])?;
+    p.refuse(&["window_days", "class", "zone", "table", "interval"])?;
     let csv = p.csv()?;
     let items = service::item_reports(
         state.store.as_ref(),
@@ -439,7 +458,13 @@ pub async fn buffers_for(
 ) -> Result<Vec<BufferReport>, ApiError> {
     let settings = state.store.accuracy_settings(site.id).await?;
     let window = p.window(&settings, site.time_zone)?;
-    service::buffer_reports(state.store.as_ref(), site, window, sku).await
+    let asked = p.asked_interval()?;
+    if asked.is_some() && sku.is_none() {
+        return Err(ApiError::BadRequest(
+            "interval: only one item's buffer takes a count interval to compare".into(),
+        ));
+    }
+    service::buffer_reports(state.store.as_ref(), site, window, sku, asked).await
 }
 
 async fn get_buffers(
@@ -467,6 +492,11 @@ async fn get_buffer(
 ) -> Result<Response, ApiError> {
     p.refuse(&["since", "class", "zone", "table"])?;
     let csv = p.csv()?;
+    if csv && p.interval.is_some() {
+        return Err(ApiError::BadRequest(
+            "interval: the CSV holds the buffer alone; the rows at other count intervals are in the JSON".into(),
+        ));
+    }
     let reports = buffers_for(&state, &site, &p, Some(sku(&code)?)).await?;
     if csv {
         return csv_response(&site, &report::buffer_table(&reports));

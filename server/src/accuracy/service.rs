@@ -11,10 +11,12 @@ use super::item_error::ItemCount;
 use super::items::{self, GrowthView, ItemFigures, KeyCount};
 use super::metrics::{self, CountResult, DueItem, Ratio, TaskTally, Week};
 use super::store::{ItemRow, PlannedTask, ResultQuery, StoredResult};
+use super::whatif::{self, IntervalRow};
 use crate::error::ApiError;
 use crate::master::Site;
 use crate::master::codes::Sku;
 use crate::planning::abc::Class;
+use crate::planning::policy::Mode;
 use crate::store::Store;
 use crate::time::Timestamp;
 use crate::time::day::SiteZone;
@@ -485,8 +487,11 @@ pub struct LeadSource {
 /// The record-error term of a buffer and how it was found.
 #[derive(Debug, Clone, PartialEq, Serialize, utoipa::ToSchema)]
 pub struct RecordErrorTerm {
-    /// Days after a count the error is taken at: the review period.
+    /// Days after a count the error is taken at: the item's count interval in
+    /// calendar days, the error's largest in the cycle the buffer is held through.
     pub at_days: f64,
+    /// Where that interval comes from, e.g. `class B: 4 counts a year`.
+    pub interval_source: String,
     /// σ of one bin-lot key at that age, from the growth fit: `sqrt(a + b·days)`.
     pub per_key_sd: Option<f64>,
     /// Keys holding the item now (at least 1), whose errors add as independent.
@@ -509,7 +514,81 @@ pub struct BufferReport {
     pub record_error: RecordErrorTerm,
     /// The arithmetic; `None` when an input is missing or refused (see `notes`).
     pub buffer: Option<Buffer>,
+    pub counting: CountingWhatIf,
     pub notes: Vec<String>,
+}
+
+impl BufferReport {
+    /// Returns the safety stock change if the item were counted every 30 days
+    /// (negative: stock freed); `None` without what-if rows.
+    pub fn monthly_ss_change(&self) -> Option<f64> {
+        self.counting
+            .rows
+            .iter()
+            .find(|w| w.interval_days == whatif::MONTHLY_DAYS)
+            .map(|w| w.safety_stock_change)
+    }
+}
+
+/// How σrec, safety stock and the order point would change if the item were
+/// counted at another interval, every other input as today.
+#[derive(Debug, Clone, PartialEq, Serialize, utoipa::ToSchema)]
+pub struct CountingWhatIf {
+    /// Whose error growth the rows come from: `item` (its own repeat counts);
+    /// `null` when there are no rows.
+    pub fit: Option<String>,
+    /// Repeat counts of a bin behind the fit.
+    pub points: usize,
+    /// Shortest interval first; the item's interval today is marked `current`.
+    pub rows: Vec<IntervalRow>,
+    /// Why there are no rows, in words.
+    pub note: Option<String>,
+}
+
+/// How often an item is counted today, in calendar days, and why.
+#[derive(Debug, Clone, PartialEq)]
+pub struct CountInterval {
+    pub days: f64,
+    pub source: String,
+}
+
+/// Returns each class's count interval under the site's planning settings.
+fn class_intervals(settings: &crate::planning::Settings) -> [CountInterval; 3] {
+    let per_year = settings.frequency.per_year;
+    Class::ALL.map(|c| {
+        let n = per_year[c.index()].max(1);
+        let counts = if n == 1 { "count" } else { "counts" };
+        CountInterval {
+            days: 365.0 / f64::from(n),
+            source: format!("class {c}: {n} {counts} a year"),
+        }
+    })
+}
+
+/// Returns the item's interval: the one the risk policy chose for it, else its class's.
+fn interval_of(
+    item: &ItemRow,
+    classes: &[CountInterval; 3],
+    risk: Option<&(Mode, HashMap<String, f64>)>,
+) -> CountInterval {
+    let class = &classes[item.class.unwrap_or(Class::C).index()];
+    match risk {
+        None => class.clone(),
+        Some((mode, chosen)) => match chosen.get(&item.sku) {
+            Some(&days) => CountInterval {
+                days,
+                source: format!("chosen by the site's {} policy", mode.as_str()),
+            },
+            None => CountInterval {
+                days: class.days,
+                source: format!(
+                    "{} (the {} policy sets none for an item in no bin or dead stock)",
+                    class.source,
+                    mode.as_str()
+                ),
+            },
+        },
+    }
 }
 
 /// What a buffer period and window are: the last day of demand and its length.
@@ -556,8 +635,11 @@ pub async fn buffer_reports(
     site: &Site,
     window: DemandWindow,
     sku: Option<Sku>,
+    asked_days: Option<u32>,
 ) -> Result<Vec<BufferReport>, ApiError> {
     let settings = store.accuracy_settings(site.id).await?;
+    let classes = class_intervals(&store.planning_settings(site.id).await?);
+    let risk = crate::planning::service::risk_intervals(store, site, window.zone.today()).await?;
     let calendar = store.calendar(site.id).await?;
     let items = store.accuracy_items(site.id, sku.clone()).await?;
     if sku.is_some() && items.is_empty() {
@@ -625,7 +707,16 @@ pub async fn buffer_reports(
             });
         let rs = by_item.get(&item.sku).map_or(&[][..], Vec::as_slice);
         let figures = items::item_figures(&key_counts(rs)).map_err(internal)?;
-        out.push(derive(&settings, item, d, lead, figures.growth));
+        let interval = interval_of(&item, &classes, risk.as_ref());
+        out.push(derive(
+            &settings,
+            item,
+            d,
+            lead,
+            figures.growth,
+            interval,
+            asked_days,
+        ));
     }
     Ok(out)
 }
@@ -637,6 +728,8 @@ fn derive(
     d: Demand,
     lead: Option<LeadSource>,
     growth: GrowthView,
+    interval: CountInterval,
+    asked_days: Option<u32>,
 ) -> BufferReport {
     let mut notes = Vec::new();
     let class = item.class.unwrap_or(Class::C);
@@ -653,10 +746,10 @@ fn derive(
             format!("class {class}"),
         ),
     };
-    let review = lead.as_ref().map_or(0.0, |l| l.times.review_days);
     let keys = item.keys.max(1);
-    let per_key_sd = growth.sigma_rec(review);
-    let sigma_rec = per_key_sd.map_or(0.0, |s| s * f64::from(keys).sqrt());
+    let rec = whatif::record_error_sd(&growth.growth, keys, interval.days);
+    let per_key_sd = rec.map(|s| s.0);
+    let sigma_rec = rec.map_or(0.0, |s| s.1);
     if per_key_sd.is_none() {
         notes.push(format!(
             "σrec is taken as 0: no fit of record error growth ({})",
@@ -695,6 +788,14 @@ fn derive(
             }
         },
     };
+    let counting = counting(
+        buffer.as_ref(),
+        &growth,
+        keys,
+        interval.days,
+        asked_days,
+        item.unit_cost_minor,
+    );
     BufferReport {
         item,
         demand: d,
@@ -702,13 +803,55 @@ fn derive(
         service_level,
         service_level_source,
         record_error: RecordErrorTerm {
-            at_days: review,
+            at_days: interval.days,
+            interval_source: interval.source,
             per_key_sd,
             keys,
             sigma_rec,
             growth,
         },
         buffer,
+        counting,
         notes,
+    }
+}
+
+/// Builds the what-if rows, or says why there are none.
+fn counting(
+    today: Option<&Buffer>,
+    growth: &GrowthView,
+    keys: u32,
+    current_days: f64,
+    asked_days: Option<u32>,
+    unit_cost_minor: i64,
+) -> CountingWhatIf {
+    let none = |why: String| CountingWhatIf {
+        fit: None,
+        points: growth.points,
+        rows: Vec::new(),
+        note: Some(why),
+    };
+    let Some(today) = today else {
+        return none("there is no buffer to compare with (see the notes)".into());
+    };
+    match whatif::intervals(
+        today,
+        &growth.growth,
+        keys,
+        current_days,
+        asked_days,
+        unit_cost_minor,
+    ) {
+        Ok(Some(rows)) => CountingWhatIf {
+            fit: Some("item".into()),
+            points: growth.points,
+            rows,
+            note: None,
+        },
+        Ok(None) => none(format!(
+            "not enough history to say: {}",
+            growth.note.clone().unwrap_or_default()
+        )),
+        Err(e) => none(e.to_string()),
     }
 }

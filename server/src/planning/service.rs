@@ -66,21 +66,54 @@ pub async fn preview(
         .await?;
     let policy = store.frequency_policy(site.id).await?;
     if policy.policy != Mode::Abc {
-        input.risk = Some(risk_plan(store, site, &input, day_end, &policy).await?);
+        input.risk = Some(risk_plan(store, site, &input, day_end, &policy).await?.0);
     }
     let plan = plan::build(&input);
     Ok((input, plan))
 }
 
+/// Returns each item's count interval in calendar days, by SKU, as the list of
+/// `day` would set it under the site's `risk` or `blend` policy (the preview's
+/// choice, with nothing stored); `None` under `abc` or before the site's first
+/// classification, when the class intervals hold.
+pub async fn risk_intervals(
+    store: &dyn Store,
+    site: &Site,
+    day: NaiveDate,
+) -> Result<Option<(Mode, HashMap<String, f64>)>, StoreError> {
+    let policy = store.frequency_policy(site.id).await?;
+    if policy.policy == Mode::Abc || store.latest_abc(site.id).await?.is_none() {
+        return Ok(None);
+    }
+    let day_end = site.time_zone.range(day).1;
+    // The choice's budget is the `abc` level, which the day's capacity does not change.
+    let capacity = Capacity {
+        counters: 1,
+        minutes: 60,
+    };
+    let input = store
+        .plan_input(site.id, day, day_end, capacity, Fill::Level)
+        .await?;
+    let (plan, worth) = risk_plan(store, site, &input, day_end, &policy).await?;
+    let days = input
+        .items
+        .iter()
+        .zip(&plan.items)
+        .filter_map(|(it, r)| Some((worth.get(&it.id)?.sku.clone(), r.as_ref()?.days)))
+        .collect();
+    Ok(Some((policy.policy, days)))
+}
+
 /// Chooses each item's interval by risk: reads its unit cost, picks and count results,
-/// fits its error growth (`accuracy`) and lets `policy::risk_plan` choose.
+/// fits its error growth (`accuracy`) and lets `policy::risk_plan` choose. Returns the
+/// worth read too, by item id.
 async fn risk_plan(
     store: &dyn Store,
     site: &Site,
     input: &PlanInput,
     day_end: Timestamp,
     policy: &FrequencyPolicy,
-) -> Result<RiskPlan, StoreError> {
+) -> Result<(RiskPlan, HashMap<i64, ItemWorth>), StoreError> {
     let from = Timestamp(day_end.0 - DEMAND_DAYS * crate::time::DAY_MS);
     let worth: HashMap<i64, ItemWorth> = store
         .item_worth(site.id, from, day_end)
@@ -114,8 +147,9 @@ async fn risk_plan(
             }
         })
         .collect();
-    Ok(policy::risk_plan(input, &history, policy)
-        .map_err(|e| anyhow::anyhow!("the risk policy's choice: {e}"))?)
+    let plan = policy::risk_plan(input, &history, policy)
+        .map_err(|e| anyhow::anyhow!("the risk policy's choice: {e}"))?;
+    Ok((plan, worth))
 }
 
 /// The growth of an item with no judged counts.

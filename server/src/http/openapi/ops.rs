@@ -629,9 +629,14 @@ fn site_op(method: &str, tail: &str, s: &mut Schemas) -> Option<Op> {
         .csv(),
         ("GET", "/buffer/{sku}") => window(Op::new(
             "Read one item's buffer",
-            "The item's safety stock and order point with every term.",
+            "The item's safety stock and order point with every term, and under `counting` the same at other count intervals.",
             s.of::<crate::accuracy::service::BufferReport>(),
         ))
+        .q(
+            "interval",
+            "One more count interval for `counting.rows`, whole days 1 to 730 (JSON only).",
+            json!({ "type": "string", "pattern": "^([0-9]{1,3})?$" }),
+        )
         .csv(),
         _ => return None,
     };
