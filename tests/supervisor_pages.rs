@@ -7,6 +7,7 @@ mod common;
 use cairn::accounts::Role;
 use cairn::master::SiteCode;
 use cairn::time::Timestamp;
+use chrono::Datelike;
 use common::{Answer, Auth, Body, PASSWORD, Session, TestApp, movement, spawn_app};
 use reqwest::Method;
 use serde_json::{Value, json};
@@ -126,17 +127,44 @@ async fn a_supervisor_builds_assigns_moves_and_watches_the_days_list() {
     site(&app).await;
     let sam = app.sign_in("sam", PASSWORD).await;
 
-    // The site page leads to the list; its address without a day is today's (UTC).
+    // The site page leads to the list; its address without a day is today's (UTC), or,
+    // on a day the site does not work (it works Monday to Friday), the last day it worked.
     let site_page = get(&app, &sam, "/sites/T").await;
     assert!(site_page.text.contains("href=\"/sites/T/count-lists\""));
     let today = get(&app, &sam, "/sites/T/count-lists").await;
     assert_eq!(today.status, 303);
     let to = today.headers["location"].to_str().unwrap();
+    let mut worked = chrono::Utc::now().date_naive();
+    while matches!(
+        worked.weekday(),
+        chrono::Weekday::Sat | chrono::Weekday::Sun
+    ) {
+        worked = worked.pred_opt().unwrap();
+    }
+    assert_eq!(to, page(&worked.to_string()), "{to}");
+    // A site that works every day but today: "today" is yesterday.
+    let mut days = vec!["mon", "tue", "wed", "thu", "fri", "sat", "sun"];
+    let off = chrono::Utc::now().date_naive();
+    days.remove(off.weekday().num_days_from_monday() as usize);
+    let (st, b) = app
+        .put(
+            "/api/v1/sites/T/planning/calendar",
+            &json!({"working_weekdays": days}),
+        )
+        .await;
+    assert_eq!(st, 200, "{b}");
+    let moved = get(&app, &sam, "/sites/T/count-lists").await;
     assert_eq!(
-        to,
-        page(&chrono::Utc::now().date_naive().to_string()),
-        "{to}"
+        moved.headers["location"].to_str().unwrap(),
+        page(&off.pred_opt().unwrap().to_string())
     );
+    let (st, b) = app
+        .put(
+            "/api/v1/sites/T/planning/calendar",
+            &json!({"working_weekdays": ["mon", "tue", "wed", "thu", "fri"]}),
+        )
+        .await;
+    assert_eq!(st, 200, "{b}");
     let chosen = get(&app, &sam, &format!("/sites/T/count-lists?day={DAY}")).await;
     assert_eq!(chosen.headers["location"].to_str().unwrap(), page(DAY));
 

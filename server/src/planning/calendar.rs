@@ -87,6 +87,21 @@ impl Calendar {
         None
     }
 
+    /// Returns the last working day before `day`, or `None` if no weekday is worked.
+    pub fn previous_working_day(&self, day: NaiveDate) -> Option<NaiveDate> {
+        if self.worked_per_week() == 0 {
+            return None;
+        }
+        let mut d = day;
+        for _ in 0..(self.holidays.len() + 8) {
+            d = d.checked_sub_days(Days::new(1))?;
+            if self.is_working(d) {
+                return Some(d);
+            }
+        }
+        None
+    }
+
     /// Parses weekday names (`mon`, `tue`, ...) into a working week.
     pub fn weekdays_from_names(names: &[String]) -> Result<[bool; 7], String> {
         let mut out = [false; 7];
@@ -126,6 +141,18 @@ mod tests {
         assert_eq!(c.working_days_between(d(2026, 3, 6), d(2026, 3, 9)), 1);
         assert_eq!(c.working_days_between(d(2026, 3, 9), d(2026, 3, 9)), 0);
         assert!(!c.is_working(d(2026, 3, 7)));
+    }
+
+    #[test]
+    fn the_last_working_day_before_a_weekend_or_a_holiday_is_found() {
+        let mut c = Calendar::default();
+        // 2026-03-07 is a Saturday, 2026-03-09 a Monday (a date fact, no source needed).
+        assert_eq!(c.previous_working_day(d(2026, 3, 7)), Some(d(2026, 3, 6)));
+        assert_eq!(c.previous_working_day(d(2026, 3, 9)), Some(d(2026, 3, 6)));
+        c.holidays.insert(d(2026, 3, 6));
+        assert_eq!(c.previous_working_day(d(2026, 3, 8)), Some(d(2026, 3, 5)));
+        c.working_weekdays = [false; 7];
+        assert_eq!(c.previous_working_day(d(2026, 3, 8)), None);
     }
 
     #[test]

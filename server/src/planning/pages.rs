@@ -469,14 +469,24 @@ struct TodayParams {
 }
 
 /// Sends the browser to today's list (the site's local day), or to the day the date field
-/// names.
+/// names. On a day the site does not work, "today" is the last day it worked: what was
+/// counted and what was left.
 async fn today(
+    State(state): State<AppState>,
     CurrentSite(site): CurrentSite,
     Params(q): Params<TodayParams>,
 ) -> Result<Response, PageError> {
     let day = match q.day.as_deref().map(str::trim) {
         Some(d) if !d.is_empty() => parse_day(d)?,
-        _ => site.time_zone.today(),
+        _ => {
+            let today = site.time_zone.today();
+            let calendar = state.store.calendar(site.id).await?;
+            if calendar.is_working(today) {
+                today
+            } else {
+                calendar.previous_working_day(today).unwrap_or(today)
+            }
+        }
     };
     Ok(Redirect::to(&day_url(&site, day)).into_response())
 }
