@@ -311,6 +311,15 @@ fn vanished(
     })
 }
 
+/// Checks that the store answered for every one of the `asked` things it was given:
+/// a short answer would net keys against the wrong facts.
+fn answered(verb: &str, got: usize, asked: usize, what: &str) -> Result<(), StoreError> {
+    if got == asked {
+        return Ok(());
+    }
+    Err(anyhow::anyhow!("the store {verb} {got} of {asked} {what}").into())
+}
+
 /// Nets pass `pass_id` if it is marked done: every key (or only those in `only`). A new
 /// row supersedes a key's current result with `reason`; out-of-tolerance first counts go
 /// to a recount; a recount pass decides the keys it re-checks. Nothing for an open pass.
@@ -350,11 +359,7 @@ pub fn net_many<T: NettingTx + ?Sized>(
             .count();
         let ids: Vec<i64> = rest[..round].iter().map(|j| j.pass).collect();
         let reads = tx.pass_reads(&ids)?;
-        if reads.len() != ids.len() {
-            return Err(
-                anyhow::anyhow!("the store read {} of {} passes", reads.len(), ids.len()).into(),
-            );
-        }
+        answered("read", reads.len(), ids.len(), "passes")?;
         let mut bins = HashSet::new();
         let mut group = Vec::new();
         for (job, read) in rest.iter().zip(reads) {
@@ -431,14 +436,7 @@ fn net_group<T: NettingTx + ?Sized>(
         .collect();
     let reads = tx.keys_facts_many(&asks)?;
     drop(asks);
-    if reads.len() != plans.len() {
-        return Err(anyhow::anyhow!(
-            "the store read the keys of {} of {} passes",
-            reads.len(),
-            plans.len()
-        )
-        .into());
-    }
+    answered("read the keys of", reads.len(), plans.len(), "passes")?;
     let mut judged = Vec::with_capacity(plans.len());
     for ((job, plan), reads) in plans.into_iter().zip(reads) {
         judged.push((job, plan.judge(tx, reads)?));
@@ -448,11 +446,7 @@ fn net_group<T: NettingTx + ?Sized>(
         .flat_map(|(job, j)| j.new_rows(job.reason, now))
         .collect();
     let mut ids = tx.insert_results(&rows)?.into_iter();
-    if ids.len() != rows.len() {
-        return Err(
-            anyhow::anyhow!("the store wrote {} of {} results", ids.len(), rows.len()).into(),
-        );
-    }
+    answered("wrote", ids.len(), rows.len(), "results")?;
     drop(rows);
     let mut out = NetOutcome::default();
     for (job, j) in judged {
@@ -565,15 +559,12 @@ impl Plan {
             keys,
             ..
         } = self;
-        if reads.len() != keys.len() {
-            return Err(anyhow::anyhow!(
-                "the store read {} of {} keys of count {}",
-                reads.len(),
-                keys.len(),
-                pass.uid
-            )
-            .into());
-        }
+        answered(
+            "read",
+            reads.len(),
+            keys.len(),
+            &format!("keys of count {}", pass.uid),
+        )?;
         let mut fresh_rows = Vec::new();
         for (key, read) in keys.into_iter().zip(reads) {
             let KeyRead {
@@ -673,15 +664,12 @@ impl Judged {
             has_open_tasks,
             fresh_rows,
         } = self;
-        if ids.len() != fresh_rows.len() {
-            return Err(anyhow::anyhow!(
-                "the store wrote {} of {} results of count {}",
-                ids.len(),
-                fresh_rows.len(),
-                pass.uid
-            )
-            .into());
-        }
+        answered(
+            "wrote",
+            ids.len(),
+            fresh_rows.len(),
+            &format!("results of count {}", pass.uid),
+        )?;
         let mut out = NetOutcome::default();
         let mut changed = Vec::new();
         for ((key, fresh, _, current), id) in fresh_rows.into_iter().zip(ids) {
@@ -872,14 +860,7 @@ pub fn after_sync<T: NettingTx + ?Sized>(
     }
     let uids: Vec<&str> = touched.keys().copied().collect();
     let found = tx.done_passes_by_uid(&uids)?;
-    if found.len() != uids.len() {
-        return Err(anyhow::anyhow!(
-            "the store looked up {} of {} counts",
-            found.len(),
-            uids.len()
-        )
-        .into());
-    }
+    answered("looked up", found.len(), uids.len(), "counts")?;
     let mut passes = Vec::new();
     for ((pass_uid, events), found) in touched.into_iter().zip(found) {
         let Some((pass_id, netted_before)) = found else {

@@ -224,6 +224,15 @@ impl<'a> EventColumns<'a> {
     }
 }
 
+/// A device's clock sample: offset, uncertainty, when it was taken.
+fn sampled_row(r: &tokio_postgres::Row) -> Result<Sampled, StoreError> {
+    Ok(Sampled {
+        offset_ms: r.try_get(0)?,
+        uncertainty_ms: r.try_get(1)?,
+        at: Timestamp(r.try_get(2)?),
+    })
+}
+
 impl SyncTx for PgTx<'_> {
     fn stored_event(&self, uid: &str) -> Result<Option<(String, Vec<EventFlag>)>, StoreError> {
         self.query_opt("select body, flags from sync_event where uid = $1", &[&uid])?
@@ -239,13 +248,7 @@ impl SyncTx for PgTx<'_> {
             "select offset_ms, uncertainty_ms, sampled_at from device_clock where device_id = $1",
             &[&device.0],
         )?
-        .map(|r| {
-            Ok(Sampled {
-                offset_ms: r.try_get(0)?,
-                uncertainty_ms: r.try_get(1)?,
-                at: Timestamp(r.try_get(2)?),
-            })
-        })
+        .map(|r| sampled_row(&r))
         .transpose()
     }
 
@@ -285,13 +288,7 @@ impl SyncTx for PgTx<'_> {
              select offset_ms, uncertainty_ms, sampled_at from previous",
             &[&device.0, &clock.offset_ms, &clock.uncertainty_ms, &at.0],
         )?
-        .map(|r| {
-            Ok(Sampled {
-                offset_ms: r.try_get(0)?,
-                uncertainty_ms: r.try_get(1)?,
-                at: Timestamp(r.try_get(2)?),
-            })
-        })
+        .map(|r| sampled_row(&r))
         .transpose()
     }
 
