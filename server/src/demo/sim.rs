@@ -73,6 +73,11 @@ impl<'a> World<'a> {
             .end
             .checked_sub_days(Days::new(u64::from(spec.days.saturating_sub(1))))
             .unwrap_or(spec.end);
+        Self::empty(items, bins, rng, start)
+    }
+
+    /// A warehouse holding nothing, nothing on order, its history day 0 on `start`.
+    fn empty(items: &'a [DemoItem], bins: &'a [NewBin], rng: ChaCha8Rng, start: NaiveDate) -> Self {
         Self {
             items,
             bins,
@@ -97,19 +102,7 @@ impl<'a> World<'a> {
         start: NaiveDate,
         keys: &[(usize, usize, String, i64, i64)],
     ) -> Self {
-        let mut world = Self {
-            items,
-            bins,
-            rng,
-            start,
-            stock: HashMap::new(),
-            on_order: vec![None; items.len()],
-            doc_seq: 0,
-            unrecorded_picks: 0,
-            miskeyed_picks: 0,
-            misputaways: 0,
-            truth_log: None,
-        };
+        let mut world = Self::empty(items, bins, rng, start);
         for (bin, item, lot, book, truth) in keys {
             world.put(*bin, *item, lot, None, *book, *truth);
         }

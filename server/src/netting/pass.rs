@@ -908,13 +908,12 @@ pub fn after_movements<T: NettingTx + ?Sized>(
     moves: &[WrittenMove],
     now: Timestamp,
 ) -> Result<NetOutcome, StoreError> {
-    let mut out = NetOutcome::default();
     if moves.is_empty() {
-        return Ok(out);
+        return Ok(NetOutcome::default());
     }
     // Most batches meet no done pass at all: one look decides.
     let Some(widest_u) = tx.widest_done_uncertainty(site)? else {
-        return Ok(out);
+        return Ok(NetOutcome::default());
     };
     let sources = Sources::new(&tx.source_timings(site)?);
     // (pass, key) -> the movements that re-net it.
@@ -949,8 +948,7 @@ pub fn after_movements<T: NettingTx + ?Sized>(
             reason,
         })
         .collect();
-    out.add(net_many(tx, &jobs, now)?);
-    Ok(out)
+    net_many(tx, &jobs, now)
 }
 
 fn name_ids(what: &str, ids: &[String]) -> String {
