@@ -69,7 +69,28 @@ async fn migrations_are_recorded_and_a_newer_database_is_refused() {
         .iter()
         .map(|r| r.get(0))
         .collect();
-    assert_eq!(versions, [9, 10, 11]);
+    assert_eq!(versions, [9, 10, 11, 12]);
+    // A result's pass, site and bin are one foreign key (0012), so a result cannot name a
+    // site or bin other than its pass's.
+    let keys: Vec<String> = db
+        .query(
+            "select pg_get_constraintdef(oid) from pg_constraint
+             where conrelid = 'count_result'::regclass and contype = 'f' order by 1",
+            &[],
+        )
+        .await
+        .unwrap()
+        .iter()
+        .map(|r| r.get(0))
+        .collect();
+    assert_eq!(
+        keys,
+        [
+            "FOREIGN KEY (item_id) REFERENCES item(id)",
+            "FOREIGN KEY (pass_id, site_id, bin_id) REFERENCES count_pass(id, site_id, bin_id)",
+            "FOREIGN KEY (superseded_by) REFERENCES count_result(id)",
+        ]
+    );
     db.execute(
         "insert into schema_migration (version, name, checksum, applied_at) values (99, 'future', 0, 0)",
         &[],

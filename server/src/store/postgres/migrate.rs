@@ -28,6 +28,11 @@ const MIGRATIONS: &[Migration] = &[
         name: "frequency_policy",
         sql: include_str!("../../../../migrations/postgres/0011_frequency_policy.sql"),
     },
+    Migration {
+        version: 12,
+        name: "result_pass_key",
+        sql: include_str!("../../../../migrations/postgres/0012_result_pass_key.sql"),
+    },
 ];
 
 /// The newest version this build knows.

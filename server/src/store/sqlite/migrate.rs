@@ -69,6 +69,11 @@ pub const MIGRATIONS: &[Migration] = &[
         name: "0011_frequency_policy.sql",
         sql: include_str!("../../../../migrations/0011_frequency_policy.sql"),
     },
+    Migration {
+        version: 12,
+        name: "0012_result_pass_key.sql",
+        sql: include_str!("../../../../migrations/0012_result_pass_key.sql"),
+    },
 ];
 
 /// Returns the newest schema version this binary knows.
