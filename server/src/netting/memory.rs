@@ -7,7 +7,7 @@ use super::pass::{
     self, AppliedEvent, CurrentResult, ItemFacts, ItemLot, NettingTx, NewResult, OpenTask,
     PassFacts, Sent, WrittenMove,
 };
-use super::recount::{DayList, NewRecountTask, Rechecked, RecountTx, RunLoad};
+use super::recount::{DayList, NewRecountTask, Rechecked, RecountTx, RunLoad, SentResult};
 use super::results::NetOutcome;
 use super::rule::CountTiming;
 use super::service::{Evidence, LedgerMove, NettingSettings, SourceTimingRow, VERDICT_OUT};
@@ -145,6 +145,7 @@ impl Memory {
                 id,
                 uid: format!("pass-{id}"),
                 site: SITE,
+                zone: SiteZone::UTC,
                 bin_id: BIN,
                 bin_code: "A-01-01-1".into(),
                 task_est_s: None,
@@ -234,10 +235,6 @@ impl Memory {
 }
 
 impl RecountTx for Memory {
-    fn site_zone(&self, _: SiteId) -> Result<SiteZone, StoreError> {
-        Ok(SiteZone::UTC)
-    }
-
     fn open_task_of(&self, pass: i64, supervisor: bool) -> Result<Option<(i64, i64)>, StoreError> {
         let of_pass: BTreeSet<i64> = self
             .results
@@ -350,9 +347,25 @@ impl RecountTx for Memory {
         Ok(())
     }
 
-    fn result_class(&self, result: i64) -> Result<Option<Class>, StoreError> {
-        let item = self.results.borrow()[result as usize - 1].key.0;
-        Ok(self.items[&item].class)
+    fn sent_results(&self, results: &[i64]) -> Result<Vec<SentResult>, StoreError> {
+        let rows = self.results.borrow();
+        let mut ids = results.to_vec();
+        ids.sort_unstable();
+        ids.dedup();
+        Ok(ids
+            .into_iter()
+            .map(|id| {
+                let key = &rows[id as usize - 1].key;
+                SentResult {
+                    key: Rechecked {
+                        result: id,
+                        sku: self.items[&key.0].sku.clone(),
+                        lot: key.1.clone(),
+                    },
+                    class: self.items[&key.0].class,
+                }
+            })
+            .collect())
     }
 
     fn bin_lines(&self, _: i64) -> Result<i64, StoreError> {

@@ -10,7 +10,6 @@ use super::service::{self, Placement};
 use crate::master::SiteId;
 use crate::planning::abc::Class;
 use crate::store::error::StoreError;
-use crate::time::day::SiteZone;
 
 /// Estimated seconds of a recount task when the first task's estimate is unknown.
 pub const RECOUNT_EST_S: i64 = 120;
@@ -50,24 +49,31 @@ pub struct Rechecked {
     pub lot: String,
 }
 
+/// A result sent to a recount, as placing it needs it.
+#[derive(Debug, Clone, PartialEq, Eq)]
+pub struct SentResult {
+    pub key: Rechecked,
+    pub class: Option<Class>,
+}
+
 /// What placing one pass's recount reads before it decides anything.
 #[derive(Debug, Clone, PartialEq)]
 pub struct PlacementRead {
     /// The open task of that kind no phone has begun, with its list.
     pub open_task: Option<(i64, i64)>,
-    pub zone: SiteZone,
-    /// The classes of the results sent (results without one are left out).
-    pub classes: Vec<Class>,
+    /// The results sent, oldest first, with their keys and classes.
+    pub results: Vec<SentResult>,
     /// The keys with a non-zero balance in the bin.
     pub bin_lines: i64,
+    /// The list of the count's local day with its runs, if there is one.
+    pub plan: Option<(DayList, Vec<RunLoad>)>,
 }
 
 /// The queries and writes of placing a recount; each method one query or one write,
 /// except the three that take a step's worth at once ([`RecountTx::placement_read`],
 /// [`RecountTx::day_plan`], [`RecountTx::write_recount_task`]), whose defaults call the
-/// one-at-a-time methods.
+/// one-at-a-time methods: placing a new recount is one read and one write.
 pub trait RecountTx {
-    fn site_zone(&self, site: SiteId) -> Result<SiteZone, StoreError>;
     /// The open task of that kind (recount or supervisor count) of pass `pass` that no
     /// phone has begun, with its list.
     fn open_task_of(&self, pass: i64, supervisor: bool) -> Result<Option<(i64, i64)>, StoreError>;
@@ -91,7 +97,8 @@ pub trait RecountTx {
     fn runs(&self, list: i64) -> Result<Vec<RunLoad>, StoreError>;
     /// Adds run `run` to a list (and raises its counters to it).
     fn add_run(&self, list: i64, run: u32) -> Result<(), StoreError>;
-    fn result_class(&self, result: i64) -> Result<Option<Class>, StoreError>;
+    /// The results named, oldest first, with their keys and classes.
+    fn sent_results(&self, results: &[i64]) -> Result<Vec<SentResult>, StoreError>;
     /// The keys with a non-zero balance in a bin.
     fn bin_lines(&self, bin: i64) -> Result<i64, StoreError>;
     /// Writes a recount task after the run's recounts already there (everything after it
@@ -99,9 +106,10 @@ pub trait RecountTx {
     fn insert_recount_task(&self, t: &NewRecountTask) -> Result<i64, StoreError>;
     fn set_list_warnings(&self, list: i64, warnings: &[String]) -> Result<(), StoreError>;
 
-    /// What placing `results` (first results of pass `pass`, in bin `bin` at `site`)
-    /// needs to know first; the open task only when `find_open` (the caller may know
-    /// there is none).
+    /// What placing `results` (first results of pass `pass`, in bin `bin` at `site`, counted
+    /// on the local day `day`) needs to know first; the open task only when `find_open`
+    /// (the caller may know there is none).
+    #[allow(clippy::too_many_arguments)]
     fn placement_read(
         &self,
         site: SiteId,
@@ -110,20 +118,17 @@ pub trait RecountTx {
         results: &[i64],
         supervisor: bool,
         find_open: bool,
+        day: &str,
     ) -> Result<PlacementRead, StoreError> {
-        let mut classes = Vec::new();
-        for r in results {
-            classes.extend(self.result_class(*r)?);
-        }
         Ok(PlacementRead {
             open_task: if find_open {
                 self.open_task_of(pass, supervisor)?
             } else {
                 None
             },
-            zone: self.site_zone(site)?,
-            classes,
+            results: self.sent_results(results)?,
             bin_lines: self.bin_lines(bin)?,
+            plan: self.day_plan(site, day)?,
         })
     }
     /// The list of a local day at a site with its runs, if there is one.
@@ -140,22 +145,19 @@ pub trait RecountTx {
             None => Ok(None),
         }
     }
-    /// Sets a new task's detail and raises its list's version: the last two writes of
-    /// placing it. By default one after the other.
-    fn describe_task(&self, task: i64, detail: &str, list: i64) -> Result<(), StoreError> {
-        self.set_task_detail(task, detail)?;
-        self.bump_list(list)
-    }
-    /// Writes a new recount task and links `results` to it; returns its id and what it
-    /// re-checks, oldest first.
+    /// Writes a new recount task with its detail, links `results` to it and raises its
+    /// list's version; returns its id.
     fn write_recount_task(
         &self,
         t: &NewRecountTask,
         results: &[i64],
-    ) -> Result<(i64, Vec<Rechecked>), StoreError> {
+        detail: &str,
+    ) -> Result<i64, StoreError> {
         let task = self.insert_recount_task(t)?;
         self.link_rechecks(task, results)?;
-        Ok((task, self.rechecked(task)?))
+        self.set_task_detail(task, detail)?;
+        self.bump_list(t.list)?;
+        Ok(task)
     }
 }
 
@@ -175,6 +177,10 @@ pub fn send<T: RecountTx + ?Sized>(
     if results.is_empty() {
         return Ok(Vec::new());
     }
+    // The site's local day of the count, not the UTC one (a count at 23:30 in Chicago is
+    // recounted on that day's list).
+    let done = pass.timing.done.unwrap_or(pass.timing.first_scan);
+    let day = pass.zone.day_of(done).format("%Y-%m-%d").to_string();
     let read = tx.placement_read(
         pass.site,
         pass.id,
@@ -182,6 +188,7 @@ pub fn send<T: RecountTx + ?Sized>(
         results,
         supervisor,
         may_have_open,
+        &day,
     )?;
     match read.open_task {
         Some((task, list)) => {
@@ -190,7 +197,9 @@ pub fn send<T: RecountTx + ?Sized>(
             tx.bump_list(list)?;
             Ok(Vec::new())
         }
-        None => Ok(vec![add_task(tx, pass, &read, results, supervisor, sent)?]),
+        None => Ok(vec![add_task(
+            tx, pass, read, &day, results, supervisor, sent,
+        )?]),
     }
 }
 
@@ -232,24 +241,21 @@ fn detail(rows: &[Rechecked], supervisor: bool) -> String {
 }
 
 /// Adds a recount task for `results` (first results of one pass) to the list of the
-/// pass's local done day, ahead of its run. Returns the task's id.
+/// pass's local done day `day`, ahead of its run. Returns the task's id.
 fn add_task<T: RecountTx + ?Sized>(
     tx: &T,
     pass: &PassFacts,
-    read: &PlacementRead,
+    read: PlacementRead,
+    day: &str,
     results: &[i64],
     supervisor: bool,
     sent: &Sent,
 ) -> Result<i64, StoreError> {
-    let done = pass.timing.done.unwrap_or(pass.timing.first_scan);
-    // The site's local day of the count, not the UTC one (a count at 23:30 in Chicago is
-    // recounted on that day's list).
-    let day = read.zone.day_of(done).format("%Y-%m-%d").to_string();
-    let (list, runs) = match tx.day_plan(pass.site, &day)? {
+    let (list, runs) = match read.plan {
         Some(plan) => plan,
         None => {
             let list =
-                tx.create_day_list(pass.site, &day, RECOUNT_EST_S.div_euclid(60).max(1), sent)?;
+                tx.create_day_list(pass.site, day, RECOUNT_EST_S.div_euclid(60).max(1), sent)?;
             let runs = tx.runs(list.id)?;
             (list, runs)
         }
@@ -276,8 +282,10 @@ fn add_task<T: RecountTx + ?Sized>(
         tx.add_run(list.id, run)?;
     }
     // The task is as important as the most important key it re-checks.
-    let class = read.classes.iter().copied().min();
-    let (task, rechecked) = tx.write_recount_task(
+    let class = read.results.iter().filter_map(|r| r.class).min();
+    let keys: Vec<Rechecked> = read.results.into_iter().map(|r| r.key).collect();
+    let detail = detail(&keys, supervisor);
+    let task = tx.write_recount_task(
         &NewRecountTask {
             list: list.id,
             bin: pass.bin_id,
@@ -289,8 +297,8 @@ fn add_task<T: RecountTx + ?Sized>(
             supervisor,
         },
         results,
+        &detail,
     )?;
-    let detail = detail(&rechecked, supervisor);
     let warning = warning.map(|w| {
         if supervisor {
             format!(
@@ -311,7 +319,6 @@ fn add_task<T: RecountTx + ?Sized>(
             tx.set_list_warnings(list.id, &all)?;
         }
     }
-    tx.describe_task(task, &detail, list.id)?;
     Ok(task)
 }
 

@@ -6,6 +6,7 @@ use super::rule::CountTiming;
 use super::service::Evidence;
 use crate::master::SiteId;
 use crate::time::Timestamp;
+use crate::time::day::SiteZone;
 use serde::Serialize;
 
 /// The stored status of a key whose re-net found nothing left to net (not scanned and
@@ -200,6 +201,8 @@ pub struct PassFacts {
     pub id: i64,
     pub uid: String,
     pub site: SiteId,
+    /// The site's time zone: its local days are the days of the pass.
+    pub zone: SiteZone,
     pub bin_id: i64,
     pub bin_code: String,
     pub task_est_s: Option<i64>,

@@ -38,7 +38,7 @@ fn to_site(r: &Row) -> Result<Site, StoreError> {
 
 /// Reads a stored zone name; a name the tz database does not know keeps UTC days (see the
 /// SQLite store's `stored_zone`).
-fn stored_zone(name: &str) -> SiteZone {
+pub(super) fn stored_zone(name: &str) -> SiteZone {
     SiteZone::parse(name).unwrap_or(SiteZone::UTC)
 }
 

@@ -11,7 +11,7 @@ use crate::netting::pass::{
     CurrentResult, ItemFacts, ItemLot, KeyRead, KeysAsk, NettingTx, NewResult, OpenTask, PassRead,
 };
 use crate::netting::recount::{
-    DayList, NewRecountTask, PlacementRead, Rechecked, RecountTx, RunLoad,
+    DayList, NewRecountTask, PlacementRead, Rechecked, RecountTx, RunLoad, SentResult,
 };
 use crate::netting::results::*;
 use crate::netting::rule::CountTiming;
@@ -21,7 +21,6 @@ use crate::netting::tolerance::Tolerance;
 use crate::planning::abc::Class;
 use crate::store::{StoreError, WriteScope};
 use crate::time::Timestamp;
-use crate::time::day::SiteZone;
 use deadpool_postgres::GenericClient;
 use std::collections::{BTreeMap, BTreeSet, HashMap};
 use tokio_postgres::Row;
@@ -110,7 +109,7 @@ macro_rules! pass_sql {
             (select t.id from count_task t where t.id = p.task_id and t.recount_of is not null),
             coalesce((select t.withdrawn_at is not null from count_task t
                       where t.id = p.task_id), false),
-            p.held
+            p.held, (select s.time_zone from site s where s.id = p.site_id)
      from count_pass p join bin b on b.id = p.bin_id
      join user_account u on u.id = p.user_id
      where p.id ",
@@ -194,6 +193,7 @@ fn pass_row(r: &Row) -> Result<PassFacts, StoreError> {
         recount_task: r.try_get(11)?,
         withdrawn: r.try_get(12)?,
         held: r.try_get(13)?,
+        zone: super::master::stored_zone(r.try_get(14)?),
     })
 }
 
@@ -897,10 +897,6 @@ impl NettingTx for PgTx<'_> {
 }
 
 impl RecountTx for PgTx<'_> {
-    fn site_zone(&self, site: SiteId) -> Result<SiteZone, StoreError> {
-        zone_row(&self.query_one(ZONE_SQL, &[&site.0])?, site)
-    }
-
     fn open_task_of(&self, pass: i64, supervisor: bool) -> Result<Option<(i64, i64)>, StoreError> {
         self.query_opt(OPEN_TASK_SQL, &[&pass, &supervisor])?
             .map(|r| Ok((r.try_get(0)?, r.try_get(1)?)))
@@ -957,16 +953,6 @@ impl RecountTx for PgTx<'_> {
         Ok(())
     }
 
-    /// Both writes in one statement.
-    fn describe_task(&self, task: i64, detail: &str, list: i64) -> Result<(), StoreError> {
-        self.execute(
-            "with d as (update count_task set detail = $2 where id = $1)
-             update count_list set version = version + 1 where id = $3",
-            &[&task, &detail, &list],
-        )?;
-        Ok(())
-    }
-
     fn day_list(&self, site: SiteId, day: &str) -> Result<Option<DayList>, StoreError> {
         self.query_opt(DAY_LIST_SQL, &[&site.0, &day])?
             .map(|r| day_list_row(&r))
@@ -1019,11 +1005,8 @@ impl RecountTx for PgTx<'_> {
         Ok(())
     }
 
-    fn result_class(&self, result: i64) -> Result<Option<Class>, StoreError> {
-        let c: Option<String> = self
-            .query_one("select class from count_result where id = $1", &[&result])?
-            .try_get(0)?;
-        Ok(c.as_deref().and_then(Class::parse))
+    fn sent_results(&self, results: &[i64]) -> Result<Vec<SentResult>, StoreError> {
+        sent_rows(&self.query(SENT_SQL, &[&results])?)
     }
 
     fn bin_lines(&self, bin: i64) -> Result<i64, StoreError> {
@@ -1082,7 +1065,7 @@ impl RecountTx for PgTx<'_> {
         Ok(())
     }
 
-    /// Four reads sent together.
+    /// Five reads sent together.
     fn placement_read(
         &self,
         site: SiteId,
@@ -1091,13 +1074,14 @@ impl RecountTx for PgTx<'_> {
         results: &[i64],
         supervisor: bool,
         find_open: bool,
+        day: &str,
     ) -> Result<PlacementRead, StoreError> {
         let results = results.to_vec();
         let by_pass: &[&(dyn ToSql + Sync)] = &[&pass, &supervisor];
-        let by_site: &[&(dyn ToSql + Sync)] = &[&site.0];
         let by_result: &[&(dyn ToSql + Sync)] = &[&results];
         let by_bin: &[&(dyn ToSql + Sync)] = &[&bin];
-        let (open, zone, classes, lines) = self.together("recount: placement reads", async {
+        let by_day: &[&(dyn ToSql + Sync)] = &[&site.0, &day];
+        let (open, sent, lines, list, runs) = self.together("recount: placement reads", async {
             tokio::try_join!(
                 async {
                     if find_open {
@@ -1106,20 +1090,18 @@ impl RecountTx for PgTx<'_> {
                         Ok(Vec::new())
                     }
                 },
-                self.rows(ZONE_SQL, by_site),
-                self.rows(
-                    "select class from count_result where id = any($1)",
-                    by_result
-                ),
+                self.rows(SENT_SQL, by_result),
                 self.rows(
                     "select count(*) from balance where bin_id = $1 and qty <> 0",
                     by_bin
                 ),
+                self.rows(DAY_LIST_SQL, by_day),
+                self.rows(
+                    runs_sql!("(select id from count_list where site_id = $1 and day = $2)"),
+                    by_day
+                ),
             )
         })?;
-        let zone = zone
-            .first()
-            .ok_or_else(|| anyhow::anyhow!("no site {}", site.0))?;
         let lines = lines
             .first()
             .ok_or_else(|| anyhow::anyhow!("a count answered no row"))?;
@@ -1128,113 +1110,89 @@ impl RecountTx for PgTx<'_> {
                 .first()
                 .map(|r| Ok::<_, StoreError>((r.try_get(0)?, r.try_get(1)?)))
                 .transpose()?,
-            zone: zone_row(zone, site)?,
-            classes: classes
-                .iter()
-                .map(|r| r.try_get::<_, Option<&str>>(0))
-                .collect::<Result<Vec<_>, _>>()?
-                .into_iter()
-                .filter_map(|c| c.and_then(Class::parse))
-                .collect(),
+            results: sent_rows(&sent)?,
             bin_lines: lines.try_get(0)?,
+            plan: list
+                .first()
+                .map(|l| {
+                    Ok::<_, StoreError>((
+                        day_list_row(l)?,
+                        runs.iter().map(run_row).collect::<Result<_, _>>()?,
+                    ))
+                })
+                .transpose()?,
         })
     }
 
-    /// The list and its runs sent together.
-    fn day_plan(
-        &self,
-        site: SiteId,
-        day: &str,
-    ) -> Result<Option<(DayList, Vec<RunLoad>)>, StoreError> {
-        let p: &[&(dyn ToSql + Sync)] = &[&site.0, &day];
-        let (list, runs) = self.together("recount: a day's list and runs", async {
-            tokio::try_join!(
-                self.rows(DAY_LIST_SQL, p),
-                self.rows(
-                    runs_sql!("(select id from count_list where site_id = $1 and day = $2)"),
-                    p
-                ),
-            )
-        })?;
-        let Some(list) = list.first() else {
-            return Ok(None);
-        };
-        Ok(Some((
-            day_list_row(list)?,
-            runs.iter().map(run_row).collect::<Result<_, _>>()?,
-        )))
-    }
-
     /// One statement: the place after the run's recounts, the tasks after it moved down,
-    /// the task, its links, and what it re-checks.
+    /// the task with its detail, its links, and its list's version raised.
     fn write_recount_task(
         &self,
         t: &NewRecountTask,
         results: &[i64],
-    ) -> Result<(i64, Vec<Rechecked>), StoreError> {
-        let rows = self.query(
-            "with place as (
-                 select coalesce(
-                     (select max(seq) + 1 from count_task
-                      where list_id = $1 and run = $2 and recount_of is not null),
-                     (select min(seq) from count_task where list_id = $1 and run = $2),
-                     1) as seq
-             ), moved as (
-                 update count_task set seq = seq + 1
-                 where list_id = $1 and run = $2 and recount_of is null
-                   and seq >= (select seq from place)
-             ), task as (
-                 insert into count_task (list_id, bin_id, seq, run, reason, class, detail,
-                     lines, est_s, recount_of, supervisor)
-                 select $1, $3, place.seq, $2, 'recount', $4, '', $5, $6, $7, $8 from place
-                 returning id
-             ), linked as (
-                 insert into count_task_recheck (task_id, result_id)
-                 select task.id, r from task, unnest($9::bigint[]) as r
-                 on conflict do nothing
-             )
-             select task.id, x.id, x.sku, x.lot
-             from task left join lateral (
-                 select r.id, i.sku, r.lot from count_result r join item i on i.id = r.item_id
-                 where r.id = any($9)
-             ) x on true
-             order by x.id",
-            &[
-                &t.list,
-                &big(t.run),
-                &t.bin,
-                &t.class.map(Class::as_str),
-                &t.lines,
-                &t.est_s,
-                &t.recount_of,
-                &t.supervisor,
-                &results,
-            ],
-        )?;
-        let task = rows
-            .first()
-            .ok_or_else(|| anyhow::anyhow!("a recount task was not written"))?
-            .try_get(0)?;
-        let mut rechecked = Vec::with_capacity(rows.len());
-        for r in &rows {
-            if let Some(result) = r.try_get::<_, Option<i64>>(1)? {
-                rechecked.push(Rechecked {
-                    result,
-                    sku: r.try_get(2)?,
-                    lot: r.try_get(3)?,
-                });
-            }
-        }
-        Ok((task, rechecked))
+        detail: &str,
+    ) -> Result<i64, StoreError> {
+        Ok(self
+            .query_one(
+                "with place as (
+                     select coalesce(
+                         (select max(seq) + 1 from count_task
+                          where list_id = $1 and run = $2 and recount_of is not null),
+                         (select min(seq) from count_task where list_id = $1 and run = $2),
+                         1) as seq
+                 ), moved as (
+                     update count_task set seq = seq + 1
+                     where list_id = $1 and run = $2 and recount_of is null
+                       and seq >= (select seq from place)
+                 ), task as (
+                     insert into count_task (list_id, bin_id, seq, run, reason, class, detail,
+                         lines, est_s, recount_of, supervisor)
+                     select $1, $3, place.seq, $2, 'recount', $4, $10, $5, $6, $7, $8 from place
+                     returning id
+                 ), linked as (
+                     insert into count_task_recheck (task_id, result_id)
+                     select task.id, r from task, unnest($9::bigint[]) as r
+                     on conflict do nothing
+                 ), bumped as (
+                     update count_list set version = version + 1 where id = $1
+                 )
+                 select id from task",
+                &[
+                    &t.list,
+                    &big(t.run),
+                    &t.bin,
+                    &t.class.map(Class::as_str),
+                    &t.lines,
+                    &t.est_s,
+                    &t.recount_of,
+                    &t.supervisor,
+                    &results,
+                    &detail,
+                ],
+            )?
+            .try_get(0)?)
     }
 }
 
-const ZONE_SQL: &str = "select time_zone from site where id = $1";
+/// The results sent to a recount ($1), oldest first, with their keys and classes.
+const SENT_SQL: &str = "select r.id, i.sku, r.lot, r.class
+     from count_result r join item i on i.id = r.item_id
+     where r.id = any($1)
+     order by r.id";
 
-fn zone_row(r: &Row, site: SiteId) -> Result<SiteZone, StoreError> {
-    let zone: String = r.try_get(0)?;
-    SiteZone::parse(&zone)
-        .map_err(|e| anyhow::anyhow!("site {} has the zone '{zone}': {e}", site.0).into())
+fn sent_rows(rows: &[Row]) -> Result<Vec<SentResult>, StoreError> {
+    rows.iter()
+        .map(|r| {
+            Ok(SentResult {
+                key: Rechecked {
+                    result: r.try_get(0)?,
+                    sku: r.try_get(1)?,
+                    lot: r.try_get(2)?,
+                },
+                class: r.try_get::<_, Option<&str>>(3)?.and_then(Class::parse),
+            })
+        })
+        .collect()
 }
 
 /// The open task of a kind ($2: supervisor count or recount) of pass $1 no phone has begun.

@@ -34,7 +34,7 @@ fn to_site((id, code, name, time_zone): (i64, String, String, String)) -> Result
 /// Reads a stored zone name. Sites made before zones were checked may hold any text: they
 /// keep UTC days, as they always had, until `cairn site zone` sets a real zone. (Read on
 /// every request, so it does not log.)
-fn stored_zone(name: &str) -> SiteZone {
+pub(crate) fn stored_zone(name: &str) -> SiteZone {
     SiteZone::parse(name).unwrap_or(SiteZone::UTC)
 }
 

@@ -17,6 +17,7 @@ use rusqlite::{Connection, OptionalExtension, Transaction, params};
 use serde::Serialize;
 use std::collections::{BTreeMap, BTreeSet};
 
+use crate::store::sqlite::master::stored_zone;
 mod policy;
 mod reads;
 mod recounts;
@@ -37,8 +38,9 @@ fn pass_facts(conn: &Connection, pass_id: i64) -> Result<Option<PassFacts>, Stor
             "select p.id, p.uid, p.site_id, p.bin_id, b.code, p.task_id, t.est_s, u.name,
                     p.first_at, p.done_at, p.uncertainty_ms,
                     case when t.recount_of is not null then t.id end,
-                    coalesce(t.withdrawn_at is not null, 0), p.held
+                    coalesce(t.withdrawn_at is not null, 0), p.held, s.time_zone
              from count_pass p join bin b on b.id = p.bin_id
+             join site s on s.id = p.site_id
              join user_account u on u.id = p.user_id
              left join count_task t on t.id = p.task_id
              where p.id = ?1",
@@ -60,6 +62,7 @@ fn pass_facts(conn: &Connection, pass_id: i64) -> Result<Option<PassFacts>, Stor
                 recount_task: r.get(11)?,
                 withdrawn: r.get(12)?,
                 held: r.get(13)?,
+                zone: stored_zone(&r.get::<_, String>(14)?),
             })
         })
         .optional()?)

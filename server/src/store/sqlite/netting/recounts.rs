@@ -8,12 +8,11 @@
 use super::{ItemLot, json};
 use crate::master::SiteId;
 use crate::netting::pass::{OpenTask, Sent};
-use crate::netting::recount::{DayList, NewRecountTask, Rechecked, RecountTx, RunLoad};
+use crate::netting::recount::{DayList, NewRecountTask, Rechecked, RecountTx, RunLoad, SentResult};
 use crate::planning::abc::Class;
 use crate::store::StoreError;
 use crate::store::sqlite::Tx;
 use crate::time::Timestamp;
-use crate::time::day::SiteZone;
 use rusqlite::{Connection, OptionalExtension, Transaction, params};
 
 /// Reads the keys a recount task re-checks, each with the pass of its first count.
@@ -117,10 +116,6 @@ fn bump_list(tx: &Transaction, list: i64) -> Result<(), StoreError> {
 }
 
 impl RecountTx for Tx<'_> {
-    fn site_zone(&self, site: SiteId) -> Result<SiteZone, StoreError> {
-        crate::store::sqlite::master::site_zone(self, site)
-    }
-
     fn open_task_of(&self, pass: i64, supervisor: bool) -> Result<Option<(i64, i64)>, StoreError> {
         Ok(self
             .prepare_cached(
@@ -238,11 +233,31 @@ impl RecountTx for Tx<'_> {
         Ok(())
     }
 
-    fn result_class(&self, result: i64) -> Result<Option<Class>, StoreError> {
-        let c: Option<String> = self
-            .prepare_cached("select class from count_result where id = ?1")?
-            .query_row([result], |row| row.get(0))?;
-        Ok(c.as_deref().and_then(Class::parse))
+    fn sent_results(&self, results: &[i64]) -> Result<Vec<SentResult>, StoreError> {
+        let mut read = self.prepare_cached(
+            "select i.sku, r.lot, r.class from count_result r join item i on i.id = r.item_id
+             where r.id = ?1",
+        )?;
+        let mut ids = results.to_vec();
+        ids.sort_unstable();
+        ids.dedup();
+        ids.into_iter()
+            .map(|id| {
+                Ok(read.query_row([id], |r| {
+                    Ok(SentResult {
+                        key: Rechecked {
+                            result: id,
+                            sku: r.get(0)?,
+                            lot: r.get(1)?,
+                        },
+                        class: r
+                            .get::<_, Option<String>>(2)?
+                            .as_deref()
+                            .and_then(Class::parse),
+                    })
+                })?)
+            })
+            .collect()
     }
 
     fn bin_lines(&self, bin: i64) -> Result<i64, StoreError> {
