@@ -36,6 +36,9 @@ pub struct ServersSpec {
 pub struct ServerFigures {
     pub events: u64,
     pub cpu_s: f64,
+    /// Of `cpu_s`, the seconds spent in the kernel on the process's behalf (system
+    /// calls: sockets, and waking and parking its threads).
+    pub kernel_s: f64,
     /// Writes that took a site's lock, how many found it held by another transaction
     /// and waited, and the time taking the locks took in all (round trips included).
     pub locks: u64,
@@ -135,7 +138,7 @@ async fn phase(
 ) -> anyhow::Result<Phase> {
     let n = procs.len();
     let locks_before: Vec<LockFigures> = lock_figures(procs).await?;
-    let cpu_before: Vec<f64> = procs.iter().map(|p| cpu_seconds(p.child.id())).collect();
+    let cpu_before: Vec<CpuTime> = procs.iter().map(|p| cpu_time(p.child.id())).collect();
     let pg_before = postgres_cpu();
     let client_before = cpu_seconds(std::process::id());
     let started = Instant::now();
@@ -166,7 +169,9 @@ async fn phase(
     let postgres_cpu_s = postgres_cpu_since(&pg_before);
     let locks_after = lock_figures(procs).await?;
     for (i, s) in servers.iter_mut().enumerate() {
-        s.cpu_s = cpu_seconds(procs[i].child.id()) - cpu_before[i];
+        let cpu = cpu_time(procs[i].child.id());
+        s.cpu_s = cpu.total() - cpu_before[i].total();
+        s.kernel_s = cpu.kernel_s - cpu_before[i].kernel_s;
         s.locks = locks_after[i].count - locks_before[i].count;
         s.contended = locks_after[i].contended - locks_before[i].contended;
         s.lock_wait_s = locks_after[i].sum_s - locks_before[i].sum_s;
@@ -268,9 +273,22 @@ impl ServerProcess {
 /// architecture Cairn builds for).
 const TICKS_PER_S: f64 = 100.0;
 
-/// User and system CPU seconds process `pid` (all its threads) has used, from
-/// `/proc/PID/stat`; 0 where that cannot be read.
-pub fn cpu_seconds(pid: u32) -> f64 {
+/// CPU seconds a process (all its threads) has used, in user space and in the kernel.
+#[derive(Debug, Clone, Copy, Default)]
+pub struct CpuTime {
+    pub user_s: f64,
+    pub kernel_s: f64,
+}
+
+impl CpuTime {
+    pub fn total(&self) -> f64 {
+        self.user_s + self.kernel_s
+    }
+}
+
+/// The CPU time process `pid` has used, from `/proc/PID/stat`; zero where that cannot
+/// be read.
+pub fn cpu_time(pid: u32) -> CpuTime {
     std::fs::read_to_string(format!("/proc/{pid}/stat"))
         .ok()
         .and_then(|s| {
@@ -278,10 +296,18 @@ pub fn cpu_seconds(pid: u32) -> f64 {
             // utime the twelfth and stime the thirteenth.
             let rest = s.rsplit_once(')')?.1;
             let f: Vec<&str> = rest.split_whitespace().collect();
-            let ticks = f.get(11)?.parse::<u64>().ok()? + f.get(12)?.parse::<u64>().ok()?;
-            Some(ticks as f64 / TICKS_PER_S)
+            let ticks = |i: usize| Some(f.get(i)?.parse::<u64>().ok()? as f64 / TICKS_PER_S);
+            Some(CpuTime {
+                user_s: ticks(11)?,
+                kernel_s: ticks(12)?,
+            })
         })
-        .unwrap_or(0.0)
+        .unwrap_or_default()
+}
+
+/// User and system CPU seconds process `pid` has used (see [`cpu_time`]).
+pub fn cpu_seconds(pid: u32) -> f64 {
+    cpu_time(pid).total()
 }
 
 /// CPU seconds of every PostgreSQL process on this machine, by pid.
@@ -359,7 +385,7 @@ pub fn report(spec: &ServersSpec, phases: &[Phase]) -> String {
         let events = p.events().max(1) as f64;
         out += &format!(
             "{} server{}: {} events, {:.0} events/s; latency p50 {:.1} ms, p99 {:.1} ms; \
-             PostgreSQL {:.2} CPU s/1k events, load client {:.2}\n",
+             PostgreSQL {:.4} CPU s/1k events, load client {:.4}\n",
             p.servers.len(),
             if p.servers.len() == 1 { "" } else { "s" },
             p.events(),
@@ -370,13 +396,26 @@ pub fn report(spec: &ServersSpec, phases: &[Phase]) -> String {
             p.client_cpu_s / events * 1000.0,
         );
         for (i, s) in p.servers.iter().enumerate() {
+            let per_1k = |cpu: f64, events: u64| cpu / (events.max(1) as f64) * 1000.0;
+            let user_s = s.cpu_s - s.kernel_s;
+            let versus_one = match phases.first().and_then(|one| one.servers.first()) {
+                Some(one) if p.servers.len() > 1 && one.cpu_s > one.kernel_s => format!(
+                    " ({:.2} of one server's; in user space {:.2})",
+                    per_1k(s.cpu_s, s.events) / per_1k(one.cpu_s, one.events),
+                    per_1k(user_s, s.events) / per_1k(one.cpu_s - one.kernel_s, one.events),
+                ),
+                _ => String::new(),
+            };
             out += &format!(
-                "  server {}: {} events, {:.1} CPU s, {:.2} CPU s/1k events; {} site-lock \
-                 takes, {} found it held and waited, {:.3} s taking them in all\n",
+                "  server {}: {} events, {:.2} CPU s ({:.2} in the kernel), {:.4} CPU s/1k \
+                 events{}; {} site-lock takes, {} found it held and waited, {:.3} s taking \
+                 them in all\n",
                 i + 1,
                 s.events,
                 s.cpu_s,
-                s.cpu_s / (s.events.max(1) as f64) * 1000.0,
+                s.kernel_s,
+                per_1k(s.cpu_s, s.events),
+                versus_one,
                 s.locks,
                 s.contended,
                 s.lock_wait_s
