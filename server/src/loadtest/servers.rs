@@ -67,7 +67,8 @@ impl Phase {
     }
 }
 
-/// Runs the one-server phase, then the two-server phase; returns both.
+/// Runs the one-server phase, then the two-server phase, each in a scratch database of
+/// its own (so the second does not write into tables the first has grown); returns both.
 pub async fn run(spec: ServersSpec) -> anyhow::Result<Vec<Phase>> {
     ensure!(
         spec.sites >= 2 && spec.sites <= 99,
@@ -79,54 +80,57 @@ pub async fn run(spec: ServersSpec) -> anyhow::Result<Vec<Phase>> {
         spec.phones,
         spec.sites
     );
-    let scratch = Scratch::create(&spec.url).await?;
-    let outcome = phases(&spec, &scratch.url).await;
-    scratch.drop_now().await;
-    outcome
+    let mut out = Vec::new();
+    for servers in [1, 2] {
+        let scratch = Scratch::create(&spec.url).await?;
+        let outcome = servers_phase(&spec, &scratch.url, servers).await;
+        scratch.drop_now().await;
+        out.push(outcome?);
+    }
+    Ok(out)
 }
 
-async fn phases(spec: &ServersSpec, url: &str) -> anyhow::Result<Vec<Phase>> {
+/// Sets up the spec's sites and phones in the empty database `url`, starts `servers`
+/// server processes on it and drives the phones against them.
+async fn servers_phase(spec: &ServersSpec, url: &str, servers: usize) -> anyhow::Result<Phase> {
     let state = AppState::open(Config {
         db: DbLocation::Postgres(url.to_string()),
         ..Config::default()
     })?;
     let secrets = LoadSecrets::new().await?;
-    let mut out = Vec::new();
+    let codes: Vec<String> = (0..spec.sites)
+        .map(|s| format!("L{servers}S{s:02}"))
+        .collect();
+    let mut phones = Vec::new();
+    let mut admins = Vec::new();
     let mut next_user = 0;
-    for servers in [1, 2] {
-        // Fresh sites each phase, so both start from the same empty books.
-        let codes: Vec<String> = (0..spec.sites)
-            .map(|s| format!("L{servers}S{s:02}"))
-            .collect();
-        let mut phones = Vec::new();
-        let mut admins = Vec::new();
-        for (s, code) in codes.iter().enumerate() {
-            let n = spec.phones / spec.sites + usize::from(s < spec.phones % spec.sites);
-            let (tokens, admin) = set_up(&state, code, next_user, n, &secrets).await?;
-            for (b, token) in tokens.into_iter().enumerate() {
-                let phone = Phone {
-                    site: code.clone(),
-                    user: next_user + b,
-                    bin: b,
-                };
-                phones.push((s, phone, token));
-            }
-            next_user += n;
-            admins.push((code.clone(), admin, n));
+    for (s, code) in codes.iter().enumerate() {
+        let n = spec.phones / spec.sites + usize::from(s < spec.phones % spec.sites);
+        let (tokens, admin) = set_up(&state, code, next_user, n, &secrets).await?;
+        for (b, token) in tokens.into_iter().enumerate() {
+            let phone = Phone {
+                site: code.clone(),
+                user: next_user + b,
+                bin: b,
+            };
+            phones.push((s, phone, token));
         }
-        let mut procs = Vec::new();
-        for _ in 0..servers {
-            procs.push(ServerProcess::start(url)?);
-        }
-        for (code, admin, n) in &admins {
-            master_data(&procs[0].base, code, admin, *n).await?;
-        }
-        out.push(phase(spec, &procs, phones).await?);
-        for p in procs {
-            p.stop();
-        }
+        next_user += n;
+        admins.push((code.clone(), admin, n));
     }
-    Ok(out)
+    let mut procs = Vec::new();
+    for _ in 0..servers {
+        procs.push(ServerProcess::start(url)?);
+    }
+    for (code, admin, n) in &admins {
+        master_data(&procs[0].base, code, admin, *n).await?;
+    }
+    let outcome = phase(spec, &procs, phones).await;
+    for p in procs {
+        p.stop();
+    }
+    drop(state);
+    outcome
 }
 
 /// Drives `phones` (site index, phone, token) against `procs` (site s on server
