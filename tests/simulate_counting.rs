@@ -116,12 +116,14 @@ fn figures(rows: &[WeekRow]) -> (report::Totals, report::Totals) {
 }
 
 /// The issue's expectation: at equal minutes, `risk` finds more of the injected error
-/// value than `abc`. On the demo site it does not (see DEVELOPERS.md, "Counting
-/// simulation", for why: the fitted growth is flat for most items, so the optimiser
-/// leaves them at its longest interval). Kept as written and ignored, so the day the
-/// model learns what it misses, `cargo test -- --ignored` says so.
+/// value than `abc`. On the demo site it does not yet: with growth fitted from a count
+/// it is level (1,305.21 against 1,314.33 here, -0.7 %), no longer far behind; the demo
+/// world injects error at the same rate a pick for every item, so `abc` by value already
+/// follows where error arrives (DEVELOPERS.md, "Counting simulation"). Kept as written
+/// and ignored, so the day the model learns what it misses, `cargo test -- --ignored`
+/// says so.
 #[tokio::test]
-#[ignore = "risk finds less injected error value than abc on the demo site: flat growth fits (b = 0) park items at 730 days; see DEVELOPERS.md"]
+#[ignore = "risk is level with abc on the demo site (-0.7 %), not ahead: the demo injects error uniformly per pick; see DEVELOPERS.md"]
 async fn at_equal_minutes_risk_finds_more_injected_error_value_than_abc() {
     let s = demo_site(11).await;
     let r = run(&s, &spec(12, 60, 22)).await;
@@ -135,12 +137,12 @@ async fn at_equal_minutes_risk_finds_more_injected_error_value_than_abc() {
     );
 }
 
-/// Why the expectation above fails, asserted so that it is noticed when it stops being
-/// true: items whose fitted error growth is flat (`b = 0`: no more error for waiting
-/// longer) are left by `risk` at the longest interval, never counted, while `abc`
-/// counts them by class; the error left standing under `risk` sits on such items.
+/// What kept `risk` far behind before: items whose fitted growth was flat (`b = 0`:
+/// no more error for waiting longer) were left at the longest interval, never counted.
+/// Growth fitted from a count (`σ²(t) = b·t`) gives every item with counts a drift, so
+/// none is parked, and `risk` is within a few per cent of `abc` (it was about half).
 #[tokio::test]
-async fn risk_leaves_items_with_a_flat_growth_fit_uncounted_and_their_errors_standing() {
+async fn risk_parks_no_item_once_growth_is_fitted_from_a_count() {
     let s = demo_site(11).await;
     let r = run(&s, &spec(12, 60, 22)).await;
     let (abc, risk) = figures(&r.rows);
@@ -152,10 +154,12 @@ async fn risk_leaves_items_with_a_flat_growth_fit_uncounted_and_their_errors_sta
         risk.final_value_accuracy,
         r.flat_parked
     );
-    assert!(r.flat_parked > 0, "some item has a flat fit and is parked");
+    assert_eq!(r.flat_parked, 0, "no item is parked for a flat fit");
+    assert_eq!(r.flat_parked_error_value, 0.0);
     assert!(
-        r.flat_parked_error_value > 0.0,
-        "the error value risk leaves standing sits partly on parked items"
+        risk.error_value_found > 0.9 * abc.error_value_found,
+        "{}",
+        report::verdict(&abc, &risk)
     );
 }
 

@@ -21,6 +21,18 @@
 //! errors spread more where σ² is larger), which costs efficiency, not
 //! correctness. It assumes each count reset the record (an approved
 //! adjustment), so the error at a count is the drift since the previous one.
+//!
+//! **Growth from a count** ([`fit_growth_from_count`], what the risk policy
+//! uses to choose count intervals). A count leaves the record right, so the
+//! error found at the next count is drift alone: `σ²(t) = b·t`, through the
+//! origin. With few points the free intercept above soaks up the spread and
+//! leaves `b` near zero, which would tell the policy an item never needs
+//! counting. If `eᵢ ~ N(0, b·tᵢ)`, the log-likelihood is
+//! `−½ Σ [ln(2π·b·tᵢ) + eᵢ²/(b·tᵢ)]`; setting its derivative in `b`,
+//! `−½ Σ [1/b − eᵢ²/(b²·tᵢ)]`, to zero gives `b̂ = (1/n) Σ eᵢ²/tᵢ`. Each
+//! `eᵢ²/(b·tᵢ)` is χ² with one degree of freedom (variance 2), so
+//! `Var(b̂) = 2b²/n`. A recount within [`MIN_GAP_DAYS`] of the count before
+//! it re-finds that count's error rather than new drift and is left out.
 //! Pure arithmetic; no I/O.
 
 use super::stats::{self, StatsError};
@@ -32,6 +44,9 @@ pub const MIN_FIT_POINTS: usize = 8;
 /// Least standard deviation of the days between counts, in days, for the
 /// slope to be told apart from the intercept.
 pub const MIN_DAYS_SPREAD: f64 = 1.0;
+/// Fewest days between two counts for the later one to say how fast error
+/// grows (a same-day recount re-finds the first count's error).
+pub const MIN_GAP_DAYS: f64 = 1.0;
 /// Most counts or points one item's summary may take.
 pub const MAX_POINTS: usize = 100_000;
 /// Longest gap between counts accepted, in days (ten years).
@@ -183,8 +198,9 @@ pub fn summarize_item(counts: &[ItemCount]) -> Result<ItemError, ItemErrorError>
     })
 }
 
-/// Fits `σ²(t) = a + b·t` (a, b ≥ 0) to squared errors by least squares; see the module notes.
-pub fn fit_error_growth(points: &[ErrorPoint]) -> Result<ErrorGrowth, ItemErrorError> {
+/// Refuses more than [`MAX_POINTS`] points, days outside 0 to [`MAX_DAYS`] and
+/// errors that are not finite or beyond ±[`MAX_ERROR`], naming the point.
+fn check_points(points: &[ErrorPoint]) -> Result<(), ItemErrorError> {
     if points.len() > MAX_POINTS {
         return Err(ItemErrorError::TooMany { len: points.len() });
     }
@@ -197,6 +213,40 @@ pub fn fit_error_growth(points: &[ErrorPoint]) -> Result<ErrorGrowth, ItemErrorE
             return Err(ItemErrorError::BadError { index });
         }
     }
+    Ok(())
+}
+
+/// Fits `σ²(t) = b·t` (`a` = 0: the record is right just after a count) by maximum
+/// likelihood, `b = mean(eᵢ²/tᵢ)` over the points at least [`MIN_GAP_DAYS`] after the
+/// count before; needs [`MIN_FIT_POINTS`] such points. See the module notes.
+pub fn fit_growth_from_count(points: &[ErrorPoint]) -> Result<ErrorGrowth, ItemErrorError> {
+    check_points(points)?;
+    let ratios: Vec<f64> = points
+        .iter()
+        .filter(|p| p.days_since_previous >= MIN_GAP_DAYS)
+        .map(|p| p.error * p.error / p.days_since_previous)
+        .collect();
+    let n = ratios.len();
+    if n < MIN_FIT_POINTS {
+        return Ok(ErrorGrowth {
+            points: n,
+            fit: GrowthFit::NotEnoughData(Shortfall::TooFewPoints {
+                needed: MIN_FIT_POINTS,
+            }),
+        });
+    }
+    Ok(ErrorGrowth {
+        points: n,
+        fit: GrowthFit::Fitted {
+            a: 0.0,
+            b: ratios.iter().sum::<f64>() / n as f64,
+        },
+    })
+}
+
+/// Fits `σ²(t) = a + b·t` (a, b ≥ 0) to squared errors by least squares; see the module notes.
+pub fn fit_error_growth(points: &[ErrorPoint]) -> Result<ErrorGrowth, ItemErrorError> {
+    check_points(points)?;
     let n = points.len();
     let short = |reason| ErrorGrowth {
         points: n,
@@ -464,5 +514,72 @@ mod tests {
         assert!((b - 252.0 / 686.0).abs() < 1e-12, "{b}");
         let sigma = s.growth.sigma_rec(14.0).unwrap();
         assert!((sigma - (14.0 * 252.0 / 686.0f64).sqrt()).abs() < 1e-12);
+    }
+
+    #[test]
+    fn growth_from_a_count_is_the_mean_of_squared_error_over_days_by_hand() {
+        // Worked by hand: e²/t = 1/1, 4/4, 4/2, 16/8, 9/9, 0/2, 9/3, 25/5 = 1, 1, 2, 2, 1,
+        // 0, 3, 5; their mean is 15/8 = 1.875. The recount 0.2 days after its count (an
+        // error of 10) re-finds that count's error and is left out.
+        let points = [
+            point(1.0, 1.0),
+            point(4.0, -2.0),
+            point(2.0, 2.0),
+            point(8.0, 4.0),
+            point(9.0, -3.0),
+            point(2.0, 0.0),
+            point(0.2, 10.0),
+            point(3.0, 3.0),
+            point(5.0, -5.0),
+        ];
+        let g = fit_growth_from_count(&points).unwrap();
+        assert_eq!(g.points, 8);
+        assert_eq!(g.fit, GrowthFit::Fitted { a: 0.0, b: 1.875 });
+        // One point fewer than the least: not fitted, and says how many it needs.
+        let g = fit_growth_from_count(&points[..8]).unwrap();
+        assert_eq!(g.points, 7);
+        assert!(!g.enough());
+    }
+
+    #[test]
+    fn growth_from_a_count_recovers_a_known_drift_within_its_standard_error() {
+        // Errors drawn as N(0, b·t) with b = 0.5 (seeded); the estimate's standard error
+        // is b·sqrt(2/n) (χ² with one degree of freedom has variance 2).
+        let b: f64 = 0.5;
+        let n = 4000;
+        let mut rng = ChaCha8Rng::seed_from_u64(22);
+        let points: Vec<ErrorPoint> = (0..n)
+            .map(|_| {
+                let t: f64 = rng.random_range(1.0..60.0);
+                let e = Normal::new(0.0, (b * t).sqrt()).unwrap().sample(&mut rng);
+                point(t, e)
+            })
+            .collect();
+        let g = fit_growth_from_count(&points).unwrap();
+        let GrowthFit::Fitted { a, b: fitted } = g.fit else {
+            panic!("fitted from {n} points")
+        };
+        assert_eq!(a, 0.0);
+        let se = b * (2.0 / n as f64).sqrt();
+        assert!(
+            (fitted - b).abs() < 4.0 * se,
+            "b̂ {fitted} against {b} ± {se}"
+        );
+        // The free intercept's fit of the same points finds the same growth, less
+        // sharply: the two agree.
+        let GrowthFit::Fitted { b: ols_b, .. } = fit_error_growth(&points).unwrap().fit else {
+            panic!("fitted")
+        };
+        assert!((ols_b - b).abs() < 0.1, "least squares b {ols_b}");
+    }
+
+    #[test]
+    fn growth_from_a_count_refuses_a_bad_point_naming_it() {
+        let mut points = vec![point(2.0, 1.0); 9];
+        points[3] = point(f64::NAN, 1.0);
+        assert_eq!(
+            fit_growth_from_count(&points),
+            Err(ItemErrorError::BadDays { index: 3 })
+        );
     }
 }

@@ -185,7 +185,7 @@ pub struct ItemHistory {
     pub unit_cost_minor: i64,
     /// Picks a day over the last [`DEMAND_DAYS`].
     pub picks_per_day: f64,
-    /// The item's own growth fit.
+    /// The item's own growth from a count ([`fit`] of its points).
     pub growth: ErrorGrowth,
     /// The points of that fit, pooled with other items' when its own are too few.
     pub points: Vec<ErrorPoint>,
@@ -260,11 +260,12 @@ fn pool_name(p: &PoolKey, zones: &HashMap<i64, &str>) -> String {
     )
 }
 
-/// Fits the growth of a set of points, the first [`item_error::MAX_POINTS`] of them.
-fn fit(points: &[ErrorPoint]) -> Result<ErrorGrowth, RiskError> {
+/// Fits the growth from a count (`σ²(t) = b·t`, [`item_error::fit_growth_from_count`])
+/// of a set of points, the first [`item_error::MAX_POINTS`] of them.
+pub fn fit(points: &[ErrorPoint]) -> Result<ErrorGrowth, RiskError> {
     let points = &points[..points.len().min(item_error::MAX_POINTS)];
     // Points come from stored results, already bounded; a refusal would be a bug upstream.
-    item_error::fit_error_growth(points).map_err(|_| RiskError::BadFigure {
+    item_error::fit_growth_from_count(points).map_err(|_| RiskError::BadFigure {
         key: -1,
         what: "a stored error point",
     })

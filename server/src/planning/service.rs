@@ -138,15 +138,23 @@ async fn risk_plan(
         .iter()
         .map(|it| {
             let w = worth.get(&it.id);
-            let f = w.and_then(|w| figures.remove(&w.sku));
-            ItemHistory {
+            let points = w
+                .and_then(|w| figures.remove(&w.sku))
+                .map(|f| f.points)
+                .unwrap_or_default();
+            Ok(ItemHistory {
                 unit_cost_minor: w.map_or(0, |w| w.unit_cost_minor),
                 picks_per_day: w.map_or(0.0, |w| w.picks as f64 / DEMAND_DAYS as f64),
-                growth: f.as_ref().map_or(NO_GROWTH, |f| f.growth.growth),
-                points: f.map(|f| f.points).unwrap_or_default(),
-            }
+                growth: if points.is_empty() {
+                    NO_GROWTH
+                } else {
+                    policy::fit(&points)?
+                },
+                points,
+            })
         })
-        .collect();
+        .collect::<Result<_, super::risk::RiskError>>()
+        .map_err(|e| anyhow::anyhow!("an item's record-error growth: {e}"))?;
     let plan = policy::risk_plan(input, &history, policy)
         .map_err(|e| anyhow::anyhow!("the risk policy's choice: {e}"))?;
     Ok((plan, worth))

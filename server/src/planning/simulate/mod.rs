@@ -14,7 +14,7 @@ pub mod report;
 use super::abc::Class;
 use super::risk::{self, Floors, Growth, PoolKey, RateBand, RiskItem, Source};
 use crate::accuracy::buffer::{BufferInputs, buffer};
-use crate::accuracy::item_error::{ErrorGrowth, ErrorPoint, fit_error_growth};
+use crate::accuracy::item_error::{ErrorGrowth, ErrorPoint, fit_growth_from_count};
 use std::collections::{BTreeMap, BTreeSet};
 
 /// Most weeks one run may simulate (ten years).
@@ -514,7 +514,7 @@ fn count_bin(site: &SimSite, keys: &Keys, run: &mut Run, bin: usize, day: u32) {
 /// Returns each item's growth: its own fit, else its pool's (class × pick-rate band),
 /// else the site's (every point), else [`UNIT_GROWTH`].
 fn learned_growth(site: &SimSite, points: &[Vec<ErrorPoint>]) -> Vec<(Growth, Source)> {
-    let fit = |p: &[ErrorPoint]| fit_error_growth(p).ok().filter(ErrorGrowth::enough);
+    let fit = |p: &[ErrorPoint]| fit_growth_from_count(p).ok().filter(ErrorGrowth::enough);
     let pool_of = |i: usize| PoolKey {
         class: site.items[i].class,
         zone: 0,
@@ -538,7 +538,7 @@ fn learned_growth(site: &SimSite, points: &[Vec<ErrorPoint>]) -> Vec<(Growth, So
         .iter()
         .enumerate()
         .map(|(i, p)| {
-            let own = fit_error_growth(p).unwrap_or(ErrorGrowth {
+            let own = fit_growth_from_count(p).unwrap_or(ErrorGrowth {
                 points: 0,
                 fit: crate::accuracy::item_error::GrowthFit::NotEnoughData(
                     crate::accuracy::item_error::Shortfall::TooFewPoints { needed: 0 },

@@ -178,7 +178,9 @@ fn no_policy_spends_more_than_the_minutes_of_its_working_days() {
 
 #[test]
 fn risk_keeps_to_the_class_floors_it_is_given() {
-    let floors = [24, 12, 6];
+    // Floors tight enough to bind: with growth learned from a count, risk alone already
+    // counts every item of this small site at least every 46 days.
+    let floors = [52, 26, 26];
     let (site, days) = forty(floors, 30);
     let classes: Vec<Class> = site.items.iter().map(|i| i.class).collect();
     let sim = play(site, &days);
@@ -193,7 +195,7 @@ fn risk_keeps_to_the_class_floors_it_is_given() {
         sim.intervals(Policy::Risk)
             .iter()
             .zip(&classes)
-            .any(|(&t, c)| *c == Class::C && t > 365.0 / 6.0),
+            .any(|(&t, c)| *c == Class::C && t > 365.0 / 26.0),
         "{:?}",
         sim.intervals(Policy::Risk)
     );
