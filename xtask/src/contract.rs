@@ -68,39 +68,22 @@ pub fn run(root: &Path, bin: &Path) -> Result<()> {
         "--name",
         "Kestrel Lane North",
     ]))?;
-    let mut add = Command::new(bin)
-        .args([
-            "user",
-            "add",
-            "--db",
-            db_arg,
-            "--site",
-            "KLN",
+    add_user(
+        bin,
+        db_arg,
+        &[
             "--name",
             "ines",
             "--roles",
             "admin,inventory_manager,planner",
-            "--password-stdin",
-        ])
-        .stdin(Stdio::piped())
-        .stdout(Stdio::null())
-        .spawn()?;
-    add.stdin
-        .take()
-        .context("stdin was piped")?
-        .write_all(b"kestrel-lane-contract-run\n")?;
-    if !add.wait()?.success() {
-        bail!("cairn user add failed");
-    }
+        ],
+        "kestrel-lane-contract-run\n",
+    )?;
     // The counter of the document's enrolment example (`POST /devices`), PIN and all.
-    let mut add = Command::new(bin)
-        .args([
-            "user",
-            "add",
-            "--db",
-            db_arg,
-            "--site",
-            "KLN",
+    add_user(
+        bin,
+        db_arg,
+        &[
             "--name",
             COUNTER,
             "--display-name",
@@ -108,18 +91,9 @@ pub fn run(root: &Path, bin: &Path) -> Result<()> {
             "--roles",
             "counter",
             "--with-pin",
-            "--password-stdin",
-        ])
-        .stdin(Stdio::piped())
-        .stdout(Stdio::null())
-        .spawn()?;
-    add.stdin
-        .take()
-        .context("stdin was piped")?
-        .write_all(format!("kestrel-lane-counter-run\n{COUNTER_PIN}\n").as_bytes())?;
-    if !add.wait()?.success() {
-        bail!("cairn user add (the counter) failed");
-    }
+        ],
+        &format!("kestrel-lane-counter-run\n{COUNTER_PIN}\n"),
+    )?;
     for kind in ["bins", "items", "packs", "movements"] {
         let file = seeds.join(format!("{kind}.csv"));
         quiet(
@@ -325,6 +299,25 @@ fn count_one_bin(url: &str, phone: &str, admin: &str) -> Result<i64> {
         .and_then(|rows| rows.first())
         .and_then(|r| r["id"].as_i64())
         .with_context(|| format!("no count result after the phone's count: {results}"))
+}
+
+/// Adds a user at KLN with `args` (name, roles, …), the secrets given on standard input.
+fn add_user(bin: &Path, db: &str, args: &[&str], secrets: &str) -> Result<()> {
+    let mut add = Command::new(bin)
+        .args(["user", "add", "--db", db, "--site", "KLN"])
+        .args(args)
+        .arg("--password-stdin")
+        .stdin(Stdio::piped())
+        .stdout(Stdio::null())
+        .spawn()?;
+    add.stdin
+        .take()
+        .context("stdin was piped")?
+        .write_all(secrets.as_bytes())?;
+    if !add.wait()?.success() {
+        bail!("cairn user add {args:?} failed");
+    }
+    Ok(())
 }
 
 /// Runs a command, showing its output only when it fails.
