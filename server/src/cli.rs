@@ -254,6 +254,10 @@ enum Command {
         /// Each phone syncs once per this many ms (staggered); 0 sends back to back.
         #[arg(long, default_value_t = 0)]
         interval_ms: u64,
+        /// With --db: run the one-server and two-server phases this many times in turn
+        /// and end with the median and range of the ratios (1 to 20).
+        #[arg(long, default_value_t = 1)]
+        rounds: usize,
     },
     /// Check settings files.
     Config {
@@ -932,8 +936,14 @@ async fn dispatch(command: Command) -> anyhow::Result<()> {
             seconds,
             batch,
             interval_ms,
+            rounds,
             ..
         } => {
+            anyhow::ensure!(
+                (1..=crate::loadtest::servers::MAX_ROUNDS).contains(&rounds),
+                "--rounds is 1 to {} (got {rounds})",
+                crate::loadtest::servers::MAX_ROUNDS
+            );
             anyhow::ensure!(
                 matches!(
                     DbLocation::parse(&url).map_err(anyhow::Error::msg)?,
@@ -950,8 +960,18 @@ async fn dispatch(command: Command) -> anyhow::Result<()> {
                 batch,
                 interval: std::time::Duration::from_millis(interval_ms),
             };
-            let phases = crate::loadtest::servers::run(spec.clone()).await?;
-            out!("{}", crate::loadtest::servers::report(&spec, &phases))?;
+            let mut ratios = Vec::new();
+            for round in 1..=rounds {
+                if rounds > 1 {
+                    outln!("round {round} of {rounds}")?;
+                }
+                let phases = crate::loadtest::servers::run(spec.clone()).await?;
+                out!("{}", crate::loadtest::servers::report(&spec, &phases))?;
+                ratios.extend(crate::loadtest::servers::RoundRatios::of(&phases));
+            }
+            if rounds > 1 {
+                out!("{}", crate::loadtest::servers::summary(&ratios))?;
+            }
             Ok(())
         }
         Command::Loadtest {
@@ -960,8 +980,13 @@ async fn dispatch(command: Command) -> anyhow::Result<()> {
             batch,
             synchronous,
             interval_ms,
+            rounds,
             ..
         } => {
+            anyhow::ensure!(
+                rounds == 1,
+                "--rounds compares one and two servers on PostgreSQL: it needs --db postgres://…"
+            );
             let outcome = crate::loadtest::run(crate::loadtest::Spec {
                 phones,
                 seconds,

@@ -31,6 +31,10 @@ pub struct ServersSpec {
     pub interval: Duration,
 }
 
+/// Rounds of the pair of phases one run may ask for (`--rounds`): enough to see the
+/// spread on a shared machine, few enough that a typo does not keep it busy for hours.
+pub const MAX_ROUNDS: usize = 20;
+
 /// One server process during one phase.
 #[derive(Debug, Clone, Default)]
 pub struct ServerFigures {
@@ -44,6 +48,18 @@ pub struct ServerFigures {
     pub locks: u64,
     pub contended: u64,
     pub lock_wait_s: f64,
+}
+
+impl ServerFigures {
+    /// CPU seconds per 1,000 events, all of them or those in user space only.
+    pub fn cpu_per_1k(&self, user_only: bool) -> f64 {
+        let cpu = if user_only {
+            self.cpu_s - self.kernel_s
+        } else {
+            self.cpu_s
+        };
+        cpu / (self.events.max(1) as f64) * 1000.0
+    }
 }
 
 /// One phase: the same phones against `servers.len()` servers.
@@ -400,13 +416,11 @@ pub fn report(spec: &ServersSpec, phases: &[Phase]) -> String {
             p.client_cpu_s / events * 1000.0,
         );
         for (i, s) in p.servers.iter().enumerate() {
-            let per_1k = |cpu: f64, events: u64| cpu / (events.max(1) as f64) * 1000.0;
-            let user_s = s.cpu_s - s.kernel_s;
             let versus_one = match phases.first().and_then(|one| one.servers.first()) {
                 Some(one) if p.servers.len() > 1 && one.cpu_s > one.kernel_s => format!(
                     " ({:.2} of one server's; in user space {:.2})",
-                    per_1k(s.cpu_s, s.events) / per_1k(one.cpu_s, one.events),
-                    per_1k(user_s, s.events) / per_1k(one.cpu_s - one.kernel_s, one.events),
+                    s.cpu_per_1k(false) / one.cpu_per_1k(false),
+                    s.cpu_per_1k(true) / one.cpu_per_1k(true),
                 ),
                 _ => String::new(),
             };
@@ -418,7 +432,7 @@ pub fn report(spec: &ServersSpec, phases: &[Phase]) -> String {
                 s.events,
                 s.cpu_s,
                 s.kernel_s,
-                per_1k(s.cpu_s, s.events),
+                s.cpu_per_1k(false),
                 versus_one,
                 s.locks,
                 s.contended,
@@ -427,6 +441,67 @@ pub fn report(spec: &ServersSpec, phases: &[Phase]) -> String {
         }
     }
     out
+}
+
+/// What one round (a one-server phase, then a two-server phase) says about scaling
+/// out: the two servers' events a second over the one's, and each server of two's CPU
+/// an event over the one server's.
+#[derive(Debug, Clone, PartialEq)]
+pub struct RoundRatios {
+    pub total: f64,
+    pub per_event: Vec<f64>,
+}
+
+impl RoundRatios {
+    /// The ratios of a round's phases (`None` unless it has a one-server phase and a
+    /// phase of more, with events and CPU to divide by).
+    pub fn of(phases: &[Phase]) -> Option<Self> {
+        let [one_phase, two, ..] = phases else {
+            return None;
+        };
+        let one = one_phase.servers.first()?;
+        if one.events == 0 || one.cpu_s <= 0.0 || two.servers.len() < 2 {
+            return None;
+        }
+        Some(Self {
+            total: two.events_per_s() / one_phase.events_per_s(),
+            per_event: two
+                .servers
+                .iter()
+                .map(|s| s.cpu_per_1k(false) / one.cpu_per_1k(false))
+                .collect(),
+        })
+    }
+}
+
+/// The closing lines of a run of several rounds: the median and range of both ratios,
+/// so one noisy round on a shared machine is seen for what it is.
+pub fn summary(rounds: &[RoundRatios]) -> String {
+    fn spread(mut v: Vec<f64>) -> String {
+        if v.is_empty() {
+            return "no figures".to_string();
+        }
+        v.sort_by(f64::total_cmp);
+        let n = v.len();
+        let median = if n % 2 == 1 {
+            v[n / 2]
+        } else {
+            (v[n / 2 - 1] + v[n / 2]) / 2.0
+        };
+        let mean = v.iter().sum::<f64>() / n as f64;
+        format!(
+            "median {median:.2}, mean {mean:.2}, range {:.2}-{:.2} ({n} figures)",
+            v[0],
+            v[n - 1]
+        )
+    }
+    format!(
+        "{} rounds. Two servers' events/s over one server's: {}.\n\
+         Each server of two, CPU an event over the one server's: {}.\n",
+        rounds.len(),
+        spread(rounds.iter().map(|r| r.total).collect()),
+        spread(rounds.iter().flat_map(|r| r.per_event.clone()).collect()),
+    )
 }
 
 #[cfg(test)]
@@ -442,6 +517,70 @@ mod tests {
         let f = LockFigures::read(text);
         assert_eq!((f.count, f.contended), (12, 3));
         assert!((f.sum_s - 0.25).abs() < 1e-12);
+    }
+
+    fn server(events: u64, cpu_s: f64) -> ServerFigures {
+        ServerFigures {
+            events,
+            cpu_s,
+            kernel_s: cpu_s / 4.0,
+            ..ServerFigures::default()
+        }
+    }
+
+    fn phase(servers: Vec<ServerFigures>) -> Phase {
+        Phase {
+            servers,
+            elapsed: Duration::from_secs(10),
+            p50_ms: 0.0,
+            p99_ms: 0.0,
+            postgres_cpu_s: 0.0,
+            client_cpu_s: 0.0,
+        }
+    }
+
+    #[test]
+    fn a_round_compares_each_server_of_two_with_the_one() {
+        // One server: 1,000 events for 2 CPU s (2 s/1k). Two: 600 events for 1.5 s
+        // (2.5 s/1k, 1.25 of one) and 600 for 1.2 s (2 s/1k, 1.00); 1,200 in all.
+        let r = RoundRatios::of(&[
+            phase(vec![server(1000, 2.0)]),
+            phase(vec![server(600, 1.5), server(600, 1.2)]),
+        ])
+        .expect("both phases have events and CPU");
+        assert!((r.total - 1.2).abs() < 1e-12, "{r:?}");
+        assert!((r.per_event[0] - 1.25).abs() < 1e-12, "{r:?}");
+        assert!((r.per_event[1] - 1.0).abs() < 1e-12, "{r:?}");
+        assert_eq!(RoundRatios::of(&[phase(vec![server(0, 0.0)])]), None);
+    }
+
+    #[test]
+    fn the_summary_gives_median_mean_and_range() {
+        let rounds = [
+            RoundRatios {
+                total: 1.1,
+                per_event: vec![0.9, 1.0],
+            },
+            RoundRatios {
+                total: 0.9,
+                per_event: vec![1.2, 1.1],
+            },
+            RoundRatios {
+                total: 1.0,
+                per_event: vec![1.0, 1.0],
+            },
+        ];
+        let text = summary(&rounds);
+        assert!(
+            text.contains(
+                "events/s over one server's: median 1.00, mean 1.00, range 0.90-1.10 (3 figures)"
+            ),
+            "{text}"
+        );
+        assert!(
+            text.contains("median 1.00, mean 1.03, range 0.90-1.20 (6 figures)"),
+            "{text}"
+        );
     }
 
     #[test]
