@@ -291,6 +291,8 @@ fn loadtest_compares_one_and_two_servers_and_drops_its_scratch_database() {
             "2",
             "--seconds",
             "1",
+            "--rounds",
+            "2",
         ])
         .output()
         .expect("cairn runs");
@@ -300,9 +302,20 @@ fn loadtest_compares_one_and_two_servers_and_drops_its_scratch_database() {
         "{text}{}",
         String::from_utf8_lossy(&out.stderr)
     );
-    for line in ["1 server: ", "2 servers: ", "  server 2: "] {
+    for line in [
+        "round 2 of 2\n",
+        "1 server: ",
+        "2 servers: ",
+        "  server 2: ",
+        "2 rounds. Two servers' events/s over one server's: median ",
+        "Each server of two, CPU an event over the one server's: median ",
+    ] {
         assert!(text.contains(line), "{line:?} missing:\n{text}");
     }
+    assert!(
+        text.contains("(4 figures)"),
+        "two rounds, two servers each:\n{text}"
+    );
     // Each server wrote its own sites, one phone a site. A site's lock is keyed by the
     // site, so only a write of the same site (a phone's resend after a timeout on a busy
     // machine, a background job) can find it held: rare. Sites sharing a lock would make
@@ -328,7 +341,7 @@ fn loadtest_compares_one_and_two_servers_and_drops_its_scratch_database() {
         );
         servers += 1;
     }
-    assert_eq!(servers, 3, "one server, then two: {text}");
+    assert_eq!(servers, 6, "one server, then two, twice: {text}");
     let left = common::sql_i64_on(
         Some(&admin),
         std::path::Path::new(""),
