@@ -9,7 +9,7 @@ use cairn::demo::replay::{Replay, ReplaySpec, replay};
 use cairn::demo::{self, DemoSpec};
 use cairn::master::{NewSite, Site, SiteCode};
 use cairn::planning::simulate::report::{self, Shown};
-use cairn::planning::simulate::{Policy, WeekRow};
+use cairn::planning::simulate::{ErrorModel, Policy, WeekRow};
 use cairn::store::{DbLocation, Store, StoreOptions};
 use chrono::NaiveDate;
 use std::process::Command;
@@ -75,6 +75,7 @@ fn spec(weeks: u32, minutes: u32, seed: u64) -> ReplaySpec {
         floors: [0, 0, 0],
         start: Some(start()),
         show: false,
+        model: ErrorModel::Jump,
     }
 }
 
@@ -116,14 +117,14 @@ fn figures(rows: &[WeekRow]) -> (report::Totals, report::Totals) {
 }
 
 /// The issue's expectation: at equal minutes, `risk` finds more of the injected error
-/// value than `abc`. On the demo site it does not yet: with growth fitted from a count
-/// it is level (1,305.21 against 1,314.33 here, -0.7 %), no longer far behind; the demo
-/// world injects error at the same rate a pick for every item, so `abc` by value already
-/// follows where error arrives (DEVELOPERS.md, "Counting simulation"). Kept as written
-/// and ignored, so the day the model learns what it misses, `cargo test -- --ignored`
-/// says so.
+/// value than `abc`. With error charged as rare jumps (DEVELOPERS.md, "Error arriving in
+/// jumps") it does on the full demo site at 60 minutes (+17.6 %), but this small site
+/// cannot show it: at 60 minutes both find every injected error (1,314.33 each, value
+/// accuracy 100 % at the end), `risk` about twice as soon (mean age 2.4 days against
+/// 4.5). Kept as written and ignored: a budget tight enough to separate them here would
+/// be a setting chosen after seeing the result.
 #[tokio::test]
-#[ignore = "risk is level with abc on the demo site (-0.7 %), not ahead: the demo injects error uniformly per pick; see DEVELOPERS.md"]
+#[ignore = "both policies find every injected error on the small test site at 60 minutes (1,314.33 each), so neither can find more; risk finds them sooner; see DEVELOPERS.md"]
 async fn at_equal_minutes_risk_finds_more_injected_error_value_than_abc() {
     let s = demo_site(11).await;
     let r = run(&s, &spec(12, 60, 22)).await;
@@ -140,27 +141,40 @@ async fn at_equal_minutes_risk_finds_more_injected_error_value_than_abc() {
 /// What kept `risk` far behind before: items whose fitted growth was flat (`b = 0`:
 /// no more error for waiting longer) were left at the longest interval, never counted.
 /// Growth fitted from a count (`σ²(t) = b·t`) gives every item with counts a drift, so
-/// none is parked, and `risk` is within a few per cent of `abc` (it was about half).
+/// none is parked, and `risk` is within a few per cent of `abc` (it was about half). The
+/// jump model gives every item a rate from its picks at least, so it parks none either.
 #[tokio::test]
 async fn risk_parks_no_item_once_growth_is_fitted_from_a_count() {
     let s = demo_site(11).await;
-    let r = run(&s, &spec(12, 60, 22)).await;
-    let (abc, risk) = figures(&r.rows);
-    eprintln!(
-        "demo site, 12 weeks at 60 minutes: {}; final value accuracy abc {:.4}, risk {:.4}; \
-         risk parked {} items with flat growth at the longest interval",
-        report::verdict(&abc, &risk),
-        abc.final_value_accuracy,
-        risk.final_value_accuracy,
-        r.flat_parked
-    );
-    assert_eq!(r.flat_parked, 0, "no item is parked for a flat fit");
-    assert_eq!(r.flat_parked_error_value, 0.0);
-    assert!(
-        risk.error_value_found > 0.9 * abc.error_value_found,
-        "{}",
-        report::verdict(&abc, &risk)
-    );
+    for model in [ErrorModel::Walk, ErrorModel::Jump] {
+        let r = run(
+            &s,
+            &ReplaySpec {
+                model,
+                ..spec(12, 60, 22)
+            },
+        )
+        .await;
+        let (abc, risk) = figures(&r.rows);
+        eprintln!(
+            "demo site, 12 weeks at 60 minutes, {model:?}: {}; final value accuracy abc {:.4}, \
+             risk {:.4}; risk parked {} items with flat growth at the longest interval",
+            report::verdict(&abc, &risk),
+            abc.final_value_accuracy,
+            risk.final_value_accuracy,
+            r.flat_parked
+        );
+        assert_eq!(
+            r.flat_parked, 0,
+            "{model:?}: no item is parked for a flat fit"
+        );
+        assert_eq!(r.flat_parked_error_value, 0.0);
+        assert!(
+            risk.error_value_found > 0.9 * abc.error_value_found,
+            "{model:?}: {}",
+            report::verdict(&abc, &risk)
+        );
+    }
 }
 
 #[tokio::test]

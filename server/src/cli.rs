@@ -145,6 +145,11 @@ enum Command {
         /// (0: no floor), e.g. `--floors 12,4,1`.
         #[arg(long, value_delimiter = ',', default_values_t = [0, 0, 0])]
         floors: Vec<u32>,
+        /// How `risk` models record error growing after a count: `jump` (errors arrive
+        /// as rare jumps, a rate per item learned from its counts and its picks) or `walk`
+        /// (a random walk, variance growing linearly: the wired policy's model).
+        #[arg(long, value_enum, default_value_t = SimErrorModel::Jump)]
+        error_model: SimErrorModel,
         /// The run's first day, YYYY-MM-DD: demand is read over the 28 days before it and
         /// the book and shelf as they stand now (default: today at the site).
         #[arg(long)]
@@ -303,6 +308,12 @@ enum ProposedPolicy {
     Abc,
     Risk,
     Both,
+}
+
+#[derive(Clone, Copy, clap::ValueEnum)]
+enum SimErrorModel {
+    Jump,
+    Walk,
 }
 
 #[derive(Clone, Copy, clap::ValueEnum)]
@@ -752,10 +763,11 @@ async fn dispatch(command: Command) -> anyhow::Result<()> {
             policy,
             seed,
             floors,
+            error_model,
             start,
             svg,
         } => {
-            use crate::planning::simulate::{Policy, report};
+            use crate::planning::simulate::{ErrorModel, Policy, report};
             db.must_exist("")?;
             let floors: [u32; 3] = floors
                 .try_into()
@@ -779,6 +791,10 @@ async fn dispatch(command: Command) -> anyhow::Result<()> {
                 floors,
                 start,
                 show: std::io::IsTerminal::is_terminal(&std::io::stderr()),
+                model: match error_model {
+                    SimErrorModel::Jump => ErrorModel::Jump,
+                    SimErrorModel::Walk => ErrorModel::Walk,
+                },
             };
             let run = demo::replay::replay(store, &site, &spec).await?;
             let shown = match policy {

@@ -10,7 +10,9 @@ use crate::master::{NewBin, NewItem, Site};
 use crate::planning::abc::{self, Class};
 use crate::planning::plan::{self, Capacity, Fill};
 use crate::planning::risk::{Floors, MAX_INTERVAL_DAYS};
-use crate::planning::simulate::{Keys, Policy, SimError, SimItem, SimSite, Simulation, WeekRow};
+use crate::planning::simulate::{
+    ErrorModel, Keys, Policy, SimError, SimItem, SimSite, Simulation, WeekRow,
+};
 use crate::store::{Store, StoreError};
 use chrono::{Datelike, Days, NaiveDate, Weekday};
 use indicatif::{ProgressBar, ProgressStyle};
@@ -38,6 +40,8 @@ pub struct ReplaySpec {
     pub start: Option<NaiveDate>,
     /// Draw a progress bar on the terminal.
     pub show: bool,
+    /// How `risk` models error growth.
+    pub model: ErrorModel,
 }
 
 /// What a run found, and what it started from.
@@ -268,6 +272,7 @@ pub async fn replay(
         floors: Floors {
             per_year: spec.floors,
         },
+        model: spec.model,
     };
     let mut sim = Simulation::new(site_sim, spec.weeks)?;
     let wrong_at_start = keys.iter().filter(|k| k.3 != k.4).count();
@@ -306,7 +311,7 @@ pub async fn replay(
         .filter(|&i| {
             intervals[i].is_finite()
                 && intervals[i] >= MAX_INTERVAL_DAYS * (1.0 - 1e-9)
-                && sim.growth(Policy::Risk)[i].b <= 0.0
+                && !sim.drift(Policy::Risk)[i].grows()
         })
         .collect();
     Ok(Replay {
@@ -339,7 +344,7 @@ impl Replay {
         }
         format!(
             "note: risk left {} items at its longest interval ({} days) because their fitted \
-             error growth is flat (b = 0: waiting adds no error by the fit), with {} of error \
+             error growth is flat (waiting adds no error by the fit), with {} of error \
              standing on them at the end\n",
             self.flat_parked,
             MAX_INTERVAL_DAYS,
@@ -351,6 +356,16 @@ impl Replay {
     pub fn preamble(&self, site: &str, spec: &ReplaySpec) -> String {
         let [a, b, c] = self.per_year;
         let [fa, fb, fc] = spec.floors;
+        let model = match spec.model {
+            ErrorModel::Jump => {
+                "error arriving in jumps, each item's rate shrunk toward its pool's rate per pick \
+                 (pools: class x pick rate)"
+            }
+            ErrorModel::Walk => {
+                "error growth sigma^2 = b*t learned from its own counts (item, else class x pick \
+                 rate, else site, else unit growth)"
+            }
+        };
         let floors = if spec.floors == [0, 0, 0] {
             "no class floor".to_string()
         } else {
@@ -361,7 +376,7 @@ impl Replay {
              World: the site's book and the demo's shelf truth on {start} ({keys} keys, {wrong} wrong), \
              carried forward by the demo's own error process: {up} unrecorded picks, {mk} mis-keyed picks, {mp} mis-putaways injected\n\
              abc:  class counts a year {a}/{b}/{c} x {scale:.2} to spend the same minutes\n\
-             risk: intervals from the risk optimiser, error growth learned from its own counts (item, else class x pick rate, else site, else unit growth); {floors}\n\n",
+             risk: intervals from the risk optimiser, {model}; {floors}\n\n",
             weeks = spec.weeks,
             start = self.start,
             minutes = spec.minutes,

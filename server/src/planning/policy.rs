@@ -221,16 +221,14 @@ pub struct ItemRisk {
     /// Its class floor, not its risk, set the interval.
     pub at_floor: bool,
     #[serde(skip)]
-    pub fit: Growth,
+    pub fit: risk::Drift,
 }
 
 impl ItemRisk {
     /// Returns the risk score `days` calendar days after a count: the expected
     /// absolute error value standing then, `c·sqrt(2/π)·sqrt(a + b·days)`, minor units.
     pub fn score_at(&self, days: f64) -> f64 {
-        self.unit_cost_minor as f64
-            * risk::HALF_NORMAL_MEAN
-            * (self.fit.a + self.fit.b * days.max(0.0)).sqrt()
+        self.unit_cost_minor as f64 * self.fit.expected_abs(days.max(0.0))
     }
 }
 
@@ -365,7 +363,7 @@ pub fn risk_plan(
         items.push(RiskItem {
             key: i as i64,
             class: it.class,
-            growth,
+            drift: risk::Drift::Walk(growth),
             source,
             unit_cost: h.unit_cost_minor.max(0) as f64,
             minutes: minutes.max(1.0 / 60.0),
@@ -400,7 +398,7 @@ pub fn risk_plan(
             unit_cost_minor: item.unit_cost as i64,
             growth: why,
             at_floor: interval.at_floor || working_days == floor_wd,
-            fit: item.growth,
+            fit: item.drift,
         });
     }
     Ok(out)
