@@ -5,7 +5,7 @@
 
 mod common;
 
-use cairn::demo::replay::{Replay, ReplaySpec, replay};
+use cairn::demo::replay::{Replay, ReplaySpec, WorldKind, replay};
 use cairn::demo::{self, DemoSpec};
 use cairn::master::{NewSite, Site, SiteCode};
 use cairn::planning::simulate::report::{self, Shown};
@@ -76,6 +76,7 @@ fn spec(weeks: u32, minutes: u32, seed: u64) -> ReplaySpec {
         start: Some(start()),
         show: false,
         model: ErrorModel::Jump,
+        world: WorldKind::Uniform,
     }
 }
 
@@ -107,6 +108,49 @@ async fn the_same_seed_gives_the_same_weeks_and_another_seed_does_not() {
     );
     // It started from the site's book and the demo's shelf truth: some keys were wrong.
     assert!(one.wrong_at_start > 0, "{}", one.wrong_at_start);
+}
+
+#[test]
+fn the_uneven_worlds_multipliers_average_one_and_come_from_the_seed() {
+    // A log-normal with μ = −σ²/2 has mean e^{μ + σ²/2} = 1 (standard result, stated from
+    // memory); the cap at 20 trims a negligible tail (P(X > 20) = Φ̄((ln 20 + 0.5) / 1) ≈ 2e-4 at σ = 1).
+    let m = cairn::demo::replay::uneven_propensity(200_000, 22);
+    let mean = m.iter().sum::<f64>() / m.len() as f64;
+    assert!((mean - 1.0).abs() < 0.02, "{mean}");
+    assert!(
+        m.iter()
+            .all(|&x| x > 0.0 && x <= cairn::demo::replay::MAX_PROPENSITY)
+    );
+    assert_eq!(m[..10], cairn::demo::replay::uneven_propensity(10, 22)[..]);
+    assert_ne!(m[..10], cairn::demo::replay::uneven_propensity(10, 23)[..]);
+}
+
+#[tokio::test]
+async fn the_uneven_world_moves_errors_between_items_but_not_the_worlds_other_draws() {
+    let s = demo_site(11).await;
+    let uniform = run(&s, &spec(6, 60, 5)).await;
+    let uneven = run(
+        &s,
+        &ReplaySpec {
+            world: WorldKind::Uneven,
+            ..spec(6, 60, 5)
+        },
+    )
+    .await;
+    assert_ne!(uniform.rows, uneven.rows, "other items go wrong");
+    // The same picks and top-ups are drawn (stream 0 of the seed): the count of errors
+    // injected moves with the multipliers, the keys the world starts from do not.
+    assert_eq!(uniform.keys, uneven.keys);
+    assert_eq!(uniform.wrong_at_start, uneven.wrong_at_start);
+    let again = run(
+        &s,
+        &ReplaySpec {
+            world: WorldKind::Uneven,
+            ..spec(6, 60, 5)
+        },
+    )
+    .await;
+    assert_eq!(uneven.rows, again.rows);
 }
 
 fn figures(rows: &[WeekRow]) -> (report::Totals, report::Totals) {

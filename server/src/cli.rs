@@ -150,6 +150,11 @@ enum Command {
         /// (a random walk, variance growing linearly: the wired policy's model).
         #[arg(long, value_enum, default_value_t = SimErrorModel::Jump)]
         error_model: SimErrorModel,
+        /// How the weeks simulated spread errors among items: `uniform` (the demo's
+        /// rates for every item) or `uneven` (those rates times a log-normal multiplier
+        /// per item, mean 1, drawn from the seed).
+        #[arg(long, value_enum, default_value_t = SimWorld::Uniform)]
+        world: SimWorld,
         /// The run's first day, YYYY-MM-DD: demand is read over the 28 days before it and
         /// the book and shelf as they stand now (default: today at the site).
         #[arg(long)]
@@ -314,6 +319,12 @@ enum ProposedPolicy {
 enum SimErrorModel {
     Jump,
     Walk,
+}
+
+#[derive(Clone, Copy, clap::ValueEnum)]
+enum SimWorld {
+    Uniform,
+    Uneven,
 }
 
 #[derive(Clone, Copy, clap::ValueEnum)]
@@ -764,6 +775,7 @@ async fn dispatch(command: Command) -> anyhow::Result<()> {
             seed,
             floors,
             error_model,
+            world,
             start,
             svg,
         } => {
@@ -794,6 +806,10 @@ async fn dispatch(command: Command) -> anyhow::Result<()> {
                 model: match error_model {
                     SimErrorModel::Jump => ErrorModel::Jump,
                     SimErrorModel::Walk => ErrorModel::Walk,
+                },
+                world: match world {
+                    SimWorld::Uniform => demo::replay::WorldKind::Uniform,
+                    SimWorld::Uneven => demo::replay::WorldKind::Uneven,
                 },
             };
             let run = demo::replay::replay(store, &site, &spec).await?;

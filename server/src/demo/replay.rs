@@ -18,6 +18,7 @@ use chrono::{Datelike, Days, NaiveDate, Weekday};
 use indicatif::{ProgressBar, ProgressStyle};
 use rand::SeedableRng;
 use rand_chacha::ChaCha8Rng;
+use rand_distr::{Distribution, LogNormal};
 use std::collections::{BTreeMap, BTreeSet};
 
 /// Calendar days of picks the demand is read over (four weeks).
@@ -25,6 +26,38 @@ pub const DEMAND_DAYS: u64 = 28;
 /// Largest quantity of one pick the replayed world draws (the demo's range is 1 to 4;
 /// the site's records do not say which an item had, so every item takes 2).
 const MAX_PICK: u32 = 2;
+
+/// Spread of the uneven world's per-item error multipliers: the σ of their logarithm
+/// (our scenario's assumption, not measured: most items rarely go wrong and a few —
+/// loose small parts, awkward bins — often; with σ = 1 the tenth of the items most
+/// prone carry `1 − Φ(z₀.₉ − σ) = 1 − Φ(0.28)` ≈ 39 % of the chance of error).
+pub const UNEVEN_LOG_SD: f64 = 1.0;
+/// Largest multiplier drawn, so every chance stays well below 1.
+pub const MAX_PROPENSITY: f64 = 20.0;
+
+/// How the forward simulation injects errors among items.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Default)]
+pub enum WorldKind {
+    /// At the demo's rates for every item, as the demo's own history does.
+    #[default]
+    Uniform,
+    /// At the demo's rates times a multiplier per item, log-normal with mean 1
+    /// ([`UNEVEN_LOG_SD`]), drawn from the seed on a stream of its own.
+    Uneven,
+}
+
+/// Returns one error multiplier per item for an uneven world: log-normal with mean 1,
+/// capped at [`MAX_PROPENSITY`], drawn from stream 1 of `seed` (the world's own draws
+/// use stream 0, so they are the same as in the uniform world).
+pub fn uneven_propensity(items: usize, seed: u64) -> Vec<f64> {
+    let mut rng = ChaCha8Rng::seed_from_u64(seed);
+    rng.set_stream(1);
+    let sd = UNEVEN_LOG_SD;
+    let dist = LogNormal::new(-sd * sd / 2.0, sd).expect("a finite, positive spread");
+    (0..items)
+        .map(|_| dist.sample(&mut rng).min(MAX_PROPENSITY))
+        .collect()
+}
 
 /// What one run was asked to do.
 #[derive(Debug, Clone)]
@@ -42,6 +75,8 @@ pub struct ReplaySpec {
     pub show: bool,
     /// How `risk` models error growth.
     pub model: ErrorModel,
+    /// How errors are spread among items in the weeks simulated.
+    pub world: WorldKind,
 }
 
 /// What a run found, and what it started from.
@@ -283,6 +318,9 @@ pub async fn replay(
         today,
         &keys,
     );
+    if spec.world == WorldKind::Uneven {
+        world.set_error_propensity(uneven_propensity(demo_items.len(), spec.seed));
+    }
     let days = spec.weeks * 7;
     let pb = if spec.show {
         ProgressBar::new(u64::from(days))
@@ -366,6 +404,10 @@ impl Replay {
                  rate, else site, else unit growth)"
             }
         };
+        let uneven = match spec.world {
+            WorldKind::Uniform => "",
+            WorldKind::Uneven => " with uneven error chances per item (log-normal, mean 1)",
+        };
         let floors = if spec.floors == [0, 0, 0] {
             "no class floor".to_string()
         } else {
@@ -374,7 +416,7 @@ impl Replay {
         format!(
             "Counting simulation at {site}: {weeks} weeks from {start}, {minutes} counter-minutes a working day for each policy, seed {seed}\n\
              World: the site's book and the demo's shelf truth on {start} ({keys} keys, {wrong} wrong), \
-             carried forward by the demo's own error process: {up} unrecorded picks, {mk} mis-keyed picks, {mp} mis-putaways injected\n\
+             carried forward by the demo's own error process{uneven}: {up} unrecorded picks, {mk} mis-keyed picks, {mp} mis-putaways injected\n\
              abc:  class counts a year {a}/{b}/{c} x {scale:.2} to spend the same minutes\n\
              risk: intervals from the risk optimiser, {model}; {floors}\n\n",
             weeks = spec.weeks,
