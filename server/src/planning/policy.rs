@@ -471,10 +471,17 @@ impl Why {
                     }
                     _ => "its picks: no repeat counts yet".to_string(),
                 };
-                let growth = format!(
-                    "{:.3} errors a day of {:.1} units, from {from}",
-                    g.jumps_a_day, g.jump_units
-                );
+                // A rate of errors a day reads as "0.000" for slow items; the days between
+                // errors read at every size.
+                let growth = if g.jumps_a_day > 0.0 {
+                    format!(
+                        "an error of {:.1} units every {:.0} days or so, from {from}",
+                        g.jump_units,
+                        1.0 / g.jumps_a_day
+                    )
+                } else {
+                    format!("no error expected, from {from}")
+                };
                 let floor = if r.at_floor {
                     ", held by the class floor"
                 } else {

@@ -299,3 +299,49 @@ fn the_abc_reason_names_the_class_interval_and_last_count() {
         "dead stock, every 261 working days; never counted"
     );
 }
+
+#[test]
+fn the_risk_reason_gives_the_score_and_the_error_it_expects() {
+    // Score = c·r·s·t: unit cost 500, one error of 1.5 units in 200 days, last counted
+    // 56 calendar days ago: 500 × 0.005 × 1.5 × 56 = 210; due at 22.4 days: 84.
+    let jumps = risk::Jumps {
+        rate: 0.005,
+        size: 1.5,
+    };
+    let r = ItemRisk {
+        working_days: 16,
+        days: 22.4,
+        error_value_due: 500.0 * 0.005 * 1.5 * 22.4,
+        unit_cost_minor: 500,
+        growth: GrowthWhy {
+            from: "item",
+            pool: None,
+            points: 9,
+            jumps_a_day: jumps.rate,
+            jump_units: jumps.size,
+        },
+        at_floor: false,
+        fit: Drift::Jump(jumps),
+    };
+    let day = NaiveDate::from_ymd_opt(2026, 3, 2).expect("a valid date");
+    let last = NaiveDate::from_ymd_opt(2026, 1, 5).expect("a valid date");
+    assert_eq!((day - last).num_days(), 56);
+    let why = Why::of(
+        Mode::Risk,
+        Class::C,
+        false,
+        16,
+        Some((last, 40)),
+        day,
+        Some(&r),
+    );
+    let risk = why.risk.as_ref().expect("risk figures");
+    assert!((risk.score - 210.0).abs() < 1e-9, "{}", risk.score);
+    assert!((risk.error_value_due - 84.0).abs() < 1e-9);
+    assert_eq!(
+        why.sentence(),
+        "risk 210: expected error worth 210 now and 84 by the end of its interval (unit cost 500, \
+         an error of 1.5 units every 200 days or so, from its own 9 repeat counts and its picks); \
+         every 16 working days, class C; last counted 2026-01-05, 40 working days ago"
+    );
+}

@@ -47,9 +47,10 @@
 //! says which model an item is planned with; `H`, `h` and `h′` are its only inputs
 //! to the choice.
 //!
-//! **Pooling.** An item's own fit is used when it has one; otherwise the fit
-//! of its pool (class × zone × pick-rate band), else a site default. Each
-//! interval says which was used.
+//! **Pooling.** For the walk ([`pick_growth`]) an item's own fit is used when it
+//! has one; otherwise the fit of its pool (class × zone × pick-rate band), else a
+//! site default. Jumps are shrunk toward the pool's rate per pick instead
+//! (`planning::jumps`). Each interval says which was used.
 
 use super::abc::Class;
 use crate::accuracy::item_error::{ErrorGrowth, GrowthFit};
