@@ -204,8 +204,9 @@ async fn under_risk_the_dear_slow_item_comes_before_the_cheap_busy_one() {
     assert_eq!(bins(&preview(&app, 3).await)[0].0, CHEAP_BIN);
     let now = set_policy(&app, json!({"policy": "risk"})).await;
     assert_eq!(now["policy"], "risk");
-    // No item has repeat counts, so each has the same error growth and its interval
-    // follows (minutes / unit cost)^(2/3) (the `risk` module notes): DEAR, worth
+    // No item has repeat counts nor picks in the 28 days before, so each has the same
+    // rate of errors (the site's rate per pick at the least pick rate) and its interval
+    // follows (minutes / unit cost)^(1/2) (the `risk` module notes, jumps): DEAR, worth
     // 50,000 a unit, gets the shortest interval, CHEAP (1 a unit) the longest.
     let list = preview(&app, 3).await;
     assert_eq!(bins(&list).len(), 1, "{list}");

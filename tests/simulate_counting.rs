@@ -5,11 +5,11 @@
 
 mod common;
 
-use cairn::demo::replay::{Replay, ReplaySpec, replay};
+use cairn::demo::replay::{Replay, ReplaySpec, WorldKind, replay};
 use cairn::demo::{self, DemoSpec};
 use cairn::master::{NewSite, Site, SiteCode};
 use cairn::planning::simulate::report::{self, Shown};
-use cairn::planning::simulate::{Policy, WeekRow};
+use cairn::planning::simulate::{ErrorModel, Policy, WeekRow};
 use cairn::store::{DbLocation, Store, StoreOptions};
 use chrono::NaiveDate;
 use std::process::Command;
@@ -75,6 +75,8 @@ fn spec(weeks: u32, minutes: u32, seed: u64) -> ReplaySpec {
         floors: [0, 0, 0],
         start: Some(start()),
         show: false,
+        model: ErrorModel::Jump,
+        world: WorldKind::Uniform,
     }
 }
 
@@ -108,6 +110,49 @@ async fn the_same_seed_gives_the_same_weeks_and_another_seed_does_not() {
     assert!(one.wrong_at_start > 0, "{}", one.wrong_at_start);
 }
 
+#[test]
+fn the_uneven_worlds_multipliers_average_one_and_come_from_the_seed() {
+    // A log-normal with μ = −σ²/2 has mean e^{μ + σ²/2} = 1 (standard result, stated from
+    // memory); the cap at 20 trims a negligible tail (P(X > 20) = Φ̄((ln 20 + 0.5) / 1) ≈ 2e-4 at σ = 1).
+    let m = cairn::demo::replay::uneven_propensity(200_000, 22);
+    let mean = m.iter().sum::<f64>() / m.len() as f64;
+    assert!((mean - 1.0).abs() < 0.02, "{mean}");
+    assert!(
+        m.iter()
+            .all(|&x| x > 0.0 && x <= cairn::demo::replay::MAX_PROPENSITY)
+    );
+    assert_eq!(m[..10], cairn::demo::replay::uneven_propensity(10, 22)[..]);
+    assert_ne!(m[..10], cairn::demo::replay::uneven_propensity(10, 23)[..]);
+}
+
+#[tokio::test]
+async fn the_uneven_world_moves_errors_between_items_but_not_the_worlds_other_draws() {
+    let s = demo_site(11).await;
+    let uniform = run(&s, &spec(6, 60, 5)).await;
+    let uneven = run(
+        &s,
+        &ReplaySpec {
+            world: WorldKind::Uneven,
+            ..spec(6, 60, 5)
+        },
+    )
+    .await;
+    assert_ne!(uniform.rows, uneven.rows, "other items go wrong");
+    // The same picks and top-ups are drawn (stream 0 of the seed): the count of errors
+    // injected moves with the multipliers, the keys the world starts from do not.
+    assert_eq!(uniform.keys, uneven.keys);
+    assert_eq!(uniform.wrong_at_start, uneven.wrong_at_start);
+    let again = run(
+        &s,
+        &ReplaySpec {
+            world: WorldKind::Uneven,
+            ..spec(6, 60, 5)
+        },
+    )
+    .await;
+    assert_eq!(uneven.rows, again.rows);
+}
+
 fn figures(rows: &[WeekRow]) -> (report::Totals, report::Totals) {
     (
         report::totals(rows, Policy::Abc),
@@ -116,14 +161,14 @@ fn figures(rows: &[WeekRow]) -> (report::Totals, report::Totals) {
 }
 
 /// The issue's expectation: at equal minutes, `risk` finds more of the injected error
-/// value than `abc`. On the demo site it does not yet: with growth fitted from a count
-/// it is level (1,305.21 against 1,314.33 here, -0.7 %), no longer far behind; the demo
-/// world injects error at the same rate a pick for every item, so `abc` by value already
-/// follows where error arrives (DEVELOPERS.md, "Counting simulation"). Kept as written
-/// and ignored, so the day the model learns what it misses, `cargo test -- --ignored`
-/// says so.
+/// value than `abc`. With error charged as rare jumps (DEVELOPERS.md, "Error arriving in
+/// jumps") it does on the full demo site at 60 minutes (+17.6 %), but this small site
+/// cannot show it: at 60 minutes both find every injected error (1,314.33 each, value
+/// accuracy 100 % at the end), `risk` about twice as soon (mean age 2.4 days against
+/// 4.5). Kept as written and ignored: a budget tight enough to separate them here would
+/// be a setting chosen after seeing the result.
 #[tokio::test]
-#[ignore = "risk is level with abc on the demo site (-0.7 %), not ahead: the demo injects error uniformly per pick; see DEVELOPERS.md"]
+#[ignore = "both policies find every injected error on the small test site at 60 minutes (1,314.33 each), so neither can find more; risk finds them sooner; see DEVELOPERS.md"]
 async fn at_equal_minutes_risk_finds_more_injected_error_value_than_abc() {
     let s = demo_site(11).await;
     let r = run(&s, &spec(12, 60, 22)).await;
@@ -140,27 +185,40 @@ async fn at_equal_minutes_risk_finds_more_injected_error_value_than_abc() {
 /// What kept `risk` far behind before: items whose fitted growth was flat (`b = 0`:
 /// no more error for waiting longer) were left at the longest interval, never counted.
 /// Growth fitted from a count (`σ²(t) = b·t`) gives every item with counts a drift, so
-/// none is parked, and `risk` is within a few per cent of `abc` (it was about half).
+/// none is parked, and `risk` is within a few per cent of `abc` (it was about half). The
+/// jump model gives every item a rate from its picks at least, so it parks none either.
 #[tokio::test]
 async fn risk_parks_no_item_once_growth_is_fitted_from_a_count() {
     let s = demo_site(11).await;
-    let r = run(&s, &spec(12, 60, 22)).await;
-    let (abc, risk) = figures(&r.rows);
-    eprintln!(
-        "demo site, 12 weeks at 60 minutes: {}; final value accuracy abc {:.4}, risk {:.4}; \
-         risk parked {} items with flat growth at the longest interval",
-        report::verdict(&abc, &risk),
-        abc.final_value_accuracy,
-        risk.final_value_accuracy,
-        r.flat_parked
-    );
-    assert_eq!(r.flat_parked, 0, "no item is parked for a flat fit");
-    assert_eq!(r.flat_parked_error_value, 0.0);
-    assert!(
-        risk.error_value_found > 0.9 * abc.error_value_found,
-        "{}",
-        report::verdict(&abc, &risk)
-    );
+    for model in [ErrorModel::Walk, ErrorModel::Jump] {
+        let r = run(
+            &s,
+            &ReplaySpec {
+                model,
+                ..spec(12, 60, 22)
+            },
+        )
+        .await;
+        let (abc, risk) = figures(&r.rows);
+        eprintln!(
+            "demo site, 12 weeks at 60 minutes, {model:?}: {}; final value accuracy abc {:.4}, \
+             risk {:.4}; risk parked {} items with flat growth at the longest interval",
+            report::verdict(&abc, &risk),
+            abc.final_value_accuracy,
+            risk.final_value_accuracy,
+            r.flat_parked
+        );
+        assert_eq!(
+            r.flat_parked, 0,
+            "{model:?}: no item is parked for a flat fit"
+        );
+        assert_eq!(r.flat_parked_error_value, 0.0);
+        assert!(
+            risk.error_value_found > 0.9 * abc.error_value_found,
+            "{model:?}: {}",
+            report::verdict(&abc, &risk)
+        );
+    }
 }
 
 #[tokio::test]

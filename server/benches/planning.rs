@@ -18,7 +18,7 @@ use cairn::master::{BinRecord, ItemRecord, NewSite, SiteCode};
 use cairn::planning::abc::Class;
 use cairn::planning::plan::{self, Capacity, Fill};
 use cairn::planning::policy::{FrequencyPolicy, Mode};
-use cairn::planning::risk::{self, Floors, Growth, RiskItem, Source};
+use cairn::planning::risk::{self, Drift, Floors, Growth, RiskItem, Source};
 use cairn::planning::service;
 use cairn::store::StoreOptions as OpenOptions;
 use cairn::store::sqlite::{SqliteStore, master, migrate};
@@ -209,10 +209,10 @@ fn risk_items(keys: usize) -> Vec<RiskItem> {
             RiskItem {
                 key: key as i64,
                 class,
-                growth: Growth {
+                drift: Drift::Walk(Growth {
                     a: rng.random_range(0.0..4.0),
                     b: rng.random_range(0.001..2.0),
-                },
+                }),
                 source: Source::Default,
                 unit_cost: rng.random_range(0.1..500.0),
                 minutes: rng.random_range(0.5..2.0),

@@ -145,6 +145,16 @@ enum Command {
         /// (0: no floor), e.g. `--floors 12,4,1`.
         #[arg(long, value_delimiter = ',', default_values_t = [0, 0, 0])]
         floors: Vec<u32>,
+        /// How `risk` models record error growing after a count: `jump` (errors arrive
+        /// as rare jumps, a rate per item learned from its counts and its picks) or `walk`
+        /// (a random walk, variance growing linearly: the wired policy's model).
+        #[arg(long, value_enum, default_value_t = SimErrorModel::Jump)]
+        error_model: SimErrorModel,
+        /// How the weeks simulated spread errors among items: `uniform` (the demo's
+        /// rates for every item) or `uneven` (those rates times a log-normal multiplier
+        /// per item, mean 1, drawn from the seed).
+        #[arg(long, value_enum, default_value_t = SimWorld::Uniform)]
+        world: SimWorld,
         /// The run's first day, YYYY-MM-DD: demand is read over the 28 days before it and
         /// the book and shelf as they stand now (default: today at the site).
         #[arg(long)]
@@ -307,6 +317,18 @@ enum ProposedPolicy {
     Abc,
     Risk,
     Both,
+}
+
+#[derive(Clone, Copy, clap::ValueEnum)]
+enum SimErrorModel {
+    Jump,
+    Walk,
+}
+
+#[derive(Clone, Copy, clap::ValueEnum)]
+enum SimWorld {
+    Uniform,
+    Uneven,
 }
 
 #[derive(Clone, Copy, clap::ValueEnum)]
@@ -756,10 +778,12 @@ async fn dispatch(command: Command) -> anyhow::Result<()> {
             policy,
             seed,
             floors,
+            error_model,
+            world,
             start,
             svg,
         } => {
-            use crate::planning::simulate::{Policy, report};
+            use crate::planning::simulate::{ErrorModel, Policy, report};
             db.must_exist("")?;
             let floors: [u32; 3] = floors
                 .try_into()
@@ -783,6 +807,14 @@ async fn dispatch(command: Command) -> anyhow::Result<()> {
                 floors,
                 start,
                 show: std::io::IsTerminal::is_terminal(&std::io::stderr()),
+                model: match error_model {
+                    SimErrorModel::Jump => ErrorModel::Jump,
+                    SimErrorModel::Walk => ErrorModel::Walk,
+                },
+                world: match world {
+                    SimWorld::Uniform => demo::replay::WorldKind::Uniform,
+                    SimWorld::Uneven => demo::replay::WorldKind::Uneven,
+                },
             };
             let run = demo::replay::replay(store, &site, &spec).await?;
             let shown = match policy {

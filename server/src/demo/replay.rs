@@ -10,12 +10,15 @@ use crate::master::{NewBin, NewItem, Site};
 use crate::planning::abc::{self, Class};
 use crate::planning::plan::{self, Capacity, Fill};
 use crate::planning::risk::{Floors, MAX_INTERVAL_DAYS};
-use crate::planning::simulate::{Keys, Policy, SimError, SimItem, SimSite, Simulation, WeekRow};
+use crate::planning::simulate::{
+    ErrorModel, Keys, Policy, SimError, SimItem, SimSite, Simulation, WeekRow,
+};
 use crate::store::{Store, StoreError};
 use chrono::{Datelike, Days, NaiveDate, Weekday};
 use indicatif::{ProgressBar, ProgressStyle};
 use rand::SeedableRng;
 use rand_chacha::ChaCha8Rng;
+use rand_distr::{Distribution, LogNormal};
 use std::collections::{BTreeMap, BTreeSet};
 
 /// Calendar days of picks the demand is read over (four weeks).
@@ -23,6 +26,38 @@ pub const DEMAND_DAYS: u64 = 28;
 /// Largest quantity of one pick the replayed world draws (the demo's range is 1 to 4;
 /// the site's records do not say which an item had, so every item takes 2).
 const MAX_PICK: u32 = 2;
+
+/// Spread of the uneven world's per-item error multipliers: the σ of their logarithm
+/// (our scenario's assumption, not measured: most items rarely go wrong and a few —
+/// loose small parts, awkward bins — often; with σ = 1 the tenth of the items most
+/// prone carry `1 − Φ(z₀.₉ − σ) = 1 − Φ(0.28)` ≈ 39 % of the chance of error).
+pub const UNEVEN_LOG_SD: f64 = 1.0;
+/// Largest multiplier drawn, so every chance stays well below 1.
+pub const MAX_PROPENSITY: f64 = 20.0;
+
+/// How the forward simulation injects errors among items.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Default)]
+pub enum WorldKind {
+    /// At the demo's rates for every item, as the demo's own history does.
+    #[default]
+    Uniform,
+    /// At the demo's rates times a multiplier per item, log-normal with mean 1
+    /// ([`UNEVEN_LOG_SD`]), drawn from the seed on a stream of its own.
+    Uneven,
+}
+
+/// Returns one error multiplier per item for an uneven world: log-normal with mean 1,
+/// capped at [`MAX_PROPENSITY`], drawn from stream 1 of `seed` (the world's own draws
+/// use stream 0, so they are the same as in the uniform world).
+pub fn uneven_propensity(items: usize, seed: u64) -> Vec<f64> {
+    let mut rng = ChaCha8Rng::seed_from_u64(seed);
+    rng.set_stream(1);
+    let sd = UNEVEN_LOG_SD;
+    let dist = LogNormal::new(-sd * sd / 2.0, sd).expect("a finite, positive spread");
+    (0..items)
+        .map(|_| dist.sample(&mut rng).min(MAX_PROPENSITY))
+        .collect()
+}
 
 /// What one run was asked to do.
 #[derive(Debug, Clone)]
@@ -38,6 +73,10 @@ pub struct ReplaySpec {
     pub start: Option<NaiveDate>,
     /// Draw a progress bar on the terminal.
     pub show: bool,
+    /// How `risk` models error growth.
+    pub model: ErrorModel,
+    /// How errors are spread among items in the weeks simulated.
+    pub world: WorldKind,
 }
 
 /// What a run found, and what it started from.
@@ -268,6 +307,7 @@ pub async fn replay(
         floors: Floors {
             per_year: spec.floors,
         },
+        model: spec.model,
     };
     let mut sim = Simulation::new(site_sim, spec.weeks)?;
     let wrong_at_start = keys.iter().filter(|k| k.3 != k.4).count();
@@ -278,6 +318,9 @@ pub async fn replay(
         today,
         &keys,
     );
+    if spec.world == WorldKind::Uneven {
+        world.set_error_propensity(uneven_propensity(demo_items.len(), spec.seed));
+    }
     let days = spec.weeks * 7;
     let pb = if spec.show {
         ProgressBar::new(u64::from(days))
@@ -306,7 +349,7 @@ pub async fn replay(
         .filter(|&i| {
             intervals[i].is_finite()
                 && intervals[i] >= MAX_INTERVAL_DAYS * (1.0 - 1e-9)
-                && sim.growth(Policy::Risk)[i].b <= 0.0
+                && !sim.drift(Policy::Risk)[i].grows()
         })
         .collect();
     Ok(Replay {
@@ -339,7 +382,7 @@ impl Replay {
         }
         format!(
             "note: risk left {} items at its longest interval ({} days) because their fitted \
-             error growth is flat (b = 0: waiting adds no error by the fit), with {} of error \
+             error growth is flat (waiting adds no error by the fit), with {} of error \
              standing on them at the end\n",
             self.flat_parked,
             MAX_INTERVAL_DAYS,
@@ -351,6 +394,20 @@ impl Replay {
     pub fn preamble(&self, site: &str, spec: &ReplaySpec) -> String {
         let [a, b, c] = self.per_year;
         let [fa, fb, fc] = spec.floors;
+        let model = match spec.model {
+            ErrorModel::Jump => {
+                "error arriving in jumps, each item's rate shrunk toward its pool's rate per pick \
+                 (pools: class x pick rate)"
+            }
+            ErrorModel::Walk => {
+                "error growth sigma^2 = b*t learned from its own counts (item, else class x pick \
+                 rate, else site, else unit growth)"
+            }
+        };
+        let uneven = match spec.world {
+            WorldKind::Uniform => "",
+            WorldKind::Uneven => " with uneven error chances per item (log-normal, mean 1)",
+        };
         let floors = if spec.floors == [0, 0, 0] {
             "no class floor".to_string()
         } else {
@@ -359,9 +416,9 @@ impl Replay {
         format!(
             "Counting simulation at {site}: {weeks} weeks from {start}, {minutes} counter-minutes a working day for each policy, seed {seed}\n\
              World: the site's book and the demo's shelf truth on {start} ({keys} keys, {wrong} wrong), \
-             carried forward by the demo's own error process: {up} unrecorded picks, {mk} mis-keyed picks, {mp} mis-putaways injected\n\
+             carried forward by the demo's own error process{uneven}: {up} unrecorded picks, {mk} mis-keyed picks, {mp} mis-putaways injected\n\
              abc:  class counts a year {a}/{b}/{c} x {scale:.2} to spend the same minutes\n\
-             risk: intervals from the risk optimiser, error growth learned from its own counts (item, else class x pick rate, else site, else unit growth); {floors}\n\n",
+             risk: intervals from the risk optimiser, {model}; {floors}\n\n",
             weeks = spec.weeks,
             start = self.start,
             minutes = spec.minutes,

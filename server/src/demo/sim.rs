@@ -49,6 +49,9 @@ pub(crate) struct World<'a> {
     pub misputaways: usize,
     /// Every change of the shelf while set (the counting history reads it).
     truth_log: Option<Vec<TruthMove>>,
+    /// Each item's multiplier on the chance of an injected error (1 for every item in
+    /// the demo's own history; see [`Self::set_error_propensity`]).
+    propensity: Vec<f64>,
 }
 
 /// One change of a key's true shelf quantity, at an instant (ms).
@@ -90,6 +93,7 @@ impl<'a> World<'a> {
             miskeyed_picks: 0,
             misputaways: 0,
             truth_log: None,
+            propensity: vec![1.0; items.len()],
         }
     }
 
@@ -107,6 +111,22 @@ impl<'a> World<'a> {
             world.put(*bin, *item, lot, None, *book, *truth);
         }
         world
+    }
+
+    /// Sets each item's multiplier on the chances of an unrecorded or mis-keyed pick and
+    /// of a mis-putaway (one per item, in item order; each at least 0). With every
+    /// multiplier 1 the world draws exactly as before.
+    pub fn set_error_propensity(&mut self, propensity: Vec<f64>) {
+        assert_eq!(
+            propensity.len(),
+            self.items.len(),
+            "one multiplier per item"
+        );
+        assert!(
+            propensity.iter().all(|m| m.is_finite() && *m >= 0.0),
+            "multipliers are finite and not negative"
+        );
+        self.propensity = propensity;
     }
 
     /// Returns the date of history day `day`.
@@ -414,10 +434,11 @@ impl<'a> World<'a> {
             };
             self.note_truth(bin, i, &view.lot, t, -take);
             let roll: f64 = self.rng.random();
-            let recorded = if roll < P_UNRECORDED_PICK {
+            let m = self.propensity[i];
+            let recorded = if roll < P_UNRECORDED_PICK * m {
                 self.unrecorded_picks += 1;
                 0
-            } else if roll < P_UNRECORDED_PICK + P_MISKEYED_PICK {
+            } else if roll < (P_UNRECORDED_PICK + P_MISKEYED_PICK) * m {
                 self.miskeyed_picks += 1;
                 if self.rng.random::<bool>() || take == 1 {
                     take + 1
@@ -444,7 +465,7 @@ impl<'a> World<'a> {
         out: &mut Vec<NewMovement>,
     ) {
         let doc = self.next_doc("RPL");
-        let misplaced = self.rng.random::<f64>() < P_MISPUTAWAY;
+        let misplaced = self.rng.random::<f64>() < P_MISPUTAWAY * self.propensity[i];
         let land = if misplaced
             && to + 1 < self.bins.len()
             && self.bins[to + 1].zone == self.bins[to].zone

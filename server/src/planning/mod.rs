@@ -10,6 +10,7 @@ pub mod abc;
 pub mod calendar;
 pub mod due;
 pub mod estimate;
+pub mod jumps;
 pub mod pages;
 pub mod phone;
 pub mod plan;

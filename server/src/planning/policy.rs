@@ -4,7 +4,8 @@
 //! * `abc` (the default): each class is counted so many times a year
 //!   ([`super::due::Frequency`]).
 //! * `risk`: each item's interval is chosen by [`super::risk::choose`] from its
-//!   error growth, unit cost and minutes per count, within the same
+//!   record error arriving in jumps ([`super::jumps`]: a rate learned from its counts
+//!   and its picks, and a size), unit cost and minutes per count, within the same
 //!   counter-minutes a day that the `abc` frequencies take (the level; see
 //!   [`risk_plan`]), so switching moves minutes between items without adding any.
 //! * `blend`: as `risk`, but no class is counted less often than its floor
@@ -13,9 +14,10 @@
 //! Dead stock keeps its own `abc` frequency under every policy.
 
 use super::abc::Class;
+use super::jumps::{self, ItemEvidence};
 use super::plan::{self, PlanInput};
-use super::risk::{self, Floors, Growth, PoolKey, RateBand, RiskError, RiskItem, Source};
-use crate::accuracy::item_error::{self, ErrorGrowth, ErrorPoint};
+use super::risk::{self, Drift, Floors, PoolKey, RateBand, RiskError, RiskItem, Source};
+use crate::accuracy::item_error::{self, ErrorPoint};
 use crate::batch::FieldError;
 use chrono::NaiveDate;
 use serde::Serialize;
@@ -27,11 +29,6 @@ pub const MAX_FLOOR_PER_YEAR: u32 = 365;
 /// Days of picks an item's pick rate is taken over, for its pool (four weeks: recent
 /// enough to band its traffic, short enough that reading it stays a small part of planning).
 pub const DEMAND_DAYS: i64 = 28;
-/// Growth used when neither the item, its pool nor the site has enough repeat
-/// counts: variance growing by one unit² a day from nothing. With one growth for
-/// every item the budget's multiplier absorbs its size, so intervals then follow
-/// unit cost and minutes alone (our own choice, not measured).
-pub const UNIT_GROWTH: Growth = Growth { a: 0.0, b: 1.0 };
 
 /// How a site sets its count intervals.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Default, Serialize, utoipa::ToSchema)]
@@ -185,26 +182,24 @@ pub struct ItemHistory {
     pub unit_cost_minor: i64,
     /// Picks a day over the last [`DEMAND_DAYS`].
     pub picks_per_day: f64,
-    /// The item's own growth from a count ([`fit`] of its points).
-    pub growth: ErrorGrowth,
-    /// The points of that fit, pooled with other items' when its own are too few.
+    /// Its growth points (days since the count before, error found), its own only.
     pub points: Vec<ErrorPoint>,
 }
 
-/// Where an item's error growth came from, as the list shows it.
+/// Where an item's error figures came from, as the list shows it.
 #[derive(Debug, Clone, PartialEq, Serialize)]
 pub struct GrowthWhy {
-    /// `item` (its own counts), `pool` (its class × zone × pick-rate band) or `site`
-    /// (every item's counts, or the unit growth when there are too few).
+    /// `item` (its own counts, with its picks' prior), `pool` (no counts of its own: its
+    /// class × zone × pick-rate band's rate per pick) or `site` (neither: the site's).
     pub from: &'static str,
     /// The pool, e.g. `class C, zone 2, busy` (for `pool`).
     #[serde(skip_serializing_if = "Option::is_none")]
     pub pool: Option<String>,
-    /// Repeat counts the fit used (0 for the unit growth).
+    /// Repeat counts behind the figures (the item's, its pool's or the site's).
     pub points: usize,
-    /// σ²(t) = a + b·t: error variance after a count (units²) and its growth per day.
-    pub a: f64,
-    pub b: f64,
+    /// Record errors expected a day, and their mean size in units.
+    pub jumps_a_day: f64,
+    pub jump_units: f64,
 }
 
 /// The risk figures of one item.
@@ -221,16 +216,14 @@ pub struct ItemRisk {
     /// Its class floor, not its risk, set the interval.
     pub at_floor: bool,
     #[serde(skip)]
-    pub fit: Growth,
+    pub fit: Drift,
 }
 
 impl ItemRisk {
     /// Returns the risk score `days` calendar days after a count: the expected
-    /// absolute error value standing then, `c·sqrt(2/π)·sqrt(a + b·days)`, minor units.
+    /// absolute error value standing then, `c·r·s·days`, minor units.
     pub fn score_at(&self, days: f64) -> f64 {
-        self.unit_cost_minor as f64
-            * risk::HALF_NORMAL_MEAN
-            * (self.fit.a + self.fit.b * days.max(0.0)).sqrt()
+        self.unit_cost_minor as f64 * self.fit.expected_abs(days.max(0.0))
     }
 }
 
@@ -258,17 +251,6 @@ fn pool_name(p: &PoolKey, zones: &HashMap<i64, &str>) -> String {
         p.class,
         zones.get(&p.zone).copied().unwrap_or("?")
     )
-}
-
-/// Fits the growth from a count (`σ²(t) = b·t`, [`item_error::fit_growth_from_count`])
-/// of a set of points, the first [`item_error::MAX_POINTS`] of them.
-pub fn fit(points: &[ErrorPoint]) -> Result<ErrorGrowth, RiskError> {
-    let points = &points[..points.len().min(item_error::MAX_POINTS)];
-    // Points come from stored results, already bounded; a refusal would be a bug upstream.
-    item_error::fit_growth_from_count(points).map_err(|_| RiskError::BadFigure {
-        key: -1,
-        what: "a stored error point",
-    })
 }
 
 /// Chooses the interval of every item by risk within the minutes the `abc`
@@ -307,54 +289,42 @@ pub fn risk_plan(
             band: RateBand::of(history[i].picks_per_day),
         }
     };
-    let mut pool_points: HashMap<PoolKey, Vec<ErrorPoint>> = HashMap::new();
-    let mut all_points = Vec::new();
-    for &i in &planned {
-        pool_points
-            .entry(pool_of(i))
-            .or_default()
-            .extend_from_slice(&history[i].points);
-        all_points.extend_from_slice(&history[i].points);
-    }
-    let mut pooled: HashMap<PoolKey, ErrorGrowth> = HashMap::new();
-    for (k, points) in &pool_points {
-        pooled.insert(*k, fit(points)?);
-    }
-    let site = fit(&all_points)?;
-    let (site_growth, site_points) = match site.fit {
-        item_error::GrowthFit::Fitted { a, b } => (Growth { a, b }, site.points),
-        item_error::GrowthFit::NotEnoughData(_) => (UNIT_GROWTH, 0),
-    };
+    let evidence: Vec<ItemEvidence> = planned
+        .iter()
+        .map(|&i| {
+            let points = &history[i].points;
+            ItemEvidence {
+                pool: pool_of(i),
+                picks_per_day: history[i].picks_per_day,
+                points: &points[..points.len().min(item_error::MAX_POINTS)],
+            }
+        })
+        .collect();
+    let estimated = jumps::estimate(&evidence);
+    let site_points: usize = estimated
+        .iter()
+        .map(|(_, source)| match source {
+            Source::Own { points } => *points,
+            _ => 0,
+        })
+        .sum();
 
     let mut items = Vec::with_capacity(planned.len());
     let mut whys = Vec::with_capacity(planned.len());
-    for &i in &planned {
+    for (&i, &(jumps, source)) in planned.iter().zip(&estimated) {
         let it = &input.items[i];
         let h = &history[i];
-        let pool = pool_of(i);
-        let (growth, source) = risk::pick_growth(&h.growth, pool, pooled.get(&pool), site_growth);
-        let why = match source {
-            Source::Own { points } => GrowthWhy {
-                from: "item",
-                pool: None,
-                points,
-                a: growth.a,
-                b: growth.b,
-            },
-            Source::Pooled { pool, points } => GrowthWhy {
-                from: "pool",
-                pool: Some(pool_name(&pool, &zones)),
-                points,
-                a: growth.a,
-                b: growth.b,
-            },
-            Source::Default => GrowthWhy {
-                from: "site",
-                pool: None,
-                points: site_points,
-                a: growth.a,
-                b: growth.b,
-            },
+        let (from, pool, points) = match source {
+            Source::Own { points } => ("item", None, points),
+            Source::Pooled { pool, points } => ("pool", Some(pool_name(&pool, &zones)), points),
+            Source::Default => ("site", None, site_points),
+        };
+        let why = GrowthWhy {
+            from,
+            pool,
+            points,
+            jumps_a_day: jumps.rate,
+            jump_units: jumps.size,
         };
         let minutes: f64 = it
             .bins
@@ -365,7 +335,7 @@ pub fn risk_plan(
         items.push(RiskItem {
             key: i as i64,
             class: it.class,
-            growth,
+            drift: Drift::Jump(jumps),
             source,
             unit_cost: h.unit_cost_minor.max(0) as f64,
             minutes: minutes.max(1.0 / 60.0),
@@ -400,7 +370,7 @@ pub fn risk_plan(
             unit_cost_minor: item.unit_cost as i64,
             growth: why,
             at_floor: interval.at_floor || working_days == floor_wd,
-            fit: item.growth,
+            fit: item.drift,
         });
     }
     Ok(out)
@@ -490,15 +460,27 @@ impl Why {
                 self.class, self.interval_working_days
             ),
             Some(r) => {
-                let growth = match (r.growth.from, &r.growth.pool) {
-                    ("item", _) => format!("its own {} repeat counts", r.growth.points),
+                let g = &r.growth;
+                let from = match (g.from, &g.pool) {
+                    ("item", _) => format!("its own {} repeat counts and its picks", g.points),
                     (_, Some(pool)) => {
-                        format!("{} repeat counts of {pool}", r.growth.points)
+                        format!("its picks and {} repeat counts of {pool}", g.points)
                     }
-                    _ if r.growth.points > 0 => {
-                        format!("{} repeat counts site-wide", r.growth.points)
+                    _ if g.points > 0 => {
+                        format!("its picks and {} repeat counts site-wide", g.points)
                     }
-                    _ => "no repeat counts yet: the same growth for every item".to_string(),
+                    _ => "its picks: no repeat counts yet".to_string(),
+                };
+                // A rate of errors a day reads as "0.000" for slow items; the days between
+                // errors read at every size.
+                let growth = if g.jumps_a_day > 0.0 {
+                    format!(
+                        "an error of {:.1} units every {:.0} days or so, from {from}",
+                        g.jump_units,
+                        1.0 / g.jumps_a_day
+                    )
+                } else {
+                    format!("no error expected, from {from}")
                 };
                 let floor = if r.at_floor {
                     ", held by the class floor"
@@ -507,7 +489,7 @@ impl Why {
                 };
                 format!(
                     "risk {:.0}: expected error worth {:.0} now and {:.0} by the end of its interval \
-                     (unit cost {}, error growth from {growth}); every {} working days{floor}, class {}; {last}",
+                     (unit cost {}, {growth}); every {} working days{floor}, class {}; {last}",
                     r.score,
                     r.score,
                     r.error_value_due,

@@ -61,7 +61,8 @@ const CHOICES: [Choice; 3] = [
         value: "risk",
         label: "By risk",
         hint: "Each item's interval follows the value of record error it is expected to build up: \
-               its error growth from repeat counts, its unit cost and the minutes its bins take. \
+               how often errors turn up in its repeat counts and its picks, its unit cost and \
+               the minutes its bins take. \
                The day's counting minutes stay what the class frequencies take.",
     },
     Choice {

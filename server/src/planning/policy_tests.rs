@@ -1,5 +1,4 @@
 use super::*;
-use crate::accuracy::item_error::{GrowthFit, MIN_FIT_POINTS};
 use crate::planning::Settings;
 use crate::planning::calendar::Calendar;
 use crate::planning::plan::{BinFacts, Capacity, Fill, ItemFacts};
@@ -56,16 +55,26 @@ fn input(classes: &[Class]) -> PlanInput {
     }
 }
 
-/// An item's history with its own fit `σ²(t) = a + b·t` and unit cost.
-fn fitted(a: f64, b: f64, cost: i64) -> ItemHistory {
+/// An item's history: 10 counts 20 days apart, `errors` of them finding `units` units,
+/// one pick a day, and its unit cost.
+fn counted(errors: usize, units: f64, cost: i64) -> ItemHistory {
     ItemHistory {
         unit_cost_minor: cost,
         picks_per_day: 1.0,
-        growth: ErrorGrowth {
-            points: MIN_FIT_POINTS,
-            fit: GrowthFit::Fitted { a, b },
-        },
-        points: Vec::new(),
+        points: (0..10)
+            .map(|k| ErrorPoint {
+                days_since_previous: 20.0,
+                error: if k < errors { units } else { 0.0 },
+            })
+            .collect(),
+    }
+}
+
+/// The jumps the plan chose an item's interval with.
+fn jumps_of(r: &ItemRisk) -> risk::Jumps {
+    match r.fit {
+        Drift::Jump(j) => j,
+        Drift::Walk(_) => panic!("the wired policy plans with jumps"),
     }
 }
 
@@ -76,17 +85,16 @@ fn interval(plan: &RiskPlan, i: usize) -> &ItemRisk {
 }
 
 #[test]
-fn a_fast_drifting_c_item_is_counted_more_often_than_a_stable_a_item() {
-    // Same cost and minutes; the C item's error variance grows 100 times faster.
-    // With a = 0, D(T) ∝ c·sqrt(b)·T^{3/2} (module notes of `risk`), so
-    // T_C / T_A = (sqrt(b_A) / sqrt(b_C))^{2/3} = (1/10)^{2/3} ≈ 0.215 when neither
-    // is at a bound.
+fn an_error_prone_c_item_is_counted_more_often_than_a_clean_a_item() {
+    // Same cost, picks and minutes; in 10 counts the C item found 6 errors of 2 units,
+    // the A item none. With jumps D(T) = c·r·s·T²/2 (module notes of `risk`), so
+    // T_C / T_A = sqrt((r_A·s_A) / (r_C·s_C)) when neither is at a bound.
     let mut input = input(&[Class::A, Class::C, Class::B, Class::B]);
     let history = vec![
-        fitted(0.0, 0.01, 1_000),
-        fitted(0.0, 1.0, 1_000),
-        fitted(0.0, 0.1, 1_000),
-        fitted(0.0, 0.1, 1_000),
+        counted(0, 0.0, 1_000),
+        counted(6, 2.0, 1_000),
+        counted(1, 1.0, 1_000),
+        counted(1, 1.0, 1_000),
     ];
     let policy = FrequencyPolicy {
         policy: Mode::Risk,
@@ -101,8 +109,16 @@ fn a_fast_drifting_c_item_is_counted_more_often_than_a_stable_a_item() {
         a.days
     );
     let ratio = c.days / a.days;
-    assert!((ratio - 0.1f64.powf(2.0 / 3.0)).abs() < 1e-6, "{ratio}");
+    let (ja, jc) = (jumps_of(a), jumps_of(c));
+    let want = (ja.rate * ja.size / (jc.rate * jc.size)).sqrt();
+    assert!(
+        want < 1.0,
+        "the C item's errors arrive faster: {ja:?} {jc:?}"
+    );
+    assert!((ratio - want).abs() < 1e-6, "{ratio} vs {want}");
     assert_eq!(c.growth.from, "item");
+    assert_eq!(c.growth.points, 10);
+    assert_eq!(c.growth.jumps_a_day, jc.rate);
     // The budget is the abc level: 12 + 1 + 4 + 4 counts a year of 150 s bins.
     let wdy = input.calendar.working_days_in_year(input.day) as f64;
     let level_s: f64 = [12u32, 1, 4, 4]
@@ -143,9 +159,9 @@ fn blend_floors_hold_every_class_to_its_least_counts_a_year() {
     // a year holds it to the abc interval of 12 a year.
     let input = input(&[Class::A, Class::C, Class::C]);
     let history = vec![
-        fitted(0.0, 0.0001, 1),
-        fitted(0.0, 5.0, 10_000),
-        fitted(0.0, 5.0, 10_000),
+        counted(0, 0.0, 1),
+        counted(5, 3.0, 10_000),
+        counted(5, 3.0, 10_000),
     ];
     let risk = risk_plan(
         &input,
@@ -179,32 +195,36 @@ fn blend_floors_hold_every_class_to_its_least_counts_a_year() {
 }
 
 #[test]
-fn items_without_fits_fall_back_to_their_pool_then_to_the_site() {
-    let input = input(&[Class::B, Class::B, Class::C]);
-    let points: Vec<ErrorPoint> = (0..MIN_FIT_POINTS)
-        .map(|k| ErrorPoint {
-            days_since_previous: 10.0 + 5.0 * k as f64,
-            error: 1.0 + k as f64,
-        })
-        .collect();
-    let few = ItemHistory {
+fn items_without_counts_take_their_pool_then_the_site() {
+    // One B item with 4 counts of its own, one B item without (same pool: class B,
+    // zone A, busy picking), one C item without (its pool has no counts), and an A item
+    // whose 4 counts found nothing. All pick twice a day.
+    let input = input(&[Class::B, Class::B, Class::C, Class::A]);
+    let own = ItemHistory {
         unit_cost_minor: 100,
         picks_per_day: 2.0,
-        growth: ErrorGrowth {
-            points: 4,
-            fit: GrowthFit::NotEnoughData(item_error::Shortfall::TooFewPoints {
-                needed: MIN_FIT_POINTS,
-            }),
-        },
-        points: points[..4].to_vec(),
+        points: (0..4)
+            .map(|k| ErrorPoint {
+                days_since_previous: 10.0 + 5.0 * k as f64,
+                error: 1.0 + k as f64,
+            })
+            .collect(),
     };
-    let mut other = few.clone();
-    other.points = points[4..].to_vec();
-    let mut alone = few.clone();
-    alone.points = Vec::new();
+    let none = ItemHistory {
+        points: Vec::new(),
+        ..own.clone()
+    };
+    let clean = ItemHistory {
+        points: own
+            .points
+            .iter()
+            .map(|p| ErrorPoint { error: 0.0, ..*p })
+            .collect(),
+        ..own.clone()
+    };
     let plan = risk_plan(
         &input,
-        &[few, other, alone],
+        &[own, none.clone(), none, clean],
         &FrequencyPolicy {
             policy: Mode::Risk,
             ..FrequencyPolicy::default()
@@ -212,15 +232,31 @@ fn items_without_fits_fall_back_to_their_pool_then_to_the_site() {
     )
     .expect("valid figures");
     let b = interval(&plan, 0);
-    assert_eq!(b.growth.from, "pool");
-    assert_eq!(b.growth.points, MIN_FIT_POINTS);
+    assert_eq!((b.growth.from, b.growth.points), ("item", 4));
+    let pooled = interval(&plan, 1);
+    assert_eq!((pooled.growth.from, pooled.growth.points), ("pool", 4));
     assert_eq!(
-        b.growth.pool.as_deref(),
+        pooled.growth.pool.as_deref(),
         Some("class B, zone A, busy picking")
     );
-    // The C item's pool has no points; the site's pooled fit (the same 8) is used.
     let c = interval(&plan, 2);
-    assert_eq!((c.growth.from, c.growth.points), ("site", MIN_FIT_POINTS));
+    assert_eq!((c.growth.from, c.growth.points), ("site", 8));
+    // By hand (`jumps` module notes, κ = 2): each counted item covers 70 days, 140
+    // pick-days. Site: 4 errors in 280 pick-days, β = 1/70. Pool B: β = (4 + 2) / (140 +
+    // 2·70) = 3/140. The uncounted B item: (0 + 2) / (0 + 2 / (2·3/140)) = 3/70 a day;
+    // the C item (empty pool, β the site's): 2·1/70 = 1/35 a day. Sizes: the site's mean
+    // (1 + 2 + 3 + 4) / 4 = 2.5, and pool B's (10 + 2·2.5) / 6 = 2.5.
+    assert!(
+        (pooled.growth.jumps_a_day - 3.0 / 70.0).abs() < 1e-12,
+        "{:?}",
+        pooled.growth
+    );
+    assert!(
+        (c.growth.jumps_a_day - 1.0 / 35.0).abs() < 1e-12,
+        "{:?}",
+        c.growth
+    );
+    assert!((c.growth.jump_units - 2.5).abs() < 1e-12);
 }
 
 #[test]
@@ -261,5 +297,51 @@ fn the_abc_reason_names_the_class_interval_and_last_count() {
     assert_eq!(
         never.sentence(),
         "dead stock, every 261 working days; never counted"
+    );
+}
+
+#[test]
+fn the_risk_reason_gives_the_score_and_the_error_it_expects() {
+    // Score = c·r·s·t: unit cost 500, one error of 1.5 units in 200 days, last counted
+    // 56 calendar days ago: 500 × 0.005 × 1.5 × 56 = 210; due at 22.4 days: 84.
+    let jumps = risk::Jumps {
+        rate: 0.005,
+        size: 1.5,
+    };
+    let r = ItemRisk {
+        working_days: 16,
+        days: 22.4,
+        error_value_due: 500.0 * 0.005 * 1.5 * 22.4,
+        unit_cost_minor: 500,
+        growth: GrowthWhy {
+            from: "item",
+            pool: None,
+            points: 9,
+            jumps_a_day: jumps.rate,
+            jump_units: jumps.size,
+        },
+        at_floor: false,
+        fit: Drift::Jump(jumps),
+    };
+    let day = NaiveDate::from_ymd_opt(2026, 3, 2).expect("a valid date");
+    let last = NaiveDate::from_ymd_opt(2026, 1, 5).expect("a valid date");
+    assert_eq!((day - last).num_days(), 56);
+    let why = Why::of(
+        Mode::Risk,
+        Class::C,
+        false,
+        16,
+        Some((last, 40)),
+        day,
+        Some(&r),
+    );
+    let risk = why.risk.as_ref().expect("risk figures");
+    assert!((risk.score - 210.0).abs() < 1e-9, "{}", risk.score);
+    assert!((risk.error_value_due - 84.0).abs() < 1e-9);
+    assert_eq!(
+        why.sentence(),
+        "risk 210: expected error worth 210 now and 84 by the end of its interval (unit cost 500, \
+         an error of 1.5 units every 200 days or so, from its own 9 repeat counts and its picks); \
+         every 16 working days, class C; last counted 2026-01-05, 40 working days ago"
     );
 }

@@ -33,9 +33,24 @@
 //! safety term, `D(T) = c·sqrt(2/π)·sqrt(b)·T^{3/2} / 3`, so
 //! `Tᵢ ∝ (mᵢ / (cᵢ·sqrt(bᵢ)))^{2/3}` (the tests check this by hand).
 //!
-//! **Pooling.** An item's own fit is used when it has one; otherwise the fit
-//! of its pool (class × zone × pick-rate band), else a site default. Each
-//! interval says which was used.
+//! **Jumps.** Record error that arrives as rare jumps (a pick not booked, a case
+//! in the wrong bin) is a compound Poisson process: `e(t) = J₁ + … + J_N(t)`, `N(t)`
+//! Poisson with mean `r·t`, `E|J| = s`. By the triangle inequality and Wald's identity
+//! `E|e(t)| ≤ E Σ|Jⱼ| = r·s·t`, with equality when the jumps share a sign (unbooked
+//! picks all leave the book above the shelf); for jumps of either sign the gap is the
+//! chance that two jumps meet, `O((r·t)²)`, so the linear charge holds while `r·T` is
+//! small (within 5 % at `r·T` = 0.1 for symmetric jumps of one size; beyond `r·T` ≈ 1
+//! symmetric jumps behave as the random walk above and the linear charge overstates).
+//! So `h(t) = c·r·s·t`, `H(T) = c·r·s·T²/2`, the daily cost `f(T) = c·r·s·T/2` and
+//! `D(T) = c·r·s·T²/2`: `Tᵢ ∝ sqrt(mᵢ / (cᵢ·rᵢ·sᵢ))`, the square-root rule. The
+//! safety term uses `Var e(t) = r·E[J²]·t`, with `E[J²]` taken as `s²`. A [`Drift`]
+//! says which model an item is planned with; `H`, `h` and `h′` are its only inputs
+//! to the choice.
+//!
+//! **Pooling.** For the walk ([`pick_growth`]) an item's own fit is used when it
+//! has one; otherwise the fit of its pool (class × zone × pick-rate band), else a
+//! site default. Jumps are shrunk toward the pool's rate per pick instead
+//! (`planning::jumps`). Each interval says which was used.
 
 use super::abc::Class;
 use crate::accuracy::item_error::{ErrorGrowth, GrowthFit};
@@ -114,6 +129,80 @@ pub struct Growth {
     pub b: f64,
 }
 
+/// Record error arriving in jumps: `rate` jumps a day, each of mean absolute size
+/// `size` units (a pick not booked, a case in the wrong bin).
+#[derive(Debug, Clone, Copy, PartialEq, Serialize)]
+pub struct Jumps {
+    pub rate: f64,
+    pub size: f64,
+}
+
+/// How an item's record error grows after a count; see the module notes.
+#[derive(Debug, Clone, Copy, PartialEq, Serialize)]
+#[serde(rename_all = "snake_case", tag = "model")]
+pub enum Drift {
+    /// A random walk of small mistakes: `σ²(t) = a + b·t`, normal.
+    Walk(Growth),
+    /// Rare jumps (compound Poisson), charged at `rate·size·t`.
+    Jump(Jumps),
+}
+
+impl Drift {
+    /// Returns the expected absolute error `t` days after a count, units.
+    pub fn expected_abs(&self, t: f64) -> f64 {
+        match *self {
+            Drift::Walk(Growth { a, b }) => HALF_NORMAL_MEAN * (a + b * t).sqrt(),
+            Drift::Jump(Jumps { rate, size }) => rate * size * t,
+        }
+    }
+
+    /// Returns how fast [`Self::expected_abs`] grows at `t`, units a day.
+    fn expected_abs_slope(&self, t: f64) -> f64 {
+        match *self {
+            Drift::Walk(Growth { a, b }) => {
+                let s = (a + b * t).sqrt();
+                if s > 0.0 {
+                    HALF_NORMAL_MEAN * b / (2.0 * s)
+                } else {
+                    0.0
+                }
+            }
+            Drift::Jump(Jumps { rate, size }) => rate * size,
+        }
+    }
+
+    /// Returns `∫₀ᵗ E|e(u)| du`, unit-days.
+    fn integral(&self, t: f64) -> f64 {
+        match *self {
+            Drift::Walk(Growth { a, b }) if b <= 0.0 => HALF_NORMAL_MEAN * a.sqrt() * t,
+            Drift::Walk(Growth { a, b }) => {
+                HALF_NORMAL_MEAN * 2.0 / (3.0 * b) * ((a + b * t).powf(1.5) - a.powf(1.5))
+            }
+            Drift::Jump(Jumps { rate, size }) => rate * size * t * t / 2.0,
+        }
+    }
+
+    /// Returns the growth of the error's variance: the walk's own, or for jumps
+    /// `Var e(t) = rate·E[J²]·t`, with `E[J²]` taken as `size²` (jumps of one size).
+    pub fn variance_growth(&self) -> Growth {
+        match *self {
+            Drift::Walk(g) => g,
+            Drift::Jump(Jumps { rate, size }) => Growth {
+                a: 0.0,
+                b: rate * size * size,
+            },
+        }
+    }
+
+    /// Tells whether waiting longer adds expected error (else counting sooner finds nothing more).
+    pub fn grows(&self) -> bool {
+        match *self {
+            Drift::Walk(Growth { b, .. }) => b > 0.0,
+            Drift::Jump(Jumps { rate, size }) => rate > 0.0 && size > 0.0,
+        }
+    }
+}
+
 /// Picks the growth to plan with: the item's own fit, else its pool's, else `default`.
 pub fn pick_growth(
     own: &ErrorGrowth,
@@ -145,7 +234,7 @@ pub fn pick_growth(
 pub struct RiskItem {
     pub key: i64,
     pub class: Class,
-    pub growth: Growth,
+    pub drift: Drift,
     pub source: Source,
     /// Cost of one unit, minor currency units.
     pub unit_cost: f64,
@@ -226,27 +315,28 @@ impl Floors {
 
 /// Returns the expected absolute error value `t` days after a count.
 pub fn error_value_at(item: &RiskItem, t: f64) -> f64 {
-    item.unit_cost * HALF_NORMAL_MEAN * (item.growth.a + item.growth.b * t).sqrt()
+    item.unit_cost * item.drift.expected_abs(t)
 }
 
 /// `H(T)`: the integral of the expected error value over the first `t` days.
 fn integral(item: &RiskItem, t: f64) -> f64 {
-    let Growth { a, b } = item.growth;
-    let k = item.unit_cost * HALF_NORMAL_MEAN;
-    if b <= 0.0 {
-        return k * a.sqrt() * t;
-    }
-    k * 2.0 / (3.0 * b) * ((a + b * t).powf(1.5) - a.powf(1.5))
+    item.unit_cost * item.drift.integral(t)
+}
+
+/// Returns the standard deviation of the record error `t` days after a count, units.
+fn error_sd(item: &RiskItem, t: f64) -> f64 {
+    let Growth { a, b } = item.drift.variance_growth();
+    (a + b * t).sqrt()
 }
 
 /// Returns the daily cost at interval `t`: the mean standing error value plus the safety term.
 pub fn daily_cost(item: &RiskItem, t: f64) -> f64 {
-    integral(item, t) / t + item.safety_weight * (item.growth.a + item.growth.b * t).sqrt()
+    integral(item, t) / t + item.safety_weight * error_sd(item, t)
 }
 
 /// `D(T)` of the module notes: what one more day of interval costs, in the budget's units.
 fn marginal(item: &RiskItem, t: f64) -> f64 {
-    let Growth { a, b } = item.growth;
+    let Growth { a, b } = item.drift.variance_growth();
     let s = (a + b * t).sqrt();
     let safety = if s > 0.0 {
         item.safety_weight * b * t * t / (2.0 * s)
@@ -258,14 +348,15 @@ fn marginal(item: &RiskItem, t: f64) -> f64 {
 
 /// `D′(T)`: how fast `D` grows with `T` (for Newton steps).
 fn marginal_slope(item: &RiskItem, t: f64) -> f64 {
-    let Growth { a, b } = item.growth;
+    let Growth { a, b } = item.drift.variance_growth();
     let s = (a + b * t).sqrt();
-    if s <= 0.0 {
-        return 0.0;
-    }
-    let k = item.unit_cost * HALF_NORMAL_MEAN;
     // d/dT [T·h − H] = T·h′; d/dT [q·b·T²/(2s)] = q·b·T·(4a + 3bT)/(4s³).
-    t * k * b / (2.0 * s) + item.safety_weight * b * t * (4.0 * a + 3.0 * b * t) / (4.0 * s * s * s)
+    let safety = if s > 0.0 {
+        item.safety_weight * b * t * (4.0 * a + 3.0 * b * t) / (4.0 * s * s * s)
+    } else {
+        0.0
+    };
+    t * item.unit_cost * item.drift.expected_abs_slope(t) + safety
 }
 
 /// Solves `D(T) = λ·m` for one item within `[MIN_INTERVAL_DAYS, max]`:
@@ -314,9 +405,13 @@ fn check_items(items: &[RiskItem]) -> Result<(), RiskError> {
         return Err(RiskError::TooMany { len: items.len() });
     }
     for item in items {
+        let (first, second) = match item.drift {
+            Drift::Walk(Growth { a, b }) => (("a", a), ("b", b)),
+            Drift::Jump(Jumps { rate, size }) => (("jump rate", rate), ("jump size", size)),
+        };
         let figures = [
-            ("a", item.growth.a),
-            ("b", item.growth.b),
+            first,
+            second,
             ("unit cost", item.unit_cost),
             ("minutes per count", item.minutes),
             ("safety weight", item.safety_weight),

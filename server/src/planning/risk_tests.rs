@@ -12,7 +12,7 @@ fn item(key: i64, growth: Growth, unit_cost: f64, minutes: f64) -> RiskItem {
     RiskItem {
         key,
         class: Class::B,
-        growth,
+        drift: Drift::Walk(growth),
         source: Source::Default,
         unit_cost,
         minutes,
@@ -43,12 +43,19 @@ fn the_half_normal_mean_matches_a_numeric_integral() {
 #[test]
 fn the_closed_form_mean_error_value_matches_a_numeric_average() {
     // f(T) = H(T)/T against the midpoint-rule average of h(t) over [0, T].
-    for growth in [
-        Growth { a: 0.0, b: 2.0 },
-        Growth { a: 9.0, b: 0.3 },
-        Growth { a: 4.0, b: 0.0 },
+    for drift in [
+        Drift::Walk(Growth { a: 0.0, b: 2.0 }),
+        Drift::Walk(Growth { a: 9.0, b: 0.3 }),
+        Drift::Walk(Growth { a: 4.0, b: 0.0 }),
+        Drift::Jump(Jumps {
+            rate: 0.04,
+            size: 1.5,
+        }),
     ] {
-        let it = item(1, growth, 3.5, 1.0);
+        let it = RiskItem {
+            drift,
+            ..item(1, Growth { a: 0.0, b: 1.0 }, 3.5, 1.0)
+        };
         let t = 37.0;
         let steps = 200_000;
         let dt = t / f64::from(steps);
@@ -59,7 +66,7 @@ fn the_closed_form_mean_error_value_matches_a_numeric_average() {
         let closed = daily_cost(&it, t);
         assert!(
             (numeric - closed).abs() < 1e-6 * closed.max(1.0),
-            "{growth:?}: {numeric} vs {closed}"
+            "{drift:?}: {numeric} vs {closed}"
         );
     }
 }
@@ -67,14 +74,29 @@ fn the_closed_form_mean_error_value_matches_a_numeric_average() {
 #[test]
 fn the_newton_slope_matches_a_finite_difference_of_the_marginal() {
     // The interval search steps by D′(T); a wrong D′ would only slow it, so check it directly.
-    for (growth, safety) in [
-        (Growth { a: 0.0, b: 2.0 }, 0.0),
-        (Growth { a: 9.0, b: 0.3 }, 1.5),
-        (Growth { a: 0.5, b: 4.0 }, 0.2),
+    for (drift, safety) in [
+        (Drift::Walk(Growth { a: 0.0, b: 2.0 }), 0.0),
+        (Drift::Walk(Growth { a: 9.0, b: 0.3 }), 1.5),
+        (Drift::Walk(Growth { a: 0.5, b: 4.0 }), 0.2),
+        (
+            Drift::Jump(Jumps {
+                rate: 0.05,
+                size: 2.0,
+            }),
+            0.0,
+        ),
+        (
+            Drift::Jump(Jumps {
+                rate: 0.3,
+                size: 1.5,
+            }),
+            0.7,
+        ),
     ] {
         let it = RiskItem {
             safety_weight: safety,
-            ..item(1, growth, 3.5, 1.0)
+            drift,
+            ..item(1, Growth { a: 0.0, b: 1.0 }, 3.5, 1.0)
         };
         for t in [1.5, 12.0, 300.0] {
             let h = 1e-4 * t;
@@ -82,7 +104,7 @@ fn the_newton_slope_matches_a_finite_difference_of_the_marginal() {
             let exact = marginal_slope(&it, t);
             assert!(
                 (numeric - exact).abs() < 1e-6 * exact.abs().max(1.0),
-                "{growth:?} q={safety} t={t}: {numeric} vs {exact}"
+                "{drift:?} q={safety} t={t}: {numeric} vs {exact}"
             );
         }
     }
@@ -112,6 +134,106 @@ fn three_items_get_the_intervals_the_lagrange_condition_gives_by_hand() {
     }
     assert!((choice.minutes_per_day - 0.7).abs() < 1e-9);
     assert!(!choice.floors_exceed_minutes);
+}
+
+fn jump_item(key: i64, rate: f64, size: f64, unit_cost: f64, minutes: f64) -> RiskItem {
+    RiskItem {
+        drift: Drift::Jump(Jumps { rate, size }),
+        ..item(key, Growth { a: 0.0, b: 1.0 }, unit_cost, minutes)
+    }
+}
+
+#[test]
+fn three_jump_items_get_the_square_root_intervals_worked_by_hand() {
+    // Derivation (jumps, no safety term): h(t) = c·r·s·t, H(T) = c·r·s·T²/2, so the
+    // daily cost is f(T) = H(T)/T = (c·r·s/2)·T = α·T. Minimise Σ αᵢ·Tᵢ subject to
+    // Σ mᵢ/Tᵢ = M. Lagrangian L = Σ αᵢ·Tᵢ + λ·(Σ mᵢ/Tᵢ − M),
+    //   ∂L/∂Tᵢ = αᵢ − λ·mᵢ/Tᵢ² = 0  ⇒  Tᵢ = sqrt(λ·mᵢ/αᵢ)  ⇒  Tᵢ ∝ sqrt(mᵢ/αᵢ)
+    // (the square-root rule). Items: 1 (c = 1, r = 0.1, s = 1, m = 1); 2 as 1 but c = 4
+    // (α four times item 1's, T₂ = T₁/2); 3 as 1 but m = 4 (T₃ = 2·T₁). Budget:
+    // 1/T₁ + 2/T₁ + 4/(2·T₁) = 5/T₁ = M; with M = 0.5, T₁ = 10, T₂ = 5, T₃ = 20 days.
+    let items = [
+        jump_item(1, 0.1, 1.0, 1.0, 1.0),
+        jump_item(2, 0.1, 1.0, 4.0, 1.0),
+        jump_item(3, 0.1, 1.0, 1.0, 4.0),
+    ];
+    let choice = choose(&items, 0.5, &NO_FLOORS).unwrap();
+    for (got, want) in days(&choice).iter().zip([10.0, 5.0, 20.0]) {
+        assert!((got - want).abs() < 1e-6, "{got} vs {want}");
+    }
+    assert!((choice.minutes_per_day - 0.5).abs() < 1e-9);
+    // The rate and the size enter only as their product r·s: halving one and doubling
+    // the other leaves the interval.
+    let swapped = [
+        jump_item(1, 0.05, 2.0, 1.0, 1.0),
+        jump_item(2, 0.2, 0.5, 4.0, 1.0),
+        jump_item(3, 0.1, 1.0, 1.0, 4.0),
+    ];
+    let again = choose(&swapped, 0.5, &NO_FLOORS).unwrap();
+    for (a, b) in days(&choice).iter().zip(days(&again)) {
+        assert!((a - b).abs() < 1e-6, "{a} vs {b}");
+    }
+}
+
+#[test]
+fn the_jump_charge_is_exact_for_one_signed_jumps_and_a_close_upper_bound_for_symmetric_ones() {
+    use rand_distr::{Distribution, Poisson};
+    // One-signed jumps (every unbooked pick leaves the book above the shelf): |e(T)| is
+    // the sum of the jump sizes, E = r·T·E|J| (Wald's identity). Checked by drawing
+    // 200,000 seeded paths with sizes 1 or 2 units (mean 1.5), not by the same formula.
+    let (rate, t) = (0.3, 20.0);
+    let drift = Drift::Jump(Jumps { rate, size: 1.5 });
+    let mut rng = ChaCha8Rng::seed_from_u64(22);
+    let poisson = Poisson::new(rate * t).unwrap();
+    let paths = 200_000;
+    let mut total = 0.0;
+    for _ in 0..paths {
+        let n = poisson.sample(&mut rng) as u32;
+        total += (0..n)
+            .map(|_| if rng.random_bool(0.5) { 1.0 } else { 2.0 })
+            .sum::<f64>();
+    }
+    let drawn = total / f64::from(paths);
+    let charged = drift.expected_abs(t);
+    assert!(
+        (drawn - charged).abs() < 0.01 * charged,
+        "{drawn} vs {charged}"
+    );
+    // Symmetric jumps of ±s: E|e(T)| = s·Σₙ P(N = n)·E|Sₙ|, Sₙ a simple random walk,
+    // E|Sₙ| summed over its binomial law here. While r·T ≤ 0.1 two jumps rarely meet, so
+    // the linear charge r·T·s is an upper bound (triangle inequality) within 5 %.
+    let exact_symmetric = |mean: f64| -> f64 {
+        let mut p = (-mean).exp();
+        let mut sum = 0.0;
+        for n in 0..60u32 {
+            if n > 0 {
+                p *= mean / f64::from(n);
+            }
+            // E|Sₙ| = Σₖ C(n, k)·2⁻ⁿ·|2k − n|.
+            let mut c = 1.0;
+            let mut e = 0.0;
+            for k in 0..=n {
+                if k > 0 {
+                    c *= f64::from(n - k + 1) / f64::from(k);
+                }
+                e += c * 0.5f64.powi(n as i32) * (2.0 * f64::from(k) - f64::from(n)).abs();
+            }
+            sum += p * e;
+        }
+        sum
+    };
+    for mean in [0.01, 0.05, 0.1] {
+        let size = 2.0;
+        let t = 10.0;
+        let drift = Drift::Jump(Jumps {
+            rate: mean / t,
+            size,
+        });
+        let exact = size * exact_symmetric(mean);
+        let charged = drift.expected_abs(t);
+        assert!(charged >= exact, "{charged} < {exact}");
+        assert!(charged <= 1.05 * exact, "λT {mean}: {charged} vs {exact}");
+    }
 }
 
 #[test]
@@ -162,13 +284,20 @@ fn the_choice_is_no_worse_than_brute_force_on_small_random_instances() {
         let items: [RiskItem; 2] = std::array::from_fn(|i| RiskItem {
             key: i as i64,
             class: classes[rng.random_range(0..3)],
-            growth: Growth {
-                a: if rng.random_bool(0.5) {
-                    0.0
-                } else {
-                    rng.random_range(0.0..20.0)
-                },
-                b: rng.random_range(0.01..5.0),
+            drift: if rng.random_bool(0.3) {
+                Drift::Jump(Jumps {
+                    rate: rng.random_range(0.001..0.5),
+                    size: rng.random_range(0.5..5.0),
+                })
+            } else {
+                Drift::Walk(Growth {
+                    a: if rng.random_bool(0.5) {
+                        0.0
+                    } else {
+                        rng.random_range(0.0..20.0)
+                    },
+                    b: rng.random_range(0.01..5.0),
+                })
             },
             source: Source::Default,
             unit_cost: rng.random_range(0.5..200.0),
@@ -280,7 +409,10 @@ fn pick_rates_fall_into_their_bands() {
 fn bad_figures_are_refused_by_name() {
     let good = item(7, Growth { a: 0.0, b: 1.0 }, 1.0, 1.0);
     let mut bad = good;
-    bad.growth.b = f64::NAN;
+    bad.drift = Drift::Walk(Growth {
+        a: 0.0,
+        b: f64::NAN,
+    });
     assert_eq!(
         choose(&[good, bad], 1.0, &NO_FLOORS),
         Err(RiskError::BadFigure { key: 7, what: "b" })
@@ -292,6 +424,14 @@ fn bad_figures_are_refused_by_name() {
         Err(RiskError::NoMinutes { key: 7 })
     );
     assert_eq!(choose(&[good], 0.0, &NO_FLOORS), Err(RiskError::BadBudget));
+    let bad = jump_item(8, -0.1, 1.0, 1.0, 1.0);
+    assert_eq!(
+        choose(&[good, bad], 1.0, &NO_FLOORS),
+        Err(RiskError::BadFigure {
+            key: 8,
+            what: "jump rate"
+        })
+    );
     assert_eq!(
         choose(
             &[good],

@@ -7,7 +7,6 @@ use super::policy::{self, DEMAND_DAYS, FrequencyPolicy, ItemHistory, ItemWorth, 
 use super::{
     AbcSummary, ListView, MAX_COUNTERS, MAX_MINUTES, NewCountList, NewTask, Summary, TaskView,
 };
-use crate::accuracy::item_error::{ErrorGrowth, GrowthFit, Shortfall};
 use crate::accuracy::store::ResultQuery;
 use crate::master::Site;
 use crate::store::Store;
@@ -105,7 +104,7 @@ pub async fn risk_intervals(
 }
 
 /// Chooses each item's interval by risk: reads its unit cost, picks and count results,
-/// fits its error growth (`accuracy`) and lets `policy::risk_plan` choose. Returns the
+/// gathers its error points (`accuracy`) and lets `policy::risk_plan` choose. Returns the
 /// worth read too, by item id.
 async fn risk_plan(
     store: &dyn Store,
@@ -142,31 +141,17 @@ async fn risk_plan(
                 .and_then(|w| figures.remove(&w.sku))
                 .map(|f| f.points)
                 .unwrap_or_default();
-            Ok(ItemHistory {
+            ItemHistory {
                 unit_cost_minor: w.map_or(0, |w| w.unit_cost_minor),
                 picks_per_day: w.map_or(0.0, |w| w.picks as f64 / DEMAND_DAYS as f64),
-                growth: if points.is_empty() {
-                    NO_GROWTH
-                } else {
-                    policy::fit(&points)?
-                },
                 points,
-            })
+            }
         })
-        .collect::<Result<_, super::risk::RiskError>>()
-        .map_err(|e| anyhow::anyhow!("an item's record-error growth: {e}"))?;
+        .collect();
     let plan = policy::risk_plan(input, &history, policy)
         .map_err(|e| anyhow::anyhow!("the risk policy's choice: {e}"))?;
     Ok((plan, worth))
 }
-
-/// The growth of an item with no judged counts.
-const NO_GROWTH: ErrorGrowth = ErrorGrowth {
-    points: 0,
-    fit: GrowthFit::NotEnoughData(Shortfall::TooFewPoints {
-        needed: crate::accuracy::item_error::MIN_FIT_POINTS,
-    }),
-};
 
 /// Builds and stores a day's list, and returns it as stored.
 pub async fn build(

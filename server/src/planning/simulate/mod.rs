@@ -12,7 +12,8 @@
 pub mod report;
 
 use super::abc::Class;
-use super::risk::{self, Floors, Growth, PoolKey, RateBand, RiskItem, Source};
+use super::jumps::{self, ItemEvidence};
+use super::risk::{self, Drift, Floors, Growth, PoolKey, RateBand, RiskItem, Source};
 use crate::accuracy::buffer::{BufferInputs, buffer};
 use crate::accuracy::item_error::{ErrorGrowth, ErrorPoint, fit_growth_from_count};
 use std::collections::{BTreeMap, BTreeSet};
@@ -54,6 +55,16 @@ impl Policy {
     }
 }
 
+/// How `risk` models record error growing after a count.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Default)]
+pub enum ErrorModel {
+    /// Rare jumps, a rate per item shrunk toward its pool's per-pick rate ([`jumps`]).
+    #[default]
+    Jump,
+    /// A random walk, `σ²(t) = b·t` fitted from a count (the wired policy's model).
+    Walk,
+}
+
 /// One item as the simulation sees it.
 #[derive(Debug, Clone, PartialEq)]
 pub struct SimItem {
@@ -86,6 +97,9 @@ pub struct SimSite {
     pub working_days_per_year: f64,
     /// Least counts a year per class under `risk` (0: no floor), as the `blend` policy sets.
     pub floors: Floors,
+    /// How both policies model error growth (`risk` chooses with it; both value
+    /// their safety stock with it).
+    pub model: ErrorModel,
 }
 
 /// Why a simulation cannot start.
@@ -152,7 +166,7 @@ struct Tally {
 struct Run {
     policy: Policy,
     interval: Vec<f64>,
-    growth: Vec<Growth>,
+    drift: Vec<Drift>,
     last: Vec<i64>,
     known_last: Vec<bool>,
     marks: BTreeMap<KeyId, Mark>,
@@ -236,7 +250,7 @@ impl Simulation {
         let run = |policy| Run {
             policy,
             interval: vec![f64::INFINITY; n],
-            growth: vec![UNIT_GROWTH; n],
+            drift: vec![Drift::Walk(UNIT_GROWTH); n],
             last: vec![0; n],
             known_last: site.items.iter().map(|i| i.last_count.is_some()).collect(),
             marks: BTreeMap::new(),
@@ -282,9 +296,9 @@ impl Simulation {
         &self.runs[policy as usize].interval
     }
 
-    /// Returns a policy's current growth of each item (what its intervals were chosen with).
-    pub fn growth(&self, policy: Policy) -> &[Growth] {
-        &self.runs[policy as usize].growth
+    /// Returns a policy's current error growth of each item (what its intervals were chosen with).
+    pub fn drift(&self, policy: Policy) -> &[Drift] {
+        &self.runs[policy as usize].drift
     }
 
     /// Returns the value of record error standing on each item under a policy, minor units.
@@ -315,8 +329,11 @@ impl Simulation {
                 };
             }
         }
-        let growth = learned_growth(site, &run.points);
-        run.growth = growth.iter().map(|(g, _)| *g).collect();
+        let growth = match site.model {
+            ErrorModel::Walk => learned_growth(site, &run.points),
+            ErrorModel::Jump => learned_jumps(site, &run.points),
+        };
+        run.drift = growth.iter().map(|(g, _)| *g).collect();
         if run.policy == Policy::Abc {
             return;
         }
@@ -328,7 +345,7 @@ impl Simulation {
             .map(|&i| RiskItem {
                 key: i as i64,
                 class: site.items[i].class,
-                growth: growth[i].0,
+                drift: growth[i].0,
                 source: growth[i].1,
                 unit_cost: site.items[i].unit_cost.max(0.0),
                 minutes: item_seconds(site, i) as f64 / 60.0,
@@ -511,15 +528,36 @@ fn count_bin(site: &SimSite, keys: &Keys, run: &mut Run, bin: usize, day: u32) {
     }
 }
 
-/// Returns each item's growth: its own fit, else its pool's (class × pick-rate band),
-/// else the site's (every point), else [`UNIT_GROWTH`].
-fn learned_growth(site: &SimSite, points: &[Vec<ErrorPoint>]) -> Vec<(Growth, Source)> {
-    let fit = |p: &[ErrorPoint]| fit_growth_from_count(p).ok().filter(ErrorGrowth::enough);
-    let pool_of = |i: usize| PoolKey {
+fn pool_of(site: &SimSite, i: usize) -> PoolKey {
+    PoolKey {
         class: site.items[i].class,
         zone: 0,
         band: RateBand::of(site.items[i].picks_per_day),
-    };
+    }
+}
+
+/// Returns each item's jumps ([`jumps::estimate`], pools of class × pick-rate band).
+fn learned_jumps(site: &SimSite, points: &[Vec<ErrorPoint>]) -> Vec<(Drift, Source)> {
+    let evidence: Vec<ItemEvidence> = points
+        .iter()
+        .enumerate()
+        .map(|(i, p)| ItemEvidence {
+            pool: pool_of(site, i),
+            picks_per_day: site.items[i].picks_per_day,
+            points: p,
+        })
+        .collect();
+    jumps::estimate(&evidence)
+        .into_iter()
+        .map(|(j, s)| (Drift::Jump(j), s))
+        .collect()
+}
+
+/// Returns each item's growth: its own fit, else its pool's (class × pick-rate band),
+/// else the site's (every point), else [`UNIT_GROWTH`].
+fn learned_growth(site: &SimSite, points: &[Vec<ErrorPoint>]) -> Vec<(Drift, Source)> {
+    let fit = |p: &[ErrorPoint]| fit_growth_from_count(p).ok().filter(ErrorGrowth::enough);
+    let pool_of = |i: usize| pool_of(site, i);
     let mut pooled: BTreeMap<PoolKey, Vec<ErrorPoint>> = BTreeMap::new();
     for (i, p) in points.iter().enumerate() {
         pooled.entry(pool_of(i)).or_default().extend(p);
@@ -553,9 +591,9 @@ fn learned_growth(site: &SimSite, points: &[Vec<ErrorPoint>]) -> Vec<(Growth, So
             );
             // A fit of zero growth would never call for a count; keep the site's.
             if g.b <= 0.0 && g.a <= 0.0 {
-                (default, Source::Default)
+                (Drift::Walk(default), Source::Default)
             } else {
-                (g, s)
+                (Drift::Walk(g), s)
             }
         })
         .collect()
@@ -563,7 +601,8 @@ fn learned_growth(site: &SimSite, points: &[Vec<ErrorPoint>]) -> Vec<(Growth, So
 
 /// Returns the safety stock of every item with demand, valued: `z·sqrt((L + R)σd² +
 /// d²σL² + σrec²)` with `σrec = sqrt(a + b·T)` at the policy's interval `T` (the
-/// error just before a count), `R = 0`, `σd = sqrt(d)` (Poisson demand).
+/// error just before a count; for jumps `a = 0`, `b = rate·size²`), `R = 0`,
+/// `σd = sqrt(d)` (Poisson demand).
 fn safety_stock_value(site: &SimSite, run: &Run) -> f64 {
     site.items
         .iter()
@@ -571,7 +610,7 @@ fn safety_stock_value(site: &SimSite, run: &Run) -> f64 {
         .filter(|(_, it)| it.units_per_day > 0.0)
         .map(|(i, it)| {
             let t = run.interval[i].min(risk::MAX_INTERVAL_DAYS);
-            let g = run.growth[i];
+            let g = run.drift[i].variance_growth();
             let sigma_rec = (g.a + g.b * t).max(0.0).sqrt();
             let b = buffer(BufferInputs {
                 service_level: SERVICE_LEVEL,

@@ -21,6 +21,7 @@ fn one_item(per_year_a: u32) -> SimSite {
         floors: Floors {
             per_year: [0, 0, 0],
         },
+        model: ErrorModel::Jump,
     }
 }
 
@@ -146,6 +147,7 @@ fn forty(floors: [u32; 3], minutes: u32) -> (SimSite, Vec<Keys>) {
         minutes,
         working_days_per_year: 250.0,
         floors: Floors { per_year: floors },
+        model: ErrorModel::Jump,
     };
     (site, days)
 }
