@@ -34,6 +34,19 @@ struct DemoSite {
 
 /// A small demo site (60 items, 150 bins, 120 days, the last 4 weeks counted).
 async fn demo_site(seed: u64) -> DemoSite {
+    demo_site_of(DemoSpec {
+        items: 60,
+        bins: 150,
+        days: 120,
+        end: end(),
+        history_weeks: 4,
+        ..DemoSpec::standard(seed)
+    })
+    .await
+}
+
+/// A demo site made by `spec` in a store of its own.
+async fn demo_site_of(spec: DemoSpec) -> DemoSite {
     let dir = tempfile::tempdir().unwrap();
     let pg = common::PgTestDb::create();
     let db = match &pg {
@@ -42,14 +55,6 @@ async fn demo_site(seed: u64) -> DemoSite {
     };
     let store = cairn::store::open(&DbLocation::parse(&db).unwrap(), StoreOptions::default())
         .expect("the test store opens");
-    let spec = DemoSpec {
-        items: 60,
-        bins: 150,
-        days: 120,
-        end: end(),
-        history_weeks: 4,
-        ..DemoSpec::standard(seed)
-    };
     demo::generate(store.as_ref(), &spec, false)
         .await
         .expect("the demo site generates");
@@ -160,17 +165,25 @@ fn figures(rows: &[WeekRow]) -> (report::Totals, report::Totals) {
     )
 }
 
-/// The issue's expectation: at equal minutes, `risk` finds more of the injected error
-/// value than `abc`. With error charged as rare jumps (DEVELOPERS.md, "Error arriving in
-/// jumps") it does on the full demo site at 60 minutes (+17.6 %), but this small site
-/// cannot show it: at 60 minutes both find every injected error (1,314.33 each, value
-/// accuracy 100 % at the end), `risk` about twice as soon (mean age 2.4 days against
-/// 4.5). Kept as written and ignored: a budget tight enough to separate them here would
-/// be a setting chosen after seeing the result.
+/// The issue's expectation: on the demo site at equal minutes, `risk` finds more of the
+/// injected error value than `abc`. The site is the one `cairn demo` makes (600 items,
+/// 1,500 bins, a year of movements, its weeks of counting; seed 7), ending on a fixed day
+/// so the run does not follow the calendar; 60 counter-minutes a working day, the
+/// shortest row of DEVELOPERS.md's figures ("Counting simulation"), where the choice of
+/// what to count matters most. It does not hold yet: the demo made for 2026-12-05 gives
+/// `risk` +17.6 % at 60 minutes, but this one (history ending 2026-06-30) gives -8.0 %
+/// (3,732.29 against 4,056.44; `risk` finds more errors, 68 against 64, of less value,
+/// and later). Ignored until the model wins on every demo instance; `cargo test --
+/// --ignored` says when. (The small site of the other tests cannot decide it: at 60
+/// minutes both find all its errors.)
 #[tokio::test]
-#[ignore = "both policies find every injected error on the small test site at 60 minutes (1,314.33 each), so neither can find more; risk finds them sooner; see DEVELOPERS.md"]
-async fn at_equal_minutes_risk_finds_more_injected_error_value_than_abc() {
-    let s = demo_site(11).await;
+#[ignore = "not yet: on the demo site ending 2026-06-30, risk finds -8.0 % of abc's error value at 60 minutes (+17.6 % on the demo made for 2026-12-05); see DEVELOPERS.md"]
+async fn on_the_demo_site_at_equal_minutes_risk_finds_more_injected_error_value_than_abc() {
+    let s = demo_site_of(DemoSpec {
+        end: end(),
+        ..DemoSpec::standard(7).with_history()
+    })
+    .await;
     let r = run(&s, &spec(12, 60, 22)).await;
     let (abc, risk) = figures(&r.rows);
     eprintln!("{}", report::verdict(&abc, &risk));
