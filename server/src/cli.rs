@@ -146,8 +146,10 @@ enum Command {
         #[arg(long, value_delimiter = ',', default_values_t = [0, 0, 0])]
         floors: Vec<u32>,
         /// How `risk` models record error growing after a count: `jump` (errors arrive
-        /// as rare jumps, a rate per item learned from its counts and its picks) or `walk`
-        /// (a random walk, variance growing linearly: the wired policy's model).
+        /// as rare jumps, a rate per item learned from its counts and its picks: what the
+        /// day's list plans with) or `walk`
+        /// (a random walk, variance growing linearly: the model the day's list planned with
+        /// before the jump model).
         #[arg(long, value_enum, default_value_t = SimErrorModel::Jump)]
         error_model: SimErrorModel,
         /// How the weeks simulated spread errors among items: `uniform` (the demo's

@@ -61,7 +61,8 @@ pub enum ErrorModel {
     /// Rare jumps, a rate per item shrunk toward its pool's per-pick rate ([`jumps`]).
     #[default]
     Jump,
-    /// A random walk, `σ²(t) = b·t` fitted from a count (the wired policy's model).
+    /// A random walk, `σ²(t) = b·t` fitted from a count (what the day's list planned with
+    /// before jumps; kept for comparison).
     Walk,
 }
 
