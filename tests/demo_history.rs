@@ -29,12 +29,8 @@ fn end() -> NaiveDate {
 /// A small site: 60 items, 150 bins, 120 days of movements, the last 4 weeks counted.
 fn small(seed: u64) -> DemoSpec {
     DemoSpec {
-        items: 60,
-        bins: 150,
-        days: 120,
         end: end(),
-        history_weeks: 4,
-        ..DemoSpec::standard(seed)
+        ..DemoSpec::small(seed)
     }
 }
 

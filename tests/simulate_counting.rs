@@ -35,12 +35,8 @@ struct DemoSite {
 /// A small demo site (60 items, 150 bins, 120 days, the last 4 weeks counted).
 async fn demo_site(seed: u64) -> DemoSite {
     demo_site_of(DemoSpec {
-        items: 60,
-        bins: 150,
-        days: 120,
         end: end(),
-        history_weeks: 4,
-        ..DemoSpec::standard(seed)
+        ..DemoSpec::small(seed)
     })
     .await
 }
@@ -133,28 +129,18 @@ fn the_uneven_worlds_multipliers_average_one_and_come_from_the_seed() {
 #[tokio::test]
 async fn the_uneven_world_moves_errors_between_items_but_not_the_worlds_other_draws() {
     let s = demo_site(11).await;
+    let uneven_spec = ReplaySpec {
+        world: WorldKind::Uneven,
+        ..spec(6, 60, 5)
+    };
     let uniform = run(&s, &spec(6, 60, 5)).await;
-    let uneven = run(
-        &s,
-        &ReplaySpec {
-            world: WorldKind::Uneven,
-            ..spec(6, 60, 5)
-        },
-    )
-    .await;
+    let uneven = run(&s, &uneven_spec).await;
     assert_ne!(uniform.rows, uneven.rows, "other items go wrong");
     // The same picks and top-ups are drawn (stream 0 of the seed): the count of errors
     // injected moves with the multipliers, the keys the world starts from do not.
     assert_eq!(uniform.keys, uneven.keys);
     assert_eq!(uniform.wrong_at_start, uneven.wrong_at_start);
-    let again = run(
-        &s,
-        &ReplaySpec {
-            world: WorldKind::Uneven,
-            ..spec(6, 60, 5)
-        },
-    )
-    .await;
+    let again = run(&s, &uneven_spec).await;
     assert_eq!(uneven.rows, again.rows);
 }
 
