@@ -296,6 +296,8 @@ async fn the_command_prints_both_policies_week_by_week_and_writes_a_chart_of_bot
         "age (d)",
         "safety stock",
         "minutes",
+        "of it, day one",
+        "of the errors that arose during the run (not standing on its first day): risk ",
     ] {
         assert!(text.contains(head), "{head}: {text}");
     }

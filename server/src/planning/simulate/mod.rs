@@ -137,6 +137,9 @@ pub struct WeekRow {
     pub errors_found: u32,
     /// Minor units.
     pub error_value_found: f64,
+    /// Of `error_value_found`, errors already standing on the run's first day (left by
+    /// the history, or made that day), minor units; the rest arose during the run.
+    pub first_day_value_found: f64,
     /// Mean age in days of the errors found this week, `None` when none were.
     pub mean_age_days: Option<f64>,
     /// Value of record error left standing at the week's end, minor units.
@@ -159,6 +162,7 @@ struct Mark {
 struct Tally {
     errors: u32,
     value: f64,
+    first_day_value: f64,
     age_days: f64,
     seconds: f64,
     bins: u32,
@@ -183,6 +187,8 @@ pub struct Simulation {
     keys: Keys,
     runs: [Run; 2],
     rows: Vec<WeekRow>,
+    /// The day of the first [`Simulation::day`]: an error dated to it stood at the start.
+    first_day: Option<u32>,
 }
 
 fn item_seconds(site: &SimSite, i: usize) -> i64 {
@@ -264,6 +270,7 @@ impl Simulation {
             keys: Keys::new(),
             runs: [run(Policy::Abc), run(Policy::Risk)],
             rows: Vec::new(),
+            first_day: None,
             site,
         };
         for r in 0..2 {
@@ -365,6 +372,7 @@ impl Simulation {
     /// working day each policy counts what is due within the minutes. A new week is
     /// planned (risk intervals from the growth learned so far) every seventh day.
     pub fn day(&mut self, day: u32, working: bool, keys: &Keys) {
+        let first_day = *self.first_day.get_or_insert(day);
         for v in self.keys.values_mut() {
             *v = (0, 0);
         }
@@ -379,7 +387,7 @@ impl Simulation {
         for r in 0..2 {
             mark_errors(&self.keys, &mut self.runs[r], day);
             if working {
-                self.count(r, day);
+                self.count(r, day, first_day);
             }
         }
         if day.is_multiple_of(DAYS_PER_WEEK) {
@@ -392,7 +400,7 @@ impl Simulation {
         }
     }
 
-    fn count(&mut self, r: usize, day: u32) {
+    fn count(&mut self, r: usize, day: u32, first_day: u32) {
         let site = &self.site;
         let run = &mut self.runs[r];
         let today = i64::from(day);
@@ -434,7 +442,7 @@ impl Simulation {
             run.last[i] = today;
             for b in bins {
                 counted.insert(b);
-                count_bin(site, &self.keys, run, b, day);
+                count_bin(site, &self.keys, run, b, day, first_day);
             }
         }
         run.tally.seconds += used;
@@ -473,6 +481,7 @@ impl Simulation {
             },
             errors_found: t.errors,
             error_value_found: t.value,
+            first_day_value_found: t.first_day_value,
             mean_age_days: (t.errors > 0).then(|| t.age_days / f64::from(t.errors)),
             standing_error_value: wrong_value,
             safety_stock_value: safety_stock_value(&self.site, run),
@@ -514,15 +523,19 @@ fn mark_errors(keys: &Keys, run: &mut Run, day: u32) {
 }
 
 /// Counts one bin: every key in it gets the shelf's quantity as its book.
-fn count_bin(site: &SimSite, keys: &Keys, run: &mut Run, bin: usize, day: u32) {
+fn count_bin(site: &SimSite, keys: &Keys, run: &mut Run, bin: usize, day: u32, first_day: u32) {
     for (k, &(book, truth)) in keys_of(keys, bin) {
         let diff = policy_book(run, k, book) - truth;
         if diff == 0 {
             continue;
         }
         let m = run.marks.entry(k.clone()).or_default();
+        let value = diff.abs() as f64 * site.items[k.1].unit_cost;
         run.tally.errors += 1;
-        run.tally.value += diff.abs() as f64 * site.items[k.1].unit_cost;
+        run.tally.value += value;
+        if m.since == Some(first_day) {
+            run.tally.first_day_value += value;
+        }
         run.tally.age_days += f64::from(day - m.since.unwrap_or(day));
         m.adj -= diff;
         m.since = None;

@@ -20,6 +20,8 @@ pub struct Totals {
     pub errors_found: u32,
     /// Minor units.
     pub error_value_found: f64,
+    /// Of it, errors that stood on the run's first day; minor units.
+    pub first_day_value_found: f64,
     /// Mean age of every error found, days.
     pub mean_age_days: Option<f64>,
     pub minutes_used: f64,
@@ -41,6 +43,7 @@ pub fn totals(rows: &[WeekRow], policy: Policy) -> Totals {
         policy,
         errors_found: errors,
         error_value_found: mine.iter().map(|r| r.error_value_found).sum(),
+        first_day_value_found: mine.iter().map(|r| r.first_day_value_found).sum(),
         mean_age_days: (errors > 0).then(|| age / f64::from(errors)),
         minutes_used: mine.iter().map(|r| r.minutes_used).sum(),
         final_ira: last.map_or(1.0, |r| r.ira),
@@ -115,10 +118,11 @@ pub fn table(rows: &[WeekRow], shown: Shown) -> String {
     let _ = writeln!(out);
     let _ = writeln!(
         out,
-        "{:<6} {:>7} {:>16} {:>12} {:>10} {:>10} {:>12} {:>14}",
+        "{:<6} {:>7} {:>16} {:>16} {:>12} {:>10} {:>10} {:>12} {:>14}",
         "totals",
         "errors",
         "error value",
+        "of it, day one",
         "mean age (d)",
         "minutes",
         "final IRA",
@@ -129,10 +133,11 @@ pub fn table(rows: &[WeekRow], shown: Shown) -> String {
     for t in &both {
         let _ = writeln!(
             out,
-            "{:<6} {:>7} {:>16} {:>12} {:>10.0} {:>10} {:>12} {:>14}",
+            "{:<6} {:>7} {:>16} {:>16} {:>12} {:>10.0} {:>10} {:>12} {:>14}",
             name(t.policy, shown),
             t.errors_found,
             money(t.error_value_found),
+            money(t.first_day_value_found),
             t.mean_age_days.map_or("-".into(), |a| format!("{a:.1}")),
             t.minutes_used,
             pct(t.final_ira),
@@ -142,6 +147,7 @@ pub fn table(rows: &[WeekRow], shown: Shown) -> String {
     }
     let _ = writeln!(out);
     let _ = writeln!(out, "{}", verdict(&both[0], &both[1]));
+    let _ = writeln!(out, "{}", arising_verdict(&both[0], &both[1]));
     if let Shown::Proposal(p) = shown {
         let _ = writeln!(out, "* {} is the policy proposed (--policy)", p.as_str());
     }
@@ -171,6 +177,26 @@ pub fn verdict(abc: &Totals, risk: &Totals) -> String {
         money(diff.abs()),
         money(risk.error_value_found),
         money(abc.error_value_found)
+    )
+}
+
+/// Says the same of the errors that arose during the run (those standing on its first
+/// day left out): what the policies' choice of intervals is about, apart from where the
+/// history happened to leave errors.
+pub fn arising_verdict(abc: &Totals, risk: &Totals) -> String {
+    let (a, r) = (
+        abc.error_value_found - abc.first_day_value_found,
+        risk.error_value_found - risk.first_day_value_found,
+    );
+    let rel = if a > 0.0 {
+        format!(" ({:+.1} %)", (r - a) / a * 100.0)
+    } else {
+        String::new()
+    };
+    format!(
+        "of the errors that arose during the run (not standing on its first day): risk {}, abc {}{rel}",
+        money(r),
+        money(a)
     )
 }
 

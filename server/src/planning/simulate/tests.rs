@@ -54,6 +54,31 @@ fn a_count_finds_the_error_its_value_and_its_age_and_then_the_book_is_right() {
 }
 
 #[test]
+fn an_error_standing_on_the_first_day_is_told_apart_from_one_that_arose_later() {
+    let mut sim = Simulation::new(one_item(365), 1).unwrap();
+    // Day 1 (the first): 2 units short already, not counted (no work that day). Day 2:
+    // counted, 2 units found, dated to day 1. Day 3: 1 more unit short. Day 4: counted,
+    // 1 unit found, dated to day 3.
+    sim.day(1, false, &keys(10, 8));
+    sim.day(2, true, &keys(10, 8));
+    sim.day(3, false, &keys(10, 7));
+    for d in 4..=7 {
+        sim.day(d, true, &keys(10, 7));
+    }
+    for r in sim.rows() {
+        assert_eq!(r.errors_found, 2, "{r:?}");
+        assert_eq!(r.error_value_found, 3.0 * 250.0, "{r:?}");
+        assert_eq!(r.first_day_value_found, 2.0 * 250.0, "{r:?}");
+    }
+    let abc = report::totals(sim.rows(), Policy::Abc);
+    let risk = report::totals(sim.rows(), Policy::Risk);
+    assert_eq!(
+        report::arising_verdict(&abc, &risk),
+        "of the errors that arose during the run (not standing on its first day): risk 2.50, abc 2.50 (+0.0 %)"
+    );
+}
+
+#[test]
 fn both_policies_meet_the_same_errors_and_keep_their_own_corrections() {
     let mut sim = Simulation::new(one_item(365), 1).unwrap();
     for d in 1..=7 {
@@ -241,6 +266,7 @@ fn the_end_labels_stand_apart_when_both_policies_found_the_same() {
         value_accuracy: 1.0,
         errors_found: 2,
         error_value_found: 5_000.0,
+        first_day_value_found: 0.0,
         mean_age_days: Some(1.0),
         standing_error_value: 0.0,
         safety_stock_value: 0.0,
