@@ -325,6 +325,7 @@ enum ProposedPolicy {
 enum SimErrorModel {
     Jump,
     Walk,
+    Known,
 }
 
 #[derive(Clone, Copy, clap::ValueEnum)]
@@ -812,6 +813,7 @@ async fn dispatch(command: Command) -> anyhow::Result<()> {
                 model: match error_model {
                     SimErrorModel::Jump => ErrorModel::Jump,
                     SimErrorModel::Walk => ErrorModel::Walk,
+                    SimErrorModel::Known => ErrorModel::Known,
                 },
                 world: match world {
                     SimWorld::Uniform => demo::replay::WorldKind::Uniform,

@@ -297,6 +297,15 @@ pub async fn replay(
                 .unwrap_or_default(),
         });
     }
+    let propensity = match spec.world {
+        WorldKind::Uniform => vec![1.0; demo_items.len()],
+        WorldKind::Uneven => uneven_propensity(demo_items.len(), spec.seed),
+    };
+    let known = if spec.model == ErrorModel::Known {
+        known_jumps(&demo_items, &bins, &sim_items, &propensity)
+    } else {
+        Vec::new()
+    };
     let per_year = input.settings.frequency.per_year;
     let site_sim = SimSite {
         items: sim_items,
@@ -308,6 +317,7 @@ pub async fn replay(
             per_year: spec.floors,
         },
         model: spec.model,
+        known,
     };
     let mut sim = Simulation::new(site_sim, spec.weeks)?;
     let wrong_at_start = keys.iter().filter(|k| k.3 != k.4).count();
@@ -319,7 +329,7 @@ pub async fn replay(
         &keys,
     );
     if spec.world == WorldKind::Uneven {
-        world.set_error_propensity(uneven_propensity(demo_items.len(), spec.seed));
+        world.set_error_propensity(propensity);
     }
     let days = spec.weeks * 7;
     let pb = if spec.show {
@@ -374,6 +384,65 @@ pub async fn replay(
     })
 }
 
+/// Returns each item's true jumps in the replayed world (`sim::World`'s chances times the
+/// item's propensity), as a count of the item's bins meets them: its own unrecorded picks
+/// (a pick's mean quantity), mis-keyed picks (one unit) and, for an item replenished
+/// from reserve, mis-putaways (the whole replenishment short on its face, `P·units a
+/// day` on average, since every unit it sells passes through a replenishment), plus
+/// the replenishments of other items misplaced into its bins (valued at their cost,
+/// carried as units of this item's). Stalled faces (a face emptied by a mis-putaway
+/// stops being picked) are left out: a small overstatement.
+fn known_jumps(
+    demo: &[DemoItem],
+    bins: &[NewBin],
+    sim: &[SimItem],
+    propensity: &[f64],
+) -> Vec<crate::planning::risk::Jumps> {
+    use super::sim::{P_MISKEYED_PICK, P_MISPUTAWAY, P_UNRECORDED_PICK};
+    let mean_pick = (1.0 + f64::from(MAX_PICK)) / 2.0;
+    // (jumps a day, value a day) each count of an item meets.
+    let mut met = vec![(0.0_f64, 0.0_f64); demo.len()];
+    let mut holder: BTreeMap<usize, usize> = BTreeMap::new();
+    for (i, it) in sim.iter().enumerate() {
+        for &b in &it.bins {
+            holder.entry(b).or_insert(i);
+        }
+    }
+    for (i, (d, s)) in demo.iter().zip(sim).enumerate() {
+        let m = propensity[i];
+        let picks = s.picks_per_day;
+        met[i].0 += picks * m * (P_UNRECORDED_PICK + P_MISKEYED_PICK);
+        met[i].1 += picks * m * (P_UNRECORDED_PICK * mean_pick + P_MISKEYED_PICK) * s.unit_cost;
+        let to = d.pick_bin;
+        if d.reserve_bin.is_none() || to + 1 >= bins.len() || bins[to + 1].zone != bins[to].zone {
+            continue;
+        }
+        // One replenishment of FACE_DAYS' demand every FACE_DAYS days or so.
+        let per_day = P_MISPUTAWAY * m * s.units_per_day;
+        let jumps = per_day / (6.0 * s.units_per_day).max(1.0);
+        met[i].0 += jumps;
+        met[i].1 += per_day * s.unit_cost;
+        if let Some(&j) = holder.get(&(to + 1)) {
+            met[j].0 += jumps;
+            met[j].1 += per_day * s.unit_cost;
+        }
+    }
+    met.iter()
+        .zip(sim)
+        .map(|(&(rate, value), s)| {
+            let rate = rate.max(1e-9);
+            crate::planning::risk::Jumps {
+                rate,
+                size: if s.unit_cost > 0.0 {
+                    value / s.unit_cost / rate
+                } else {
+                    0.0
+                },
+            }
+        })
+        .collect()
+}
+
 impl Replay {
     /// Returns the note under the table about items `risk` never counts, if any.
     pub fn note(&self) -> String {
@@ -397,7 +466,11 @@ impl Replay {
         let model = match spec.model {
             ErrorModel::Jump => {
                 "error arriving in jumps, each item's rate shrunk toward its pool's rate per pick \
-                 (pools: class x pick rate)"
+                 (pools: class x pick rate x one bin or more)"
+            }
+            ErrorModel::Known => {
+                "error arriving in jumps at the world's true rates and sizes (not learnable on a \
+                 live site: the ceiling of better figures)"
             }
             ErrorModel::Walk => {
                 "error growth sigma^2 = b*t learned from its own counts (item, else class x pick \

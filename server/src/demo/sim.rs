@@ -15,11 +15,11 @@ use rand_distr::{Distribution, Poisson};
 use std::collections::{HashMap, VecDeque};
 
 /// Chance that a pick is never recorded (common practice, no source: a plausible rate).
-const P_UNRECORDED_PICK: f64 = 0.001;
+pub(crate) const P_UNRECORDED_PICK: f64 = 0.001;
 /// Chance that a recorded pick quantity is keyed one off.
-const P_MISKEYED_PICK: f64 = 0.0015;
+pub(crate) const P_MISKEYED_PICK: f64 = 0.0015;
 /// Chance that a replenishment lands in the neighbouring bin.
-const P_MISPUTAWAY: f64 = 0.01;
+pub(crate) const P_MISPUTAWAY: f64 = 0.01;
 /// Chance per item per working day of one damaged unit written off.
 const P_DAMAGE: f64 = 0.001;
 /// Days of demand a pick face is topped up to.

@@ -7,6 +7,7 @@ fn pool(zone: i64) -> PoolKey {
         class: Class::B,
         zone,
         band: RateBand::Busy,
+        replenished: false,
     }
 }
 

@@ -247,9 +247,14 @@ fn pool_name(p: &PoolKey, zones: &HashMap<i64, &str>) -> String {
         RateBand::Fast => "fast",
     };
     format!(
-        "class {}, zone {}, {band} picking",
+        "class {}, zone {}, {band} picking, {}",
         p.class,
-        zones.get(&p.zone).copied().unwrap_or("?")
+        zones.get(&p.zone).copied().unwrap_or("?"),
+        if p.replenished {
+            "more than one bin"
+        } else {
+            "one bin"
+        }
     )
 }
 
@@ -287,6 +292,7 @@ pub fn risk_plan(
             class: it.class,
             zone: input.bins[it.bins[0] as usize].place.zone,
             band: RateBand::of(history[i].picks_per_day),
+            replenished: it.bins.len() > 1,
         }
     };
     let evidence: Vec<ItemEvidence> = planned

@@ -55,6 +55,51 @@ fn input(classes: &[Class]) -> PlanInput {
     }
 }
 
+#[test]
+fn an_item_replenished_from_a_second_bin_is_pooled_apart_from_single_bin_items() {
+    // Two B items picking twice a day in zone A: the first, in one bin, has 4 counts
+    // finding errors; the second has none and is also held in a reserve bin, so its
+    // pool (class B, zone A, busy, more than one bin) has no counts and it takes the
+    // site's rate per pick, not the single-bin pool's.
+    let mut input = input(&[Class::B, Class::B, Class::B]);
+    input.items[1].bins.push(2);
+    input.items.truncate(2);
+    let own = ItemHistory {
+        unit_cost_minor: 100,
+        picks_per_day: 2.0,
+        points: (0..4)
+            .map(|_| ErrorPoint {
+                days_since_previous: 10.0,
+                error: 1.0,
+            })
+            .collect(),
+    };
+    let none = ItemHistory {
+        points: Vec::new(),
+        ..own.clone()
+    };
+    let plan = risk_plan(
+        &input,
+        &[own, none],
+        &FrequencyPolicy {
+            policy: Mode::Risk,
+            ..FrequencyPolicy::default()
+        },
+    )
+    .expect("valid figures");
+    let apart = interval(&plan, 1);
+    assert_eq!((apart.growth.from, apart.growth.points), ("site", 4));
+    assert_eq!(apart.growth.pool, None);
+    // By hand (`jumps` module notes, κ = 2): the counted item covers 40 days, 80
+    // pick-days, with 4 errors: the site's β = 1/20 a pick. The reserve-held item's
+    // pool is empty, so its β is the site's and its rate 2·(1/20) = 0.1 a day.
+    assert!(
+        (apart.growth.jumps_a_day - 0.1).abs() < 1e-12,
+        "{:?}",
+        apart.growth
+    );
+}
+
 /// An item's history: 10 counts 20 days apart, `errors` of them finding `units` units,
 /// one pick a day, and its unit cost.
 fn counted(errors: usize, units: f64, cost: i64) -> ItemHistory {
@@ -197,7 +242,7 @@ fn blend_floors_hold_every_class_to_its_least_counts_a_year() {
 #[test]
 fn items_without_counts_take_their_pool_then_the_site() {
     // One B item with 4 counts of its own, one B item without (same pool: class B,
-    // zone A, busy picking), one C item without (its pool has no counts), and an A item
+    // zone A, busy picking, one bin), one C item without (its pool has no counts), and an A item
     // whose 4 counts found nothing. All pick twice a day.
     let input = input(&[Class::B, Class::B, Class::C, Class::A]);
     let own = ItemHistory {
@@ -237,7 +282,7 @@ fn items_without_counts_take_their_pool_then_the_site() {
     assert_eq!((pooled.growth.from, pooled.growth.points), ("pool", 4));
     assert_eq!(
         pooled.growth.pool.as_deref(),
-        Some("class B, zone A, busy picking")
+        Some("class B, zone A, busy picking, one bin")
     );
     let c = interval(&plan, 2);
     assert_eq!((c.growth.from, c.growth.points), ("site", 8));

@@ -108,6 +108,10 @@ pub struct PoolKey {
     pub class: Class,
     pub zone: i64,
     pub band: RateBand,
+    /// Held in more than one bin: its pick face is replenished from another bin, and
+    /// each replenishment can land a whole move in the wrong place, so its errors per
+    /// pick are pooled apart from those of items picked from a single bin.
+    pub replenished: bool,
 }
 
 /// Where an item's growth figures came from.

@@ -360,6 +360,7 @@ fn growth_comes_from_the_item_then_its_pool_then_the_default() {
         class: Class::A,
         zone: 3,
         band: RateBand::of(2.0),
+        replenished: false,
     };
     assert_eq!(pool.band, RateBand::Busy);
     let own = ErrorGrowth {

@@ -13,7 +13,7 @@ pub mod report;
 
 use super::abc::Class;
 use super::jumps::{self, ItemEvidence};
-use super::risk::{self, Drift, Floors, Growth, PoolKey, RateBand, RiskItem, Source};
+use super::risk::{self, Drift, Floors, Growth, Jumps, PoolKey, RateBand, RiskItem, Source};
 use crate::accuracy::buffer::{BufferInputs, buffer};
 use crate::accuracy::item_error::{ErrorGrowth, ErrorPoint, fit_growth_from_count};
 use std::collections::{BTreeMap, BTreeSet};
@@ -64,6 +64,9 @@ pub enum ErrorModel {
     /// A random walk, `σ²(t) = b·t` fitted from a count (what the day's list planned with
     /// before jumps; kept for comparison).
     Walk,
+    /// Jumps at the rates and sizes the world truly injects ([`SimSite::known`]): not
+    /// learnable on a live site, it shows how far better figures could take `risk`.
+    Known,
 }
 
 /// One item as the simulation sees it.
@@ -101,6 +104,10 @@ pub struct SimSite {
     /// How both policies model error growth (`risk` chooses with it; both value
     /// their safety stock with it).
     pub model: ErrorModel,
+    /// Each item's true jumps, for [`ErrorModel::Known`] (empty under the others): the
+    /// value a count of the item's bins finds a day, `rate·size·unit_cost`, includes
+    /// other items' stock misplaced into those bins.
+    pub known: Vec<Jumps>,
 }
 
 /// Why a simulation cannot start.
@@ -118,6 +125,8 @@ pub enum SimError {
     Floor { class: &'static str, per_year: u32 },
     #[error("item {item} bin {bin}: no such bin")]
     NoBin { item: usize, bin: usize },
+    #[error("the known error model needs one rate and size per item: {given} for {items} items")]
+    Known { given: usize, items: usize },
 }
 
 /// A key: bin index, item index, lot.
@@ -236,6 +245,12 @@ impl Simulation {
                 });
             }
         }
+        if site.model == ErrorModel::Known && site.known.len() != site.items.len() {
+            return Err(SimError::Known {
+                given: site.known.len(),
+                items: site.items.len(),
+            });
+        }
         let countable: f64 = (0..site.items.len())
             .map(|i| item_seconds(&site, i) as f64)
             .sum();
@@ -340,6 +355,11 @@ impl Simulation {
         let growth = match site.model {
             ErrorModel::Walk => learned_growth(site, &run.points),
             ErrorModel::Jump => learned_jumps(site, &run.points),
+            ErrorModel::Known => site
+                .known
+                .iter()
+                .map(|j| (Drift::Jump(*j), Source::Default))
+                .collect(),
         };
         run.drift = growth.iter().map(|(g, _)| *g).collect();
         if run.policy == Policy::Abc {
@@ -546,6 +566,7 @@ fn pool_of(site: &SimSite, i: usize) -> PoolKey {
     PoolKey {
         class: site.items[i].class,
         zone: 0,
+        replenished: site.items[i].bins.len() > 1,
         band: RateBand::of(site.items[i].picks_per_day),
     }
 }

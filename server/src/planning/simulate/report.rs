@@ -28,6 +28,9 @@ pub struct Totals {
     pub final_ira: f64,
     pub final_value_accuracy: f64,
     pub final_safety_stock_value: f64,
+    /// Error value left standing at the end of each week, averaged over the weeks:
+    /// the wrong value the records carry on an ordinary day; minor units.
+    pub mean_standing_value: f64,
 }
 
 /// Sums one policy's weeks.
@@ -49,6 +52,11 @@ pub fn totals(rows: &[WeekRow], policy: Policy) -> Totals {
         final_ira: last.map_or(1.0, |r| r.ira),
         final_value_accuracy: last.map_or(1.0, |r| r.value_accuracy),
         final_safety_stock_value: last.map_or(0.0, |r| r.safety_stock_value),
+        mean_standing_value: if mine.is_empty() {
+            0.0
+        } else {
+            mine.iter().map(|r| r.standing_error_value).sum::<f64>() / mine.len() as f64
+        },
     }
 }
 
@@ -148,6 +156,7 @@ pub fn table(rows: &[WeekRow], shown: Shown) -> String {
     let _ = writeln!(out);
     let _ = writeln!(out, "{}", verdict(&both[0], &both[1]));
     let _ = writeln!(out, "{}", arising_verdict(&both[0], &both[1]));
+    let _ = writeln!(out, "{}", standing_verdict(&both[0], &both[1]));
     if let Shown::Proposal(p) = shown {
         let _ = writeln!(out, "* {} is the policy proposed (--policy)", p.as_str());
     }
@@ -195,6 +204,25 @@ pub fn arising_verdict(abc: &Totals, risk: &Totals) -> String {
     };
     format!(
         "of the errors that arose during the run (not standing on its first day): risk {}, abc {}{rel}",
+        money(r),
+        money(a)
+    )
+}
+
+/// Says which policy left less error value standing on an ordinary day: the mean of
+/// the weeks' ends. Over a run, the value found is what stood on the first day plus
+/// what arose, less what stands on the last: the same errors arise under both
+/// policies, so the found verdicts differ only by the last day's standing, one
+/// snapshot; this line weighs every week.
+pub fn standing_verdict(abc: &Totals, risk: &Totals) -> String {
+    let (a, r) = (abc.mean_standing_value, risk.mean_standing_value);
+    let rel = if a > 0.0 {
+        format!(" ({:+.1} %)", (r - a) / a * 100.0)
+    } else {
+        String::new()
+    };
+    format!(
+        "error value left standing at the weeks' ends, on average: risk {}, abc {}{rel}",
         money(r),
         money(a)
     )

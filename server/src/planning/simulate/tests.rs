@@ -22,6 +22,7 @@ fn one_item(per_year_a: u32) -> SimSite {
             per_year: [0, 0, 0],
         },
         model: ErrorModel::Jump,
+        known: Vec::new(),
     }
 }
 
@@ -75,6 +76,77 @@ fn an_error_standing_on_the_first_day_is_told_apart_from_one_that_arose_later() 
     assert_eq!(
         report::arising_verdict(&abc, &risk),
         "of the errors that arose during the run (not standing on its first day): risk 2.50, abc 2.50 (+0.0 %)"
+    );
+}
+
+#[test]
+fn the_standing_verdict_weighs_every_week_not_the_last_day() {
+    let row = |week, policy, standing| WeekRow {
+        week,
+        policy,
+        ira: 1.0,
+        value_accuracy: 1.0,
+        errors_found: 0,
+        error_value_found: 0.0,
+        first_day_value_found: 0.0,
+        mean_age_days: None,
+        standing_error_value: standing,
+        safety_stock_value: 0.0,
+        minutes_used: 0.0,
+        bins_counted: 0,
+    };
+    // abc leaves 10.00 then 2.00 standing, risk 4.00 then 4.00: risk is behind on the
+    // last day but its weeks average 4.00 against abc's 6.00, a third less.
+    let rows = [
+        row(1, Policy::Abc, 1_000.0),
+        row(1, Policy::Risk, 400.0),
+        row(2, Policy::Abc, 200.0),
+        row(2, Policy::Risk, 400.0),
+    ];
+    let abc = report::totals(&rows, Policy::Abc);
+    let risk = report::totals(&rows, Policy::Risk);
+    assert_eq!(
+        (abc.mean_standing_value, risk.mean_standing_value),
+        (600.0, 400.0)
+    );
+    assert_eq!(
+        report::standing_verdict(&abc, &risk),
+        "error value left standing at the weeks' ends, on average: risk 4.00, abc 6.00 (-33.3 %)"
+    );
+    assert!(report::table(&rows, Shown::Both).contains("risk 4.00, abc 6.00 (-33.3 %)"));
+}
+
+#[test]
+fn the_known_model_takes_one_rate_and_size_an_item_and_counts_the_faster_more_often() {
+    let mut site = one_item(12);
+    site.model = ErrorModel::Known;
+    assert_eq!(
+        Simulation::new(site.clone(), 1).err(),
+        Some(SimError::Known { given: 0, items: 1 })
+    );
+    // Two like items, one bin each; the second's errors arrive four times as fast, so
+    // by the square-root rule (`risk` module notes) its interval is half the first's:
+    // a minute a day over two one-minute items, 1/T₁ + 2/T₁ = 1, so 3 and 1.5 days.
+    site.items.push(SimItem {
+        bins: vec![1],
+        ..site.items[0].clone()
+    });
+    site.bin_seconds.push(60);
+    site.known = vec![
+        Jumps {
+            rate: 0.01,
+            size: 2.0,
+        },
+        Jumps {
+            rate: 0.04,
+            size: 2.0,
+        },
+    ];
+    let sim = Simulation::new(site, 1).unwrap();
+    let iv = sim.intervals(Policy::Risk);
+    assert!(
+        (iv[0] - 3.0).abs() < 1e-6 && (iv[1] - 1.5).abs() < 1e-6,
+        "{iv:?}"
     );
 }
 
@@ -173,6 +245,7 @@ fn forty(floors: [u32; 3], minutes: u32) -> (SimSite, Vec<Keys>) {
         working_days_per_year: 250.0,
         floors: Floors { per_year: floors },
         model: ErrorModel::Jump,
+        known: Vec::new(),
     };
     (site, days)
 }
