@@ -141,6 +141,11 @@ enum Command {
         /// Seed of the error process (the same seed gives byte-identical output).
         #[arg(long, default_value_t = 22)]
         seed: u64,
+        /// Runs this many seeds, from `--seed` on (1 to 100), and prints one line a seed
+        /// and the verdicts over them all instead of the weeks of one (the chart is the
+        /// first seed's).
+        #[arg(long, default_value_t = 1)]
+        seeds: u64,
         /// Least counts a year of class A, B, C under `risk`, as `blend` sets them
         /// (0: no floor), e.g. `--floors 12,4,1`.
         #[arg(long, value_delimiter = ',', default_values_t = [0, 0, 0])]
@@ -785,8 +790,18 @@ async fn dispatch(command: Command) -> anyhow::Result<()> {
             world,
             start,
             svg,
+            seeds,
         } => {
             use crate::planning::simulate::{ErrorModel, Policy, report};
+            if !(1..=report::MAX_SEEDS).contains(&seeds) {
+                anyhow::bail!("--seeds {seeds}: give 1 to {} seeds", report::MAX_SEEDS);
+            }
+            let Some(last_seed) = seed.checked_add(seeds - 1) else {
+                anyhow::bail!(
+                    "--seed {seed} --seeds {seeds}: the last seed is past {}",
+                    u64::MAX
+                );
+            };
             db.must_exist("")?;
             let floors: [u32; 3] = floors
                 .try_into()
@@ -833,8 +848,34 @@ async fn dispatch(command: Command) -> anyhow::Result<()> {
             std::fs::write(&svg, report::svg(&run.rows, shown, &title))
                 .map_err(|e| anyhow::anyhow!("cannot write the chart to {}: {e}", svg.display()))?;
             out!("{}", run.preamble(site.code.as_str(), &spec))?;
-            out!("{}", report::table(&run.rows, shown))?;
-            out!("{}", run.note())?;
+            if seeds == 1 {
+                out!("{}", report::table(&run.rows, shown))?;
+                out!("{}", run.note())?;
+            } else {
+                let mut rows = Vec::with_capacity(seeds as usize);
+                let totals = |rows: &[crate::planning::simulate::WeekRow], seed| report::SeedRow {
+                    seed,
+                    abc: report::totals(rows, Policy::Abc),
+                    risk: report::totals(rows, Policy::Risk),
+                };
+                rows.push(totals(&run.rows, seed));
+                for s in seed + 1..=last_seed {
+                    let more = demo::replay::replay(
+                        store,
+                        &site,
+                        &demo::replay::ReplaySpec {
+                            seed: s,
+                            ..spec.clone()
+                        },
+                    )
+                    .await?;
+                    rows.push(totals(&more.rows, s));
+                }
+                outln!(
+                    "seeds {seed} to {last_seed}: the lines above are seed {seed}'s; each seed draws its own errors"
+                )?;
+                out!("{}", report::seeds_table(&rows))?;
+            }
             outln!("chart written to {}", svg.display())?;
             Ok(())
         }

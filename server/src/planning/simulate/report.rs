@@ -228,6 +228,87 @@ pub fn standing_verdict(abc: &Totals, risk: &Totals) -> String {
     )
 }
 
+/// Most seeds one `--seeds` run may take.
+pub const MAX_SEEDS: u64 = 100;
+
+/// One seed's figures in a several-seed run: both policies' totals.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct SeedRow {
+    pub seed: u64,
+    pub abc: Totals,
+    pub risk: Totals,
+}
+
+fn change(risk: f64, abc: f64) -> String {
+    if abc > 0.0 {
+        format!("{:+.1} %", (risk - abc) / abc * 100.0)
+    } else {
+        "-".into()
+    }
+}
+
+/// Writes one line a seed (error value found, of it what arose during the run, and
+/// the mean standing, each policy's and risk's change) and the verdicts over them all:
+/// the seeds' sums compared, and in how many seeds risk was ahead. One seed's figures
+/// turn on a few large errors; the sums over many weigh the policies, not the draws.
+pub fn seeds_table(rows: &[SeedRow]) -> String {
+    let mut out = String::new();
+    let _ = writeln!(
+        out,
+        "{:>6} {:>14} {:>14} {:>8} {:>14} {:>14} {:>8} {:>14} {:>14} {:>8}",
+        "seed",
+        "found abc",
+        "found risk",
+        "change",
+        "arose abc",
+        "arose risk",
+        "change",
+        "standing abc",
+        "standing risk",
+        "change"
+    );
+    let arose = |t: &Totals| t.error_value_found - t.first_day_value_found;
+    for r in rows {
+        let _ = writeln!(
+            out,
+            "{:>6} {:>14} {:>14} {:>8} {:>14} {:>14} {:>8} {:>14} {:>14} {:>8}",
+            r.seed,
+            money(r.abc.error_value_found),
+            money(r.risk.error_value_found),
+            change(r.risk.error_value_found, r.abc.error_value_found),
+            money(arose(&r.abc)),
+            money(arose(&r.risk)),
+            change(arose(&r.risk), arose(&r.abc)),
+            money(r.abc.mean_standing_value),
+            money(r.risk.mean_standing_value),
+            change(r.risk.mean_standing_value, r.abc.mean_standing_value),
+        );
+    }
+    let sum = |f: &dyn Fn(&SeedRow) -> f64| rows.iter().map(f).sum::<f64>();
+    let ahead = |f: &dyn Fn(&SeedRow) -> bool| rows.iter().filter(|r| f(r)).count();
+    let n = rows.len();
+    let _ = writeln!(out);
+    let _ = writeln!(
+        out,
+        "over {n} seeds, risk against abc: error value found {} in sum (ahead in {} of {n}); \
+         of the errors that arose during the runs {} (ahead in {} of {n}); error value left \
+         standing, mean of the weeks, {} (less in {} of {n})",
+        change(
+            sum(&|r| r.risk.error_value_found),
+            sum(&|r| r.abc.error_value_found)
+        ),
+        ahead(&|r| r.risk.error_value_found > r.abc.error_value_found),
+        change(sum(&|r| arose(&r.risk)), sum(&|r| arose(&r.abc))),
+        ahead(&|r| arose(&r.risk) > arose(&r.abc)),
+        change(
+            sum(&|r| r.risk.mean_standing_value),
+            sum(&|r| r.abc.mean_standing_value)
+        ),
+        ahead(&|r| r.risk.mean_standing_value < r.abc.mean_standing_value),
+    );
+    out
+}
+
 const WIDTH: f64 = 720.0;
 const HEIGHT: f64 = 320.0;
 const LEFT: f64 = 84.0;

@@ -117,6 +117,59 @@ fn the_standing_verdict_weighs_every_week_not_the_last_day() {
 }
 
 #[test]
+fn the_seeds_table_sums_the_seeds_and_counts_where_risk_was_ahead() {
+    let totals = |policy, found: f64, first: f64, standing: f64| report::Totals {
+        policy,
+        errors_found: 1,
+        error_value_found: found,
+        first_day_value_found: first,
+        mean_age_days: None,
+        minutes_used: 0.0,
+        final_ira: 1.0,
+        final_value_accuracy: 1.0,
+        final_safety_stock_value: 0.0,
+        mean_standing_value: standing,
+    };
+    // Seed 1: risk finds 3.00 against 1.00, all of it arising (none stood on day one),
+    // and leaves 1.00 standing against 2.00. Seed 2: risk finds 1.00 against 3.00 (of
+    // which 1.00 stood on day one under each) and leaves 3.00 against 2.00. Sums: found
+    // 4.00 against 4.00 (+0.0 %, ahead in 1); arising 3.00 against 3.00 (+0.0 %, ahead
+    // in 1: 3.00 > 1.00 in seed 1, 0.00 < 2.00 in seed 2); standing 4.00 against 4.00,
+    // less in 1.
+    let rows = [
+        report::SeedRow {
+            seed: 1,
+            abc: totals(Policy::Abc, 100.0, 0.0, 200.0),
+            risk: totals(Policy::Risk, 300.0, 0.0, 100.0),
+        },
+        report::SeedRow {
+            seed: 2,
+            abc: totals(Policy::Abc, 300.0, 100.0, 200.0),
+            risk: totals(Policy::Risk, 100.0, 100.0, 300.0),
+        },
+    ];
+    let text = report::seeds_table(&rows);
+    let lines: Vec<&str> = text.lines().collect();
+    assert!(lines[0].contains("found abc") && lines[0].contains("standing risk"));
+    let first: Vec<&str> = lines[1].split_whitespace().collect();
+    assert_eq!(
+        first,
+        [
+            "1", "1.00", "3.00", "+200.0", "%", "1.00", "3.00", "+200.0", "%", "2.00", "1.00",
+            "-50.0", "%"
+        ]
+    );
+    assert!(
+        text.contains(
+            "over 2 seeds, risk against abc: error value found +0.0 % in sum (ahead in 1 of 2); \
+             of the errors that arose during the runs +0.0 % (ahead in 1 of 2); error value left \
+             standing, mean of the weeks, +0.0 % (less in 1 of 2)"
+        ),
+        "{text}"
+    );
+}
+
+#[test]
 fn the_known_model_takes_one_rate_and_size_an_item_and_counts_the_faster_more_often() {
     let mut site = one_item(12);
     site.model = ErrorModel::Known;
