@@ -289,6 +289,7 @@ pub async fn replay(
             unit_cost: unit_cost as f64,
             picks_per_day: per_calendar_day,
             units_per_day: per_calendar_day * mean_pick,
+            zone: held.first().map_or(0, |&b| input.bins[b].place.zone),
             bins: held,
             last_count: last.map(|d| (d - today).num_days()),
             history: w

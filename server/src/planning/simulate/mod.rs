@@ -81,6 +81,8 @@ pub struct SimItem {
     pub units_per_day: f64,
     /// Indices of the bins a count of the item visits.
     pub bins: Vec<usize>,
+    /// The zone of its first bin (its risk pool's zone, as the day's list pools it).
+    pub zone: i64,
     /// The day (≤ 0, relative to the first simulated day) the item was last counted, if known.
     pub last_count: Option<i64>,
     /// The growth points the site's own judged counts give (both policies start from them).
@@ -565,7 +567,7 @@ fn count_bin(site: &SimSite, keys: &Keys, run: &mut Run, bin: usize, day: u32, f
 fn pool_of(site: &SimSite, i: usize) -> PoolKey {
     PoolKey {
         class: site.items[i].class,
-        zone: 0,
+        zone: site.items[i].zone,
         replenished: site.items[i].bins.len() > 1,
         band: RateBand::of(site.items[i].picks_per_day),
     }

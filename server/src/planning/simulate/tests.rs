@@ -11,6 +11,7 @@ fn one_item(per_year_a: u32) -> SimSite {
             picks_per_day: 5.0,
             units_per_day: 5.0,
             bins: vec![0],
+            zone: 0,
             last_count: Some(0),
             history: Vec::new(),
         }],
@@ -271,6 +272,7 @@ fn forty(floors: [u32; 3], minutes: u32) -> (SimSite, Vec<Keys>) {
             picks_per_day: 0.1 * f64::from(1 + (i as u32 * 13) % 60),
             units_per_day: 0.2 * f64::from(1 + (i as u32 * 13) % 60),
             bins: vec![i],
+            zone: 0,
             last_count: None,
             history: Vec::new(),
         })
