@@ -467,15 +467,15 @@ impl Replay {
         let model = match spec.model {
             ErrorModel::Jump => {
                 "error arriving in jumps, each item's rate shrunk toward its pool's rate per pick \
-                 (pools: class x pick rate x one bin or more)"
+                 (pools: class x zone x pick rate x one bin or more)"
             }
             ErrorModel::Known => {
                 "error arriving in jumps at the world's true rates and sizes (not learnable on a \
                  live site: the ceiling of better figures)"
             }
             ErrorModel::Walk => {
-                "error growth sigma^2 = b*t learned from its own counts (item, else class x pick \
-                 rate, else site, else unit growth)"
+                "error growth sigma^2 = b*t learned from its own counts (item, else its pool, else \
+                 the site, else unit growth)"
             }
         };
         let uneven = match spec.world {
