@@ -78,15 +78,7 @@ fn an_item_replenished_from_a_second_bin_is_pooled_apart_from_single_bin_items()
         points: Vec::new(),
         ..own.clone()
     };
-    let plan = risk_plan(
-        &input,
-        &[own, none],
-        &FrequencyPolicy {
-            policy: Mode::Risk,
-            ..FrequencyPolicy::default()
-        },
-    )
-    .expect("valid figures");
+    let plan = plan_under_risk(&input, &[own, none]);
     let apart = interval(&plan, 1);
     assert_eq!((apart.growth.from, apart.growth.points), ("site", 4));
     assert_eq!(apart.growth.pool, None);
@@ -98,6 +90,19 @@ fn an_item_replenished_from_a_second_bin_is_pooled_apart_from_single_bin_items()
         "{:?}",
         apart.growth
     );
+}
+
+/// Plans `input` under `risk` (no floors) with one history per item.
+fn plan_under_risk(input: &PlanInput, history: &[ItemHistory]) -> RiskPlan {
+    risk_plan(
+        input,
+        history,
+        &FrequencyPolicy {
+            policy: Mode::Risk,
+            ..FrequencyPolicy::default()
+        },
+    )
+    .expect("valid figures")
 }
 
 /// An item's history: 10 counts 20 days apart, `errors` of them finding `units` units,
@@ -208,15 +213,7 @@ fn blend_floors_hold_every_class_to_its_least_counts_a_year() {
         counted(5, 3.0, 10_000),
         counted(5, 3.0, 10_000),
     ];
-    let risk = risk_plan(
-        &input,
-        &history,
-        &FrequencyPolicy {
-            policy: Mode::Risk,
-            ..FrequencyPolicy::default()
-        },
-    )
-    .expect("valid figures");
+    let risk = plan_under_risk(&input, &history);
     let wdy = input.calendar.working_days_in_year(input.day);
     let floor_wd = crate::planning::due::interval_days(wdy, 12);
     assert!(interval(&risk, 0).working_days > floor_wd);
@@ -267,15 +264,7 @@ fn items_without_counts_take_their_pool_then_the_site() {
             .collect(),
         ..own.clone()
     };
-    let plan = risk_plan(
-        &input,
-        &[own, none.clone(), none, clean],
-        &FrequencyPolicy {
-            policy: Mode::Risk,
-            ..FrequencyPolicy::default()
-        },
-    )
-    .expect("valid figures");
+    let plan = plan_under_risk(&input, &[own, none.clone(), none, clean]);
     let b = interval(&plan, 0);
     assert_eq!((b.growth.from, b.growth.points), ("item", 4));
     let pooled = interval(&plan, 1);

@@ -193,20 +193,21 @@ pub fn verdict(abc: &Totals, risk: &Totals) -> String {
 /// day left out): what the policies' choice of intervals is about, apart from where the
 /// history happened to leave errors.
 pub fn arising_verdict(abc: &Totals, risk: &Totals) -> String {
-    let (a, r) = (
-        abc.error_value_found - abc.first_day_value_found,
+    compared(
+        "of the errors that arose during the run (not standing on its first day)",
         risk.error_value_found - risk.first_day_value_found,
-    );
-    let rel = if a > 0.0 {
-        format!(" ({:+.1} %)", (r - a) / a * 100.0)
+        abc.error_value_found - abc.first_day_value_found,
+    )
+}
+
+/// Writes `what: risk R, abc A (±x %)`, the change left out when `abc`'s figure is 0.
+fn compared(what: &str, risk: f64, abc: f64) -> String {
+    let rel = if abc > 0.0 {
+        format!(" ({:+.1} %)", (risk - abc) / abc * 100.0)
     } else {
         String::new()
     };
-    format!(
-        "of the errors that arose during the run (not standing on its first day): risk {}, abc {}{rel}",
-        money(r),
-        money(a)
-    )
+    format!("{what}: risk {}, abc {}{rel}", money(risk), money(abc))
 }
 
 /// Says which policy left less error value standing on an ordinary day: the mean of
@@ -215,16 +216,10 @@ pub fn arising_verdict(abc: &Totals, risk: &Totals) -> String {
 /// policies, so the found verdicts differ only by the last day's standing, one
 /// snapshot; this line weighs every week.
 pub fn standing_verdict(abc: &Totals, risk: &Totals) -> String {
-    let (a, r) = (abc.mean_standing_value, risk.mean_standing_value);
-    let rel = if a > 0.0 {
-        format!(" ({:+.1} %)", (r - a) / a * 100.0)
-    } else {
-        String::new()
-    };
-    format!(
-        "error value left standing at the weeks' ends, on average: risk {}, abc {}{rel}",
-        money(r),
-        money(a)
+    compared(
+        "error value left standing at the weeks' ends, on average",
+        risk.mean_standing_value,
+        abc.mean_standing_value,
     )
 }
 
