@@ -399,7 +399,7 @@ fn known_jumps(
     sim: &[SimItem],
     propensity: &[f64],
 ) -> Vec<crate::planning::risk::Jumps> {
-    use super::sim::{P_MISKEYED_PICK, P_MISPUTAWAY, P_UNRECORDED_PICK};
+    use super::sim::{FACE_DAYS, P_MISKEYED_PICK, P_MISPUTAWAY, P_UNRECORDED_PICK};
     let mean_pick = (1.0 + f64::from(MAX_PICK)) / 2.0;
     // (jumps a day, value a day) each count of an item meets.
     let mut met = vec![(0.0_f64, 0.0_f64); demo.len()];
@@ -418,9 +418,9 @@ fn known_jumps(
         if d.reserve_bin.is_none() || to + 1 >= bins.len() || bins[to + 1].zone != bins[to].zone {
             continue;
         }
-        // One replenishment of FACE_DAYS' demand every FACE_DAYS days or so.
+        // One top-up of FACE_DAYS' demand every FACE_DAYS days or so.
         let per_day = P_MISPUTAWAY * m * s.units_per_day;
-        let jumps = per_day / (6.0 * s.units_per_day).max(1.0);
+        let jumps = per_day / (FACE_DAYS * s.units_per_day).max(1.0);
         met[i].0 += jumps;
         met[i].1 += per_day * s.unit_cost;
         if let Some(&j) = holder.get(&(to + 1)) {

@@ -23,7 +23,7 @@ pub(crate) const P_MISPUTAWAY: f64 = 0.01;
 /// Chance per item per working day of one damaged unit written off.
 const P_DAMAGE: f64 = 0.001;
 /// Days of demand a pick face is topped up to.
-const FACE_DAYS: f64 = 6.0;
+pub(crate) const FACE_DAYS: f64 = 6.0;
 /// Days of demand at which the buyer reorders, and how much is ordered.
 const REORDER_DAYS: f64 = 8.0;
 const ORDER_DAYS: f64 = 20.0;
