@@ -33,6 +33,14 @@ pub struct Totals {
     pub mean_standing_value: f64,
 }
 
+impl Totals {
+    /// Returns the value found of errors that arose during the run (not standing on its
+    /// first day), minor units.
+    pub fn arisen_value(&self) -> f64 {
+        self.error_value_found - self.first_day_value_found
+    }
+}
+
 /// Sums one policy's weeks.
 pub fn totals(rows: &[WeekRow], policy: Policy) -> Totals {
     let mine: Vec<&WeekRow> = rows.iter().filter(|r| r.policy == policy).collect();
@@ -195,15 +203,15 @@ pub fn verdict(abc: &Totals, risk: &Totals) -> String {
 pub fn arising_verdict(abc: &Totals, risk: &Totals) -> String {
     compared(
         "of the errors that arose during the run (not standing on its first day)",
-        risk.error_value_found - risk.first_day_value_found,
-        abc.error_value_found - abc.first_day_value_found,
+        risk.arisen_value(),
+        abc.arisen_value(),
     )
 }
 
 /// Writes `what: risk R, abc A (±x %)`, the change left out when `abc`'s figure is 0.
 fn compared(what: &str, risk: f64, abc: f64) -> String {
     let rel = if abc > 0.0 {
-        format!(" ({:+.1} %)", (risk - abc) / abc * 100.0)
+        format!(" ({})", change(risk, abc))
     } else {
         String::new()
     };
@@ -262,7 +270,6 @@ pub fn seeds_table(rows: &[SeedRow]) -> String {
         "standing risk",
         "change"
     );
-    let arose = |t: &Totals| t.error_value_found - t.first_day_value_found;
     for r in rows {
         let _ = writeln!(
             out,
@@ -271,9 +278,9 @@ pub fn seeds_table(rows: &[SeedRow]) -> String {
             money(r.abc.error_value_found),
             money(r.risk.error_value_found),
             change(r.risk.error_value_found, r.abc.error_value_found),
-            money(arose(&r.abc)),
-            money(arose(&r.risk)),
-            change(arose(&r.risk), arose(&r.abc)),
+            money(r.abc.arisen_value()),
+            money(r.risk.arisen_value()),
+            change(r.risk.arisen_value(), r.abc.arisen_value()),
             money(r.abc.mean_standing_value),
             money(r.risk.mean_standing_value),
             change(r.risk.mean_standing_value, r.abc.mean_standing_value),
@@ -293,8 +300,11 @@ pub fn seeds_table(rows: &[SeedRow]) -> String {
             sum(&|r| r.abc.error_value_found)
         ),
         ahead(&|r| r.risk.error_value_found > r.abc.error_value_found),
-        change(sum(&|r| arose(&r.risk)), sum(&|r| arose(&r.abc))),
-        ahead(&|r| arose(&r.risk) > arose(&r.abc)),
+        change(
+            sum(&|r| r.risk.arisen_value()),
+            sum(&|r| r.abc.arisen_value())
+        ),
+        ahead(&|r| r.risk.arisen_value() > r.abc.arisen_value()),
         change(
             sum(&|r| r.risk.mean_standing_value),
             sum(&|r| r.abc.mean_standing_value)
